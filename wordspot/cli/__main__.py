@@ -1,0 +1,5 @@
+import sys
+
+from wordspot.cli import main
+
+sys.exit(main())
