@@ -282,7 +282,7 @@ class WordRow:
             "substitutions": self.substitutions,
             "deletions": self.deletions,
             "inserted": self.inserted,
-            "error_rate": self.error_rate,
+            "error_rate": self.error_rate if self.reference_count else None,
             "confusions": [{"recognised_as": r, "count": c} for r, c in self.confusions],
         }
 
