@@ -1,0 +1,188 @@
+"""Manifests: which recording says which words, by which speaker.
+
+A manifest is a CSV file (UTF-8) with a header row::
+
+    path,transcript,speaker
+    takes/knead-01.wav,knead the dough,ana
+    /data/oven/oven-on.flac,oven on,ben
+
+``path`` is relative to the manifest's folder (or absolute); ``transcript`` is the words
+spoken, separated by spaces (lower-cased here); ``speaker`` is optional ("unknown" when the
+column is absent or the cell empty). Extra columns are ignored.
+
+:func:`check_manifest` reports every missing file and every word without a pronunciation in
+one error, so a user can fix them all in one go.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Sequence
+
+from wordspot.errors import ManifestError
+
+__all__ = ["Utterance", "read_manifest", "check_manifest", "MAX_LISTED_PROBLEMS"]
+
+#: At most this many problems are spelled out in one error; the rest are counted.
+MAX_LISTED_PROBLEMS = 20
+
+_REQUIRED = ("path", "transcript")
+
+
+@dataclass(frozen=True)
+class Utterance:
+    """One recording and what is said in it.
+
+    Attributes
+    ----------
+    path : Path
+        The audio file (resolved against the manifest's folder).
+    words : tuple of str
+        The transcript, lower-case.
+    speaker : str
+        Who speaks ("unknown" if the manifest does not say).
+    row : int
+        Line number in the manifest (the header is line 1), for messages.
+    """
+
+    path: Path
+    words: tuple[str, ...]
+    speaker: str
+    row: int
+
+
+def _limit(problems: Sequence[str]) -> str:
+    shown = list(problems[:MAX_LISTED_PROBLEMS])
+    if len(problems) > MAX_LISTED_PROBLEMS:
+        shown.append(f"... and {len(problems) - MAX_LISTED_PROBLEMS} more")
+    return "\n  ".join(shown)
+
+
+def read_manifest(path) -> list[Utterance]:
+    """Read a manifest CSV into utterances, in file order.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+
+    Returns
+    -------
+    list of Utterance
+
+    Raises
+    ------
+    ManifestError
+        Missing or unreadable file, not UTF-8, not CSV, no ``path``/``transcript`` column,
+        no rows, or rows with an empty path or transcript (all such rows are listed).
+    """
+    try:
+        p = Path(os.fspath(path))
+    except TypeError:
+        raise ManifestError(f"manifest path must be a file name, got {path!r}") from None
+    if not p.exists():
+        raise ManifestError(f"{p}: manifest not found; check the path")
+    if p.is_dir():
+        raise ManifestError(f"{p}: is a folder; name the manifest CSV file")
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise ManifestError(f"{p}: cannot read the manifest ({exc.strerror or exc})") from None
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise ManifestError(f"{p}, line {line}: not valid UTF-8 text; save the manifest as UTF-8 CSV") from None
+    if "\x00" in text:
+        raise ManifestError(f"{p}: holds NUL characters, so it is not a CSV text file")
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+    try:
+        header = next(reader, None)
+        while header is not None and not any(cell.strip() for cell in header):
+            header = next(reader, None)
+        if header is None:
+            raise ManifestError(
+                f"{p}: manifest is empty; it needs a header row `path,transcript,speaker` and one row per recording"
+            )
+        names = [cell.strip().lower() for cell in header]
+        missing = [c for c in _REQUIRED if c not in names]
+        if missing:
+            raise ManifestError(
+                f"{p}, line {reader.line_num}: header lacks column(s) {', '.join(missing)}; "
+                f"the first row must name the columns, e.g. `path,transcript,speaker` (found: {','.join(names)})"
+            )
+        i_path, i_text = names.index("path"), names.index("transcript")
+        i_speaker = names.index("speaker") if "speaker" in names else None
+        base = p.parent
+        utterances: list[Utterance] = []
+        problems: list[str] = []
+        for cells in reader:
+            row = reader.line_num
+            if not any(cell.strip() for cell in cells):
+                continue
+            file_cell = cells[i_path].strip() if i_path < len(cells) else ""
+            text_cell = cells[i_text].strip() if i_text < len(cells) else ""
+            speaker = cells[i_speaker].strip() if i_speaker is not None and i_speaker < len(cells) else ""
+            if not file_cell:
+                problems.append(f"line {row}: empty path")
+                continue
+            words = tuple(text_cell.lower().split())
+            if not words:
+                problems.append(f"line {row}: empty transcript for {file_cell} (write the words spoken)")
+                continue
+            audio = Path(file_cell)
+            if not audio.is_absolute():
+                audio = base / audio
+            utterances.append(Utterance(path=audio, words=words, speaker=speaker or "unknown", row=row))
+    except csv.Error as exc:
+        raise ManifestError(f"{p}, line {reader.line_num}: not valid CSV ({exc}); check quotes and commas") from None
+    if problems:
+        raise ManifestError(f"{p}: {len(problems)} row(s) to fix:\n  {_limit(problems)}")
+    if not utterances:
+        raise ManifestError(f"{p}: manifest has a header but no recordings; add one row per recording")
+    return utterances
+
+
+def check_manifest(utterances: Sequence[Utterance], lexicon, *, manifest=None) -> None:
+    """Check that every audio file exists and every word has a pronunciation.
+
+    Parameters
+    ----------
+    utterances : sequence of Utterance
+    lexicon : wordspot.lexicon.Lexicon
+        Anything supporting ``word in lexicon``.
+    manifest : str or os.PathLike, optional
+        The manifest's name, for the message.
+
+    Raises
+    ------
+    ManifestError
+        One error listing all problems: each missing file (with its line) and each word not in
+        the lexicon (with the lines it is on), and how to fix them.
+    """
+    name = str(manifest) if manifest is not None else "manifest"
+    problems: list[str] = []
+    unknown: dict[str, list[int]] = {}
+    for utt in utterances:
+        if not utt.path.exists():
+            problems.append(f"line {utt.row}: audio file not found: {utt.path}")
+        elif utt.path.is_dir():
+            problems.append(f"line {utt.row}: is a folder, not an audio file: {utt.path}")
+        for word in utt.words:
+            if word not in lexicon:
+                rows = unknown.setdefault(word, [])
+                if not rows or rows[-1] != utt.row:
+                    rows.append(utt.row)
+    for word, rows in unknown.items():
+        listed = ", ".join(str(r) for r in rows[:10]) + (f" and {len(rows) - 10} more" if len(rows) > 10 else "")
+        problems.append(f"word {word!r} is not in the lexicon (line{'s' if len(rows) > 1 else ''} {listed})")
+    if not problems:
+        return
+    hint = ""
+    if unknown:
+        words = " ".join(list(unknown)[:10])
+        hint = f"\nadd the missing words to the lexicon: `wordspot lexicon suggest {words}` prints lines to paste"
+    raise ManifestError(f"{name}: {len(problems)} problem(s):\n  {_limit(problems)}{hint}")
