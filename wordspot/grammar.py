@@ -1,18 +1,67 @@
-"""Word-to-word statistics of the training transcripts (the raw material of the prior).
+"""The word grammar: word-pair counts, the smoothed bigram prior and its settings.
 
-Index 0 of the count matrix is the utterance boundary: row 0 counts words that open an
-utterance (entry -> word) and column 0 counts words that close one (word -> exit).
+Index 0 of every word-pair table is the utterance boundary: as a *previous* word it means
+"the utterance has just begun" (entry -> word), as a *next* word it means "the utterance
+ends here" (word -> exit). Row 0, column 0 is the empty utterance (nothing but pause).
+
+Smoothing (:func:`estimate_prior`): absolute discounting with back-off to add-one
+smoothed unigrams (Ney, Essen & Kneser 1994, "On structuring probabilistic dependences in
+stochastic language modelling", Computer Speech and Language 8). For a previous word
+``v`` with pair counts ``c(v, w)``, total ``N(v)`` and ``n(v)`` distinct successors::
+
+    P(w | v) = (c(v, w) - D) / N(v)                      if c(v, w) > 0
+             = alpha(v) * U(w) / sum_{u: c(v,u)=0} U(u)   otherwise
+    alpha(v) = D * n(v) / N(v)
+
+with the discount ``D = n1 / (n1 + 2 n2)`` from the numbers of pairs seen once (n1) and
+twice (n2) (the estimate given in the same paper), clipped to [0.1, 0.9], or 0.5 when it
+cannot be estimated (common practice). ``U(w) = (c(., w) + 1) / (N + V + 1)`` counts how
+often ``w`` (or the exit) follows anything, plus one. A row with no counts is ``U``; a
+row in which every successor was seen keeps its plain relative frequencies. So no
+probability is ever zero and every row sums to one.
+
+Prior file (our own plain-text format, UTF-8)::
+
+    # how often one command follows another; '^' = start, '$' = end of utterance
+    ^      oven   12
+    oven   start  10
+    start  $      10
+
+One pair a line: previous word, next word, a whole-number count >= 0, separated by spaces.
+``#`` starts a comment; blank lines are ignored; words are matched case-insensitively;
+a pair listed twice adds up. The counts are smoothed as above, so unlisted pairs keep a
+small probability.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
-__all__ = ["BigramCounts", "count_bigrams", "BOUNDARY"]
+from wordspot.errors import GrammarError
+
+__all__ = [
+    "BigramCounts",
+    "count_bigrams",
+    "BOUNDARY",
+    "START_MARK",
+    "END_MARK",
+    "GrammarSettings",
+    "BigramPrior",
+    "estimate_prior",
+    "uniform_prior",
+    "read_prior",
+    "prior_for_vocabulary",
+]
 
 BOUNDARY = "<edge>"
+START_MARK = "^"  # prior file: "the utterance begins"
+END_MARK = "$"  # prior file: "the utterance ends"
+
+_DEFAULT_DISCOUNT = 0.5  # (common practice) when count-of-counts give no estimate
+_DISCOUNT_RANGE = (0.1, 0.9)
 
 
 @dataclass
@@ -53,3 +102,248 @@ def count_bigrams(transcripts, vocabulary=None) -> BigramCounts:
             if a >= 0 and b >= 0:
                 counts[a, b] += 1
     return BigramCounts(words, counts)
+
+
+@dataclass(frozen=True)
+class GrammarSettings:
+    """How the prior enters the search.
+
+    Parameters
+    ----------
+    weight : float >= 0
+        Multiplies every log prior probability (0 ignores the prior).
+    insertion_penalty : float
+        Added (in log units) for every word; negative values favour fewer words.
+    single_word : bool
+        Exactly one word between the entry and the exit pause (isolated commands).
+    """
+
+    weight: float = 1.0
+    insertion_penalty: float = 0.0
+    single_word: bool = False
+
+    def __post_init__(self) -> None:
+        if not (np.isfinite(self.weight) and self.weight >= 0):
+            raise GrammarError(f"grammar weight must be a finite number >= 0, got {self.weight!r}")
+        if not np.isfinite(self.insertion_penalty):
+            raise GrammarError(
+                f"insertion penalty must be a finite number, got {self.insertion_penalty!r}"
+            )
+
+
+@dataclass
+class BigramPrior:
+    """Smoothed log P(next | previous) over a vocabulary plus the boundary.
+
+    Stored in back-off form so that a large vocabulary needs O(V + pairs) memory:
+    ``log P(w | v) = pair_logp`` for the listed pairs, else ``backoff[v] + unigram[w]``.
+
+    Attributes
+    ----------
+    words : tuple of str
+        Word ``words[i]`` has index ``i + 1``; index 0 is the boundary.
+    unigram : ndarray, shape (V + 1,)
+        Log unigram term of every next word (index 0: the exit).
+    backoff : ndarray, shape (V + 1,)
+        Log back-off weight of every previous word (index 0: the entry), already
+        divided by the unseen unigram mass of its row.
+    pair_start : ndarray of int64, shape (V + 2,)
+        Listed pairs of previous word ``v`` are ``pair_start[v]:pair_start[v + 1]``.
+    pair_next : ndarray of int64, shape (pairs,)
+    pair_logp : ndarray of float, shape (pairs,)
+    method : str
+        One line saying how it was estimated.
+    """
+
+    words: tuple[str, ...]
+    unigram: np.ndarray
+    backoff: np.ndarray
+    pair_start: np.ndarray
+    pair_next: np.ndarray
+    pair_logp: np.ndarray
+    method: str = ""
+
+    @property
+    def n_words(self) -> int:
+        return len(self.words)
+
+    def log_row(self, previous: int) -> np.ndarray:
+        """Log P(. | previous) over all V + 1 next indices (0 = exit)."""
+        row = self.backoff[previous] + self.unigram
+        a, b = self.pair_start[previous], self.pair_start[previous + 1]
+        row[self.pair_next[a:b]] = self.pair_logp[a:b]
+        return row
+
+    def log_matrix(self) -> np.ndarray:
+        """Dense (V + 1, V + 1) table of log P(next | previous); for small vocabularies."""
+        return np.stack([self.log_row(v) for v in range(self.n_words + 1)])
+
+    def logprob(self, previous: str | None, following: str | None) -> float:
+        """Log P(following | previous); ``None`` stands for the boundary."""
+        index = {w: i + 1 for i, w in enumerate(self.words)}
+        v = 0 if previous is None else index[previous]
+        w = 0 if following is None else index[following]
+        return float(self.log_row(v)[w])
+
+
+def _discount(counts: np.ndarray) -> float:
+    n1 = int(np.count_nonzero(counts == 1))
+    n2 = int(np.count_nonzero(counts == 2))
+    if n1 == 0 or n2 == 0:
+        return _DEFAULT_DISCOUNT
+    d = n1 / (n1 + 2.0 * n2)  # Ney, Essen & Kneser 1994
+    return float(np.clip(d, *_DISCOUNT_RANGE))
+
+
+def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str) -> BigramPrior:
+    counts = np.asarray(counts, dtype=np.float64)
+    n = counts.shape[0]
+    uni = counts.sum(axis=0) + 1.0
+    uni /= uni.sum()
+    d = _discount(counts)
+    backoff = np.zeros(n)
+    starts = [0]
+    nexts: list[np.ndarray] = []
+    logps: list[np.ndarray] = []
+    for v in range(n):
+        row = counts[v]
+        total = row.sum()
+        seen = np.flatnonzero(row > 0)
+        unseen_mass = 1.0 - uni[seen].sum()
+        if total <= 0:
+            backoff[v] = 0.0  # plain unigram
+            starts.append(starts[-1])
+            continue
+        if seen.size == n or unseen_mass <= 0:
+            probs = row[seen] / total  # every successor seen: nothing to back off to
+            backoff[v] = -np.inf
+        else:
+            probs = (row[seen] - d) / total
+            alpha = d * seen.size / total
+            backoff[v] = np.log(alpha) - np.log(unseen_mass)
+        nexts.append(seen.astype(np.int64))
+        logps.append(np.log(probs))
+        starts.append(starts[-1] + seen.size)
+    return BigramPrior(
+        words=tuple(words),
+        unigram=np.log(uni),
+        backoff=backoff,
+        pair_start=np.array(starts, dtype=np.int64),
+        pair_next=np.concatenate(nexts) if nexts else np.zeros(0, dtype=np.int64),
+        pair_logp=np.concatenate(logps) if logps else np.zeros(0),
+        method=method,
+    )
+
+
+def estimate_prior(counts: BigramCounts) -> BigramPrior:
+    """Smoothed prior from word-pair counts (absolute discounting, back-off to unigrams).
+
+    Parameters
+    ----------
+    counts : BigramCounts
+
+    Returns
+    -------
+    BigramPrior
+        Every probability is positive and every row sums to one.
+    """
+    c = np.asarray(counts.counts)
+    v = len(counts.words)
+    if c.shape != (v + 1, v + 1) or np.any(c < 0):
+        raise GrammarError(
+            f"word-pair counts must be a non-negative ({v + 1} x {v + 1}) table, got shape {c.shape}"
+        )
+    return _from_counts(
+        counts.words, c, "absolute discounting with back-off to add-one unigrams (Ney, Essen & Kneser 1994)"
+    )
+
+
+def uniform_prior(words) -> BigramPrior:
+    """Every next word (and the exit) equally likely after every previous word."""
+    words = tuple(words)
+    n = len(words) + 1
+    return BigramPrior(
+        words=words,
+        unigram=np.full(n, -np.log(n)),
+        backoff=np.zeros(n),
+        pair_start=np.zeros(n + 1, dtype=np.int64),
+        pair_next=np.zeros(0, dtype=np.int64),
+        pair_logp=np.zeros(0),
+        method="uniform over the vocabulary",
+    )
+
+
+def read_prior(path, words) -> BigramPrior:
+    """Read a prior file (format in the module docstring) for the vocabulary ``words``.
+
+    Raises
+    ------
+    GrammarError
+        The file is missing or unreadable, or a line is malformed or names a word
+        outside the vocabulary (the message gives the file and line number).
+    """
+    path = Path(path)
+    words = tuple(words)
+    index = {w.lower(): i + 1 for i, w in enumerate(words)}
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise GrammarError(f"{path}: prior file not found; check the path") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise GrammarError(f"{path}: cannot read the prior file ({exc}); it must be UTF-8 text") from None
+    counts = np.zeros((len(words) + 1, len(words) + 1), dtype=np.int64)
+
+    def lookup(token: str, mark: str, lineno: int) -> int:
+        if token == mark:
+            return 0
+        key = token.lower()
+        if key not in index:
+            raise GrammarError(
+                f"{path}, line {lineno}: word {token!r} is not in the vocabulary; "
+                "add it to the lexicon or remove the line"
+            )
+        return index[key]
+
+    for lineno, line in enumerate(text.splitlines(), start=1):
+        body = line.split("#", 1)[0].split()
+        if not body:
+            continue
+        if len(body) != 3:
+            raise GrammarError(
+                f"{path}, line {lineno}: expected 'previous next count', got {line.strip()!r}"
+            )
+        prev, nxt, num = body
+        try:
+            value = int(num)
+        except ValueError:
+            value = -1
+        if value < 0:
+            raise GrammarError(
+                f"{path}, line {lineno}: count must be a whole number >= 0, got {num!r}"
+            )
+        if prev == END_MARK or nxt == START_MARK:
+            raise GrammarError(
+                f"{path}, line {lineno}: {END_MARK!r} may only be a next word and "
+                f"{START_MARK!r} only a previous word"
+            )
+        counts[lookup(prev, START_MARK, lineno), lookup(nxt, END_MARK, lineno)] += value
+    prior = _from_counts(words, counts, f"from prior file {path.name}, absolute discounting (Ney, Essen & Kneser 1994)")
+    return prior
+
+
+def prior_for_vocabulary(words, counts: BigramCounts | None = None, path=None) -> BigramPrior:
+    """The prior to decode ``words`` with.
+
+    A prior file wins; otherwise the counts are used when they cover exactly the same
+    vocabulary; otherwise (a new vocabulary) every word is equally likely.
+    """
+    words = tuple(words)
+    if path is not None:
+        return read_prior(path, words)
+    if counts is not None and tuple(counts.words) == words:
+        return estimate_prior(counts)
+    if counts is not None and set(counts.words) == set(words):
+        order = [0] + [counts.words.index(w) + 1 for w in words]
+        c = np.asarray(counts.counts)[np.ix_(order, order)]
+        return estimate_prior(BigramCounts(words, c))
+    return uniform_prior(words)
