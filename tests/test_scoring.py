@@ -178,6 +178,8 @@ def test_score_utterances_rejects_empty_input():
         score_utterances(empty)
     with pytest.raises(ScoringError, match="bad.wav: .*not a single non-empty word"):
         score_utterances([ScoredUtterance("bad.wav", "s", ("oven on",), ())])
+    with pytest.raises(ScoringError, match="b.wav: speaker must be a string, got None"):
+        score_utterances([ScoredUtterance("b.wav", None, ("oven",), ())])
     ok = [ScoredUtterance("a.wav", "s", ("oven",), ("oven",))]
     with pytest.raises(ScoringError, match="n_bootstrap must be a whole number >= 1, got 0"):
         score_utterances(ok, n_bootstrap=0)

@@ -523,6 +523,8 @@ def score_utterances(
     for rec in records:
         if not isinstance(rec, ScoredUtterance):
             raise ScoringError(f"score_utterances expects ScoredUtterance records, got {type(rec).__name__}")
+        if not isinstance(rec.speaker, str):
+            raise ScoringError(f"{rec.path}: speaker must be a string, got {rec.speaker!r}; use '' when unknown")
         try:
             alignment = align_words(rec.reference, rec.recognised)
         except ScoringError as exc:
