@@ -15,6 +15,7 @@ __all__ = [
     "TrainingError",
     "DecodingError",
     "GrammarError",
+    "ScoringError",
     "WordspotWarning",
     "AudioWarning",
     "TrainingWarning",
@@ -55,6 +56,10 @@ class DecodingError(WordspotError, ValueError):
 
 class GrammarError(WordspotError, ValueError):
     """A grammar prior file or setting is invalid."""
+
+
+class ScoringError(WordspotError, ValueError):
+    """Scoring input is invalid (no utterances, no reference words, a bad setting)."""
 
 
 class WordspotWarning(UserWarning):

@@ -29,7 +29,7 @@ from typing import Iterable, Sequence
 
 import numpy as np
 
-from wordspot.errors import WordspotError
+from wordspot.errors import ScoringError
 
 __all__ = [
     "ScoringError",
@@ -63,10 +63,6 @@ DEFAULT_REPLICATES = 1000
 CONFUSIONS_PER_WORD = 3
 # Upper bound on the number of resampled indices held in memory at once.
 _BOOTSTRAP_BLOCK = 2_000_000
-
-
-class ScoringError(WordspotError, ValueError):
-    """Scoring input is invalid (no utterances, no reference words, a bad setting)."""
 
 
 @dataclass(frozen=True)
