@@ -1,0 +1,264 @@
+"""Two do-it-yourself isolated-word recognisers that a practitioner would otherwise write.
+
+Both take the same feature frames as wordspot (``wordspot.features``: T x 39 MFCC + deltas,
+mean-normalised) and recognise exactly one word per file from the words they have recordings
+of. Neither can recognise a word it has no recordings of.
+
+* :class:`WholeWordHMM` -- one left-to-right Gaussian (mixture) HMM per word, trained and
+  scored with hmmlearn; states initialised by cutting every example into equal parts.
+* :class:`TemplateDTW` -- nearest template by dynamic time warping
+  (``librosa.sequence.dtw``), Euclidean frame distance, optional band and length
+  normalisation, all examples or a few medoids per word as templates.
+
+These are benchmark baselines, not part of the package.
+"""
+
+from __future__ import annotations
+
+import logging
+import warnings
+from typing import Mapping, Sequence
+
+import numpy as np
+
+__all__ = ["WholeWordHMM", "TemplateDTW", "uniform_segments", "frame_distances"]
+
+
+def uniform_segments(length: int, n_parts: int) -> np.ndarray:
+    """Part index of each of ``length`` frames when cut into ``n_parts`` equal parts.
+
+    Returns
+    -------
+    np.ndarray of int, shape (length,)
+    """
+    return np.minimum((np.arange(length) * n_parts) // max(length, 1), n_parts - 1)
+
+
+# ----------------------------------------------------------------------------- whole-word HMM
+
+
+def _left_to_right(n_states: int, stay: float = 0.6) -> tuple[np.ndarray, np.ndarray]:
+    start = np.zeros(n_states)
+    start[0] = 1.0
+    trans = np.zeros((n_states, n_states))
+    for s in range(n_states - 1):
+        trans[s, s], trans[s, s + 1] = stay, 1.0 - stay
+    trans[-1, -1] = 1.0
+    return start, trans
+
+
+def _state_init(frames: np.ndarray, n_mix: int, floor: np.ndarray, seed: int):
+    """Weights, means, variances of one state's mixture from its frames (k-means for M > 1)."""
+    d = frames.shape[1]
+    if n_mix == 1 or len(frames) < 2 * n_mix:
+        mean = frames.mean(axis=0) if len(frames) else np.zeros(d)
+        var = np.maximum(frames.var(axis=0) if len(frames) > 1 else floor * 100, floor)
+        return (np.full(n_mix, 1.0 / n_mix), np.repeat(mean[None], n_mix, 0),
+                np.repeat(var[None], n_mix, 0))
+    from sklearn.cluster import KMeans
+
+    labels = KMeans(n_clusters=n_mix, n_init=2, random_state=seed).fit_predict(frames)
+    weights = np.empty(n_mix)
+    means = np.empty((n_mix, d))
+    variances = np.empty((n_mix, d))
+    for m in range(n_mix):
+        part = frames[labels == m]
+        weights[m] = max(len(part), 1)
+        means[m] = part.mean(axis=0) if len(part) else frames.mean(axis=0)
+        variances[m] = np.maximum(part.var(axis=0) if len(part) > 1 else frames.var(axis=0), floor)
+    return weights / weights.sum(), means, variances
+
+
+def _fit_word(seqs: Sequence[np.ndarray], n_states: int, n_mix: int, n_iter: int, seed: int):
+    """Train one word's hmmlearn model (runs in a worker process when n_jobs > 1)."""
+    from hmmlearn import hmm
+
+    logging.getLogger("hmmlearn").setLevel(logging.ERROR)
+    seqs = [np.asarray(s, dtype=np.float64) for s in seqs]
+    allf = np.concatenate(seqs)
+    floor = 1e-2 * allf.var(axis=0)  # 1% of this word's variance
+    parts = [np.concatenate([s[uniform_segments(len(s), n_states) == k] for s in seqs])
+             for k in range(n_states)]
+    inits = [_state_init(p, n_mix, floor, seed + k) for k, p in enumerate(parts)]
+    start, trans = _left_to_right(n_states)
+    common = dict(n_components=n_states, covariance_type="diag", n_iter=n_iter, tol=1e-3,
+                  init_params="", params="tmcw" if n_mix > 1 else "tmc", random_state=seed,
+                  min_covar=1e-3)
+    if n_mix == 1:
+        model = hmm.GaussianHMM(**common)
+        model.means_ = np.stack([i[1][0] for i in inits])
+        model.covars_ = np.stack([i[2][0] for i in inits])
+    else:
+        model = hmm.GMMHMM(n_mix=n_mix, **common)
+        model.weights_ = np.stack([i[0] for i in inits])
+        model.means_ = np.stack([i[1] for i in inits])
+        model.covars_ = np.stack([i[2] for i in inits])
+    model.startprob_, model.transmat_ = start, trans
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model.fit(allf, lengths=[len(s) for s in seqs])
+    return model
+
+
+class WholeWordHMM:
+    """One left-to-right HMM per word (hmmlearn), the best forward score wins.
+
+    Parameters
+    ----------
+    n_states : int > 0
+        Emitting states per word (silence before and after the word is absorbed by the
+        first and last states).
+    n_mix : int > 0
+        Gaussians per state (diagonal covariances).
+    n_iter : int > 0
+        Baum-Welch passes (hmmlearn's EM, stopping early at ``tol=1e-3``).
+    seed : int
+        Seed for the k-means initialisation.
+    n_jobs : int
+        Words trained in parallel with joblib (each word's model is independent).
+    """
+
+    def __init__(self, *, n_states: int = 8, n_mix: int = 1, n_iter: int = 10, seed: int = 0,
+                 n_jobs: int = 1):
+        self.n_states = n_states
+        self.n_mix = n_mix
+        self.n_iter = n_iter
+        self.seed = seed
+        self.n_jobs = n_jobs
+
+    def fit(self, examples: Mapping[str, Sequence[np.ndarray]]) -> "WholeWordHMM":
+        """Train from ``{word: [frames (T, D), ...]}``."""
+        from joblib import Parallel, delayed
+
+        self.words_ = sorted(examples)
+        jobs = [delayed(_fit_word)(examples[w], self.n_states, self.n_mix, self.n_iter, self.seed)
+                for w in self.words_]
+        self.models_ = Parallel(n_jobs=self.n_jobs)(jobs) if self.n_jobs != 1 else [
+            _fit_word(examples[w], self.n_states, self.n_mix, self.n_iter, self.seed)
+            for w in self.words_]
+        return self
+
+    def scores(self, frames: np.ndarray) -> np.ndarray:
+        """Forward log-likelihood of ``frames`` under every word's model, shape (n_words,)."""
+        x = np.asarray(frames, dtype=np.float64)
+        return np.array([m.score(x) for m in self.models_])
+
+    def predict(self, frames: np.ndarray) -> str:
+        """The word whose model scores ``frames`` best."""
+        return self.words_[int(np.argmax(self.scores(frames)))]
+
+
+# ----------------------------------------------------------------------------- DTW templates
+
+
+def frame_distances(query: np.ndarray, templates: np.ndarray) -> np.ndarray:
+    """Euclidean distances between every query frame and every template frame.
+
+    One matrix product for all templates at once (same numbers as ``scipy.spatial.distance.cdist``).
+
+    Parameters
+    ----------
+    query : np.ndarray, shape (T, D)
+    templates : np.ndarray, shape (N, D)
+
+    Returns
+    -------
+    np.ndarray, shape (N, T)
+    """
+    q = np.asarray(query, dtype=np.float64)
+    t = np.asarray(templates, dtype=np.float64)
+    sq = (t * t).sum(1)[:, None] + (q * q).sum(1)[None, :] - 2.0 * (t @ q.T)
+    return np.sqrt(np.maximum(sq, 0.0))
+
+
+def _dtw_cost(cost: np.ndarray, band: float | None) -> float:
+    from librosa.sequence import dtw
+
+    if band is None:
+        acc = dtw(C=cost, backtrack=False)
+    else:
+        acc = dtw(C=cost, backtrack=False, global_constraints=True, band_rad=band)
+    return float(acc[-1, -1])
+
+
+def _pairwise(seqs: Sequence[np.ndarray], band: float | None, normalise: bool) -> np.ndarray:
+    n = len(seqs)
+    out = np.zeros((n, n))
+    for i in range(n):
+        c = frame_distances(seqs[i], np.concatenate(seqs[i + 1:])) if i + 1 < n else None
+        at = 0
+        for j in range(i + 1, n):
+            cost = _dtw_cost(c[at:at + len(seqs[j])], band)
+            at += len(seqs[j])
+            out[i, j] = out[j, i] = cost / (len(seqs[i]) + len(seqs[j])) if normalise else cost
+    return out
+
+
+def _medoids(dist: np.ndarray, k: int) -> list[int]:
+    """Greedy k-medoids start (build step): each pick lowers the total distance most."""
+    n = len(dist)
+    if k >= n:
+        return list(range(n))
+    chosen = [int(np.argmin(dist.sum(axis=1)))]
+    nearest = dist[chosen[0]].copy()
+    while len(chosen) < k:
+        gain = np.maximum(nearest[None, :] - dist, 0.0).sum(axis=1)
+        gain[chosen] = -1.0
+        c = int(np.argmax(gain))
+        chosen.append(c)
+        nearest = np.minimum(nearest, dist[c])
+    return chosen
+
+
+class TemplateDTW:
+    """Nearest-template recogniser with ``librosa.sequence.dtw``.
+
+    Parameters
+    ----------
+    per_word : int > 0 or None
+        Templates kept per word: None keeps every example; k keeps k medoids chosen by
+        DTW distance among that word's examples.
+    band : float in (0, 1] or None
+        Sakoe-Chiba band radius as a fraction of the length (librosa's ``band_rad``);
+        None: no band.
+    normalise : bool
+        Divide the accumulated cost by the sum of the two lengths.
+    """
+
+    def __init__(self, *, per_word: int | None = None, band: float | None = None,
+                 normalise: bool = True):
+        self.per_word = per_word
+        self.band = band
+        self.normalise = normalise
+
+    def fit(self, examples: Mapping[str, Sequence[np.ndarray]]) -> "TemplateDTW":
+        """Keep templates from ``{word: [frames (T, D), ...]}``."""
+        templates, labels = [], []
+        for word in sorted(examples):
+            seqs = [np.asarray(s, dtype=np.float64) for s in examples[word]]
+            if self.per_word is not None and self.per_word < len(seqs):
+                keep = _medoids(_pairwise(seqs, self.band, self.normalise), self.per_word)
+                seqs = [seqs[i] for i in keep]
+            templates += seqs
+            labels += [word] * len(seqs)
+        self.templates_ = templates
+        self.labels_ = labels
+        self._stack = np.concatenate(templates)
+        self._edges = np.cumsum([0] + [len(t) for t in templates])
+        return self
+
+    def scores(self, frames: np.ndarray) -> np.ndarray:
+        """DTW cost from ``frames`` to every template, shape (n_templates,); lower is closer."""
+        q = np.asarray(frames, dtype=np.float64)
+        c = frame_distances(q, self._stack)
+        e = self._edges
+        out = np.empty(len(self.templates_))
+        for i in range(len(out)):
+            out[i] = _dtw_cost(c[e[i]:e[i + 1]], self.band)
+            if self.normalise:
+                out[i] /= (e[i + 1] - e[i]) + len(q)
+        return out
+
+    def predict(self, frames: np.ndarray) -> str:
+        """The word of the closest template."""
+        return self.labels_[int(np.argmin(self.scores(frames)))]

@@ -1,0 +1,56 @@
+"""Smoke test of the benchmark baselines (tests/benchmarks/baselines.py) on a tiny made-up problem.
+
+Two well-separated "words", each a sequence of Gaussian frames around its own two means
+(first half, second half); both recognisers must tell them apart. Not the benchmark itself.
+"""
+
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+sys.path.insert(0, str(Path(__file__).resolve().parent / "benchmarks"))
+from baselines import TemplateDTW, WholeWordHMM, frame_distances, uniform_segments  # noqa: E402
+
+
+def _word(rng, means, length):
+    half = length // 2
+    a = rng.normal(means[0], 0.3, size=(half, 4))
+    b = rng.normal(means[1], 0.3, size=(length - half, 4))
+    return np.concatenate([a, b])
+
+
+@pytest.fixture
+def problem(rng):
+    means = {"up": (np.full(4, -2.0), np.full(4, 2.0)), "down": (np.full(4, 2.0), np.full(4, -2.0))}
+    train = {w: [_word(rng, m, int(rng.integers(18, 30))) for _ in range(4)] for w, m in means.items()}
+    test = [(w, _word(rng, m, int(rng.integers(15, 35)))) for w, m in means.items() for _ in range(3)]
+    return train, test
+
+
+def test_uniform_segments_cover_all_parts():
+    seg = uniform_segments(10, 3)
+    assert seg[0] == 0 and seg[-1] == 2 and np.all(np.diff(seg) >= 0)
+    assert set(seg.tolist()) == {0, 1, 2}
+
+
+def test_frame_distances_match_direct(rng):
+    q, t = rng.normal(size=(5, 3)), rng.normal(size=(7, 3))
+    direct = np.sqrt(((t[:, None, :] - q[None, :, :]) ** 2).sum(-1))
+    np.testing.assert_allclose(frame_distances(q, t), direct, rtol=1e-9, atol=1e-9)
+
+
+@pytest.mark.parametrize("n_mix", [1, 2])
+def test_whole_word_hmm_separates_words(problem, n_mix):
+    train, test = problem
+    rec = WholeWordHMM(n_states=2, n_mix=n_mix, n_iter=5).fit(train)
+    assert [rec.predict(x) for _, x in test] == [w for w, _ in test]
+
+
+@pytest.mark.parametrize("per_word,band", [(None, None), (2, 0.5)])
+def test_template_dtw_separates_words(problem, per_word, band):
+    train, test = problem
+    rec = TemplateDTW(per_word=per_word, band=band).fit(train)
+    assert len(rec.templates_) == (8 if per_word is None else 4)
+    assert [rec.predict(x) for _, x in test] == [w for w, _ in test]
