@@ -21,7 +21,8 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-__all__ = ["WholeWordHMM", "TemplateDTW", "uniform_segments", "frame_distances"]
+__all__ = ["WholeWordHMM", "TemplateDTW", "uniform_segments", "frame_distances", "dtw_costs",
+           "pairwise_costs", "normalised", "medoids"]
 
 
 def uniform_segments(length: int, n_parts: int) -> np.ndarray:
@@ -181,21 +182,45 @@ def _dtw_cost(cost: np.ndarray, band: float | None) -> float:
     return float(acc[-1, -1])
 
 
-def _pairwise(seqs: Sequence[np.ndarray], band: float | None, normalise: bool) -> np.ndarray:
+def dtw_costs(query: np.ndarray, stack: np.ndarray, edges: np.ndarray, band: float | None) -> np.ndarray:
+    """Accumulated DTW cost (not normalised) from ``query`` to each stacked template.
+
+    Parameters
+    ----------
+    query : np.ndarray, shape (T, D)
+    stack : np.ndarray, shape (N, D)
+        All templates' frames one after another.
+    edges : np.ndarray of int, shape (n_templates + 1,)
+        Template i is ``stack[edges[i]:edges[i + 1]]``.
+    band : float or None
+        Sakoe-Chiba band radius (librosa's ``band_rad``), None for no band.
+
+    Returns
+    -------
+    np.ndarray, shape (n_templates,)
+    """
+    c = frame_distances(query, stack)
+    return np.array([_dtw_cost(c[edges[i]:edges[i + 1]], band) for i in range(len(edges) - 1)])
+
+
+def pairwise_costs(seqs: Sequence[np.ndarray], band: float | None) -> np.ndarray:
+    """Symmetric matrix of DTW costs (not normalised) between all pairs of ``seqs``."""
     n = len(seqs)
     out = np.zeros((n, n))
-    for i in range(n):
-        c = frame_distances(seqs[i], np.concatenate(seqs[i + 1:])) if i + 1 < n else None
-        at = 0
-        for j in range(i + 1, n):
-            cost = _dtw_cost(c[at:at + len(seqs[j])], band)
-            at += len(seqs[j])
-            out[i, j] = out[j, i] = cost / (len(seqs[i]) + len(seqs[j])) if normalise else cost
-    return out
+    for i in range(n - 1):
+        rest = seqs[i + 1:]
+        edges = np.cumsum([0] + [len(s) for s in rest])
+        out[i, i + 1:] = dtw_costs(seqs[i], np.concatenate(rest), edges, band)
+    return out + out.T
 
 
-def _medoids(dist: np.ndarray, k: int) -> list[int]:
-    """Greedy k-medoids start (build step): each pick lowers the total distance most."""
+def normalised(costs: np.ndarray, len_a, len_b) -> np.ndarray:
+    """DTW costs divided by the sum of the two sequence lengths (broadcasting)."""
+    return costs / (np.asarray(len_a, dtype=np.float64) + np.asarray(len_b, dtype=np.float64))
+
+
+def medoids(dist: np.ndarray, k: int) -> list[int]:
+    """Greedy k-medoids (build step): each pick lowers the total distance most."""
     n = len(dist)
     if k >= n:
         return list(range(n))
@@ -237,8 +262,11 @@ class TemplateDTW:
         for word in sorted(examples):
             seqs = [np.asarray(s, dtype=np.float64) for s in examples[word]]
             if self.per_word is not None and self.per_word < len(seqs):
-                keep = _medoids(_pairwise(seqs, self.band, self.normalise), self.per_word)
-                seqs = [seqs[i] for i in keep]
+                dist = pairwise_costs(seqs, self.band)
+                if self.normalise:
+                    lens = np.array([len(s) for s in seqs])
+                    dist = normalised(dist, lens[:, None], lens[None, :])
+                seqs = [seqs[i] for i in medoids(dist, self.per_word)]
             templates += seqs
             labels += [word] * len(seqs)
         self.templates_ = templates
@@ -250,14 +278,8 @@ class TemplateDTW:
     def scores(self, frames: np.ndarray) -> np.ndarray:
         """DTW cost from ``frames`` to every template, shape (n_templates,); lower is closer."""
         q = np.asarray(frames, dtype=np.float64)
-        c = frame_distances(q, self._stack)
-        e = self._edges
-        out = np.empty(len(self.templates_))
-        for i in range(len(out)):
-            out[i] = _dtw_cost(c[e[i]:e[i + 1]], self.band)
-            if self.normalise:
-                out[i] /= (e[i + 1] - e[i]) + len(q)
-        return out
+        out = dtw_costs(q, self._stack, self._edges, self.band)
+        return normalised(out, np.diff(self._edges), len(q)) if self.normalise else out
 
     def predict(self, frames: np.ndarray) -> str:
         """The word of the closest template."""

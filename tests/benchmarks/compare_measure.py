@@ -1,0 +1,77 @@
+"""Measuring helpers for the benchmark: machine facts, the matmul FLOP rate, profiles."""
+
+from __future__ import annotations
+
+import cProfile
+import io
+import os
+import platform
+import pstats
+import time
+from typing import Callable
+
+import numpy as np
+
+__all__ = ["machine_info", "matmul_flop_rate", "best_time", "profile_top"]
+
+
+def machine_info() -> dict[str, str]:
+    """nproc, CPU model (from /proc/cpuinfo), numpy version, Python version."""
+    cpu = platform.processor() or "unknown"
+    try:
+        with open("/proc/cpuinfo", encoding="utf-8") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    cpu = line.split(":", 1)[1].strip()
+                    break
+    except OSError:
+        pass
+    return {"nproc": str(os.cpu_count()), "cpu": cpu, "numpy": np.__version__,
+            "python": platform.python_version()}
+
+
+def best_time(fn: Callable[[], object], *, repeat: int = 5, min_time: float = 0.05) -> float:
+    """Best wall time of one call of ``fn`` over ``repeat`` rounds (each round loops to ``min_time``)."""
+    fn()
+    best = float("inf")
+    for _ in range(repeat):
+        n, t0 = 0, time.perf_counter()
+        while True:
+            fn()
+            n += 1
+            el = time.perf_counter() - t0
+            if el >= min_time:
+                break
+        best = min(best, el / n)
+    return best
+
+
+def matmul_flop_rate(m: int, k: int, n: int, dtype=np.float64, *, seed: int = 0) -> float:
+    """Measured FLOP/s of ``(m, k) @ (k, n)`` in ``dtype`` (2 m k n FLOPs a product)."""
+    rng = np.random.default_rng(seed)
+    a = rng.standard_normal((m, k)).astype(dtype)
+    b = rng.standard_normal((k, n)).astype(dtype)
+    return 2.0 * m * k * n / best_time(lambda: a @ b)
+
+
+def profile_top(fn: Callable[[], object], *, top: int = 12) -> list[tuple[str, int, float, float]]:
+    """Run ``fn`` under cProfile; the ``top`` functions by own time.
+
+    Returns
+    -------
+    list of (function, calls, own seconds, cumulative seconds)
+    """
+    prof = cProfile.Profile()
+    prof.enable()
+    fn()
+    prof.disable()
+    stats = pstats.Stats(prof, stream=io.StringIO())
+    rows = []
+    for (filename, line, name), (cc, nc, tt, ct, _callers) in stats.stats.items():
+        short = filename
+        for marker in ("site-packages/", "/work/main/", "lib/python"):
+            if marker in short:
+                short = short.split(marker, 1)[1]
+        rows.append((f"{short}:{line}({name})", int(nc), float(tt), float(ct)))
+    rows.sort(key=lambda r: -r[2])
+    return rows[:top]
