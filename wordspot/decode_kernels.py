@@ -1,0 +1,366 @@
+"""Token passing over a compiled network: the compiled loop and its readable reference.
+
+Both functions take the same arguments (the arrays of a
+:class:`~wordspot.network.Network` and a (T, P) matrix of emission log-likelihoods) and
+return the same tuple; tests check that they agree.
+
+One frame of token passing:
+
+1. every surviving token moves along its state's self-loop and arcs (one frame each);
+   tokens that entered an item through the grammar at the end of the previous frame
+   are already waiting in their entry states; each state keeps only its best token;
+2. the frame's emission log-likelihood is added;
+3. pruning: a state survives if its score is within ``beam`` of the frame's best and,
+   when more than ``max_active`` states are alive, at least the ``max_active``-th best
+   score (ties keep more);
+4. word ends: a token in a state that can leave its item ends that item; within
+   ``word_end_beam`` of the frame's best, the best end of each word (or of the entry
+   pause, "word" 0) becomes a *word link* (word, pronunciation, start frame, phone end
+   frame, end frame, score, previous link);
+5. grammar: for every next word ``w`` (0 = the exit pause) the best of
+   ``link score + link_row(v)[w]`` over the word ends ``v`` of this frame enters ``w``'s
+   entry states for the next frame (only if within ``beam`` of this frame's best).
+
+A token carries its score, the link it came from, the frame its item began and the
+frame its phones ended (when it has moved on into a word's trailing pause). Memory is
+O(states + word links), never O(frames x states).
+
+Returned tuple: ``(status, final_score, final_link, links_int, links_score, n_links)``
+with ``links_int[k] = (word, pron, start, phone_end, end, previous)`` and
+``status`` one of :data:`OK`, :data:`NO_TOKENS` (every token pruned or impossible),
+:data:`NO_EXIT` (no token was in the exit pause able to leave at the last frame).
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+__all__ = ["decode", "decode_reference", "OK", "NO_TOKENS", "NO_EXIT", "LINK_FIELDS"]
+
+OK = 0
+NO_TOKENS = 1
+NO_EXIT = 2
+
+LINK_FIELDS = ("word", "pron", "start", "phone_end", "end", "previous")
+
+_ENTRY, _EXIT, _FIRST = 0, 1, 2
+_NEG = -np.inf
+
+
+@numba.njit(cache=True, nogil=True)
+def _grow(links_int, links_score, n):
+    if n < links_int.shape[0]:
+        return links_int, links_score
+    bigger_i = np.empty((2 * links_int.shape[0], 6), dtype=np.int64)
+    bigger_s = np.empty(2 * links_int.shape[0], dtype=np.float64)
+    bigger_i[:n] = links_int[:n]
+    bigger_s[:n] = links_score[:n]
+    return bigger_i, bigger_s
+
+
+@numba.njit(cache=True, nogil=True)
+def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
+           start_first, start_state, start_logp, pron_word, word_first, word_pron,
+           unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty,
+           beam, word_end_beam, max_active):
+    """Compiled token passing over active states only (see the module docstring)."""
+    n_frames = ll.shape[0]
+    n_states = pdf.shape[0]
+    n_words = unigram.shape[0]  # V + 1 including the boundary
+
+    cur = np.full(n_states, _NEG)
+    cur_link = np.zeros(n_states, dtype=np.int64)
+    cur_start = np.zeros(n_states, dtype=np.int64)
+    cur_pend = np.zeros(n_states, dtype=np.int64)
+    cur_act = np.empty(n_states, dtype=np.int64)
+    n_cur = 0
+    nxt = np.full(n_states, _NEG)
+    nxt_link = np.zeros(n_states, dtype=np.int64)
+    nxt_start = np.zeros(n_states, dtype=np.int64)
+    nxt_pend = np.zeros(n_states, dtype=np.int64)
+    nxt_act = np.empty(n_states, dtype=np.int64)
+    n_nxt = 0
+
+    links_int = np.empty((64, 6), dtype=np.int64)
+    links_score = np.empty(64, dtype=np.float64)
+    n_links = 0
+
+    end_score = np.full(n_words, _NEG)
+    end_state = np.zeros(n_words, dtype=np.int64)
+    ended = np.empty(n_words, dtype=np.int64)
+    end_link = np.zeros(n_words, dtype=np.int64)
+    enter = np.full(n_words, _NEG)
+    enter_from = np.zeros(n_words, dtype=np.int64)
+    row = np.empty(n_words)
+    scratch = np.empty(n_states)
+
+    # Frame 0: the entry pause begins.
+    for k in range(start_first[_ENTRY], start_first[_ENTRY + 1]):
+        s = start_state[k]
+        if start_logp[k] > nxt[s]:
+            if nxt[s] == _NEG:
+                nxt_act[n_nxt] = s
+                n_nxt += 1
+            nxt[s] = start_logp[k]
+            nxt_link[s] = -1
+            nxt_start[s] = 0
+            nxt_pend[s] = -1
+
+    for t in range(n_frames):
+        # 1. move the tokens of frame t-1 one step.
+        if t > 0:
+            for i in range(n_cur):
+                s = cur_act[i]
+                sc = cur[s]
+                if self_logp[s] > _NEG:
+                    cand = sc + self_logp[s]
+                    if cand > nxt[s]:
+                        if nxt[s] == _NEG:
+                            nxt_act[n_nxt] = s
+                            n_nxt += 1
+                        nxt[s] = cand
+                        nxt_link[s] = cur_link[s]
+                        nxt_start[s] = cur_start[s]
+                        nxt_pend[s] = cur_pend[s]
+                for e in range(arc_first[s], arc_first[s + 1]):
+                    d = arc_dst[e]
+                    cand = sc + arc_logp[e]
+                    if cand > nxt[d]:
+                        if nxt[d] == _NEG:
+                            nxt_act[n_nxt] = d
+                            n_nxt += 1
+                        nxt[d] = cand
+                        nxt_link[d] = cur_link[s]
+                        nxt_start[d] = cur_start[s]
+                        if tail[d] and not tail[s]:
+                            nxt_pend[d] = t - 1
+                        else:
+                            nxt_pend[d] = cur_pend[s]
+        # 2. emissions.
+        best = _NEG
+        for i in range(n_nxt):
+            s = nxt_act[i]
+            nxt[s] += ll[t, pdf[s]]
+            if nxt[s] > best:
+                best = nxt[s]
+        if n_nxt == 0 or best == _NEG:
+            return NO_TOKENS, _NEG, -1, links_int[:n_links], links_score[:n_links], n_links
+        # 3. pruning.
+        thr = best - beam
+        if n_nxt > max_active:
+            for i in range(n_nxt):
+                scratch[i] = nxt[nxt_act[i]]
+            kth = np.partition(scratch[:n_nxt], n_nxt - max_active)[n_nxt - max_active]
+            if kth > thr:
+                thr = kth
+        kept = 0
+        for i in range(n_nxt):
+            s = nxt_act[i]
+            if nxt[s] >= thr:
+                nxt_act[kept] = s
+                kept += 1
+            else:
+                nxt[s] = _NEG
+        n_nxt = kept
+        # swap: frame t becomes current; clear what frame t-1 left behind.
+        for i in range(n_cur):
+            cur[cur_act[i]] = _NEG
+        cur, nxt = nxt, cur
+        cur_link, nxt_link = nxt_link, cur_link
+        cur_start, nxt_start = nxt_start, cur_start
+        cur_pend, nxt_pend = nxt_pend, cur_pend
+        cur_act, nxt_act = nxt_act, cur_act
+        n_cur = n_nxt
+        n_nxt = 0
+        if t == n_frames - 1:
+            break
+        # 4. word ends.
+        n_ended = 0
+        end_thr = best - word_end_beam
+        for i in range(n_cur):
+            s = cur_act[i]
+            if end_logp[s] == _NEG:
+                continue
+            it = item[s]
+            if it == _EXIT:
+                continue
+            sc = cur[s] + end_logp[s]
+            if sc < end_thr:
+                continue
+            w = 0 if it == _ENTRY else pron_word[it - _FIRST]
+            if end_score[w] == _NEG:
+                ended[n_ended] = w
+                n_ended += 1
+            if sc > end_score[w]:
+                end_score[w] = sc
+                end_state[w] = s
+        if n_ended == 0:
+            continue
+        for j in range(n_ended):
+            w = ended[j]
+            s = end_state[w]
+            links_int, links_score = _grow(links_int, links_score, n_links)
+            links_int[n_links, 0] = w
+            links_int[n_links, 1] = item[s] - _FIRST
+            links_int[n_links, 2] = cur_start[s]
+            links_int[n_links, 3] = cur_pend[s] if cur_pend[s] >= 0 else t
+            links_int[n_links, 4] = t
+            links_int[n_links, 5] = cur_link[s]
+            links_score[n_links] = end_score[w]
+            end_link[w] = n_links
+            n_links += 1
+        # 5. grammar links into the entries of frame t+1.
+        for w in range(n_words):
+            enter[w] = _NEG
+        for j in range(n_ended):
+            v = ended[j]
+            ls = end_score[v]
+            for w in range(n_words):
+                row[w] = backoff[v] + unigram[w]
+            for k in range(pair_first[v], pair_first[v + 1]):
+                row[pair_next[k]] = pair_logp[k]
+            if v == 0 and not allow_empty:
+                row[0] = _NEG
+            last = n_words
+            if v > 0 and single_word:
+                last = 1
+            for w in range(last):
+                cand = ls + row[w]
+                if cand > enter[w]:
+                    enter[w] = cand
+                    enter_from[w] = end_link[v]
+            end_score[v] = _NEG
+        for w in range(n_words):
+            if enter[w] == _NEG or enter[w] < thr:
+                continue
+            if w == 0:
+                lo, hi = _EXIT, _EXIT + 1
+            else:
+                lo, hi = word_pron[word_first[w]] + _FIRST, word_pron[word_first[w + 1] - 1] + _FIRST + 1
+            for it in range(lo, hi):
+                for k in range(start_first[it], start_first[it + 1]):
+                    s = start_state[k]
+                    cand = enter[w] + start_logp[k]
+                    if cand > nxt[s]:
+                        if nxt[s] == _NEG:
+                            nxt_act[n_nxt] = s
+                            n_nxt += 1
+                        nxt[s] = cand
+                        nxt_link[s] = enter_from[w]
+                        nxt_start[s] = t + 1
+                        nxt_pend[s] = -1
+
+    final = _NEG
+    final_link = -1
+    for i in range(n_cur):
+        s = cur_act[i]
+        if item[s] == _EXIT and end_logp[s] > _NEG:
+            sc = cur[s] + end_logp[s]
+            if sc > final:
+                final = sc
+                final_link = cur_link[s]
+    status = OK if final > _NEG else NO_EXIT
+    return status, final, final_link, links_int[:n_links], links_score[:n_links], n_links
+
+
+def decode_reference(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
+                     start_first, start_state, start_logp, pron_word, word_first, word_pron,
+                     unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty,
+                     beam, word_end_beam, max_active):
+    """Readable token passing over *every* state each frame (plain numpy and Python).
+
+    Same arguments, same pruning rules and same result as :func:`decode`; meant for tests
+    on small networks.
+    """
+    n_frames, n_states = ll.shape[0], pdf.shape[0]
+    n_words = unigram.shape[0]
+    # Predecessors of every state: (source, log prob) for self-loops and arcs.
+    preds = [[] for _ in range(n_states)]
+    for s in range(n_states):
+        if np.isfinite(self_logp[s]):
+            preds[s].append((s, self_logp[s]))
+        for e in range(arc_first[s], arc_first[s + 1]):
+            preds[arc_dst[e]].append((s, arc_logp[e]))
+    items = [(int(start_first[i]), int(start_first[i + 1])) for i in range(len(start_first) - 1)]
+
+    # token = (score, link, start frame, phone-end frame) per state; None = no token.
+    entries = [None] * n_states
+    for k in range(*items[_ENTRY]):
+        entries[start_state[k]] = (start_logp[k], -1, 0, -1)
+    tokens = [None] * n_states
+    links: list[tuple[int, int, int, int, int, int]] = []
+    scores: list[float] = []
+
+    for t in range(n_frames):
+        new = list(entries)
+        if t > 0:
+            for d in range(n_states):
+                for s, lp in preds[d]:
+                    if tokens[s] is None:
+                        continue
+                    sc, ln, st, pe = tokens[s]
+                    if tail[d] and not tail[s]:
+                        pe = t - 1
+                    if new[d] is None or sc + lp > new[d][0]:
+                        new[d] = (sc + lp, ln, st, pe)
+        new = [None if tok is None else (tok[0] + ll[t, pdf[s]],) + tok[1:] for s, tok in enumerate(new)]
+        alive = np.array([tok[0] for tok in new if tok is not None])
+        if alive.size == 0 or not np.isfinite(alive.max()):
+            return NO_TOKENS, _NEG, -1, _as_links(links), np.array(scores), len(links)
+        best = alive.max()
+        thr = best - beam
+        if alive.size > max_active:
+            thr = max(thr, np.sort(alive)[::-1][max_active - 1])
+        tokens = [tok if tok is not None and tok[0] > _NEG and tok[0] >= thr else None for tok in new]
+        if t == n_frames - 1:
+            break
+        # word ends
+        best_end: dict[int, tuple[float, int]] = {}
+        for s, tok in enumerate(tokens):
+            if tok is None or not np.isfinite(end_logp[s]) or item[s] == _EXIT:
+                continue
+            sc = tok[0] + end_logp[s]
+            if sc < best - word_end_beam:
+                continue
+            w = 0 if item[s] == _ENTRY else int(pron_word[item[s] - _FIRST])
+            if w not in best_end or sc > best_end[w][0]:
+                best_end[w] = (sc, s)
+        entries = [None] * n_states
+        enter = np.full(n_words, _NEG)
+        enter_from = np.zeros(n_words, dtype=np.int64)
+        for v in best_end:
+            sc, s = best_end[v]
+            _, ln, st, pe = tokens[s]
+            links.append((v, int(item[s]) - _FIRST, st, pe if pe >= 0 else t, t, ln))
+            scores.append(sc)
+            row = backoff[v] + unigram
+            row[pair_next[pair_first[v]:pair_first[v + 1]]] = pair_logp[pair_first[v]:pair_first[v + 1]]
+            if v == 0 and not allow_empty:
+                row[0] = _NEG
+            if v > 0 and single_word:
+                row[1:] = _NEG
+            better = sc + row > enter
+            enter[better] = sc + row[better]
+            enter_from[better] = len(links) - 1
+        for w in range(n_words):
+            if enter[w] == _NEG or enter[w] < thr:
+                continue
+            its = [_EXIT] if w == 0 else [int(p) + _FIRST for p in word_pron[word_first[w]:word_first[w + 1]]]
+            for it in its:
+                for k in range(*items[it]):
+                    s = start_state[k]
+                    cand = enter[w] + start_logp[k]
+                    if entries[s] is None or cand > entries[s][0]:
+                        entries[s] = (cand, int(enter_from[w]), t + 1, -1)
+
+    finals = [(tok[0] + end_logp[s], tok[1]) for s, tok in enumerate(tokens)
+              if tok is not None and item[s] == _EXIT and np.isfinite(end_logp[s])]
+    if not finals:
+        return NO_EXIT, _NEG, -1, _as_links(links), np.array(scores), len(links)
+    final, link = max(finals, key=lambda f: f[0])
+    return OK, final, link, _as_links(links), np.array(scores), len(links)
+
+
+def _as_links(links) -> np.ndarray:
+    return np.array(links, dtype=np.int64).reshape(-1, 6)
