@@ -43,9 +43,13 @@ def _as_path(path) -> Path:
 
 
 def _check_exists(path: Path) -> None:
-    if not path.exists():
+    try:
+        found, folder = path.exists(), path.is_dir()
+    except (OSError, ValueError) as exc:
+        raise AudioError(f"{str(path)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
+    if not found:
         raise AudioError(f"{path}: audio file not found; check the path (and the manifest that names it)")
-    if path.is_dir():
+    if folder:
         raise AudioError(f"{path}: is a folder, not an audio file; name a .wav/.flac/.ogg file")
 
 

@@ -83,9 +83,13 @@ def read_manifest(path) -> list[Utterance]:
         p = Path(os.fspath(path))
     except TypeError:
         raise ManifestError(f"manifest path must be a file name, got {path!r}") from None
-    if not p.exists():
+    try:
+        found, folder = p.exists(), p.is_dir()
+    except (OSError, ValueError) as exc:
+        raise ManifestError(f"{str(p)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
+    if not found:
         raise ManifestError(f"{p}: manifest not found; check the path")
-    if p.is_dir():
+    if folder:
         raise ManifestError(f"{p}: is a folder; name the manifest CSV file")
     try:
         data = p.read_bytes()
@@ -167,9 +171,14 @@ def check_manifest(utterances: Sequence[Utterance], lexicon, *, manifest=None) -
     problems: list[str] = []
     unknown: dict[str, list[int]] = {}
     for utt in utterances:
-        if not utt.path.exists():
+        try:
+            exists, folder = utt.path.exists(), utt.path.is_dir()
+        except (OSError, ValueError) as exc:
+            problems.append(f"line {utt.row}: cannot use the path {str(utt.path)[:200]} ({getattr(exc, 'strerror', None) or exc})")
+            exists, folder = True, False
+        if not exists:
             problems.append(f"line {utt.row}: audio file not found: {utt.path}")
-        elif utt.path.is_dir():
+        elif folder:
             problems.append(f"line {utt.row}: is a folder, not an audio file: {utt.path}")
         for word in utt.words:
             if word not in lexicon:

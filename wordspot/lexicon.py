@@ -294,9 +294,13 @@ def read_lexicon(path, *, inventory: Iterable[str] | None = None) -> Lexicon:
         p = Path(os.fspath(path))
     except TypeError:
         raise LexiconError(f"lexicon path must be a file name, got {path!r}") from None
-    if not p.exists():
+    try:
+        found, folder = p.exists(), p.is_dir()
+    except (OSError, ValueError) as exc:
+        raise LexiconError(f"{str(p)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
+    if not found:
         raise LexiconError(f"{p}: lexicon file not found; check the path")
-    if p.is_dir():
+    if folder:
         raise LexiconError(f"{p}: is a folder; name the lexicon text file")
     try:
         data = p.read_bytes()

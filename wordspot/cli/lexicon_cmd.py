@@ -104,7 +104,7 @@ def _run_suggest(args) -> int:
             print(f"wordspot: {exc}", file=sys.stderr)
             missing.append(word)
     found = suggest_pronunciations(words)
-    width = max((len(w) for w in words), default=0)
+    width = max((len(w) for w in words if found.get(w)), default=0)
     for word in words:
         prons = found.get(word, [])
         if not prons:
