@@ -1,22 +1,44 @@
-"""The acoustic model as one object, and (to come) its single-file storage.
+"""The acoustic model as one object, and its single-file storage.
 
 An :class:`AcousticModel` holds everything recognition needs: the feature settings used
 in training (so recognition always computes the same features), the units with their
 transitions, the mixtures, the lexicon, and the word-pair counts the grammar prior is
 estimated from.
+
+File format ("wordspot-model", version :data:`FORMAT_VERSION`): a numpy ``.npz`` archive
+of plain numeric arrays (read with ``allow_pickle=False``, so loading never runs code)
+plus one ``header`` array of UTF-8 bytes holding JSON: the format name and version, the
+feature settings, unit names, lexicon text, bigram vocabulary, training info and a
+SHA-256 checksum over every array and the rest of the header. The file is written to a
+temporary name in the same folder, flushed to disk and renamed over the target, so a
+crash never leaves a half-written model.
 """
 
 from __future__ import annotations
 
+import hashlib
+import json
+import os
+import tempfile
+import zipfile
 from dataclasses import dataclass, field
+from pathlib import Path
 
+import numpy as np
+
+from wordspot.errors import FeatureError, LexiconError, ModelFileError
 from wordspot.features import FeatureSettings
 from wordspot.gmm import Mixtures
 from wordspot.grammar import BigramCounts
-from wordspot.lexicon import Lexicon
+from wordspot.lexicon import Lexicon, parse_lexicon
 from wordspot.units import UnitSet
 
-__all__ = ["AcousticModel"]
+__all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
+
+FORMAT_NAME = "wordspot-model"
+FORMAT_VERSION = 1
+
+_RETRAIN = "train a new one with `wordspot train`"
 
 
 @dataclass
@@ -42,3 +64,193 @@ class AcousticModel:
     lexicon: Lexicon
     bigrams: BigramCounts
     info: dict = field(default_factory=dict)
+
+
+def _arrays(model: AcousticModel) -> dict[str, np.ndarray]:
+    u, m = model.units, model.mixtures
+    return {
+        "unit_n_states": np.ascontiguousarray(u.n_states, dtype=np.int64),
+        "unit_state_pdf": np.ascontiguousarray(u.state_pdf, dtype=np.int64),
+        "unit_trans": np.ascontiguousarray(u.trans, dtype=np.float64),
+        "unit_entry": np.ascontiguousarray(u.entry, dtype=np.float64),
+        "mix_weights": np.ascontiguousarray(m.weights, dtype=np.float64),
+        "mix_means": np.ascontiguousarray(m.means, dtype=np.float64),
+        "mix_variances": np.ascontiguousarray(m.variances, dtype=np.float64),
+        "bigram_counts": np.ascontiguousarray(model.bigrams.counts, dtype=np.int64),
+    }
+
+
+def _checksum(arrays: dict[str, np.ndarray], header: dict) -> str:
+    """SHA-256 over every array (name, dtype, shape, bytes) and the header without its checksum."""
+    h = hashlib.sha256()
+    for name in sorted(arrays):
+        a = np.ascontiguousarray(arrays[name])
+        h.update(f"{name}|{a.dtype.str}|{a.shape}|".encode())
+        h.update(a.tobytes())
+    rest = {k: v for k, v in header.items() if k != "checksum"}
+    h.update(json.dumps(rest, sort_keys=True, ensure_ascii=True).encode())
+    return h.hexdigest()
+
+
+def save_model(model: AcousticModel, path) -> Path:
+    """Write ``model`` to one file, atomically.
+
+    Parameters
+    ----------
+    model : AcousticModel
+    path : str or os.PathLike
+        The model file (any name; ``.model`` is usual). An existing file is replaced only
+        once the new one is completely on disk.
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    ModelFileError
+        The folder does not exist or cannot be written.
+    """
+    target = Path(os.fspath(path))
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise ModelFileError(f"{target}: folder {folder} does not exist; create it or choose another --out")
+    arrays = _arrays(model)
+    header = {
+        "format": FORMAT_NAME,
+        "version": FORMAT_VERSION,
+        "features": model.features.to_dict(),
+        "units": list(model.units.names),
+        "lexicon": model.lexicon.to_text(),
+        "bigram_words": list(model.bigrams.words),
+        "info": model.info,
+    }
+    try:
+        json.dumps(header)
+    except (TypeError, ValueError) as exc:
+        raise ModelFileError(f"{target}: model info is not plain data ({exc})") from None
+    header["checksum"] = _checksum(arrays, header)
+    payload = np.frombuffer(json.dumps(header, sort_keys=True).encode("utf-8"), dtype=np.uint8)
+    tmp_name = None
+    try:
+        with tempfile.NamedTemporaryFile(dir=folder, prefix=f".{target.name}.", suffix=".tmp",
+                                         delete=False) as f:
+            tmp_name = f.name
+            np.savez(f, header=payload, **arrays)
+            f.flush()
+            os.fsync(f.fileno())
+        os.chmod(tmp_name, 0o666 & ~_umask())
+        os.replace(tmp_name, target)
+        tmp_name = None
+    except OSError as exc:
+        raise ModelFileError(f"{target}: cannot write the model ({exc.strerror or exc})") from None
+    finally:
+        if tmp_name is not None:
+            try:
+                os.unlink(tmp_name)
+            except OSError:
+                pass
+    try:  # make the rename itself durable (not possible on every system)
+        fd = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+    except OSError:
+        pass
+    return target
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _damaged(path, what: str) -> ModelFileError:
+    return ModelFileError(f"{path}: {what}; the model file is damaged or not a wordspot model; {_RETRAIN}")
+
+
+def load_model(path) -> AcousticModel:
+    """Read a model file written by :func:`save_model`, checking it thoroughly.
+
+    Raises
+    ------
+    ModelFileError
+        Missing, truncated, altered (checksum mismatch), of another format version, or
+        holding inconsistent tables; the message names the file and what to do.
+    """
+    p = Path(os.fspath(path))
+    if not p.exists():
+        raise ModelFileError(f"{p}: model file not found; check the name, or {_RETRAIN}")
+    if p.is_dir():
+        raise ModelFileError(f"{p}: is a folder, not a model file")
+    try:
+        with np.load(p, allow_pickle=False) as data:
+            arrays = {name: np.array(data[name]) for name in data.files}
+    except (OSError, ValueError, EOFError, zipfile.BadZipFile, KeyError, RuntimeError) as exc:
+        raise _damaged(p, f"cannot be read ({type(exc).__name__})") from None
+    if "header" not in arrays:
+        raise _damaged(p, "has no header")
+    try:
+        header = json.loads(arrays.pop("header").astype(np.uint8).tobytes().decode("utf-8"))
+    except (ValueError, UnicodeDecodeError):
+        raise _damaged(p, "has an unreadable header") from None
+    if not isinstance(header, dict) or header.get("format") != FORMAT_NAME:
+        raise ModelFileError(f"{p}: is not a wordspot model file; {_RETRAIN}")
+    version = header.get("version")
+    if version != FORMAT_VERSION:
+        raise ModelFileError(
+            f"{p}: model format version {version!r}, but this wordspot reads version "
+            f"{FORMAT_VERSION}; {_RETRAIN} (or use the wordspot version that wrote it)"
+        )
+    expected = set(_ARRAY_NAMES)
+    if set(arrays) != expected:
+        raise _damaged(p, "does not hold the expected tables")
+    if header.get("checksum") != _checksum(arrays, header):
+        raise ModelFileError(f"{p}: checksum mismatch: the file was altered or damaged; {_RETRAIN}")
+    try:
+        return _build(p, header, arrays)
+    except (KeyError, TypeError, ValueError, IndexError) as exc:
+        if isinstance(exc, ModelFileError):
+            raise
+        raise _damaged(p, f"has inconsistent contents ({exc})") from None
+
+
+_ARRAY_NAMES = ("unit_n_states", "unit_state_pdf", "unit_trans", "unit_entry",
+                "mix_weights", "mix_means", "mix_variances", "bigram_counts")
+
+
+def _build(p: Path, header: dict, a: dict) -> AcousticModel:
+    try:
+        features = FeatureSettings.from_dict(header["features"])
+    except FeatureError as exc:
+        raise ModelFileError(f"{p}: invalid feature settings ({exc}); {_RETRAIN}") from None
+    try:
+        lexicon = parse_lexicon(header["lexicon"], source=f"{p} (lexicon)")
+    except LexiconError as exc:
+        raise ModelFileError(f"{p}: invalid lexicon ({exc}); {_RETRAIN}") from None
+    units = UnitSet(tuple(str(n) for n in header["units"]), a["unit_n_states"], a["unit_state_pdf"],
+                    a["unit_trans"], a["unit_entry"])
+    units.validate(source=str(p))
+    w, mu, var = a["mix_weights"], a["mix_means"], a["mix_variances"]
+    if w.ndim != 2 or mu.ndim != 3 or mu.shape[:2] != w.shape or var.shape != mu.shape:
+        raise ModelFileError(f"{p}: mixture tables have inconsistent shapes; {_RETRAIN}")
+    if w.shape[0] != units.n_pdfs:
+        raise ModelFileError(f"{p}: {w.shape[0]} mixtures but the units use {units.n_pdfs}; {_RETRAIN}")
+    if mu.shape[2] != features.dim:
+        raise ModelFileError(
+            f"{p}: mixtures have {mu.shape[2]} dimensions but the feature settings give {features.dim}; {_RETRAIN}"
+        )
+    if not (np.isfinite(w).all() and np.isfinite(mu).all() and np.isfinite(var).all()):
+        raise ModelFileError(f"{p}: mixture parameters are not finite; {_RETRAIN}")
+    if (w < 0).any() or not np.allclose(w.sum(axis=1), 1.0, atol=1e-6) or (var <= 0).any():
+        raise ModelFileError(f"{p}: mixture weights or variances are invalid; {_RETRAIN}")
+    words = tuple(str(x) for x in header["bigram_words"])
+    counts = a["bigram_counts"]
+    if counts.shape != (len(words) + 1, len(words) + 1) or (counts < 0).any():
+        raise ModelFileError(f"{p}: bigram table does not match its vocabulary; {_RETRAIN}")
+    info = header.get("info", {})
+    return AcousticModel(features, units, Mixtures(w, mu, var), lexicon, BigramCounts(words, counts),
+                         dict(info) if isinstance(info, dict) else {})

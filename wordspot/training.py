@@ -1,0 +1,422 @@
+"""Acoustic training: flat start, embedded re-estimation and mixture growth.
+
+Outline (see DESIGN.md and issue 4):
+
+1. **Flat start.** Every state's mixture is one Gaussian with the global mean and
+   variance of all training frames; transitions are the topology defaults of
+   :func:`wordspot.units.default_unit_set`. Refinement (on by default,
+   ``TrainingConfig.pause_seconds``): the three pause states start from the mean and
+   variance of the first and last ``pause_seconds`` of every recording, where people
+   are silent before and after a command. This gives the first alignment an anchor.
+2. **Embedded re-estimation** (Baum-Welch over each utterance's whole chain; Rabiner
+   1989 eqs. 40, 52-54 with mixtures): forward-backward in the log domain gives state
+   and component posteriors and expected transition counts; statistics are summed over
+   all utterances, then means, variances (floored at ``variance_floor`` times the
+   global variance), weights and transitions (rows re-normalised, allowed transitions
+   kept above a floor) are updated.
+3. **Mixture growth** along ``mixtures`` (1, 2, 4, 8 by default): each growth step
+   splits the heaviest components (means +-0.2 standard deviations) and is followed by
+   ``passes_per_split`` passes; components that get fewer than ``min_occupancy``
+   expected frames are dropped.
+
+The work of a pass is split into fixed chunks of utterances
+(:data:`wordspot.training_data.CHUNK_SIZE`), each chunk's statistics are summed in
+utterance order and the chunks' sums are added in chunk order, so a run with several
+processes gives exactly the same model as a serial run.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import time
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+from joblib import Parallel, delayed
+from scipy.special import logsumexp
+
+from wordspot import __version__
+from wordspot.corpus import check_manifest
+from wordspot.errors import TrainingError, TrainingWarning
+from wordspot.features import FeatureSettings
+from wordspot.gmm import (
+    Mixtures,
+    MixtureStats,
+    component_log_likelihoods,
+    component_statistics,
+    single_gaussian,
+    split_heaviest,
+    update_mixtures,
+)
+from wordspot.grammar import count_bigrams
+from wordspot.hmm import forward_backward
+from wordspot.model import AcousticModel
+from wordspot.progress import ProgressBar
+from wordspot.training_data import CHUNK_SIZE, Skipped, TrainingItem, prepare_items
+from wordspot.transitions import parameter_counts, refresh_graph, update_transitions
+from wordspot.units import PAUSE_UNIT, UnitSet, default_unit_set, n_transition_params
+
+__all__ = ["TrainingConfig", "TrainingSummary", "train", "train_items", "flat_start"]
+
+
+@dataclass(frozen=True)
+class TrainingConfig:
+    """How to train (configuration only; learned state lives in the model).
+
+    Parameters
+    ----------
+    mixtures : tuple of int
+        Gaussians per state at each stage, increasing (default 1, 2, 4, 8).
+    first_passes : int >= 1
+        Re-estimation passes at the first stage (from the flat start).
+    passes_per_split : int >= 1
+        Passes after each mixture growth step.
+    variance_floor : float > 0
+        Variance floor as a fraction of the global variance (0.01: 1%).
+    min_occupancy : float >= 0
+        Expected frames a component needs to survive a pass.
+    transition_floor : float >= 0
+        Lowest probability an allowed transition may take.
+    pause_seconds : float >= 0
+        Initialise the pause states from this much audio at each end of every
+        recording (0: plain flat start).
+    jobs : int >= 1
+        Processes for feature extraction and re-estimation.
+    seed : int
+        Seeds the direction (sign per dimension) of the mean offsets when splitting.
+    """
+
+    mixtures: tuple[int, ...] = (1, 2, 4, 8)
+    first_passes: int = 6
+    passes_per_split: int = 4
+    variance_floor: float = 0.01
+    min_occupancy: float = 3.0
+    transition_floor: float = 1e-3
+    pause_seconds: float = 0.15
+    jobs: int = 1
+    seed: int = 0
+
+    def __post_init__(self) -> None:
+        m = tuple(self.mixtures)
+        if not m or any(not isinstance(k, (int, np.integer)) or k < 1 for k in m) or list(m) != sorted(set(m)):
+            raise TrainingError(
+                f"mixtures must be increasing whole numbers >= 1 (for example 1 2 4 8), got {self.mixtures!r}"
+            )
+        for name in ("first_passes", "passes_per_split", "jobs"):
+            v = getattr(self, name)
+            if not isinstance(v, (int, np.integer)) or v < 1:
+                raise TrainingError(f"{name} must be a whole number >= 1, got {v!r}")
+        if not (0 < self.variance_floor < 1):
+            raise TrainingError(f"variance_floor must be in (0, 1) (0.01 is usual), got {self.variance_floor!r}")
+        if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0:
+            raise TrainingError("min_occupancy, transition_floor and pause_seconds must be >= 0")
+
+    @property
+    def total_passes(self) -> int:
+        return self.first_passes + self.passes_per_split * (len(self.mixtures) - 1)
+
+
+@dataclass
+class TrainingSummary:
+    """What happened during training.
+
+    Attributes
+    ----------
+    used : int
+        Utterances that took part to the end.
+    n_frames : int
+        Frames in those utterances.
+    skipped : list of Skipped
+        Utterances left out, with the reason.
+    passes : list of (int, float)
+        Per pass: Gaussians per state, average log-likelihood per frame.
+    frames_per_unit : dict of str -> float
+        Expected frames of each unit in the last pass.
+    unseen_units : list of str
+        Units that saw (almost) no data and keep their flat-start parameters.
+    seconds : float
+        Wall-clock time of the whole training.
+    """
+
+    used: int = 0
+    n_frames: int = 0
+    skipped: list = field(default_factory=list)
+    passes: list = field(default_factory=list)
+    frames_per_unit: dict = field(default_factory=dict)
+    unseen_units: list = field(default_factory=list)
+    seconds: float = 0.0
+
+    def lines(self) -> list[str]:
+        """The summary as short text lines for people."""
+        out = [f"utterances used: {self.used} ({self.n_frames} frames)",
+               f"utterances skipped: {len(self.skipped)}"]
+        out += [f"  {s.path}: {s.reason}" for s in self.skipped]
+        if self.frames_per_unit:
+            cells = [f"{u} {f:.0f}" for u, f in sorted(self.frames_per_unit.items())]
+            out.append("frames per unit: " + ", ".join(cells))
+        out.append("units with no data (flat-start parameters): "
+                   + (", ".join(self.unseen_units) if self.unseen_units else "none"))
+        out.append(f"training time: {self.seconds:.1f} s")
+        return out
+
+
+# ------------------------------------------------------------------ one pass
+
+
+@dataclass
+class _PassResult:
+    stats: MixtureStats
+    trans_counts: np.ndarray
+    loglik: np.ndarray  # per utterance (-inf: no path)
+    unit_frames: np.ndarray
+
+
+def _utterance_pass(item_frames, graph, mix: Mixtures, units: UnitSet, result: _PassResult, k: int):
+    """Add one utterance's statistics into ``result`` (its log-likelihood into slot k)."""
+    x = np.asarray(item_frames, dtype=np.float64)
+    graph = refresh_graph(graph, units)
+    pdfs, local = np.unique(graph.pdf, return_inverse=True)
+    comp = component_log_likelihoods(x, mix, pdfs)  # (T, K, M)
+    pdf_ll = logsumexp(comp, axis=2)
+    post = forward_backward(graph, pdf_ll[:, local])
+    result.loglik[k] = post.loglik
+    if not np.isfinite(post.loglik):
+        return
+    pdf_gamma = np.zeros((x.shape[0], pdfs.size))
+    np.add.at(pdf_gamma.T, local, post.gamma.T)
+    occ, first, second = component_statistics(x, pdf_gamma, comp)
+    result.stats.occupancy[pdfs] += occ
+    result.stats.first[pdfs] += first
+    result.stats.second[pdfs] += second
+    result.trans_counts += parameter_counts(graph, post, result.trans_counts.shape[0])
+    np.add.at(result.unit_frames, graph.unit, post.gamma.sum(axis=0))
+
+
+def _chunk_pass(chunk, mix: Mixtures, units: UnitSet) -> _PassResult:
+    """Summed statistics of a chunk of (frames, graph) pairs, in order."""
+    result = _PassResult(
+        MixtureStats.zeros(mix.n_pdfs, mix.n_components, mix.dim),
+        np.zeros(n_transition_params(units.n_units)),
+        np.full(len(chunk), -np.inf),
+        np.zeros(units.n_units),
+    )
+    for k, (frames, graph) in enumerate(chunk):
+        _utterance_pass(frames, graph, mix, units, result, k)
+    return result
+
+
+def _run_pass(chunks, mix, units, parallel, label, quiet) -> _PassResult:
+    bar = ProgressBar(sum(len(c) for c in chunks), label, quiet=quiet)
+    if parallel is None:
+        gen = (_chunk_pass(c, mix, units) for c in chunks)
+    else:
+        gen = parallel(delayed(_chunk_pass)(c, mix, units) for c in chunks)
+    total = None
+    lls = []
+    for part in gen:  # in chunk order, whatever the number of processes
+        if total is None:
+            total = part
+        else:
+            total.stats.add(part.stats)
+            total.trans_counts += part.trans_counts
+            total.unit_frames += part.unit_frames
+        lls.append(part.loglik)
+        bar.update(len(part.loglik))
+    bar.close()
+    total.loglik = np.concatenate(lls)
+    return total
+
+
+# ------------------------------------------------------------------ flat start
+
+
+def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
+               pause_seconds: float) -> tuple[Mixtures, np.ndarray]:
+    """One Gaussian per state from the global statistics of all frames.
+
+    Returns
+    -------
+    mixtures : Mixtures
+    global_variance : ndarray, shape (D,)
+    """
+    n = sum(it.frames.shape[0] for it in items)
+    s1 = np.zeros(items[0].frames.shape[1])
+    s2 = np.zeros_like(s1)
+    for it in items:
+        x = it.frames.astype(np.float64)
+        s1 += x.sum(axis=0)
+        s2 += (x * x).sum(axis=0)
+    mean = s1 / n
+    var = np.maximum(s2 / n - mean**2, 1e-8)
+    mix = single_gaussian(units.n_pdfs, mean, var)
+    edge = int(round(pause_seconds * frame_rate))
+    if edge > 0 and PAUSE_UNIT in units:
+        ends = [np.concatenate([it.frames[:edge], it.frames[-edge:]]).astype(np.float64)
+                for it in items if it.frames.shape[0] >= 3 * edge]
+        if ends:
+            e = np.concatenate(ends)
+            pau_var = np.maximum(e.var(axis=0), 0.01 * var)
+            pdfs = units.state_pdf[units.index(PAUSE_UNIT)]
+            pdfs = pdfs[pdfs >= 0]
+            mix.means[pdfs, 0] = e.mean(axis=0)
+            mix.variances[pdfs, 0] = pau_var
+    return mix, var
+
+
+# ------------------------------------------------------------------ the loop
+
+
+def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
+                config: TrainingConfig = TrainingConfig(), quiet: bool = True, report=None):
+    """Train mixtures and transitions on prepared utterances.
+
+    Parameters
+    ----------
+    items : list of TrainingItem
+    units : UnitSet
+        Topology and starting transitions.
+    frame_rate : float
+        Frames per second of the features (for the pause initialisation).
+    config : TrainingConfig
+    quiet : bool
+        No progress bars.
+    report : callable, optional
+        Called with one line of text per pass.
+
+    Returns
+    -------
+    units : UnitSet
+    mixtures : Mixtures
+    summary : TrainingSummary
+        ``used``, ``n_frames``, ``passes``, ``frames_per_unit`` and ``unseen_units`` filled.
+    dropped : list of Skipped
+        Utterances dropped because no path through their chain fits.
+    """
+    if not items:
+        raise TrainingError("no usable utterance to train on")
+    rng = np.random.default_rng(config.seed)
+    mix, global_var = flat_start(items, units, frame_rate=frame_rate, pause_seconds=config.pause_seconds)
+    floor = config.variance_floor * global_var
+    summary = TrainingSummary()
+    dropped: list[Skipped] = []
+    updated = np.ones(mix.n_pdfs, dtype=bool)
+    last = None
+    parallel = Parallel(n_jobs=config.jobs, backend="loky", return_as="generator") if config.jobs > 1 else None
+    n_pass = 0
+    for stage, n_comp in enumerate(config.mixtures):
+        if stage > 0:
+            # Grow only mixtures that had data; the others keep their flat start.
+            mix = split_heaviest(mix, n_comp, which=updated, rng=rng)
+        passes = config.first_passes if stage == 0 else config.passes_per_split
+        for _ in range(passes):
+            n_pass += 1
+            chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]]
+                      for i in range(0, len(items), CHUNK_SIZE)]
+            label = f"pass {n_pass}/{config.total_passes} ({n_comp} mix)"
+            res = _run_pass(chunks, mix, units, parallel, label, quiet)
+            bad = ~np.isfinite(res.loglik)
+            if bad.any():
+                for k in np.flatnonzero(bad):
+                    reason = "no path through its chain fits the audio (likelihood zero)"
+                    dropped.append(Skipped(items[k].path, reason))
+                    warnings.warn(f"skipping {items[k].path}: {reason}", TrainingWarning, stacklevel=2)
+                items = [it for k, it in enumerate(items) if not bad[k]]
+                if not items:
+                    raise TrainingError("no usable utterance to train on: no chain fits its audio")
+            n_frames = sum(it.frames.shape[0] for it in items)
+            avg = float(res.loglik[~bad].sum() / n_frames)
+            summary.passes.append((int(n_comp), avg))
+            if report is not None:
+                report(f"pass {n_pass:2d}  {n_comp} Gaussian(s)/state  "
+                       f"log-likelihood per frame {avg:.4f}")
+            mix, updated = update_mixtures(mix, res.stats, variance_floor=floor,
+                                           min_occupancy=config.min_occupancy)
+            units = update_transitions(units, res.trans_counts, floor=config.transition_floor)
+            last = res
+    summary.used = len(items)
+    summary.n_frames = int(sum(it.frames.shape[0] for it in items))
+    summary.frames_per_unit = {name: float(last.unit_frames[u]) for u, name in enumerate(units.names)}
+    seen = np.zeros(units.n_units, dtype=bool)
+    for u in range(units.n_units):
+        pdfs = units.state_pdf[u, : units.n_states[u]]
+        seen[u] = bool(updated[pdfs].any())
+    summary.unseen_units = [n for u, n in enumerate(units.names) if not seen[u]]
+    return units, mix, summary, dropped
+
+
+def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
+          config: TrainingConfig = TrainingConfig(), manifest=None, quiet: bool = True,
+          report=None) -> tuple[AcousticModel, TrainingSummary]:
+    """Train an acoustic model from recordings labelled with their words.
+
+    Parameters
+    ----------
+    utterances : sequence of wordspot.corpus.Utterance
+    lexicon : wordspot.lexicon.Lexicon
+        Must hold every transcript word (all missing words are listed in one error
+        before any work starts).
+    settings : FeatureSettings, optional
+        Feature settings (default: 16 kHz MFCC, 39 values a frame).
+    config : TrainingConfig
+    manifest : str or path, optional
+        The manifest's name, for messages.
+    quiet : bool
+        No progress bars.
+    report : callable, optional
+        Receives one line of text per pass.
+
+    Returns
+    -------
+    model : AcousticModel
+    summary : TrainingSummary
+
+    Raises
+    ------
+    ManifestError
+        Missing files or words not in the lexicon.
+    TrainingError
+        Nothing usable is left.
+    """
+    start = time.monotonic()
+    settings = FeatureSettings() if settings is None else settings
+    utterances = list(utterances)
+    if not utterances:
+        raise TrainingError(f"{manifest or 'manifest'}: lists no recordings to train on")
+    check_manifest(utterances, lexicon, manifest=manifest)
+    units = default_unit_set(sorted(lexicon.units_used()))
+    items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet)
+    if not items:
+        raise TrainingError(
+            f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
+            "(see the warnings above); fix or replace the files and train again"
+        )
+    units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate,
+                                               config=config, quiet=quiet, report=report)
+    summary.skipped = skipped + dropped
+    if summary.unseen_units:
+        warnings.warn(
+            "no training data for unit(s) " + ", ".join(summary.unseen_units)
+            + "; they keep their flat-start parameters (add recordings of words that use them)",
+            TrainingWarning, stacklevel=2,
+        )
+    used = {it.path for it in items} - {s.path for s in dropped}
+    transcripts = [u.words for u in utterances if u.path in used]
+    bigrams = count_bigrams(transcripts, vocabulary=lexicon.words)
+    summary.seconds = time.monotonic() - start
+    info = {
+        "created": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "wordspot_version": __version__,
+        "utterances": summary.used,
+        "skipped": len(summary.skipped),
+        "frames": summary.n_frames,
+        "passes": len(summary.passes),
+        "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
+        "mixture_schedule": [int(k) for k in config.mixtures],
+        "seconds": round(summary.seconds, 2),
+        "seed": int(config.seed),
+        "unseen_units": list(summary.unseen_units),
+    }
+    model = AcousticModel(features=settings, units=units, mixtures=mix, lexicon=lexicon,
+                          bigrams=bigrams, info=info)
+    return model, summary

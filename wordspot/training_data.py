@@ -1,0 +1,143 @@
+"""Training material: every usable utterance's features and its state chain.
+
+Features are computed once, up front (in parallel over processes when ``jobs > 1``), and
+kept in memory for all passes. Each utterance's chain is
+
+    pau, word 1 (all its pronunciations as alternatives), [gap], word 2, ..., pau
+
+composed into one :class:`~wordspot.graph.StateGraph`. Files that fail to load and
+utterances too short for their chain are skipped with a :class:`TrainingWarning` naming
+the file; they are listed in the training summary.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from joblib import Parallel, delayed
+
+from wordspot.errors import AudioError, FeatureError, TrainingWarning
+from wordspot.features import FeatureSettings, file_features
+from wordspot.graph import StateGraph, compose
+from wordspot.progress import ProgressBar
+from wordspot.units import GAP_UNIT, PAUSE_UNIT, UnitSet
+
+__all__ = ["TrainingItem", "Skipped", "chain_slots", "extract_features", "prepare_items"]
+
+#: Utterances per parallel task. Fixed (independent of the number of processes) so that
+#: summing per-task results in task order gives bit-identical totals however many
+#: processes run.
+CHUNK_SIZE = 16
+
+
+@dataclass
+class TrainingItem:
+    """One usable utterance: where it came from, its features and its chain."""
+
+    path: Path
+    words: tuple[str, ...]
+    frames: np.ndarray  # (T, D) float32
+    graph: StateGraph
+
+
+@dataclass(frozen=True)
+class Skipped:
+    """An utterance left out of training, and why."""
+
+    path: Path
+    reason: str
+
+
+def chain_slots(words, lexicon, units: UnitSet) -> list:
+    """Slots of the training chain of a transcript (see :func:`wordspot.graph.compose`)."""
+    pau = units.index(PAUSE_UNIT)
+    gap = units.index(GAP_UNIT)
+    slots: list = [[(pau,)]]
+    for k, word in enumerate(words):
+        if k > 0:
+            slots.append([(gap,)])
+        slots.append([tuple(units.index(u) for u in pron) for pron in lexicon.pronunciations(word)])
+    slots.append([(pau,)])
+    return slots
+
+
+def _features_task(paths, settings):
+    """Features of several files; failures and warnings returned, not raised."""
+    out = []
+    for path in paths:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                feats = file_features(path, settings)
+                error = None
+            except (AudioError, FeatureError) as exc:
+                feats, error = None, str(exc)
+        notes = [(w.category, str(w.message)) for w in caught]
+        out.append((feats, error, notes))
+    return out
+
+
+def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True):
+    """Features of every file, or the error that stopped it.
+
+    Returns
+    -------
+    list of (ndarray or None, str or None)
+        ``(features, None)`` or ``(None, message)`` per path, in order. Warnings raised
+        while loading (in any process) are re-issued here.
+    """
+    paths = list(paths)
+    chunks = [paths[i:i + CHUNK_SIZE] for i in range(0, len(paths), CHUNK_SIZE)]
+    bar = ProgressBar(len(paths), "features", quiet=quiet)
+    results = []
+    if jobs == 1:
+        gen = (_features_task(c, settings) for c in chunks)
+    else:
+        gen = Parallel(n_jobs=jobs, backend="loky", return_as="generator")(
+            delayed(_features_task)(c, settings) for c in chunks
+        )
+    for part in gen:
+        for feats, error, notes in part:
+            for category, message in notes:
+                warnings.warn(message, category, stacklevel=2)
+            results.append((feats, error))
+        bar.update(len(part))
+    bar.close()
+    return results
+
+
+def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
+                  jobs: int = 1, quiet: bool = True) -> tuple[list[TrainingItem], list[Skipped]]:
+    """Load features and build chains; skip (with a warning) what cannot be used.
+
+    Returns
+    -------
+    items : list of TrainingItem
+    skipped : list of Skipped
+    """
+    features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet)
+    items: list[TrainingItem] = []
+    skipped: list[Skipped] = []
+    graphs: dict[tuple[str, ...], StateGraph] = {}
+    for utt, (feats, error) in zip(utterances, features):
+        if feats is None:
+            reason = f"could not be loaded: {error}"
+        else:
+            graph = graphs.get(utt.words)
+            if graph is None:
+                graph = compose(chain_slots(utt.words, lexicon, units), units)
+                graphs[utt.words] = graph
+            need = graph.min_frames()
+            if feats.shape[0] < need:
+                reason = (f"too short: {feats.shape[0]} frames, but its chain of "
+                          f"{len(utt.words)} word(s) needs at least {need}")
+            else:
+                items.append(TrainingItem(utt.path, utt.words, np.ascontiguousarray(feats), graph))
+                continue
+        skipped.append(Skipped(utt.path, reason))
+        message = reason if feats is None and str(utt.path) in reason else f"{utt.path}: {reason}"
+        warnings.warn(f"skipping {message}", TrainingWarning, stacklevel=2)
+    return items, skipped
