@@ -1,16 +1,169 @@
-"""``wordspot recognize``: not built yet (see the open issues)."""
+"""``wordspot recognize``: the words spoken in audio files, with times and confidences."""
 
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import math
 import sys
 
-__all__ = ["add_parser"]
+from wordspot.decoder import DecoderSettings, Recognition, recognize_files
+
+__all__ = ["add_parser", "format_text", "format_jsonl", "write_csv"]
+
+_EPILOG = """\
+examples (a bakery: commands called out with dough on your hands):
+  wordspot recognize --model bakery.model oven-start.wav
+      oven-start.wav  oven start
+  wordspot recognize --model bakery.model --times takes/*.wav
+      takes/timer.wav  timer 0.42-0.80 five 0.86-1.21 minutes 1.24-1.83
+  wordspot recognize --model bakery.model --format jsonl --jobs 4 takes/*.wav > words.jsonl
+  wordspot recognize --model bakery.model --single-word yes.wav        isolated commands
+  wordspot recognize --model bakery.model --lexicon more-words.txt knead.wav
+      a new vocabulary without retraining (words made of the model's phones)
+  wordspot recognize --model bakery.model --prior orders.txt takes/*.wav
+
+prior file (plain text): one word pair a line, previous word, next word, a count;
+'^' is the start and '$' the end of an utterance; '#' starts a comment:
+  ^      oven   12
+  oven   start  10
+  start  $      10
+
+Exit status: 0 when every file was processed, 1 when some could not be read, 2 on a bad
+model, lexicon, prior or option. Voice commands are a convenience, never a safety device.
+"""
 
 
 def add_parser(sub):
-    p = sub.add_parser("recognize", help="(not yet available)")
+    p = sub.add_parser(
+        "recognize",
+        help="recognise the words spoken in audio files",
+        description="Recognise the commands spoken in one or many audio files with a trained model. "
+        "Prints one line (or record) per file with the words, their times and confidences.",
+        epilog=_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("files", nargs="+", metavar="FILE", help="audio files (any format soundfile reads)")
+    p.add_argument("--model", "-m", required=True, metavar="MODEL", help="model file made by `wordspot train`")
+    p.add_argument("--format", choices=("text", "jsonl", "csv"), default="text",
+                   help="text (default): one line per file; jsonl: one JSON object per file; csv: one row per word")
+    p.add_argument("--times", action="store_true", help="text format: show each word's start and end in seconds")
+    p.add_argument("--lexicon", metavar="FILE",
+                   help="use this vocabulary instead of the model's (words made of the model's phones)")
+    p.add_argument("--prior", metavar="FILE", help="word-pair prior file (format below)")
+    p.add_argument("--single-word", action="store_true", help="exactly one word per file (isolated commands)")
+    p.add_argument("--jobs", "-j", type=int, default=1, metavar="N", help="worker processes (default 1)")
+    d = DecoderSettings()
+    p.add_argument("--beam", type=float, default=d.beam, help=f"search beam in log units (default {d.beam:g})")
+    p.add_argument("--word-end-beam", type=float, default=d.word_end_beam,
+                   help=f"beam for word ends (default {d.word_end_beam:g})")
+    p.add_argument("--max-active", type=int, default=d.max_active,
+                   help=f"most states kept per frame (default {d.max_active})")
+    p.add_argument("--grammar-weight", type=float, default=d.grammar_weight,
+                   help=f"weight of the word-pair prior (default {d.grammar_weight:g})")
+    p.add_argument("--insertion-penalty", type=float, default=d.insertion_penalty,
+                   help=f"log score added per word; negative gives fewer words (default {d.insertion_penalty:g})")
     p.set_defaults(func=_run)
     return p
 
 
-def _run(args):
-    print("wordspot recognize: not yet available in this version; see the project's open issues.", file=sys.stderr)
-    return 3
+def settings_from_args(args) -> DecoderSettings:
+    """Decoder settings from the parsed options (shared with ``wordspot evaluate``)."""
+    return DecoderSettings(
+        beam=args.beam,
+        word_end_beam=args.word_end_beam,
+        max_active=args.max_active,
+        grammar_weight=args.grammar_weight,
+        insertion_penalty=args.insertion_penalty,
+        single_word=args.single_word,
+    )
+
+
+def _note(r: Recognition) -> str:
+    if r.error:
+        return f"error: {r.error}"
+    if not r.segments:
+        return f"nothing recognised: {r.reason}"
+    return ""
+
+
+def format_text(r: Recognition, *, times: bool = False) -> str:
+    """One line: the path, a tab, the words (with times on request) or a note."""
+    if not r.segments:
+        return f"{r.path}\t({_note(r)})"
+    if times:
+        body = " ".join(f"{s.word} {s.start:.2f}-{s.end:.2f}" for s in r.segments)
+    else:
+        body = r.text
+    return f"{r.path}\t{body}"
+
+
+def _num(x: float):
+    return None if not math.isfinite(x) else round(float(x), 4)
+
+
+def format_jsonl(r: Recognition) -> str:
+    """One JSON object: path, words, segments (word, start, end, confidence, scores)."""
+    record = {
+        "path": r.path,
+        "words": r.words,
+        "segments": [
+            {
+                "word": s.word,
+                "start": round(s.start, 3),
+                "end": round(s.end, 3),
+                "confidence": round(s.confidence, 4),
+                "acoustic": _num(s.acoustic),
+                "grammar": _num(s.grammar),
+            }
+            for s in r.segments
+        ],
+        "score": _num(r.score),
+    }
+    if r.reason:
+        record["reason"] = r.reason
+    if r.error:
+        record["error"] = r.error
+    return json.dumps(record, ensure_ascii=False)
+
+
+_CSV_COLUMNS = ("path", "index", "word", "start", "end", "confidence", "note")
+
+
+def write_csv(results, out) -> None:
+    """A table with one row per word; a file without words gets one row with a note."""
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(_CSV_COLUMNS)
+    for r in results:
+        if not r.segments:
+            w.writerow([r.path, "", "", "", "", "", _note(r)])
+        for i, s in enumerate(r.segments, start=1):
+            w.writerow([r.path, i, s.word, f"{s.start:.3f}", f"{s.end:.3f}", f"{s.confidence:.4f}", ""])
+
+
+def _run(args) -> int:
+    from wordspot.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    settings = settings_from_args(args)
+    model = load_model(args.model)
+    lexicon = read_lexicon(args.lexicon) if args.lexicon else None
+    results = recognize_files(
+        model, args.files, settings=settings, lexicon=lexicon, prior=args.prior, jobs=args.jobs
+    )
+    out = sys.stdout
+    if args.format == "csv":
+        write_csv(results, out)
+    for r in results:
+        if args.format == "text":
+            print(format_text(r, times=args.times), file=out)
+        elif args.format == "jsonl":
+            print(format_jsonl(r), file=out)
+        if r.error:
+            print(f"wordspot: error: {r.error}", file=sys.stderr)
+    failed = sum(1 for r in results if r.error)
+    if failed:
+        print(f"wordspot: {failed} of {len(results)} files could not be processed", file=sys.stderr)
+        return 1
+    return 0
