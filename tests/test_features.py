@@ -1,5 +1,6 @@
 """Tests for wordspot.features: MFCC, mel filters, deltas, CMN, the settings object."""
 
+import json
 import math
 
 import librosa
@@ -196,6 +197,8 @@ def test_settings_round_trip_and_validation():
     s = FeatureSettings(sample_rate=8000, n_mels=20, fmax=3800.0)
     assert FeatureSettings.from_dict(s.to_dict()) == s
     assert FeatureSettings.from_dict({}) == FeatureSettings()
+    plain = FeatureSettings(n_mels=np.int64(24), window_ms=25, fmax=np.float32(7000)).to_dict()
+    assert json.loads(json.dumps(plain)) == plain and type(plain["n_mels"]) is int
     with pytest.raises(FeatureError, match="unknown feature setting.*n_mel\\b"):
         FeatureSettings.from_dict({"n_mel": 26})
     with pytest.raises(FeatureError, match="preemphasis=1.5"):

@@ -98,6 +98,14 @@ class FeatureSettings:
 
     def __post_init__(self) -> None:
         _validate(self)
+        # plain Python types, so to_dict() always serialises (no numpy scalars in a model file)
+        for name in ("sample_rate", "n_mels", "n_cepstra", "delta_window", "delta_order"):
+            object.__setattr__(self, name, int(getattr(self, name)))
+        for name in ("preemphasis", "window_ms", "hop_ms", "lifter", "fmin"):
+            object.__setattr__(self, name, float(getattr(self, name)))
+        object.__setattr__(self, "cmn", bool(self.cmn))
+        object.__setattr__(self, "fmax", None if self.fmax is None else float(self.fmax))
+        object.__setattr__(self, "mel_scale", str(self.mel_scale))
 
     @property
     def dim(self) -> int:
