@@ -85,12 +85,14 @@ def test_check_lists_every_problem_at_once(tmp_path):
         "a.wav,knead the dough,ana\n"      # line 2: fine
         "b.wav,proof the dough,ana\n"      # line 3: missing file, unknown word proof
         "a.wav,proof proof loaf,ben\n"     # line 4: unknown proof (once for the line), loaf
-        "folder.wav,oven on,ben\n",        # line 5: a folder
+        "folder.wav,oven on,ben\n"        # line 5: a folder
+        "a.wav,\"knead, the dough\",ana\n",  # line 6: punctuation in the transcript
     )
     with pytest.raises(ManifestError) as info:
         check_manifest(read_manifest(manifest), LEXICON, manifest=manifest)
     text = str(info.value)
-    assert text.startswith(f"{manifest}: 4 problem(s):")
+    assert text.startswith(f"{manifest}: 5 problem(s):")
+    assert "transcript word 'knead,' holds ',' (line 6); write transcripts as plain words" in text
     assert f"line 3: audio file not found: {tmp_path / 'b.wav'}" in text
     assert f"line 5: is a folder, not an audio file: {tmp_path / 'folder.wav'}" in text
     assert "word 'proof' is not in the lexicon (lines 3, 4)" in text

@@ -24,6 +24,7 @@ from pathlib import Path
 from typing import Sequence
 
 from wordspot.errors import ManifestError
+from wordspot.lexicon import invalid_word_character
 
 __all__ = ["Utterance", "read_manifest", "check_manifest", "MAX_LISTED_PROBLEMS"]
 
@@ -185,6 +186,15 @@ def check_manifest(utterances: Sequence[Utterance], lexicon, *, manifest=None) -
                 rows = unknown.setdefault(word, [])
                 if not rows or rows[-1] != utt.row:
                     rows.append(utt.row)
+    spelled = {w: rows for w, rows in unknown.items() if invalid_word_character(w) is not None}
+    for word in spelled:
+        del unknown[word]
+    for word, rows in spelled.items():
+        listed = ", ".join(str(r) for r in rows[:10]) + (f" and {len(rows) - 10} more" if len(rows) > 10 else "")
+        problems.append(
+            f"transcript word {word!r} holds {invalid_word_character(word)!r} (line{'s' if len(rows) > 1 else ''} {listed}); "
+            "write transcripts as plain words separated by spaces, without punctuation"
+        )
     for word, rows in unknown.items():
         listed = ", ".join(str(r) for r in rows[:10]) + (f" and {len(rows) - 10} more" if len(rows) > 10 else "")
         problems.append(f"word {word!r} is not in the lexicon (line{'s' if len(rows) > 1 else ''} {listed})")

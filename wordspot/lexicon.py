@@ -36,6 +36,7 @@ __all__ = [
     "format_entry",
     "suggest_pronunciations",
     "check_word",
+    "invalid_word_character",
 ]
 
 #: The 39 ARPAbet phones of the CMU pronouncing dictionary, without stress marks.
@@ -51,7 +52,8 @@ _UNIT_RE = re.compile(r"[A-Za-z0-9_]+\Z")
 Pronunciation = tuple[str, ...]
 
 
-def _bad_word_char(word: str) -> str | None:
+def invalid_word_character(word: str) -> str | None:
+    """The first character of ``word`` that words may not hold, or None if all are fine."""
     for ch in word:
         if not (ch.isalpha() or ch.isdigit() or ch in _WORD_PUNCT):
             return ch
@@ -63,7 +65,7 @@ def check_word(word: str, *, where: str = "") -> str:
     prefix = f"{where}: " if where else ""
     if not isinstance(word, str) or not word:
         raise LexiconError(f"{prefix}a word must be a non-empty string, got {word!r}")
-    ch = _bad_word_char(word)
+    ch = invalid_word_character(word)
     if ch is not None:
         raise LexiconError(
             f"{prefix}word {word!r} holds the character {ch!r}; words may hold letters, digits, "
