@@ -199,16 +199,29 @@ class Recognizer:
         result = Recognition(path=path, duration=n * self.hop)
         net = self.network
         if n < net.min_frames:
-            result.reason = (
-                f"{REASON_TOO_SHORT}: {n} frames ({n * self.hop:.2f} s); the shortest word "
-                f"with the pauses around it needs {net.min_frames}"
-            )
+            result.reason = _too_short(n, self.hop, net.min_frames)
             return result
-        ll = self.emissions(frames)
-        return self._search(ll, result, kernel or decode_kernels.decode)
+        return self.search(self.emissions(frames), path=path, kernel=kernel)
 
-    def _search(self, ll: np.ndarray, result: Recognition, kernel) -> Recognition:
+    def search(self, ll: np.ndarray, *, path: str | None = None, kernel=None) -> Recognition:
+        """Token passing given emission log-likelihoods.
+
+        Parameters
+        ----------
+        ll : ndarray, shape (T, P)
+            Column ``j`` scores mixture ``network.used_pdfs[j]`` of the model.
+        kernel : callable, optional
+            :func:`wordspot.decode_kernels.decode` (default) or its reference version.
+        """
         net, s = self.network, self.settings
+        kernel = kernel or decode_kernels.decode
+        ll = np.asarray(ll, dtype=np.float64)
+        if ll.ndim != 2 or ll.shape[1] != net.used_pdfs.shape[0]:
+            raise DecodingError(f"emissions must have shape (frames, {net.used_pdfs.shape[0]}), got {ll.shape}")
+        result = Recognition(path=path, duration=ll.shape[0] * self.hop)
+        if ll.shape[0] < net.min_frames:
+            result.reason = _too_short(ll.shape[0], self.hop, net.min_frames)
+            return result
         status, final, final_link, links, link_scores, _ = kernel(
             np.ascontiguousarray(ll, dtype=np.float64),
             net.pdf, net.self_logp, net.arc_first, net.arc_dst, net.arc_logp, net.end_logp,
@@ -268,6 +281,13 @@ class Recognizer:
         except (OSError, ValueError, RuntimeError) as exc:  # anything the readers let through
             return Recognition(path=name, error=f"{name}: cannot read the audio ({exc})")
         return self.decode(frames, path=name)
+
+
+def _too_short(n: int, hop: float, need: int) -> str:
+    return (
+        f"{REASON_TOO_SHORT}: {n} frames ({n * hop:.2f} s); the shortest word with the "
+        f"pauses around it needs {need}"
+    )
 
 
 def _check_frames(frames, dim: int) -> np.ndarray:
