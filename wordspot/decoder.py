@@ -358,7 +358,8 @@ def recognize_files(model, paths, *, settings: DecoderSettings | None = None, le
     """Recognise many files with one compiled network, in order.
 
     Files that fail to load get ``error`` set and the batch continues. With ``jobs > 1``
-    the files are shared among that many worker processes (joblib).
+    the files are shared among that many threads (joblib): the search kernel releases
+    the interpreter lock, and the network is shared rather than copied.
     """
     if not (isinstance(jobs, (int, np.integer)) and (jobs >= 1 or jobs == -1)):
         raise DecodingError(f"jobs must be a whole number >= 1 (or -1 for every core), got {jobs!r}")
@@ -368,4 +369,4 @@ def recognize_files(model, paths, *, settings: DecoderSettings | None = None, le
         return [rec.decode_file(p) for p in paths]
     from joblib import Parallel, delayed
 
-    return Parallel(n_jobs=jobs)(delayed(_decode_one)(rec, p) for p in paths)
+    return Parallel(n_jobs=jobs, prefer="threads")(delayed(_decode_one)(rec, p) for p in paths)

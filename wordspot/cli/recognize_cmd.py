@@ -53,7 +53,7 @@ def add_parser(sub):
                    help="use this vocabulary instead of the model's (words made of the model's phones)")
     p.add_argument("--prior", metavar="FILE", help="word-pair prior file (format below)")
     p.add_argument("--single-word", action="store_true", help="exactly one word per file (isolated commands)")
-    p.add_argument("--jobs", "-j", type=int, default=1, metavar="N", help="worker processes (default 1)")
+    p.add_argument("--jobs", "-j", type=int, default=1, metavar="N", help="files decoded at once, in threads (default 1)")
     d = DecoderSettings()
     p.add_argument("--beam", type=float, default=d.beam, help=f"search beam in log units (default {d.beam:g})")
     p.add_argument("--word-end-beam", type=float, default=d.word_end_beam,
