@@ -687,15 +687,18 @@ def build(root: Path, seed: int, only: list[str], jobs: int) -> None:
         raw = {t.rel_path: work / f"raw-{i:05d}.wav" for i, t in enumerate(takes)}
         synthesize_raw([(t.voice, t.text, draw_for(seed, t.rel_path), raw[t.rel_path]) for t in takes], jobs)
         print(f"engines done: {len(takes)} takes in {time.time() - t0:.1f} s", flush=True)
-        finished = Parallel(n_jobs=jobs)(delayed(finish_take)(t, raw[t.rel_path], seed) for t in takes)
+        # Worker start-up costs seconds: small builds run in this process.
+        workers = jobs if len(takes) + len(wanted_noisy) >= 40 else 1
+        finished = Parallel(n_jobs=workers)(delayed(finish_take)(t, raw[t.rel_path], seed) for t in takes)
         clean = {t.rel_path: f for t, f in zip(takes, finished)}
         for t in takes:
             if selected(t.rel_path):
                 writer.write(t.rel_path, clean[t.rel_path][0])
         print(f"clean audio written in {time.time() - t0:.1f} s", flush=True)
         if wanted_noisy:
-            streams = babble_streams(seed, work, jobs)
-            mixed = Parallel(n_jobs=jobs)(
+            needs_babble = any(nt.noise == "babble" for nt in wanted_noisy)
+            streams = babble_streams(seed, work, jobs) if needs_babble else []
+            mixed = Parallel(n_jobs=workers)(
                 delayed(mix_noisy)(nt, clean[nt.clean.rel_path][1], clean[nt.clean.rel_path][2:],
                                    seed, streams) for nt in wanted_noisy)
             for nt, data in zip(wanted_noisy, mixed):
