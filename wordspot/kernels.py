@@ -9,6 +9,12 @@ Everything is in the log domain. ``-inf`` means "impossible" and is handled expl
 (:func:`_log_add` never computes ``-inf - -inf``), so no NaN can appear as long as the
 emission scores are not NaN themselves.
 
+The Gaussian-mixture side of training has three more loops here (scoring frames against
+components, normalising component posteriors, summing first and second moments). They
+are plain loops rather than BLAS calls so that their cost does not depend on a thread
+pool (tiny matrix products suffer badly from thread start-up on a busy machine) and their
+results are bit-identical in every process.
+
 The ``reference_*`` functions compute the same quantities the textbook way, with a dense
 S x S transition matrix (Rabiner 1989, "A tutorial on hidden Markov models", eqs. 19-25,
 30-35, 37-38 in log form). They are slow and exist so the tests can compare.
@@ -29,6 +35,12 @@ __all__ = [
     "reference_backward",
     "reference_transition_counts",
     "reference_viterbi",
+    "score_components",
+    "mixture_posteriors",
+    "accumulate_moments",
+    "reference_score_components",
+    "reference_mixture_posteriors",
+    "reference_accumulate_moments",
 ]
 
 _NEG_INF = -np.inf
@@ -195,7 +207,137 @@ def viterbi(loglik, self_logp, arc_src, arc_dst, arc_logp, init_logp, final_logp
     return best, states
 
 
+@njit(cache=True)
+def score_components(frames, w, const):
+    """``[x*x, x] @ w + const`` for every frame (see :func:`wordspot.gmm.scoring_matrix`).
+
+    Parameters
+    ----------
+    frames : ndarray, shape (T, D)
+    w : ndarray, shape (2 D, C)
+    const : ndarray, shape (C,)
+
+    Returns
+    -------
+    ndarray, shape (T, C)
+    """
+    n_frames, dim = frames.shape
+    n_cols = const.shape[0]
+    out = np.empty((n_frames, n_cols))
+    for t in range(n_frames):
+        for j in range(n_cols):
+            out[t, j] = const[j]
+        for d in range(dim):
+            v = frames[t, d]
+            v2 = v * v
+            for j in range(n_cols):
+                out[t, j] += v2 * w[d, j] + v * w[dim + d, j]
+    return out
+
+
+@njit(cache=True)
+def mixture_posteriors(comp):
+    """Mixture log-likelihoods and component posteriors.
+
+    Parameters
+    ----------
+    comp : ndarray, shape (T, K, M)
+        Log weight plus log density of each component (-inf for unused ones).
+
+    Returns
+    -------
+    loglik : ndarray, shape (T, K)
+        ``log sum_m exp(comp[t, k, m])``.
+    post : ndarray, shape (T, K, M)
+        ``exp(comp - loglik)`` (0 where the mixture is impossible).
+    """
+    n_frames, n_mix, n_comp = comp.shape
+    loglik = np.empty((n_frames, n_mix))
+    post = np.zeros((n_frames, n_mix, n_comp))
+    for t in range(n_frames):
+        for k in range(n_mix):
+            top = _NEG_INF
+            for m in range(n_comp):
+                if comp[t, k, m] > top:
+                    top = comp[t, k, m]
+            if top == _NEG_INF:
+                loglik[t, k] = _NEG_INF
+                continue
+            total = 0.0
+            for m in range(n_comp):
+                e = np.exp(comp[t, k, m] - top)
+                post[t, k, m] = e
+                total += e
+            for m in range(n_comp):
+                post[t, k, m] /= total
+            loglik[t, k] = top + np.log(total)
+    return loglik, post
+
+
+@njit(cache=True)
+def accumulate_moments(frames, post, pdf_gamma):
+    """Posterior-weighted zeroth, first and second moments of every component.
+
+    Parameters
+    ----------
+    frames : ndarray, shape (T, D)
+    post : ndarray, shape (T, K, M)
+        Component posteriors within each mixture.
+    pdf_gamma : ndarray, shape (T, K)
+        Probability that mixture k emitted frame t.
+
+    Returns
+    -------
+    occupancy : ndarray, shape (K, M)
+    first, second : ndarray, shape (K, M, D)
+    """
+    n_frames, dim = frames.shape
+    _, n_mix, n_comp = post.shape
+    occ = np.zeros((n_mix, n_comp))
+    first = np.zeros((n_mix, n_comp, dim))
+    second = np.zeros((n_mix, n_comp, dim))
+    sq = np.empty(dim)
+    for t in range(n_frames):
+        for d in range(dim):
+            sq[d] = frames[t, d] * frames[t, d]
+        for k in range(n_mix):
+            g = pdf_gamma[t, k]
+            if g == 0.0:
+                continue
+            for m in range(n_comp):
+                r = g * post[t, k, m]
+                if r == 0.0:
+                    continue
+                occ[k, m] += r
+                for d in range(dim):
+                    first[k, m, d] += r * frames[t, d]
+                    second[k, m, d] += r * sq[d]
+    return occ, first, second
+
+
 # --------------------------------------------------------------------------- reference
+
+
+def reference_score_components(frames, w, const):
+    """Plain-numpy :func:`score_components` (one matrix product)."""
+    x = np.asarray(frames, dtype=np.float64)
+    return np.concatenate([x * x, x], axis=1) @ w + const
+
+
+def reference_mixture_posteriors(comp):
+    """Plain-numpy :func:`mixture_posteriors`."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        loglik = logsumexp(comp, axis=2)
+        post = np.nan_to_num(np.exp(comp - loglik[:, :, None]), nan=0.0)
+    return loglik, post
+
+
+def reference_accumulate_moments(frames, post, pdf_gamma):
+    """Plain-numpy :func:`accumulate_moments` (matrix products)."""
+    x = np.asarray(frames, dtype=np.float64)
+    t, k, m = post.shape
+    r = (post * pdf_gamma[:, :, None]).reshape(t, k * m)
+    return r.sum(axis=0).reshape(k, m), (r.T @ x).reshape(k, m, -1), (r.T @ (x * x)).reshape(k, m, -1)
 
 
 def _dense(n_states, self_logp, arc_src, arc_dst, arc_logp):

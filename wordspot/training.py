@@ -34,17 +34,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from joblib import Parallel, delayed
-from scipy.special import logsumexp
 
-from wordspot import __version__
+from wordspot import __version__, kernels
 from wordspot.corpus import check_manifest
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.features import FeatureSettings
 from wordspot.gmm import (
     Mixtures,
     MixtureStats,
-    component_log_likelihoods,
-    component_statistics,
+    scoring_matrix,
     single_gaussian,
     split_heaviest,
     update_mixtures,
@@ -172,20 +170,22 @@ class _PassResult:
     unit_frames: np.ndarray
 
 
-def _utterance_pass(item_frames, graph, mix: Mixtures, units: UnitSet, result: _PassResult, k: int):
+def _utterance_pass(item_frames, graph, scoring, n_comp: int, units: UnitSet, result: _PassResult, k: int):
     """Add one utterance's statistics into ``result`` (its log-likelihood into slot k)."""
-    x = np.asarray(item_frames, dtype=np.float64)
+    x = np.ascontiguousarray(item_frames, dtype=np.float64)
     graph = refresh_graph(graph, units)
     pdfs, local = np.unique(graph.pdf, return_inverse=True)
-    comp = component_log_likelihoods(x, mix, pdfs)  # (T, K, M)
-    pdf_ll = logsumexp(comp, axis=2)
+    w, c = scoring
+    cols = (pdfs[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
+    comp = kernels.score_components(x, np.ascontiguousarray(w[:, cols]), np.ascontiguousarray(c[cols]))
+    pdf_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], pdfs.size, n_comp))
     post = forward_backward(graph, pdf_ll[:, local])
     result.loglik[k] = post.loglik
     if not np.isfinite(post.loglik):
         return
     pdf_gamma = np.zeros((x.shape[0], pdfs.size))
     np.add.at(pdf_gamma.T, local, post.gamma.T)
-    occ, first, second = component_statistics(x, pdf_gamma, comp)
+    occ, first, second = kernels.accumulate_moments(x, comp_post, pdf_gamma)
     result.stats.occupancy[pdfs] += occ
     result.stats.first[pdfs] += first
     result.stats.second[pdfs] += second
@@ -201,8 +201,9 @@ def _chunk_pass(chunk, mix: Mixtures, units: UnitSet) -> _PassResult:
         np.full(len(chunk), -np.inf),
         np.zeros(units.n_units),
     )
+    scoring = scoring_matrix(mix)
     for k, (frames, graph) in enumerate(chunk):
-        _utterance_pass(frames, graph, mix, units, result, k)
+        _utterance_pass(frames, graph, scoring, mix.n_components, units, result, k)
     return result
 
 
