@@ -10,7 +10,7 @@ import sys
 
 from wordspot.decoder import DecoderSettings, Recognition, recognize_files
 
-__all__ = ["add_parser", "format_text", "format_jsonl", "write_csv"]
+__all__ = ["add_parser", "add_decoder_options", "settings_from_args", "format_text", "format_jsonl", "write_csv"]
 
 _EPILOG = """\
 examples (a bakery: commands called out with dough on your hands):
@@ -49,9 +49,16 @@ def add_parser(sub):
     p.add_argument("--format", choices=("text", "jsonl", "csv"), default="text",
                    help="text (default): one line per file; jsonl: one JSON object per file; csv: one row per word")
     p.add_argument("--times", action="store_true", help="text format: show each word's start and end in seconds")
+    add_decoder_options(p)
+    p.set_defaults(func=_run)
+    return p
+
+
+def add_decoder_options(p) -> None:
+    """Vocabulary, prior and search options (shared with ``wordspot evaluate``)."""
     p.add_argument("--lexicon", metavar="FILE",
                    help="use this vocabulary instead of the model's (words made of the model's phones)")
-    p.add_argument("--prior", metavar="FILE", help="word-pair prior file (format below)")
+    p.add_argument("--prior", metavar="FILE", help="word-pair prior file (format: see `wordspot recognize --help`)")
     p.add_argument("--single-word", action="store_true", help="exactly one word per file (isolated commands)")
     p.add_argument("--jobs", "-j", type=int, default=1, metavar="N", help="files decoded at once, in threads (default 1)")
     d = DecoderSettings()
@@ -64,8 +71,6 @@ def add_parser(sub):
                    help=f"weight of the word-pair prior (default {d.grammar_weight:g})")
     p.add_argument("--insertion-penalty", type=float, default=d.insertion_penalty,
                    help=f"log score added per word; negative gives fewer words (default {d.insertion_penalty:g})")
-    p.set_defaults(func=_run)
-    return p
 
 
 def settings_from_args(args) -> DecoderSettings:
