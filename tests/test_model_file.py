@@ -1,0 +1,165 @@
+"""The model file: identical round trip, refusal of damaged, altered or foreign files."""
+
+import json
+import os
+import zipfile
+
+import numpy as np
+import pytest
+
+from wordspot.errors import ModelFileError
+from wordspot.features import FeatureSettings
+from wordspot.gmm import Mixtures
+from wordspot.grammar import count_bigrams
+from wordspot.lexicon import parse_lexicon
+from wordspot.model import FORMAT_VERSION, AcousticModel, load_model, save_model
+from wordspot.units import default_unit_set
+
+
+@pytest.fixture
+def model(rng):
+    lexicon = parse_lexicon("oven AH V AH N\nstart S T AA R T\nstop S T AA P\n", source="test")
+    units = default_unit_set(sorted(lexicon.units_used()))
+    units.trans[0, 0, :2] = [0.55, 0.45]
+    settings = FeatureSettings()
+    p, m, d = units.n_pdfs, 3, settings.dim
+    w = rng.uniform(0.1, 1.0, (p, m))
+    w[1, 2] = 0.0
+    w /= w.sum(axis=1, keepdims=True)
+    mix = Mixtures(w, rng.normal(size=(p, m, d)), rng.uniform(0.5, 2.0, (p, m, d)))
+    bigrams = count_bigrams([("oven", "start"), ("stop",)], vocabulary=lexicon.words)
+    info = {"created": "2026-12-01T00:00:00+00:00", "loglik_per_pass": [-90.5, -88.25]}
+    return AcousticModel(settings, units, mix, lexicon, bigrams, info)
+
+
+def assert_same(a: AcousticModel, b: AcousticModel):
+    assert a.features == b.features
+    assert a.units.names == b.units.names
+    for name in ("n_states", "state_pdf", "trans", "entry"):
+        np.testing.assert_array_equal(getattr(a.units, name), getattr(b.units, name))
+    for name in ("weights", "means", "variances"):
+        np.testing.assert_array_equal(getattr(a.mixtures, name), getattr(b.mixtures, name))
+    assert a.lexicon == b.lexicon
+    assert a.bigrams.words == b.bigrams.words
+    np.testing.assert_array_equal(a.bigrams.counts, b.bigrams.counts)
+    assert a.info == b.info
+
+
+def test_round_trip_is_identical(model, tmp_path):
+    path = save_model(model, tmp_path / "bakery.model")
+    assert path == tmp_path / "bakery.model"
+    assert_same(model, load_model(path))
+    # No temporary file left behind; an existing model is replaced in place.
+    save_model(model, path)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["bakery.model"]
+
+
+def test_file_holds_no_pickled_objects(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        for name in data.files:
+            assert data[name].dtype != object
+
+
+def test_missing_file(tmp_path):
+    with pytest.raises(ModelFileError, match=r"nope\.model: model file not found.*wordspot train"):
+        load_model(tmp_path / "nope.model")
+
+
+@pytest.mark.parametrize("keep", [0.0, 0.3, 0.9, 0.999])
+def test_truncated_file_is_refused(model, tmp_path, keep):
+    path = save_model(model, tmp_path / "m.model")
+    data = path.read_bytes()
+    path.write_bytes(data[: int(len(data) * keep)])
+    with pytest.raises(ModelFileError, match=r"m\.model: .*(damaged|altered).*wordspot train"):
+        load_model(path)
+
+
+def _rewrite(path, change):
+    """Rewrite the archive with ``change(arrays)`` applied, keeping the old header."""
+    with np.load(path, allow_pickle=False) as data:
+        arrays = {k: np.array(data[k]) for k in data.files}
+    change(arrays)
+    with open(path, "wb") as f:
+        np.savez(f, **arrays)
+
+
+def test_altered_parameters_are_refused(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+
+    def nudge(arrays):
+        arrays["mix_means"][0, 0, 0] += 1e-9
+
+    _rewrite(path, nudge)
+    with pytest.raises(ModelFileError, match=r"m\.model: checksum mismatch"):
+        load_model(path)
+
+
+def test_altered_bytes_are_refused(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    data = bytearray(path.read_bytes())
+    data[len(data) // 2] ^= 0xFF
+    path.write_bytes(bytes(data))
+    with pytest.raises(ModelFileError, match=r"m\.model: "):
+        load_model(path)
+
+
+def _set_header(path, **fields):
+    def edit(arrays):
+        header = json.loads(arrays["header"].tobytes().decode())
+        header.update(fields)
+        arrays["header"] = np.frombuffer(json.dumps(header).encode(), dtype=np.uint8)
+
+    _rewrite(path, edit)
+
+
+def test_wrong_version_is_refused(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    _set_header(path, version=FORMAT_VERSION + 1)
+    with pytest.raises(ModelFileError, match=rf"format version {FORMAT_VERSION + 1}.*reads version {FORMAT_VERSION}"):
+        load_model(path)
+
+
+def test_foreign_files_are_refused(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    _set_header(path, format="something-else")
+    with pytest.raises(ModelFileError, match="not a wordspot model"):
+        load_model(path)
+    other = tmp_path / "other.npz"
+    np.savez(other, a=np.zeros(3))
+    with pytest.raises(ModelFileError, match="no header"):
+        load_model(other)
+    text = tmp_path / "notes.model"
+    text.write_text("bake at 220 degrees\n")
+    with pytest.raises(ModelFileError, match="cannot be read"):
+        load_model(text)
+    with pytest.raises(ModelFileError, match="is a folder"):
+        load_model(tmp_path)
+
+
+def test_inconsistent_tables_are_refused(model, tmp_path):
+    bad = AcousticModel(model.features, model.units, Mixtures(
+        model.mixtures.weights, model.mixtures.means[:, :, :13], model.mixtures.variances[:, :, :13]),
+        model.lexicon, model.bigrams, model.info)
+    path = save_model(bad, tmp_path / "m.model")
+    with pytest.raises(ModelFileError, match="13 dimensions but the feature settings give 39"):
+        load_model(path)
+
+
+def test_save_into_missing_folder(model, tmp_path):
+    with pytest.raises(ModelFileError, match="does not exist"):
+        save_model(model, tmp_path / "no" / "m.model")
+
+
+def test_failed_write_leaves_old_model(model, tmp_path, monkeypatch):
+    path = save_model(model, tmp_path / "m.model")
+    before = path.read_bytes()
+
+    def broken_replace(src, dst):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(os, "replace", broken_replace)
+    with pytest.raises(ModelFileError, match="cannot write the model"):
+        save_model(model, path)
+    assert path.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["m.model"]
