@@ -1,0 +1,106 @@
+"""The Python interface: the same four jobs as the command line.
+
+>>> import wordspot
+>>> model = wordspot.train("my-takes/train.csv", "lexicon/bakery.txt", out="bakery.model")  # doctest: +SKIP
+>>> model = wordspot.load("bakery.model")                                                  # doctest: +SKIP
+>>> [r.text for r in wordspot.recognize(model, ["oven-start.wav"])]                        # doctest: +SKIP
+['oven start']
+>>> wordspot.evaluate(model, "my-takes/held-out.csv").result.wer                           # doctest: +SKIP
+0.012
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from pathlib import Path
+
+__all__ = ["train", "load", "recognize", "evaluate"]
+
+
+def _lexicon(lexicon):
+    from wordspot.lexicon import Lexicon, read_lexicon
+
+    if lexicon is None or isinstance(lexicon, Lexicon):
+        return lexicon
+    return read_lexicon(lexicon)
+
+
+def _model(model):
+    from wordspot.model import AcousticModel, load_model
+
+    return model if isinstance(model, AcousticModel) else load_model(model)
+
+
+def _settings(settings, single_word):
+    from wordspot.decoder import DecoderSettings
+
+    settings = settings or DecoderSettings()
+    return replace(settings, single_word=True) if single_word else settings
+
+
+def train(manifest, lexicon, *, out=None, config=None, features=None, quiet: bool = True):
+    """Train a model from a manifest of recordings and a lexicon (``wordspot train``).
+
+    Parameters
+    ----------
+    manifest : str or path
+        CSV file ``path,transcript,speaker``.
+    lexicon : str, path or Lexicon
+    out : str or path, optional
+        Write the model file here (atomically).
+    config : wordspot.training.TrainingConfig, optional
+    features : wordspot.features.FeatureSettings, optional
+    quiet : bool
+        No progress bars.
+
+    Returns
+    -------
+    AcousticModel
+    """
+    from wordspot.corpus import read_manifest
+    from wordspot.model import save_model
+    from wordspot.training import TrainingConfig
+    from wordspot.training import train as _train
+
+    model, _summary = _train(read_manifest(manifest), _lexicon(lexicon), settings=features,
+                             config=config or TrainingConfig(), manifest=manifest, quiet=quiet)
+    if out is not None:
+        save_model(model, Path(out))
+    return model
+
+
+def load(path):
+    """Load a model file written by :func:`train` or ``wordspot train``."""
+    from wordspot.model import load_model
+
+    return load_model(path)
+
+
+def recognize(model, paths, *, lexicon=None, prior=None, single_word: bool = False, settings=None,
+              jobs: int = 1):
+    """Recognise audio files (``wordspot recognize``); one Recognition per file, in order.
+
+    ``model`` is an AcousticModel or a model file; ``lexicon`` (a Lexicon or a file)
+    replaces the model's vocabulary; ``prior`` is a BigramPrior or a prior file.
+    """
+    from wordspot.decoder import recognize_files
+
+    if isinstance(paths, (str, Path)):
+        paths = [paths]
+    return recognize_files(_model(model), paths, settings=_settings(settings, single_word),
+                           lexicon=_lexicon(lexicon), prior=prior, jobs=jobs)
+
+
+def evaluate(model, manifest, *, lexicon=None, prior=None, single_word: bool = False, settings=None,
+             jobs: int = 1, n_bootstrap: int = 1000):
+    """Word error rate of a model on a manifest (``wordspot evaluate``).
+
+    Returns
+    -------
+    wordspot.evaluation.ManifestEvaluation
+        ``.result.wer``, ``.result.wer_ci95``, tables, and each file's recognition.
+    """
+    from wordspot.evaluation import evaluate_manifest
+
+    return evaluate_manifest(_model(model), manifest, settings=_settings(settings, single_word),
+                             lexicon=_lexicon(lexicon), prior=prior, jobs=jobs, n_bootstrap=n_bootstrap)
