@@ -25,6 +25,7 @@ from wordspot.decoder import (
     recognize_files,
 )
 from wordspot.errors import DecodingError, LexiconError
+from wordspot.gmm import log_likelihoods
 from wordspot.grammar import count_bigrams, estimate_prior
 from wordspot.lexicon import Lexicon
 
@@ -269,3 +270,19 @@ def test_files_batch_continues_past_failures(rng, tmp_path):
     parallel = recognize_files(model, [good, broken, missing, good], jobs=2)
     assert [r.words for r in parallel] == [r.words for r in results + [results[0]]]
     assert [bool(r.error) for r in parallel] == [False, True, True, False]
+
+
+def test_emissions_equal_mixture_scoring(rng):
+    # Reference: wordspot.gmm.log_likelihoods (scipy logsumexp) on the network's pdfs,
+    # and the compiled log-sum-exp against scipy's on random component scores.
+    model = tiny_model(rng, ENTRIES, n_components=3)
+    rec = build_recognizer(model)
+    frames = rng.normal(size=(50, 39)) * 3.0
+    want = log_likelihoods(frames, model.mixtures, rec.network.used_pdfs)
+    np.testing.assert_allclose(rec.emissions(frames), want, rtol=1e-12)
+    comp = rng.normal(size=(7, 5, 4)) * 30.0
+    comp[2, 1, :] = -np.inf
+    comp[3, 2, 1:] = -np.inf
+    np.testing.assert_allclose(
+        decode_kernels.mixture_logsumexp(comp), decode_kernels.mixture_logsumexp_reference(comp), rtol=1e-12
+    )

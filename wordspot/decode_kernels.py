@@ -36,7 +36,16 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-__all__ = ["decode", "decode_reference", "OK", "NO_TOKENS", "NO_EXIT", "LINK_FIELDS"]
+__all__ = [
+    "decode",
+    "decode_reference",
+    "mixture_logsumexp",
+    "mixture_logsumexp_reference",
+    "OK",
+    "NO_TOKENS",
+    "NO_EXIT",
+    "LINK_FIELDS",
+]
 
 OK = 0
 NO_TOKENS = 1
@@ -46,6 +55,34 @@ LINK_FIELDS = ("word", "pron", "start", "phone_end", "end", "previous")
 
 _ENTRY, _EXIT, _FIRST = 0, 1, 2
 _NEG = -np.inf
+
+
+@numba.njit(cache=True, nogil=True)
+def mixture_logsumexp(comp):
+    """Log-sum-exp over the last axis of (T, P, M) component scores, shape (T, P)."""
+    n_frames, n_pdfs, n_comp = comp.shape
+    out = np.empty((n_frames, n_pdfs))
+    for t in range(n_frames):
+        for p in range(n_pdfs):
+            top = _NEG
+            for m in range(n_comp):
+                if comp[t, p, m] > top:
+                    top = comp[t, p, m]
+            if top == _NEG:
+                out[t, p] = _NEG
+                continue
+            acc = 0.0
+            for m in range(n_comp):
+                acc += np.exp(comp[t, p, m] - top)
+            out[t, p] = top + np.log(acc)
+    return out
+
+
+def mixture_logsumexp_reference(comp):
+    """Plain version of :func:`mixture_logsumexp` (scipy)."""
+    from scipy.special import logsumexp
+
+    return logsumexp(comp, axis=2)
 
 
 @numba.njit(cache=True, nogil=True)

@@ -24,7 +24,7 @@ import numpy as np
 from wordspot import decode_kernels
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.features import compute_features
-from wordspot.gmm import Mixtures, log_likelihoods
+from wordspot.gmm import Mixtures, scoring_matrix
 from wordspot.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
 from wordspot.network import Network, compile_network
 
@@ -71,8 +71,8 @@ class DecoderSettings:
         Allow the pause-only result (how silence comes out empty).
     """
 
-    beam: float = 200.0
-    word_end_beam: float = 120.0
+    beam: float = 800.0
+    word_end_beam: float = 600.0
     max_active: int = 4000
     grammar_weight: float = 1.0
     insertion_penalty: float = 0.0
@@ -187,10 +187,22 @@ class Recognizer:
     features: object
     settings: DecoderSettings
     hop: float
+    _scoring: tuple | None = field(default=None, repr=False)
 
     def emissions(self, frames: np.ndarray) -> np.ndarray:
-        """Log-likelihood of every frame under every mixture the network uses, (T, P)."""
-        return log_likelihoods(frames, self.mixtures)
+        """Log-likelihood of every frame under every mixture the network uses, (T, P).
+
+        The same numbers as :func:`wordspot.gmm.log_likelihoods` (one matrix product
+        for all frames and components), with the weights of the expansion computed once
+        and the sum over components done by a compiled loop.
+        """
+        if self._scoring is None:
+            self._scoring = scoring_matrix(self.mixtures)
+        w, c = self._scoring
+        x = np.asarray(frames, dtype=np.float64)
+        comp = np.concatenate([x * x, x], axis=1) @ w + c
+        comp = comp.reshape(x.shape[0], self.mixtures.n_pdfs, self.mixtures.n_components)
+        return decode_kernels.mixture_logsumexp(comp)
 
     def decode(self, frames: np.ndarray, *, path: str | None = None, kernel=None) -> Recognition:
         """Recognise one utterance given its features, shape (T, D)."""
