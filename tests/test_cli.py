@@ -1,0 +1,127 @@
+"""The command line as a whole: help with examples, one-line errors, exit statuses.
+
+What counts as right here is our own contract (README "Command line"): a bad input gives
+one line starting "wordspot: error:" and a non-zero status, never a traceback, unless
+--debug is given.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from decoding_helpers import tiny_model
+from wordspot.cli import main
+from wordspot.errors import ModelFileError
+from wordspot.model import save_model
+
+ENTRIES = {"oven": [["AA", "B", "AA"]], "start": [["S", "T", "AA", "T"]], "stop": [["S", "T", "AA", "B"]]}
+
+
+@pytest.fixture
+def setup(rng, tmp_path):
+    model = tiny_model(rng, ENTRIES, transcripts=[["oven", "start"], ["oven", "stop"]])
+    model_path = save_model(model, tmp_path / "bakery.model")
+    good = tmp_path / "oven-start.wav"
+    sf.write(good, 0.1 * rng.normal(size=16000).astype(np.float32), 16000)
+    broken = tmp_path / "broken.wav"
+    broken.write_bytes(b"RIFF\x00\x00\x00\x00WAVEjunkjunkjunk")
+    return tmp_path, str(model_path), good, broken
+
+
+def _run(capsys, argv):
+    status = main(argv)
+    out, err = capsys.readouterr()
+    return status, out, err
+
+
+def _one_line_error(err: str) -> bool:
+    lines = [line for line in err.splitlines() if line.startswith("wordspot: error:")]
+    return bool(lines) and "Traceback" not in err
+
+
+@pytest.mark.parametrize("command", ["demo", "train", "recognize", "evaluate", "lexicon"])
+def test_help_has_bakery_examples(command, capsys):
+    with pytest.raises(SystemExit) as exit_info:
+        main([command, "--help"])
+    assert exit_info.value.code == 0
+    out = capsys.readouterr().out
+    assert "example" in out and ("bakery" in out or "oven" in out)
+
+
+def test_top_level_help_mentions_safety(capsys):
+    with pytest.raises(SystemExit):
+        main(["--help"])
+    out = capsys.readouterr().out
+    assert "never a safety device" in out and "physical stop" in out
+
+
+def test_evaluate_unknown_word_lists_it(setup, capsys):
+    folder, model_path, good, _ = setup
+    manifest = folder / "held-out.csv"
+    manifest.write_text(f"path,transcript,speaker\n{good},oven knead,baker-a\n{good},proof,baker-a\n",
+                        encoding="utf-8")
+    status, _, err = _run(capsys, ["evaluate", "--model", model_path, str(manifest)])
+    assert status == 2 and _one_line_error(err)
+    assert "knead" in err and "proof" in err  # every problem listed at once
+
+
+def test_evaluate_unreadable_audio_counts_and_fails(setup, capsys):
+    folder, model_path, good, broken = setup
+    manifest = folder / "held-out.csv"
+    manifest.write_text(f"path,transcript,speaker\n{good},oven start,a\n{broken},oven stop,a\n",
+                        encoding="utf-8")
+    status, out, err = _run(capsys, ["evaluate", "--model", model_path, str(manifest), "--json"])
+    assert status == 1
+    record = json.loads(out)
+    assert record["utterances"] == 2 and len(record["failed_files"]) == 1
+    assert "broken.wav" in record["failed_files"][0]["path"]
+    assert "broken.wav" in err and "Traceback" not in err
+
+
+def test_evaluate_missing_manifest(setup, capsys):
+    folder, model_path, _, _ = setup
+    status, _, err = _run(capsys, ["evaluate", "--model", model_path, str(folder / "nope.csv")])
+    assert status == 2 and _one_line_error(err) and "nope.csv" in err
+
+
+@pytest.mark.parametrize("damage", ["truncated", "garbage", "missing"])
+def test_bad_model_file(setup, capsys, damage):
+    folder, model_path, good, _ = setup
+    bad = folder / "bad.model"
+    data = open(model_path, "rb").read()
+    if damage == "truncated":
+        bad.write_bytes(data[: len(data) // 2])
+    elif damage == "garbage":
+        bad.write_bytes(b"not a model at all")
+    status, _, err = _run(capsys, ["recognize", "--model", str(bad), str(good)])
+    assert status == 2 and _one_line_error(err) and "bad.model" in err
+
+
+def test_recognize_missing_audio_continues(setup, capsys):
+    folder, model_path, good, _ = setup
+    status, out, err = _run(capsys, ["recognize", "--model", model_path, str(folder / "gone.wav"), str(good)])
+    assert status == 1
+    assert "gone.wav" in err and "Traceback" not in err
+    assert str(good) in out  # the batch went on to the next file
+
+
+def test_train_missing_words_listed_before_work(setup, capsys):
+    folder, _, good, _ = setup
+    lex = folder / "lex.txt"
+    lex.write_text("oven AA B AA\n", encoding="utf-8")
+    manifest = folder / "train.csv"
+    manifest.write_text(f"path,transcript,speaker\n{good},oven knead,a\n{good},bagel,a\n", encoding="utf-8")
+    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model")])
+    assert status == 2 and _one_line_error(err)
+    assert "knead" in err and "bagel" in err
+    assert not (folder / "m.model").exists()
+
+
+def test_debug_shows_the_traceback(setup):
+    folder, _, good, _ = setup
+    with pytest.raises(ModelFileError):
+        main(["--debug", "recognize", "--model", str(folder / "none.model"), str(good)])
