@@ -97,6 +97,36 @@ def _grow(links_int, links_score, n):
 
 
 @numba.njit(cache=True, nogil=True)
+def _link_logp(v, w, unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty):
+    """Score of the grammar link v -> w (listed pair, else back-off), restrictions applied."""
+    if v == 0 and w == 0 and not allow_empty:
+        return _NEG
+    if v > 0 and w > 0 and single_word:
+        return _NEG
+    lo, hi = pair_first[v], pair_first[v + 1]
+    k = lo + np.searchsorted(pair_next[lo:hi], w)
+    if k < hi and pair_next[k] == w:
+        return pair_logp[k]
+    return backoff[v] + unigram[w]
+
+
+@numba.njit(cache=True, nogil=True)
+def _best_link(w, ended, n_ended, end_score, end_link, unigram, backoff, pair_first, pair_next,
+               pair_logp, single_word, allow_empty):
+    """Best entry score of next word ``w`` over this frame's word ends, and its link."""
+    best = _NEG
+    link = -1
+    for j in range(n_ended):
+        v = ended[j]
+        cand = end_score[v] + _link_logp(v, w, unigram, backoff, pair_first, pair_next, pair_logp,
+                                         single_word, allow_empty)
+        if cand > best:
+            best = cand
+            link = end_link[v]
+    return best, link
+
+
+@numba.njit(cache=True, nogil=True)
 def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
            start_first, start_state, start_logp, pron_word, word_first, word_pron,
            unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty,
@@ -129,7 +159,6 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
     end_link = np.zeros(n_words, dtype=np.int64)
     enter = np.full(n_words, _NEG)
     enter_from = np.zeros(n_words, dtype=np.int64)
-    row = np.empty(n_words)
     scratch = np.empty(n_states)
 
     # Frame 0: the entry pause begins.
@@ -247,27 +276,43 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
             links_score[n_links] = end_score[w]
             end_link[w] = n_links
             n_links += 1
-        # 5. grammar links into the entries of frame t+1.
-        for w in range(n_words):
-            enter[w] = _NEG
+        # 5. grammar links into the entries of frame t+1. Unlisted pairs share one
+        # back-off term, so the best source for them is the same for every next word:
+        # O(V + listed pairs) per frame instead of O(ended x V).
+        top = _NEG
+        top_v = -1
         for j in range(n_ended):
             v = ended[j]
-            ls = end_score[v]
-            for w in range(n_words):
-                row[w] = backoff[v] + unigram[w]
-            for k in range(pair_first[v], pair_first[v + 1]):
-                row[pair_next[k]] = pair_logp[k]
-            if v == 0 and not allow_empty:
-                row[0] = _NEG
-            last = n_words
             if v > 0 and single_word:
-                last = 1
-            for w in range(last):
-                cand = ls + row[w]
-                if cand > enter[w]:
+                continue
+            if end_score[v] + backoff[v] > top:
+                top = end_score[v] + backoff[v]
+                top_v = v
+        for w in range(1, n_words):
+            enter[w] = top + unigram[w]
+            enter_from[w] = end_link[top_v] if top_v >= 0 else -1
+        for j in range(n_ended):
+            v = ended[j]
+            if v > 0 and single_word:
+                continue
+            for k in range(pair_first[v], pair_first[v + 1]):
+                w = pair_next[k]
+                cand = end_score[v] + pair_logp[k]
+                if w > 0 and cand > enter[w]:
                     enter[w] = cand
                     enter_from[w] = end_link[v]
-            end_score[v] = _NEG
+        if top_v >= 0:
+            # Listed pairs of the best back-off source: its back-off term does not apply.
+            for k in range(pair_first[top_v], pair_first[top_v + 1]):
+                w = pair_next[k]
+                if w > 0:
+                    enter[w], enter_from[w] = _best_link(w, ended, n_ended, end_score, end_link, unigram,
+                                                         backoff, pair_first, pair_next, pair_logp,
+                                                         single_word, allow_empty)
+        enter[0], enter_from[0] = _best_link(0, ended, n_ended, end_score, end_link, unigram, backoff,
+                                             pair_first, pair_next, pair_logp, single_word, allow_empty)
+        for j in range(n_ended):
+            end_score[ended[j]] = _NEG
         for w in range(n_words):
             if enter[w] == _NEG or enter[w] < thr:
                 continue
