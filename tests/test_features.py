@@ -20,6 +20,7 @@ from wordspot.features import (
     lifter_weights,
     mel_filterbank,
     mel_to_hz,
+    warp_frequencies,
 )
 
 SR = 16000
@@ -253,3 +254,80 @@ def test_random_arrays_give_features_or_feature_error(arr):
     except FeatureError:
         return
     assert out.ndim == 2 and out.shape[1] == 39 and np.all(np.isfinite(out))
+
+
+# ----------------------------------------------------------------------------- CMVN, c0, warping
+
+
+def test_cvn_gives_zero_mean_unit_variance_per_column(rng):
+    # cepstral mean and variance normalisation: every column of an utterance standardised (definition)
+    y = vowel_like(rng, seconds=0.8) * np.linspace(0.3, 1.0, int(0.8 * SR))
+    s = FeatureSettings(cvn=True)
+    feats = compute_features(y, s).astype(np.float64)
+    np.testing.assert_allclose(feats.mean(axis=0), 0.0, atol=1e-4)
+    np.testing.assert_allclose(feats.std(axis=0), 1.0, atol=1e-4)
+    raw = compute_features(y, FeatureSettings(cmn=False)).astype(np.float64)
+    np.testing.assert_allclose(feats, (raw - raw.mean(axis=0)) / raw.std(axis=0), atol=1e-3)
+
+
+def test_cvn_keeps_digital_silence_finite_and_needs_cmn():
+    feats = compute_features(np.zeros(SR // 2), FeatureSettings(cvn=True))
+    assert np.all(np.isfinite(feats)) and np.all(np.abs(feats) < 1e-6)  # constant columns stay ~zero
+    with pytest.raises(FeatureError, match="cvn.*needs cmn=True"):
+        FeatureSettings(cvn=True, cmn=False)
+
+
+def test_dropping_static_c0_removes_only_that_column(rng):
+    y = vowel_like(rng, seconds=0.6)
+    full = compute_features(y, FeatureSettings(cmn=False))
+    s = FeatureSettings(cmn=False, static_c0=False)
+    assert s.dim == 38
+    np.testing.assert_array_equal(compute_features(y, s), full[:, 1:])
+
+
+def test_older_settings_dicts_keep_the_features_they_were_trained_with():
+    # a model file written before cvn and static_c0 existed was trained with neither
+    old = FeatureSettings().to_dict()
+    del old["cvn"], old["static_c0"]
+    s = FeatureSettings.from_dict(old)
+    assert s.cvn is False and s.static_c0 is True and s.dim == 39
+    new = FeatureSettings(cvn=True, static_c0=False)
+    assert FeatureSettings.from_dict(new.to_dict()) == new
+    assert json.loads(json.dumps(new.to_dict())) == new.to_dict()
+
+
+def test_warp_factor_one_gives_the_unwarped_features(rng):
+    y = vowel_like(rng, seconds=0.5)
+    s = FeatureSettings()
+    np.testing.assert_array_equal(compute_features(y, s, warp=1.0), compute_features(y, s))
+    np.testing.assert_array_equal(mel_filterbank(s, warp=1.0), mel_filterbank(s))
+
+
+def test_warp_map_is_linear_below_the_knee_and_keeps_the_band_edges():
+    f = np.linspace(0.0, 8000.0, 801)
+    for a in (0.88, 0.94, 1.06, 1.12):
+        w = warp_frequencies(f, a, upper=8000.0)
+        assert w[0] == 0.0 and abs(w[-1] - 8000.0) < 1e-9  # band edges stay put (piecewise-linear warp)
+        assert np.all(np.diff(w) > 0)  # increasing: the order of frequencies is kept
+        low = f <= 0.85 * 8000.0 * min(1.0, 1.0 / a)
+        np.testing.assert_allclose(w[low], a * f[low])
+    with pytest.raises(FeatureError, match="warp factor"):
+        compute_features(np.zeros(SR // 4), warp=0.0)
+
+
+@pytest.mark.parametrize("tone_hz", [800.0, 1500.0, 3000.0])
+def test_warping_moves_a_tone_to_the_expected_band(tone_hz):
+    # With warp a, energy at f Hz is filed where f*a would be (below the knee): a > 1 moves the
+    # peak band up, a < 1 down (vocal tract length perturbation; definition of the warp).
+    s = FeatureSettings()
+    t = np.arange(SR // 2) / SR
+    y = 0.3 * np.sin(2 * np.pi * tone_hz * t)
+    frames = np.lib.stride_tricks.sliding_window_view(y, 400)[::160] * np.hamming(400)
+    power = np.abs(np.fft.rfft(frames, n=512)) ** 2
+    centres = mel_to_hz(np.linspace(0, hz_to_mel(8000.0), 28))[1:-1]
+    peaks = {}
+    for a in (0.88, 1.0, 1.12):
+        band_energy = (power @ mel_filterbank(s, warp=a)).mean(axis=0)
+        peaks[a] = int(np.argmax(band_energy))
+        assert peaks[a] == int(np.argmin(np.abs(centres - a * tone_hz)))
+    assert peaks[0.88] < peaks[1.0] < peaks[1.12]

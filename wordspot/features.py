@@ -14,7 +14,17 @@ The pipeline for one waveform (all frames at once, frames x features):
    Wilpon 1987; c0 is left as it is);
 8. deltas and delta-deltas by linear regression over +-``delta_window`` frames
    ``d_t = sum_n n (c_{t+n} - c_{t-n}) / (2 sum_n n^2)``, the edge frames repeated;
-9. per-utterance mean normalisation of every column.
+9. per-utterance mean normalisation of every column (``cmn``), and optionally division by
+   each column's standard deviation (``cvn``: cepstral mean and variance normalisation);
+10. optionally the static c0 column dropped (``static_c0=False``; its deltas stay), since
+   c0 mostly follows loudness and recording level.
+
+Vocal tract length perturbation (for training-time augmentation): ``compute_features(...,
+warp=a)`` scales the frequency axis of the spectrum by ``a`` before the mel filters, so a
+talker's formants move up (``a > 1``) or down (``a < 1``); the warp is piecewise linear so
+that the top of the band still maps to the top (see :func:`warp_frequencies`). ``warp=1``
+gives exactly the unwarped features. The warp is not a setting a model carries: recognition
+always uses the unwarped features.
 
 The settings travel with a model (:meth:`FeatureSettings.to_dict`), so recognition always
 computes features the way training did.
@@ -42,6 +52,7 @@ __all__ = [
     "deltas",
     "lifter_weights",
     "LOG_FLOOR",
+    "warp_frequencies",
 ]
 
 #: Floor under the mel energies before the log, so silence gives a finite value.
@@ -74,6 +85,11 @@ class FeatureSettings:
         0: static cepstra only; 1: plus deltas; 2: plus delta-deltas.
     cmn : bool
         Subtract each utterance's mean from every feature column.
+    cvn : bool
+        Also divide every column by its standard deviation over the utterance (needs
+        ``cmn``); evens out how loud and how "bright" a talker is.
+    static_c0 : bool
+        Keep the static c0 column (False drops it; its deltas are kept).
     fmin : float >= 0
         Lowest filter edge in Hz.
     fmax : float or None
@@ -92,6 +108,8 @@ class FeatureSettings:
     delta_window: int = 2
     delta_order: int = 2
     cmn: bool = True
+    cvn: bool = False
+    static_c0: bool = True
     fmin: float = 0.0
     fmax: float | None = None
     mel_scale: str = "slaney"
@@ -103,14 +121,16 @@ class FeatureSettings:
             object.__setattr__(self, name, int(getattr(self, name)))
         for name in ("preemphasis", "window_ms", "hop_ms", "lifter", "fmin"):
             object.__setattr__(self, name, float(getattr(self, name)))
-        object.__setattr__(self, "cmn", bool(self.cmn))
+        for name in ("cmn", "cvn", "static_c0"):
+            object.__setattr__(self, name, bool(getattr(self, name)))
         object.__setattr__(self, "fmax", None if self.fmax is None else float(self.fmax))
         object.__setattr__(self, "mel_scale", str(self.mel_scale))
 
     @property
     def dim(self) -> int:
-        """Values per frame: ``n_cepstra * (1 + delta_order)`` (39 by default)."""
-        return self.n_cepstra * (1 + self.delta_order)
+        """Values per frame: ``n_cepstra * (1 + delta_order)`` (39 by default), one less
+        without the static c0."""
+        return self.n_cepstra * (1 + self.delta_order) - (0 if self.static_c0 else 1)
 
     @property
     def window_length(self) -> int:
@@ -145,6 +165,10 @@ class FeatureSettings:
     def from_dict(cls, data: Mapping[str, Any]) -> "FeatureSettings":
         """Build settings from :meth:`to_dict` output; missing keys take the defaults.
 
+        A dictionary from an older model, written before ``cvn`` and ``static_c0`` existed,
+        gets ``cvn=False`` and ``static_c0=True``: the features that model was trained on,
+        whatever today's defaults are.
+
         Raises
         ------
         FeatureError
@@ -158,7 +182,14 @@ class FeatureSettings:
             raise FeatureError(
                 f"unknown feature setting(s) {', '.join(unknown)}; known: {', '.join(sorted(known))}"
             )
-        return cls(**dict(data))
+        values = dict(data)
+        for name, old in _OLDER_MODEL_VALUES.items():
+            values.setdefault(name, old)
+        return cls(**values)
+
+
+#: Values that settings written before a setting existed stand for (kept by from_dict).
+_OLDER_MODEL_VALUES = {"cvn": False, "static_c0": True}
 
 
 def _is_int(value) -> bool:
@@ -179,8 +210,13 @@ def _validate(s: FeatureSettings) -> None:
     for name in ("preemphasis", "window_ms", "hop_ms", "lifter", "fmin"):
         if not _is_real(getattr(s, name)):
             raise bad(name, "must be a finite number")
-    if not isinstance(s.cmn, (bool, np.bool_)):
-        raise bad("cmn", "must be true or false")
+    for name in ("cmn", "cvn", "static_c0"):
+        if not isinstance(getattr(s, name), (bool, np.bool_)):
+            raise bad(name, "must be true or false")
+    if s.cvn and not s.cmn:
+        raise bad("cvn", "needs cmn=True (variance normalisation works on mean-normalised columns)")
+    if not s.static_c0 and s.delta_order == 0 and s.n_cepstra == 1:
+        raise bad("static_c0", "dropping c0 would leave no features (keep c0 or add deltas)")
     if s.sample_rate < 1000 or s.sample_rate > 192000:
         raise bad("sample_rate", "must be between 1000 and 192000 Hz (16000 is usual)")
     if not 0.0 <= s.preemphasis < 1.0:
@@ -250,8 +286,38 @@ def mel_to_hz(mels, *, scale: str = "slaney") -> np.ndarray:
     return np.where(m >= min_log_mel, logpart, f_sp * m)
 
 
-def mel_filterbank(settings: FeatureSettings) -> np.ndarray:
+def warp_frequencies(frequencies, factor: float, *, upper: float, knee: float = 0.85) -> np.ndarray:
+    """Piecewise-linear frequency warp for vocal tract length perturbation.
+
+    ``f -> factor * f`` up to a knee at ``knee * upper * min(1, 1/factor)`` Hz, then a
+    straight line to ``upper -> upper``, so the warped axis still ends at the top of the
+    band (common practice for training-time vocal tract length warping). ``factor = 1`` is
+    the identity; the map is increasing for any factor > 0.
+
+    Parameters
+    ----------
+    frequencies : array of Hz in [0, upper]
+    factor : float > 0
+        Above 1 moves spectral features (formants, tones) up; below 1 moves them down.
+    upper : float > 0
+        Top of the band in Hz (the Nyquist frequency for a filterbank).
+    """
+    f = np.asarray(frequencies, dtype=np.float64)
+    if not (_is_real(factor) and factor > 0):
+        raise FeatureError(f"warp factor must be a number > 0 (1 = no warp), got {factor!r}")
+    if factor == 1.0:
+        return f.copy()
+    bend = knee * upper * min(1.0, 1.0 / factor)
+    slope = (upper - factor * bend) / (upper - bend)
+    return np.where(f <= bend, factor * f, factor * bend + slope * (f - bend))
+
+
+def mel_filterbank(settings: FeatureSettings, *, warp: float = 1.0) -> np.ndarray:
     """Triangular mel filters over the FFT bins, each normalised to unit area in Hz.
+
+    With ``warp != 1`` every FFT bin is placed at its warped frequency
+    (:func:`warp_frequencies` up to the Nyquist frequency) before the triangles are laid
+    over it: energy at ``f`` Hz lands in the band around ``warp * f``.
 
     Returns
     -------
@@ -260,6 +326,8 @@ def mel_filterbank(settings: FeatureSettings) -> np.ndarray:
     """
     s = settings
     bin_hz = np.linspace(0.0, s.sample_rate / 2.0, s.n_fft // 2 + 1)
+    if warp != 1.0:
+        bin_hz = warp_frequencies(bin_hz, warp, upper=s.sample_rate / 2.0)
     lo, hi = hz_to_mel(s.fmin, scale=s.mel_scale), hz_to_mel(s.upper_frequency, scale=s.mel_scale)
     edges_hz = mel_to_hz(np.linspace(lo, hi, s.n_mels + 2), scale=s.mel_scale)
     left, centre, right = edges_hz[:-2, None], edges_hz[1:-1, None], edges_hz[2:, None]
@@ -345,7 +413,7 @@ def _check_wave(wave, settings: FeatureSettings) -> np.ndarray:
     return arr
 
 
-def compute_features(wave, settings: FeatureSettings | None = None) -> np.ndarray:
+def compute_features(wave, settings: FeatureSettings | None = None, *, warp: float = 1.0) -> np.ndarray:
     """Compute MFCC features (with deltas and mean normalisation as ``settings`` say).
 
     Parameters
@@ -354,27 +422,35 @@ def compute_features(wave, settings: FeatureSettings | None = None) -> np.ndarra
         Mono samples at ``settings.sample_rate``, n >= one window.
     settings : FeatureSettings, optional
         Defaults to ``FeatureSettings()``.
+    warp : float > 0
+        Frequency warp factor for training-time augmentation (1: none; see
+        :func:`mel_filterbank`).
 
     Returns
     -------
     np.ndarray, shape (T, settings.dim), float32
         One row per frame, ``T = 1 + (n - window_length) // hop_length``; columns are the
-        cepstra c0..c{n_cepstra-1}, then their deltas, then delta-deltas.
+        cepstra c0..c{n_cepstra-1} (c1.. when ``static_c0`` is off), then their deltas,
+        then delta-deltas.
 
     Raises
     ------
     FeatureError
-        Not a 1-D real array, shorter than one window, NaN or infinite samples.
+        Not a 1-D real array, shorter than one window, NaN or infinite samples, or a warp
+        factor that is not a number > 0.
     """
     s = FeatureSettings() if settings is None else settings
     y = _check_wave(wave, s)
+    if not (_is_real(warp) and warp > 0):
+        raise FeatureError(f"warp factor must be a number > 0 (1 = no warp), got {warp!r}")
+    warp = float(warp)
     if s.preemphasis > 0:
         y = np.concatenate([y[:1], y[1:] - s.preemphasis * y[:-1]])
     window = np.hamming(s.window_length)  # symmetric: 0.54 - 0.46 cos(2 pi n / (N - 1))
     frames = _frames(y, s.window_length, s.hop_length) * window
     spectrum = np.fft.rfft(frames, n=s.n_fft, axis=1)
     power = spectrum.real**2 + spectrum.imag**2
-    mel = power @ _cached_filterbank(s)
+    mel = power @ _cached_filterbank(s, warp)
     logmel = np.log(np.maximum(mel, LOG_FLOOR))
     ceps = scipy.fft.dct(logmel, type=2, norm="ortho", axis=1)[:, : s.n_cepstra]
     ceps *= lifter_weights(s.n_cepstra, s.lifter)
@@ -382,25 +458,36 @@ def compute_features(wave, settings: FeatureSettings | None = None) -> np.ndarra
     for _ in range(s.delta_order):
         parts.append(deltas(parts[-1], window=s.delta_window))
     feats = np.concatenate(parts, axis=1) if len(parts) > 1 else ceps
+    if not s.static_c0:
+        feats = feats[:, 1:]
     if s.cmn:
         feats = feats - feats.mean(axis=0, keepdims=True)
+    if s.cvn:
+        sd = feats.std(axis=0, keepdims=True)
+        # a constant column (digital silence) stays zero instead of dividing by zero
+        feats = feats / np.where(sd > _CVN_MIN_SD, sd, 1.0)
     return np.ascontiguousarray(feats, dtype=np.float32)
 
 
-_FILTERBANKS: dict[FeatureSettings, np.ndarray] = {}
+#: Columns whose standard deviation is below this are left undivided by ``cvn``.
+_CVN_MIN_SD = 1e-8
+
+_FILTERBANKS: dict[tuple[FeatureSettings, float], np.ndarray] = {}
 
 
-def _cached_filterbank(settings: FeatureSettings) -> np.ndarray:
-    bank = _FILTERBANKS.get(settings)
+def _cached_filterbank(settings: FeatureSettings, warp: float = 1.0) -> np.ndarray:
+    key = (settings, warp)
+    bank = _FILTERBANKS.get(key)
     if bank is None:
-        if len(_FILTERBANKS) > 16:
+        if len(_FILTERBANKS) > 32:
             _FILTERBANKS.clear()
-        bank = _FILTERBANKS[settings] = mel_filterbank(settings)
+        bank = _FILTERBANKS[key] = mel_filterbank(settings, warp=warp)
     return bank
 
 
-def file_features(path, settings: FeatureSettings | None = None) -> np.ndarray:
-    """Load an audio file at the settings' rate and compute its features.
+def file_features(path, settings: FeatureSettings | None = None, *, warp: float = 1.0) -> np.ndarray:
+    """Load an audio file at the settings' rate and compute its features (``warp``: see
+    :func:`compute_features`).
 
     Returns
     -------
@@ -415,4 +502,4 @@ def file_features(path, settings: FeatureSettings | None = None) -> np.ndarray:
 
     s = FeatureSettings() if settings is None else settings
     wave = load_audio(path, sample_rate=s.sample_rate)
-    return compute_features(wave, s)
+    return compute_features(wave, s, warp=warp)
