@@ -73,7 +73,7 @@ class DecoderSettings:
 
     beam: float = 800.0
     word_end_beam: float = 600.0
-    max_active: int = 4000
+    max_active: int = 2000
     grammar_weight: float = 1.0
     insertion_penalty: float = 0.0
     single_word: bool = False
