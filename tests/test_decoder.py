@@ -225,7 +225,7 @@ def test_silence_only_gives_empty_result(rng):
     model = tiny_model(rng, ENTRIES)
     frames = frames_along(model, pause_pdfs(model, 80), rng)
     got = recognize_features(model, frames)
-    assert got.words == [] and got.reason.startswith("silence only")
+    assert got.words == [] and got.reason.startswith("silence or noise only")
     assert np.isfinite(got.score)
 
 
@@ -235,7 +235,7 @@ def test_no_complete_path_gives_empty_result(rng):
     model = tiny_model(rng, ENTRIES)
     path = pause_pdfs(model, 6) + word_pdfs(model, ["B", "AA", "T"])[:12]
     got = recognize_features(model, frames_along(model, path, rng), settings=DecoderSettings(beam=10.0))
-    assert got.words == [] and got.reason.startswith("noise only or unclear")
+    assert got.words == [] and got.reason.startswith("no complete path")
 
 
 def test_bad_features_and_settings_raise_clear_errors(rng):
@@ -261,6 +261,10 @@ def test_files_batch_continues_past_failures(rng, tmp_path):
     broken = tmp_path / "broken.wav"
     broken.write_bytes(b"not audio at all")
     missing = tmp_path / "missing.wav"
+    tiny = tmp_path / "click.wav"
+    sf.write(tiny, 0.05 * rng.normal(size=480).astype(np.float32), 16000)  # 30 ms
+    clipped = recognize_file(model, tiny)
+    assert clipped.ok and clipped.words == [] and clipped.reason.startswith("too short: 0.030 s")
     results = recognize_files(model, [good, broken, missing])
     assert [r.ok for r in results] == [True, False, False]
     assert "broken.wav" in results[1].error and "missing.wav" in results[2].error

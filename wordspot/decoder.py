@@ -45,8 +45,8 @@ __all__ = [
 CONFIDENCE_SCALE = 4.0
 
 REASON_TOO_SHORT = "too short"
-REASON_SILENCE = "silence only"
-REASON_NO_PATH = "noise only or unclear"
+REASON_SILENCE = "silence or noise only"
+REASON_NO_PATH = "no complete path"
 
 
 @dataclass(frozen=True)
@@ -245,7 +245,7 @@ class Recognizer:
         if status != decode_kernels.OK:
             result.reason = (
                 f"{REASON_NO_PATH}: no path from the entry pause through a word to the exit "
-                "pause survived the search (a wider --beam may help)"
+                "pause survived the search (unclear audio or noise; a wider --beam may help)"
             )
             return result
         result.score = float(final)
@@ -282,13 +282,24 @@ class Recognizer:
 
     def decode_file(self, path) -> Recognition:
         """Load, extract features and recognise; errors are recorded, never raised."""
+        from wordspot.audio import MIN_DURATION, audio_duration, load_audio
+
         name = os.fspath(path)
         try:
-            from wordspot.audio import load_audio
-
             wave = load_audio(path, sample_rate=self.features.sample_rate)
             frames = compute_features(wave, self.features)
         except WordspotError as exc:
+            # A readable file that is merely too short is a result, not a failure.
+            try:
+                seconds = audio_duration(path)
+            except (WordspotError, OSError, ValueError, RuntimeError):
+                seconds = 0.0
+            if 0.0 < seconds < max(MIN_DURATION, self.network.min_frames * self.hop):
+                return Recognition(
+                    path=name, duration=seconds,
+                    reason=f"{REASON_TOO_SHORT}: {seconds:.3f} s of audio, fewer than the shortest "
+                    f"word with the pauses around it needs ({self.network.min_frames} frames)",
+                )
             return Recognition(path=name, error=str(exc))
         except (OSError, ValueError, RuntimeError) as exc:  # anything the readers let through
             return Recognition(path=name, error=f"{name}: cannot read the audio ({exc})")
