@@ -44,7 +44,8 @@ import compare_wordspot as ws  # noqa: E402
 
 __all__ = ["main"]
 
-HMM_GRID = [(s, 1) for s in (6, 10, 14)]
+HMM_GRID = [(s, 1) for s in (8, 12, 16)]
+QUICK_HMM_GRID = [(12, 1)]
 DTW_BANDS = (None, 0.25)
 DTW_PER_WORD = (3, 8)
 GOAL_WER_FACTOR = 0.5
@@ -69,22 +70,22 @@ def _errors(refs, hyps) -> tuple[int, int]:
 # ----------------------------------------------------------------------------- dev tuning
 
 
-def _hmm_dev(train_ex, dev, feats, n_jobs):
+def _hmm_dev(train_ex, dev, feats, n_jobs, grid):
     from joblib import Parallel, delayed
 
     def one(states, mix):
         rec = WholeWordHMM(n_states=states, n_mix=mix).fit(train_ex)
         return sum(rec.predict(feats[it.path]) == " ".join(it.words) for it in dev)
 
-    correct = Parallel(n_jobs=n_jobs)(delayed(one)(s, m) for s, m in HMM_GRID)
-    return {cfg: c / len(dev) for cfg, c in zip(HMM_GRID, correct)}
+    correct = Parallel(n_jobs=n_jobs)(delayed(one)(s, m) for s, m in grid)
+    return {cfg: c / len(dev) for cfg, c in zip(grid, correct)}
 
 
 def _dtw_query(q, stacks, bands):
     return [dtw_costs(q, st, ed, b) for (st, ed), b in zip(stacks, bands)]
 
 
-def _dtw_dev(train_ex, dev, feats, n_jobs):
+def _dtw_dev(train_ex, dev, feats, n_jobs, bands):
     """Dev accuracy of every DTW setting, sharing DTW runs between settings.
 
     Greedy medoid picks are incremental (the first k of the largest set are the k-medoid
@@ -96,38 +97,41 @@ def _dtw_dev(train_ex, dev, feats, n_jobs):
     kmax = max(DTW_PER_WORD)
     pair = Parallel(n_jobs=n_jobs)(
         delayed(pairwise_costs)([np.asarray(s, dtype=np.float64) for s in train_ex[w]], b)
-        for b in DTW_BANDS for w in words)
-    sets = {}  # (band, norm) -> (templates, labels, rank within word)
-    for bi, band in enumerate(DTW_BANDS):
+        for b in bands for w in words)
+    # per band: the union of the largest medoid sets of both cost normalisations
+    per_band, ranks = [], {}
+    for bi, band in enumerate(bands):
+        chosen: dict[tuple[str, int], int] = {}
         for norm in (True, False):
-            tpl, lab, rank = [], [], []
             for wi, w in enumerate(words):
-                seqs = train_ex[w]
                 d = pair[bi * len(words) + wi]
                 if norm:
-                    lens = np.array([len(x) for x in seqs])
+                    lens = np.array([len(x) for x in train_ex[w]])
                     d = normalised(d, lens[:, None], lens[None, :])
                 for r, i in enumerate(medoids(d, kmax)):
-                    tpl.append(np.asarray(seqs[i], dtype=np.float64))
-                    lab.append(w)
-                    rank.append(r)
-            sets[(band, norm)] = (tpl, np.array(lab), np.array(rank))
-    keys = list(sets)
-    stacks = [(np.concatenate(sets[k][0]), np.cumsum([0] + [len(t) for t in sets[k][0]])) for k in keys]
+                    chosen.setdefault((w, i), len(chosen))
+                    ranks[(band, norm, w, i)] = r
+        keys = sorted(chosen, key=chosen.get)
+        tpl = [np.asarray(train_ex[w][i], dtype=np.float64) for w, i in keys]
+        per_band.append((keys, np.concatenate(tpl), np.cumsum([0] + [len(t) for t in tpl])))
     raw = Parallel(n_jobs=n_jobs)(
-        delayed(_dtw_query)(feats[it.path], stacks, [k[0] for k in keys]) for it in dev)
+        delayed(_dtw_query)(feats[it.path], [(st, ed) for _, st, ed in per_band], bands)
+        for it in dev)
     truth = [" ".join(it.words) for it in dev]
     acc = {}
-    for ki, (band, norm) in enumerate(keys):
-        tpl, lab, rank = sets[(band, norm)]
-        lens = np.array([len(t) for t in tpl])
-        for per_word in DTW_PER_WORD:
-            good = 0
-            for it, r, t in zip(dev, raw, truth):
-                c = normalised(r[ki], lens, len(feats[it.path])) if norm else r[ki].copy()
-                c[rank >= per_word] = np.inf
-                good += lab[int(np.argmin(c))] == t
-            acc[(band, norm, per_word)] = good / len(dev)
+    for bi, band in enumerate(bands):
+        keys, _, edges = per_band[bi]
+        lab = np.array([w for w, _ in keys])
+        lens = np.diff(edges)
+        for norm in (True, False):
+            rank = np.array([ranks.get((band, norm, w, i), kmax) for w, i in keys])
+            for per_word in DTW_PER_WORD:
+                good = 0
+                for it, r, t in zip(dev, raw, truth):
+                    c = normalised(r[bi], lens, len(feats[it.path])) if norm else r[bi].copy()
+                    c[rank >= per_word] = np.inf
+                    good += lab[int(np.argmin(c))] == t
+                acc[(band, norm, per_word)] = good / len(dev)
     return acc
 
 
@@ -210,9 +214,10 @@ def run(args) -> str:
         dev_train = by_word([it for it in train if it.speaker not in devs], feats)
         dev_eval = takes_subset([it for it in train_all if it.speaker in devs], 1)
         t0 = time.perf_counter()
-        hmm_acc = _hmm_dev(dev_train, dev_eval, feats, n_jobs)
+        hmm_acc = _hmm_dev(dev_train, dev_eval, feats, n_jobs, QUICK_HMM_GRID if args.quick else HMM_GRID)
         hmm_cfg = _pick(hmm_acc, cost=lambda k: (k[0] * k[1], k[0]))
-        dtw_acc = _dtw_dev(dev_train, dev_eval, feats, n_jobs)
+        log(f"[{label}] hmmlearn dev tuning {time.perf_counter() - t0:.1f} s")
+        dtw_acc = _dtw_dev(dev_train, dev_eval, feats, n_jobs, (None,) if args.quick else DTW_BANDS)
         dtw_cfg = _pick(dtw_acc, cost=lambda k: (k[2], k[0] is not None))
         log(f"[{label}] dev tuning in {time.perf_counter() - t0:.1f} s: hmm {hmm_cfg}, dtw {dtw_cfg}")
         dev_lines.append((label, len(dev_eval), hmm_acc, hmm_cfg, dtw_acc, dtw_cfg))
@@ -250,6 +255,7 @@ def run(args) -> str:
             log(f"[{label}] {name}: " + ", ".join(f"{k} {100 * e / n:.1f}%" for k, (e, n) in res.items()))
         last = (train, systems, model)
 
+    failures: list[str] = []
     # ---- recognition speed, one core, same files, from audio file to word
     train, systems, model = last
     speed_items = test[:: max(1, len(test) // (20 if args.quick else 60))]
@@ -258,52 +264,73 @@ def run(args) -> str:
     from wordspot.features import FeatureSettings, file_features
 
     fs = FeatureSettings()
+    def one_pass(name, rec, paths):
+        if name == "wordspot":
+            return [rec.decode_file(p) for p in paths]
+        return [rec.predict(file_features(p, fs)) for p in paths]
+
+    for name, (_, rec) in systems.items():  # warm-up (compiled kernels, caches)
+        one_pass(name, rec, speed_paths[:2])
     speed = {}
-    for name, (_, rec) in systems.items():
-        if name == "wordspot":
-            fn = lambda rec=rec: [rec.decode_file(p) for p in speed_paths]  # noqa: E731
-        else:
-            fn = lambda rec=rec: [rec.predict(file_features(p, fs)) for p in speed_paths]  # noqa: E731
-        if name == "wordspot":
-            [rec.decode_file(p) for p in speed_paths[:2]]
-        else:
-            [rec.predict(file_features(p, fs)) for p in speed_paths[:2]]
-        t0 = time.perf_counter()
-        fn()
-        speed[name] = time.perf_counter() - t0
-        log(f"speed {name}: {speed[name]:.2f} s for {len(speed_paths)} files")
+    for _round in range(2):  # systems interleaved, best of two rounds (the machine is shared)
+        for name, (_, rec) in systems.items():
+            t0 = time.perf_counter()
+            one_pass(name, rec, speed_paths)
+            el = time.perf_counter() - t0
+            speed[name] = min(el, speed.get(name, el))
+            log(f"speed {name}: {el:.2f} s for {len(speed_paths)} files")
 
     # ---- vocabulary growth (wordspot, free word loop and single word)
-    sizes = (25, 250, 2500)
-    lexicons = ws.growth_lexicons(model, sizes)
     growth = []
     grow_paths = speed_paths[: (10 if args.quick else 30)]
-    for size, lex in zip(sizes, lexicons):
-        rec = ws.recognizer(model, single_word=True, lexicon=lex)
-        rec.decode_file(grow_paths[0])
-        t0 = time.perf_counter()
-        out = [rec.decode_file(p) for p in grow_paths]
-        secs = time.perf_counter() - t0
-        ok = sum(tuple(o.words) == it.words for o, it in zip(out, speed_items))
-        growth.append((size, len(lex.words), secs, ok))
-        log(f"growth {size}: {secs:.2f} s, {ok}/{len(grow_paths)} right")
+    try:
+        sizes = (25, 250, 2500)
+        lexicons = ws.growth_lexicons(model, sizes)
+        for size, lex in zip(sizes, lexicons):
+            rec = ws.recognizer(model, single_word=True, lexicon=lex)
+            rec.decode_file(grow_paths[0])
+            t0 = time.perf_counter()
+            out = [rec.decode_file(p) for p in grow_paths]
+            secs = time.perf_counter() - t0
+            ok = sum(tuple(o.words) == it.words for o, it in zip(out, speed_items))
+            growth.append((size, len(lex.words), secs, ok))
+            log(f"growth {size}: {secs:.2f} s, {ok}/{len(grow_paths)} right")
+
+    except Exception as exc:  # a late failure must not lose the WER tables
+        log(f"vocabulary growth failed: {exc!r}")
+        failures.append(f"vocabulary growth: {exc!r}")
 
     # ---- Gaussian scoring throughput vs numpy matmul (same dtype and shapes)
-    score, comps, dim, dtype = ws.gaussian_scorer(systems["wordspot"][1])
-    block = np.concatenate([feats[it.path] for it in test])[:2000]
-    t_score = best_time(lambda: score(block))
-    flops = 2.0 * len(block) * (2 * dim) * comps
-    rate_same = matmul_flop_rate(len(block), 2 * dim, comps, dtype)
-    rate_big = matmul_flop_rate(1024, 1024, 1024, dtype)
-    gauss = (flops / t_score, rate_same, rate_big, len(block), comps, dim, str(dtype))
+    gauss = None
+    try:
+        score, comps, dim, dtype = ws.gaussian_scorer(systems["wordspot"][1])
+        block = np.concatenate([feats[it.path] for it in test])[:2000]
+        t_score = best_time(lambda: score(block))
+        flops = 2.0 * len(block) * (2 * dim) * comps
+        rate_same = matmul_flop_rate(len(block), 2 * dim, comps, dtype)
+        rate_big = matmul_flop_rate(1024, 1024, 1024, dtype)
+        gauss = (flops / t_score, rate_same, rate_big, len(block), comps, dim, str(dtype))
+
+    except Exception as exc:  # a late failure must not lose the WER tables
+        log(f"Gaussian scoring failed: {exc!r}")
+        failures.append(f"Gaussian scoring: {exc!r}")
 
     # ---- profile of wordspot recognition
-    rec = systems["wordspot"][1]
-    prof = profile_top(lambda: [rec.decode_file(p) for p in speed_paths], top=12)
+    prof = []
+    try:
+        rec = systems["wordspot"][1]
+        prof = profile_top(lambda: [rec.decode_file(p) for p in speed_paths], top=12)
+
+    except Exception as exc:  # a late failure must not lose the WER tables
+        log(f"profile failed: {exc!r}")
+        failures.append(f"profile: {exc!r}")
 
     total = time.perf_counter() - t_start
-    return render(args, info, rows, dev_lines, speed, len(speed_paths), audio_s, growth,
+    text = render(args, info, rows, dev_lines, speed, len(speed_paths), audio_s, growth,
                   len(grow_paths), gauss, prof, total)
+    if failures:
+        text += "\n## Sections that failed\n\n" + "\n".join(f"- {f}" for f in failures) + "\n"
+    return text
 
 
 def _pct(e, n):
@@ -349,11 +376,13 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
     sp = speed["hmmlearn whole-word"] / speed["wordspot"]
     goals.append((f"recognition {sp:.1f}x faster than the hmmlearn recogniser (goal >= {GOAL_SPEEDUP:g}x)",
                   sp >= GOAL_SPEEDUP))
-    g = growth[-1][2] / growth[0][2]
-    goals.append((f"25 -> 2,500 words costs {g:.1f}x the time (goal <= {GOAL_GROWTH:g}x)", g <= GOAL_GROWTH))
-    frac = gauss[0] / gauss[1]
-    goals.append((f"Gaussian scoring at {100 * frac:.0f}% of numpy's matmul rate on the same shapes "
-                  f"(goal >= {100 * GOAL_GAUSS:.0f}%)", frac >= GOAL_GAUSS))
+    if len(growth) == 3:
+        g = growth[-1][2] / growth[0][2]
+        goals.append((f"25 -> 2,500 words costs {g:.1f}x the time (goal <= {GOAL_GROWTH:g}x)", g <= GOAL_GROWTH))
+    if gauss is not None:
+        frac = gauss[0] / gauss[1]
+        goals.append((f"Gaussian scoring at {100 * frac:.0f}% of numpy's matmul rate on the same shapes "
+                      f"(goal >= {100 * GOAL_GAUSS:.0f}%)", frac >= GOAL_GAUSS))
     L.append("## Goals")
     L.append("")
     L.append("| goal | met |")
@@ -383,6 +412,8 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
     L.append("")
     L.append("## Gaussian scoring throughput")
     L.append("")
+    if gauss is None:
+        gauss = (float("nan"), float("nan"), float("nan"), 0, 0, 0, "-")
     L.append(f"{gauss[3]} frames x {gauss[4]} Gaussians x {gauss[5]} dimensions, {gauss[6]}; FLOPs counted "
              "as those of the equivalent product (2 x frames x 2D x Gaussians); the timed call also "
              "does the log-sum-exp over each mixture.")
