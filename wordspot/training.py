@@ -48,7 +48,7 @@ from wordspot.gmm import (
     update_mixtures,
 )
 from wordspot.grammar import count_bigrams
-from wordspot.hmm import forward_backward
+from wordspot.hmm import Posteriors, graph_arrays
 from wordspot.model import AcousticModel
 from wordspot.progress import ProgressBar
 from wordspot.training_data import CHUNK_SIZE, Skipped, TrainingItem, prepare_items
@@ -83,6 +83,13 @@ class TrainingConfig:
         Processes for feature extraction and re-estimation.
     seed : int
         Seeds the direction (sign per dimension) of the mean offsets when splitting.
+    prune : float >= 0
+        Frames whose probability of belonging to a mixture is below this add nothing to
+        that mixture's statistics (saves time; 0 keeps everything).
+    warp_factors : tuple of float > 0
+        Frequency warp factors for vocal tract length perturbation: every recording is
+        trained on once per factor (see :func:`wordspot.training_data.prepare_items`);
+        ``(1.0,)`` is plain training. Recognition always uses unwarped features.
     """
 
     mixtures: tuple[int, ...] = (1, 2, 4, 8)
@@ -94,6 +101,8 @@ class TrainingConfig:
     pause_seconds: float = 0.15
     jobs: int = 1
     seed: int = 0
+    prune: float = 1e-4
+    warp_factors: tuple[float, ...] = (1.0,)
 
     def __post_init__(self) -> None:
         m = tuple(self.mixtures)
@@ -107,8 +116,15 @@ class TrainingConfig:
                 raise TrainingError(f"{name} must be a whole number >= 1, got {v!r}")
         if not (0 < self.variance_floor < 1):
             raise TrainingError(f"variance_floor must be in (0, 1) (0.01 is usual), got {self.variance_floor!r}")
-        if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0:
-            raise TrainingError("min_occupancy, transition_floor and pause_seconds must be >= 0")
+        w = tuple(self.warp_factors)
+        if not w or any(isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating))
+                        or not (0.5 <= float(x) <= 2.0) for x in w) or len(set(w)) != len(w):
+            raise TrainingError(
+                f"warp_factors must be distinct numbers between 0.5 and 2 (for example 0.9 1.0 1.1), got {self.warp_factors!r}"
+            )
+        object.__setattr__(self, "warp_factors", tuple(float(x) for x in w))
+        if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
+            raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
 
     @property
     def total_passes(self) -> int:
@@ -170,49 +186,83 @@ class _PassResult:
     unit_frames: np.ndarray
 
 
-def _utterance_pass(item_frames, graph, scoring, n_comp: int, units: UnitSet, result: _PassResult, k: int):
+class _GraphCache:
+    """Per-chunk work that depends only on a graph (utterances with the same words share it)."""
+
+    def __init__(self, graph, units: UnitSet, n_comp: int):
+        self.graph = refresh_graph(graph, units)
+        self.pdfs, self.local = np.unique(graph.pdf, return_inverse=True)
+        self.cols = (self.pdfs[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
+        self.arrays = graph_arrays(self.graph)
+        g = self.graph
+        self.self_count = np.zeros(g.n_states)
+        self.arc_count = np.zeros(g.n_arcs)
+        self.init_count = np.zeros(g.n_states)
+        self.final_count = np.zeros(g.n_states)
+
+
+def _utterance_pass(item_frames, cache: _GraphCache, scoring, n_comp: int, result: _PassResult,
+                    k: int, prune: float):
     """Add one utterance's statistics into ``result`` (its log-likelihood into slot k)."""
     x = np.ascontiguousarray(item_frames, dtype=np.float64)
-    graph = refresh_graph(graph, units)
-    pdfs, local = np.unique(graph.pdf, return_inverse=True)
     w, c = scoring
-    cols = (pdfs[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
-    comp = kernels.score_components(x, np.ascontiguousarray(w[:, cols]), np.ascontiguousarray(c[cols]))
+    pdfs, local = cache.pdfs, cache.local
+    comp = kernels.score_components(x, np.ascontiguousarray(w[:, cache.cols]), np.ascontiguousarray(c[cache.cols]))
     pdf_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], pdfs.size, n_comp))
-    post = forward_backward(graph, pdf_ll[:, local])
-    result.loglik[k] = post.loglik
-    if not np.isfinite(post.loglik):
+    state_ll = np.ascontiguousarray(pdf_ll[:, local])
+    self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
+    total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
+    result.loglik[k] = total
+    if not np.isfinite(total):
         return
+    beta = kernels.backward(state_ll, self_logp, src, dst, arc_logp, final_logp)
+    gamma = np.exp(alpha + beta - total)
+    counts = kernels.transition_counts(state_ll, alpha, beta, total, self_logp, src, dst, arc_logp,
+                                       init_logp, final_logp)
+    cache.self_count += counts[0]
+    cache.arc_count += counts[1]
+    cache.init_count += counts[2]
+    cache.final_count += counts[3]
     pdf_gamma = np.zeros((x.shape[0], pdfs.size))
-    np.add.at(pdf_gamma.T, local, post.gamma.T)
+    np.add.at(pdf_gamma.T, local, gamma.T)
+    if prune > 0:
+        pdf_gamma[pdf_gamma < prune] = 0.0  # the moment sums skip these (frame, mixture) pairs
     occ, first, second = kernels.accumulate_moments(x, comp_post, pdf_gamma)
     result.stats.occupancy[pdfs] += occ
     result.stats.first[pdfs] += first
     result.stats.second[pdfs] += second
-    result.trans_counts += parameter_counts(graph, post, result.trans_counts.shape[0])
-    np.add.at(result.unit_frames, graph.unit, post.gamma.sum(axis=0))
+    np.add.at(result.unit_frames, cache.graph.unit, gamma.sum(axis=0))
 
 
-def _chunk_pass(chunk, mix: Mixtures, units: UnitSet) -> _PassResult:
+def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _PassResult:
     """Summed statistics of a chunk of (frames, graph) pairs, in order."""
+    n_params = n_transition_params(units.n_units)
     result = _PassResult(
         MixtureStats.zeros(mix.n_pdfs, mix.n_components, mix.dim),
-        np.zeros(n_transition_params(units.n_units)),
+        np.zeros(n_params),
         np.full(len(chunk), -np.inf),
         np.zeros(units.n_units),
     )
     scoring = scoring_matrix(mix)
+    caches: dict[int, _GraphCache] = {}
     for k, (frames, graph) in enumerate(chunk):
-        _utterance_pass(frames, graph, scoring, mix.n_components, units, result, k)
+        cache = caches.get(id(graph))
+        if cache is None:
+            cache = caches[id(graph)] = _GraphCache(graph, units, mix.n_components)
+        _utterance_pass(frames, cache, scoring, mix.n_components, result, k, prune)
+    for cache in caches.values():  # insertion order: the same in every process
+        post = Posteriors(0.0, np.zeros((0, 0)), cache.self_count, cache.arc_count,
+                          cache.init_count, cache.final_count)
+        result.trans_counts += parameter_counts(cache.graph, post, n_params)
     return result
 
 
-def _run_pass(chunks, mix, units, parallel, label, quiet) -> _PassResult:
+def _run_pass(chunks, mix, units, parallel, label, quiet, prune) -> _PassResult:
     bar = ProgressBar(sum(len(c) for c in chunks), label, quiet=quiet)
     if parallel is None:
-        gen = (_chunk_pass(c, mix, units) for c in chunks)
+        gen = (_chunk_pass(c, mix, units, prune) for c in chunks)
     else:
-        gen = parallel(delayed(_chunk_pass)(c, mix, units) for c in chunks)
+        gen = parallel(delayed(_chunk_pass)(c, mix, units, prune) for c in chunks)
     total = None
     lls = []
     for part in gen:  # in chunk order, whatever the number of processes
@@ -315,7 +365,7 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
             chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]]
                       for i in range(0, len(items), CHUNK_SIZE)]
             label = f"pass {n_pass}/{config.total_passes} ({n_comp} mix)"
-            res = _run_pass(chunks, mix, units, parallel, label, quiet)
+            res = _run_pass(chunks, mix, units, parallel, label, quiet, config.prune)
             bad = ~np.isfinite(res.loglik)
             if bad.any():
                 for k in np.flatnonzero(bad):
@@ -386,7 +436,8 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         raise TrainingError(f"{manifest or 'manifest'}: lists no recordings to train on")
     check_manifest(utterances, lexicon, manifest=manifest)
     units = default_unit_set(sorted(lexicon.units_used()))
-    items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet)
+    items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
+                                   warps=config.warp_factors)
     if not items:
         raise TrainingError(
             f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
@@ -416,6 +467,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         "mixture_schedule": [int(k) for k in config.mixtures],
         "seconds": round(summary.seconds, 2),
         "seed": int(config.seed),
+        "warp_factors": list(config.warp_factors),
         "unseen_units": list(summary.unseen_units),
     }
     model = AcousticModel(features=settings, units=units, mixtures=mix, lexicon=lexicon,

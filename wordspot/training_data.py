@@ -8,6 +8,11 @@ kept in memory for all passes. Each utterance's chain is
 composed into one :class:`~wordspot.graph.StateGraph`. Files that fail to load and
 utterances too short for their chain are skipped with a :class:`TrainingWarning` naming
 the file; they are listed in the training summary.
+
+Frequency-warp augmentation (vocal tract length perturbation): with ``warps=(0.9, 1.0,
+1.1)`` every utterance gives one item per factor, its features computed with the mel
+filterbank's frequency axis scaled by that factor (:func:`wordspot.features.compute_features`),
+all with the same chain. Items come out warp by warp, in utterance order within each.
 """
 
 from __future__ import annotations
@@ -64,14 +69,14 @@ def chain_slots(words, lexicon, units: UnitSet) -> list:
     return slots
 
 
-def _features_task(paths, settings):
+def _features_task(paths, settings, warp=1.0):
     """Features of several files; failures and warnings returned, not raised."""
     out = []
     for path in paths:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
-                feats = file_features(path, settings)
+                feats = file_features(path, settings, warp=warp)
                 error = None
             except (AudioError, FeatureError) as exc:
                 feats, error = None, str(exc)
@@ -80,8 +85,9 @@ def _features_task(paths, settings):
     return out
 
 
-def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True):
-    """Features of every file, or the error that stopped it.
+def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True,
+                     warp: float = 1.0):
+    """Features of every file (frequency axis warped by ``warp``), or the error that stopped it.
 
     Returns
     -------
@@ -94,10 +100,10 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
     bar = ProgressBar(len(paths), "features", quiet=quiet)
     results = []
     if jobs == 1:
-        gen = (_features_task(c, settings) for c in chunks)
+        gen = (_features_task(c, settings, warp) for c in chunks)
     else:
         gen = Parallel(n_jobs=jobs, backend="loky", return_as="generator")(
-            delayed(_features_task)(c, settings) for c in chunks
+            delayed(_features_task)(c, settings, warp) for c in chunks
         )
     for part in gen:
         for feats, error, notes in part:
@@ -110,18 +116,36 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
 
 
 def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
-                  jobs: int = 1, quiet: bool = True) -> tuple[list[TrainingItem], list[Skipped]]:
+                  jobs: int = 1, quiet: bool = True,
+                  warps=(1.0,)) -> tuple[list[TrainingItem], list[Skipped]]:
     """Load features and build chains; skip (with a warning) what cannot be used.
+
+    ``warps``: frequency warp factors; each utterance gives one item per factor (the
+    default, ``(1.0,)``, is plain training). A file that cannot be used is skipped (and
+    reported) once, at the first factor.
 
     Returns
     -------
     items : list of TrainingItem
     skipped : list of Skipped
     """
-    features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet)
     items: list[TrainingItem] = []
     skipped: list[Skipped] = []
     graphs: dict[tuple[str, ...], StateGraph] = {}
+    for k, warp in enumerate(warps):
+        features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
+                                    warp=float(warp))
+        if k == 0:
+            _collect(utterances, features, lexicon, units, graphs, items, skipped)
+        else:
+            bad = {s.path for s in skipped}
+            _collect([u for u in utterances if u.path not in bad],
+                     [f for u, f in zip(utterances, features) if u.path not in bad],
+                     lexicon, units, graphs, items, None)
+    return items, skipped
+
+
+def _collect(utterances, features, lexicon, units, graphs, items, skipped) -> None:
     for utt, (feats, error) in zip(utterances, features):
         if feats is None:
             reason = f"could not be loaded: {error}"
@@ -137,7 +161,7 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
             else:
                 items.append(TrainingItem(utt.path, utt.words, np.ascontiguousarray(feats), graph))
                 continue
-        skipped.append(Skipped(utt.path, reason))
-        message = reason if feats is None and str(utt.path) in reason else f"{utt.path}: {reason}"
-        warnings.warn(f"skipping {message}", TrainingWarning, stacklevel=2)
-    return items, skipped
+        if skipped is not None:
+            skipped.append(Skipped(utt.path, reason))
+            message = reason if feats is None and str(utt.path) in reason else f"{utt.path}: {reason}"
+            warnings.warn(f"skipping {message}", TrainingWarning, stacklevel=3)
