@@ -12,7 +12,9 @@ One frame of token passing:
 2. the frame's emission log-likelihood is added;
 3. pruning: a state survives if its score is within ``beam`` of the frame's best and,
    when more than ``max_active`` states are alive, at least the ``max_active``-th best
-   score (ties keep more);
+   score (ties keep more). The compiled loop drops waiting entries that fall below a
+   lower bound of that cut before placing them (same result, less work for large
+   vocabularies);
 4. word ends: a token in a state that can leave its item ends that item; within
    ``word_end_beam`` of the frame's best, the best end of each word (or of the entry
    pause, "word" 0) becomes a *word link* (word, pronunciation, start frame, phone end
@@ -161,17 +163,18 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
     enter_from = np.zeros(n_words, dtype=np.int64)
     scratch = np.empty(n_states)
 
+    # Entries waiting for the next frame (state, score before emission, link, start).
+    n_starts = start_state.shape[0]
+    pend_state = np.empty(n_starts, dtype=np.int64)
+    pend_score = np.empty(n_starts)
+    pend_link = np.empty(n_starts, dtype=np.int64)
+    n_pend = 0
     # Frame 0: the entry pause begins.
     for k in range(start_first[_ENTRY], start_first[_ENTRY + 1]):
-        s = start_state[k]
-        if start_logp[k] > nxt[s]:
-            if nxt[s] == _NEG:
-                nxt_act[n_nxt] = s
-                n_nxt += 1
-            nxt[s] = start_logp[k]
-            nxt_link[s] = -1
-            nxt_start[s] = 0
-            nxt_pend[s] = -1
+        pend_state[n_pend] = start_state[k]
+        pend_score[n_pend] = start_logp[k]
+        pend_link[n_pend] = -1
+        n_pend += 1
 
     for t in range(n_frames):
         # 1. move the tokens of frame t-1 one step.
@@ -203,16 +206,41 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                             nxt_pend[d] = t - 1
                         else:
                             nxt_pend[d] = cur_pend[s]
-        # 2. emissions.
+        # 2. emissions, for moved tokens and waiting entries.
         best = _NEG
         for i in range(n_nxt):
             s = nxt_act[i]
             nxt[s] += ll[t, pdf[s]]
             if nxt[s] > best:
                 best = nxt[s]
-        if n_nxt == 0 or best == _NEG:
+        for i in range(n_pend):
+            pend_score[i] += ll[t, pdf[pend_state[i]]]
+            if pend_score[i] > best:
+                best = pend_score[i]
+        if best == _NEG:
             return NO_TOKENS, _NEG, -1, links_int[:n_links], links_score[:n_links], n_links
-        # 3. pruning.
+        # 3. pruning. Entries below the beam, or below the max_active-th best of the
+        # moved tokens alone (a lower bound of the final cut), could not survive: they
+        # are dropped before they are ever placed.
+        thr = best - beam
+        if n_nxt > max_active:
+            for i in range(n_nxt):
+                scratch[i] = nxt[nxt_act[i]]
+            kth = np.partition(scratch[:n_nxt], n_nxt - max_active)[n_nxt - max_active]
+            if kth > thr:
+                thr = kth
+        for i in range(n_pend):
+            s = pend_state[i]
+            cand = pend_score[i]
+            if cand >= thr and cand > nxt[s]:
+                if nxt[s] == _NEG:
+                    nxt_act[n_nxt] = s
+                    n_nxt += 1
+                nxt[s] = cand
+                nxt_link[s] = pend_link[i]
+                nxt_start[s] = t
+                nxt_pend[s] = -1
+        n_pend = 0
         thr = best - beam
         if n_nxt > max_active:
             for i in range(n_nxt):
@@ -322,16 +350,10 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                 lo, hi = word_pron[word_first[w]] + _FIRST, word_pron[word_first[w + 1] - 1] + _FIRST + 1
             for it in range(lo, hi):
                 for k in range(start_first[it], start_first[it + 1]):
-                    s = start_state[k]
-                    cand = enter[w] + start_logp[k]
-                    if cand > nxt[s]:
-                        if nxt[s] == _NEG:
-                            nxt_act[n_nxt] = s
-                            n_nxt += 1
-                        nxt[s] = cand
-                        nxt_link[s] = enter_from[w]
-                        nxt_start[s] = t + 1
-                        nxt_pend[s] = -1
+                    pend_state[n_pend] = start_state[k]
+                    pend_score[n_pend] = enter[w] + start_logp[k]
+                    pend_link[n_pend] = enter_from[w]
+                    n_pend += 1
 
     final = _NEG
     final_link = -1
