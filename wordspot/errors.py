@@ -16,6 +16,7 @@ __all__ = [
     "DecodingError",
     "GrammarError",
     "ScoringError",
+    "AugmentError",
     "WordspotWarning",
     "AudioWarning",
     "TrainingWarning",
@@ -60,6 +61,10 @@ class GrammarError(WordspotError, ValueError):
 
 class ScoringError(WordspotError, ValueError):
     """Scoring input is invalid (no utterances, no reference words, a bad setting)."""
+
+
+class AugmentError(WordspotError, ValueError):
+    """A noise augmentation setting or input is invalid (bad SNR range, no speech power)."""
 
 
 class WordspotWarning(UserWarning):

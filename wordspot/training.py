@@ -37,6 +37,7 @@ from joblib import Parallel, delayed
 
 from wordspot import __version__, kernels
 from wordspot.corpus import check_manifest
+from wordspot.augment import NoiseSettings
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.features import FeatureSettings
 from wordspot.gmm import (
@@ -90,6 +91,11 @@ class TrainingConfig:
         Frequency warp factors for vocal tract length perturbation: every recording is
         trained on once per factor (see :func:`wordspot.training_data.prepare_items`);
         ``(1.0,)`` is plain training. Recognition always uses unwarped features.
+    noise_copies : int >= 0
+        Noisy copies of every recording for multi-condition training (babble or steady
+        machine noise; see :mod:`wordspot.training_noise`); 0 trains on the clean ones only.
+    noise_snr_db : (float, float)
+        Each noisy copy's SNR in dB, drawn uniformly from this range.
     """
 
     mixtures: tuple[int, ...] = (1, 2, 4, 8)
@@ -103,6 +109,8 @@ class TrainingConfig:
     seed: int = 0
     prune: float = 1e-4
     warp_factors: tuple[float, ...] = (1.0,)
+    noise_copies: int = 0
+    noise_snr_db: tuple[float, float] = (0.0, 25.0)
 
     def __post_init__(self) -> None:
         m = tuple(self.mixtures)
@@ -125,6 +133,12 @@ class TrainingConfig:
         object.__setattr__(self, "warp_factors", tuple(float(x) for x in w))
         if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
+        self.noise  # validates noise_copies and noise_snr_db
+
+    @property
+    def noise(self) -> NoiseSettings:
+        """The noisy-copy part of these settings."""
+        return NoiseSettings(copies=self.noise_copies, snr_db=tuple(self.noise_snr_db))
 
     @property
     def total_passes(self) -> int:
@@ -437,7 +451,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
     check_manifest(utterances, lexicon, manifest=manifest)
     units = default_unit_set(sorted(lexicon.units_used()))
     items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
-                                   warps=config.warp_factors)
+                                   warps=config.warp_factors, noise=config.noise, seed=config.seed)
     if not items:
         raise TrainingError(
             f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
@@ -468,6 +482,8 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         "seconds": round(summary.seconds, 2),
         "seed": int(config.seed),
         "warp_factors": list(config.warp_factors),
+        "noise_copies": int(config.noise_copies),
+        "noise_snr_db": [float(v) for v in config.noise_snr_db],
         "unseen_units": list(summary.unseen_units),
     }
     model = AcousticModel(features=settings, units=units, mixtures=mix, lexicon=lexicon,

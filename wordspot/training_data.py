@@ -117,12 +117,16 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
 
 def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
                   jobs: int = 1, quiet: bool = True,
-                  warps=(1.0,)) -> tuple[list[TrainingItem], list[Skipped]]:
+                  warps=(1.0,), noise=None, seed: int = 0) -> tuple[list[TrainingItem], list[Skipped]]:
     """Load features and build chains; skip (with a warning) what cannot be used.
 
     ``warps``: frequency warp factors; each utterance gives one item per factor (the
     default, ``(1.0,)``, is plain training). A file that cannot be used is skipped (and
     reported) once, at the first factor.
+
+    ``noise``: a :class:`wordspot.augment.NoiseSettings`; its noisy copies of every usable
+    recording (unwarped, drawn with ``seed``; see :mod:`wordspot.training_noise`) come
+    after all other items.
 
     Returns
     -------
@@ -142,6 +146,15 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
             _collect([u for u in utterances if u.path not in bad],
                      [f for u, f in zip(utterances, features) if u.path not in bad],
                      lexicon, units, graphs, items, None)
+        if k == 0:
+            n_plain = len(items)
+    if noise is not None and noise.copies > 0:
+        from wordspot.training_noise import noisy_items
+
+        speaker = {u.path: u.speaker for u in utterances}
+        base = items[:n_plain]
+        items += noisy_items(base, [speaker[it.path] for it in base], noise, settings,
+                             seed=seed, jobs=jobs, quiet=quiet)
     return items, skipped
 
 

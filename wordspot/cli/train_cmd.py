@@ -18,6 +18,7 @@ _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --jobs 2
+  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --noise-copies 2
   wordspot train phone-takes/train.csv --lexicon lexicon/bakery.txt --out phone.model --sample-rate 8000
 
 The manifest is a CSV file with columns path,transcript,speaker (paths relative to the
@@ -52,6 +53,16 @@ def _positive(text: str) -> int:
     return value
 
 
+def _count(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 or more, got {value}")
+    return value
+
+
 def add_parser(sub):
     p = sub.add_parser(
         "train",
@@ -72,6 +83,13 @@ def add_parser(sub):
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
     p.add_argument("--seed", type=int, default=0, metavar="N", help="seed for mixture splitting (default 0)")
+    p.add_argument("--noise-copies", type=_count, default=TrainingConfig.noise_copies, metavar="N",
+                   help="noisy copies of every recording (babble or machine noise made from the "
+                   "recordings themselves) so that recognition works in a noisy room; 0: clean only "
+                   f"(default {TrainingConfig.noise_copies})")
+    p.add_argument("--noise-snr", type=float, nargs=2, default=TrainingConfig.noise_snr_db,
+                   metavar=("LOW", "HIGH"), help="SNR range of the noisy copies in dB "
+                   f"(default {TrainingConfig.noise_snr_db[0]:g} {TrainingConfig.noise_snr_db[1]:g})")
     p.add_argument("--sample-rate", type=int, default=16000, metavar="HZ",
                    help="model sample rate: 16000 (default) or 8000 for telephone recordings")
     p.set_defaults(func=_run)
@@ -86,7 +104,8 @@ def _run(args) -> int:
     extra = {}
     if args.passes is not None:
         extra = {"passes_per_split": args.passes, "first_passes": args.passes + 2}
-    config = TrainingConfig(mixtures=mixture_schedule(args.mixtures), jobs=args.jobs, seed=args.seed, **extra)
+    config = TrainingConfig(mixtures=mixture_schedule(args.mixtures), jobs=args.jobs, seed=args.seed,
+                            noise_copies=args.noise_copies, noise_snr_db=tuple(args.noise_snr), **extra)
     lexicon = read_lexicon(args.lexicon)
     utterances = read_manifest(args.manifest)
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))

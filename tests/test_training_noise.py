@@ -1,0 +1,80 @@
+"""Tests for wordspot.training_noise: noisy copies of training recordings."""
+
+import numpy as np
+import pytest
+
+from tone_corpus import make_corpus
+from wordspot.augment import NoiseSettings
+from wordspot.corpus import read_manifest
+from wordspot.errors import AugmentError
+from wordspot.features import FeatureSettings
+from wordspot.lexicon import read_lexicon
+from wordspot.training import TrainingConfig
+from wordspot.training_data import prepare_items
+from wordspot.training_noise import CopyRecipe, babble_streams, plan_copies
+from wordspot.units import default_unit_set
+
+BABBLE = NoiseSettings(copies=3, kinds=("babble",), talkers=(2, 4))
+
+
+def test_babble_talkers_are_other_speakers_when_there_are_enough():
+    speakers = ["a", "a", "b", "c", "d", "e", "b"]
+    for recipe in plan_copies(speakers, BABBLE, seed=1):
+        assert 2 <= len(recipe.talkers) <= 4
+        assert speakers[recipe.index] not in recipe.talkers
+        assert len(set(recipe.talkers)) == len(recipe.talkers)
+
+
+def test_babble_never_uses_the_recording_itself_even_with_one_speaker():
+    # one person training on their own voice: the babble is their other recordings
+    speakers = ["me"] * 4
+    pool = {"me": [(k, np.full(50, float(k))) for k in range(4)]}
+    plans = plan_copies(speakers, BABBLE, seed=2)
+    assert len(plans) == 3 * 4
+    for recipe in plans:
+        streams = babble_streams(pool, recipe)
+        assert streams
+        for s in streams:
+            assert float(recipe.index) not in set(s.tolist())
+
+
+def test_plans_depend_only_on_the_seed():
+    speakers = ["a", "b", "c"] * 3
+    noise = NoiseSettings(copies=2)
+    assert plan_copies(speakers, noise, seed=7) == plan_copies(speakers, noise, seed=7)
+    assert plan_copies(speakers, noise, seed=7) != plan_copies(speakers, noise, seed=8)
+    snrs = [p.snr_db for p in plan_copies(speakers, noise, seed=7)]
+    assert all(0.0 <= v <= 25.0 for v in snrs)
+
+
+@pytest.fixture
+def tiny(tmp_path, rng):
+    manifest, lexicon = make_corpus(tmp_path, rng, n_utterances=6)
+    lex = read_lexicon(lexicon)
+    return read_manifest(manifest), lex, default_unit_set(sorted(lex.units_used()))
+
+
+def test_noisy_copies_follow_the_clean_items_and_match_for_any_number_of_jobs(tiny):
+    utts, lex, units = tiny
+    s = FeatureSettings()
+    clean, _ = prepare_items(utts, lex, units, s)
+    noise = NoiseSettings(copies=2, snr_db=(5.0, 15.0))
+    one, _ = prepare_items(utts, lex, units, s, noise=noise, seed=3)
+    two, _ = prepare_items(utts, lex, units, s, noise=noise, seed=3, jobs=2)
+    assert len(one) == len(two) == 3 * len(clean)
+    for a, b in zip(one, two):
+        np.testing.assert_array_equal(a.frames, b.frames)
+    for k, it in enumerate(one[len(clean):]):
+        base = clean[k % len(clean)]
+        assert it.path == base.path and it.words == base.words and it.graph is not None
+        assert it.frames.shape == base.frames.shape
+        assert not np.allclose(it.frames, base.frames)
+    np.testing.assert_array_equal(one[0].frames, clean[0].frames)
+
+
+def test_training_config_checks_the_noise_settings():
+    assert TrainingConfig(noise_copies=2).noise.copies == 2
+    with pytest.raises(AugmentError, match="copies must be a whole number"):
+        TrainingConfig(noise_copies=-1)
+    with pytest.raises(AugmentError, match="low <= high"):
+        TrainingConfig(noise_snr_db=(30.0, 0.0))
