@@ -360,6 +360,9 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
     """
     if not items:
         raise TrainingError("no usable utterance to train on")
+    # Same transcripts next to each other, so a chunk composes and refreshes each graph
+    # once; the order is fixed by the data alone (stable sort), never by ``jobs``.
+    items = sorted(items, key=lambda it: it.words)
     rng = np.random.default_rng(config.seed)
     mix, global_var = flat_start(items, units, frame_rate=frame_rate, pause_seconds=config.pause_seconds)
     floor = config.variance_floor * global_var
@@ -399,7 +402,7 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
                                            min_occupancy=config.min_occupancy)
             units = update_transitions(units, res.trans_counts, floor=config.transition_floor)
             last = res
-    summary.used = len(items)
+    summary.used = len({it.path for it in items})  # recordings, not augmented copies
     summary.n_frames = int(sum(it.frames.shape[0] for it in items))
     summary.frames_per_unit = {name: float(last.unit_frames[u]) for u, name in enumerate(units.names)}
     seen = np.zeros(units.n_units, dtype=bool)
