@@ -160,3 +160,35 @@ def test_likelihood_never_falls_on_demo_data():
             assert b >= a - 1e-3 * abs(a), ll
             rises += b > a
     assert rises >= 4
+
+
+def test_speed_copy_scales_frequency_and_length(rng):
+    from wordspot.training_data import speed_copy
+
+    rate = 16000
+    t = np.arange(rate) / rate
+    wave = np.sin(2 * np.pi * 1000.0 * t).astype(np.float32)
+    for factor in (0.9, 1.1):
+        fast = speed_copy(wave, rate, factor)
+        # Playing f times faster: length / f and every frequency * f (definition of speed
+        # perturbation; common practice).
+        assert abs(fast.size - rate / factor) <= 1
+        spectrum = np.abs(np.fft.rfft(fast * np.hanning(fast.size)))
+        peak = np.argmax(spectrum) * rate / fast.size
+        np.testing.assert_allclose(peak, 1000.0 * factor, rtol=2e-3)
+    assert speed_copy(wave, rate, 1.0) is wave
+
+
+def test_speed_factors_add_copies(tmp_path, rng):
+    manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=8)
+    cfg = TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(0.9, 1.0, 1.1))
+    model, summary = train(read_manifest(manifest), read_lexicon(lex_path), config=cfg)
+    plain, plain_summary = train(read_manifest(manifest), read_lexicon(lex_path),
+                                 config=TrainingConfig(mixtures=(1,), first_passes=2))
+    assert summary.used == plain_summary.used == 8  # recordings, not copies
+    # Copies at 0.9 and 1.1 hold about 1/0.9 + 1/1.1 = 2.02 times the plain frames.
+    np.testing.assert_allclose(summary.n_frames / plain_summary.n_frames, 1 + 1 / 0.9 + 1 / 1.1, rtol=0.03)
+    assert model.info["speed_factors"] == [0.9, 1.0, 1.1]
+    check_probabilities(model)
+    with pytest.raises(TrainingError, match="speed_factors must be"):
+        TrainingConfig(speed_factors=(0.9, 0.9))

@@ -22,15 +22,17 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+import soxr
 from joblib import Parallel, delayed
 
 from wordspot.errors import AudioError, FeatureError, TrainingWarning
-from wordspot.features import FeatureSettings, file_features
+from wordspot.audio import load_audio
+from wordspot.features import FeatureSettings, compute_features, file_features
 from wordspot.graph import StateGraph, compose
 from wordspot.progress import ProgressBar
 from wordspot.units import GAP_UNIT, PAUSE_UNIT, UnitSet
 
-__all__ = ["TrainingItem", "Skipped", "chain_slots", "extract_features", "prepare_items"]
+__all__ = ["TrainingItem", "Skipped", "chain_slots", "extract_features", "prepare_items", "speed_copy"]
 
 #: Utterances per parallel task. Fixed (independent of the number of processes) so that
 #: summing per-task results in task order gives bit-identical totals however many
@@ -69,14 +71,30 @@ def chain_slots(words, lexicon, units: UnitSet) -> list:
     return slots
 
 
-def _features_task(paths, settings, warp=1.0):
+def speed_copy(wave: np.ndarray, sample_rate: int, factor: float) -> np.ndarray:
+    """``wave`` played ``factor`` times faster (tempo, pitch and formants shift together).
+
+    Speed perturbation (common practice): resample to ``sample_rate / factor`` and read
+    the result at ``sample_rate``.
+    """
+    if factor == 1.0:
+        return wave
+    return soxr.resample(np.ascontiguousarray(wave, dtype=np.float32), sample_rate,
+                         int(round(sample_rate / factor)), quality="HQ")
+
+
+def _features_task(paths, settings, warp=1.0, speed=1.0):
     """Features of several files; failures and warnings returned, not raised."""
     out = []
     for path in paths:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
-                feats = file_features(path, settings, warp=warp)
+                if speed == 1.0:
+                    feats = file_features(path, settings, warp=warp)
+                else:
+                    wave = load_audio(path, sample_rate=settings.sample_rate)
+                    feats = compute_features(speed_copy(wave, settings.sample_rate, speed), settings, warp=warp)
                 error = None
             except (AudioError, FeatureError) as exc:
                 feats, error = None, str(exc)
@@ -86,8 +104,9 @@ def _features_task(paths, settings, warp=1.0):
 
 
 def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True,
-                     warp: float = 1.0):
-    """Features of every file (frequency axis warped by ``warp``), or the error that stopped it.
+                     warp: float = 1.0, speed: float = 1.0):
+    """Features of every file (frequency axis warped by ``warp``, played ``speed`` times
+    faster), or the error that stopped it.
 
     Returns
     -------
@@ -100,10 +119,10 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
     bar = ProgressBar(len(paths), "features", quiet=quiet)
     results = []
     if jobs == 1:
-        gen = (_features_task(c, settings, warp) for c in chunks)
+        gen = (_features_task(c, settings, warp, speed) for c in chunks)
     else:
         gen = Parallel(n_jobs=jobs, backend="loky", return_as="generator")(
-            delayed(_features_task)(c, settings, warp) for c in chunks
+            delayed(_features_task)(c, settings, warp, speed) for c in chunks
         )
     for part in gen:
         for feats, error, notes in part:
@@ -117,12 +136,17 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
 
 def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
                   jobs: int = 1, quiet: bool = True,
-                  warps=(1.0,), noise=None, seed: int = 0) -> tuple[list[TrainingItem], list[Skipped]]:
+                  warps=(1.0,), speeds=(1.0,), noise=None,
+                  seed: int = 0) -> tuple[list[TrainingItem], list[Skipped]]:
     """Load features and build chains; skip (with a warning) what cannot be used.
 
     ``warps``: frequency warp factors; each utterance gives one item per factor (the
     default, ``(1.0,)``, is plain training). A file that cannot be used is skipped (and
     reported) once, at the first factor.
+
+    ``speeds``: speed perturbation factors (see :func:`speed_copy`); every factor other
+    than 1 adds one unwarped item per utterance, after the warped ones. A copy too short
+    for its chain is left out silently (the recording itself is used).
 
     ``noise``: a :class:`wordspot.augment.NoiseSettings`; its noisy copies of every usable
     recording (unwarped, drawn with ``seed``; see :mod:`wordspot.training_noise`) come
@@ -136,9 +160,10 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
     items: list[TrainingItem] = []
     skipped: list[Skipped] = []
     graphs: dict[tuple[str, ...], StateGraph] = {}
-    for k, warp in enumerate(warps):
+    variants = [(float(w), 1.0) for w in warps] + [(1.0, float(s)) for s in speeds if float(s) != 1.0]
+    for k, (warp, speed) in enumerate(variants):
         features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
-                                    warp=float(warp))
+                                    warp=warp, speed=speed)
         if k == 0:
             _collect(utterances, features, lexicon, units, graphs, items, skipped)
         else:

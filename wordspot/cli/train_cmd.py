@@ -90,6 +90,10 @@ def add_parser(sub):
     p.add_argument("--noise-snr", type=float, nargs=2, default=TrainingConfig.noise_snr_db,
                    metavar=("LOW", "HIGH"), help="SNR range of the noisy copies in dB "
                    f"(default {TrainingConfig.noise_snr_db[0]:g} {TrainingConfig.noise_snr_db[1]:g})")
+    p.add_argument("--speed", type=float, nargs="+", default=TrainingConfig.speed_factors, metavar="F",
+                   help="speed perturbation: also train on copies of every recording played F times "
+                   "faster (e.g. --speed 0.9 1.0 1.1 triples the data; helps with new voices) "
+                   f"(default {' '.join(f'{f:g}' for f in TrainingConfig.speed_factors)})")
     p.add_argument("--sample-rate", type=int, default=16000, metavar="HZ",
                    help="model sample rate: 16000 (default) or 8000 for telephone recordings")
     p.set_defaults(func=_run)
@@ -105,7 +109,8 @@ def _run(args) -> int:
     if args.passes is not None:
         extra = {"passes_per_split": args.passes, "first_passes": args.passes + 2}
     config = TrainingConfig(mixtures=mixture_schedule(args.mixtures), jobs=args.jobs, seed=args.seed,
-                            noise_copies=args.noise_copies, noise_snr_db=tuple(args.noise_snr), **extra)
+                            noise_copies=args.noise_copies, noise_snr_db=tuple(args.noise_snr),
+                            speed_factors=tuple(args.speed), **extra)
     lexicon = read_lexicon(args.lexicon)
     utterances = read_manifest(args.manifest)
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
