@@ -16,7 +16,7 @@ from wordspot.cli.train_cmd import mixture_schedule
 
 from conftest import LEXICON_DIR, RECORDINGS
 
-SMALL = dict(mixtures=(1, 2), first_passes=3, passes_per_split=2)
+SMALL = dict(mixtures=(1, 2), first_passes=3, passes_per_split=2, speed_factors=(1.0,))
 
 
 def check_probabilities(model):
@@ -73,7 +73,7 @@ def test_likelihood_rises_on_tone_corpus(tmp_path, rng):
 def test_parallel_equals_serial(tmp_path, rng):
     manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=40)  # more than one chunk
     utts, lexicon = read_manifest(manifest), read_lexicon(lex_path)
-    cfg = dict(mixtures=(1, 2), first_passes=2, passes_per_split=1, seed=3)
+    cfg = dict(mixtures=(1, 2), first_passes=2, passes_per_split=1, seed=3, speed_factors=(0.9, 1.0))
     a, _ = train(utts, lexicon, config=TrainingConfig(**cfg, jobs=1))
     b, _ = train(utts, lexicon, config=TrainingConfig(**cfg, jobs=2))
     for name in ("weights", "means", "variances"):
@@ -123,13 +123,14 @@ def test_train_command_writes_a_model(tmp_path, rng, capsys):
     manifest, lex_path = make_corpus(tmp_path / "c", rng, n_utterances=12)
     out = tmp_path / "tones.model"
     status = main(["train", str(manifest), "--lexicon", str(lex_path), "--out", str(out),
-                   "--mixtures", "2", "--passes", "1"])
+                   "--mixtures", "2", "--passes", "1", "--speed", "1.0"])
     assert status == 0
     printed = capsys.readouterr().out
     assert "log-likelihood per frame" in printed and "wrote" in printed
     model = load_model(out)
     assert model.mixtures.n_components == 2
     assert model.info["passes"] == 3 + 1  # first stage N+2, then N after the split
+    assert model.info["speed_factors"] == [1.0]
     check_probabilities(model)
 
 
@@ -150,7 +151,8 @@ def test_likelihood_never_falls_on_demo_data():
             voices.add(u.speaker)
             subset.append(u)
     lexicon = read_lexicon(LEXICON_DIR / "bakery.txt")
-    _, summary = train(subset, lexicon, config=TrainingConfig(mixtures=(1, 2), first_passes=4, passes_per_split=3))
+    config = TrainingConfig(mixtures=(1, 2), first_passes=4, passes_per_split=3, speed_factors=(1.0,))
+    _, summary = train(subset, lexicon, config=config)
     ll = summary.passes
     rises = 0
     for (m0, a), (m1, b) in zip(ll[:-1], ll[1:]):
@@ -184,7 +186,7 @@ def test_speed_factors_add_copies(tmp_path, rng):
     cfg = TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(0.9, 1.0, 1.1))
     model, summary = train(read_manifest(manifest), read_lexicon(lex_path), config=cfg)
     plain, plain_summary = train(read_manifest(manifest), read_lexicon(lex_path),
-                                 config=TrainingConfig(mixtures=(1,), first_passes=2))
+                                 config=TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(1.0,)))
     assert summary.used == plain_summary.used == 8  # recordings, not copies
     # Copies at 0.9 and 1.1 hold about 1/0.9 + 1/1.1 = 2.02 times the plain frames.
     np.testing.assert_allclose(summary.n_frames / plain_summary.n_frames, 1 + 1 / 0.9 + 1 / 1.1, rtol=0.03)

@@ -94,8 +94,9 @@ class TrainingConfig:
     speed_factors : tuple of float > 0
         Speed perturbation: every factor other than 1 adds a copy of every recording
         played that much faster (tempo, pitch and formants together; see
-        :func:`wordspot.training_data.speed_copy`). ``(0.9, 1.0, 1.1)`` triples the data
-        and the training time, and helps most with voices unlike the training voices.
+        :func:`wordspot.training_data.speed_copy`). The default ``(0.9, 1.0, 1.1)``
+        triples the data and the training time; on the demo set it cut isolated-word
+        errors on unseen voices from 10.4% to 2.4% (DEVELOPERS.md). ``(1.0,)`` turns it off.
     noise_copies : int >= 0
         Noisy copies of every recording for multi-condition training (babble or steady
         machine noise; see :mod:`wordspot.training_noise`); 0 trains on the clean ones only.
@@ -114,7 +115,7 @@ class TrainingConfig:
     seed: int = 0
     prune: float = 1e-4
     warp_factors: tuple[float, ...] = (1.0,)
-    speed_factors: tuple[float, ...] = (1.0,)
+    speed_factors: tuple[float, ...] = (0.9, 1.0, 1.1)
     noise_copies: int = 0
     noise_snr_db: tuple[float, float] = (0.0, 25.0)
 
