@@ -64,7 +64,8 @@ def test_single_word_score_equals_hmmlearn_viterbi(rng):
     # Viterbi choice, see graph.compose), which a stochastic matrix cannot express.
     entries = {"sack": [["S", "AA", "K"]]}
     model = tiny_model(rng, entries)
-    settings = DecoderSettings.unpruned(grammar_weight=0.0, single_word=True, allow_empty=False)
+    settings = DecoderSettings.unpruned(grammar_weight=0.0, insertion_penalty=0.0, single_word=True,
+                                        allow_empty=False)
     rec = build_recognizer(model, settings=settings)
     graph = chain_graph(model, [model.lexicon.pronunciations("sack")])
     s = graph.n_states

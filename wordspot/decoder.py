@@ -65,6 +65,11 @@ class DecoderSettings:
         Multiplies the log prior of every word-to-word link.
     insertion_penalty : float
         Added per word (negative: fewer, longer words).
+
+        The defaults (5 and -20) were picked on the demo training recordings of three
+        speakers held out from a model trained on the others (word error rate 0.025
+        against 0.113 for 1 and 0); on the demo test sets (words and phrases) they gave
+        0.157 against 0.217.
     single_word : bool
         Exactly one word per file (isolated commands).
     allow_empty : bool
@@ -74,8 +79,8 @@ class DecoderSettings:
     beam: float = 800.0
     word_end_beam: float = 600.0
     max_active: int = 2000
-    grammar_weight: float = 1.0
-    insertion_penalty: float = 0.0
+    grammar_weight: float = 5.0
+    insertion_penalty: float = -20.0
     single_word: bool = False
     allow_empty: bool = True
 
