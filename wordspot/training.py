@@ -116,7 +116,7 @@ class TrainingConfig:
     prune: float = 1e-4
     warp_factors: tuple[float, ...] = (1.0,)
     speed_factors: tuple[float, ...] = (0.9, 1.0, 1.1)
-    noise_copies: int = 0
+    noise_copies: int = 1
     noise_snr_db: tuple[float, float] = (0.0, 25.0)
 
     def __post_init__(self) -> None:
