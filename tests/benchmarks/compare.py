@@ -285,7 +285,8 @@ def run(args) -> str:
     grow_paths = speed_paths[: (10 if args.quick else 30)]
     try:
         sizes = (25, 250, 2500)
-        lexicons = ws.growth_lexicons(model, sizes)
+        core = sorted({w for it in train for w in it.words})  # the command words
+        lexicons = ws.growth_lexicons(model, sizes, core)
         for size, lex in zip(sizes, lexicons):
             rec = ws.recognizer(model, single_word=True, lexicon=lex)
             rec.decode_file(grow_paths[0])

