@@ -28,9 +28,11 @@ processes gives exactly the same model as a serial run.
 from __future__ import annotations
 
 import datetime as _dt
+import tempfile
 import time
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 import numpy as np
 from joblib import Parallel, delayed
@@ -377,6 +379,36 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
     # Same transcripts next to each other, so a chunk composes and refreshes each graph
     # once; the order is fixed by the data alone (stable sort), never by ``jobs``.
     items = sorted(items, key=lambda it: it.words)
+    if config.jobs == 1:
+        return _train_loop(items, units, frame_rate, config, quiet, report)
+    # Worker processes read the frames from one memory-mapped file instead of receiving
+    # copies every pass (joblib passes slices of a memory map by reference).
+    with tempfile.TemporaryDirectory(prefix="wordspot-train-") as folder:
+        return _train_loop(_shared_frames(items, Path(folder) / "frames.npy"), units, frame_rate,
+                           config, quiet, report)
+
+
+def _shared_frames(items: list[TrainingItem], path: Path) -> list[TrainingItem]:
+    """The same items with their frames as slices of one memory-mapped file at ``path``."""
+    total = sum(it.frames.shape[0] for it in items)
+    big = np.lib.format.open_memmap(path, mode="w+", dtype=np.float32, shape=(total, items[0].frames.shape[1]))
+    start = 0
+    for it in items:
+        big[start:start + it.frames.shape[0]] = it.frames
+        start += it.frames.shape[0]
+    big.flush()
+    del big
+    shared = np.load(path, mmap_mode="r")
+    out, start = [], 0
+    for it in items:
+        n = it.frames.shape[0]
+        out.append(replace(it, frames=shared[start:start + n]))
+        start += n
+    return out
+
+
+def _train_loop(items, units, frame_rate, config, quiet, report):
+    """The passes of :func:`train_items` (items sorted, frames wherever they live)."""
     rng = np.random.default_rng(config.seed)
     mix, global_var = flat_start(items, units, frame_rate=frame_rate, pause_seconds=config.pause_seconds)
     floor = config.variance_floor * global_var
