@@ -235,7 +235,7 @@ def test_no_complete_path_gives_empty_result(rng):
     # is pruned at the last frame, so no complete path exists.
     model = tiny_model(rng, ENTRIES)
     path = pause_pdfs(model, 6) + word_pdfs(model, ["B", "AA", "T"])[:12]
-    got = recognize_features(model, frames_along(model, path, rng), settings=DecoderSettings(beam=10.0))
+    got = recognize_features(model, frames_along(model, path, rng), settings=DecoderSettings(beam=10.0, insertion_penalty=0.0))
     assert got.words == [] and got.reason.startswith("no complete path")
 
 
