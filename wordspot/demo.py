@@ -134,7 +134,7 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, job
         if not ds.utterances:
             continue
         say(f"evaluating {ds.name} ({len(ds.utterances)} recordings) ...")
-        ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs)
+        ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs, quiet=quiet)
         write_report(ev.result, out_dir / "report" / ds.name)
         r = ev.result
         rows.append(DemoRow(ds.name, r.utterances, r.reference_words, r.wer, tuple(r.wer_ci95),

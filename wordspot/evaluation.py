@@ -11,7 +11,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from wordspot.corpus import check_manifest, read_manifest
-from wordspot.decoder import DecoderSettings, Recognition, recognize_files
+from wordspot.decoder import DecoderSettings, Recognition, build_recognizer
+from wordspot.progress import ProgressBar
 from wordspot.scoring import EvaluationResult, ScoredUtterance, score_utterances
 
 __all__ = ["ManifestEvaluation", "evaluate_utterances", "evaluate_manifest"]
@@ -59,9 +60,31 @@ class ManifestEvaluation:
         return out
 
 
+def _recognize_all(model, paths, *, settings, lexicon, prior, jobs: int, label: str,
+                   quiet: bool) -> list[Recognition]:
+    """Recognise files with one compiled network, drawing a progress bar as files finish."""
+    rec = build_recognizer(model, settings=settings, lexicon=lexicon, prior=prior)
+    out: list[Recognition] = []
+    step = max(1, 4 * jobs)
+    with ProgressBar(len(paths), label, quiet=quiet) as bar:
+        if jobs == 1:
+            for p in paths:
+                out.append(rec.decode_file(p))
+                bar.update()
+        else:
+            from joblib import Parallel, delayed
+
+            with Parallel(n_jobs=jobs, prefer="threads") as pool:
+                for i in range(0, len(paths), step):
+                    chunk = paths[i:i + step]
+                    out.extend(pool(delayed(rec.decode_file)(p) for p in chunk))
+                    bar.update(len(chunk))
+    return out
+
+
 def evaluate_utterances(model, utterances, *, name: str = "set", settings: DecoderSettings | None = None,
                         lexicon=None, prior=None, jobs: int = 1, n_bootstrap: int = 1000,
-                        seed: int = 0) -> ManifestEvaluation:
+                        seed: int = 0, quiet: bool = True) -> ManifestEvaluation:
     """Recognise and score a list of :class:`wordspot.corpus.Utterance`.
 
     Parameters
@@ -75,13 +98,19 @@ def evaluate_utterances(model, utterances, *, name: str = "set", settings: Decod
         model's. Every transcript word must be in it (all missing words are listed).
     n_bootstrap, seed
         Replicates and seed of the WER interval.
+    quiet : bool
+        No progress bar (it is drawn only on a terminal anyway).
     """
     utterances = list(utterances)
     lex = model.lexicon if lexicon is None else lexicon
     check_manifest(utterances, lex, manifest=name)
     start = time.monotonic()
-    recs = recognize_files(model, [u.path for u in utterances], settings=settings, lexicon=lexicon,
-                           prior=prior, jobs=jobs)
+    if not (isinstance(jobs, int) and jobs >= 1):
+        from wordspot.errors import DecodingError
+
+        raise DecodingError(f"jobs must be a whole number >= 1, got {jobs!r}")
+    recs = _recognize_all(model, [u.path for u in utterances], settings=settings, lexicon=lexicon,
+                          prior=prior, jobs=jobs, label=f"recognising {name}", quiet=quiet)
     seconds = time.monotonic() - start
     scored = [
         ScoredUtterance(str(u.path), u.speaker, tuple(u.words), tuple(r.words))
@@ -95,7 +124,7 @@ def evaluate_utterances(model, utterances, *, name: str = "set", settings: Decod
 
 def evaluate_manifest(model, manifest, *, settings: DecoderSettings | None = None, lexicon=None,
                       prior=None, jobs: int = 1, n_bootstrap: int = 1000, seed: int = 0,
-                      name: str | None = None) -> ManifestEvaluation:
+                      name: str | None = None, quiet: bool = True) -> ManifestEvaluation:
     """Recognise every file a manifest lists and score the words against its transcripts.
 
     Raises
@@ -106,4 +135,5 @@ def evaluate_manifest(model, manifest, *, settings: DecoderSettings | None = Non
     """
     utterances = read_manifest(manifest)
     return evaluate_utterances(model, utterances, name=name or Path(manifest).stem, settings=settings,
-                               lexicon=lexicon, prior=prior, jobs=jobs, n_bootstrap=n_bootstrap, seed=seed)
+                               lexicon=lexicon, prior=prior, jobs=jobs, n_bootstrap=n_bootstrap, seed=seed,
+                               quiet=quiet)

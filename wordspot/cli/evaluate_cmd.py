@@ -61,7 +61,8 @@ def _run(args) -> int:
     names = [Path(m).stem for m in args.manifests]
     for manifest, name in zip(args.manifests, names):
         ev = evaluate_manifest(model, manifest, settings=settings, lexicon=lexicon, prior=args.prior,
-                               jobs=args.jobs, n_bootstrap=args.bootstrap, name=name)
+                               jobs=args.jobs, n_bootstrap=args.bootstrap, name=name,
+                               quiet=args.quiet)
         failed += len(ev.failed)
         for path, error in ev.failed:
             print(f"wordspot: error: {error}", file=sys.stderr)
