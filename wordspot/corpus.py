@@ -18,13 +18,13 @@ from __future__ import annotations
 
 import csv
 import io
-import os
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Sequence
 
 from wordspot.errors import ManifestError
 from wordspot.lexicon import invalid_word_character
+from wordspot.textfile import read_user_text
 
 __all__ = ["Utterance", "read_manifest", "check_manifest", "MAX_LISTED_PROBLEMS"]
 
@@ -80,27 +80,9 @@ def read_manifest(path) -> list[Utterance]:
         Missing or unreadable file, not UTF-8, not CSV, no ``path``/``transcript`` column,
         no rows, or rows with an empty path or transcript (all such rows are listed).
     """
-    try:
-        p = Path(os.fspath(path))
-    except TypeError:
-        raise ManifestError(f"manifest path must be a file name, got {path!r}") from None
-    try:
-        found, folder = p.exists(), p.is_dir()
-    except (OSError, ValueError) as exc:
-        raise ManifestError(f"{str(p)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
-    if not found:
-        raise ManifestError(f"{p}: manifest not found; check the path")
-    if folder:
-        raise ManifestError(f"{p}: is a folder; name the manifest CSV file")
-    try:
-        data = p.read_bytes()
-    except OSError as exc:
-        raise ManifestError(f"{p}: cannot read the manifest ({exc.strerror or exc})") from None
-    try:
-        text = data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise ManifestError(f"{p}, line {line}: not valid UTF-8 text; save the manifest as UTF-8 CSV") from None
+    p, text = read_user_text(path, error=ManifestError, kind="manifest", missing="manifest",
+                             names="manifest CSV file",
+                             save_as="save the manifest as UTF-8 CSV", encoding="utf-8-sig")
     if "\x00" in text:
         raise ManifestError(f"{p}: holds NUL characters, so it is not a CSV text file")
     reader = csv.reader(io.StringIO(text, newline=""), strict=True)

@@ -20,13 +20,13 @@ the stress digits removed.
 from __future__ import annotations
 
 import functools
-import os
 import re
 import warnings
 from pathlib import Path
 from typing import Iterable, Iterator, Mapping, Sequence
 
 from wordspot.errors import LexiconError, WordspotWarning
+from wordspot.textfile import read_user_text
 
 __all__ = [
     "ARPABET_PHONES",
@@ -292,29 +292,9 @@ def read_lexicon(path, *, inventory: Iterable[str] | None = None) -> Lexicon:
     LexiconError
         Missing or unreadable file, not UTF-8, or any parse error.
     """
-    try:
-        p = Path(os.fspath(path))
-    except TypeError:
-        raise LexiconError(f"lexicon path must be a file name, got {path!r}") from None
-    try:
-        found, folder = p.exists(), p.is_dir()
-    except (OSError, ValueError) as exc:
-        raise LexiconError(f"{str(p)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
-    if not found:
-        raise LexiconError(f"{p}: lexicon file not found; check the path")
-    if folder:
-        raise LexiconError(f"{p}: is a folder; name the lexicon text file")
-    try:
-        data = p.read_bytes()
-    except OSError as exc:
-        raise LexiconError(f"{p}: cannot read the lexicon ({exc.strerror or exc})") from None
-    try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        line = data[: exc.start].count(b"\n") + 1
-        raise LexiconError(
-            f"{p}, line {line}: not valid UTF-8 text; save the lexicon as UTF-8"
-        ) from None
+    p, text = read_user_text(path, error=LexiconError, kind="lexicon", missing="lexicon file",
+                             names="lexicon text file",
+                             save_as="save the lexicon as UTF-8")
     return parse_lexicon(text, source=str(p), inventory=inventory)
 
 

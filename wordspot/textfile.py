@@ -1,0 +1,52 @@
+"""Reading a user's UTF-8 text file (manifest, lexicon) with one clear error per problem."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+__all__ = ["read_user_text"]
+
+
+def read_user_text(path, *, error: type, kind: str, missing: str, names: str, save_as: str,
+                   encoding: str = "utf-8") -> tuple[Path, str]:
+    """Return ``(path, text)`` of a text file a person wrote.
+
+    Parameters
+    ----------
+    path : str or path-like
+    error : exception class
+        Raised (with the file name and a fix) for every problem.
+    kind : str
+        What the file is, in messages ("manifest", "lexicon").
+    missing : str
+        How the missing file is called ("manifest", "lexicon file").
+    names : str
+        What the user should name instead of a folder ("manifest CSV file").
+    save_as : str
+        How to fix an encoding problem ("save the manifest as UTF-8 CSV").
+    encoding : str
+        Text encoding ("utf-8", or "utf-8-sig" to accept a byte-order mark).
+    """
+    try:
+        p = Path(os.fspath(path))
+    except TypeError:
+        raise error(f"{kind} path must be a file name, got {path!r}") from None
+    try:
+        found, folder = p.exists(), p.is_dir()
+    except (OSError, ValueError) as exc:
+        raise error(f"{str(p)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
+    if not found:
+        raise error(f"{p}: {missing} not found; check the path")
+    if folder:
+        raise error(f"{p}: is a folder; name the {names}")
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise error(f"{p}: cannot read the {kind} ({exc.strerror or exc})") from None
+    try:
+        text = data.decode(encoding)
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise error(f"{p}, line {line}: not valid UTF-8 text; {save_as}") from None
+    return p, text
