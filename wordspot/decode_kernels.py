@@ -105,10 +105,16 @@ def _link_logp(v, w, unigram, backoff, pair_first, pair_next, pair_logp, single_
         return _NEG
     if v > 0 and w > 0 and single_word:
         return _NEG
+    # binary search of w among v's listed next words (sorted), without making a view
     lo, hi = pair_first[v], pair_first[v + 1]
-    k = lo + np.searchsorted(pair_next[lo:hi], w)
-    if k < hi and pair_next[k] == w:
-        return pair_logp[k]
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if pair_next[mid] < w:
+            lo = mid + 1
+        else:
+            hi = mid
+    if lo < pair_first[v + 1] and pair_next[lo] == w:
+        return pair_logp[lo]
     return backoff[v] + unigram[w]
 
 
@@ -161,6 +167,9 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
     end_link = np.zeros(n_words, dtype=np.int64)
     enter = np.full(n_words, _NEG)
     enter_from = np.zeros(n_words, dtype=np.int64)
+    row_logp = np.empty(n_words)
+    row_stamp = np.full(n_words, -1, dtype=np.int64)  # row_logp[w] holds v's pair iff == stamp
+    stamp = -1
     scratch = np.empty(n_states)
 
     # Entries waiting for the next frame (state, score before emission, link, start).
@@ -330,13 +339,35 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                     enter[w] = cand
                     enter_from[w] = end_link[v]
         if top_v >= 0:
-            # Listed pairs of the best back-off source: its back-off term does not apply.
-            for k in range(pair_first[top_v], pair_first[top_v + 1]):
+            # Listed pairs of the best back-off source: its back-off term does not apply, so
+            # these next words take the best over every word end afresh (what _best_link
+            # computes, the same sums in the same order, with v's listed pairs looked up in
+            # a stamped row instead of searched once per pair).
+            lo, hi = pair_first[top_v], pair_first[top_v + 1]
+            for k in range(lo, hi):
                 w = pair_next[k]
                 if w > 0:
-                    enter[w], enter_from[w] = _best_link(w, ended, n_ended, end_score, end_link, unigram,
-                                                         backoff, pair_first, pair_next, pair_logp,
-                                                         single_word, allow_empty)
+                    enter[w] = _NEG
+                    enter_from[w] = -1
+            for j in range(n_ended):
+                v = ended[j]
+                if v > 0 and single_word:
+                    continue  # every link v -> w > 0 is -inf: never better
+                stamp += 1
+                for q in range(pair_first[v], pair_first[v + 1]):
+                    row_logp[pair_next[q]] = pair_logp[q]
+                    row_stamp[pair_next[q]] = stamp
+                for k in range(lo, hi):
+                    w = pair_next[k]
+                    if w == 0:
+                        continue
+                    if row_stamp[w] == stamp:
+                        cand = end_score[v] + row_logp[w]
+                    else:
+                        cand = end_score[v] + (backoff[v] + unigram[w])
+                    if cand > enter[w]:
+                        enter[w] = cand
+                        enter_from[w] = end_link[v]
         enter[0], enter_from[0] = _best_link(0, ended, n_ended, end_score, end_link, unigram, backoff,
                                              pair_first, pair_next, pair_logp, single_word, allow_empty)
         for j in range(n_ended):
