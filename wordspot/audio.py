@@ -186,23 +186,33 @@ def load_audio(path, *, sample_rate: int = 16000) -> np.ndarray:
         raise AudioError(f"sample_rate must be a positive whole number of Hz, got {sample_rate!r}")
     p = _as_path(path)
     _check_exists(p)
-    info = _open_info(p)
-    if info.samplerate <= 0:
-        raise AudioError(f"{p}: header gives sample rate {info.samplerate}; the file is damaged")
-    shortfall = _wav_data_shortfall(p)
-    if shortfall is not None:
-        promised, present = shortfall
-        raise AudioError(
-            f"{p}: file is truncated (header promises {promised} bytes of samples, "
-            f"only {max(present, 0)} are there); copy or record it again"
-        )
+    # One open for header and samples (the header errors as _open_info words them).
     try:
-        data, file_rate = soundfile.read(str(p), dtype="float32", always_2d=True)
-    except (RuntimeError, soundfile.SoundFileError, OSError, ValueError, MemoryError) as exc:
+        handle = soundfile.SoundFile(str(p))
+    except (RuntimeError, soundfile.SoundFileError, OSError, ValueError) as exc:
         raise AudioError(
-            f"{p}: cannot read the samples ({_short(exc)}); the file may be damaged or truncated; "
-            "re-export it as WAV or FLAC"
+            f"{p}: cannot read this audio file ({_short(exc)}); "
+            "it may be damaged, truncated or in an unsupported format; re-export it as WAV or FLAC"
         ) from None
+    with handle:
+        file_rate = handle.samplerate
+        if file_rate <= 0:
+            raise AudioError(f"{p}: header gives sample rate {file_rate}; the file is damaged")
+        # only RIFF/WAVE files can be cut short unnoticed (see _wav_data_shortfall)
+        shortfall = _wav_data_shortfall(p) if str(handle.format).startswith("WAV") else None
+        if shortfall is not None:
+            promised, present = shortfall
+            raise AudioError(
+                f"{p}: file is truncated (header promises {promised} bytes of samples, "
+                f"only {max(present, 0)} are there); copy or record it again"
+            )
+        try:
+            data = handle.read(dtype="float32", always_2d=True)
+        except (RuntimeError, soundfile.SoundFileError, OSError, ValueError, MemoryError) as exc:
+            raise AudioError(
+                f"{p}: cannot read the samples ({_short(exc)}); the file may be damaged or truncated; "
+                "re-export it as WAV or FLAC"
+            ) from None
     if data.shape[0] == 0 or data.shape[1] == 0:
         raise AudioError(f"{p}: holds no samples; record the command again")
     wave = data.mean(axis=1, dtype=np.float64).astype(np.float32) if data.shape[1] > 1 else data[:, 0]

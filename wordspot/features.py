@@ -446,9 +446,11 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
     warp = float(warp)
     if s.preemphasis > 0:
         y = np.concatenate([y[:1], y[1:] - s.preemphasis * y[:-1]])
-    window = np.hamming(s.window_length)  # symmetric: 0.54 - 0.46 cos(2 pi n / (N - 1))
-    frames = _frames(y, s.window_length, s.hop_length) * window
-    spectrum = np.fft.rfft(frames, n=s.n_fft, axis=1)
+    # windowed frames written straight into the zero-padded FFT input (one pass, no copies)
+    view = _frames(y, s.window_length, s.hop_length)
+    frames = np.zeros((view.shape[0], s.n_fft))
+    np.multiply(view, _hamming(s.window_length), out=frames[:, : s.window_length])
+    spectrum = scipy.fft.rfft(frames, axis=1, overwrite_x=True)
     power = spectrum.real**2 + spectrum.imag**2
     mel = power @ _cached_filterbank(s, warp)
     logmel = np.log(np.maximum(mel, LOG_FLOOR))
@@ -467,6 +469,19 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
         # a constant column (digital silence) stays zero instead of dividing by zero
         feats = feats / np.where(sd > _CVN_MIN_SD, sd, 1.0)
     return np.ascontiguousarray(feats, dtype=np.float32)
+
+
+_HAMMING: dict[int, np.ndarray] = {}
+
+
+def _hamming(length: int) -> np.ndarray:
+    """Symmetric Hamming window ``0.54 - 0.46 cos(2 pi n / (N - 1))`` (numpy's), cached."""
+    win = _HAMMING.get(length)
+    if win is None:
+        if len(_HAMMING) > 8:
+            _HAMMING.clear()
+        win = _HAMMING[length] = np.hamming(length)
+    return win
 
 
 #: Columns whose standard deviation is below this are left undivided by ``cvn``.
