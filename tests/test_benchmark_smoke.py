@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 sys.path.insert(0, str(Path(__file__).resolve().parent / "benchmarks"))
-from baselines import TemplateDTW, WholeWordHMM, frame_distances, uniform_segments  # noqa: E402
+from baselines import TemplateDTW, WholeWordHMM, dtw_costs, frame_distances, uniform_segments  # noqa: E402
 
 
 def _word(rng, means, length):
@@ -54,3 +54,28 @@ def test_template_dtw_separates_words(problem, per_word, band):
     rec = TemplateDTW(per_word=per_word, band=band).fit(train)
     assert len(rec.templates_) == (8 if per_word is None else 4)
     assert [rec.predict(x) for _, x in test] == [w for w, _ in test]
+
+
+@pytest.mark.parametrize("band", [None, 0.0, 0.1, 0.25, 0.5, 1.0])
+def test_compiled_dtw_equals_librosa(rng, band):
+    # Reference: librosa.sequence.dtw (default steps and weights; band via its
+    # fill_off_diagonal), called once per template; the compiled copy must give the same
+    # doubles, for templates shorter, as long as and longer than the query.
+    query = rng.normal(size=(23, 5))
+    lengths = [1, 2, 7, 22, 23, 24, 40, 61]
+    templates = [rng.normal(size=(n, 5)) for n in lengths]
+    stack = np.concatenate(templates)
+    edges = np.cumsum([0] + lengths)
+    want = dtw_costs(query, stack, edges, band, engine="librosa")
+    got = dtw_costs(query, stack, edges, band, engine="compiled")
+    np.testing.assert_array_equal(got, want)
+
+
+def test_template_dtw_engines_agree(problem):
+    # Same costs (previous test), hence the same medoids and the same scores.
+    train, test = problem
+    a = TemplateDTW(per_word=2, band=0.25, engine="librosa").fit(train)
+    b = TemplateDTW(per_word=2, band=0.25, engine="compiled").fit(train)
+    assert [len(t) for t in a.templates_] == [len(t) for t in b.templates_]
+    for _, x in test:
+        np.testing.assert_array_equal(a.scores(x), b.scores(x))

@@ -7,8 +7,9 @@ of. Neither can recognise a word it has no recordings of.
 * :class:`WholeWordHMM` -- one left-to-right Gaussian (mixture) HMM per word, trained and
   scored with hmmlearn; states initialised by cutting every example into equal parts.
 * :class:`TemplateDTW` -- nearest template by dynamic time warping
-  (``librosa.sequence.dtw``), Euclidean frame distance, optional band and length
-  normalisation, all examples or a few medoids per word as templates.
+  (``librosa.sequence.dtw``, or our compiled copy of its recurrence that gives the same
+  costs), Euclidean frame distance, optional band and length normalisation, all examples
+  or a few medoids per word as templates.
 
 These are benchmark baselines, not part of the package.
 """
@@ -19,10 +20,11 @@ import logging
 import warnings
 from typing import Mapping, Sequence
 
+import numba
 import numpy as np
 
 __all__ = ["WholeWordHMM", "TemplateDTW", "uniform_segments", "frame_distances", "dtw_costs",
-           "pairwise_costs", "normalised", "medoids"]
+           "pairwise_costs", "normalised", "medoids", "ENGINES"]
 
 
 def uniform_segments(length: int, n_parts: int) -> np.ndarray:
@@ -192,6 +194,9 @@ def frame_distances(query: np.ndarray, templates: np.ndarray) -> np.ndarray:
     return np.sqrt(sq, out=sq)
 
 
+ENGINES = ("compiled", "librosa")
+
+
 def _dtw_cost(cost: np.ndarray, band: float | None) -> float:
     from librosa.sequence import dtw
 
@@ -202,7 +207,53 @@ def _dtw_cost(cost: np.ndarray, band: float | None) -> float:
     return float(acc[-1, -1])
 
 
-def dtw_costs(query: np.ndarray, stack: np.ndarray, edges: np.ndarray, band: float | None) -> np.ndarray:
+def _band_radii(lengths: np.ndarray, n_query: int, band: float | None) -> np.ndarray:
+    """Band radius in frames of every (template, query) pair, as librosa's
+    ``fill_off_diagonal`` rounds it (``np.round(band * min(shape))``); -1 for no band."""
+    if band is None:
+        return np.full(len(lengths), -1, dtype=np.int64)
+    return np.round(band * np.minimum(lengths, n_query)).astype(np.int64)
+
+
+@numba.njit(cache=True, nogil=True)
+def _accumulate_last(cost, edges, radii, row):
+    """Last cell of the accumulated cost of every template's rows of ``cost`` (see dtw_costs)."""
+    n_templates = len(edges) - 1
+    n_cols = cost.shape[1]
+    out = np.empty(n_templates)
+    for i in range(n_templates):
+        lo, n_rows = edges[i], edges[i + 1] - edges[i]
+        r = radii[i]
+        offset = abs(n_rows - n_cols)
+        # cells librosa's fill_off_diagonal sets to inf: j - i >= upper or i - j >= lower
+        upper, lower = (r + offset, r) if n_rows < n_cols else (r, r + offset)
+        diag = np.inf  # D[n-1, m-1] for the cell being filled
+        for n in range(n_rows):
+            for m in range(n_cols):
+                c = cost[lo + n, m]
+                if r >= 0 and (m - n >= upper or n - m >= lower):
+                    c = np.inf
+                if n == 0 and m == 0:
+                    best = np.inf
+                    here = c
+                else:
+                    # steps (1, 1), (0, 1), (1, 0) in librosa's order; min then one addition
+                    # gives the same double as librosa's per-step sums (rounding is monotonic)
+                    best = diag if (n > 0 and m > 0) else np.inf
+                    if m > 0 and row[m - 1] < best:
+                        best = row[m - 1]
+                    if n > 0 and row[m] < best:
+                        best = row[m]
+                    here = best + c
+                diag = row[m]
+                row[m] = here
+            diag = np.inf
+        out[i] = row[n_cols - 1]
+    return out
+
+
+def dtw_costs(query: np.ndarray, stack: np.ndarray, edges: np.ndarray, band: float | None,
+              *, engine: str = "compiled") -> np.ndarray:
     """Accumulated DTW cost (not normalised) from ``query`` to each stacked template.
 
     Parameters
@@ -214,23 +265,34 @@ def dtw_costs(query: np.ndarray, stack: np.ndarray, edges: np.ndarray, band: flo
         Template i is ``stack[edges[i]:edges[i + 1]]``.
     band : float or None
         Sakoe-Chiba band radius (librosa's ``band_rad``), None for no band.
+    engine : {"compiled", "librosa"}
+        ``"librosa"`` calls ``librosa.sequence.dtw`` once per template; ``"compiled"`` runs
+        the same recurrence (default steps and weights, the same band cells) in one
+        compiled loop over all templates and returns the same numbers
+        (``tests/test_benchmark_smoke.py`` checks this), without the per-call overhead.
 
     Returns
     -------
     np.ndarray, shape (n_templates,)
     """
     c = frame_distances(query, stack)
-    return np.array([_dtw_cost(c[edges[i]:edges[i + 1]], band) for i in range(len(edges) - 1)])
+    if engine == "librosa":
+        return np.array([_dtw_cost(c[edges[i]:edges[i + 1]], band) for i in range(len(edges) - 1)])
+    if engine != "compiled":
+        raise ValueError(f"engine must be one of {ENGINES}, got {engine!r}")
+    edges = np.asarray(edges, dtype=np.int64)
+    radii = _band_radii(np.diff(edges), c.shape[1], band)
+    return _accumulate_last(c, edges, radii, np.empty(c.shape[1]))
 
 
-def pairwise_costs(seqs: Sequence[np.ndarray], band: float | None) -> np.ndarray:
+def pairwise_costs(seqs: Sequence[np.ndarray], band: float | None, *, engine: str = "compiled") -> np.ndarray:
     """Symmetric matrix of DTW costs (not normalised) between all pairs of ``seqs``."""
     n = len(seqs)
     out = np.zeros((n, n))
     for i in range(n - 1):
         rest = seqs[i + 1:]
         edges = np.cumsum([0] + [len(s) for s in rest])
-        out[i, i + 1:] = dtw_costs(seqs[i], np.concatenate(rest), edges, band)
+        out[i, i + 1:] = dtw_costs(seqs[i], np.concatenate(rest), edges, band, engine=engine)
     return out + out.T
 
 
@@ -268,13 +330,20 @@ class TemplateDTW:
         None: no band.
     normalise : bool
         Divide the accumulated cost by the sum of the two lengths.
+    engine : {"librosa", "compiled"}
+        Who accumulates the DTW cost (see :func:`dtw_costs`): librosa's function, as a
+        practitioner would call it, or our compiled copy of the same recurrence (the same
+        costs, hence the same templates and answers, without librosa's per-call overhead).
     """
 
     def __init__(self, *, per_word: int | None = None, band: float | None = None,
-                 normalise: bool = True):
+                 normalise: bool = True, engine: str = "librosa"):
+        if engine not in ENGINES:
+            raise ValueError(f"engine must be one of {ENGINES}, got {engine!r}")
         self.per_word = per_word
         self.band = band
         self.normalise = normalise
+        self.engine = engine
 
     def fit(self, examples: Mapping[str, Sequence[np.ndarray]]) -> "TemplateDTW":
         """Keep templates from ``{word: [frames (T, D), ...]}``."""
@@ -282,7 +351,7 @@ class TemplateDTW:
         for word in sorted(examples):
             seqs = [np.asarray(s, dtype=np.float64) for s in examples[word]]
             if self.per_word is not None and self.per_word < len(seqs):
-                dist = pairwise_costs(seqs, self.band)
+                dist = pairwise_costs(seqs, self.band, engine=self.engine)
                 if self.normalise:
                     lens = np.array([len(s) for s in seqs])
                     dist = normalised(dist, lens[:, None], lens[None, :])
@@ -298,7 +367,7 @@ class TemplateDTW:
     def scores(self, frames: np.ndarray) -> np.ndarray:
         """DTW cost from ``frames`` to every template, shape (n_templates,); lower is closer."""
         q = np.asarray(frames, dtype=np.float64)
-        out = dtw_costs(q, self._stack, self._edges, self.band)
+        out = dtw_costs(q, self._stack, self._edges, self.band, engine=self.engine)
         return normalised(out, np.diff(self._edges), len(q)) if self.normalise else out
 
     def predict(self, frames: np.ndarray) -> str:
