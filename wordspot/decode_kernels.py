@@ -56,6 +56,9 @@ NO_EXIT = 2
 LINK_FIELDS = ("word", "pron", "start", "phone_end", "end", "previous")
 
 _ENTRY, _EXIT, _FIRST = 0, 1, 2
+# Columns of a token's integers (kept together, one cache line per state): the link it
+# came from, the frame its item began, the frame its phones ended (-1: not yet).
+_LINK, _START, _PEND = 0, 1, 2
 _NEG = -np.inf
 
 
@@ -145,15 +148,11 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
     n_words = unigram.shape[0]  # V + 1 including the boundary
 
     cur = np.full(n_states, _NEG)
-    cur_link = np.zeros(n_states, dtype=np.int64)
-    cur_start = np.zeros(n_states, dtype=np.int64)
-    cur_pend = np.zeros(n_states, dtype=np.int64)
+    cur_meta = np.zeros((n_states, 3), dtype=np.int64)  # _LINK, _START, _PEND per state
     cur_act = np.empty(n_states, dtype=np.int64)
     n_cur = 0
     nxt = np.full(n_states, _NEG)
-    nxt_link = np.zeros(n_states, dtype=np.int64)
-    nxt_start = np.zeros(n_states, dtype=np.int64)
-    nxt_pend = np.zeros(n_states, dtype=np.int64)
+    nxt_meta = np.zeros((n_states, 3), dtype=np.int64)
     nxt_act = np.empty(n_states, dtype=np.int64)
     n_nxt = 0
 
@@ -198,9 +197,9 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                             nxt_act[n_nxt] = s
                             n_nxt += 1
                         nxt[s] = cand
-                        nxt_link[s] = cur_link[s]
-                        nxt_start[s] = cur_start[s]
-                        nxt_pend[s] = cur_pend[s]
+                        nxt_meta[s, _LINK] = cur_meta[s, _LINK]
+                        nxt_meta[s, _START] = cur_meta[s, _START]
+                        nxt_meta[s, _PEND] = cur_meta[s, _PEND]
                 for e in range(arc_first[s], arc_first[s + 1]):
                     d = arc_dst[e]
                     cand = sc + arc_logp[e]
@@ -209,12 +208,12 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                             nxt_act[n_nxt] = d
                             n_nxt += 1
                         nxt[d] = cand
-                        nxt_link[d] = cur_link[s]
-                        nxt_start[d] = cur_start[s]
+                        nxt_meta[d, _LINK] = cur_meta[s, _LINK]
+                        nxt_meta[d, _START] = cur_meta[s, _START]
                         if tail[d] and not tail[s]:
-                            nxt_pend[d] = t - 1
+                            nxt_meta[d, _PEND] = t - 1
                         else:
-                            nxt_pend[d] = cur_pend[s]
+                            nxt_meta[d, _PEND] = cur_meta[s, _PEND]
         # 2. emissions, for moved tokens and waiting entries.
         best = _NEG
         for i in range(n_nxt):
@@ -246,9 +245,9 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                     nxt_act[n_nxt] = s
                     n_nxt += 1
                 nxt[s] = cand
-                nxt_link[s] = pend_link[i]
-                nxt_start[s] = t
-                nxt_pend[s] = -1
+                nxt_meta[s, _LINK] = pend_link[i]
+                nxt_meta[s, _START] = t
+                nxt_meta[s, _PEND] = -1
         n_pend = 0
         thr = best - beam
         if n_nxt > max_active:
@@ -270,9 +269,7 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
         for i in range(n_cur):
             cur[cur_act[i]] = _NEG
         cur, nxt = nxt, cur
-        cur_link, nxt_link = nxt_link, cur_link
-        cur_start, nxt_start = nxt_start, cur_start
-        cur_pend, nxt_pend = nxt_pend, cur_pend
+        cur_meta, nxt_meta = nxt_meta, cur_meta
         cur_act, nxt_act = nxt_act, cur_act
         n_cur = n_nxt
         n_nxt = 0
@@ -306,10 +303,10 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
             links_int, links_score = _grow(links_int, links_score, n_links)
             links_int[n_links, 0] = w
             links_int[n_links, 1] = item[s] - _FIRST
-            links_int[n_links, 2] = cur_start[s]
-            links_int[n_links, 3] = cur_pend[s] if cur_pend[s] >= 0 else t
+            links_int[n_links, 2] = cur_meta[s, _START]
+            links_int[n_links, 3] = cur_meta[s, _PEND] if cur_meta[s, _PEND] >= 0 else t
             links_int[n_links, 4] = t
-            links_int[n_links, 5] = cur_link[s]
+            links_int[n_links, 5] = cur_meta[s, _LINK]
             links_score[n_links] = end_score[w]
             end_link[w] = n_links
             n_links += 1
@@ -394,7 +391,7 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
             sc = cur[s] + end_logp[s]
             if sc > final:
                 final = sc
-                final_link = cur_link[s]
+                final_link = cur_meta[s, _LINK]
     status = OK if final > _NEG else NO_EXIT
     return status, final, final_link, links_int[:n_links], links_score[:n_links], n_links
 
