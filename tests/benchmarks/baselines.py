@@ -158,6 +158,32 @@ class WholeWordHMM:
             for w in self.words_]
         return self
 
+    @classmethod
+    def fit_grid(cls, examples: Mapping[str, Sequence[np.ndarray]], grid: Sequence[tuple[int, int]], *,
+                 n_iter: int = 10, seed: int = 0, n_jobs: int = 1) -> dict:
+        """One recogniser per ``(n_states, n_mix)`` of ``grid``, every (setting, word) model
+        trained as one joblib task (largest first), so the workers stay evenly busy.
+
+        Returns
+        -------
+        dict (n_states, n_mix) -> WholeWordHMM
+            The same models as ``WholeWordHMM(n_states=..., n_mix=...).fit(examples)``.
+        """
+        from joblib import Parallel, delayed
+
+        words = sorted(examples)
+        tasks = sorted(((s, m, w) for s, m in grid for w in words), key=lambda k: -k[0] * k[1])
+        fitted = Parallel(n_jobs=n_jobs)(delayed(_fit_word)(examples[w], s, m, n_iter, seed)
+                                         for s, m, w in tasks)
+        by_task = dict(zip(tasks, fitted))
+        out = {}
+        for s, m in grid:
+            rec = cls(n_states=s, n_mix=m, n_iter=n_iter, seed=seed, n_jobs=n_jobs)
+            rec.words_ = words
+            rec.models_ = [by_task[(s, m, w)] for w in words]
+            out[(s, m)] = rec
+        return out
+
     def scores(self, frames: np.ndarray) -> np.ndarray:
         """Forward log-likelihood of ``frames`` under every word's model, shape (n_words,)."""
         x = np.asarray(frames, dtype=np.float64)
