@@ -331,3 +331,20 @@ def test_warping_moves_a_tone_to_the_expected_band(tone_hz):
         peaks[a] = int(np.argmax(band_energy))
         assert peaks[a] == int(np.argmin(np.abs(centres - a * tone_hz)))
     assert peaks[0.88] < peaks[1.0] < peaks[1.12]
+
+
+def test_scratch_reuse_keeps_calls_independent(rng):
+    # compute_features reuses per-thread work arrays between calls; a longer call, a
+    # shorter one and calls from other threads at the same time must each give what a
+    # first call gives (common practice for reused buffers, no source).
+    from concurrent.futures import ThreadPoolExecutor
+
+    waves = [rng.normal(size=n).astype(np.float32) for n in (16000, 4000, 24000, 4000)]
+    want = [compute_features(w) for w in waves]
+    again = [compute_features(w) for w in reversed(waves)][::-1]
+    for a, b in zip(want, again):
+        np.testing.assert_array_equal(a, b)
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        got = list(pool.map(compute_features, waves * 4))
+    for i, g in enumerate(got):
+        np.testing.assert_array_equal(g, want[i % len(waves)])

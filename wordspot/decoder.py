@@ -23,7 +23,7 @@ import numpy as np
 
 from wordspot import decode_kernels
 from wordspot.errors import DecodingError, WordspotError
-from wordspot.features import compute_features
+from wordspot.features import _scratch, compute_features
 from wordspot.gmm import Mixtures, scoring_matrix
 from wordspot.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
 from wordspot.network import Network, compile_network
@@ -208,7 +208,9 @@ class Recognizer:
             self._scoring = scoring_matrix(self.mixtures)
         w, c = self._scoring
         x = np.asarray(frames, dtype=np.float64)
-        comp = np.concatenate([x * x, x], axis=1) @ w + c
+        comp = _scratch("component_scores", (x.shape[0], w.shape[1]), np.float64)
+        np.matmul(np.concatenate([x * x, x], axis=1), w, out=comp)
+        comp += c
         comp = comp.reshape(x.shape[0], self.mixtures.n_pdfs, self.mixtures.n_components)
         return decode_kernels.mixture_logsumexp(comp)
 
