@@ -74,7 +74,7 @@ def test_default_settings_match_design_notes():
 
 
 def test_mfcc_matches_librosa_on_vowel(rng):
-    s = FeatureSettings(cmn=False, delta_order=0, lifter=0)
+    s = FeatureSettings(cmn=False, cvn=False, delta_order=0, lifter=0)
     y = vowel_like(rng)
     ours = compute_features(y, s)
     pre = preemphasised(y, s.preemphasis)
@@ -96,8 +96,8 @@ def test_lifter_is_the_published_bandpass_lifter(rng):
     # Juang, Rabiner & Wilpon (1987): w_n = 1 + (L/2) sin(pi n / L), n counted from c0 (from memory).
     # librosa numbers the same weights from 1 (its c0 is scaled too); we leave c0 as it is.
     y = vowel_like(rng, seconds=0.5)
-    plain = compute_features(y, FeatureSettings(cmn=False, delta_order=0, lifter=0))
-    liftered = compute_features(y, FeatureSettings(cmn=False, delta_order=0, lifter=22))
+    plain = compute_features(y, FeatureSettings(cmn=False, cvn=False, delta_order=0, lifter=0))
+    liftered = compute_features(y, FeatureSettings(cmn=False, cvn=False, delta_order=0, lifter=22))
     n = np.arange(13)
     np.testing.assert_allclose(liftered, plain * (1 + 11 * np.sin(np.pi * n / 22)), rtol=1e-5, atol=1e-5)
     np.testing.assert_allclose(lifter_weights(13, 0), np.ones(13), rtol=0, atol=0)
@@ -164,7 +164,7 @@ def test_deltas_match_librosa(rng):
 
 def test_features_stack_deltas_of_deltas(rng):
     y = vowel_like(rng, seconds=0.6) * np.linspace(0.2, 1.0, int(0.6 * SR))
-    s = FeatureSettings(cmn=False)
+    s = FeatureSettings(cmn=False, cvn=False)
     full = compute_features(y, s).astype(np.float64)
     static = full[:, :13]
     # delta-deltas are the regression slope applied twice (common practice), reference: librosa
@@ -176,10 +176,10 @@ def test_features_stack_deltas_of_deltas(rng):
 
 def test_cmn_zeroes_every_column_mean(rng):
     y = vowel_like(rng, seconds=0.8)
-    feats = compute_features(y, FeatureSettings())
+    feats = compute_features(y, FeatureSettings(cvn=False))
     assert feats.shape[1] == 39 and feats.dtype == np.float32
     np.testing.assert_allclose(feats.mean(axis=0), 0.0, atol=1e-4)
-    raw = compute_features(y, FeatureSettings(cmn=False))
+    raw = compute_features(y, FeatureSettings(cmn=False, cvn=False))
     np.testing.assert_allclose(feats, raw - raw.mean(axis=0), atol=1e-4, rtol=0)
 
 
@@ -197,7 +197,9 @@ def test_digital_silence_gives_finite_features():
 def test_settings_round_trip_and_validation():
     s = FeatureSettings(sample_rate=8000, n_mels=20, fmax=3800.0)
     assert FeatureSettings.from_dict(s.to_dict()) == s
-    assert FeatureSettings.from_dict({}) == FeatureSettings()
+    # keys a settings dict lacks take today's defaults, except cvn / static_c0 (older models, see below)
+    assert FeatureSettings.from_dict({}) == FeatureSettings(cvn=False)
+    assert FeatureSettings().cvn is True
     plain = FeatureSettings(n_mels=np.int64(24), window_ms=25, fmax=np.float32(7000)).to_dict()
     assert json.loads(json.dumps(plain)) == plain and type(plain["n_mels"]) is int
     with pytest.raises(FeatureError, match="unknown feature setting.*n_mel\\b"):
@@ -266,7 +268,7 @@ def test_cvn_gives_zero_mean_unit_variance_per_column(rng):
     feats = compute_features(y, s).astype(np.float64)
     np.testing.assert_allclose(feats.mean(axis=0), 0.0, atol=1e-4)
     np.testing.assert_allclose(feats.std(axis=0), 1.0, atol=1e-4)
-    raw = compute_features(y, FeatureSettings(cmn=False)).astype(np.float64)
+    raw = compute_features(y, FeatureSettings(cmn=False, cvn=False)).astype(np.float64)
     np.testing.assert_allclose(feats, (raw - raw.mean(axis=0)) / raw.std(axis=0), atol=1e-3)
 
 
@@ -279,8 +281,8 @@ def test_cvn_keeps_digital_silence_finite_and_needs_cmn():
 
 def test_dropping_static_c0_removes_only_that_column(rng):
     y = vowel_like(rng, seconds=0.6)
-    full = compute_features(y, FeatureSettings(cmn=False))
-    s = FeatureSettings(cmn=False, static_c0=False)
+    full = compute_features(y, FeatureSettings(cmn=False, cvn=False))
+    s = FeatureSettings(cmn=False, cvn=False, static_c0=False)
     assert s.dim == 38
     np.testing.assert_array_equal(compute_features(y, s), full[:, 1:])
 

@@ -47,6 +47,16 @@ def test_plans_depend_only_on_the_seed():
     assert all(0.0 <= v <= 25.0 for v in snrs)
 
 
+def test_default_kinds_draw_babble_two_times_in_three():
+    # each copy draws one listed kind with equal chance (NoiseSettings docstring); babble is listed twice.
+    # 1,200 draws: the share of babble has sd sqrt(p(1-p)/n) = 0.014 (binomial), so 0.62-0.71 is +-3 sd.
+    plans = plan_copies([f"s{k}" for k in range(400)], NoiseSettings(copies=3), seed=1)
+    share = sum(p.kind == "babble" for p in plans) / len(plans)
+    assert len(plans) == 1200 and 0.62 < share < 0.71
+    only_steady = plan_copies(["a", "b"] * 5, NoiseSettings(copies=2, kinds=("steady",)), seed=1)
+    assert {p.kind for p in only_steady} == {"steady"} and all(p.talkers == () for p in only_steady)
+
+
 @pytest.fixture
 def tiny(tmp_path, rng):
     manifest, lexicon = make_corpus(tmp_path, rng, n_utterances=6)

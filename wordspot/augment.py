@@ -52,19 +52,21 @@ class NoiseSettings:
     snr_db : (float, float)
         Each copy's SNR is drawn uniformly from this range (dB, low <= high).
     kinds : tuple of str
-        Noise kinds to draw from with equal chance (see :data:`NOISE_KINDS`).
+        Noise kinds (see :data:`NOISE_KINDS`); each copy draws one entry with equal chance,
+        so a kind listed twice comes twice as often. The default draws babble two times in
+        three: on held-out voices that cut 10 dB errors from 23.6% to 20.4% (DEVELOPERS.md).
     talkers : (int, int)
         Babble is made of this many talker streams (drawn uniformly, inclusive).
     """
 
     copies: int = 0
     snr_db: tuple[float, float] = (0.0, 25.0)
-    kinds: tuple[str, ...] = NOISE_KINDS
+    kinds: tuple[str, ...] = ("babble", "babble", "steady")
     talkers: tuple[int, int] = (3, 6)
 
     def __post_init__(self) -> None:
         if isinstance(self.copies, bool) or not isinstance(self.copies, (int, np.integer)) or self.copies < 0:
-            raise AugmentError(f"noise copies must be a whole number >= 0 (1 is usual), got {self.copies!r}")
+            raise AugmentError(f"noise copies must be a whole number >= 0 (2 is usual), got {self.copies!r}")
         lo, hi = _pair(self.snr_db, "snr_db")
         if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
             raise AugmentError(f"snr_db must be a finite range low <= high in dB (e.g. 0 25), got {self.snr_db!r}")

@@ -88,7 +88,9 @@ class FeatureSettings:
         Subtract each utterance's mean from every feature column.
     cvn : bool
         Also divide every column by its standard deviation over the utterance (needs
-        ``cmn``); evens out how loud and how "bright" a talker is.
+        ``cmn``); evens out how loud and how "bright" a talker is, and how much noise has
+        flattened the spectrum. On by default since it cut 10 dB single-word errors on
+        held-out voices from 42.5% to 35.6% (clean 1.1% to 0.4%; DEVELOPERS.md).
     static_c0 : bool
         Keep the static c0 column (False drops it; its deltas are kept).
     fmin : float >= 0
@@ -109,7 +111,7 @@ class FeatureSettings:
     delta_window: int = 2
     delta_order: int = 2
     cmn: bool = True
-    cvn: bool = False
+    cvn: bool = True
     static_c0: bool = True
     fmin: float = 0.0
     fmax: float | None = None
@@ -215,7 +217,8 @@ def _validate(s: FeatureSettings) -> None:
         if not isinstance(getattr(s, name), (bool, np.bool_)):
             raise bad(name, "must be true or false")
     if s.cvn and not s.cmn:
-        raise bad("cvn", "needs cmn=True (variance normalisation works on mean-normalised columns)")
+        raise bad("cvn", "needs cmn=True (variance normalisation works on mean-normalised columns); "
+                  "with cmn=False pass cvn=False too")
     if not s.static_c0 and s.delta_order == 0 and s.n_cepstra == 1:
         raise bad("static_c0", "dropping c0 would leave no features (keep c0 or add deltas)")
     if s.sample_rate < 1000 or s.sample_rate > 192000:

@@ -102,6 +102,9 @@ class TrainingConfig:
     noise_copies : int >= 0
         Noisy copies of every recording for multi-condition training (babble or steady
         machine noise; see :mod:`wordspot.training_noise`); 0 trains on the clean ones only.
+        The default 2 (with ``FeatureSettings.cvn``) cut 10 dB single-word errors on
+        held-out voices from 35.6% (one copy) to 23.6% (DEVELOPERS.md); each copy is babble
+        two times in three (``NoiseSettings.kinds``).
     noise_snr_db : (float, float)
         Each noisy copy's SNR in dB, drawn uniformly from this range.
     """
@@ -118,7 +121,7 @@ class TrainingConfig:
     prune: float = 1e-4
     warp_factors: tuple[float, ...] = (1.0,)
     speed_factors: tuple[float, ...] = (0.9, 1.0, 1.1)
-    noise_copies: int = 1
+    noise_copies: int = 2
     noise_snr_db: tuple[float, float] = (0.0, 25.0)
 
     def __post_init__(self) -> None:
@@ -535,6 +538,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         "speed_factors": list(config.speed_factors),
         "noise_copies": int(config.noise_copies),
         "noise_snr_db": [float(v) for v in config.noise_snr_db],
+        "noise_kinds": list(config.noise.kinds),
         "unseen_units": list(summary.unseen_units),
     }
     model = AcousticModel(features=settings, units=units, mixtures=mix, lexicon=lexicon,

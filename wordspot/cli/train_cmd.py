@@ -18,7 +18,7 @@ _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --jobs 2
-  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --noise-copies 2
+  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --noise-copies 3
   wordspot train phone-takes/train.csv --lexicon lexicon/bakery.txt --out phone.model --sample-rate 8000
 
 The manifest is a CSV file with columns path,transcript,speaker (paths relative to the
