@@ -278,16 +278,39 @@ def test_files_batch_continues_past_failures(rng, tmp_path):
 
 
 def test_emissions_equal_mixture_scoring(rng):
-    # Reference: wordspot.gmm.log_likelihoods (scipy logsumexp) on the network's pdfs,
-    # and the compiled log-sum-exp against scipy's on random component scores.
+    # Reference: wordspot.gmm.log_likelihoods (double precision, scipy logsumexp) on the
+    # network's pdfs, and the compiled log-sum-exp against scipy's on random component
+    # scores. Emissions are scored in float32: IEEE 754 single precision has unit roundoff
+    # 2^-24 = 6e-8, so a score of magnitude ~200 built from ~80 products may be off by a
+    # few 1e-5 relative at worst (rounding-error bound n u, Higham 2002, ch. 3).
     model = tiny_model(rng, ENTRIES, n_components=3)
     rec = build_recognizer(model)
     frames = rng.normal(size=(50, 39)) * 3.0
     want = log_likelihoods(frames, model.mixtures, rec.network.used_pdfs)
-    np.testing.assert_allclose(rec.emissions(frames), want, rtol=1e-12)
+    got = rec.emissions(frames)
+    assert got.dtype == np.float64 and got.shape == want.shape
+    np.testing.assert_allclose(got, want, rtol=2e-5, atol=1e-3)
     comp = rng.normal(size=(7, 5, 4)) * 30.0
     comp[2, 1, :] = -np.inf
     comp[3, 2, 1:] = -np.inf
-    np.testing.assert_allclose(
-        decode_kernels.mixture_logsumexp(comp), decode_kernels.mixture_logsumexp_reference(comp), rtol=1e-12
-    )
+    ref = decode_kernels.mixture_logsumexp_reference(comp)
+    # float64 input: only the terms exp(score - max) <= 1 are summed in float32 (error ~1e-7)
+    np.testing.assert_allclose(decode_kernels.mixture_logsumexp(comp), ref, rtol=0, atol=1e-6)
+    big = rng.normal(size=(40, 30, 8)) * 30.0  # more than one block of mixtures
+    np.testing.assert_allclose(decode_kernels.mixture_logsumexp(big),
+                               decode_kernels.mixture_logsumexp_reference(big), rtol=0, atol=1e-6)
+    # float32 input: the scores themselves are rounded (|score| ~ 100 -> ~4e-6)
+    np.testing.assert_allclose(decode_kernels.mixture_logsumexp(comp.astype(np.float32)), ref, rtol=0, atol=2e-5)
+
+
+def test_single_precision_exp_over_its_whole_range():
+    # exp of values <= 0 against numpy's double-precision exp (reference: numpy), relative error
+    # within a few float32 roundoffs (2^-24 = 6e-8, IEEE 754), down to exp(-87) ~ 1.6e-38
+    x = np.concatenate([np.linspace(-87.0, 0.0, 100_001), [-1e-7, -0.34657, -0.34658, 0.0]]).astype(np.float32)
+    out = np.empty_like(x)
+    decode_kernels._exp_nonpositive(x, out, np.empty(x.shape, dtype=np.int32))
+    want = np.exp(x.astype(np.float64))
+    np.testing.assert_allclose(out, want, rtol=5e-7, atol=0)
+    tiny = np.array([-100.0, -np.inf], dtype=np.float32)
+    decode_kernels._exp_nonpositive(tiny, out[:2], np.empty(2, dtype=np.int32))
+    assert np.all(out[:2] >= 0) and np.all(out[:2] < 2e-38)
