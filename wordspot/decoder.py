@@ -183,6 +183,10 @@ class Recognition:
         return not self.error
 
 
+
+#: Precision of emission scoring during recognition (training scores in float64).
+EMISSION_DTYPE = np.float32
+
 @dataclass
 class Recognizer:
     """A compiled network with the mixtures and timing it needs; decodes many inputs.
@@ -210,10 +214,10 @@ class Recognizer:
         """
         if self._scoring is None:
             w, c = scoring_matrix(self.mixtures)
-            self._scoring = (w.astype(np.float32), c.astype(np.float32))
+            self._scoring = (w.astype(EMISSION_DTYPE), c.astype(EMISSION_DTYPE))
         w, c = self._scoring
-        x = np.asarray(frames, dtype=np.float32)
-        comp = _scratch("component_scores", (x.shape[0], w.shape[1]), np.float32)
+        x = np.asarray(frames, dtype=EMISSION_DTYPE)
+        comp = _scratch("component_scores", (x.shape[0], w.shape[1]), EMISSION_DTYPE)
         np.matmul(np.concatenate([x * x, x], axis=1), w, out=comp)
         comp += c
         comp = comp.reshape(x.shape[0], self.mixtures.n_pdfs, self.mixtures.n_components)

@@ -91,5 +91,7 @@ def gaussian_scorer(rec):
     dtype : numpy dtype
         Precision of the scoring arrays.
     """
+    from wordspot.decoder import EMISSION_DTYPE
+
     mix = rec.mixtures
-    return rec.emissions, int(mix.n_pdfs * mix.n_components), int(mix.dim), np.asarray(mix.means).dtype
+    return rec.emissions, int(mix.n_pdfs * mix.n_components), int(mix.dim), np.dtype(EMISSION_DTYPE)
