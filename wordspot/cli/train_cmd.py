@@ -79,7 +79,8 @@ def add_parser(sub):
                    help="Gaussians per state at the end, reached by doubling (default 8)")
     p.add_argument("--passes", type=_positive, default=None, metavar="N",
                    help="re-estimation passes after each mixture doubling; the first stage gets N+2 "
-                   f"(default {TrainingConfig.passes_per_split})")
+                   f"(default {TrainingConfig.passes_per_split}, and {TrainingConfig.first_passes} "
+                   "at the first stage)")
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
     p.add_argument("--seed", type=int, default=0, metavar="N", help="seed for mixture splitting (default 0)")
