@@ -20,6 +20,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.fft
 from scipy import signal
 
 from wordspot.errors import AugmentError
@@ -224,11 +225,14 @@ def steady_noise(length: int, rng: np.random.Generator, *, sample_rate: int = 16
     """
     if length < 1:
         raise AugmentError(f"length must be at least one sample, got {length}")
-    white = rng.standard_normal(length)
+    # shaped in the frequency domain at a length with only small prime factors (an FFT of
+    # an arbitrary length can be tens of times slower), then cut to the wanted length
+    n_fft = scipy.fft.next_fast_len(length, real=True)
+    white = rng.standard_normal(n_fft)
     slope = rng.uniform(0.0, 2.0)
-    freqs = np.fft.rfftfreq(length, 1.0 / sample_rate)
+    freqs = np.fft.rfftfreq(n_fft, 1.0 / sample_rate)
     shape = np.maximum(freqs, 50.0) ** (-slope / 2.0)
-    coloured = np.fft.irfft(np.fft.rfft(white) * shape, n=length)
+    coloured = np.fft.irfft(np.fft.rfft(white) * shape, n=n_fft)[:length]
     cutoff = float(np.exp(rng.uniform(np.log(300.0), np.log(3000.0))))
     sos = signal.butter(int(rng.integers(1, 3)), cutoff, btype="low", fs=sample_rate, output="sos")
     broad = signal.sosfilt(sos, coloured)
