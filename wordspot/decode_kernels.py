@@ -191,6 +191,20 @@ def _best_link(w, ended, n_ended, end_score, end_link, unigram, backoff, pair_fi
 
 
 @numba.njit(cache=True, nogil=True)
+def _prune_threshold(score, act, n_act, scratch, best, beam, max_active):
+    """Lowest score that survives: ``best - beam``, raised to the ``max_active``-th best of
+    the ``n_act`` active states' scores when there are more of them."""
+    thr = best - beam
+    if n_act > max_active:
+        for i in range(n_act):
+            scratch[i] = score[act[i]]
+        kth = np.partition(scratch[:n_act], n_act - max_active)[n_act - max_active]
+        if kth > thr:
+            thr = kth
+    return thr
+
+
+@numba.njit(cache=True, nogil=True)
 def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
            start_first, start_state, start_logp, pron_word, word_first, word_pron,
            unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty,
@@ -283,13 +297,7 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
         # 3. pruning. Entries below the beam, or below the max_active-th best of the
         # moved tokens alone (a lower bound of the final cut), could not survive: they
         # are dropped before they are ever placed.
-        thr = best - beam
-        if n_nxt > max_active:
-            for i in range(n_nxt):
-                scratch[i] = nxt[nxt_act[i]]
-            kth = np.partition(scratch[:n_nxt], n_nxt - max_active)[n_nxt - max_active]
-            if kth > thr:
-                thr = kth
+        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, max_active)
         for i in range(n_pend):
             s = pend_state[i]
             cand = pend_score[i]
@@ -302,13 +310,7 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                 nxt_meta[s, _START] = t
                 nxt_meta[s, _PEND] = -1
         n_pend = 0
-        thr = best - beam
-        if n_nxt > max_active:
-            for i in range(n_nxt):
-                scratch[i] = nxt[nxt_act[i]]
-            kth = np.partition(scratch[:n_nxt], n_nxt - max_active)[n_nxt - max_active]
-            if kth > thr:
-                thr = kth
+        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, max_active)
         kept = 0
         for i in range(n_nxt):
             s = nxt_act[i]
