@@ -61,6 +61,17 @@ from wordspot.units import PAUSE_UNIT, UnitSet, default_unit_set, n_transition_p
 __all__ = ["TrainingConfig", "TrainingSummary", "train", "train_items", "flat_start"]
 
 
+def _factors(name: str, value) -> tuple[float, ...]:
+    """``value`` as a tuple of distinct floats in [0.5, 2] (warp or speed factors)."""
+    v = tuple(value)
+    if not v or any(isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating))
+                    or not (0.5 <= float(x) <= 2.0) for x in v) or len(set(v)) != len(v):
+        raise TrainingError(
+            f"{name} must be distinct numbers between 0.5 and 2 (for example 0.9 1.0 1.1), got {value!r}"
+        )
+    return tuple(float(x) for x in v)
+
+
 @dataclass(frozen=True)
 class TrainingConfig:
     """How to train (configuration only; learned state lives in the model).
@@ -137,20 +148,8 @@ class TrainingConfig:
                 raise TrainingError(f"{name} must be a whole number >= 1, got {v!r}")
         if not (0 < self.variance_floor < 1):
             raise TrainingError(f"variance_floor must be in (0, 1) (0.01 is usual), got {self.variance_floor!r}")
-        w = tuple(self.warp_factors)
-        if not w or any(isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating))
-                        or not (0.5 <= float(x) <= 2.0) for x in w) or len(set(w)) != len(w):
-            raise TrainingError(
-                f"warp_factors must be distinct numbers between 0.5 and 2 (for example 0.9 1.0 1.1), got {self.warp_factors!r}"
-            )
-        object.__setattr__(self, "warp_factors", tuple(float(x) for x in w))
-        v = tuple(self.speed_factors)
-        if not v or any(isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating))
-                        or not (0.5 <= float(x) <= 2.0) for x in v) or len(set(v)) != len(v):
-            raise TrainingError(
-                f"speed_factors must be distinct numbers between 0.5 and 2 (for example 0.9 1.0 1.1), got {self.speed_factors!r}"
-            )
-        object.__setattr__(self, "speed_factors", tuple(float(x) for x in v))
+        for name in ("warp_factors", "speed_factors"):
+            object.__setattr__(self, name, _factors(name, getattr(self, name)))
         if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
         self.noise  # validates noise_copies and noise_snr_db
