@@ -3,21 +3,16 @@
 import numpy as np
 import pytest
 
-from tone_corpus import make_corpus
-from wordspot.corpus import read_manifest
+from tone_corpus import load_corpus
 from wordspot.errors import TrainingError
 from wordspot.features import FeatureSettings, file_features
-from wordspot.lexicon import read_lexicon
 from wordspot.training import TrainingConfig
 from wordspot.training_data import prepare_items
-from wordspot.units import default_unit_set
 
 
 @pytest.fixture
 def tiny(tmp_path, rng):
-    manifest, lexicon = make_corpus(tmp_path, rng, n_utterances=5)
-    lex = read_lexicon(lexicon)
-    return read_manifest(manifest), lex, default_unit_set(sorted(lex.units_used()))
+    return load_corpus(tmp_path, rng, n_utterances=5)
 
 
 def test_plain_items_are_the_unwarped_features(tiny):

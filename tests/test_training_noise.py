@@ -3,16 +3,13 @@
 import numpy as np
 import pytest
 
-from tone_corpus import make_corpus
+from tone_corpus import load_corpus
 from wordspot.augment import NoiseSettings
-from wordspot.corpus import read_manifest
 from wordspot.errors import AugmentError
 from wordspot.features import FeatureSettings
-from wordspot.lexicon import read_lexicon
 from wordspot.training import TrainingConfig
 from wordspot.training_data import prepare_items
 from wordspot.training_noise import CopyRecipe, babble_streams, plan_copies
-from wordspot.units import default_unit_set
 
 BABBLE = NoiseSettings(copies=3, kinds=("babble",), talkers=(2, 4))
 
@@ -59,9 +56,7 @@ def test_default_kinds_draw_babble_two_times_in_three():
 
 @pytest.fixture
 def tiny(tmp_path, rng):
-    manifest, lexicon = make_corpus(tmp_path, rng, n_utterances=6)
-    lex = read_lexicon(lexicon)
-    return read_manifest(manifest), lex, default_unit_set(sorted(lex.units_used()))
+    return load_corpus(tmp_path, rng, n_utterances=6)
 
 
 def test_noisy_copies_follow_the_clean_items_and_match_for_any_number_of_jobs(tiny):

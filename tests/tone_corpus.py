@@ -55,3 +55,22 @@ def add_row(manifest: Path, name: str, wave: np.ndarray, words: str):
     sf.write(manifest.parent / name, wave.astype(np.float32), RATE)
     with open(manifest, "a") as f:
         f.write(f"{name},{words},extra\n")
+
+
+def load_corpus(folder: Path, rng, n_utterances: int):
+    """Write a corpus with :func:`make_corpus` and read it back.
+
+    Returns
+    -------
+    utterances : list of wordspot.corpus.Utterance
+    lexicon : wordspot.lexicon.Lexicon
+    units : wordspot.units.UnitSet
+        The default unit set of the lexicon's phones.
+    """
+    from wordspot.corpus import read_manifest
+    from wordspot.lexicon import read_lexicon
+    from wordspot.units import default_unit_set
+
+    manifest, lexicon = make_corpus(folder, rng, n_utterances=n_utterances)
+    lex = read_lexicon(lexicon)
+    return read_manifest(manifest), lex, default_unit_set(sorted(lex.units_used()))
