@@ -19,6 +19,7 @@ import soundfile
 import soxr
 
 from wordspot.errors import AudioError, AudioWarning
+from wordspot.textfile import check_is_file
 
 __all__ = ["MIN_DURATION", "load_audio", "audio_duration", "check_waveform"]
 
@@ -43,24 +44,26 @@ def _as_path(path) -> Path:
 
 
 def _check_exists(path: Path) -> None:
-    try:
-        found, folder = path.exists(), path.is_dir()
-    except (OSError, ValueError) as exc:
-        raise AudioError(f"{str(path)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
-    if not found:
-        raise AudioError(f"{path}: audio file not found; check the path (and the manifest that names it)")
-    if folder:
-        raise AudioError(f"{path}: is a folder, not an audio file; name a .wav/.flac/.ogg file")
+    check_is_file(path, error=AudioError,
+                  not_found="audio file not found; check the path (and the manifest that names it)",
+                  is_folder="is a folder, not an audio file; name a .wav/.flac/.ogg file")
 
 
-def _open_info(path: Path):
+def _open_header(path: Path, opener=soundfile.info):
+    """``opener(path)`` (``soundfile.info`` or ``soundfile.SoundFile``) with a sample rate
+    above zero; every failure is one AudioError naming the file."""
     try:
-        return soundfile.info(str(path))
+        opened = opener(str(path))
     except (RuntimeError, soundfile.SoundFileError, OSError, ValueError) as exc:
         raise AudioError(
             f"{path}: cannot read this audio file ({_short(exc)}); "
             "it may be damaged, truncated or in an unsupported format; re-export it as WAV or FLAC"
         ) from None
+    if opened.samplerate <= 0:
+        if hasattr(opened, "close"):
+            opened.close()
+        raise AudioError(f"{path}: header gives sample rate {opened.samplerate}; the file is damaged")
+    return opened
 
 
 def _short(exc: BaseException) -> str:
@@ -150,9 +153,7 @@ def audio_duration(path) -> float:
     """
     p = _as_path(path)
     _check_exists(p)
-    info = _open_info(p)
-    if info.samplerate <= 0:
-        raise AudioError(f"{p}: header gives sample rate {info.samplerate}; the file is damaged")
+    info = _open_header(p)
     return info.frames / float(info.samplerate)
 
 
@@ -186,18 +187,8 @@ def load_audio(path, *, sample_rate: int = 16000) -> np.ndarray:
         raise AudioError(f"sample_rate must be a positive whole number of Hz, got {sample_rate!r}")
     p = _as_path(path)
     _check_exists(p)
-    # One open for header and samples (the header errors as _open_info words them).
-    try:
-        handle = soundfile.SoundFile(str(p))
-    except (RuntimeError, soundfile.SoundFileError, OSError, ValueError) as exc:
-        raise AudioError(
-            f"{p}: cannot read this audio file ({_short(exc)}); "
-            "it may be damaged, truncated or in an unsupported format; re-export it as WAV or FLAC"
-        ) from None
-    with handle:
+    with _open_header(p, soundfile.SoundFile) as handle:  # one open for header and samples
         file_rate = handle.samplerate
-        if file_rate <= 0:
-            raise AudioError(f"{p}: header gives sample rate {file_rate}; the file is damaged")
         # only RIFF/WAVE files can be cut short unnoticed (see _wav_data_shortfall)
         shortfall = _wav_data_shortfall(p) if str(handle.format).startswith("WAV") else None
         if shortfall is not None:

@@ -1,11 +1,11 @@
-"""Reading a user's UTF-8 text file (manifest, lexicon) with one clear error per problem."""
+"""Reading a user's files (manifest, lexicon; audio paths) with one clear error per problem."""
 
 from __future__ import annotations
 
 import os
 from pathlib import Path
 
-__all__ = ["read_user_text"]
+__all__ = ["read_user_text", "check_is_file"]
 
 
 def read_user_text(path, *, error: type, kind: str, missing: str, names: str, save_as: str,
@@ -32,14 +32,8 @@ def read_user_text(path, *, error: type, kind: str, missing: str, names: str, sa
         p = Path(os.fspath(path))
     except TypeError:
         raise error(f"{kind} path must be a file name, got {path!r}") from None
-    try:
-        found, folder = p.exists(), p.is_dir()
-    except (OSError, ValueError) as exc:
-        raise error(f"{str(p)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
-    if not found:
-        raise error(f"{p}: {missing} not found; check the path")
-    if folder:
-        raise error(f"{p}: is a folder; name the {names}")
+    check_is_file(p, error=error, not_found=f"{missing} not found; check the path",
+                  is_folder=f"is a folder; name the {names}")
     try:
         data = p.read_bytes()
     except OSError as exc:
@@ -50,3 +44,18 @@ def read_user_text(path, *, error: type, kind: str, missing: str, names: str, sa
         line = data[: exc.start].count(b"\n") + 1
         raise error(f"{p}, line {line}: not valid UTF-8 text; {save_as}") from None
     return p, text
+
+
+def check_is_file(path: Path, *, error: type, not_found: str, is_folder: str) -> None:
+    """Raise ``error`` naming ``path`` unless it is an existing file that is not a folder.
+
+    ``not_found`` and ``is_folder`` are the messages' tails (after ``"<path>: "``).
+    """
+    try:
+        found, folder = path.exists(), path.is_dir()
+    except (OSError, ValueError) as exc:
+        raise error(f"{str(path)[:200]}: cannot use this path ({getattr(exc, 'strerror', None) or exc})") from None
+    if not found:
+        raise error(f"{path}: {not_found}")
+    if folder:
+        raise error(f"{path}: {is_folder}")
