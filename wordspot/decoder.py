@@ -23,10 +23,11 @@ import numpy as np
 
 from wordspot import decode_kernels
 from wordspot.errors import DecodingError, WordspotError
-from wordspot.features import _scratch, compute_features
+from wordspot.features import compute_features
 from wordspot.gmm import Mixtures, scoring_matrix
 from wordspot.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
 from wordspot.network import Network, compile_network
+from wordspot.workspace import work_array
 
 __all__ = [
     "DecoderSettings",
@@ -183,9 +184,9 @@ class Recognition:
         return not self.error
 
 
-
 #: Precision of emission scoring during recognition (training scores in float64).
 EMISSION_DTYPE = np.float32
+
 
 @dataclass
 class Recognizer:
@@ -217,7 +218,7 @@ class Recognizer:
             self._scoring = (w.astype(EMISSION_DTYPE), c.astype(EMISSION_DTYPE))
         w, c = self._scoring
         x = np.asarray(frames, dtype=EMISSION_DTYPE)
-        comp = _scratch("component_scores", (x.shape[0], w.shape[1]), EMISSION_DTYPE)
+        comp = work_array("component_scores", (x.shape[0], w.shape[1]), EMISSION_DTYPE)
         np.matmul(np.concatenate([x * x, x], axis=1), w, out=comp)
         comp += c
         comp = comp.reshape(x.shape[0], self.mixtures.n_pdfs, self.mixtures.n_components)

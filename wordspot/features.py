@@ -34,7 +34,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import threading
 from dataclasses import dataclass
 from typing import Any, Mapping
 
@@ -42,6 +41,7 @@ import numpy as np
 import scipy.fft
 
 from wordspot.errors import FeatureError
+from wordspot.workspace import work_array
 
 __all__ = [
     "FeatureSettings",
@@ -451,15 +451,15 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
     if s.preemphasis > 0:
         y = np.concatenate([y[:1], y[1:] - s.preemphasis * y[:-1]])
     # Windowed frames written straight into the zero-padded FFT input; the large
-    # intermediates live in per-thread scratch arrays (see _scratch).
+    # intermediates live in per-thread work arrays (see wordspot.workspace).
     view = _frames(y, s.window_length, s.hop_length)
     n_frames, n_bins = view.shape[0], s.n_fft // 2 + 1
-    frames = _scratch("fft_input", (n_frames, s.n_fft), np.float64)
+    frames = work_array("fft_input", (n_frames, s.n_fft), np.float64)
     frames[:, s.window_length :] = 0.0
     np.multiply(view, _hamming(s.window_length), out=frames[:, : s.window_length])
-    spectrum = np.fft.rfft(frames, axis=1, out=_scratch("spectrum", (n_frames, n_bins), np.complex128))
-    power = np.square(spectrum.real, out=_scratch("power", (n_frames, n_bins), np.float64))
-    power += np.square(spectrum.imag, out=_scratch("power_imag", (n_frames, n_bins), np.float64))
+    spectrum = np.fft.rfft(frames, axis=1, out=work_array("spectrum", (n_frames, n_bins), np.complex128))
+    power = np.square(spectrum.real, out=work_array("power", (n_frames, n_bins), np.float64))
+    power += np.square(spectrum.imag, out=work_array("power_imag", (n_frames, n_bins), np.float64))
     mel = power @ _cached_filterbank(s, warp)
     logmel = np.log(np.maximum(mel, LOG_FLOOR))
     ceps = scipy.fft.dct(logmel, type=2, norm="ortho", axis=1)[:, : s.n_cepstra]
@@ -477,34 +477,6 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
         # a constant column (digital silence) stays zero instead of dividing by zero
         feats = feats / np.where(sd > _CVN_MIN_SD, sd, 1.0)
     return np.ascontiguousarray(feats, dtype=np.float32)
-
-
-_SCRATCH = threading.local()
-
-#: Scratch arrays larger than this are not kept between calls (long recordings).
-SCRATCH_MAX_BYTES = 16 * 2**20
-
-
-def _scratch(name: str, shape: tuple[int, ...], dtype) -> np.ndarray:
-    """A C-contiguous work array of ``shape``, reused between calls in the same thread.
-
-    Contents are undefined; callers overwrite every element they read and never return
-    the array. Reuse spares the page faults of a fresh large allocation on every call
-    (the allocator hands such blocks back to the system when they are freed), which
-    cost about as much as the arithmetic on them for a short recording.
-    """
-    dtype = np.dtype(dtype)
-    need = math.prod(shape)
-    if need * dtype.itemsize > SCRATCH_MAX_BYTES:
-        return np.empty(shape, dtype=dtype)
-    key = (name, dtype.str)
-    pool = getattr(_SCRATCH, "arrays", None)
-    if pool is None:
-        pool = _SCRATCH.arrays = {}
-    buf = pool.get(key)
-    if buf is None or buf.size < need:
-        buf = pool[key] = np.empty(need, dtype=dtype)
-    return buf[:need].reshape(shape)
 
 
 _HAMMING: dict[int, np.ndarray] = {}
