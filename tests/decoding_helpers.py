@@ -10,13 +10,13 @@ import itertools
 
 import numpy as np
 
-from wordspot.features import FeatureSettings
-from wordspot.gmm import Mixtures
-from wordspot.grammar import count_bigrams
-from wordspot.graph import compose
-from wordspot.lexicon import Lexicon
+from wordspot.audio.features import FeatureSettings
+from wordspot.acoustic.gmm import Mixtures
+from wordspot.language.grammar import count_bigrams
+from wordspot.acoustic.graph import compose
+from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
-from wordspot.units import GAP_UNIT, PAUSE_UNIT, default_unit_set
+from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, default_unit_set
 
 PHONES = ("AA", "B", "K", "S", "T")
 

@@ -9,7 +9,7 @@ from hypothesis import given, settings as hsettings, strategies as st
 
 from wordspot.corpus import MAX_LISTED_PROBLEMS, Utterance, check_manifest, read_manifest
 from wordspot.errors import ManifestError, WordspotError
-from wordspot.lexicon import parse_lexicon
+from wordspot.language.lexicon import parse_lexicon
 
 LEXICON = parse_lexicon("knead N IY D\nthe DH AH\ndough D OW\noven AH V AH N\non AA N\n")
 

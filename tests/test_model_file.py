@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 
 from wordspot.errors import ModelFileError
-from wordspot.features import FeatureSettings
-from wordspot.gmm import Mixtures
-from wordspot.grammar import count_bigrams
-from wordspot.lexicon import parse_lexicon
+from wordspot.audio.features import FeatureSettings
+from wordspot.acoustic.gmm import Mixtures
+from wordspot.language.grammar import count_bigrams
+from wordspot.language.lexicon import parse_lexicon
 from wordspot.model import FORMAT_VERSION, AcousticModel, load_model, save_model
-from wordspot.units import default_unit_set
+from wordspot.acoustic.units import default_unit_set
 
 
 @pytest.fixture

@@ -63,13 +63,13 @@ def load_corpus(folder: Path, rng, n_utterances: int):
     Returns
     -------
     utterances : list of wordspot.corpus.Utterance
-    lexicon : wordspot.lexicon.Lexicon
-    units : wordspot.units.UnitSet
+    lexicon : wordspot.language.lexicon.Lexicon
+    units : wordspot.acoustic.units.UnitSet
         The default unit set of the lexicon's phones.
     """
     from wordspot.corpus import read_manifest
-    from wordspot.lexicon import read_lexicon
-    from wordspot.units import default_unit_set
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.acoustic.units import default_unit_set
 
     manifest, lexicon = make_corpus(folder, rng, n_utterances=n_utterances)
     lex = read_lexicon(lexicon)

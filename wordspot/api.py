@@ -18,7 +18,7 @@ __all__ = ["train", "load", "recognize", "evaluate"]
 
 
 def _lexicon(lexicon):
-    from wordspot.lexicon import Lexicon, read_lexicon
+    from wordspot.language.lexicon import Lexicon, read_lexicon
 
     if lexicon is None or isinstance(lexicon, Lexicon):
         return lexicon
@@ -32,7 +32,7 @@ def _model(model):
 
 
 def _settings(settings, single_word):
-    from wordspot.decoder import DecoderSettings
+    from wordspot.decoding.decoder import DecoderSettings
 
     settings = settings or DecoderSettings()
     return replace(settings, single_word=True) if single_word else settings
@@ -48,8 +48,8 @@ def train(manifest, lexicon, *, out=None, config=None, features=None, quiet: boo
     lexicon : str, path or Lexicon
     out : str or path, optional
         Write the model file here (atomically).
-    config : wordspot.training.TrainingConfig, optional
-    features : wordspot.features.FeatureSettings, optional
+    config : wordspot.training.trainer.TrainingConfig, optional
+    features : wordspot.audio.features.FeatureSettings, optional
     quiet : bool
         No progress bars.
 
@@ -59,8 +59,8 @@ def train(manifest, lexicon, *, out=None, config=None, features=None, quiet: boo
     """
     from wordspot.corpus import read_manifest
     from wordspot.model import save_model
-    from wordspot.training import TrainingConfig
-    from wordspot.training import train as _train
+    from wordspot.training.trainer import TrainingConfig
+    from wordspot.training.trainer import train as _train
 
     model, _summary = _train(read_manifest(manifest), _lexicon(lexicon), settings=features,
                              config=config or TrainingConfig(), manifest=manifest, quiet=quiet)
@@ -83,7 +83,7 @@ def recognize(model, paths, *, lexicon=None, prior=None, single_word: bool = Fal
     ``model`` is an AcousticModel or a model file; ``lexicon`` (a Lexicon or a file)
     replaces the model's vocabulary; ``prior`` is a BigramPrior or a prior file.
     """
-    from wordspot.decoder import recognize_files
+    from wordspot.decoding.decoder import recognize_files
 
     if isinstance(paths, (str, Path)):
         paths = [paths]
@@ -97,10 +97,10 @@ def evaluate(model, manifest, *, lexicon=None, prior=None, single_word: bool = F
 
     Returns
     -------
-    wordspot.evaluation.ManifestEvaluation
+    wordspot.evaluation.run.ManifestEvaluation
         ``.result.wer``, ``.result.wer_ci95``, tables, and each file's recognition.
     """
-    from wordspot.evaluation import evaluate_manifest
+    from wordspot.evaluation.run import evaluate_manifest
 
     return evaluate_manifest(_model(model), manifest, settings=_settings(settings, single_word),
                              lexicon=_lexicon(lexicon), prior=prior, jobs=jobs, n_bootstrap=n_bootstrap)

@@ -23,8 +23,8 @@ from pathlib import Path
 from typing import Sequence
 
 from wordspot.errors import ManifestError
-from wordspot.lexicon import invalid_word_character
-from wordspot.textfile import read_user_text
+from wordspot.language.lexicon import invalid_word_character
+from wordspot.util.textfile import read_user_text
 
 __all__ = ["Utterance", "read_manifest", "check_manifest", "MAX_LISTED_PROBLEMS"]
 
@@ -139,7 +139,7 @@ def check_manifest(utterances: Sequence[Utterance], lexicon, *, manifest=None) -
     Parameters
     ----------
     utterances : sequence of Utterance
-    lexicon : wordspot.lexicon.Lexicon
+    lexicon : wordspot.language.lexicon.Lexicon
         Anything supporting ``word in lexicon``.
     manifest : str or os.PathLike, optional
         The manifest's name, for the message.

@@ -108,11 +108,11 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, job
     evaluations : list of ManifestEvaluation
     """
     from wordspot.corpus import read_manifest
-    from wordspot.evaluation import evaluate_utterances
-    from wordspot.lexicon import read_lexicon
+    from wordspot.evaluation.run import evaluate_utterances
+    from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model, save_model
-    from wordspot.report import write_report
-    from wordspot.training import TrainingConfig, train
+    from wordspot.evaluation.report import write_report
+    from wordspot.training.trainer import TrainingConfig, train
 
     out_dir.mkdir(parents=True, exist_ok=True)
     if model_path is None:

@@ -27,11 +27,11 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.errors import FeatureError, LexiconError, ModelFileError
-from wordspot.features import FeatureSettings
-from wordspot.gmm import Mixtures
-from wordspot.grammar import BigramCounts
-from wordspot.lexicon import Lexicon, parse_lexicon
-from wordspot.units import UnitSet
+from wordspot.audio.features import FeatureSettings
+from wordspot.acoustic.gmm import Mixtures
+from wordspot.language.grammar import BigramCounts
+from wordspot.language.lexicon import Lexicon, parse_lexicon
+from wordspot.acoustic.units import UnitSet
 
 __all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
 

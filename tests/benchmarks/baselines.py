@@ -1,6 +1,6 @@
 """Two do-it-yourself isolated-word recognisers that a practitioner would otherwise write.
 
-Both take the same feature frames as wordspot (``wordspot.features``: T x 39 MFCC + deltas,
+Both take the same feature frames as wordspot (``wordspot.audio.features``: T x 39 MFCC + deltas,
 mean-normalised) and recognise exactly one word per file from the words they have recordings
 of. Neither can recognise a word it has no recordings of.
 

@@ -39,18 +39,18 @@ from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
 
-from wordspot.audio import load_audio  # noqa: E402
+from wordspot.audio.reading import load_audio  # noqa: E402
 from wordspot.corpus import read_manifest  # noqa: E402
-from wordspot.decoder import DecoderSettings, build_recognizer  # noqa: E402
-from wordspot.features import compute_features  # noqa: E402
-from wordspot.lexicon import Lexicon, read_lexicon  # noqa: E402
+from wordspot.decoding.decoder import DecoderSettings, build_recognizer  # noqa: E402
+from wordspot.audio.features import compute_features  # noqa: E402
+from wordspot.language.lexicon import Lexicon, read_lexicon  # noqa: E402
 from wordspot.model import load_model  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[2]
 
 
 def _train(n_utterances: int):
-    from wordspot.training import TrainingConfig, train
+    from wordspot.training.trainer import TrainingConfig, train
 
     utts = read_manifest(REPO / "recordings" / "train.csv")
     step = max(1, len(utts) // n_utterances)

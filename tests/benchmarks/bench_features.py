@@ -24,8 +24,8 @@ from pathlib import Path  # noqa: E402
 import numpy as np  # noqa: E402
 import soundfile  # noqa: E402
 
-from wordspot.audio import load_audio  # noqa: E402
-from wordspot.features import FeatureSettings, compute_features  # noqa: E402
+from wordspot.audio.reading import load_audio  # noqa: E402
+from wordspot.audio.features import FeatureSettings, compute_features  # noqa: E402
 
 
 def best_of(repeats: int, fn) -> float:

@@ -30,9 +30,9 @@ import warnings  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 from wordspot.corpus import read_manifest  # noqa: E402
-from wordspot.lexicon import read_lexicon  # noqa: E402
+from wordspot.language.lexicon import read_lexicon  # noqa: E402
 from wordspot.model import save_model  # noqa: E402
-from wordspot.training import TrainingConfig, train  # noqa: E402
+from wordspot.training.trainer import TrainingConfig, train  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[2]
 

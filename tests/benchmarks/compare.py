@@ -70,7 +70,7 @@ def log(msg: str) -> None:
 
 
 def _errors(refs, hyps) -> tuple[int, int]:
-    from wordspot.scoring import align_words
+    from wordspot.evaluation.scoring import align_words
 
     err = 0
     for r, h in zip(refs, hyps):
@@ -278,7 +278,7 @@ def run(args) -> str:
     speed_items = test[:: max(1, len(test) // (20 if args.quick else 60))]
     speed_paths = [it.path for it in speed_items]
     audio_s = durations(speed_paths)
-    from wordspot.features import FeatureSettings, file_features
+    from wordspot.audio.features import FeatureSettings, file_features
 
     fs = FeatureSettings()
     def one_pass(name, rec, paths):

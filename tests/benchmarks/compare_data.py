@@ -72,7 +72,7 @@ def by_word(items: Sequence[Item], feats: dict[Path, np.ndarray]) -> dict[str, l
 
 
 def _features(paths: Sequence[Path]) -> list[np.ndarray]:
-    from wordspot.features import FeatureSettings, file_features
+    from wordspot.audio.features import FeatureSettings, file_features
 
     s = FeatureSettings()
     return [file_features(p, s) for p in paths]

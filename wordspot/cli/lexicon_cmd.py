@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from wordspot.errors import LexiconError
-from wordspot.lexicon import (
+from wordspot.language.lexicon import (
     ARPABET_PHONES,
     check_word,
     format_entry,

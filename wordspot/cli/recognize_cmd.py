@@ -8,7 +8,7 @@ import json
 import math
 import sys
 
-from wordspot.decoder import DecoderSettings, Recognition, recognize_files
+from wordspot.decoding.decoder import DecoderSettings, Recognition, recognize_files
 
 __all__ = ["add_parser", "add_decoder_options", "settings_from_args", "format_text", "format_jsonl", "write_csv"]
 
@@ -148,7 +148,7 @@ def write_csv(results, out) -> None:
 
 
 def _run(args) -> int:
-    from wordspot.lexicon import read_lexicon
+    from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
 
     settings = settings_from_args(args)

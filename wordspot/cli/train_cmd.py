@@ -6,11 +6,11 @@ import argparse
 import os
 
 from wordspot.corpus import read_manifest
-from wordspot.features import FeatureSettings
+from wordspot.audio.features import FeatureSettings
 from wordspot.errors import FeatureError, TrainingError
-from wordspot.lexicon import read_lexicon
+from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
-from wordspot.training import TrainingConfig, train
+from wordspot.training.trainer import TrainingConfig, train
 
 __all__ = ["add_parser", "mixture_schedule"]
 

@@ -1,0 +1,85 @@
+"""Tests for wordspot.training.noise: noisy copies of training recordings."""
+
+import numpy as np
+import pytest
+
+from tone_corpus import load_corpus
+from wordspot.audio.augment import NoiseSettings
+from wordspot.errors import AugmentError
+from wordspot.audio.features import FeatureSettings
+from wordspot.training.trainer import TrainingConfig
+from wordspot.training.data import prepare_items
+from wordspot.training.noise import CopyRecipe, babble_streams, plan_copies
+
+BABBLE = NoiseSettings(copies=3, kinds=("babble",), talkers=(2, 4))
+
+
+def test_babble_talkers_are_other_speakers_when_there_are_enough():
+    speakers = ["a", "a", "b", "c", "d", "e", "b"]
+    for recipe in plan_copies(speakers, BABBLE, seed=1):
+        assert 2 <= len(recipe.talkers) <= 4
+        assert speakers[recipe.index] not in recipe.talkers
+        assert len(set(recipe.talkers)) == len(recipe.talkers)
+
+
+def test_babble_never_uses_the_recording_itself_even_with_one_speaker():
+    # one person training on their own voice: the babble is their other recordings
+    speakers = ["me"] * 4
+    pool = {"me": [(k, np.full(50, float(k))) for k in range(4)]}
+    plans = plan_copies(speakers, BABBLE, seed=2)
+    assert len(plans) == 3 * 4
+    for recipe in plans:
+        streams = babble_streams(pool, recipe)
+        assert streams
+        for s in streams:
+            assert float(recipe.index) not in set(s.tolist())
+
+
+def test_plans_depend_only_on_the_seed():
+    speakers = ["a", "b", "c"] * 3
+    noise = NoiseSettings(copies=2)
+    assert plan_copies(speakers, noise, seed=7) == plan_copies(speakers, noise, seed=7)
+    assert plan_copies(speakers, noise, seed=7) != plan_copies(speakers, noise, seed=8)
+    snrs = [p.snr_db for p in plan_copies(speakers, noise, seed=7)]
+    assert all(0.0 <= v <= 25.0 for v in snrs)
+
+
+def test_default_kinds_draw_babble_two_times_in_three():
+    # each copy draws one listed kind with equal chance (NoiseSettings docstring); babble is listed twice.
+    # 1,200 draws: the share of babble has sd sqrt(p(1-p)/n) = 0.014 (binomial), so 0.62-0.71 is +-3 sd.
+    plans = plan_copies([f"s{k}" for k in range(400)], NoiseSettings(copies=3), seed=1)
+    share = sum(p.kind == "babble" for p in plans) / len(plans)
+    assert len(plans) == 1200 and 0.62 < share < 0.71
+    only_steady = plan_copies(["a", "b"] * 5, NoiseSettings(copies=2, kinds=("steady",)), seed=1)
+    assert {p.kind for p in only_steady} == {"steady"} and all(p.talkers == () for p in only_steady)
+
+
+@pytest.fixture
+def tiny(tmp_path, rng):
+    return load_corpus(tmp_path, rng, n_utterances=6)
+
+
+def test_noisy_copies_follow_the_clean_items_and_match_for_any_number_of_jobs(tiny):
+    utts, lex, units = tiny
+    s = FeatureSettings()
+    clean, _ = prepare_items(utts, lex, units, s)
+    noise = NoiseSettings(copies=2, snr_db=(5.0, 15.0))
+    one, _ = prepare_items(utts, lex, units, s, noise=noise, seed=3)
+    two, _ = prepare_items(utts, lex, units, s, noise=noise, seed=3, jobs=2)
+    assert len(one) == len(two) == 3 * len(clean)
+    for a, b in zip(one, two):
+        np.testing.assert_array_equal(a.frames, b.frames)
+    for k, it in enumerate(one[len(clean):]):
+        base = clean[k % len(clean)]
+        assert it.path == base.path and it.words == base.words and it.graph is not None
+        assert it.frames.shape == base.frames.shape
+        assert not np.allclose(it.frames, base.frames)
+    np.testing.assert_array_equal(one[0].frames, clean[0].frames)
+
+
+def test_training_config_checks_the_noise_settings():
+    assert TrainingConfig(noise_copies=2).noise.copies == 2
+    with pytest.raises(AugmentError, match="copies must be a whole number"):
+        TrainingConfig(noise_copies=-1)
+    with pytest.raises(AugmentError, match="low <= high"):
+        TrainingConfig(noise_snr_db=(30.0, 0.0))

@@ -1,0 +1,181 @@
+"""Training material: every usable utterance's features and its state chain.
+
+Features are computed once, up front (in parallel over processes when ``jobs > 1``), and
+kept in memory for all passes. Each utterance's chain is
+
+    pau, word 1 (all its pronunciations as alternatives), [gap], word 2, ..., pau
+
+composed into one :class:`~wordspot.acoustic.graph.StateGraph`. Files that fail to load and
+utterances too short for their chain are skipped with a :class:`TrainingWarning` naming
+the file; they are listed in the training summary.
+
+Frequency-warp augmentation (vocal tract length perturbation): with ``warps=(0.9, 1.0,
+1.1)`` every utterance gives one item per factor, its features computed with the mel
+filterbank's frequency axis scaled by that factor (:func:`wordspot.audio.features.compute_features`),
+all with the same chain. Items come out warp by warp, in utterance order within each.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import soxr
+from joblib import Parallel, delayed
+
+from wordspot.errors import AudioError, FeatureError, TrainingWarning
+from wordspot.audio.reading import load_audio
+from wordspot.audio.features import FeatureSettings, compute_features, file_features
+from wordspot.acoustic.graph import StateGraph, compose
+from wordspot.util.progress import ProgressBar
+from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
+from wordspot.training.noise import noisy_items
+from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, UnitSet
+
+__all__ = ["chain_slots", "extract_features", "prepare_items", "speed_copy"]
+
+def chain_slots(words, lexicon, units: UnitSet) -> list:
+    """Slots of the training chain of a transcript (see :func:`wordspot.acoustic.graph.compose`)."""
+    pau = units.index(PAUSE_UNIT)
+    gap = units.index(GAP_UNIT)
+    slots: list = [[(pau,)]]
+    for k, word in enumerate(words):
+        if k > 0:
+            slots.append([(gap,)])
+        slots.append([tuple(units.index(u) for u in pron) for pron in lexicon.pronunciations(word)])
+    slots.append([(pau,)])
+    return slots
+
+
+def speed_copy(wave: np.ndarray, sample_rate: int, factor: float) -> np.ndarray:
+    """``wave`` played ``factor`` times faster (tempo, pitch and formants shift together).
+
+    Speed perturbation (common practice): resample to ``sample_rate / factor`` and read
+    the result at ``sample_rate``.
+    """
+    if factor == 1.0:
+        return wave
+    return soxr.resample(np.ascontiguousarray(wave, dtype=np.float32), sample_rate,
+                         int(round(sample_rate / factor)), quality="HQ")
+
+
+def _features_task(paths, settings, warp=1.0, speed=1.0):
+    """Features of several files; failures and warnings returned, not raised."""
+    out = []
+    for path in paths:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                if speed == 1.0:
+                    feats = file_features(path, settings, warp=warp)
+                else:
+                    wave = load_audio(path, sample_rate=settings.sample_rate)
+                    feats = compute_features(speed_copy(wave, settings.sample_rate, speed), settings, warp=warp)
+                error = None
+            except (AudioError, FeatureError) as exc:
+                feats, error = None, str(exc)
+        notes = [(w.category, str(w.message)) for w in caught]
+        out.append((feats, error, notes))
+    return out
+
+
+def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True,
+                     warp: float = 1.0, speed: float = 1.0):
+    """Features of every file (frequency axis warped by ``warp``, played ``speed`` times
+    faster), or the error that stopped it.
+
+    Returns
+    -------
+    list of (ndarray or None, str or None)
+        ``(features, None)`` or ``(None, message)`` per path, in order. Warnings raised
+        while loading (in any process) are re-issued here.
+    """
+    paths = list(paths)
+    chunks = [paths[i:i + CHUNK_SIZE] for i in range(0, len(paths), CHUNK_SIZE)]
+    bar = ProgressBar(len(paths), "features", quiet=quiet)
+    results = []
+    if jobs == 1:
+        gen = (_features_task(c, settings, warp, speed) for c in chunks)
+    else:
+        gen = Parallel(n_jobs=jobs, backend="loky", return_as="generator")(
+            delayed(_features_task)(c, settings, warp, speed) for c in chunks
+        )
+    for part in gen:
+        for feats, error, notes in part:
+            for category, message in notes:
+                warnings.warn(message, category, stacklevel=2)
+            results.append((feats, error))
+        bar.update(len(part))
+    bar.close()
+    return results
+
+
+def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
+                  jobs: int = 1, quiet: bool = True,
+                  warps=(1.0,), speeds=(1.0,), noise=None,
+                  seed: int = 0) -> tuple[list[TrainingItem], list[Skipped]]:
+    """Load features and build chains; skip (with a warning) what cannot be used.
+
+    ``warps``: frequency warp factors; each utterance gives one item per factor (the
+    default, ``(1.0,)``, is plain training). A file that cannot be used is skipped (and
+    reported) once, at the first factor.
+
+    ``speeds``: speed perturbation factors (see :func:`speed_copy`); every factor other
+    than 1 adds one unwarped item per utterance, after the warped ones. A copy too short
+    for its chain is left out silently (the recording itself is used).
+
+    ``noise``: a :class:`wordspot.audio.augment.NoiseSettings`; its noisy copies of every usable
+    recording (unwarped, drawn with ``seed``; see :mod:`wordspot.training.noise`) come
+    after all other items.
+
+    Returns
+    -------
+    items : list of TrainingItem
+    skipped : list of Skipped
+    """
+    items: list[TrainingItem] = []
+    skipped: list[Skipped] = []
+    graphs: dict[tuple[str, ...], StateGraph] = {}
+    variants = [(float(w), 1.0) for w in warps] + [(1.0, float(s)) for s in speeds if float(s) != 1.0]
+    for k, (warp, speed) in enumerate(variants):
+        features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
+                                    warp=warp, speed=speed)
+        if k == 0:
+            _collect(utterances, features, lexicon, units, graphs, items, skipped)
+        else:
+            bad = {s.path for s in skipped}
+            _collect([u for u in utterances if u.path not in bad],
+                     [f for u, f in zip(utterances, features) if u.path not in bad],
+                     lexicon, units, graphs, items, None)
+        if k == 0:
+            n_plain = len(items)
+    if noise is not None and noise.copies > 0:
+        speaker = {u.path: u.speaker for u in utterances}
+        base = items[:n_plain]
+        items += noisy_items(base, [speaker[it.path] for it in base], noise, settings,
+                             seed=seed, jobs=jobs, quiet=quiet)
+    return items, skipped
+
+
+def _collect(utterances, features, lexicon, units, graphs, items, skipped) -> None:
+    for utt, (feats, error) in zip(utterances, features):
+        if feats is None:
+            reason = f"could not be loaded: {error}"
+        else:
+            graph = graphs.get(utt.words)
+            if graph is None:
+                graph = compose(chain_slots(utt.words, lexicon, units), units)
+                graphs[utt.words] = graph
+            need = graph.min_frames()
+            if feats.shape[0] < need:
+                reason = (f"too short: {feats.shape[0]} frames, but its chain of "
+                          f"{len(utt.words)} word(s) needs at least {need}")
+            else:
+                items.append(TrainingItem(utt.path, utt.words, np.ascontiguousarray(feats), graph))
+                continue
+        if skipped is not None:
+            skipped.append(Skipped(utt.path, reason))
+            message = reason if feats is None and str(utt.path) in reason else f"{utt.path}: {reason}"
+            warnings.warn(f"skipping {message}", TrainingWarning, stacklevel=3)

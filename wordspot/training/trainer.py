@@ -1,0 +1,548 @@
+"""Acoustic training: flat start, embedded re-estimation and mixture growth.
+
+Outline (see DESIGN.md and issue 4):
+
+1. **Flat start.** Every state's mixture is one Gaussian with the global mean and
+   variance of all training frames; transitions are the topology defaults of
+   :func:`wordspot.acoustic.units.default_unit_set`. Refinement (on by default,
+   ``TrainingConfig.pause_seconds``): the three pause states start from the mean and
+   variance of the first and last ``pause_seconds`` of every recording, where people
+   are silent before and after a command. This gives the first alignment an anchor.
+2. **Embedded re-estimation** (Baum-Welch over each utterance's whole chain; Rabiner
+   1989 eqs. 40, 52-54 with mixtures): forward-backward in the log domain gives state
+   and component posteriors and expected transition counts; statistics are summed over
+   all utterances, then means, variances (floored at ``variance_floor`` times the
+   global variance), weights and transitions (rows re-normalised, allowed transitions
+   kept above a floor) are updated.
+3. **Mixture growth** along ``mixtures`` (1, 2, 4, 8 by default): each growth step
+   splits the heaviest components (means +-0.2 standard deviations) and is followed by
+   ``passes_per_split`` passes; components that get fewer than ``min_occupancy``
+   expected frames are dropped.
+
+The work of a pass is split into fixed chunks of utterances
+(:data:`wordspot.training.data.CHUNK_SIZE`), each chunk's statistics are summed in
+utterance order and the chunks' sums are added in chunk order, so a run with several
+processes gives exactly the same model as a serial run.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import tempfile
+import time
+import warnings
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+import numpy as np
+from joblib import Parallel, delayed
+
+from wordspot import __version__
+from wordspot.acoustic import kernels
+from wordspot.corpus import check_manifest
+from wordspot.audio.augment import NoiseSettings
+from wordspot.errors import TrainingError, TrainingWarning
+from wordspot.audio.features import FeatureSettings
+from wordspot.acoustic.gmm import (
+    Mixtures,
+    MixtureStats,
+    scoring_matrix,
+    single_gaussian,
+    split_heaviest,
+    update_mixtures,
+)
+from wordspot.language.grammar import count_bigrams
+from wordspot.acoustic.hmm import Posteriors, graph_arrays
+from wordspot.model import AcousticModel
+from wordspot.util.progress import ProgressBar
+from wordspot.training.data import prepare_items
+from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
+from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
+from wordspot.acoustic.units import PAUSE_UNIT, UnitSet, default_unit_set, n_transition_params
+
+__all__ = ["TrainingConfig", "TrainingSummary", "train", "train_items", "flat_start"]
+
+
+def _factors(name: str, value) -> tuple[float, ...]:
+    """``value`` as a tuple of distinct floats in [0.5, 2] (warp or speed factors)."""
+    v = tuple(value)
+    if not v or any(isinstance(x, bool) or not isinstance(x, (int, float, np.integer, np.floating))
+                    or not (0.5 <= float(x) <= 2.0) for x in v) or len(set(v)) != len(v):
+        raise TrainingError(
+            f"{name} must be distinct numbers between 0.5 and 2 (for example 0.9 1.0 1.1), got {value!r}"
+        )
+    return tuple(float(x) for x in v)
+
+
+@dataclass(frozen=True)
+class TrainingConfig:
+    """How to train (configuration only; learned state lives in the model).
+
+    Parameters
+    ----------
+    mixtures : tuple of int
+        Gaussians per state at each stage, increasing (default 1, 2, 4, 8).
+    first_passes : int >= 1
+        Re-estimation passes at the first stage (from the flat start); 5 did as well as 6
+        on held-out voices, for one pass less (DEVELOPERS.md).
+    passes_per_split : int >= 1
+        Passes after each mixture growth step.
+    variance_floor : float > 0
+        Variance floor as a fraction of the global variance (0.01: 1%).
+    min_occupancy : float >= 0
+        Expected frames a component needs to survive a pass.
+    transition_floor : float >= 0
+        Lowest probability an allowed transition may take.
+    pause_seconds : float >= 0
+        Initialise the pause states from this much audio at each end of every
+        recording (0: plain flat start).
+    jobs : int >= 1
+        Processes for feature extraction and re-estimation.
+    seed : int
+        Seeds the direction (sign per dimension) of the mean offsets when splitting.
+    prune : float >= 0
+        Frames whose probability of belonging to a mixture is below this add nothing to
+        that mixture's statistics (saves time; 0 keeps everything).
+    warp_factors : tuple of float > 0
+        Frequency warp factors for vocal tract length perturbation: every recording is
+        trained on once per factor (see :func:`wordspot.training.data.prepare_items`);
+        ``(1.0,)`` is plain training. Recognition always uses unwarped features.
+    speed_factors : tuple of float > 0
+        Speed perturbation: every factor other than 1 adds a copy of every recording
+        played that much faster (tempo, pitch and formants together; see
+        :func:`wordspot.training.data.speed_copy`). The default ``(0.9, 1.0, 1.1)``
+        triples the data and the training time; on the demo set it cut isolated-word
+        errors on unseen voices from 10.4% to 2.4% (DEVELOPERS.md). ``(1.0,)`` turns it off.
+    noise_copies : int >= 0
+        Noisy copies of every recording for multi-condition training (babble or steady
+        machine noise; see :mod:`wordspot.training.noise`); 0 trains on the clean ones only.
+        The default 2 (with ``FeatureSettings.cvn``) cut 10 dB single-word errors on
+        held-out voices from 35.6% (one copy) to 23.6% (DEVELOPERS.md); each copy is babble
+        two times in three (``NoiseSettings.kinds``).
+    noise_snr_db : (float, float)
+        Each noisy copy's SNR in dB, drawn uniformly from this range.
+    """
+
+    mixtures: tuple[int, ...] = (1, 2, 4, 8)
+    first_passes: int = 5
+    passes_per_split: int = 4
+    variance_floor: float = 0.01
+    min_occupancy: float = 3.0
+    transition_floor: float = 1e-3
+    pause_seconds: float = 0.15
+    jobs: int = 1
+    seed: int = 0
+    prune: float = 1e-4
+    warp_factors: tuple[float, ...] = (1.0,)
+    speed_factors: tuple[float, ...] = (0.9, 1.0, 1.1)
+    noise_copies: int = 2
+    noise_snr_db: tuple[float, float] = (0.0, 25.0)
+
+    def __post_init__(self) -> None:
+        m = tuple(self.mixtures)
+        if not m or any(not isinstance(k, (int, np.integer)) or k < 1 for k in m) or list(m) != sorted(set(m)):
+            raise TrainingError(
+                f"mixtures must be increasing whole numbers >= 1 (for example 1 2 4 8), got {self.mixtures!r}"
+            )
+        for name in ("first_passes", "passes_per_split", "jobs"):
+            v = getattr(self, name)
+            if not isinstance(v, (int, np.integer)) or v < 1:
+                raise TrainingError(f"{name} must be a whole number >= 1, got {v!r}")
+        if not (0 < self.variance_floor < 1):
+            raise TrainingError(f"variance_floor must be in (0, 1) (0.01 is usual), got {self.variance_floor!r}")
+        for name in ("warp_factors", "speed_factors"):
+            object.__setattr__(self, name, _factors(name, getattr(self, name)))
+        if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
+            raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
+        self.noise  # validates noise_copies and noise_snr_db
+
+    @property
+    def noise(self) -> NoiseSettings:
+        """The noisy-copy part of these settings."""
+        return NoiseSettings(copies=self.noise_copies, snr_db=tuple(self.noise_snr_db))
+
+    @property
+    def total_passes(self) -> int:
+        return self.first_passes + self.passes_per_split * (len(self.mixtures) - 1)
+
+
+@dataclass
+class TrainingSummary:
+    """What happened during training.
+
+    Attributes
+    ----------
+    used : int
+        Utterances that took part to the end.
+    n_frames : int
+        Frames in those utterances.
+    skipped : list of Skipped
+        Utterances left out, with the reason.
+    passes : list of (int, float)
+        Per pass: Gaussians per state, average log-likelihood per frame.
+    frames_per_unit : dict of str -> float
+        Expected frames of each unit in the last pass.
+    unseen_units : list of str
+        Units that saw (almost) no data and keep their flat-start parameters.
+    seconds : float
+        Wall-clock time of the whole training.
+    """
+
+    used: int = 0
+    n_frames: int = 0
+    skipped: list = field(default_factory=list)
+    passes: list = field(default_factory=list)
+    frames_per_unit: dict = field(default_factory=dict)
+    unseen_units: list = field(default_factory=list)
+    seconds: float = 0.0
+
+    def lines(self) -> list[str]:
+        """The summary as short text lines for people."""
+        out = [f"utterances used: {self.used} ({self.n_frames} frames)",
+               f"utterances skipped: {len(self.skipped)}"]
+        out += [f"  {s.path}: {s.reason}" for s in self.skipped]
+        if self.frames_per_unit:
+            cells = [f"{u} {f:.0f}" for u, f in sorted(self.frames_per_unit.items())]
+            out.append("frames per unit: " + ", ".join(cells))
+        out.append("units with no data (flat-start parameters): "
+                   + (", ".join(self.unseen_units) if self.unseen_units else "none"))
+        out.append(f"training time: {self.seconds:.1f} s")
+        return out
+
+
+# ------------------------------------------------------------------ one pass
+
+
+@dataclass
+class _PassResult:
+    stats: MixtureStats
+    trans_counts: np.ndarray
+    loglik: np.ndarray  # per utterance (-inf: no path)
+    unit_frames: np.ndarray
+
+
+class _GraphCache:
+    """Per-chunk work that depends only on a graph (utterances with the same words share it)."""
+
+    def __init__(self, graph, units: UnitSet, n_comp: int):
+        self.graph = refresh_graph(graph, units)
+        self.pdfs, self.local = np.unique(graph.pdf, return_inverse=True)
+        self.cols = (self.pdfs[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
+        self.arrays = graph_arrays(self.graph)
+        g = self.graph
+        self.self_count = np.zeros(g.n_states)
+        self.arc_count = np.zeros(g.n_arcs)
+        self.init_count = np.zeros(g.n_states)
+        self.final_count = np.zeros(g.n_states)
+
+
+def _utterance_pass(item_frames, cache: _GraphCache, scoring, n_comp: int, result: _PassResult,
+                    k: int, prune: float):
+    """Add one utterance's statistics into ``result`` (its log-likelihood into slot k)."""
+    x = np.ascontiguousarray(item_frames, dtype=np.float64)
+    w, c = scoring
+    pdfs, local = cache.pdfs, cache.local
+    comp = kernels.score_components(x, np.ascontiguousarray(w[:, cache.cols]), np.ascontiguousarray(c[cache.cols]))
+    pdf_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], pdfs.size, n_comp))
+    state_ll = np.ascontiguousarray(pdf_ll[:, local])
+    self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
+    total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
+    result.loglik[k] = total
+    if not np.isfinite(total):
+        return
+    beta = kernels.backward(state_ll, self_logp, src, dst, arc_logp, final_logp)
+    gamma = np.exp(alpha + beta - total)
+    counts = kernels.transition_counts(state_ll, alpha, beta, total, self_logp, src, dst, arc_logp,
+                                       init_logp, final_logp)
+    cache.self_count += counts[0]
+    cache.arc_count += counts[1]
+    cache.init_count += counts[2]
+    cache.final_count += counts[3]
+    pdf_gamma = np.zeros((x.shape[0], pdfs.size))
+    np.add.at(pdf_gamma.T, local, gamma.T)
+    if prune > 0:
+        pdf_gamma[pdf_gamma < prune] = 0.0  # the moment sums skip these (frame, mixture) pairs
+    occ, first, second = kernels.accumulate_moments(x, comp_post, pdf_gamma)
+    result.stats.occupancy[pdfs] += occ
+    result.stats.first[pdfs] += first
+    result.stats.second[pdfs] += second
+    np.add.at(result.unit_frames, cache.graph.unit, gamma.sum(axis=0))
+
+
+def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _PassResult:
+    """Summed statistics of a chunk of (frames, graph) pairs, in order."""
+    n_params = n_transition_params(units.n_units)
+    result = _PassResult(
+        MixtureStats.zeros(mix.n_pdfs, mix.n_components, mix.dim),
+        np.zeros(n_params),
+        np.full(len(chunk), -np.inf),
+        np.zeros(units.n_units),
+    )
+    scoring = scoring_matrix(mix)
+    caches: dict[int, _GraphCache] = {}
+    for k, (frames, graph) in enumerate(chunk):
+        cache = caches.get(id(graph))
+        if cache is None:
+            cache = caches[id(graph)] = _GraphCache(graph, units, mix.n_components)
+        _utterance_pass(frames, cache, scoring, mix.n_components, result, k, prune)
+    for cache in caches.values():  # insertion order: the same in every process
+        post = Posteriors(0.0, np.zeros((0, 0)), cache.self_count, cache.arc_count,
+                          cache.init_count, cache.final_count)
+        result.trans_counts += parameter_counts(cache.graph, post, n_params)
+    return result
+
+
+def _run_pass(chunks, mix, units, parallel, label, quiet, prune) -> _PassResult:
+    bar = ProgressBar(sum(len(c) for c in chunks), label, quiet=quiet)
+    if parallel is None:
+        gen = (_chunk_pass(c, mix, units, prune) for c in chunks)
+    else:
+        gen = parallel(delayed(_chunk_pass)(c, mix, units, prune) for c in chunks)
+    total = None
+    lls = []
+    for part in gen:  # in chunk order, whatever the number of processes
+        if total is None:
+            total = part
+        else:
+            total.stats.add(part.stats)
+            total.trans_counts += part.trans_counts
+            total.unit_frames += part.unit_frames
+        lls.append(part.loglik)
+        bar.update(len(part.loglik))
+    bar.close()
+    total.loglik = np.concatenate(lls)
+    return total
+
+
+# ------------------------------------------------------------------ flat start
+
+
+def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
+               pause_seconds: float) -> tuple[Mixtures, np.ndarray]:
+    """One Gaussian per state from the global statistics of all frames.
+
+    Returns
+    -------
+    mixtures : Mixtures
+    global_variance : ndarray, shape (D,)
+    """
+    n = sum(it.frames.shape[0] for it in items)
+    s1 = np.zeros(items[0].frames.shape[1])
+    s2 = np.zeros_like(s1)
+    for it in items:
+        x = it.frames.astype(np.float64)
+        s1 += x.sum(axis=0)
+        s2 += (x * x).sum(axis=0)
+    mean = s1 / n
+    var = np.maximum(s2 / n - mean**2, 1e-8)
+    mix = single_gaussian(units.n_pdfs, mean, var)
+    edge = int(round(pause_seconds * frame_rate))
+    if edge > 0 and PAUSE_UNIT in units:
+        ends = [np.concatenate([it.frames[:edge], it.frames[-edge:]]).astype(np.float64)
+                for it in items if it.frames.shape[0] >= 3 * edge]
+        if ends:
+            e = np.concatenate(ends)
+            pau_var = np.maximum(e.var(axis=0), 0.01 * var)
+            pdfs = units.state_pdf[units.index(PAUSE_UNIT)]
+            pdfs = pdfs[pdfs >= 0]
+            mix.means[pdfs, 0] = e.mean(axis=0)
+            mix.variances[pdfs, 0] = pau_var
+    return mix, var
+
+
+# ------------------------------------------------------------------ the loop
+
+
+def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
+                config: TrainingConfig = TrainingConfig(), quiet: bool = True, report=None):
+    """Train mixtures and transitions on prepared utterances.
+
+    Parameters
+    ----------
+    items : list of TrainingItem
+    units : UnitSet
+        Topology and starting transitions.
+    frame_rate : float
+        Frames per second of the features (for the pause initialisation).
+    config : TrainingConfig
+    quiet : bool
+        No progress bars.
+    report : callable, optional
+        Called with one line of text per pass.
+
+    Returns
+    -------
+    units : UnitSet
+    mixtures : Mixtures
+    summary : TrainingSummary
+        ``used``, ``n_frames``, ``passes``, ``frames_per_unit`` and ``unseen_units`` filled.
+    dropped : list of Skipped
+        Utterances dropped because no path through their chain fits.
+    """
+    if not items:
+        raise TrainingError("no usable utterance to train on")
+    # Same transcripts next to each other, so a chunk composes and refreshes each graph
+    # once; the order is fixed by the data alone (stable sort), never by ``jobs``.
+    items = sorted(items, key=lambda it: it.words)
+    if config.jobs == 1:
+        return _train_loop(items, units, frame_rate, config, quiet, report)
+    # Worker processes read the frames from one memory-mapped file instead of receiving
+    # copies every pass (joblib passes slices of a memory map by reference).
+    with tempfile.TemporaryDirectory(prefix="wordspot-train-") as folder:
+        return _train_loop(_shared_frames(items, Path(folder) / "frames.npy"), units, frame_rate,
+                           config, quiet, report)
+
+
+def _shared_frames(items: list[TrainingItem], path: Path) -> list[TrainingItem]:
+    """The same items with their frames as slices of one memory-mapped file at ``path``."""
+    total = sum(it.frames.shape[0] for it in items)
+    big = np.lib.format.open_memmap(path, mode="w+", dtype=np.float32, shape=(total, items[0].frames.shape[1]))
+    start = 0
+    for it in items:
+        big[start:start + it.frames.shape[0]] = it.frames
+        start += it.frames.shape[0]
+    big.flush()
+    del big
+    shared = np.load(path, mmap_mode="r")
+    out, start = [], 0
+    for it in items:
+        n = it.frames.shape[0]
+        out.append(replace(it, frames=shared[start:start + n]))
+        start += n
+    return out
+
+
+def _train_loop(items, units, frame_rate, config, quiet, report):
+    """The passes of :func:`train_items` (items sorted, frames wherever they live)."""
+    rng = np.random.default_rng(config.seed)
+    mix, global_var = flat_start(items, units, frame_rate=frame_rate, pause_seconds=config.pause_seconds)
+    floor = config.variance_floor * global_var
+    summary = TrainingSummary()
+    dropped: list[Skipped] = []
+    updated = np.ones(mix.n_pdfs, dtype=bool)
+    last = None
+    parallel = Parallel(n_jobs=config.jobs, backend="loky", return_as="generator") if config.jobs > 1 else None
+    n_pass = 0
+    for stage, n_comp in enumerate(config.mixtures):
+        if stage > 0:
+            # Grow only mixtures that had data; the others keep their flat start.
+            mix = split_heaviest(mix, n_comp, which=updated, rng=rng)
+        passes = config.first_passes if stage == 0 else config.passes_per_split
+        for _ in range(passes):
+            n_pass += 1
+            chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]]
+                      for i in range(0, len(items), CHUNK_SIZE)]
+            label = f"pass {n_pass}/{config.total_passes} ({n_comp} mix)"
+            res = _run_pass(chunks, mix, units, parallel, label, quiet, config.prune)
+            bad = ~np.isfinite(res.loglik)
+            if bad.any():
+                for k in np.flatnonzero(bad):
+                    reason = "no path through its chain fits the audio (likelihood zero)"
+                    dropped.append(Skipped(items[k].path, reason))
+                    warnings.warn(f"skipping {items[k].path}: {reason}", TrainingWarning, stacklevel=2)
+                items = [it for k, it in enumerate(items) if not bad[k]]
+                if not items:
+                    raise TrainingError("no usable utterance to train on: no chain fits its audio")
+            n_frames = sum(it.frames.shape[0] for it in items)
+            avg = float(res.loglik[~bad].sum() / n_frames)
+            summary.passes.append((int(n_comp), avg))
+            if report is not None:
+                report(f"pass {n_pass:2d}  {n_comp} Gaussian(s)/state  "
+                       f"log-likelihood per frame {avg:.4f}")
+            mix, updated = update_mixtures(mix, res.stats, variance_floor=floor,
+                                           min_occupancy=config.min_occupancy)
+            units = update_transitions(units, res.trans_counts, floor=config.transition_floor)
+            last = res
+    summary.used = len({it.path for it in items})  # recordings, not augmented copies
+    summary.n_frames = int(sum(it.frames.shape[0] for it in items))
+    summary.frames_per_unit = {name: float(last.unit_frames[u]) for u, name in enumerate(units.names)}
+    seen = np.zeros(units.n_units, dtype=bool)
+    for u in range(units.n_units):
+        pdfs = units.state_pdf[u, : units.n_states[u]]
+        seen[u] = bool(updated[pdfs].any())
+    summary.unseen_units = [n for u, n in enumerate(units.names) if not seen[u]]
+    return units, mix, summary, dropped
+
+
+def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
+          config: TrainingConfig = TrainingConfig(), manifest=None, quiet: bool = True,
+          report=None) -> tuple[AcousticModel, TrainingSummary]:
+    """Train an acoustic model from recordings labelled with their words.
+
+    Parameters
+    ----------
+    utterances : sequence of wordspot.corpus.Utterance
+    lexicon : wordspot.language.lexicon.Lexicon
+        Must hold every transcript word (all missing words are listed in one error
+        before any work starts).
+    settings : FeatureSettings, optional
+        Feature settings (default: 16 kHz MFCC, 39 values a frame).
+    config : TrainingConfig
+    manifest : str or path, optional
+        The manifest's name, for messages.
+    quiet : bool
+        No progress bars.
+    report : callable, optional
+        Receives one line of text per pass.
+
+    Returns
+    -------
+    model : AcousticModel
+    summary : TrainingSummary
+
+    Raises
+    ------
+    ManifestError
+        Missing files or words not in the lexicon.
+    TrainingError
+        Nothing usable is left.
+    """
+    start = time.monotonic()
+    settings = FeatureSettings() if settings is None else settings
+    utterances = list(utterances)
+    if not utterances:
+        raise TrainingError(f"{manifest or 'manifest'}: lists no recordings to train on")
+    check_manifest(utterances, lexicon, manifest=manifest)
+    units = default_unit_set(sorted(lexicon.units_used()))
+    items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
+                                   warps=config.warp_factors, speeds=config.speed_factors,
+                                   noise=config.noise, seed=config.seed)
+    if not items:
+        raise TrainingError(
+            f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
+            "(see the warnings above); fix or replace the files and train again"
+        )
+    units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate,
+                                               config=config, quiet=quiet, report=report)
+    summary.skipped = skipped + dropped
+    if summary.unseen_units:
+        warnings.warn(
+            "no training data for unit(s) " + ", ".join(summary.unseen_units)
+            + "; they keep their flat-start parameters (add recordings of words that use them)",
+            TrainingWarning, stacklevel=2,
+        )
+    used = {it.path for it in items} - {s.path for s in dropped}
+    transcripts = [u.words for u in utterances if u.path in used]
+    bigrams = count_bigrams(transcripts, vocabulary=lexicon.words)
+    summary.seconds = time.monotonic() - start
+    info = {
+        "created": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "wordspot_version": __version__,
+        "utterances": summary.used,
+        "skipped": len(summary.skipped),
+        "frames": summary.n_frames,
+        "passes": len(summary.passes),
+        "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
+        "mixture_schedule": [int(k) for k in config.mixtures],
+        "seconds": round(summary.seconds, 2),
+        "seed": int(config.seed),
+        "warp_factors": list(config.warp_factors),
+        "speed_factors": list(config.speed_factors),
+        "noise_copies": int(config.noise_copies),
+        "noise_snr_db": [float(v) for v in config.noise_snr_db],
+        "noise_kinds": list(config.noise.kinds),
+        "unseen_units": list(summary.unseen_units),
+    }
+    model = AcousticModel(features=settings, units=units, mixtures=mix, lexicon=lexicon,
+                          bigrams=bigrams, info=info)
+    return model, summary
