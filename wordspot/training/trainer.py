@@ -60,7 +60,7 @@ from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet, default_unit_set, n_transition_params
 
-__all__ = ["TrainingConfig", "TrainingSummary", "train", "train_items", "flat_start"]
+__all__ = ["TrainingConfig", "TrainingSummary", "train", "train_items", "flat_start", "pass_statistics"]
 
 
 def _factors(name: str, value) -> tuple[float, ...]:
@@ -312,6 +312,17 @@ def _run_pass(chunks, mix, units, parallel, label, quiet, prune) -> _PassResult:
     bar.close()
     total.loglik = np.concatenate(lls)
     return total
+
+
+def pass_statistics(chunks, mix: Mixtures, units: UnitSet, *, jobs: int = 1, quiet: bool = True,
+                    prune: float = 0.0, label: str = "statistics"):
+    """One forward-backward pass over chunks of ``(frames, graph)`` pairs, summed in chunk order.
+
+    Returns an object with ``stats`` (MixtureStats), ``trans_counts``, ``loglik`` (per
+    utterance) and ``unit_frames``; the same for any ``jobs``.
+    """
+    parallel = Parallel(n_jobs=jobs, backend="loky", return_as="generator") if jobs > 1 else None
+    return _run_pass(chunks, mix, units, parallel, label, quiet, prune)
 
 
 # ------------------------------------------------------------------ flat start

@@ -1,0 +1,372 @@
+"""Adapting a trained model (usually a starter model) to a user's recordings.
+
+Two steps, both over the same forward-backward statistics that training collects:
+
+1. **Shared mean transform** (optional, on by default): one affine map ``mu' = A mu + b``
+   of every Gaussian mean in a regression class (pause states and speech states are two
+   classes), estimated by maximum likelihood from the user's data (MLLR: Leggetter &
+   Woodland 1995, "Maximum likelihood linear regression for speaker adaptation of
+   continuous density hidden Markov models", Computer Speech and Language 9, eqs. for
+   diagonal covariances). It moves *every* phone towards the user's voice, also the ones
+   the user never said.
+2. **MAP re-estimation** (Gauvain & Lee 1994, "Maximum a posteriori estimation for
+   multivariate Gaussian mixture observations of Markov chains", IEEE Trans. Speech and
+   Audio Processing 2(2)): with ``tau`` the prior weight, ``n_k`` a component's expected
+   frame count and ``s_k`` its posterior-weighted frame sum,
+
+       mean_k   = (tau * prior_mean_k + s_k) / (tau + n_k)
+       weight_k = (tau * prior_weight_k + n_k) / (tau + sum_j n_j)
+
+   and, when asked, variances from the second-order statistics in the same way. With no
+   data a Gaussian keeps its prior; with much data it tends to the maximum-likelihood
+   estimate. The prior is the (transformed) starting model throughout the passes.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from wordspot import __version__
+from wordspot.acoustic.gmm import Mixtures, MixtureStats
+from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
+from wordspot.corpus import check_manifest
+from wordspot.errors import TrainingError
+from wordspot.language.grammar import count_bigrams
+from wordspot.language.lexicon import Lexicon
+from wordspot.model import AcousticModel
+from wordspot.training.data import prepare_items
+from wordspot.training.items import CHUNK_SIZE
+from wordspot.training.trainer import TrainingSummary, pass_statistics
+
+__all__ = [
+    "AdaptationConfig",
+    "map_means",
+    "map_weights",
+    "map_variances",
+    "estimate_mean_transform",
+    "apply_mean_transform",
+    "regression_classes",
+    "vocabulary_for",
+    "adapt_items",
+    "adapt",
+]
+
+
+@dataclass(frozen=True)
+class AdaptationConfig:
+    """How to adapt (configuration only).
+
+    Parameters
+    ----------
+    prior_weight : float >= 0
+        ``tau``: how many frames of the user's data weigh as much as the starting model
+        (0: plain maximum likelihood where there is data). Chosen on the dev split of the
+        training voices (DEVELOPERS.md).
+    passes : int >= 1
+        MAP passes (each one forward-backward over the user's data).
+    mean_transform : bool
+        Estimate a shared affine mean transform per regression class before MAP.
+    min_transform_frames : float > 0
+        Fewest expected frames a regression class needs for a full transform; with
+        fewer it gets a bias-only transform, and below a tenth of that none.
+    update_variances : bool
+        Also MAP-update the variances.
+    jobs : int >= 1
+        Processes for features and statistics.
+    prune : float >= 0
+        As in training: frame/mixture posteriors below this add nothing.
+    """
+
+    prior_weight: float = 10.0
+    passes: int = 2
+    mean_transform: bool = True
+    min_transform_frames: float = 2000.0
+    update_variances: bool = False
+    jobs: int = 1
+    prune: float = 1e-4
+
+    def __post_init__(self) -> None:
+        if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
+            raise TrainingError(f"prior_weight must be a number >= 0 (10 is usual), got {self.prior_weight!r}")
+        for name in ("passes", "jobs"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 1:
+                raise TrainingError(f"{name} must be a whole number >= 1, got {v!r}")
+        if not self.min_transform_frames > 0 or self.prune < 0:
+            raise TrainingError("min_transform_frames must be > 0 and prune >= 0")
+
+
+# ------------------------------------------------------------------ MAP (pure functions)
+
+
+def map_means(prior_means: np.ndarray, occupancy: np.ndarray, first: np.ndarray, tau: float) -> np.ndarray:
+    """MAP means: ``(tau * prior + first) / (tau + occupancy)`` per component.
+
+    Parameters
+    ----------
+    prior_means : ndarray, shape (P, M, D)
+    occupancy : ndarray, shape (P, M)
+        Expected frame counts.
+    first : ndarray, shape (P, M, D)
+        Posterior-weighted frame sums.
+    tau : float >= 0
+
+    Returns
+    -------
+    ndarray, shape (P, M, D)
+        Components with no data keep the prior exactly.
+    """
+    denom = tau + occupancy
+    safe = np.where(denom > 0, denom, 1.0)[..., None]
+    out = (tau * prior_means + first) / safe
+    return np.where((occupancy > 0)[..., None], out, prior_means)
+
+
+def map_weights(prior_weights: np.ndarray, occupancy: np.ndarray, tau: float) -> np.ndarray:
+    """MAP mixture weights: ``(tau * prior_w + n_k) / (tau + sum_j n_j)`` per mixture (rows sum to 1)."""
+    num = tau * prior_weights + occupancy
+    total = num.sum(axis=1, keepdims=True)
+    seen = occupancy.sum(axis=1, keepdims=True) > 0
+    return np.where(seen & (total > 0), num / np.where(total > 0, total, 1.0), prior_weights)
+
+
+def map_variances(prior_means: np.ndarray, prior_variances: np.ndarray, new_means: np.ndarray,
+                  occupancy: np.ndarray, second: np.ndarray, tau: float, floor: np.ndarray) -> np.ndarray:
+    """MAP variances with the prior's second moment as pseudo-data (Gauvain & Lee 1994).
+
+    ``var = (tau * (prior_var + prior_mean**2) + second) / (tau + n) - new_mean**2``,
+    floored at ``floor`` (shape (D,)).
+    """
+    denom = tau + occupancy
+    safe = np.where(denom > 0, denom, 1.0)[..., None]
+    var = (tau * (prior_variances + prior_means**2) + second) / safe - new_means**2
+    return np.where((occupancy > 0)[..., None], np.maximum(var, floor), prior_variances)
+
+
+# ------------------------------------------------------------------ shared mean transform
+
+
+def estimate_mean_transform(means: np.ndarray, variances: np.ndarray, occupancy: np.ndarray,
+                            first: np.ndarray, *, bias_only: bool = False) -> np.ndarray:
+    """Maximum-likelihood affine transform of Gaussian means (diagonal covariances).
+
+    Row ``i`` of ``W = [b | A]`` solves ``G_i w_i = k_i`` with
+    ``G_i = sum_m n_m / var_mi * xi_m xi_m^T`` and ``k_i = sum_m first_mi / var_mi * xi_m``,
+    ``xi_m = [1, mean_m]`` (Leggetter & Woodland 1995).
+
+    Parameters
+    ----------
+    means, variances : ndarray, shape (G, D)
+        The Gaussians of one regression class.
+    occupancy : ndarray, shape (G,)
+    first : ndarray, shape (G, D)
+    bias_only : bool
+        Estimate only ``b`` (``A`` = identity): for little data.
+
+    Returns
+    -------
+    ndarray, shape (D, D + 1)
+        ``W``; the transformed mean is ``W @ [1, mean]``.
+    """
+    g, d = means.shape
+    use = occupancy > 0
+    n, mu, var, s = occupancy[use], means[use], variances[use], first[use]
+    if bias_only:
+        # Only b: b_i = sum_m (first_mi - n_m mu_mi) / var_mi / sum_m n_m / var_mi
+        num = ((s - n[:, None] * mu) / var).sum(axis=0)
+        den = (n[:, None] / var).sum(axis=0)
+        w = np.zeros((d, d + 1))
+        w[:, 0] = num / den
+        w[:, 1:] = np.eye(d)
+        return w
+    xi = np.hstack([np.ones((mu.shape[0], 1)), mu])  # (G, D+1)
+    w = np.empty((d, d + 1))
+    for i in range(d):
+        c = n / var[:, i]
+        gi = (xi * c[:, None]).T @ xi
+        ki = xi.T @ (s[:, i] / var[:, i])
+        w[i] = np.linalg.solve(gi + 1e-8 * np.trace(gi) / (d + 1) * np.eye(d + 1), ki)
+    return w
+
+
+def apply_mean_transform(means: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """``W @ [1, mean]`` for every mean (any leading shape, last axis D)."""
+    return w[:, 0] + means @ w[:, 1:].T
+
+
+def regression_classes(units: UnitSet) -> np.ndarray:
+    """Class of every mixture: 0 for the pause unit's states, 1 for the rest (speech)."""
+    cls = np.ones(units.n_pdfs, dtype=np.int64)
+    if PAUSE_UNIT in units:
+        pdfs = units.state_pdf[units.index(PAUSE_UNIT)]
+        cls[pdfs[pdfs >= 0]] = 0
+    return cls
+
+
+def _transformed(mix: Mixtures, stats: MixtureStats, classes: np.ndarray, min_frames: float):
+    """The means after one transform per regression class, and what was done per class."""
+    means = mix.means.copy()
+    done = {}
+    for c in np.unique(classes):
+        rows = np.flatnonzero(classes == c)
+        occ = stats.occupancy[rows].reshape(-1)
+        total = float(occ.sum())
+        if total < 0.1 * min_frames:
+            done[int(c)] = "none"
+            continue
+        bias_only = total < min_frames
+        d = mix.dim
+        w = estimate_mean_transform(mix.means[rows].reshape(-1, d), mix.variances[rows].reshape(-1, d),
+                                    occ, stats.first[rows].reshape(-1, d), bias_only=bias_only)
+        means[rows] = apply_mean_transform(mix.means[rows], w)
+        done[int(c)] = "bias" if bias_only else "full"
+    return means, done
+
+
+# ------------------------------------------------------------------ the loop
+
+
+def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfig = AdaptationConfig(),
+                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None):
+    """Adapt ``mix`` to prepared utterances (units and transitions stay as they are).
+
+    Returns
+    -------
+    mixtures : Mixtures
+    summary : TrainingSummary
+        ``passes`` holds the log-likelihood per frame of each statistics pass.
+    transform : dict
+        Per regression class (0 pause, 1 speech): "full", "bias" or "none".
+    """
+    if not items:
+        raise TrainingError("no usable utterance to adapt on")
+    items = sorted(items, key=lambda it: it.words)
+    floor = variance_floor if variance_floor is not None else 0.01 * mix.variances.min(axis=(0, 1))
+    summary = TrainingSummary()
+    prior = mix
+    transform: dict = {}
+    n_frames = sum(it.frames.shape[0] for it in items)
+    chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
+    total_passes = config.passes + int(config.mean_transform)
+
+    def stats_pass(current, k):
+        res = pass_statistics(chunks, current, units, jobs=config.jobs, quiet=quiet, prune=config.prune,
+                              label=f"adapt {k}/{total_passes}")
+        ok = np.isfinite(res.loglik)
+        avg = float(res.loglik[ok].sum() / n_frames) if ok.any() else float("-inf")
+        summary.passes.append((int(current.n_components), avg))
+        if report is not None:
+            report(f"adapt pass {k}  log-likelihood per frame {avg:.4f}")
+        return res
+
+    k = 0
+    if config.mean_transform:
+        k += 1
+        res = stats_pass(prior, k)
+        means, transform = _transformed(prior, res.stats, regression_classes(units), config.min_transform_frames)
+        prior = Mixtures(prior.weights.copy(), means, prior.variances.copy())
+    current = prior
+    res = None
+    for _ in range(config.passes):
+        k += 1
+        res = stats_pass(current, k)
+        st = res.stats
+        means = map_means(prior.means, st.occupancy, st.first, config.prior_weight)
+        weights = map_weights(prior.weights, st.occupancy, config.prior_weight)
+        variances = prior.variances
+        if config.update_variances:
+            variances = map_variances(prior.means, prior.variances, means, st.occupancy, st.second,
+                                      config.prior_weight, floor)
+        # a component the starting model had switched off (weight 0) stays off
+        seen = st.occupancy.sum(axis=1) > 0
+        off = seen[:, None] & (prior.weights <= 0)
+        if off.any():
+            weights = np.where(off, 0.0, weights)
+            weights[seen] /= weights[seen].sum(axis=1, keepdims=True)
+        current = Mixtures(weights, means, variances)
+    summary.used = len({it.path for it in items})
+    summary.n_frames = int(n_frames)
+    summary.frames_per_unit = {name: float(res.unit_frames[u]) for u, name in enumerate(units.names)}
+    return current, summary, transform
+
+
+def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lexicon, list[str]]:
+    """The user's lexicon, plus pronunciations from the starting model for transcript words it lacks.
+
+    Returns
+    -------
+    lexicon : Lexicon
+    borrowed : list of str
+        Words whose pronunciations came from the starting model's lexicon.
+    """
+    borrowed = sorted({w for w in words if w not in lexicon and w in start_lexicon})
+    if not borrowed:
+        return lexicon, []
+    entries = {w: lexicon.pronunciations(w) for w in lexicon.words}
+    entries.update({w: start_lexicon.pronunciations(w) for w in borrowed})
+    return Lexicon(entries, source=f"{lexicon.source} + starting model"), borrowed
+
+
+def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
+          manifest=None, quiet: bool = True, report=None) -> tuple[AcousticModel, TrainingSummary]:
+    """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
+
+    The feature settings, units and transitions of ``start`` are kept, so every phone of
+    the starting model stays available for words added later. Transcript words missing
+    from ``lexicon`` are taken from ``start``'s lexicon when it has them.
+
+    Raises
+    ------
+    ManifestError
+        Missing files or words in neither lexicon.
+    TrainingError
+        The lexicon uses units the starting model does not have, or nothing is usable.
+    """
+    t0 = time.monotonic()
+    utterances = list(utterances)
+    if not utterances:
+        raise TrainingError(f"{manifest or 'manifest'}: lists no recordings to adapt on")
+    lexicon, borrowed = vocabulary_for({w for u in utterances for w in u.words}, lexicon, start.lexicon)
+    check_manifest(utterances, lexicon, manifest=manifest)
+    missing = sorted(lexicon.units_used() - set(start.units.names))
+    if missing:
+        raise TrainingError(
+            f"the lexicon uses unit(s) {', '.join(missing)} that the starting model does not have; "
+            "use ARPAbet phones the starting model knows, or train with --from-scratch"
+        )
+    items, skipped = prepare_items(utterances, lexicon, start.units, start.features, jobs=config.jobs,
+                                   quiet=quiet)
+    if not items:
+        raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
+    mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
+                                          report=report)
+    summary.skipped = skipped
+    used = {it.path for it in items}
+    bigrams = count_bigrams([u.words for u in utterances if u.path in used], vocabulary=lexicon.words)
+    summary.seconds = time.monotonic() - t0
+    info = {
+        "created": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "wordspot_version": __version__,
+        "method": "adapted",
+        "adapted_from": {k: start.info.get(k) for k in ("name", "created", "made_from", "method") if k in start.info},
+        "utterances": summary.used,
+        "skipped": len(summary.skipped),
+        "frames": summary.n_frames,
+        "prior_weight": float(config.prior_weight),
+        "passes": int(config.passes),
+        "mean_transform": {("pause", "speech")[c]: how for c, how in sorted(transform.items())},
+        "update_variances": bool(config.update_variances),
+        "borrowed_pronunciations": borrowed,
+        "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
+        "seconds": round(summary.seconds, 2),
+    }
+    for key in ("audio_band",):
+        if key in start.info:
+            info[key] = start.info[key]
+    model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
+                          bigrams=bigrams, info=info)
+    return model, summary
