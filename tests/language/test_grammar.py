@@ -132,3 +132,26 @@ def test_grammar_settings_validation():
         GrammarSettings(weight=-1.0)
     with pytest.raises(GrammarError, match="insertion penalty"):
         GrammarSettings(insertion_penalty=float("nan"))
+
+
+def test_words_no_transcript_holds_get_the_mean_recorded_share(tmp_path):
+    # The rule (ours, documented in wordspot.language.grammar): an unrecorded vocabulary
+    # word counts as often as the mean recorded word in the add-one unigram U.
+    words = ("oven", "start", "stop")
+    counts = count_bigrams([["oven", "start"]] * 3 + [["oven"]] * 2, words)  # "stop" never said
+    prior = estimate_prior(counts)
+    col = counts.counts.sum(axis=0).astype(float)  # exit, oven, start, stop
+    assert col[3] == 0
+    fair = col.copy()
+    fair[3] = (col[1] + col[2]) / 2  # mean of the recorded words (oven 5, start 3)
+    expected = (fair + 1) / (fair + 1).sum()
+    np.testing.assert_allclose(np.exp(prior.unigram), expected, rtol=1e-12)
+    # after the start of an utterance, "stop" is now about as likely as the recorded
+    # "start" (was: one add-one count against four)
+    p = np.exp(prior.log_row(0))
+    assert p[3] > 0.5 * p[2]
+    np.testing.assert_allclose(p.sum(), 1.0, rtol=1e-12)
+    # a prior file keeps exactly what the user wrote (no fair share added)
+    (tmp_path / "p.txt").write_text("^ oven 5\noven start 3\n", encoding="utf-8")
+    assert np.exp(read_prior(tmp_path / "p.txt", words).unigram)[3] < expected[3]
+

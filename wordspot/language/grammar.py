@@ -15,8 +15,11 @@ stochastic language modelling", Computer Speech and Language 8). For a previous 
 
 with the discount ``D = n1 / (n1 + 2 n2)`` from the numbers of pairs seen once (n1) and
 twice (n2) (the estimate given in the same paper), clipped to [0.1, 0.9], or 0.5 when it
-cannot be estimated (common practice). ``U(w) = (c(., w) + 1) / (N + V + 1)`` counts how
-often ``w`` (or the exit) follows anything, plus one. A row with no counts is ``U``; a
+cannot be estimated (common practice). ``U(w)``, proportional to ``c(., w) + 1``, counts how often
+``w`` (or the exit) follows anything, plus one. In a prior estimated from training
+transcripts, a vocabulary word that no transcript holds counts as often as the mean
+recorded word (:func:`unigram_counts`), so words added by pronunciation alone get a prior
+comparable to recorded ones. A row with no counts is ``U``; a
 row in which every successor was seen keeps its plain relative frequencies. So no
 probability is ever zero and every row sums to one.
 
@@ -54,6 +57,7 @@ __all__ = [
     "uniform_prior",
     "read_prior",
     "prior_for_vocabulary",
+    "unigram_counts",
 ]
 
 BOUNDARY = "<edge>"
@@ -195,10 +199,27 @@ def _discount(counts: np.ndarray) -> float:
     return float(np.clip(d, *_DISCOUNT_RANGE))
 
 
-def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str) -> BigramPrior:
+def unigram_counts(counts: np.ndarray) -> np.ndarray:
+    """How often each word (column) follows anything, with a fair share for unrecorded words.
+
+    A word of the vocabulary that no transcript holds (column count 0) counts as often as
+    the mean recorded word, so that a word added by its pronunciation alone is not pushed
+    towards the words the user happened to record. Index 0 (the exit) keeps its count.
+    With no recorded word at all, every count stays 0 (the prior is then uniform).
+    """
+    col = np.asarray(counts, dtype=np.float64).sum(axis=0)
+    words = col[1:]
+    recorded = words > 0
+    if recorded.any() and not recorded.all():
+        words = np.where(recorded, words, words[recorded].mean())
+    return np.concatenate([col[:1], words])
+
+
+def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str, *,
+                 fair_new_words: bool = False) -> BigramPrior:
     counts = np.asarray(counts, dtype=np.float64)
     n = counts.shape[0]
-    uni = counts.sum(axis=0) + 1.0
+    uni = (unigram_counts(counts) if fair_new_words else counts.sum(axis=0)) + 1.0
     uni /= uni.sum()
     d = _discount(counts)
     backoff = np.zeros(n)
@@ -254,7 +275,10 @@ def estimate_prior(counts: BigramCounts) -> BigramPrior:
             f"word-pair counts must be a non-negative ({v + 1} x {v + 1}) table, got shape {c.shape}"
         )
     return _from_counts(
-        counts.words, c, "absolute discounting with back-off to add-one unigrams (Ney, Essen & Kneser 1994)"
+        counts.words, c,
+        "absolute discounting with back-off to add-one unigrams (Ney, Essen & Kneser 1994); "
+        "unrecorded words count as the mean recorded word",
+        fair_new_words=True,
     )
 
 
