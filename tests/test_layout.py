@@ -14,7 +14,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "wordspot"
 # The data flow, first stage first: a module may import only from stages before its own
 # (and from inside its own subpackage). DEVELOPERS.md draws the same picture.
 LAYERS = (
-    ("errors", "util"),
+    ("errors", "util", "starters"),
     ("audio", "language", "acoustic"),
     ("corpus", "model"),
     ("training", "decoding"),

@@ -38,7 +38,7 @@ def _settings(settings, single_word):
     return replace(settings, single_word=True) if single_word else settings
 
 
-def train(manifest, lexicon, *, out=None, config=None, features=None, quiet: bool = True):
+def train(manifest, lexicon, *, out=None, start=None, config=None, features=None, quiet: bool = True):
     """Train a model from a manifest of recordings and a lexicon (``wordspot train``).
 
     Parameters
@@ -48,8 +48,13 @@ def train(manifest, lexicon, *, out=None, config=None, features=None, quiet: boo
     lexicon : str, path or Lexicon
     out : str or path, optional
         Write the model file here (atomically).
-    config : wordspot.training.trainer.TrainingConfig, optional
+    start : str, path or AcousticModel, optional
+        Adapt this model (a file, or ``"starter"`` / ``"starter-8k"``) to the recordings,
+        as ``wordspot train`` does by default; ``None`` trains from scratch.
+    config : TrainingConfig or AdaptationConfig, optional
+        How to train from scratch (``TrainingConfig``) or adapt (``AdaptationConfig``).
     features : wordspot.audio.features.FeatureSettings, optional
+        From scratch only: the feature settings (an adapted model keeps its start's).
     quiet : bool
         No progress bars.
 
@@ -59,11 +64,18 @@ def train(manifest, lexicon, *, out=None, config=None, features=None, quiet: boo
     """
     from wordspot.corpus import read_manifest
     from wordspot.model import save_model
-    from wordspot.training.trainer import TrainingConfig
-    from wordspot.training.trainer import train as _train
 
-    model, _summary = _train(read_manifest(manifest), _lexicon(lexicon), settings=features,
-                             config=config or TrainingConfig(), manifest=manifest, quiet=quiet)
+    if start is None:
+        from wordspot.training.trainer import TrainingConfig
+        from wordspot.training.trainer import train as _train
+
+        model, _summary = _train(read_manifest(manifest), _lexicon(lexicon), settings=features,
+                                 config=config or TrainingConfig(), manifest=manifest, quiet=quiet)
+    else:
+        from wordspot.training.adapt import AdaptationConfig, adapt
+
+        model, _summary = adapt(read_manifest(manifest), _lexicon(lexicon), _model(start),
+                                config=config or AdaptationConfig(), manifest=manifest, quiet=quiet)
     if out is not None:
         save_model(model, Path(out))
     return model

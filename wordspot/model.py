@@ -32,6 +32,7 @@ from wordspot.acoustic.gmm import Mixtures
 from wordspot.language.grammar import BigramCounts
 from wordspot.language.lexicon import Lexicon, parse_lexicon
 from wordspot.acoustic.units import UnitSet
+from wordspot.starters import is_starter_name, starter_path
 
 __all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
 
@@ -175,13 +176,25 @@ def _damaged(path, what: str) -> ModelFileError:
 def load_model(path) -> AcousticModel:
     """Read a model file written by :func:`save_model`, checking it thoroughly.
 
+    ``path`` may also be the name of a packaged starter model (``"starter"``,
+    ``"starter-8k"``) when no file of that name exists.
+
     Raises
     ------
     ModelFileError
         Missing, truncated, altered (checksum mismatch), of another format version, or
         holding inconsistent tables; the message names the file and what to do.
     """
-    p = Path(os.fspath(path))
+    if is_starter_name(path) and not Path(path).exists():
+        p = starter_path(path)
+        if not p.exists():
+            raise ModelFileError(
+                f"{path}: the starter model is not in this installation ({p} is missing); "
+                "rebuild it with `python recordings/build_starters.py` in a source checkout, "
+                "or train with --from-scratch"
+            )
+    else:
+        p = Path(os.fspath(path))
     if not p.exists():
         raise ModelFileError(f"{p}: model file not found; check the name, or {_RETRAIN}")
     if p.is_dir():

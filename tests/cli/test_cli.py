@@ -115,10 +115,26 @@ def test_train_missing_words_listed_before_work(setup, capsys):
     lex.write_text("oven AA B AA\n", encoding="utf-8")
     manifest = folder / "train.csv"
     manifest.write_text(f"path,transcript,speaker\n{good},oven knead,a\n{good},bagel,a\n", encoding="utf-8")
-    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model")])
+    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"),
+                                   "--from-scratch"])
     assert status == 2 and _one_line_error(err)
     assert "knead" in err and "bagel" in err
     assert not (folder / "m.model").exists()
+
+
+def test_train_options_of_full_training_need_from_scratch(setup, capsys):
+    folder, _, good, _ = setup
+    lex = folder / "lex.txt"
+    lex.write_text("oven AA B AA\n", encoding="utf-8")
+    manifest = folder / "train.csv"
+    manifest.write_text(f"path,transcript,speaker\n{good},oven,a\n", encoding="utf-8")
+    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"),
+                                   "--mixtures", "4", "--speed", "1.0"])
+    assert status == 2 and _one_line_error(err)
+    assert "--mixtures, --speed only apply with --from-scratch" in err
+    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"),
+                                   "--from-scratch", "--start", "starter"])
+    assert status == 2 and "exclude each other" in err
 
 
 def test_debug_shows_the_traceback(setup):

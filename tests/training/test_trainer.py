@@ -123,7 +123,7 @@ def test_train_command_writes_a_model(tmp_path, rng, capsys):
     manifest, lex_path = make_corpus(tmp_path / "c", rng, n_utterances=12)
     out = tmp_path / "tones.model"
     status = main(["train", str(manifest), "--lexicon", str(lex_path), "--out", str(out),
-                   "--mixtures", "2", "--passes", "1", "--speed", "1.0"])
+                   "--from-scratch", "--mixtures", "2", "--passes", "1", "--speed", "1.0"])
     assert status == 0
     printed = capsys.readouterr().out
     assert "log-likelihood per frame" in printed and "wrote" in printed

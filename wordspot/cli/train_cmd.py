@@ -10,6 +10,7 @@ from wordspot.audio.features import FeatureSettings
 from wordspot.errors import FeatureError, TrainingError
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
+from wordspot.training.adapt import AdaptationConfig, adapt
 from wordspot.training.trainer import TrainingConfig, train
 
 __all__ = ["add_parser", "mixture_schedule"]
@@ -17,9 +18,13 @@ __all__ = ["add_parser", "mixture_schedule"]
 _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model
-  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --jobs 2
-  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --noise-copies 3
-  wordspot train phone-takes/train.csv --lexicon lexicon/bakery.txt --out phone.model --sample-rate 8000
+      adapt the shipped starter model to your takes (seconds)
+  wordspot train phone-takes/train.csv --lexicon lexicon/bakery.txt --out phone.model --start starter-8k
+      the same for telephone-band recordings
+  wordspot train more-takes.csv --lexicon lexicon/bakery.txt --out bakery2.model --start bakery.model
+      adapt a model you made earlier to new takes
+  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --from-scratch --jobs 2
+      learn every phone from your takes alone (minutes; needs many varied recordings)
 
 The manifest is a CSV file with columns path,transcript,speaker (paths relative to the
 manifest's folder), for example:
@@ -27,7 +32,8 @@ manifest's folder), for example:
   takes/oven-on-1.wav,oven on,ana
   takes/timer-five-minutes.wav,timer five minutes,ben
 Recordings may hold single words or whole commands. Every word must be in the lexicon
-(`wordspot lexicon suggest WORD` prints lines to add). Audio at other rates is resampled
+(`wordspot lexicon suggest WORD` prints lines to add), or, when adapting, in the starting
+model's own lexicon. Audio at other rates is resampled
 to the model rate. Each pass prints the average log-likelihood per frame, which should
 rise from pass to pass; the summary lists skipped recordings and units without data.
 """
@@ -75,51 +81,107 @@ def add_parser(sub):
     p.add_argument("manifest", metavar="MANIFEST", help="CSV file: path,transcript,speaker")
     p.add_argument("--lexicon", required=True, metavar="LEX", help="pronunciation lexicon (text file)")
     p.add_argument("--out", required=True, metavar="MODEL", help="model file to write (e.g. bakery.model)")
-    p.add_argument("--mixtures", type=_positive, default=8, metavar="N",
-                   help="Gaussians per state at the end, reached by doubling (default 8)")
-    p.add_argument("--passes", type=_positive, default=None, metavar="N",
-                   help="re-estimation passes after each mixture doubling; the first stage gets N+2 "
-                   f"(default {TrainingConfig.passes_per_split}, and {TrainingConfig.first_passes} "
-                   "at the first stage)")
+    start = p.add_argument_group("adapting a model (the default)")
+    start.add_argument("--start", metavar="MODEL", default=None,
+                       help="model to adapt: a model file, or 'starter' / 'starter-8k' (the shipped "
+                       "starter models; default: starter, or starter-8k with --sample-rate 8000)")
+    start.add_argument("--prior-weight", type=float, default=AdaptationConfig.prior_weight, metavar="TAU",
+                       help="how many frames of your recordings weigh as much as the starting model "
+                       f"(default {AdaptationConfig.prior_weight:g}; larger keeps closer to the start)")
+    start.add_argument("--adapt-passes", type=_positive, default=AdaptationConfig.passes, metavar="N",
+                       help=f"adaptation passes (default {AdaptationConfig.passes})")
+    start.add_argument("--no-mean-transform", action="store_true",
+                       help="skip the shared transform that first moves every phone towards your voice")
+    start.add_argument("--adapt-variances", action="store_true", help="also adapt the variances")
+    full = p.add_argument_group("training from scratch")
+    full.add_argument("--from-scratch", action="store_true",
+                      help="learn every phone from these recordings alone, starting from nothing")
+    full.add_argument("--mixtures", type=_positive, default=None, metavar="N",
+                      help="Gaussians per state at the end, reached by doubling (default 8)")
+    full.add_argument("--passes", type=_positive, default=None, metavar="N",
+                      help="re-estimation passes after each mixture doubling; the first stage gets N+2 "
+                      f"(default {TrainingConfig.passes_per_split}, and {TrainingConfig.first_passes} "
+                      "at the first stage)")
+    full.add_argument("--seed", type=int, default=None, metavar="N", help="seed for mixture splitting (default 0)")
+    full.add_argument("--noise-copies", type=_count, default=None, metavar="N",
+                      help="noisy copies of every recording (babble or machine noise made from the "
+                      "recordings themselves) so that recognition works in a noisy room; 0: clean only "
+                      f"(default {TrainingConfig.noise_copies})")
+    full.add_argument("--noise-snr", type=float, nargs=2, default=None,
+                      metavar=("LOW", "HIGH"), help="SNR range of the noisy copies in dB "
+                      f"(default {TrainingConfig.noise_snr_db[0]:g} {TrainingConfig.noise_snr_db[1]:g})")
+    full.add_argument("--speed", type=float, nargs="+", default=None, metavar="F",
+                      help="speed perturbation: also train on copies of every recording played F times "
+                      "faster (e.g. --speed 0.9 1.0 1.1 triples the data; helps with new voices) "
+                      f"(default {' '.join(f'{f:g}' for f in TrainingConfig.speed_factors)})")
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
-    p.add_argument("--seed", type=int, default=0, metavar="N", help="seed for mixture splitting (default 0)")
-    p.add_argument("--noise-copies", type=_count, default=TrainingConfig.noise_copies, metavar="N",
-                   help="noisy copies of every recording (babble or machine noise made from the "
-                   "recordings themselves) so that recognition works in a noisy room; 0: clean only "
-                   f"(default {TrainingConfig.noise_copies})")
-    p.add_argument("--noise-snr", type=float, nargs=2, default=TrainingConfig.noise_snr_db,
-                   metavar=("LOW", "HIGH"), help="SNR range of the noisy copies in dB "
-                   f"(default {TrainingConfig.noise_snr_db[0]:g} {TrainingConfig.noise_snr_db[1]:g})")
-    p.add_argument("--speed", type=float, nargs="+", default=TrainingConfig.speed_factors, metavar="F",
-                   help="speed perturbation: also train on copies of every recording played F times "
-                   "faster (e.g. --speed 0.9 1.0 1.1 triples the data; helps with new voices) "
-                   f"(default {' '.join(f'{f:g}' for f in TrainingConfig.speed_factors)})")
-    p.add_argument("--sample-rate", type=int, default=16000, metavar="HZ",
-                   help="model sample rate: 16000 (default) or 8000 for telephone recordings")
+    p.add_argument("--sample-rate", type=int, default=None, metavar="HZ",
+                   help="model sample rate: 16000 (default) or 8000 for telephone recordings; when "
+                   "adapting it must match the starting model's")
     p.set_defaults(func=_run)
     return p
 
 
+_SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "speed")
+
+
 def _run(args) -> int:
+    say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
+    lexicon = read_lexicon(args.lexicon)
+    utterances = read_manifest(args.manifest)
+    if args.from_scratch:
+        if args.start is not None:
+            raise TrainingError("--start and --from-scratch exclude each other: choose one")
+        model, summary, what = _scratch(args, lexicon, utterances, say)
+    else:
+        given = [f"--{n.replace('_', '-')}" for n in _SCRATCH_ONLY if getattr(args, n) is not None]
+        if given:
+            raise TrainingError(f"{', '.join(given)} only apply with --from-scratch; "
+                                "add --from-scratch, or leave them out to adapt a model")
+        model, summary, what = _adapted(args, lexicon, utterances, say)
+    for line in summary.lines():
+        say(line)
+    path = save_model(model, args.out)
+    print(f"wrote {os.fspath(path)} ({summary.used} utterances, {what}, {summary.seconds:.1f} s)")
+    return 0
+
+
+def _scratch(args, lexicon, utterances, say):
     try:
-        settings = FeatureSettings(sample_rate=args.sample_rate)
+        settings = FeatureSettings(sample_rate=args.sample_rate or 16000)
     except FeatureError as exc:
         raise TrainingError(f"--sample-rate: {exc}") from None
     extra = {}
     if args.passes is not None:
         extra = {"passes_per_split": args.passes, "first_passes": args.passes + 2}
-    config = TrainingConfig(mixtures=mixture_schedule(args.mixtures), jobs=args.jobs, seed=args.seed,
-                            noise_copies=args.noise_copies, noise_snr_db=tuple(args.noise_snr),
-                            speed_factors=tuple(args.speed), **extra)
-    lexicon = read_lexicon(args.lexicon)
-    utterances = read_manifest(args.manifest)
-    say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
+    defaults = TrainingConfig()
+    config = TrainingConfig(
+        mixtures=mixture_schedule(args.mixtures) if args.mixtures else defaults.mixtures, jobs=args.jobs,
+        seed=args.seed if args.seed is not None else defaults.seed,
+        noise_copies=args.noise_copies if args.noise_copies is not None else defaults.noise_copies,
+        noise_snr_db=tuple(args.noise_snr) if args.noise_snr else defaults.noise_snr_db,
+        speed_factors=tuple(args.speed) if args.speed else defaults.speed_factors, **extra)
     model, summary = train(utterances, lexicon, settings=settings, config=config,
                            manifest=args.manifest, quiet=args.quiet, report=say)
-    for line in summary.lines():
-        say(line)
-    path = save_model(model, args.out)
-    print(f"wrote {os.fspath(path)} ({summary.used} utterances, "
-          f"{config.mixtures[-1]} Gaussians a state, {summary.seconds:.1f} s)")
-    return 0
+    return model, summary, f"{config.mixtures[-1]} Gaussians a state, from scratch"
+
+
+def _adapted(args, lexicon, utterances, say):
+    from wordspot.model import load_model
+
+    name = args.start or ("starter-8k" if args.sample_rate == 8000 else "starter")
+    start = load_model(name)
+    if args.sample_rate is not None and args.sample_rate != start.features.sample_rate:
+        raise TrainingError(
+            f"--sample-rate {args.sample_rate} does not match the starting model {name} "
+            f"({start.features.sample_rate} Hz); choose --start starter-8k for 8000, or --from-scratch"
+        )
+    config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
+                              mean_transform=not args.no_mean_transform,
+                              update_variances=args.adapt_variances, jobs=args.jobs)
+    model, summary = adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
+                           quiet=args.quiet, report=say)
+    if model.info.get("borrowed_pronunciations"):
+        say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
+    return model, summary, f"adapted from {name}"
