@@ -49,6 +49,7 @@ def add_parser(sub):
 
 
 def _run(args) -> int:
+    from wordspot.audio.band import narrow_band_note
     from wordspot.evaluation.run import evaluate_manifest
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
@@ -66,6 +67,10 @@ def _run(args) -> int:
         failed += len(ev.failed)
         for path, error in ev.failed:
             print(f"wordspot: error: {error}", file=sys.stderr)
+        narrow = sum(1 for r in ev.recognitions if r.narrow_band)
+        if narrow:
+            print(f"wordspot: note: {name}: {narrow_band_note(narrow, len(ev.recognitions), model.features.sample_rate)}",
+                  file=sys.stderr)
         if args.json:
             print(json.dumps(ev.to_dict(), ensure_ascii=False))
         else:

@@ -148,6 +148,7 @@ def write_csv(results, out) -> None:
 
 
 def _run(args) -> int:
+    from wordspot.audio.band import narrow_band_note
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
 
@@ -167,6 +168,10 @@ def _run(args) -> int:
             print(format_jsonl(r), file=out)
         if r.error:
             print(f"wordspot: error: {r.error}", file=sys.stderr)
+    narrow = sum(1 for r in results if r.narrow_band)
+    if narrow:
+        print(f"wordspot: note: {narrow_band_note(narrow, len(results), model.features.sample_rate)}",
+              file=sys.stderr)
     failed = sum(1 for r in results if r.error)
     if failed:
         print(f"wordspot: {failed} of {len(results)} files could not be processed", file=sys.stderr)

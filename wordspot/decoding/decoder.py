@@ -23,6 +23,7 @@ import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
 from wordspot.errors import DecodingError, WordspotError
+from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
 from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.language.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
@@ -162,6 +163,9 @@ class Recognition:
         Why the file could not be processed ("" when it could).
     duration : float
         Seconds of audio (frames times hop).
+    narrow_band : bool
+        The file carries (next to) nothing above 4 kHz although the model's rate could
+        (see :mod:`wordspot.audio.band`): telephone-band audio given to a wideband model.
     """
 
     path: str | None = None
@@ -170,6 +174,7 @@ class Recognition:
     reason: str = ""
     error: str = ""
     duration: float = 0.0
+    narrow_band: bool = False
 
     @property
     def words(self) -> list[str]:
@@ -323,7 +328,9 @@ class Recognizer:
             return Recognition(path=name, error=str(exc))
         except (OSError, ValueError, RuntimeError) as exc:  # anything the readers let through
             return Recognition(path=name, error=f"{name}: cannot read the audio ({exc})")
-        return self.decode(frames, path=name)
+        result = self.decode(frames, path=name)
+        result.narrow_band = is_narrow_band(wave, self.features.sample_rate)
+        return result
 
 
 def _too_short(n: int, hop: float, need: int) -> str:

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import time
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -34,7 +35,8 @@ from wordspot import __version__
 from wordspot.acoustic.gmm import Mixtures, MixtureStats
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
 from wordspot.corpus import check_manifest
-from wordspot.errors import TrainingError
+from wordspot.audio.band import band_warning, measure_band
+from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
@@ -346,6 +348,9 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
                                           report=report)
     summary.skipped = skipped
     used = {it.path for it in items}
+    band = measure_band(sorted(used), start.features.sample_rate)
+    if band["narrow"]:
+        warnings.warn(band_warning(start.features.sample_rate), TrainingWarning, stacklevel=2)
     bigrams = count_bigrams([u.words for u in utterances if u.path in used], vocabulary=lexicon.words)
     summary.seconds = time.monotonic() - t0
     info = {
@@ -364,9 +369,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
         "seconds": round(summary.seconds, 2),
     }
-    for key in ("audio_band",):
-        if key in start.info:
-            info[key] = start.info[key]
+    info["audio_band"] = band
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info)
     return model, summary

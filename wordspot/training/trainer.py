@@ -41,6 +41,7 @@ from wordspot import __version__
 from wordspot.acoustic import kernels
 from wordspot.corpus import check_manifest
 from wordspot.audio.augment import NoiseSettings
+from wordspot.audio.band import band_warning, measure_band
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.audio.features import FeatureSettings
 from wordspot.acoustic.gmm import (
@@ -533,6 +534,9 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
             TrainingWarning, stacklevel=2,
         )
     used = {it.path for it in items} - {s.path for s in dropped}
+    band = measure_band(sorted(used), settings.sample_rate)
+    if band["narrow"]:
+        warnings.warn(band_warning(settings.sample_rate), TrainingWarning, stacklevel=2)
     transcripts = [u.words for u in utterances if u.path in used]
     bigrams = count_bigrams(transcripts, vocabulary=lexicon.words)
     summary.seconds = time.monotonic() - start
@@ -553,6 +557,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         "noise_snr_db": [float(v) for v in config.noise_snr_db],
         "noise_kinds": list(config.noise.kinds),
         "unseen_units": list(summary.unseen_units),
+        "audio_band": band,
     }
     model = AcousticModel(features=settings, units=units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info)
