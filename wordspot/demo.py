@@ -1,4 +1,4 @@
-"""The demo: train on the shipped bakery recordings, measure on every demo test set.
+"""The demo: the starter alone, adapted, and trained from scratch, measured on every demo test set.
 
 The demo corpus (``recordings/`` in a checkout) is synthetic speech from several
 text-to-speech engines and voices; its test sets use voices that training never heard.
@@ -13,7 +13,7 @@ from pathlib import Path
 
 from wordspot.errors import WordspotError
 
-__all__ = ["DemoSet", "DemoRow", "find_recordings", "demo_sets", "run_demo", "render_table"]
+__all__ = ["DemoSet", "DemoRow", "SYSTEMS", "find_recordings", "demo_sets", "run_demo", "render_table"]
 
 _NOISY_LEVELS = (20, 10, 5)
 
@@ -97,67 +97,110 @@ def demo_sets(folder: Path) -> list[DemoSet]:
     return sets
 
 
-def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, jobs: int = 2,
-             quiet: bool = False, say=print):
-    """Train (unless ``model_path`` is given) and evaluate every demo set.
+#: The demo's systems, in table order: name -> what it is.
+SYSTEMS = {
+    "starter": "the shipped starter model alone (no bakery recordings)",
+    "adapted": "the starter adapted on the bakery training set (wordspot train's default)",
+    "scratch": "trained from scratch on the bakery training set (wordspot train --from-scratch)",
+}
+
+
+def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, say):
+    """The model of one system, written to ``out_dir/bakery-<system>.model``."""
+    from wordspot.corpus import read_manifest
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model, save_model
+
+    lexicon = read_lexicon(folder.parent / "lexicon" / "bakery.txt")
+    if system == "starter":
+        model = load_model("starter")
+        model.lexicon = lexicon  # recognise the bakery words; no word-pair counts for them (uniform prior)
+        seconds = 0.0
+    else:
+        train_utts = read_manifest(folder / "train.csv")
+        say(f"{system}: {len(train_utts)} recordings of {len({u.speaker for u in train_utts})} voices "
+            f"({folder / 'train.csv'}) ...")
+        if system == "adapted":
+            from wordspot.training.adapt import AdaptationConfig, adapt
+
+            model, summary = adapt(train_utts, lexicon, load_model("starter"), config=AdaptationConfig(jobs=jobs),
+                                   manifest=folder / "train.csv", quiet=quiet, report=None if quiet else say)
+        else:
+            from wordspot.training.trainer import TrainingConfig, train
+
+            model, summary = train(train_utts, lexicon, config=TrainingConfig(jobs=jobs),
+                                   manifest=folder / "train.csv", quiet=quiet, report=None if quiet else say)
+        seconds = summary.seconds
+    model_file = out_dir / f"bakery-{system}.model"
+    save_model(model, model_file)
+    if seconds:
+        say(f"{system}: model written to {model_file} ({seconds:.0f} s)")
+    return model, model_file, seconds
+
+
+def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, systems=tuple(SYSTEMS),
+             jobs: int = 2, quiet: bool = False, say=print):
+    """Build each system's model (or load ``model_path``) and evaluate it on every demo set.
 
     Returns
     -------
-    rows : list of DemoRow
-    model_file : Path
-    evaluations : list of ManifestEvaluation
+    results : dict of system name -> list of DemoRow
+    model_files : dict of system name -> Path
+    evaluations : dict of system name -> list of ManifestEvaluation
+    seconds : dict of system name -> float
+        Training or adaptation time (0 for the starter alone and a given model).
     """
-    from wordspot.corpus import read_manifest
-    from wordspot.evaluation.run import evaluate_utterances
-    from wordspot.language.lexicon import read_lexicon
-    from wordspot.model import load_model, save_model
     from wordspot.evaluation.report import write_report
-    from wordspot.training.trainer import TrainingConfig, train
+    from wordspot.evaluation.run import evaluate_utterances
+    from wordspot.model import load_model
 
     out_dir.mkdir(parents=True, exist_ok=True)
-    if model_path is None:
-        lexicon = read_lexicon(folder.parent / "lexicon" / "bakery.txt")
-        train_utts = read_manifest(folder / "train.csv")
-        say(f"training on {len(train_utts)} recordings of {len({u.speaker for u in train_utts})} voices "
-            f"({folder / 'train.csv'}) ...")
-        model, summary = train(train_utts, lexicon, config=TrainingConfig(jobs=jobs),
-                               manifest=folder / "train.csv", quiet=quiet,
-                               report=None if quiet else say)
-        model_file = out_dir / "bakery.model"
-        save_model(model, model_file)
-        say(f"model written to {model_file} ({summary.seconds:.0f} s of training)")
+    results, files, evaluations, seconds = {}, {}, {}, {}
+    if model_path is not None:
+        plan = [("model", None)]
     else:
-        model_file = Path(model_path)
-        model = load_model(model_file)
-    rows, evaluations = [], []
-    for ds in demo_sets(folder):
-        if not ds.utterances:
-            continue
-        say(f"evaluating {ds.name} ({len(ds.utterances)} recordings) ...")
-        ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs, quiet=quiet)
-        write_report(ev.result, out_dir / "report" / ds.name)
-        r = ev.result
-        rows.append(DemoRow(ds.name, r.utterances, r.reference_words, r.wer, tuple(r.wer_ci95),
-                            r.substitutions, r.deletions, r.insertions, ds.note))
-        evaluations.append(ev)
-    return rows, model_file, evaluations
+        unknown = [s for s in systems if s not in SYSTEMS]
+        if unknown:
+            raise WordspotError(f"unknown demo system(s) {', '.join(unknown)}; choose from {', '.join(SYSTEMS)}")
+        plan = [(s, s) for s in systems]
+    for name, system in plan:
+        if system is None:
+            model, files[name], seconds[name] = load_model(model_path), Path(model_path), 0.0
+        else:
+            model, files[name], seconds[name] = _build(system, folder, out_dir, jobs=jobs, quiet=quiet, say=say)
+        rows, evs = [], []
+        for ds in demo_sets(folder):
+            if not ds.utterances:
+                continue
+            say(f"{name}: evaluating {ds.name} ({len(ds.utterances)} recordings) ...")
+            ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs, quiet=quiet)
+            write_report(ev.result, out_dir / "report" / name / ds.name)
+            r = ev.result
+            rows.append(DemoRow(ds.name, r.utterances, r.reference_words, r.wer, tuple(r.wer_ci95),
+                                r.substitutions, r.deletions, r.insertions, ds.note))
+            evs.append(ev)
+        results[name], evaluations[name] = rows, evs
+    return results, files, evaluations, seconds
 
 
 def _pct(x: float) -> str:
     return f"{100 * x:.1f}%"
 
 
-def render_table(rows: list[DemoRow]) -> str:
-    """The demo's results as aligned plain-text columns."""
-    header = ["set", "utts", "words", "WER", "95% interval", "sub", "del", "ins", "what it shows"]
-    body = [
-        [r.name, str(r.utterances), str(r.words), _pct(r.wer),
-         f"{_pct(r.wer_ci95[0])} .. {_pct(r.wer_ci95[1])}",
-         str(r.substitutions), str(r.deletions), str(r.insertions), r.note]
-        for r in rows
-    ]
+def render_table(results: dict) -> str:
+    """The demo's results as aligned plain-text columns: one row per set, WER of each system."""
+    names = list(results)
+    first = results[names[0]]
+    header = ["set", "utts", "words"] + [f"WER {n}" for n in names] + ["what it shows"]
+    body = []
+    for k, row in enumerate(first):
+        cells = [row.name, str(row.utterances), str(row.words)]
+        for n in names:
+            r = results[n][k]
+            cells.append(f"{_pct(r.wer)} ({_pct(r.wer_ci95[0])}-{_pct(r.wer_ci95[1])})")
+        body.append(cells + [row.note])
     widths = [max(len(x) for x in col) for col in zip(header, *body)]
-    right = {1, 2, 3, 4, 5, 6, 7}
+    right = set(range(1, 3 + len(names)))
 
     def line(cells):
         return "  ".join(c.rjust(w) if i in right else c.ljust(w) for i, (c, w) in enumerate(zip(cells, widths))).rstrip()

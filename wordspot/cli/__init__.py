@@ -21,7 +21,7 @@ _COMMANDS = ("demo", "train", "recognize", "evaluate", "lexicon")
 
 _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
-  wordspot demo                                   train and evaluate on the shipped demo recordings
+  wordspot demo                                   starter, adapted and from-scratch models on the demo sets
   wordspot lexicon suggest proof knead            pronunciations for two new command words
   wordspot train my-takes/train.csv --lexicon bakery.txt --out bakery.model
   wordspot recognize --model bakery.model oven-start.wav

@@ -1,0 +1,116 @@
+#!/usr/bin/env python3
+"""Rebuild wordspot's starter models from the starter corpus, with one command.
+
+    python recordings/build_starters.py            # corpus (if missing) + both starters
+    python recordings/build_starters.py --rates 16000 --jobs 2
+
+Steps:
+
+1. If ``recordings/starter/train.csv`` is missing, make the starter corpus with
+   ``recordings/starter.py build`` (synthetic speech from Debian's text-to-speech engines;
+   the demo's test voices and new words are left out on purpose, see recordings/README.md).
+2. Train one model per rate from scratch on the corpus's train split, with the settings
+   below (chosen on the corpus's dev split of held-out voices; DEVELOPERS.md).
+3. Record in each model file how it was made (corpus, voices, what was left out, date,
+   this command) and write it into ``wordspot/starters/`` (atomically).
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import datetime as dt
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parent
+CORPUS = HERE / "starter"
+LEXICON = HERE / "starter-text" / "lexicon.txt"
+OUT = REPO / "wordspot" / "starters"
+
+#: Final Gaussians per state and passes, chosen on the starter corpus's dev split.
+MIXTURES = 16
+FIRST_PASSES = 5
+PASSES_PER_SPLIT = 3
+NOISE_COPIES = 1
+SPEED_FACTORS = (1.0,)
+NAMES = {16000: "starter", 8000: "starter-8k"}
+
+
+def _voices(manifest: Path) -> list[str]:
+    with open(manifest, newline="", encoding="utf-8") as f:
+        return sorted({row["speaker"] for row in csv.DictReader(f)})
+
+
+def build_corpus(jobs: int) -> None:
+    if (CORPUS / "train.csv").exists():
+        return
+    print("starter corpus missing: building it (recordings/starter.py build)", flush=True)
+    subprocess.run([sys.executable, str(HERE / "starter.py"), "build", "--jobs", str(jobs)], check=True)
+
+
+def train_one(rate: int, jobs: int, mixtures: int, quiet: bool, manifest: Path) -> Path:
+    from wordspot.audio.features import FeatureSettings
+    from wordspot.corpus import read_manifest
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import save_model
+    from wordspot.starters import starter_path
+    from wordspot.training.trainer import TrainingConfig, train
+
+    steps = [1]
+    while steps[-1] * 2 <= mixtures:
+        steps.append(steps[-1] * 2)
+    config = TrainingConfig(mixtures=tuple(steps), first_passes=FIRST_PASSES, passes_per_split=PASSES_PER_SPLIT,
+                            jobs=jobs, noise_copies=NOISE_COPIES, speed_factors=SPEED_FACTORS)
+    t0 = time.monotonic()
+    model, summary = train(read_manifest(manifest), read_lexicon(LEXICON),
+                           settings=FeatureSettings(sample_rate=rate), config=config, manifest=manifest,
+                           quiet=quiet, report=None if quiet else print)
+    name = NAMES[rate]
+    model.info.update({
+        "name": name,
+        "method": "starter (trained from scratch on the starter corpus)",
+        "made_from": {
+            "corpus": "wordspot starter corpus: synthetic speech from Debian's espeak-ng, flite and "
+                      "festival voices (recordings/starter.py)",
+            "manifest": str(manifest.relative_to(REPO)) if manifest.is_relative_to(REPO) else str(manifest),
+            "voices": _voices(manifest),
+            "left_out": "the demo's test voices (source talkers rms and ked, espeak-ng accents "
+                        "en-gb-scotland, en-029, en-gb-x-gbcwmd and variants f2, m4, f4) and the demo's "
+                        "new words (dough, bread, proof, faster, slower)",
+            "built": dt.date.today().isoformat(),
+            "command": "python recordings/build_starters.py " + " ".join(sys.argv[1:]),
+            "train_seconds": round(time.monotonic() - t0, 1),
+        },
+    })
+    path = save_model(model, starter_path(name))
+    print(f"{name}: {summary.used} utterances, {summary.n_frames} frames, {mixtures} Gaussians a state, "
+          f"{time.monotonic() - t0:.0f} s -> {path}", flush=True)
+    return path
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0],
+                                 formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--rates", type=int, nargs="+", default=[16000, 8000], choices=sorted(NAMES))
+    ap.add_argument("--jobs", type=int, default=2)
+    ap.add_argument("--mixtures", type=int, default=MIXTURES, help=f"Gaussians a state (default {MIXTURES})")
+    ap.add_argument("--manifest", type=Path, default=CORPUS / "train.csv",
+                    help="training manifest (default: the starter corpus's train split)")
+    ap.add_argument("--quiet", action="store_true")
+    args = ap.parse_args(argv)
+    if args.manifest == CORPUS / "train.csv":
+        build_corpus(args.jobs)
+    OUT.mkdir(exist_ok=True)
+    t0 = time.monotonic()
+    for rate in args.rates:
+        train_one(rate, args.jobs, args.mixtures, args.quiet, args.manifest)
+    print(f"starters rebuilt in {time.monotonic() - t0:.0f} s")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
