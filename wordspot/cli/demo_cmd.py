@@ -28,10 +28,10 @@ _SAFETY = ("Voice commands are a convenience, never a safety device: keep a phys
            "for the oven, the mixer and anything else that can hurt someone, and follow local rules.")
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "demo",
-        help="train on the demo recordings and measure WER on every demo test set",
+        **options,
         description="Train a model on the shipped bakery demo recordings, evaluate it on every demo "
         "test set (clean, noisy at 20/10/5 dB, phrases, new words) and print one table.",
         epilog=_EPILOG,

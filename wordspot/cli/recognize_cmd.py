@@ -35,10 +35,10 @@ model, lexicon, prior or option. Voice commands are a convenience, never a safet
 """
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "recognize",
-        help="recognise the words spoken in audio files",
+        **options,
         description="Recognise the commands spoken in one or many audio files with a trained model. "
         "Prints one line (or record) per file with the words, their times and confidences.",
         epilog=_EPILOG,
