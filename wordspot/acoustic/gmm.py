@@ -21,7 +21,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import logsumexp
 
 __all__ = [
     "Mixtures",
@@ -116,6 +115,8 @@ def component_log_likelihoods(frames: np.ndarray, mix: Mixtures, mixture_ids=Non
 
 def log_likelihoods(frames: np.ndarray, mix: Mixtures, mixture_ids=None) -> np.ndarray:
     """Log density of every frame under every mixture, shape (T, P)."""
+    from scipy.special import logsumexp  # imported here: recognition does not need scipy
+
     return logsumexp(component_log_likelihoods(frames, mix, mixture_ids), axis=2)
 
 
@@ -181,6 +182,8 @@ def component_statistics(frames: np.ndarray, mixture_gamma: np.ndarray, comp_ll:
     occupancy : ndarray, shape (K, M)
     first, second : ndarray, shape (K, M, D)
     """
+    from scipy.special import logsumexp  # imported here: recognition does not need scipy
+
     x = np.asarray(frames, dtype=np.float64)
     t, k, m = comp_ll.shape
     mixture_ll = logsumexp(comp_ll, axis=2, keepdims=True)
