@@ -22,7 +22,7 @@ PHONES = ("AA", "B", "K", "S", "T")
 
 
 def tiny_model(rng, entries, *, dim=39, separation=5.0, transcripts=(), n_components=1):
-    """A model whose pdf means are far apart (one direction per pdf) with unit variances.
+    """A model whose mixture means are far apart (one direction per mixture) with unit variances.
 
     Parameters
     ----------
@@ -31,7 +31,7 @@ def tiny_model(rng, entries, *, dim=39, separation=5.0, transcripts=(), n_compon
     """
     lex = Lexicon(entries)
     units = default_unit_set(PHONES)
-    p = units.n_pdfs
+    p = units.n_mixtures
     means = np.zeros((p, n_components, dim))
     for k in range(p):
         direction = rng.normal(size=dim)
@@ -82,11 +82,11 @@ def viterbi_score(graph, state_ll):
 def exhaustive_best(model, network, ll, *, max_words=3):
     """Best (score, words) over every word sequence of 0..max_words words.
 
-    ``ll`` is (T, P) over ``network.used_pdfs``; the grammar scores come from
+    ``ll`` is (T, P) over ``network.used_mixtures``; the grammar scores come from
     ``network.link_row`` (the same numbers the decoder is told to add).
     """
     words = network.words
-    column = {int(p): j for j, p in enumerate(network.used_pdfs)}
+    column = {int(p): j for j, p in enumerate(network.used_mixtures)}
     best = (-np.inf, None)
     for n in range(0, max_words + 1):
         for seq in itertools.product(range(1, len(words) + 1), repeat=n):
@@ -95,38 +95,38 @@ def exhaustive_best(model, network, ll, *, max_words=3):
             if not np.isfinite(grammar):
                 continue
             graph = chain_graph(model, [model.lexicon.pronunciations(words[i - 1]) for i in seq])
-            state_ll = ll[:, [column[int(p)] for p in graph.pdf]]
+            state_ll = ll[:, [column[int(p)] for p in graph.mixture]]
             score = viterbi_score(graph, state_ll) + grammar
             if score > best[0]:
                 best = (score, [words[i - 1] for i in seq])
     return best
 
 
-def frames_along(model, pdf_path, rng, noise=0.3):
-    """Frames drawn near the first component mean of each pdf in ``pdf_path``."""
-    means = model.mixtures.means[np.asarray(pdf_path), 0]
+def frames_along(model, mixture_path, rng, noise=0.3):
+    """Frames drawn near the first component mean of each mixture in ``mixture_path``."""
+    means = model.mixtures.means[np.asarray(mixture_path), 0]
     return means + noise * rng.normal(size=means.shape)
 
 
-def word_pdfs(model, pron, frames_per_state=3):
+def word_mixtures(model, pron, frames_per_state=3):
     u = model.units
     out = []
     for phone in pron:
         k = u.index(phone)
         for i in range(int(u.n_states[k])):
-            out += [int(u.state_pdf[k, i])] * frames_per_state
+            out += [int(u.state_mixture[k, i])] * frames_per_state
     return out
 
 
-def pause_pdfs(model, n_frames):
+def pause_mixtures(model, n_frames):
     """A path through the pause unit: first, middle (repeated), last state."""
     k = model.units.index(PAUSE_UNIT)
-    sp = model.units.state_pdf[k]
+    sp = model.units.state_mixture[k]
     middle = max(n_frames - 2, 1)
     return [int(sp[0])] + [int(sp[1])] * middle + [int(sp[2])]
 
 
-def gap_pdfs(model, n_frames):
+def gap_mixtures(model, n_frames):
     """A path through the optional short pause after a word (tied to the middle pause state)."""
     k = model.units.index(GAP_UNIT)
-    return [int(model.units.state_pdf[k, 0])] * n_frames
+    return [int(model.units.state_mixture[k, 0])] * n_frames

@@ -12,7 +12,7 @@ from wordspot.audio.features import FeatureSettings
 from wordspot.acoustic.gmm import Mixtures
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import parse_lexicon
-from wordspot.model import FORMAT_VERSION, AcousticModel, load_model, save_model
+from wordspot.model import FORMAT_VERSION, AcousticModel, _checksum, load_model, save_model
 from wordspot.acoustic.units import default_unit_set
 
 
@@ -22,7 +22,7 @@ def model(rng):
     units = default_unit_set(sorted(lexicon.units_used()))
     units.trans[0, 0, :2] = [0.55, 0.45]
     settings = FeatureSettings()
-    p, m, d = units.n_pdfs, 3, settings.dim
+    p, m, d = units.n_mixtures, 3, settings.dim
     w = rng.uniform(0.1, 1.0, (p, m))
     w[1, 2] = 0.0
     w /= w.sum(axis=1, keepdims=True)
@@ -35,7 +35,7 @@ def model(rng):
 def assert_same(a: AcousticModel, b: AcousticModel):
     assert a.features == b.features
     assert a.units.names == b.units.names
-    for name in ("n_states", "state_pdf", "trans", "entry"):
+    for name in ("n_states", "state_mixture", "trans", "entry"):
         np.testing.assert_array_equal(getattr(a.units, name), getattr(b.units, name))
     for name in ("weights", "means", "variances"):
         np.testing.assert_array_equal(getattr(a.mixtures, name), getattr(b.mixtures, name))
@@ -116,7 +116,50 @@ def _set_header(path, **fields):
 def test_wrong_version_is_refused(model, tmp_path):
     path = save_model(model, tmp_path / "m.model")
     _set_header(path, version=FORMAT_VERSION + 1)
-    with pytest.raises(ModelFileError, match=rf"format version {FORMAT_VERSION + 1}.*reads version {FORMAT_VERSION}"):
+    with pytest.raises(ModelFileError, match=rf"format version {FORMAT_VERSION + 1}.*reads versions 1, {FORMAT_VERSION}"
+                                             r".*wordspot train"):
+        load_model(path)
+    _set_header(path, version=True)  # JSON true is not the number 1
+    with pytest.raises(ModelFileError, match=r"format version True"):
+        load_model(path)
+
+
+def _as_version_1(path):
+    """Rewrite a saved model in the layout of format version 1, which called each unit
+    state's mixture table ``unit_state_pdf``, with that version's checksum over the names."""
+    def edit(arrays):
+        header = json.loads(arrays.pop("header").tobytes().decode())
+        arrays["unit_state_pdf"] = arrays.pop("unit_state_mixture")
+        header["version"] = 1
+        header["checksum"] = _checksum(arrays, header)
+        arrays["header"] = np.frombuffer(json.dumps(header).encode(), dtype=np.uint8)
+
+    _rewrite(path, edit)
+
+
+def test_version_1_file_still_loads(model, tmp_path):
+    assert FORMAT_VERSION == 2
+    path = save_model(model, tmp_path / "m.model")
+    _as_version_1(path)
+    with np.load(path, allow_pickle=False) as data:
+        assert "unit_state_pdf" in data.files and "unit_state_mixture" not in data.files
+    assert_same(model, load_model(path))
+
+
+def test_version_1_file_is_still_checked(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    _as_version_1(path)
+
+    def nudge(arrays):
+        arrays["unit_trans"][0, 0, 0] += 1e-9
+
+    _rewrite(path, nudge)
+    with pytest.raises(ModelFileError, match=r"m\.model: checksum mismatch"):
+        load_model(path)
+    # A version-1 header over the new table name is not a file any version wrote.
+    path = save_model(model, tmp_path / "m.model")
+    _set_header(path, version=1)
+    with pytest.raises(ModelFileError, match=r"m\.model: does not hold the expected tables"):
         load_model(path)
 
 

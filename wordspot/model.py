@@ -37,7 +37,11 @@ from wordspot.starters import is_starter_name, starter_path
 __all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
 
 FORMAT_NAME = "wordspot-model"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+# Version 1 named each unit state's mixture table ``unit_state_pdf``; version 2 calls it
+# ``unit_state_mixture``. Files of version 1 still load: the old name is mapped on load.
+_RENAMED_IN_VERSION_2 = {"unit_state_pdf": "unit_state_mixture"}
+_READABLE_VERSIONS = (1, FORMAT_VERSION)
 
 _RETRAIN = "train a new one with `wordspot train`"
 
@@ -71,7 +75,7 @@ def _arrays(model: AcousticModel) -> dict[str, np.ndarray]:
     u, m = model.units, model.mixtures
     return {
         "unit_n_states": np.ascontiguousarray(u.n_states, dtype=np.int64),
-        "unit_state_pdf": np.ascontiguousarray(u.state_pdf, dtype=np.int64),
+        "unit_state_mixture": np.ascontiguousarray(u.state_mixture, dtype=np.int64),
         "unit_trans": np.ascontiguousarray(u.trans, dtype=np.float64),
         "unit_entry": np.ascontiguousarray(u.entry, dtype=np.float64),
         "mix_weights": np.ascontiguousarray(m.weights, dtype=np.float64),
@@ -213,16 +217,19 @@ def load_model(path) -> AcousticModel:
     if not isinstance(header, dict) or header.get("format") != FORMAT_NAME:
         raise ModelFileError(f"{p}: is not a wordspot model file; {_RETRAIN}")
     version = header.get("version")
-    if version != FORMAT_VERSION:
+    if type(version) is not int or version not in _READABLE_VERSIONS:
         raise ModelFileError(
-            f"{p}: model format version {version!r}, but this wordspot reads version "
-            f"{FORMAT_VERSION}; {_RETRAIN} (or use the wordspot version that wrote it)"
+            f"{p}: model format version {version!r}, but this wordspot reads versions "
+            f"{', '.join(map(str, _READABLE_VERSIONS))}; {_RETRAIN} (or use the wordspot version that wrote it)"
         )
-    expected = set(_ARRAY_NAMES)
+    renamed = _RENAMED_IN_VERSION_2 if version == 1 else {}
+    written_as = {new: old for old, new in renamed.items()}
+    expected = {written_as.get(name, name) for name in _ARRAY_NAMES}
     if set(arrays) != expected:
         raise _damaged(p, "does not hold the expected tables")
-    if header.get("checksum") != _checksum(arrays, header):
+    if header.get("checksum") != _checksum(arrays, header):  # over the names as written
         raise ModelFileError(f"{p}: checksum mismatch: the file was altered or damaged; {_RETRAIN}")
+    arrays = {renamed.get(name, name): a for name, a in arrays.items()}
     try:
         return _build(p, header, arrays)
     except (KeyError, TypeError, ValueError, IndexError) as exc:
@@ -231,7 +238,7 @@ def load_model(path) -> AcousticModel:
         raise _damaged(p, f"has inconsistent contents ({exc})") from None
 
 
-_ARRAY_NAMES = ("unit_n_states", "unit_state_pdf", "unit_trans", "unit_entry",
+_ARRAY_NAMES = ("unit_n_states", "unit_state_mixture", "unit_trans", "unit_entry",
                 "mix_weights", "mix_means", "mix_variances", "bigram_counts")
 
 
@@ -244,14 +251,14 @@ def _build(p: Path, header: dict, a: dict) -> AcousticModel:
         lexicon = parse_lexicon(header["lexicon"], source=f"{p} (lexicon)")
     except LexiconError as exc:
         raise ModelFileError(f"{p}: invalid lexicon ({exc}); {_RETRAIN}") from None
-    units = UnitSet(tuple(str(n) for n in header["units"]), a["unit_n_states"], a["unit_state_pdf"],
+    units = UnitSet(tuple(str(n) for n in header["units"]), a["unit_n_states"], a["unit_state_mixture"],
                     a["unit_trans"], a["unit_entry"])
     units.validate(source=str(p))
     w, mu, var = a["mix_weights"], a["mix_means"], a["mix_variances"]
     if w.ndim != 2 or mu.ndim != 3 or mu.shape[:2] != w.shape or var.shape != mu.shape:
         raise ModelFileError(f"{p}: mixture tables have inconsistent shapes; {_RETRAIN}")
-    if w.shape[0] != units.n_pdfs:
-        raise ModelFileError(f"{p}: {w.shape[0]} mixtures but the units use {units.n_pdfs}; {_RETRAIN}")
+    if w.shape[0] != units.n_mixtures:
+        raise ModelFileError(f"{p}: {w.shape[0]} mixtures but the units use {units.n_mixtures}; {_RETRAIN}")
     if mu.shape[2] != features.dim:
         raise ModelFileError(
             f"{p}: mixtures have {mu.shape[2]} dimensions but the feature settings give {features.dim}; {_RETRAIN}"

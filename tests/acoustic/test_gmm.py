@@ -31,7 +31,7 @@ def test_component_scores_match_scipy(rng):
     mix = random_mixtures(rng)
     x = rng.normal(0, 3, (20, 5))
     got = component_log_likelihoods(x, mix)
-    for p in range(mix.n_pdfs):
+    for p in range(mix.n_mixtures):
         for m in range(mix.n_components):
             # Reference: scipy.stats.multivariate_normal with a diagonal covariance.
             dens = multivariate_normal(mix.means[p, m], np.diag(mix.variances[p, m])).logpdf(x)
@@ -40,7 +40,7 @@ def test_component_scores_match_scipy(rng):
             np.testing.assert_allclose(got[:, p, m], want, rtol=1e-10, atol=1e-9)
     total = log_likelihoods(x, mix)
     np.testing.assert_allclose(total, logsumexp(got, axis=2), rtol=1e-12)
-    subset = component_log_likelihoods(x, mix, pdfs=np.array([2, 0]))
+    subset = component_log_likelihoods(x, mix, mixture_ids=np.array([2, 0]))
     np.testing.assert_allclose(subset, got[:, [2, 0]], rtol=1e-12)
 
 

@@ -126,13 +126,13 @@ def _left_to_right_problem(rng):
     units = UnitSet(
         names=("x",),
         n_states=np.array([3]),
-        state_pdf=np.array([[0, 1, 2]]),
+        state_mixture=np.array([[0, 1, 2]]),
         trans=np.array([[[0.7, 0.3, 0.0, 0.0], [0.0, 0.8, 0.2, 0.0], [0.0, 0.0, 1.0, 0.0]]]),
         entry=np.array([[1.0, 0.0, 0.0, 0.0]]),
     )
     pad = [-1] * (MAX_ARC_PARAMS - 1)
     graph = StateGraph(
-        pdf=np.arange(3, dtype=np.int32),
+        mixture=np.arange(3, dtype=np.int32),
         unit=np.zeros(3, dtype=np.int32),
         position=np.arange(3, dtype=np.int32),
         slot=np.zeros(3, dtype=np.int32),
@@ -164,7 +164,7 @@ def _left_to_right_problem(rng):
 
 def test_forward_and_viterbi_match_hmmlearn(rng):
     x, units, graph, mix, ref = _left_to_right_problem(rng)
-    state_ll = log_likelihoods(x, mix)[:, graph.pdf]
+    state_ll = log_likelihoods(x, mix)[:, graph.mixture]
     post = forward_backward(graph, state_ll)
     # Reference library: hmmlearn GaussianHMM.score (forward algorithm).
     np.testing.assert_allclose(post.loglik, ref.score(x), rtol=1e-10)
@@ -180,7 +180,7 @@ def test_forward_and_viterbi_match_hmmlearn(rng):
 def test_one_baum_welch_pass_matches_hmmlearn(rng):
     x, units, graph, mix, ref = _left_to_right_problem(rng)
     comp = component_log_likelihoods(x, mix)
-    state_ll = logsumexp(comp, axis=2)[:, graph.pdf]
+    state_ll = logsumexp(comp, axis=2)[:, graph.mixture]
     post = forward_backward(graph, state_ll)
     stats = MixtureStats(*component_statistics(x, post.gamma, comp))
     new_mix, updated = update_mixtures(mix, stats, variance_floor=np.full(2, 1e-12), min_occupancy=0.0)

@@ -51,7 +51,7 @@ def test_default_rows_sum_to_one(units):
     gap = units.index(GAP_UNIT)
     pause = units.index(PAUSE_UNIT)
     assert units.n_states[gap] == 1
-    assert units.state_pdf[gap, 0] == units.state_pdf[pause, 1]
+    assert units.state_mixture[gap, 0] == units.state_mixture[pause, 1]
 
 
 def test_validate_refuses_bad_rows(units):

@@ -6,6 +6,7 @@ import math
 import librosa
 import numpy as np
 import pytest
+import scipy.fft
 import scipy.signal
 from hypothesis import given, settings as hsettings, strategies as st
 from hypothesis.extra import numpy as hnp
@@ -14,6 +15,7 @@ from wordspot.errors import FeatureError
 from wordspot.audio.features import (
     FeatureSettings,
     compute_features,
+    dct_matrix,
     deltas,
     file_features,
     hz_to_mel,
@@ -350,3 +352,13 @@ def test_scratch_reuse_keeps_calls_independent(rng):
         got = list(pool.map(compute_features, waves * 4))
     for i, g in enumerate(got):
         np.testing.assert_array_equal(g, want[i % len(waves)])
+
+
+@pytest.mark.parametrize("n_in,n_out", [(26, 13), (40, 40), (20, 12)])
+def test_dct_matrix_is_scipys_orthonormal_dct2(rng, n_in, n_out):
+    x = rng.normal(size=(7, n_in))
+    ref = scipy.fft.dct(x, type=2, norm="ortho", axis=1)[:, :n_out]  # reference: scipy.fft
+    np.testing.assert_allclose(x @ dct_matrix(n_in, n_out), ref, rtol=0, atol=1e-12)
+    # Orthonormal: the full basis is an orthogonal matrix.
+    full = dct_matrix(n_in, n_in)
+    np.testing.assert_allclose(full.T @ full, np.eye(n_in), rtol=0, atol=1e-12)

@@ -143,11 +143,11 @@ def main() -> None:
         r = build_recognizer(model, settings=DecoderSettings(), lexicon=lex)
         recs.append((r, time.perf_counter() - t))
     feats = [compute_features(w, model.features) for w in waves]
-    lls = [recs[0][0].emissions(f) for f in feats]  # same pdfs for every size
+    lls = [recs[0][0].emissions(f) for f in feats]  # same mixture_ids for every size
     times = np.full(len(recs), np.inf)
     for _ in range(args.repeats):
         for i, (r, _) in enumerate(recs):  # interleaved: load affects every size alike
-            cols = np.searchsorted(recs[0][0].network.used_pdfs, r.network.used_pdfs)
+            cols = np.searchsorted(recs[0][0].network.used_mixtures, r.network.used_mixtures)
             a = time.process_time()
             for ll in lls:
                 r.search(ll[:, cols])

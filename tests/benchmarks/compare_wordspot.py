@@ -94,4 +94,4 @@ def gaussian_scorer(rec):
     from wordspot.decoding.decoder import EMISSION_DTYPE
 
     mix = rec.mixtures
-    return rec.emissions, int(mix.n_pdfs * mix.n_components), int(mix.dim), np.dtype(EMISSION_DTYPE)
+    return rec.emissions, int(mix.n_mixtures * mix.n_components), int(mix.dim), np.dtype(EMISSION_DTYPE)

@@ -14,7 +14,7 @@ import pytest
 import soundfile as sf
 
 from decoding_helpers import tiny_model
-from wordspot.cli import main
+from wordspot.cli import build_parser, chosen_command, main
 from wordspot.errors import ModelFileError
 from wordspot.model import save_model
 
@@ -141,3 +141,34 @@ def test_debug_shows_the_traceback(setup):
     folder, _, good, _ = setup
     with pytest.raises(ModelFileError):
         main(["--debug", "recognize", "--model", str(folder / "none.model"), str(good)])
+
+
+def test_debug_after_the_subcommand_shows_the_traceback(setup):
+    folder, _, good, _ = setup
+    with pytest.raises(ModelFileError):
+        main(["recognize", "--model", str(folder / "none.model"), str(good), "--debug"])
+
+
+@pytest.mark.parametrize("argv, quiet, debug", [
+    (["recognize", "-m", "m", "f"], False, False),
+    (["-q", "recognize", "-m", "m", "f"], True, False),
+    (["recognize", "-m", "m", "f", "-q"], True, False),
+    (["--quiet", "recognize", "--debug", "-m", "m", "f"], True, True),
+    (["--debug", "lexicon", "check", "lex.txt", "--quiet"], True, True),
+    (["lexicon", "suggest", "knead", "--debug"], False, True),
+])
+def test_global_options_before_or_after_the_subcommand(argv, quiet, debug):
+    args = build_parser(chosen_command(argv)).parse_args(argv)
+    assert (args.quiet, args.debug) == (quiet, debug)
+
+
+@pytest.mark.parametrize("where", ["before", "after"])
+def test_quiet_evaluate_in_either_place(setup, capsys, where):
+    folder, model_path, good, _ = setup
+    manifest = folder / "held-out.csv"
+    manifest.write_text(f"path,transcript,speaker\n{good},oven start,a\n", encoding="utf-8")
+    argv = ["evaluate", "--model", model_path, str(manifest), "--report", str(folder / "report")]
+    status, out, _ = _run(capsys, argv)
+    assert status == 0 and "report written to" in out
+    status, out, _ = _run(capsys, ["-q", *argv] if where == "before" else [*argv, "-q"])
+    assert status == 0 and "report written to" not in out and "word error rate" in out

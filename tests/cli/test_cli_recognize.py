@@ -112,3 +112,13 @@ def test_bad_prior_and_model_are_one_line_errors(setup, capsys, tmp_path):
     assert status == 2 and "line 1: word 'bagel'" in err and "Traceback" not in err
     status, _, err = _run(capsys, ["recognize", "-m", str(tmp_path / "none.model"), files[0]])
     assert status == 2 and err.startswith("wordspot: error:")
+
+
+def test_state_limit_option(setup, capsys):
+    model, model_path, files, _ = setup
+    status, _, err = _run(capsys, ["recognize", "-m", model_path, "--state-limit", "0", files[0]])
+    assert status == 2 and "state_limit must be a whole number > 0" in err and "Traceback" not in err
+    # A generous limit prunes nothing the beams keep: the default words come out.
+    status, out, _ = _run(capsys, ["recognize", "-m", model_path, "--state-limit", "100000", "--format", "jsonl",
+                                   files[0]])
+    assert status == 0 and json.loads(out)["words"] == recognize_files(model, files[:1])[0].words

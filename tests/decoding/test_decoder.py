@@ -11,10 +11,10 @@ from decoding_helpers import (
     chain_graph,
     exhaustive_best,
     frames_along,
-    gap_pdfs,
-    pause_pdfs,
+    gap_mixtures,
+    pause_mixtures,
     tiny_model,
-    word_pdfs,
+    word_mixtures,
 )
 from wordspot.decoding import kernels as decode_kernels
 from wordspot.decoding.decoder import (
@@ -34,7 +34,7 @@ TRANSCRIPTS = [["bat", "sack"], ["sack"], ["tab", "bat", "sack"], ["bat"]]
 
 
 def _random_ll(rec, rng, n_frames):
-    return 4.0 * rng.normal(size=(n_frames, rec.network.used_pdfs.shape[0]))
+    return 4.0 * rng.normal(size=(n_frames, rec.network.used_mixtures.shape[0]))
 
 
 # --- exact search -------------------------------------------------------------------
@@ -75,7 +75,7 @@ def test_single_word_score_equals_hmmlearn_viterbi(rng):
     trans[:s, s] = np.exp(graph.final_logp)
     trans[s, s] = 1.0
     start = np.append(np.exp(graph.init_logp), 0.0)
-    column = {int(p): j for j, p in enumerate(rec.network.used_pdfs)}
+    column = {int(p): j for j, p in enumerate(rec.network.used_mixtures)}
 
     class Fixed(BaseHMM):
         def _compute_log_likelihood(self, X):
@@ -84,7 +84,7 @@ def test_single_word_score_equals_hmmlearn_viterbi(rng):
     for n_frames in (13, 20, 30):
         ll = _random_ll(rec, rng, n_frames)
         table = np.full((n_frames + 1, s + 1), -np.inf)
-        table[:n_frames, :s] = ll[:, [column[int(p)] for p in graph.pdf]]
+        table[:n_frames, :s] = ll[:, [column[int(p)] for p in graph.mixture]]
         table[n_frames, s] = 0.0
         hmm = Fixed(n_components=s + 1)
         hmm.startprob_, hmm.transmat_, hmm.table = start, trans, table
@@ -94,12 +94,12 @@ def test_single_word_score_equals_hmmlearn_viterbi(rng):
         assert got.score == pytest.approx(want, rel=1e-10)
 
 
-@pytest.mark.parametrize("beam,word_end_beam,max_active", [(np.inf, np.inf, 10**9), (6.0, 3.0, 10**9), (15.0, 15.0, 12), (30.0, 8.0, 5)])
-def test_compiled_kernel_equals_reference(rng, beam, word_end_beam, max_active):
+@pytest.mark.parametrize("beam,word_end_beam,state_limit", [(np.inf, np.inf, 10**9), (6.0, 3.0, 10**9), (15.0, 15.0, 12), (30.0, 8.0, 5)])
+def test_compiled_kernel_equals_reference(rng, beam, word_end_beam, state_limit):
     # Reference: decode_kernels.decode_reference, the same rules over every state in Python.
     model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
     rec = build_recognizer(
-        model, settings=DecoderSettings(beam=beam, word_end_beam=word_end_beam, max_active=max_active,
+        model, settings=DecoderSettings(beam=beam, word_end_beam=word_end_beam, state_limit=state_limit,
                                         insertion_penalty=-1.0)
     )
     for n_frames in (10, 25, 60):
@@ -108,8 +108,8 @@ def test_compiled_kernel_equals_reference(rng, beam, word_end_beam, max_active):
         slow = rec.search(ll, kernel=decode_kernels.decode_reference)
         assert fast.reason.split(":")[0] == slow.reason.split(":")[0]
         assert fast.words == slow.words
-        assert [(w.start_frame, w.end_frame) for w in fast.segments] == [
-            (w.start_frame, w.end_frame) for w in slow.segments
+        assert [(w.first_frame, w.last_frame) for w in fast.segments] == [
+            (w.first_frame, w.last_frame) for w in slow.segments
         ]
         if np.isfinite(slow.score):
             assert fast.score == pytest.approx(slow.score, rel=1e-12)
@@ -119,7 +119,7 @@ def test_pruning_is_a_subset_of_the_exact_search(rng):
     # A pruned search can only lose paths, never find a better one (definition of a beam).
     model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
     exact = build_recognizer(model, settings=DecoderSettings.unpruned())
-    pruned = build_recognizer(model, settings=DecoderSettings(beam=5.0, word_end_beam=2.0, max_active=8))
+    pruned = build_recognizer(model, settings=DecoderSettings(beam=5.0, word_end_beam=2.0, state_limit=8))
     for _ in range(5):
         ll = _random_ll(exact, rng, 40)
         assert pruned.search(ll).score <= exact.search(ll).score + 1e-9
@@ -133,7 +133,7 @@ def test_bigram_prior_moves_a_tie_in_the_expected_direction(rng):
     # Expected by construction: the word the counts favour after "bat" wins.
     entries = {"bat": [["B", "AA", "T"]], "sack": [["S", "AA", "K"]], "sock": [["S", "AA", "K"]]}
     model = tiny_model(rng, entries)
-    path = pause_pdfs(model, 6) + word_pdfs(model, ["B", "AA", "T"]) + word_pdfs(model, ["S", "AA", "K"]) + pause_pdfs(model, 6)
+    path = pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"]) + word_mixtures(model, ["S", "AA", "K"]) + pause_mixtures(model, 6)
     frames = frames_along(model, path, rng)
     for favoured, other in (("sack", "sock"), ("sock", "sack")):
         counts = count_bigrams([["bat", favoured]] * 5 + [["bat", other]], model.lexicon.words)
@@ -166,15 +166,15 @@ def test_words_times_and_confidence_on_clean_frames(rng):
     # Frames generated along a known path (pause, bat, pause, tab, pause): the words and
     # their frame spans are known by construction.
     model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
-    path = (pause_pdfs(model, 8) + word_pdfs(model, ["B", "AA", "T"], 2) + gap_pdfs(model, 7)
-            + word_pdfs(model, ["T", "AA", "B"], 3) + pause_pdfs(model, 8))
+    path = (pause_mixtures(model, 8) + word_mixtures(model, ["B", "AA", "T"], 2) + gap_mixtures(model, 7)
+            + word_mixtures(model, ["T", "AA", "B"], 3) + pause_mixtures(model, 8))
     frames = frames_along(model, path, rng)
     got = recognize_features(model, frames)
     assert got.words == ["bat", "tab"]
     assert got.reason == ""
     bat, tab = got.segments
-    assert (bat.start_frame, bat.end_frame) == (8, 8 + 18 - 1)
-    assert (tab.start_frame, tab.end_frame) == (8 + 18 + 7, 8 + 18 + 7 + 27 - 1)
+    assert (bat.first_frame, bat.last_frame) == (8, 8 + 18 - 1)
+    assert (tab.first_frame, tab.last_frame) == (8 + 18 + 7, 8 + 18 + 7 + 27 - 1)
     assert bat.start == pytest.approx(8 * 0.01, abs=1e-9)
     assert tab.end == pytest.approx((8 + 18 + 7 + 27) * 0.01, abs=1e-9)
     for seg in got.segments:
@@ -186,7 +186,7 @@ def test_wrong_word_gets_lower_confidence(rng):
     # Force the only word of a lexicon onto frames of another word: its confidence must
     # drop below that of the right word on the same frames (the measure's purpose).
     model = tiny_model(rng, ENTRIES)
-    path = pause_pdfs(model, 6) + word_pdfs(model, ["B", "AA", "T"]) + pause_pdfs(model, 6)
+    path = pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"]) + pause_mixtures(model, 6)
     frames = frames_along(model, path, rng)
     right = recognize_features(model, frames, lexicon=Lexicon({"bat": [["B", "AA", "T"]]}))
     wrong = recognize_features(model, frames, lexicon=Lexicon({"tab": [["T", "AA", "B"]]}),
@@ -198,7 +198,7 @@ def test_wrong_word_gets_lower_confidence(rng):
 def test_new_vocabulary_at_recognition_time(rng):
     # A word the model never saw ("cab", made of its phones) is recognised via --lexicon.
     model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
-    path = pause_pdfs(model, 6) + word_pdfs(model, ["K", "AA", "B"]) + pause_pdfs(model, 6)
+    path = pause_mixtures(model, 6) + word_mixtures(model, ["K", "AA", "B"]) + pause_mixtures(model, 6)
     frames = frames_along(model, path, rng)
     lex = Lexicon({"cab": [["K", "AA", "B"]], "bat": [["B", "AA", "T"]]})
     assert recognize_features(model, frames, lexicon=lex).words == ["cab"]
@@ -224,7 +224,7 @@ def test_too_short_gives_empty_result_with_reason(rng):
 
 def test_silence_only_gives_empty_result(rng):
     model = tiny_model(rng, ENTRIES)
-    frames = frames_along(model, pause_pdfs(model, 80), rng)
+    frames = frames_along(model, pause_mixtures(model, 80), rng)
     got = recognize_features(model, frames)
     assert got.words == [] and got.reason.startswith("silence or noise only")
     assert np.isfinite(got.score)
@@ -234,7 +234,7 @@ def test_no_complete_path_gives_empty_result(rng):
     # Frames that end in the middle of a word: with a narrow beam every exit-pause token
     # is pruned at the last frame, so no complete path exists.
     model = tiny_model(rng, ENTRIES)
-    path = pause_pdfs(model, 6) + word_pdfs(model, ["B", "AA", "T"])[:12]
+    path = pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"])[:12]
     got = recognize_features(model, frames_along(model, path, rng), settings=DecoderSettings(beam=10.0, insertion_penalty=0.0))
     assert got.words == [] and got.reason.startswith("no complete path")
 
@@ -249,8 +249,8 @@ def test_bad_features_and_settings_raise_clear_errors(rng):
         recognize_features(model, bad)
     with pytest.raises(DecodingError, match="beam must be a number > 0"):
         DecoderSettings(beam=-1.0)
-    with pytest.raises(DecodingError, match="max_active"):
-        DecoderSettings(max_active=0)
+    with pytest.raises(DecodingError, match="state_limit"):
+        DecoderSettings(state_limit=0)
     with pytest.raises(DecodingError, match="grammar weight"):
         DecoderSettings(grammar_weight=-2.0)
 
@@ -279,14 +279,14 @@ def test_files_batch_continues_past_failures(rng, tmp_path):
 
 def test_emissions_equal_mixture_scoring(rng):
     # Reference: wordspot.acoustic.gmm.log_likelihoods (double precision, scipy logsumexp) on the
-    # network's pdfs, and the compiled log-sum-exp against scipy's on random component
+    # network's mixture_ids, and the compiled log-sum-exp against scipy's on random component
     # scores. Emissions are scored in float32: IEEE 754 single precision has unit roundoff
     # 2^-24 = 6e-8, so a score of magnitude ~200 built from ~80 products may be off by a
     # few 1e-5 relative at worst (rounding-error bound n u, Higham 2002, ch. 3).
     model = tiny_model(rng, ENTRIES, n_components=3)
     rec = build_recognizer(model)
     frames = rng.normal(size=(50, 39)) * 3.0
-    want = log_likelihoods(frames, model.mixtures, rec.network.used_pdfs)
+    want = log_likelihoods(frames, model.mixtures, rec.network.used_mixtures)
     got = rec.emissions(frames)
     assert got.dtype == np.float64 and got.shape == want.shape
     np.testing.assert_allclose(got, want, rtol=2e-5, atol=1e-3)

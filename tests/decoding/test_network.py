@@ -1,4 +1,4 @@
-"""Network compilation: shared pdfs, transition rows, grammar links, errors."""
+"""Network compilation: shared mixture_ids, transition rows, grammar links, errors."""
 
 from __future__ import annotations
 
@@ -17,28 +17,28 @@ TRANSCRIPTS = [["bat", "sack"], ["sack"], ["tab", "bat", "sack"]]
 
 
 def _net(model, **grammar):
-    return compile_network(model.units, model.mixtures.n_pdfs, model.lexicon,
+    return compile_network(model.units, model.mixtures.n_mixtures, model.lexicon,
                            estimate_prior(model.bigrams), GrammarSettings(**grammar))
 
 
-def test_states_share_unit_pdfs(rng):
+def test_states_share_unit_mixtures(rng):
     model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
     net = _net(model)
     u = model.units
-    model_pdf = net.used_pdfs[net.pdf]
-    # Every state of a word refers to its phone's state pdf (no per-word copies):
+    model_mixture = net.used_mixtures[net.mixture]
+    # Every state of a word refers to its phone's state mixture (no per-word copies):
     # "AA" appears in four pronunciations, all pointing at the same three mixtures.
-    aa = set(u.state_pdf[u.index("AA")])
+    aa = set(u.state_mixture[u.index("AA")])
     for p, pron in enumerate(net.prons):
         states = np.flatnonzero(net.item == FIRST_WORD_ITEM + p)
         phones = states[~net.tail[states]]
-        expected = [int(u.state_pdf[u.index(x), i]) for x in pron for i in range(3)]
-        assert list(model_pdf[phones]) == expected
+        expected = [int(u.state_mixture[u.index(x), i]) for x in pron for i in range(3)]
+        assert list(model_mixture[phones]) == expected
         # The trailing optional pause uses the shared gap (= middle pause) mixture.
         tail = states[net.tail[states]]
-        assert list(model_pdf[tail]) == [int(u.state_pdf[u.index(GAP_UNIT), 0])]
-    assert sum(1 for s in model_pdf if s in aa) == 4 * 3
-    assert len(net.used_pdfs) == len(set(model_pdf)) <= model.mixtures.n_pdfs
+        assert list(model_mixture[tail]) == [int(u.state_mixture[u.index(GAP_UNIT), 0])]
+    assert sum(1 for s in model_mixture if s in aa) == 4 * 3
+    assert len(net.used_mixtures) == len(set(model_mixture)) <= model.mixtures.n_mixtures
 
 
 def test_outgoing_probabilities_sum_to_one(rng):
@@ -67,7 +67,7 @@ def test_link_scores_are_weighted_prior_plus_penalty(rng):
 
 def test_single_word_and_empty_restrictions(rng):
     model = tiny_model(rng, ENTRIES)
-    net = compile_network(model.units, model.mixtures.n_pdfs, model.lexicon, uniform_prior(model.lexicon.words),
+    net = compile_network(model.units, model.mixtures.n_mixtures, model.lexicon, uniform_prior(model.lexicon.words),
                           GrammarSettings(single_word=True), allow_empty=False)
     assert net.link_row(0)[0] == -np.inf and np.all(np.isfinite(net.link_row(0)[1:]))
     for v in range(1, net.n_words + 1):
@@ -86,13 +86,13 @@ def test_unknown_unit_is_named(rng):
     model = tiny_model(rng, ENTRIES)
     lex = Lexicon({"bat": [["B", "AA", "T"]], "zed": [["Z", "EH", "D"]]})
     with pytest.raises(LexiconError, match=r"word 'zed': unit 'Z' is not a phone this model has"):
-        compile_network(model.units, model.mixtures.n_pdfs, lex, uniform_prior(lex.words))
+        compile_network(model.units, model.mixtures.n_mixtures, lex, uniform_prior(lex.words))
     lex = Lexicon({"hush": [[PAUSE_UNIT]]})
     with pytest.raises(LexiconError, match="unit 'pau'"):
-        compile_network(model.units, model.mixtures.n_pdfs, lex, uniform_prior(lex.words))
+        compile_network(model.units, model.mixtures.n_mixtures, lex, uniform_prior(lex.words))
 
 
 def test_prior_must_match_vocabulary(rng):
     model = tiny_model(rng, ENTRIES)
     with pytest.raises(DecodingError, match="other words"):
-        compile_network(model.units, model.mixtures.n_pdfs, model.lexicon, uniform_prior(("bat",)))
+        compile_network(model.units, model.mixtures.n_mixtures, model.lexicon, uniform_prior(("bat",)))

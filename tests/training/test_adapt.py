@@ -142,7 +142,7 @@ def test_adaptation_raises_likelihood_and_keeps_the_rest(tone_models, tmp_path):
     for k, name in enumerate(u.names):
         if name in touched or name in ("pau", "gap"):
             continue
-        pdfs = u.state_pdf[k, : u.n_states[k]]
+        pdfs = u.state_mixture[k, : u.n_states[k]]
         np.testing.assert_array_equal(adapted.mixtures.means[pdfs], model.mixtures.means[pdfs])
         np.testing.assert_array_equal(adapted.mixtures.weights[pdfs], model.mixtures.weights[pdfs])
     np.testing.assert_allclose(adapted.mixtures.weights.sum(axis=1), 1.0, rtol=1e-12)

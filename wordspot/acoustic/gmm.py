@@ -1,4 +1,4 @@
-"""Diagonal-covariance Gaussian mixtures: one per tied HMM state ("pdf").
+"""Diagonal-covariance Gaussian mixtures: one per tied HMM state.
 
 All mixtures of a model live in three arrays (P mixtures, M components at most, D
 feature dimensions). A mixture with fewer than M components has zero weight on the
@@ -21,7 +21,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import logsumexp
 
 __all__ = [
     "Mixtures",
@@ -61,7 +60,7 @@ class Mixtures:
     variances: np.ndarray
 
     @property
-    def n_pdfs(self) -> int:
+    def n_mixtures(self) -> int:
         return int(self.weights.shape[0])
 
     @property
@@ -92,31 +91,33 @@ def scoring_matrix(mix: Mixtures) -> tuple[np.ndarray, np.ndarray]:
     return np.ascontiguousarray(w), (const + logw).reshape(p * m)
 
 
-def component_log_likelihoods(frames: np.ndarray, mix: Mixtures, pdfs=None) -> np.ndarray:
+def component_log_likelihoods(frames: np.ndarray, mix: Mixtures, mixture_ids=None) -> np.ndarray:
     """Log weight plus log density of every frame under every component.
 
     Parameters
     ----------
     frames : ndarray, shape (T, D)
     mix : Mixtures
-    pdfs : ndarray of int, optional
+    mixture_ids : ndarray of int, optional
         Only these mixtures (default: all).
 
     Returns
     -------
-    ndarray, shape (T, len(pdfs), M)
+    ndarray, shape (T, len(mixture_ids), M)
     """
-    if pdfs is not None:
-        mix = Mixtures(mix.weights[pdfs], mix.means[pdfs], mix.variances[pdfs])
+    if mixture_ids is not None:
+        mix = Mixtures(mix.weights[mixture_ids], mix.means[mixture_ids], mix.variances[mixture_ids])
     w, c = scoring_matrix(mix)
     x = np.asarray(frames, dtype=np.float64)
     out = np.concatenate([x * x, x], axis=1) @ w + c
-    return out.reshape(x.shape[0], mix.n_pdfs, mix.n_components)
+    return out.reshape(x.shape[0], mix.n_mixtures, mix.n_components)
 
 
-def log_likelihoods(frames: np.ndarray, mix: Mixtures, pdfs=None) -> np.ndarray:
+def log_likelihoods(frames: np.ndarray, mix: Mixtures, mixture_ids=None) -> np.ndarray:
     """Log density of every frame under every mixture, shape (T, P)."""
-    return logsumexp(component_log_likelihoods(frames, mix, pdfs), axis=2)
+    from scipy.special import logsumexp  # imported here: recognition does not need scipy
+
+    return logsumexp(component_log_likelihoods(frames, mix, mixture_ids), axis=2)
 
 
 @dataclass
@@ -138,11 +139,11 @@ class MixtureStats:
     second: np.ndarray
 
     @classmethod
-    def zeros(cls, n_pdfs: int, n_components: int, dim: int) -> "MixtureStats":
+    def zeros(cls, n_mixtures: int, n_components: int, dim: int) -> "MixtureStats":
         return cls(
-            np.zeros((n_pdfs, n_components)),
-            np.zeros((n_pdfs, n_components, dim)),
-            np.zeros((n_pdfs, n_components, dim)),
+            np.zeros((n_mixtures, n_components)),
+            np.zeros((n_mixtures, n_components, dim)),
+            np.zeros((n_mixtures, n_components, dim)),
         )
 
     def add(self, other: "MixtureStats") -> None:
@@ -152,25 +153,25 @@ class MixtureStats:
         self.second += other.second
 
 
-def single_gaussian(n_pdfs: int, mean: np.ndarray, variance: np.ndarray) -> Mixtures:
-    """``n_pdfs`` one-component mixtures that all equal N(mean, variance)."""
+def single_gaussian(n_mixtures: int, mean: np.ndarray, variance: np.ndarray) -> Mixtures:
+    """``n_mixtures`` one-component mixtures that all equal N(mean, variance)."""
     mean = np.asarray(mean, dtype=np.float64)
     variance = np.asarray(variance, dtype=np.float64)
     d = mean.shape[0]
     return Mixtures(
-        np.ones((n_pdfs, 1)),
-        np.broadcast_to(mean, (n_pdfs, 1, d)).copy(),
-        np.broadcast_to(variance, (n_pdfs, 1, d)).copy(),
+        np.ones((n_mixtures, 1)),
+        np.broadcast_to(mean, (n_mixtures, 1, d)).copy(),
+        np.broadcast_to(variance, (n_mixtures, 1, d)).copy(),
     )
 
 
-def component_statistics(frames: np.ndarray, pdf_gamma: np.ndarray, comp_ll: np.ndarray):
+def component_statistics(frames: np.ndarray, mixture_gamma: np.ndarray, comp_ll: np.ndarray):
     """Zeroth, first and second order sums of every component of some mixtures.
 
     Parameters
     ----------
     frames : ndarray, shape (T, D)
-    pdf_gamma : ndarray, shape (T, K)
+    mixture_gamma : ndarray, shape (T, K)
         Probability that frame t was emitted by mixture k (the state occupancy summed
         over the states that share mixture k).
     comp_ll : ndarray, shape (T, K, M)
@@ -181,13 +182,15 @@ def component_statistics(frames: np.ndarray, pdf_gamma: np.ndarray, comp_ll: np.
     occupancy : ndarray, shape (K, M)
     first, second : ndarray, shape (K, M, D)
     """
+    from scipy.special import logsumexp  # imported here: recognition does not need scipy
+
     x = np.asarray(frames, dtype=np.float64)
     t, k, m = comp_ll.shape
-    pdf_ll = logsumexp(comp_ll, axis=2, keepdims=True)
+    mixture_ll = logsumexp(comp_ll, axis=2, keepdims=True)
     with np.errstate(invalid="ignore"):
-        post = np.exp(comp_ll - pdf_ll)
+        post = np.exp(comp_ll - mixture_ll)
     post = np.nan_to_num(post, nan=0.0, posinf=0.0)  # a mixture impossible for a frame
-    post *= pdf_gamma[:, :, None]
+    post *= mixture_gamma[:, :, None]
     flat = post.reshape(t, k * m)
     occupancy = flat.sum(axis=0).reshape(k, m)
     first = (flat.T @ x).reshape(k, m, -1)

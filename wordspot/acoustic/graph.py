@@ -33,7 +33,7 @@ class StateGraph:
 
     Attributes
     ----------
-    pdf : ndarray of int32, shape (S,)
+    mixture : ndarray of int32, shape (S,)
         Mixture index of each state.
     unit : ndarray of int32, shape (S,)
         Unit id of each state; ``position`` gives the state's index within that unit.
@@ -50,7 +50,7 @@ class StateGraph:
     init_params, final_params : ndarray of int32, shape (S, MAX_ARC_PARAMS)
     """
 
-    pdf: np.ndarray
+    mixture: np.ndarray
     unit: np.ndarray
     position: np.ndarray
     slot: np.ndarray
@@ -68,7 +68,7 @@ class StateGraph:
 
     @property
     def n_states(self) -> int:
-        return int(self.pdf.shape[0])
+        return int(self.mixture.shape[0])
 
     @property
     def n_arcs(self) -> int:
@@ -118,7 +118,7 @@ def compose(slots, units: UnitSet) -> StateGraph:
     StateGraph
     """
     n_units = units.n_units
-    pdf, unit, position, slot_of, alt_of = [], [], [], [], []
+    mixture, unit, position, slot_of, alt_of = [], [], [], [], []
     self_logp, self_param = [], []
     arcs: list[tuple[int, int, float, list[int]]] = []
     init: dict[int, tuple[float, tuple[int, ...]]] = {}
@@ -133,9 +133,9 @@ def compose(slots, units: UnitSet) -> StateGraph:
             here = list(pending)
             for u in seq:
                 n = int(units.n_states[u])
-                first = len(pdf)
+                first = len(mixture)
                 for i in range(n):
-                    pdf.append(int(units.state_pdf[u, i]))
+                    mixture.append(int(units.state_mixture[u, i]))
                     unit.append(u)
                     position.append(i)
                     slot_of.append(k)
@@ -173,7 +173,7 @@ def compose(slots, units: UnitSet) -> StateGraph:
             after_slot.extend(here)
         pending = after_slot
 
-    s = len(pdf)
+    s = len(mixture)
     final_logp = np.full(s, _NEG_INF)
     final_params = np.full((s, MAX_ARC_PARAMS), -1, dtype=np.int32)
     for src, lp, params in pending:
@@ -200,7 +200,7 @@ def compose(slots, units: UnitSet) -> StateGraph:
         arc_params = np.zeros((0, MAX_ARC_PARAMS), dtype=np.int32)
 
     return StateGraph(
-        pdf=np.array(pdf, dtype=np.int32),
+        mixture=np.array(mixture, dtype=np.int32),
         unit=np.array(unit, dtype=np.int32),
         position=np.array(position, dtype=np.int32),
         slot=np.array(slot_of, dtype=np.int32),

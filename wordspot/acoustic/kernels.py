@@ -275,7 +275,7 @@ def mixture_posteriors(comp):
 
 
 @njit(cache=True)
-def accumulate_moments(frames, post, pdf_gamma):
+def accumulate_moments(frames, post, mixture_gamma):
     """Posterior-weighted zeroth, first and second moments of every component.
 
     Parameters
@@ -283,7 +283,7 @@ def accumulate_moments(frames, post, pdf_gamma):
     frames : ndarray, shape (T, D)
     post : ndarray, shape (T, K, M)
         Component posteriors within each mixture.
-    pdf_gamma : ndarray, shape (T, K)
+    mixture_gamma : ndarray, shape (T, K)
         Probability that mixture k emitted frame t.
 
     Returns
@@ -301,7 +301,7 @@ def accumulate_moments(frames, post, pdf_gamma):
         for d in range(dim):
             sq[d] = frames[t, d] * frames[t, d]
         for k in range(n_mix):
-            g = pdf_gamma[t, k]
+            g = mixture_gamma[t, k]
             if g == 0.0:
                 continue
             for m in range(n_comp):
@@ -332,11 +332,11 @@ def reference_mixture_posteriors(comp):
     return loglik, post
 
 
-def reference_accumulate_moments(frames, post, pdf_gamma):
+def reference_accumulate_moments(frames, post, mixture_gamma):
     """Plain-numpy :func:`accumulate_moments` (matrix products)."""
     x = np.asarray(frames, dtype=np.float64)
     t, k, m = post.shape
-    r = (post * pdf_gamma[:, :, None]).reshape(t, k * m)
+    r = (post * mixture_gamma[:, :, None]).reshape(t, k * m)
     return r.sum(axis=0).reshape(k, m), (r.T @ x).reshape(k, m, -1), (r.T @ (x * x)).reshape(k, m, -1)
 
 

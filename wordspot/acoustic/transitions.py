@@ -107,4 +107,4 @@ def update_transitions(units: UnitSet, counts: np.ndarray, *, floor: float = TRA
     entry_counts = counts[n * per_unit:].reshape(units.entry.shape)
     trans = _normalise(units.trans, trans_counts, floor)
     entry = _normalise(units.entry, entry_counts, floor)
-    return UnitSet(units.names, units.n_states.copy(), units.state_pdf.copy(), trans, entry)
+    return UnitSet(units.names, units.n_states.copy(), units.state_mixture.copy(), trans, entry)

@@ -90,8 +90,8 @@ class UnitSet:
         Unit names; a unit's index in this tuple is its id.
     n_states : ndarray of int, shape (U,)
         Emitting states of each unit (1 to ``MAX_STATES``).
-    state_pdf : ndarray of int, shape (U, MAX_STATES)
-        Mixture (pdf) index of each state; -1 for padding. Tied states share an index.
+    state_mixture : ndarray of int, shape (U, MAX_STATES)
+        Mixture index of each state; -1 for padding. Tied states share an index.
     trans : ndarray of float, shape (U, MAX_STATES, MAX_STATES + 1)
         Transition probabilities; last column leaves the unit.
     entry : ndarray of float, shape (U, MAX_STATES + 1)
@@ -100,7 +100,7 @@ class UnitSet:
 
     names: tuple[str, ...]
     n_states: np.ndarray
-    state_pdf: np.ndarray
+    state_mixture: np.ndarray
     trans: np.ndarray
     entry: np.ndarray
 
@@ -109,8 +109,8 @@ class UnitSet:
         return len(self.names)
 
     @property
-    def n_pdfs(self) -> int:
-        return int(self.state_pdf.max()) + 1
+    def n_mixtures(self) -> int:
+        return int(self.state_mixture.max()) + 1
 
     def index(self, name: str) -> int:
         """Id of the unit called ``name``."""
@@ -139,7 +139,7 @@ class UnitSet:
         return UnitSet(
             names=self.names,
             n_states=self.n_states.copy(),
-            state_pdf=self.state_pdf.copy(),
+            state_mixture=self.state_mixture.copy(),
             trans=np.asarray(flat[:n], dtype=np.float64).reshape(self.trans.shape).copy(),
             entry=np.asarray(flat[n:], dtype=np.float64).reshape(self.entry.shape).copy(),
         )
@@ -147,7 +147,7 @@ class UnitSet:
     def validate(self, source: str = "model") -> None:
         """Raise ModelFileError unless shapes agree and every row sums to one."""
         u = self.n_units
-        if self.n_states.shape != (u,) or self.state_pdf.shape != (u, MAX_STATES):
+        if self.n_states.shape != (u,) or self.state_mixture.shape != (u, MAX_STATES):
             raise ModelFileError(f"{source}: unit tables have inconsistent shapes")
         if self.trans.shape != (u, MAX_STATES, _ROW) or self.entry.shape != (u, _ROW):
             raise ModelFileError(f"{source}: transition tables have inconsistent shapes")
@@ -166,7 +166,7 @@ class UnitSet:
                 raise ModelFileError(
                     f"{source}: transitions of unit {self.names[k]!r} do not sum to one"
                 )
-            if np.any(self.state_pdf[k, :n] < 0):
+            if np.any(self.state_mixture[k, :n] < 0):
                 raise ModelFileError(f"{source}: unit {self.names[k]!r} has a state with no mixture")
 
 
@@ -190,19 +190,19 @@ def default_unit_set(phones) -> UnitSet:
     names += [PAUSE_UNIT, GAP_UNIT]
     u = len(names)
     n_states = np.full(u, MAX_STATES, dtype=np.int64)
-    state_pdf = np.full((u, MAX_STATES), -1, dtype=np.int64)
+    state_mixture = np.full((u, MAX_STATES), -1, dtype=np.int64)
     trans = np.zeros((u, MAX_STATES, _ROW))
     entry = np.zeros((u, _ROW))
-    pdf = 0
+    first_id = 0
     for k, name in enumerate(names[:-1]):  # phones and the pause
-        state_pdf[k] = np.arange(pdf, pdf + MAX_STATES)
-        pdf += MAX_STATES
+        state_mixture[k] = np.arange(first_id, first_id + MAX_STATES)
+        first_id += MAX_STATES
         trans[k] = _PAUSE_TRANS if name == PAUSE_UNIT else _PHONE_TRANS
         entry[k] = _PLAIN_ENTRY
     pause = u - 2
     gap = u - 1
     n_states[gap] = 1
-    state_pdf[gap, 0] = state_pdf[pause, 1]  # tied to the middle pause state
+    state_mixture[gap, 0] = state_mixture[pause, 1]  # tied to the middle pause state
     trans[gap] = _GAP_TRANS
     entry[gap] = _GAP_ENTRY
-    return UnitSet(tuple(names), n_states, state_pdf, trans, entry)
+    return UnitSet(tuple(names), n_states, state_mixture, trans, entry)

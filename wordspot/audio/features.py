@@ -38,7 +38,6 @@ from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
-import scipy.fft
 
 from wordspot.errors import FeatureError
 from wordspot.audio.workspace import work_array
@@ -52,6 +51,7 @@ __all__ = [
     "mel_to_hz",
     "deltas",
     "lifter_weights",
+    "dct_matrix",
     "LOG_FLOOR",
     "warp_frequencies",
 ]
@@ -345,6 +345,22 @@ def mel_filterbank(settings: FeatureSettings, *, warp: float = 1.0) -> np.ndarra
 # ----------------------------------------------------------------------------- pieces
 
 
+def dct_matrix(n_in: int, n_out: int) -> np.ndarray:
+    """The first ``n_out`` orthonormal DCT-II basis vectors as columns, shape (n_in, n_out).
+
+    ``x @ dct_matrix(N, K)`` gives ``X_k = s_k sum_n x_n cos(pi k (2n + 1) / (2N))`` for
+    k < K, with ``s_0 = sqrt(1/N)`` and ``s_k = sqrt(2/N)`` otherwise: the DCT-II with
+    orthonormal scaling. A product with the K columns needed costs less than a full
+    transform of N values and needs no FFT library at recognition time.
+    """
+    n = np.arange(n_in, dtype=np.float64)
+    k = np.arange(n_out, dtype=np.float64)
+    basis = np.cos(np.pi * np.outer(2.0 * n + 1.0, k) / (2.0 * n_in))
+    scale = np.full(n_out, math.sqrt(2.0 / n_in))
+    scale[:1] = math.sqrt(1.0 / n_in)
+    return np.ascontiguousarray(basis * scale)
+
+
 def lifter_weights(n_cepstra: int, lifter: float) -> np.ndarray:
     """Weights ``1 + L/2 sin(pi n / L)`` for n = 0 .. n_cepstra-1 (ones when L = 0)."""
     n = np.arange(n_cepstra, dtype=np.float64)
@@ -462,7 +478,7 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
     power += np.square(spectrum.imag, out=work_array("power_imag", (n_frames, n_bins), np.float64))
     mel = power @ _cached_filterbank(s, warp)
     logmel = np.log(np.maximum(mel, LOG_FLOOR))
-    ceps = scipy.fft.dct(logmel, type=2, norm="ortho", axis=1)[:, : s.n_cepstra]
+    ceps = logmel @ _cached_dct(s.n_mels, s.n_cepstra)
     ceps *= lifter_weights(s.n_cepstra, s.lifter)
     parts = [ceps]
     for _ in range(s.delta_order):
@@ -496,6 +512,14 @@ def _hamming(length: int) -> np.ndarray:
 _CVN_MIN_SD = 1e-8
 
 _FILTERBANKS: dict[tuple[FeatureSettings, float], np.ndarray] = {}
+_DCT: dict[tuple[int, int], np.ndarray] = {}
+
+
+def _cached_dct(n_in: int, n_out: int) -> np.ndarray:
+    basis = _DCT.get((n_in, n_out))
+    if basis is None:
+        basis = _DCT[(n_in, n_out)] = dct_matrix(n_in, n_out)
+    return basis
 
 
 def _cached_filterbank(settings: FeatureSettings, warp: float = 1.0) -> np.ndarray:

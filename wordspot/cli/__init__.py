@@ -1,8 +1,11 @@
 """The ``wordspot`` command line.
 
 Each subcommand lives in its own module in this package and exposes
-``add_parser(subparsers)``, which registers the subcommand and sets ``func`` (a callable
-taking the parsed arguments and returning an exit status). No maths lives here.
+``add_parser(subparsers, **options)``, which registers the subcommand (passing ``options``,
+the one-line help and the global options, on to ``add_parser``) and sets ``func`` (a
+callable taking the parsed arguments and returning an exit status). Only the chosen
+subcommand's module is imported, so ``wordspot recognize`` never loads the training stack
+and ``wordspot --help`` loads none. No maths lives here.
 """
 
 from __future__ import annotations
@@ -14,10 +17,19 @@ import warnings
 
 from wordspot.errors import WordspotError
 
-__all__ = ["main", "build_parser"]
+__all__ = ["main", "build_parser", "chosen_command"]
 
-# Subcommand modules, in the order ``wordspot --help`` lists them.
-_COMMANDS = ("demo", "train", "recognize", "evaluate", "lexicon")
+# Subcommands (module ``wordspot.cli.<name>_cmd``) and their one-line help, in the order
+# ``wordspot --help`` lists them.
+_COMMANDS = {
+    "demo": "compare the starter, adapted and from-scratch models on every demo test set",
+    "train": "train an acoustic model from recordings and their transcripts",
+    "recognize": "recognise the words spoken in audio files",
+    "evaluate": "measure word error rate on held-out recordings",
+    "lexicon": "check a lexicon file or suggest pronunciations for new words",
+}
+# Options without a value that may stand before or after the subcommand.
+_GLOBAL_FLAGS = ("--debug", "--quiet", "-q")
 
 _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
@@ -32,20 +44,43 @@ reach for anything that can hurt someone (ovens, mixers, slicers), and follow lo
 """
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """Build the argument parser with every subcommand registered."""
+def _global_options(parser: argparse.ArgumentParser, default) -> None:
+    parser.add_argument("--debug", action="store_true", default=default, help="show the full traceback on errors")
+    parser.add_argument("--quiet", "-q", action="store_true", default=default, help="no progress bars or notes")
+
+
+def chosen_command(argv: list[str]) -> str | None:
+    """The subcommand named in ``argv`` (the first word that is not a global option)."""
+    for word in argv:
+        if word not in _GLOBAL_FLAGS:
+            return word if word in _COMMANDS else None
+    return None
+
+
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """Build the argument parser; only ``command`` (if given) gets its full options.
+
+    The other subcommands are listed with their one-line help, without importing their
+    modules. The global options are accepted before and after the subcommand.
+    """
     parser = argparse.ArgumentParser(
         prog="wordspot",
         description="Train, run and measure a small-vocabulary spoken-command recognizer.",
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    parser.add_argument("--debug", action="store_true", help="show the full traceback on errors")
-    parser.add_argument("--quiet", "-q", action="store_true", help="no progress bars or notes")
+    _global_options(parser, default=False)
+    # After the subcommand: a flag given there is set, one left out keeps the value from
+    # before the subcommand (SUPPRESS leaves it alone).
+    after = argparse.ArgumentParser(add_help=False)
+    _global_options(after, default=argparse.SUPPRESS)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in _COMMANDS:
-        module = importlib.import_module(f"wordspot.cli.{name}_cmd")
-        module.add_parser(sub)
+    for name, summary in _COMMANDS.items():
+        if name == command:
+            module = importlib.import_module(f"wordspot.cli.{name}_cmd")
+            module.add_parser(sub, help=summary, parents=[after])
+        else:
+            sub.add_parser(name, help=summary, add_help=False)
     return parser
 
 
@@ -55,7 +90,8 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; return the exit status."""
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(chosen_command(argv))
     args = parser.parse_args(argv)
     if args.command is None:
         parser.print_help()

@@ -29,10 +29,10 @@ _SAFETY = ("Voice commands are a convenience, never a safety device: keep a phys
            "for the oven, the mixer and anything else that can hurt someone, and follow local rules.")
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "demo",
-        help="compare the starter, adapted and from-scratch models on every demo test set",
+        **options,
         description="Build three models of the bakery commands (the shipped starter alone, the starter "
         "adapted on the demo's training recordings, and one trained from scratch), evaluate each on "
         "every demo test set (clean, noisy at 20/10/5 dB, phrases, new words) and print one table.",

@@ -25,10 +25,10 @@ count as recognising nothing and are listed; the exit status is then 1.
 """
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "evaluate",
-        help="measure word error rate on held-out recordings",
+        **options,
         description="Recognise every recording of one or more manifests and compare the words with "
         "their transcripts: substitutions, deletions, insertions, WER with a 95%% interval, "
         "and tables by word and by speaker.",

@@ -28,19 +28,21 @@ lexicon format: one pronunciation a line, the word then its phones, e.g. `oven  
 """
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "lexicon",
-        help="check a lexicon file or suggest pronunciations for new words",
+        **options,
         description="Check a pronunciation lexicon, or suggest lines for new words from the open "
         "CMU pronouncing dictionary.",
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     actions = p.add_subparsers(dest="lexicon_action", metavar="ACTION")
+    parents = options.get("parents", [])  # the global options work after the action too
 
     check = actions.add_parser(
         "check",
+        parents=parents,
         help="summarise a lexicon file and report errors with their line numbers",
         description="Read a lexicon file and print how many words, pronunciations and phones it "
         "uses, and which of the 39 phones it never uses.",
@@ -57,6 +59,7 @@ def add_parser(sub):
 
     suggest = actions.add_parser(
         "suggest",
+        parents=parents,
         help="print lexicon lines for words from the CMU pronouncing dictionary",
         description="Print one lexicon line per pronunciation found in the open CMU pronouncing "
         "dictionary (stress marks removed), ready to paste into your lexicon.",

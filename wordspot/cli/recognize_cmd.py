@@ -35,10 +35,10 @@ model, lexicon, prior or option. Voice commands are a convenience, never a safet
 """
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "recognize",
-        help="recognise the words spoken in audio files",
+        **options,
         description="Recognise the commands spoken in one or many audio files with a trained model. "
         "Prints one line (or record) per file with the words, their times and confidences.",
         epilog=_EPILOG,
@@ -65,8 +65,8 @@ def add_decoder_options(p) -> None:
     p.add_argument("--beam", type=float, default=d.beam, help=f"search beam in log units (default {d.beam:g})")
     p.add_argument("--word-end-beam", type=float, default=d.word_end_beam,
                    help=f"beam for word ends (default {d.word_end_beam:g})")
-    p.add_argument("--max-active", type=int, default=d.max_active,
-                   help=f"most states kept per frame (default {d.max_active})")
+    p.add_argument("--state-limit", type=int, default=d.state_limit,
+                   help=f"most states kept per frame (default {d.state_limit})")
     p.add_argument("--grammar-weight", type=float, default=d.grammar_weight,
                    help=f"weight of the word-pair prior (default {d.grammar_weight:g})")
     p.add_argument("--insertion-penalty", type=float, default=d.insertion_penalty,
@@ -78,7 +78,7 @@ def settings_from_args(args) -> DecoderSettings:
     return DecoderSettings(
         beam=args.beam,
         word_end_beam=args.word_end_beam,
-        max_active=args.max_active,
+        state_limit=args.state_limit,
         grammar_weight=args.grammar_weight,
         insertion_penalty=args.insertion_penalty,
         single_word=args.single_word,

@@ -69,10 +69,10 @@ _positive = _whole_number(1)
 _count = _whole_number(0)
 
 
-def add_parser(sub):
+def add_parser(sub, **options):
     p = sub.add_parser(
         "train",
-        help="train an acoustic model from recordings and their transcripts",
+        **options,
         description="Train a model of every phone in the lexicon from recordings labelled only "
         "with their words, and write it (with the lexicon and word-pair counts) to one file.",
         epilog=_EPILOG,

@@ -61,7 +61,7 @@ class DecoderSettings:
         Keep states within this many log units of the frame's best (``inf`` = no pruning).
     word_end_beam : float > 0
         Word ends further than this below the frame's best start no next word.
-    max_active : int > 0
+    state_limit : int > 0
         At most about this many states per frame (ties may keep a few more).
     grammar_weight : float >= 0
         Multiplies the log prior of every word-to-word link.
@@ -83,7 +83,7 @@ class DecoderSettings:
 
     beam: float = 800.0
     word_end_beam: float = 600.0
-    max_active: int = 2000
+    state_limit: int = 2000
     grammar_weight: float = 3.0
     insertion_penalty: float = -60.0
     single_word: bool = False
@@ -94,8 +94,8 @@ class DecoderSettings:
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and value > 0) or np.isnan(value):
                 raise DecodingError(f"{name} must be a number > 0 (inf turns pruning off), got {value!r}")
-        if not (isinstance(self.max_active, (int, np.integer)) and self.max_active > 0):
-            raise DecodingError(f"max_active must be a whole number > 0, got {self.max_active!r}")
+        if not (isinstance(self.state_limit, (int, np.integer)) and self.state_limit > 0):
+            raise DecodingError(f"state_limit must be a whole number > 0, got {self.state_limit!r}")
         self.grammar  # validates weight and penalty
 
     @property
@@ -111,7 +111,7 @@ class DecoderSettings:
     @classmethod
     def unpruned(cls, **changes) -> "DecoderSettings":
         """Settings with every kind of pruning switched off (exact Viterbi search)."""
-        base = dict(beam=np.inf, word_end_beam=np.inf, max_active=np.iinfo(np.int64).max)
+        base = dict(beam=np.inf, word_end_beam=np.inf, state_limit=np.iinfo(np.int64).max)
         base.update(changes)
         return cls(**base)
 
@@ -126,8 +126,9 @@ class WordSegment:
     pronunciation : tuple of str
     start, end : float
         Seconds; ``end`` excludes the optional pause after the word.
-    start_frame, end_frame : int
-        First and last frame of the word's phones.
+    first_frame, last_frame : int
+        First and last frame of the word's phones, both inclusive (``end`` is the time just
+        after ``last_frame``).
     acoustic : float
         Acoustic log score of the word (transitions included, trailing pause included).
     grammar : float
@@ -140,8 +141,8 @@ class WordSegment:
     pronunciation: tuple[str, ...]
     start: float
     end: float
-    start_frame: int
-    end_frame: int
+    first_frame: int
+    last_frame: int
     acoustic: float
     grammar: float
     confidence: float
@@ -226,7 +227,7 @@ class Recognizer:
         comp = work_array("component_scores", (x.shape[0], w.shape[1]), EMISSION_DTYPE)
         np.matmul(np.concatenate([x * x, x], axis=1), w, out=comp)
         comp += c
-        comp = comp.reshape(x.shape[0], self.mixtures.n_pdfs, self.mixtures.n_components)
+        comp = comp.reshape(x.shape[0], self.mixtures.n_mixtures, self.mixtures.n_components)
         return decode_kernels.mixture_logsumexp(comp)
 
     def decode(self, frames: np.ndarray, *, path: str | None = None, kernel=None) -> Recognition:
@@ -246,26 +247,26 @@ class Recognizer:
         Parameters
         ----------
         ll : ndarray, shape (T, P)
-            Column ``j`` scores mixture ``network.used_pdfs[j]`` of the model.
+            Column ``j`` scores mixture ``network.used_mixtures[j]`` of the model.
         kernel : callable, optional
             :func:`wordspot.decoding.kernels.decode` (default) or its reference version.
         """
         net, s = self.network, self.settings
         kernel = kernel or decode_kernels.decode
         ll = np.asarray(ll, dtype=np.float64)
-        if ll.ndim != 2 or ll.shape[1] != net.used_pdfs.shape[0]:
-            raise DecodingError(f"emissions must have shape (frames, {net.used_pdfs.shape[0]}), got {ll.shape}")
+        if ll.ndim != 2 or ll.shape[1] != net.used_mixtures.shape[0]:
+            raise DecodingError(f"emissions must have shape (frames, {net.used_mixtures.shape[0]}), got {ll.shape}")
         result = Recognition(path=path, duration=ll.shape[0] * self.hop)
         if ll.shape[0] < net.min_frames:
             result.reason = _too_short(ll.shape[0], self.hop, net.min_frames)
             return result
         status, final, final_link, links, link_scores, _ = kernel(
             np.ascontiguousarray(ll, dtype=np.float64),
-            net.pdf, net.self_logp, net.arc_first, net.arc_dst, net.arc_logp, net.end_logp,
+            net.mixture, net.self_logp, net.arc_first, net.arc_dst, net.arc_logp, net.end_logp,
             net.tail, net.item, net.start_first, net.start_state, net.start_logp,
             net.pron_word, net.word_first, net.word_pron, net.unigram, net.backoff,
             net.pair_first, net.pair_next, net.pair_logp, net.single_word, net.allow_empty,
-            float(s.beam), float(s.word_end_beam), int(min(s.max_active, np.iinfo(np.int64).max)),
+            float(s.beam), float(s.word_end_beam), int(min(s.state_limit, np.iinfo(np.int64).max)),
         )
         if status != decode_kernels.OK:
             result.reason = (
@@ -296,8 +297,8 @@ class Recognizer:
                     pronunciation=net.prons[pron],
                     start=start * self.hop,
                     end=(phone_end + 1) * self.hop,
-                    start_frame=start,
-                    end_frame=phone_end,
+                    first_frame=start,
+                    last_frame=phone_end,
                     acoustic=acoustic,
                     grammar=grammar,
                     confidence=float(np.exp(min(d, 0.0) / CONFIDENCE_SCALE)),
@@ -378,10 +379,10 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
     else:
         bigram = prior_for_vocabulary(lex.words, getattr(model, "bigrams", None), prior)
     net = compile_network(
-        model.units, model.mixtures.n_pdfs, lex, bigram, settings.grammar, allow_empty=settings.allow_empty
+        model.units, model.mixtures.n_mixtures, lex, bigram, settings.grammar, allow_empty=settings.allow_empty
     )
     mix = model.mixtures
-    sub = Mixtures(mix.weights[net.used_pdfs], mix.means[net.used_pdfs], mix.variances[net.used_pdfs])
+    sub = Mixtures(mix.weights[net.used_mixtures], mix.means[net.used_mixtures], mix.variances[net.used_mixtures])
     feats = model.features
     hop = feats.hop_length / feats.sample_rate
     return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop)

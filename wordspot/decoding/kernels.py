@@ -11,7 +11,7 @@ One frame of token passing:
    are already waiting in their entry states; each state keeps only its best token;
 2. the frame's emission log-likelihood is added;
 3. pruning: a state survives if its score is within ``beam`` of the frame's best and,
-   when more than ``max_active`` states are alive, at least the ``max_active``-th best
+   when more than ``state_limit`` states are alive, at least the ``state_limit``-th best
    score (ties keep more). The compiled loop drops waiting entries that fall below a
    lower bound of that cut before placing them (same result, less work for large
    vocabularies);
@@ -104,8 +104,8 @@ def mixture_logsumexp(comp):
     the result is within about 1e-6 of the exact value (float32 roundoff of a sum of at
     most M terms in [0, 1], one of them exactly 1).
     """
-    n_frames, n_pdfs, n_comp = comp.shape
-    rows = n_frames * n_pdfs
+    n_frames, n_mixtures, n_comp = comp.shape
+    rows = n_frames * n_mixtures
     flat = comp.reshape(rows, n_comp)
     out = np.empty(rows)
     x = np.empty(_BLOCK * n_comp, dtype=np.float32)
@@ -133,7 +133,7 @@ def mixture_logsumexp(comp):
             for m in range(n_comp):
                 acc += e[i * n_comp + m]
             out[b0 + i] = top[i] + np.log(acc)
-    return out.reshape(n_frames, n_pdfs)
+    return out.reshape(n_frames, n_mixtures)
 
 
 def mixture_logsumexp_reference(comp):
@@ -191,27 +191,27 @@ def _best_link(w, ended, n_ended, end_score, end_link, unigram, backoff, pair_fi
 
 
 @numba.njit(cache=True, nogil=True)
-def _prune_threshold(score, act, n_act, scratch, best, beam, max_active):
-    """Lowest score that survives: ``best - beam``, raised to the ``max_active``-th best of
+def _prune_threshold(score, act, n_act, scratch, best, beam, state_limit):
+    """Lowest score that survives: ``best - beam``, raised to the ``state_limit``-th best of
     the ``n_act`` active states' scores when there are more of them."""
     thr = best - beam
-    if n_act > max_active:
+    if n_act > state_limit:
         for i in range(n_act):
             scratch[i] = score[act[i]]
-        kth = np.partition(scratch[:n_act], n_act - max_active)[n_act - max_active]
+        kth = np.partition(scratch[:n_act], n_act - state_limit)[n_act - state_limit]
         if kth > thr:
             thr = kth
     return thr
 
 
 @numba.njit(cache=True, nogil=True)
-def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
+def decode(ll, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
            start_first, start_state, start_logp, pron_word, word_first, word_pron,
            unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty,
-           beam, word_end_beam, max_active):
+           beam, word_end_beam, state_limit):
     """Compiled token passing over active states only (see the module docstring)."""
     n_frames = ll.shape[0]
-    n_states = pdf.shape[0]
+    n_states = mixture.shape[0]
     n_words = unigram.shape[0]  # V + 1 including the boundary
 
     cur = np.full(n_states, _NEG)
@@ -285,19 +285,19 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
         best = _NEG
         for i in range(n_nxt):
             s = nxt_act[i]
-            nxt[s] += ll[t, pdf[s]]
+            nxt[s] += ll[t, mixture[s]]
             if nxt[s] > best:
                 best = nxt[s]
         for i in range(n_pend):
-            pend_score[i] += ll[t, pdf[pend_state[i]]]
+            pend_score[i] += ll[t, mixture[pend_state[i]]]
             if pend_score[i] > best:
                 best = pend_score[i]
         if best == _NEG:
             return NO_TOKENS, _NEG, -1, links_int[:n_links], links_score[:n_links], n_links
-        # 3. pruning. Entries below the beam, or below the max_active-th best of the
+        # 3. pruning. Entries below the beam, or below the state_limit-th best of the
         # moved tokens alone (a lower bound of the final cut), could not survive: they
         # are dropped before they are ever placed.
-        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, max_active)
+        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, state_limit)
         for i in range(n_pend):
             s = pend_state[i]
             cand = pend_score[i]
@@ -310,7 +310,7 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
                 nxt_meta[s, _START] = t
                 nxt_meta[s, _PEND] = -1
         n_pend = 0
-        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, max_active)
+        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, state_limit)
         kept = 0
         for i in range(n_nxt):
             s = nxt_act[i]
@@ -451,16 +451,16 @@ def decode(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, ite
     return status, final, final_link, links_int[:n_links], links_score[:n_links], n_links
 
 
-def decode_reference(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
+def decode_reference(ll, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
                      start_first, start_state, start_logp, pron_word, word_first, word_pron,
                      unigram, backoff, pair_first, pair_next, pair_logp, single_word, allow_empty,
-                     beam, word_end_beam, max_active):
+                     beam, word_end_beam, state_limit):
     """Readable token passing over *every* state each frame (plain numpy and Python).
 
     Same arguments, same pruning rules and same result as :func:`decode`; meant for tests
     on small networks.
     """
-    n_frames, n_states = ll.shape[0], pdf.shape[0]
+    n_frames, n_states = ll.shape[0], mixture.shape[0]
     n_words = unigram.shape[0]
     # Predecessors of every state: (source, log prob) for self-loops and arcs.
     preds = [[] for _ in range(n_states)]
@@ -491,14 +491,14 @@ def decode_reference(ll, pdf, self_logp, arc_first, arc_dst, arc_logp, end_logp,
                         pe = t - 1
                     if new[d] is None or sc + lp > new[d][0]:
                         new[d] = (sc + lp, ln, st, pe)
-        new = [None if tok is None else (tok[0] + ll[t, pdf[s]],) + tok[1:] for s, tok in enumerate(new)]
+        new = [None if tok is None else (tok[0] + ll[t, mixture[s]],) + tok[1:] for s, tok in enumerate(new)]
         alive = np.array([tok[0] for tok in new if tok is not None])
         if alive.size == 0 or not np.isfinite(alive.max()):
             return NO_TOKENS, _NEG, -1, _as_links(links), np.array(scores), len(links)
         best = alive.max()
         thr = best - beam
-        if alive.size > max_active:
-            thr = max(thr, np.sort(alive)[::-1][max_active - 1])
+        if alive.size > state_limit:
+            thr = max(thr, np.sort(alive)[::-1][state_limit - 1])
         tokens = [tok if tok is not None and tok[0] > _NEG and tok[0] >= thr else None for tok in new]
         if t == n_frames - 1:
             break

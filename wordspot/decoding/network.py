@@ -8,7 +8,7 @@ The network is a set of *items*, each a small left-to-right piece of states:
   skippable copy of the short pause (the ``gap`` unit) so that an optional pause after
   the word still knows which word it follows (this keeps the bigram prior exact).
 
-Every state refers to a shared mixture (pdf); unit parameters are never copied per word,
+Every state refers to a shared mixture; unit parameters are never copied per word,
 only their indices and log transition probabilities are laid out. Inside an item, tokens
 move along self-loops and arcs; a token leaving an item (``end_logp``) becomes a *word
 end*, and word ends enter the next items through the grammar (:mod:`wordspot.language.grammar`):
@@ -54,9 +54,9 @@ class Network:
         Vocabulary; word ``words[i]`` has index ``i + 1`` (0 is the boundary).
     prons : tuple of tuple of str
         Units of every pronunciation; ``pron_word[p]`` is its word index.
-    pdf : ndarray, shape (S,)
-        Column of the emission matrix each state uses (see ``used_pdfs``).
-    used_pdfs : ndarray, shape (P,)
+    mixture : ndarray, shape (S,)
+        Column of the emission matrix each state uses (see ``used_mixtures``).
+    used_mixtures : ndarray, shape (P,)
         Model mixtures the network uses; emissions are computed for these only.
     self_logp : ndarray, shape (S,)
     arc_first : ndarray, shape (S + 1,)
@@ -87,8 +87,8 @@ class Network:
 
     words: tuple[str, ...]
     prons: tuple[tuple[str, ...], ...]
-    pdf: np.ndarray
-    used_pdfs: np.ndarray
+    mixture: np.ndarray
+    used_mixtures: np.ndarray
     self_logp: np.ndarray
     arc_first: np.ndarray
     arc_dst: np.ndarray
@@ -113,7 +113,7 @@ class Network:
 
     @property
     def n_states(self) -> int:
-        return int(self.pdf.shape[0])
+        return int(self.mixture.shape[0])
 
     @property
     def n_words(self) -> int:
@@ -142,14 +142,14 @@ def _with_gap(units: UnitSet) -> tuple[UnitSet, int]:
     pause = units.index(PAUSE_UNIT)
     u = units.n_units
     n_states = np.append(units.n_states, 1)
-    state_pdf = np.vstack([units.state_pdf, [[units.state_pdf[pause, 1], -1, -1]]])
+    state_mixture = np.vstack([units.state_mixture, [[units.state_mixture[pause, 1], -1, -1]]])
     trans = np.concatenate([units.trans, np.zeros((1,) + units.trans.shape[1:])])
     trans[u, 0, 0] = _FALLBACK_GAP_STAY
     trans[u, 0, -1] = 1.0 - _FALLBACK_GAP_STAY
     entry = np.vstack([units.entry, np.zeros(units.entry.shape[1])])
     entry[u, 0] = 1.0 - _FALLBACK_GAP_SKIP
     entry[u, -1] = _FALLBACK_GAP_SKIP
-    return UnitSet(units.names + (GAP_UNIT,), n_states, state_pdf, trans, entry), u
+    return UnitSet(units.names + (GAP_UNIT,), n_states, state_mixture, trans, entry), u
 
 
 def _unit_ids(word: str, pron, units: UnitSet) -> list[int]:
@@ -171,7 +171,7 @@ def _scaled(logp: np.ndarray, weight: float) -> np.ndarray:
 
 def compile_network(
     units: UnitSet,
-    n_pdfs: int,
+    n_mixtures: int,
     lexicon,
     prior: BigramPrior,
     grammar: GrammarSettings = GrammarSettings(),
@@ -184,7 +184,7 @@ def compile_network(
     ----------
     units : UnitSet
         Must hold the pause unit ``pau``; the ``gap`` unit is used after words if present.
-    n_pdfs : int
+    n_mixtures : int
         Number of mixtures in the model (for checking the tying table).
     lexicon : Lexicon
         Every pronunciation of every word becomes an item.
@@ -208,7 +208,7 @@ def compile_network(
         raise LexiconError(f"{getattr(lexicon, 'source', 'lexicon')}: the lexicon has no words")
     if tuple(prior.words) != words:
         raise DecodingError("the grammar prior covers other words than the lexicon; build it for this vocabulary")
-    if int(units.state_pdf.max()) >= n_pdfs:
+    if int(units.state_mixture.max()) >= n_mixtures:
         raise DecodingError("the model's units refer to mixtures it does not have")
     units, gap = _with_gap(units)
     pause = units.index(PAUSE_UNIT)
@@ -230,8 +230,8 @@ def compile_network(
     sizes = np.array([g.n_states for g in graphs], dtype=np.int64)
     offsets = np.concatenate([[0], np.cumsum(sizes)])
     cat = lambda name: np.concatenate([getattr(g, name) for g in graphs])  # noqa: E731
-    model_pdf = cat("pdf").astype(np.int64)
-    used_pdfs, pdf = np.unique(model_pdf, return_inverse=True)
+    model_mixture = cat("mixture").astype(np.int64)
+    used_mixtures, mixture = np.unique(model_mixture, return_inverse=True)
     item = np.repeat(np.arange(len(graphs), dtype=np.int64), sizes)
     # A trailing-pause state is one in the second slot of a word's graph.
     tail = (cat("slot") == 1) & (item >= FIRST_WORD_ITEM)
@@ -260,8 +260,8 @@ def compile_network(
     return Network(
         words=words,
         prons=tuple(prons),
-        pdf=np.ascontiguousarray(pdf, dtype=np.int64),
-        used_pdfs=used_pdfs.astype(np.int64),
+        mixture=np.ascontiguousarray(mixture, dtype=np.int64),
+        used_mixtures=used_mixtures.astype(np.int64),
         self_logp=np.ascontiguousarray(cat("self_logp"), dtype=np.float64),
         arc_first=arc_first,
         arc_dst=np.ascontiguousarray(dst[order]),

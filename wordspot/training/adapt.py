@@ -202,9 +202,9 @@ def apply_mean_transform(means: np.ndarray, w: np.ndarray) -> np.ndarray:
 
 def regression_classes(units: UnitSet) -> np.ndarray:
     """Class of every mixture: 0 for the pause unit's states, 1 for the rest (speech)."""
-    cls = np.ones(units.n_pdfs, dtype=np.int64)
+    cls = np.ones(units.n_mixtures, dtype=np.int64)
     if PAUSE_UNIT in units:
-        pdfs = units.state_pdf[units.index(PAUSE_UNIT)]
+        pdfs = units.state_mixture[units.index(PAUSE_UNIT)]
         cls[pdfs[pdfs >= 0]] = 0
     return cls
 

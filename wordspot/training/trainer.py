@@ -227,8 +227,8 @@ class _GraphCache:
 
     def __init__(self, graph, units: UnitSet, n_comp: int):
         self.graph = refresh_graph(graph, units)
-        self.pdfs, self.local = np.unique(graph.pdf, return_inverse=True)
-        self.cols = (self.pdfs[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
+        self.mixture_ids, self.local = np.unique(graph.mixture, return_inverse=True)
+        self.cols = (self.mixture_ids[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
         self.arrays = graph_arrays(self.graph)
         g = self.graph
         self.self_count = np.zeros(g.n_states)
@@ -242,10 +242,10 @@ def _utterance_pass(item_frames, cache: _GraphCache, scoring, n_comp: int, resul
     """Add one utterance's statistics into ``result`` (its log-likelihood into slot k)."""
     x = np.ascontiguousarray(item_frames, dtype=np.float64)
     w, c = scoring
-    pdfs, local = cache.pdfs, cache.local
+    mixture_ids, local = cache.mixture_ids, cache.local
     comp = kernels.score_components(x, np.ascontiguousarray(w[:, cache.cols]), np.ascontiguousarray(c[cache.cols]))
-    pdf_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], pdfs.size, n_comp))
-    state_ll = np.ascontiguousarray(pdf_ll[:, local])
+    mixture_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], mixture_ids.size, n_comp))
+    state_ll = np.ascontiguousarray(mixture_ll[:, local])
     self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
     total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
     result.loglik[k] = total
@@ -259,14 +259,14 @@ def _utterance_pass(item_frames, cache: _GraphCache, scoring, n_comp: int, resul
     cache.arc_count += counts[1]
     cache.init_count += counts[2]
     cache.final_count += counts[3]
-    pdf_gamma = np.zeros((x.shape[0], pdfs.size))
-    np.add.at(pdf_gamma.T, local, gamma.T)
+    mixture_gamma = np.zeros((x.shape[0], mixture_ids.size))
+    np.add.at(mixture_gamma.T, local, gamma.T)
     if prune > 0:
-        pdf_gamma[pdf_gamma < prune] = 0.0  # the moment sums skip these (frame, mixture) pairs
-    occ, first, second = kernels.accumulate_moments(x, comp_post, pdf_gamma)
-    result.stats.occupancy[pdfs] += occ
-    result.stats.first[pdfs] += first
-    result.stats.second[pdfs] += second
+        mixture_gamma[mixture_gamma < prune] = 0.0  # the moment sums skip these (frame, mixture) pairs
+    occ, first, second = kernels.accumulate_moments(x, comp_post, mixture_gamma)
+    result.stats.occupancy[mixture_ids] += occ
+    result.stats.first[mixture_ids] += first
+    result.stats.second[mixture_ids] += second
     np.add.at(result.unit_frames, cache.graph.unit, gamma.sum(axis=0))
 
 
@@ -274,7 +274,7 @@ def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _Pa
     """Summed statistics of a chunk of (frames, graph) pairs, in order."""
     n_params = n_transition_params(units.n_units)
     result = _PassResult(
-        MixtureStats.zeros(mix.n_pdfs, mix.n_components, mix.dim),
+        MixtureStats.zeros(mix.n_mixtures, mix.n_components, mix.dim),
         np.zeros(n_params),
         np.full(len(chunk), -np.inf),
         np.zeros(units.n_units),
@@ -347,7 +347,7 @@ def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
         s2 += (x * x).sum(axis=0)
     mean = s1 / n
     var = np.maximum(s2 / n - mean**2, 1e-8)
-    mix = single_gaussian(units.n_pdfs, mean, var)
+    mix = single_gaussian(units.n_mixtures, mean, var)
     edge = int(round(pause_seconds * frame_rate))
     if edge > 0 and PAUSE_UNIT in units:
         ends = [np.concatenate([it.frames[:edge], it.frames[-edge:]]).astype(np.float64)
@@ -355,10 +355,10 @@ def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
         if ends:
             e = np.concatenate(ends)
             pau_var = np.maximum(e.var(axis=0), 0.01 * var)
-            pdfs = units.state_pdf[units.index(PAUSE_UNIT)]
-            pdfs = pdfs[pdfs >= 0]
-            mix.means[pdfs, 0] = e.mean(axis=0)
-            mix.variances[pdfs, 0] = pau_var
+            mixture_ids = units.state_mixture[units.index(PAUSE_UNIT)]
+            mixture_ids = mixture_ids[mixture_ids >= 0]
+            mix.means[mixture_ids, 0] = e.mean(axis=0)
+            mix.variances[mixture_ids, 0] = pau_var
     return mix, var
 
 
@@ -431,7 +431,7 @@ def _train_loop(items, units, frame_rate, config, quiet, report):
     floor = config.variance_floor * global_var
     summary = TrainingSummary()
     dropped: list[Skipped] = []
-    updated = np.ones(mix.n_pdfs, dtype=bool)
+    updated = np.ones(mix.n_mixtures, dtype=bool)
     last = None
     parallel = Parallel(n_jobs=config.jobs, backend="loky", return_as="generator") if config.jobs > 1 else None
     n_pass = 0
@@ -470,8 +470,8 @@ def _train_loop(items, units, frame_rate, config, quiet, report):
     summary.frames_per_unit = {name: float(last.unit_frames[u]) for u, name in enumerate(units.names)}
     seen = np.zeros(units.n_units, dtype=bool)
     for u in range(units.n_units):
-        pdfs = units.state_pdf[u, : units.n_states[u]]
-        seen[u] = bool(updated[pdfs].any())
+        mixture_ids = units.state_mixture[u, : units.n_states[u]]
+        seen[u] = bool(updated[mixture_ids].any())
     summary.unseen_units = [n for u, n in enumerate(units.names) if not seen[u]]
     return units, mix, summary, dropped
 
