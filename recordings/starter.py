@@ -74,15 +74,15 @@ PHONES = (
 POOL_SIZE = 25000        # candidates: the most frequent English words in wordfreq
 CORE_WORDS = 1500        # the most frequent eligible words, taken as they are
 N_WORDS = 2600           # then chosen greedily for phone and phone-pair coverage
-PHONE_TARGET = 60        # the greedy step fills every phone up to this count (first pronunciations)
-MIN_PHONE_COUNT = 50     # asserted: every phone occurs at least this often in the word list
+PHONE_TARGET = 100       # the greedy step fills every phone up to this count (first pronunciations)
+MIN_PHONE_COUNT = 100    # asserted: every phone occurs at least this often in the word list
 PHONE_WEIGHT = 4         # one missing phone occurrence is worth this many new phone pairs
 
 #: The demo's new words (recordings/synthesize.py NEW_WORDS) and forms that contain them as a
 #: word: never spoken in the starter corpus, so the demo's new-words set stays unseen.
 LEFT_OUT_WORDS = frozenset(demo.NEW_WORDS) | {"doughs", "breads", "proofs"}
 
-#: Offensive words kept out of the word list, in ROT13 so that they do not sit in plain
+#: Offensive or sexual words kept out of the word list, in ROT13 so that they do not sit in plain
 #: sight here (decode with codecs.decode(word, "rot13")). Our own short list.
 _OFFENSIVE_ROT13 = (
     "shpx shpxf shpxvat shpxrq shpxre zbgureshpxre fuvg fuvgf fuvggl ohyyfuvg ovgpu ovgpurf "
@@ -91,7 +91,7 @@ _OFFENSIVE_ROT13 = (
     "ergneq ergneqrq gvgf obbof cbea cbeab frk frkl frkhny encr encrq encvfg anmv qlxr gjng "
     "jnax jnaxre obyybpxf ohttre cevpx uryy ubeal cravf intvan arteb fcvp puvax xvxr tbbx "
     "jrgonpx genaal ubzb dhrre qvyqb phz wvmm nany betnfz ahqr anxrq znfgheongr rebgvp ubbxre "
-    "fgevccre ohgg ohggf ynfpvivbhf obbo yvatrevr frkhnyvgl fhvpvqr"
+    "fgevccre ohgg ohggf ynfpvivbhf obbo yvatrevr frkhnyvgl ubzbfrkhnyvgl fhvpvqr"
 ).split()
 
 #: Words that the dictionary-case check lets through but that are mostly names of people,
@@ -99,7 +99,7 @@ _OFFENSIVE_ROT13 = (
 #: reading the chosen words.
 _NAME_LIKE = frozenset("""
     mary ben bob don frank graham harry henry jack james joe joey lee martin mike peter sam tom
-    tony walsh wang smith trump
+    tony walsh wang smith trump thatcher troy raj heather goldsmith johannes bowie hayward kensington
     boston brunswick canada china japan paris russia shanghai angeles los san jersey worcester
     wellington pueblo yahoo twitter android python
     ms mrs mr dr jr st co inc ltd vs etc ok ca ce id eu un al de la ama sos ma ya ye tho re
@@ -311,9 +311,19 @@ def make_text() -> dict[str, str]:
         f"# distinct phone pairs across word boundaries in the sentences: {len(cross_pairs)}",
         f"# distinct phone pairs in words or sentences: "
         f"{len(set(word_pairs) | set(cross_pairs) | _sentence_inner_pairs(sentences, lexicon))}",
-        "# phone  in_words  in_sentences",
     ]
-    cov += [f"{p} {in_words[p]} {in_sents[p]}" for p in PHONES]
+    items = plan(SEED, words, sentences)
+    in_takes = {split: Counter() for split in ("train", "dev")}
+    for it in items:
+        in_takes[it.split].update(p for w in it.text.split() for p in lexicon[w][0])
+    n_split = Counter(it.split for it in items)
+    cov += [
+        f"# planned with the default seed {SEED}: {n_split['train']} train and {n_split['dev']} dev "
+        f"utterances, about {estimated_hours(items, lexicon):.2f} hours (estimate)",
+        f"# lowest phone count over the train takes: {min(in_takes['train'][p] for p in PHONES)}",
+        "# phone  in_words  in_sentences  in_train_takes  in_dev_takes",
+    ]
+    cov += [f"{p} {in_words[p]} {in_sents[p]} {in_takes['train'][p]} {in_takes['dev'][p]}" for p in PHONES]
     return {
         "words.txt": head_words + "\n".join(words) + "\n",
         "sentences.txt": head_sents + "\n".join(sent_lines) + "\n",
@@ -390,11 +400,12 @@ DEV_VOICES = (_demo_voice("flite-awb", "dev"),) + tuple(_espeak(DEV_ACCENT, v, "
 DEV_WEIGHTS = (0.5, 0.25, 0.25)
 VOICES = tuple(v for pair in TALKER_VOICES.values() for v in pair) + ESPEAK_TRAIN + DEV_VOICES
 
-# Takes per text. Each word: one real-talker voice, one espeak-ng voice, with probability
-# SECOND_TALKER_P the other real talker as well, and with probability DEV_P_WORD one dev voice.
-# Each sentence: both real talkers, one espeak-ng voice, and a dev voice with DEV_P_SENTENCE.
-SECOND_TALKER_P = 0.3
-DEV_P_WORD = 0.12
+# Takes per text. Each word: two train takes, one by a real-talker voice and the other by an
+# espeak-ng voice (probability ESPEAK_P_WORD) or else by the other real talker; and with
+# probability DEV_P_WORD one dev voice. Each sentence: both real talkers, one espeak-ng voice,
+# and a dev voice with probability DEV_P_SENTENCE. Real talkers get about 60% of train.
+ESPEAK_P_WORD = 0.75
+DEV_P_WORD = 0.15
 DEV_P_SENTENCE = 0.35
 
 # Not used: flite kal (8 kHz inside) and awb_time (clock phrases only), the espeak-ng voices
@@ -454,9 +465,11 @@ def _assign(seed: int, key: str, sentence: bool) -> list[demo.Voice]:
     first = talkers[int(u[0] * 2)]
     other = talkers[1 - talkers.index(first)]
     pick = lambda t, x: TALKER_VOICES[t][int(x * len(TALKER_VOICES[t]))]  # noqa: E731
-    voices = [pick(first, u[1]), ESPEAK_TRAIN[int(u[2] * len(ESPEAK_TRAIN))]]
-    if sentence or u[3] < SECOND_TALKER_P:
-        voices.append(pick(other, u[4]))
+    espeak = ESPEAK_TRAIN[int(u[2] * len(ESPEAK_TRAIN))]
+    if sentence:
+        voices = [pick(first, u[1]), espeak, pick(other, u[4])]
+    else:
+        voices = [pick(first, u[1]), espeak if u[3] < ESPEAK_P_WORD else pick(other, u[4])]
     if u[5] < (DEV_P_SENTENCE if sentence else DEV_P_WORD):
         voices.append(DEV_VOICES[int(np.searchsorted(np.cumsum(DEV_WEIGHTS), u[6] * sum(DEV_WEIGHTS)))])
     return voices
@@ -478,8 +491,8 @@ def plan(seed: int, words: list[str], sentences: list[str]) -> list[Item]:
 
 # Measured on a full build (see README): mean file length = SPEECH_BASE_S + SPEECH_PER_PHONE_S x
 # phones + mean padding. Used to keep the plan within the size budget without engines.
-SPEECH_BASE_S = 0.12
-SPEECH_PER_PHONE_S = 0.075
+SPEECH_BASE_S = 0.176
+SPEECH_PER_PHONE_S = 0.072
 BUDGET_HOURS = (1.5, 2.5)
 
 
@@ -499,7 +512,7 @@ SEMITONE_RANGE = (-3.0, 3.0)       # final pitch shift
 WARP_RANGE = (0.92, 1.08)          # vocal-tract length factor: formants scale by it
 SPEECH_RMS_DBFS = demo.SPEECH_RMS_DBFS
 ROOM_TONE_DBFS = demo.ROOM_TONE_DBFS
-ROOM_PAD_S = (0.1, 0.3)            # lead and tail of room tone (each), most files
+ROOM_PAD_S = (0.05, 0.25)          # lead and tail of room tone (each), most files
 BACKGROUND_SHARE = 0.3             # files with another background and longer lead and tail
 BACKGROUND_PAD_S = (0.2, 0.8)
 BACKGROUNDS = ("white", "pink", "hum", "dither")
