@@ -491,7 +491,7 @@ def plan(seed: int, words: list[str], sentences: list[str]) -> list[Item]:
 
 # Measured on a full build (see README): mean file length = SPEECH_BASE_S + SPEECH_PER_PHONE_S x
 # phones + mean padding. Used to keep the plan within the size budget without engines.
-SPEECH_BASE_S = 0.176
+SPEECH_BASE_S = 0.203
 SPEECH_PER_PHONE_S = 0.072
 BUDGET_HOURS = (1.5, 2.5)
 
