@@ -9,7 +9,6 @@ from __future__ import annotations
 import hashlib
 import importlib.util
 import re
-import shutil
 import subprocess
 import sys
 from collections import Counter
@@ -243,14 +242,11 @@ def test_background_kinds_have_their_level_and_shape(starter, kind):
 
 # ----------------------------------------------------------------------------- synthesis
 
-ENGINES = ("espeak-ng", "flite", "festival", "sox")
-
-
-@pytest.mark.skipif(any(shutil.which(p) is None for p in ENGINES)
-                    or not Path("/usr/share/festival/voices/english/kal_diphone").is_dir(),
-                    reason="text-to-speech engines not installed (Debian packages espeak-ng, "
-                           "flite, festival, festvox-kallpc16k, festvox-us-slt-hts, sox)")
-def test_a_few_utterances_synthesise_identically_twice(tmp_path, items):
+def test_a_few_utterances_synthesise_identically_twice(tmp_path, items, starter):
+    try:
+        starter.check_engines()
+    except starter.StarterError as exc:
+        pytest.skip(f"text-to-speech engines not installed: {exc}")
     picks = [next(it for it in items if it.voice.engine == e and it.kind == k)
              for e, k in (("espeak", "word"), ("flite", "sentence"), ("festival", "word"))]
     digests = []
