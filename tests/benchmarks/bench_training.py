@@ -1,6 +1,6 @@
 """How long acoustic training takes on the full demo train set, to 8 Gaussians a state.
 
-Not a test (pytest does not collect it). Goal (issue 4): under 2 minutes with ``--jobs 2``
+Not a test (pytest does not collect it). Goal: under 2 minutes with ``--jobs 2``
 on the 2-core development machine, from audio files to a written model.
 
 Usage::

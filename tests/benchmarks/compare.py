@@ -374,8 +374,8 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
     L = []
     L.append(f"# wordspot vs. do-it-yourself baselines{' (quick run)' if args.quick else ''}")
     L.append("")
-    L.append(f"Run {datetime.datetime.now().isoformat(timespec='minutes')} on {info['nproc']} cores, "
-             f"{info['cpu']}, numpy {info['numpy']}, Python {info['python']}; whole run "
+    L.append(f"Run {datetime.datetime.now().isoformat(timespec='minutes')} on a {info['machine']}, "
+             f"numpy {info['numpy']}, Python {info['python']}; whole run "
              f"{total / 60:.1f} min. Command: `python tests/benchmarks/compare.py"
              f"{' --quick' if args.quick else ''}{' --full-grid' if args.full_grid else ''}`.")
     L.append("")

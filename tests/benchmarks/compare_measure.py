@@ -16,17 +16,9 @@ __all__ = ["machine_info", "matmul_flop_rate", "best_time", "profile_top"]
 
 
 def machine_info() -> dict[str, str]:
-    """nproc, CPU model (from /proc/cpuinfo), numpy version, Python version."""
-    cpu = platform.processor() or "unknown"
-    try:
-        with open("/proc/cpuinfo", encoding="utf-8") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    cpu = line.split(":", 1)[1].strip()
-                    break
-    except OSError:
-        pass
-    return {"nproc": str(os.cpu_count()), "cpu": cpu, "numpy": np.__version__,
+    """The machine in neutral words ("2-core x86-64 machine"), numpy version, Python version."""
+    arch = (platform.machine() or "unknown").replace("_", "-")  # x86_64 -> x86-64
+    return {"machine": f"{os.cpu_count()}-core {arch} machine", "numpy": np.__version__,
             "python": platform.python_version()}
 
 

@@ -43,8 +43,9 @@ def _random_ll(rec, rng, n_frames):
 @pytest.mark.parametrize("weight,penalty,single", [(1.0, 0.0, False), (2.5, -3.0, False), (1.0, 1.5, True)])
 def test_unpruned_equals_exhaustive_search(rng, weight, penalty, single):
     # Reference: plain Viterbi over the composed chain of every word sequence of up to
-    # three words (DESIGN.md "decoder against exhaustive search"); words need >= 6 frames
-    # and each pause >= 2, so 24 frames cannot hold four words.
+    # three words, scored with the same grammar (an exhaustive search, exact by
+    # construction, so the unpruned token passing must find the same best path and
+    # score); words need >= 6 frames and each pause >= 2, so 24 frames cannot hold four words.
     model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
     settings = DecoderSettings.unpruned(grammar_weight=weight, insertion_penalty=penalty, single_word=single)
     rec = build_recognizer(model, settings=settings)

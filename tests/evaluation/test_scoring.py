@@ -292,12 +292,14 @@ def test_bootstrap_interval_contains_estimate_and_narrows():
         assert low < high
     width_small = small.wer_ci95[1] - small.wer_ci95[0]
     width_large = large.wer_ci95[1] - large.wer_ci95[0]
-    # 1/sqrt(U) scaling (from memory): 800 utterances give about 1/4 of the width at 50.
+    # 1/sqrt(U) scaling of a standard error (Cochran, Sampling Techniques, 3rd ed. 1977,
+    # ch. 2): 800 utterances give about 1/4 of the width at 50.
     assert width_large < 0.5 * width_small
 
 
 def test_bootstrap_matches_normal_approximation(rng):
-    # Delta-method standard error of a ratio of sums (from memory):
+    # Delta-method (linearised) standard error of a ratio of sums, the ratio estimator of
+    # Cochran, Sampling Techniques, 3rd ed. 1977, ch. 6 (large-sample variance):
     #   se^2 = sum_i (e_i - w n_i)^2 / (sum_i n_i)^2, and a 95% interval of about +-1.96 se.
     # With 400 utterances the bootstrap percentile interval should be close to it.
     n_ref = rng.integers(1, 6, size=400)

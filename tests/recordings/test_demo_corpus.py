@@ -33,7 +33,7 @@ def read_manifest(name: str) -> list[dict[str, str]]:
 
 
 def read_lexicon() -> dict[str, list[tuple[str, ...]]]:
-    """Plain parse of the lexicon format in DESIGN.md: word then units, '#' comments."""
+    """Plain parse of the lexicon format (README "File formats"): word then units, '#' comments."""
     prons: dict[str, list[tuple[str, ...]]] = {}
     for line in LEXICON.read_text(encoding="utf-8").splitlines():
         fields = line.split("#", 1)[0].split()
@@ -86,7 +86,7 @@ def test_sampled_files_have_room_tone_not_digital_silence():
         lead = x[: int(start * sr) - 1]
         tail = x[int(end * sr) + 1:]
         speech = x[int(start * sr): int(end * sr)]
-        # Lead and tail are 0.2-0.6 s (the corpus spec), allowing for millisecond rounding.
+        # Lead and tail are 0.2-0.6 s (recordings/README.md), allowing for millisecond rounding.
         assert 0.199 <= start <= 0.601 and 0.199 <= len(x) / sr - end <= 0.601, row["path"]
         for part in (lead, tail):
             rms_db = 10 * np.log10(np.mean(part ** 2))
@@ -156,7 +156,8 @@ def test_train_has_many_voices_and_three_takes_per_word_and_voice():
     for v in voices_:
         for w in vocab:
             assert counts[(v, w)] >= 3, (v, w)
-    # Voices built from real talkers carry real weight (CORPUS-NOTES: they transfer best).
+    # Voices built from real talkers carry more weight, about half of the training files
+    # (recordings/README.md: they transfer best to other voices).
     table = voices()
     real = sum(1 for r in rows if table[r["speaker"]]["engine"] != "espeak")
     assert real / len(rows) >= 0.4

@@ -172,8 +172,8 @@ def test_speed_copy_scales_frequency_and_length(rng):
     wave = np.sin(2 * np.pi * 1000.0 * t).astype(np.float32)
     for factor in (0.9, 1.1):
         fast = speed_copy(wave, rate, factor)
-        # Playing f times faster: length / f and every frequency * f (definition of speed
-        # perturbation; common practice).
+        # Playing f times faster: length / f and every frequency * f (speed perturbation as
+        # defined by Ko et al. 2015, "Audio augmentation for speech recognition", Interspeech).
         assert abs(fast.size - rate / factor) <= 1
         spectrum = np.abs(np.fft.rfft(fast * np.hanning(fast.size)))
         peak = np.argmax(spectrum) * rate / fast.size

@@ -7,7 +7,8 @@ rest. Scoring uses the expansion
     log N(x; mu, var) = -1/2 sum_d [log(2 pi var_d) + (x_d - mu_d)^2 / var_d]
                       = [x*x, x, 1] . [-1/(2 var), mu/var, const]
 
-so that all frames against all components is one matrix product (DESIGN.md).
+so that all frames against all components is one matrix product (one BLAS call instead of
+a loop over components).
 
 Training support: :func:`component_statistics` turns state occupancies into the
 zeroth, first and second order sums of every component (again as matrix products),

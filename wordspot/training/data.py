@@ -52,8 +52,8 @@ def chain_slots(words, lexicon, units: UnitSet) -> list:
 def speed_copy(wave: np.ndarray, sample_rate: int, factor: float) -> np.ndarray:
     """``wave`` played ``factor`` times faster (tempo, pitch and formants shift together).
 
-    Speed perturbation (common practice): resample to ``sample_rate / factor`` and read
-    the result at ``sample_rate``.
+    Speed perturbation (Ko et al. 2015, "Audio augmentation for speech recognition",
+    Interspeech): resample to ``sample_rate / factor`` and read the result at ``sample_rate``.
     """
     if factor == 1.0:
         return wave

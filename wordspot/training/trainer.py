@@ -1,6 +1,6 @@
 """Acoustic training: flat start, embedded re-estimation and mixture growth.
 
-Outline (see DESIGN.md and issue 4):
+Outline (DEVELOPERS.md "Training" gives the defaults and the measurements behind them):
 
 1. **Flat start.** Every state's mixture is one Gaussian with the global mean and
    variance of all training frames; transitions are the topology defaults of
