@@ -17,11 +17,12 @@ from wordspot.errors import WordspotError
 __all__ = ["main", "build_parser"]
 
 # Subcommand modules, in the order ``wordspot --help`` lists them.
-_COMMANDS = ("demo", "train", "recognize", "evaluate", "lexicon")
+_COMMANDS = ("demo", "record", "train", "recognize", "evaluate", "lexicon")
 
 _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
   wordspot demo                                   train and evaluate on the shipped demo recordings
+  wordspot record my-takes/ --takes 3             record takes in the browser, train, try
   wordspot lexicon suggest proof knead            pronunciations for two new command words
   wordspot train my-takes/train.csv --lexicon bakery.txt --out bakery.model
   wordspot recognize --model bakery.model oven-start.wav
