@@ -111,6 +111,7 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, job
     from wordspot.evaluation.run import evaluate_utterances
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model, save_model
+    from wordspot.evaluation.html_report import write_html_report
     from wordspot.evaluation.report import write_report
     from wordspot.training.trainer import TrainingConfig, train
 
@@ -135,7 +136,8 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, job
             continue
         say(f"evaluating {ds.name} ({len(ds.utterances)} recordings) ...")
         ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs, quiet=quiet)
-        write_report(ev.result, out_dir / "report" / ds.name)
+        files = write_report(ev.result, out_dir / "report" / ds.name)
+        write_html_report(ev, files.folder, confusions=files.confusions)
         r = ev.result
         rows.append(DemoRow(ds.name, r.utterances, r.reference_words, r.wer, tuple(r.wer_ci95),
                             r.substitutions, r.deletions, r.insertions, ds.note))

@@ -63,7 +63,7 @@ def _run(args) -> int:
     print(render_table(rows))
     print()
     print(f"model:   {model_file}")
-    print(f"reports: {out_dir / 'report'}/<set>/ (errors.csv, words.csv, speakers.csv, confusions.png)")
+    print(f"reports: {out_dir / 'report'}/<set>/ (index.html, errors.csv, words.csv, speakers.csv, confusions.png)")
     print()
     print("try next:")
     print(f"  wordspot recognize --model {model_file} --times {folder / 'audio' / 'test-phrases'}/*/*.flac")
