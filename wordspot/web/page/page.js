@@ -128,12 +128,12 @@ async function openMicrophone() {
   return page.audio;
 }
 
-let shownLevel = -60;
+let shownLevel = -60, loudestSinceDrawn = -60;
 function onBlock(block) {
   let peak = 0;
   for (let i = 0; i < block.length; i++) { const a = Math.abs(block[i]); if (a > peak) peak = a; }
   const db = peak > 0 ? Math.max(-60, 20 * Math.log10(peak)) : -60;
-  shownLevel = Math.max(db, shownLevel - 1.5);   // falls slowly, rises at once
+  if (db > loudestSinceDrawn) loudestSinceDrawn = db;
   if (page.recording) {
     page.chunks.push(block);
     const seconds = page.chunks.length * block.length / page.audio.context.sampleRate;
@@ -142,6 +142,8 @@ function onBlock(block) {
 }
 
 function drawMeter() {
+  shownLevel = Math.max(loudestSinceDrawn, shownLevel - 1);   // rises at once, falls about 60 dB a second
+  loudestSinceDrawn = -60;
   $("meter").value = shownLevel;
   $("meter").textContent = Math.round(shownLevel) + " dB";
   $("meter-text").textContent = page.audio ? Math.round(shownLevel) + " dB" : "off";
