@@ -29,7 +29,7 @@ REPORT_PAGE = "index.html"
 #: The words each kind of error is named by on the page.
 ERROR_LABELS = {SUBSTITUTION: "substituted", DELETION: "deleted", INSERTION: "inserted", HIT: "correct"}
 _PICTURE_RATE = 8000
-_PICTURE_SIZE = (420, 90)
+_PICTURE_SIZE = (320, 80)
 
 
 def _e(text) -> str:
@@ -144,7 +144,8 @@ h1 { font-size: 1.5rem; } h2 { font-size: 1.2rem; margin-top: 1.5rem; }
 table { border-collapse: collapse; } th, td { border: 1px solid #999; padding: 0.25rem 0.5rem; text-align: left; vertical-align: top; }
 th { background: #eef1f5; } dl.summary { display: grid; grid-template-columns: max-content auto; gap: 0.15rem 1rem; }
 dl.summary dt { font-weight: 600; } dl.summary dd { margin: 0; }
-.aligned { display: flex; flex-wrap: wrap; gap: 0.3rem; }
+.aligned { display: flex; flex-wrap: wrap; gap: 0.3rem; min-width: 17rem; }
+#errors audio { width: 14rem; }
 .pair { display: inline-flex; flex-direction: column; border: 2px solid #999; border-radius: 4px; padding: 0.1rem 0.4rem; min-width: 3rem; }
 .pair .heard { border-top: 1px dotted #999; }
 .pair .tag { font-size: 0.75rem; font-weight: 700; text-transform: uppercase; }

@@ -287,7 +287,6 @@ async function keep() {
     "&held_out=" + ($("held-out").checked ? "1" : "0");
   try {
     const saved = await postAudio("/api/take" + query, p.body);
-    say("Saved " + saved.path + " in " + saved.manifest + ".");
     const holder = $("saved");
     holder.textContent = "";
     const label = document.createElement("p");
@@ -299,6 +298,7 @@ async function keep() {
     holder.append(label, player);
     await refresh();
     if (currentWord().to_record === 0) { page.index = nextWordToRecord(); render(); }
+    say("Saved " + saved.path + " in " + saved.manifest + ".");
   } catch (e) {
     say("The take was not saved: " + e.message, true);
   }
