@@ -21,6 +21,7 @@ from urllib.parse import quote
 import numpy as np
 
 from wordspot.errors import WordspotError
+from wordspot.evaluation.report import format_percent as _pct
 from wordspot.evaluation.scoring import DELETION, HIT, INSERTION, SUBSTITUTION
 
 __all__ = ["REPORT_PAGE", "ERROR_LABELS", "waveform_svg", "write_html_report"]
@@ -34,14 +35,6 @@ _PICTURE_SIZE = (320, 80)
 
 def _e(text) -> str:
     return html.escape(str(text), quote=True)
-
-
-def _pct(x: float | None) -> str:
-    if x is None or x != x:
-        return "n/a"
-    if x == float("inf"):
-        return "inf"
-    return f"{100.0 * x:.2f}%"
 
 
 def waveform_svg(wave: np.ndarray, sample_rate: int, segments=(), *, size=_PICTURE_SIZE) -> str:
