@@ -20,6 +20,7 @@ LAYERS = (
     ("training", "decoding"),
     ("evaluation",),
     ("api", "demo"),
+    ("web",),
     ("cli",),
 )
 RANK = {name: i for i, names in enumerate(LAYERS) for name in names}

@@ -150,6 +150,7 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
     seconds : dict of system name -> float
         Training or adaptation time (0 for the starter alone and a given model).
     """
+    from wordspot.evaluation.html_report import write_html_report
     from wordspot.evaluation.report import write_report
     from wordspot.evaluation.run import evaluate_utterances
     from wordspot.model import load_model
@@ -174,7 +175,8 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
                 continue
             say(f"{name}: evaluating {ds.name} ({len(ds.utterances)} recordings) ...")
             ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs, quiet=quiet)
-            write_report(ev.result, out_dir / "report" / name / ds.name)
+            files_ = write_report(ev.result, out_dir / "report" / name / ds.name)
+            write_html_report(ev, files_.folder, confusions=files_.confusions)
             r = ev.result
             rows.append(DemoRow(ds.name, r.utterances, r.reference_words, r.wer, tuple(r.wer_ci95),
                                 r.substitutions, r.deletions, r.insertions, ds.note))

@@ -19,7 +19,6 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-import tempfile
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -33,6 +32,7 @@ from wordspot.language.grammar import BigramCounts
 from wordspot.language.lexicon import Lexicon, parse_lexicon
 from wordspot.acoustic.units import UnitSet
 from wordspot.starters import is_starter_name, starter_path
+from wordspot.util.atomic import write_atomically
 
 __all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
 
@@ -137,40 +137,11 @@ def save_model(model: AcousticModel, path) -> Path:
         raise ModelFileError(f"{target}: model info is not plain data ({exc})") from None
     header["checksum"] = _checksum(arrays, header)
     payload = np.frombuffer(json.dumps(header, sort_keys=True).encode("utf-8"), dtype=np.uint8)
-    tmp_name = None
     try:
-        with tempfile.NamedTemporaryFile(dir=folder, prefix=f".{target.name}.", suffix=".tmp",
-                                         delete=False) as f:
-            tmp_name = f.name
-            np.savez(f, header=payload, **arrays)
-            f.flush()
-            os.fsync(f.fileno())
-        os.chmod(tmp_name, 0o666 & ~_umask())
-        os.replace(tmp_name, target)
-        tmp_name = None
+        write_atomically(target, lambda f: np.savez(f, header=payload, **arrays))
     except OSError as exc:
         raise ModelFileError(f"{target}: cannot write the model ({exc.strerror or exc})") from None
-    finally:
-        if tmp_name is not None:
-            try:
-                os.unlink(tmp_name)
-            except OSError:
-                pass
-    try:  # make the rename itself durable (not possible on every system)
-        fd = os.open(folder, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
-    except OSError:
-        pass
     return target
-
-
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
 
 
 def _damaged(path, what: str) -> ModelFileError:

@@ -23,6 +23,7 @@ __all__ = ["main", "build_parser", "chosen_command"]
 # ``wordspot --help`` lists them.
 _COMMANDS = {
     "demo": "compare the starter, adapted and from-scratch models on every demo test set",
+    "record": "record takes of every word in the browser, then train and try the model",
     "train": "train an acoustic model from recordings and their transcripts",
     "recognize": "recognise the words spoken in audio files",
     "evaluate": "measure word error rate on held-out recordings",
@@ -34,6 +35,7 @@ _GLOBAL_FLAGS = ("--debug", "--quiet", "-q")
 _EPILOG = """\
 examples (a bakery: bakers with dough on their hands call out commands):
   wordspot demo                                   starter, adapted and from-scratch models on the demo sets
+  wordspot record my-takes/ --takes 3             record takes in the browser, train, try
   wordspot lexicon suggest proof knead            pronunciations for two new command words
   wordspot train my-takes/train.csv --lexicon bakery.txt --out bakery.model
   wordspot recognize --model bakery.model oven-start.wav

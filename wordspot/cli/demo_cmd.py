@@ -73,7 +73,7 @@ def _run(args) -> int:
         what = SYSTEMS.get(name, "the given model")
         took = f", {seconds[name]:.0f} s" if seconds.get(name) else ""
         print(f"{name:8s} {path}  ({what}{took})")
-    print(f"reports: {out_dir / 'report'}/<system>/<set>/ (errors.csv, words.csv, speakers.csv, confusions.png)")
+    print(f"reports: {out_dir / 'report'}/<system>/<set>/ (index.html, errors.csv, words.csv, speakers.csv, confusions.png)")
     print()
     model_file = files.get("adapted") or next(iter(files.values()))
     print("try next:")

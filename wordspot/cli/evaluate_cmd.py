@@ -16,7 +16,8 @@ examples (a bakery: commands called out with dough on your hands):
   wordspot evaluate --model bakery.model held-out/takes.csv
   wordspot evaluate --model bakery.model held-out/quiet.csv held-out/mixer-running.csv --json
   wordspot evaluate --model bakery.model held-out/takes.csv --report bakery-report
-      writes errors.csv, words.csv, speakers.csv, summary.json and confusions.png
+      writes index.html (open it in a browser: every error with a player and a picture),
+      errors.csv, words.csv, speakers.csv, summary.json and confusions.png
   wordspot evaluate --model bakery.model held-out/new-words.csv --lexicon bakery-plus.txt
 
 Each manifest is a CSV file with columns path,transcript,speaker. The WER interval is a
@@ -41,6 +42,9 @@ def add_parser(sub, **options):
     p.add_argument("--report", metavar="DIR",
                    help="write the errors, tables and a confusion picture to this folder "
                    "(one subfolder per manifest when there are several)")
+    p.add_argument("--copy-audio", action="store_true",
+                   help="with --report: copy the recordings with errors into the report folder, so that "
+                   "index.html plays them after the folder is moved")
     p.add_argument("--bootstrap", type=int, default=1000, metavar="N",
                    help="bootstrap replicates for the WER interval (default 1000)")
     add_decoder_options(p)
@@ -53,6 +57,7 @@ def _run(args) -> int:
     from wordspot.evaluation.run import evaluate_manifest
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
+    from wordspot.evaluation.html_report import write_html_report
     from wordspot.evaluation.report import render_result, write_report
 
     settings = settings_from_args(args)
@@ -82,8 +87,9 @@ def _run(args) -> int:
             if len(args.manifests) > 1:
                 folder = folder / name
             files = write_report(ev.result, folder)
+            page = write_html_report(ev, folder, copy_audio=args.copy_audio, confusions=files.confusions)
             if not args.json and not args.quiet:
-                print(f"report written to {folder}/")
+                print(f"report written to {folder}/ (open {page} in a browser)")
     if failed:
         print(f"wordspot: {failed} file(s) could not be processed; they count as recognising nothing",
               file=sys.stderr)

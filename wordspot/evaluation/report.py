@@ -20,6 +20,7 @@ __all__ = [
     "DELETED_LABEL",
     "INSERTED_LABEL",
     "ReportFiles",
+    "format_percent",
     "render_summary",
     "render_word_table",
     "render_speaker_table",
@@ -33,12 +34,16 @@ DELETED_LABEL = "(deleted)"
 INSERTED_LABEL = "(inserted)"
 
 
-def _pct(x: float | None) -> str:
+def format_percent(x: float | None) -> str:
+    """A rate as a percentage with two decimals; "n/a" for a missing rate, "inf" for infinity."""
     if x is None or x != x:
         return "n/a"
     if x == float("inf"):
         return "inf"
     return f"{100.0 * x:.2f}%"
+
+
+_pct = format_percent
 
 
 def _columns(header: list[str], rows: list[list[str]], right: set[int]) -> str:

@@ -1,0 +1,40 @@
+"""``wordspot record`` as a user starts it: the address printed, the page served, Ctrl+C stops it."""
+
+import json
+import re
+import signal
+import subprocess
+import sys
+import urllib.request
+
+import pytest
+
+
+def test_record_serves_the_page_and_stops_cleanly(tmp_path):
+    folder = tmp_path / "my takes"
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "wordspot.cli", "record", str(folder), "--port", "0", "--takes", "2"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )
+    try:
+        line = proc.stdout.readline()
+        match = re.search(r"http://127\.0\.0\.1:(\d+)/", line)
+        assert match, line + proc.stderr.read()
+        with urllib.request.urlopen(match.group(0) + "api/state", timeout=30) as answer:
+            state = json.load(answer)
+        assert state["words"] == [] and state["takes_per_word"] == 2
+        assert state["lexicon"].endswith("lexicon.txt") and folder.is_dir()
+    finally:
+        proc.send_signal(signal.SIGINT)
+        _, err = proc.communicate(timeout=30)
+    assert proc.returncode == 0
+    assert "stopped" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize(("args", "message"), [(["--takes", "0"], "--takes must be 1 or more"),
+                                                (["--sample-rate", "44100"], "--sample-rate must be 16000 or 8000")])
+def test_bad_options_give_one_line(tmp_path, args, message):
+    done = subprocess.run([sys.executable, "-m", "wordspot.cli", "record", str(tmp_path), *args],
+                          capture_output=True, text=True, timeout=60)
+    assert done.returncode == 2
+    assert message in done.stderr and "Traceback" not in done.stderr

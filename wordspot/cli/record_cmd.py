@@ -1,0 +1,78 @@
+"""``wordspot record``: a page in the browser for recording takes of every command word."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+__all__ = ["add_parser"]
+
+_EPILOG = """\
+examples (a bakery: bakers with dough on their hands call out commands):
+  wordspot record my-takes/                              words typed in on the page
+  wordspot record my-takes/ --lexicon lexicon/bakery.txt --takes 3
+  wordspot record my-takes/ --speaker baker-b --port 8766
+
+Open the address it prints in a browser on this computer (the server answers only at
+127.0.0.1). Press Space to record and to stop, Enter to keep a take, Backspace to record
+it again, the Up and Down arrows for another word. Each take is trimmed of its quiet ends
+and saved as a 16-bit WAV file at the model rate in FOLDER/audio/SPEAKER/, and listed in
+FOLDER/train.csv (or FOLDER/held-out.csv when kept for testing). When every word has
+enough takes the page trains a model (FOLDER/words.model) and lets you try it.
+Stop the server with Ctrl+C; nothing half-written is left behind.
+"""
+
+
+def add_parser(sub, **options):
+    p = sub.add_parser(
+        "record",
+        **options,
+        description="Serve a recording page on this computer (127.0.0.1 only): it lists the words, "
+        "records takes from the microphone, trims and checks them, keeps the manifests in step, "
+        "and offers training and a try-it box.",
+        epilog=_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("folder", metavar="FOLDER", help="takes folder (created if missing)")
+    p.add_argument("--lexicon", metavar="LEX",
+                   help="lexicon file whose words to record; words added on the page are appended to it "
+                   "(default FOLDER/lexicon.txt)")
+    p.add_argument("--takes", type=int, default=3, metavar="N", help="takes of every word per speaker (default 3)")
+    p.add_argument("--speaker", default="baker-a", metavar="NAME", help="speaker name to start with (default baker-a)")
+    p.add_argument("--port", type=int, default=8765, metavar="PORT",
+                   help="port on 127.0.0.1 (default 8765; 0 picks a free one)")
+    p.add_argument("--sample-rate", type=int, default=16000, metavar="HZ",
+                   help="rate the takes are saved at, the model rate (default 16000)")
+    p.add_argument("--open", action="store_true", help="open the page in the default browser")
+    p.set_defaults(func=_run)
+    return p
+
+
+def _run(args) -> int:
+    from wordspot.errors import WordspotError
+    from wordspot.web.server import RecordingApp, RecordingSettings, serve
+
+    if args.takes < 1:
+        raise WordspotError(f"--takes must be 1 or more, got {args.takes}")
+    if args.sample_rate not in (8000, 16000):
+        raise WordspotError(f"--sample-rate must be 16000 or 8000, got {args.sample_rate}")
+    folder = Path(args.folder)
+    lexicon = Path(args.lexicon) if args.lexicon else folder / "lexicon.txt"
+    app = RecordingApp(RecordingSettings(folder=folder, lexicon=lexicon, takes=args.takes,
+                                         speaker=args.speaker, sample_rate=args.sample_rate))
+
+    def ready(url: str) -> None:
+        for note in app.notes:
+            print(f"wordspot: note: {note}", file=sys.stderr)
+        print(f"recording page: {url}  (takes in {app.takes.folder}; Ctrl+C stops)", flush=True)
+        if args.open:
+            import webbrowser
+
+            webbrowser.open(url)
+
+    try:
+        serve(app, port=args.port, verbose=not args.quiet and args.debug, ready=ready)
+    except KeyboardInterrupt:
+        print("recording page stopped", file=sys.stderr)
+    return 0

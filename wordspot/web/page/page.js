@@ -1,0 +1,455 @@
+// wordspot recording page: record takes from the microphone, keep them, train, try.
+// Plain JavaScript, no framework; talks only to the server that served it.
+"use strict";
+
+const $ = (id) => document.getElementById(id);
+const MAX_SECONDS = 15;
+
+const page = {
+  state: null,        // last /api/state answer
+  index: 0,           // selected word
+  audio: null,        // {context, stream, node}
+  recording: null,    // "take" or "try" while recording
+  chunks: [],
+  pending: null,      // {samples, rate, body, check} of the take waiting for keep/redo
+  timer: null,
+  polling: null,
+};
+
+// ---- talking to the server -------------------------------------------------------------
+async function api(path, options) {
+  const answer = await fetch(path, options);
+  let data = null;
+  try { data = await answer.json(); } catch (e) { data = {error: "the server sent no answer"}; }
+  if (!answer.ok) throw new Error(data.error || ("error " + answer.status));
+  return data;
+}
+
+function postAudio(path, body) {
+  return api(path, {method: "POST", headers: {"Content-Type": "audio/wav"}, body: body});
+}
+
+function postJson(path, data) {
+  return api(path, {method: "POST", headers: {"Content-Type": "application/json"}, body: JSON.stringify(data)});
+}
+
+function say(text, isError) {
+  const s = $("status");
+  s.textContent = text;
+  s.className = isError ? "error" : "";
+}
+
+// ---- the word list ----------------------------------------------------------------------
+async function refresh() {
+  const who = encodeURIComponent($("speaker").value.trim());
+  page.state = await api("/api/state" + (who ? "?speaker=" + who : ""));
+  render();
+}
+
+function currentWord() {
+  const words = page.state ? page.state.words : [];
+  return words.length ? words[Math.min(page.index, words.length - 1)] : null;
+}
+
+function render() {
+  const st = page.state;
+  $("folder").textContent = st.folder;
+  if (!$("speaker").value) $("speaker").value = st.speaker;
+  const list = $("words");
+  list.textContent = "";
+  st.words.forEach((w, i) => {
+    const li = document.createElement("li");
+    const b = document.createElement("button");
+    b.type = "button";
+    b.dataset.index = String(i);
+    b.setAttribute("aria-current", i === page.index ? "true" : "false");
+    const name = document.createElement("span");
+    name.textContent = w.word;
+    const count = document.createElement("span");
+    count.className = "count" + (w.to_record === 0 ? " done" : "");
+    count.textContent = w.to_record === 0 ? "done" : w.to_record + " to record";
+    b.append(name, count);
+    b.setAttribute("aria-label", w.word + ": " + count.textContent);
+    b.addEventListener("click", () => select(i, false));
+    li.append(b);
+    list.append(li);
+  });
+  const w = currentWord();
+  $("current-word").textContent = w ? w.word : "(add a word first)";
+  $("current-phones").textContent = w ? "(" + w.pronunciations.join(" or ") + ")" : "";
+  $("takes-left").textContent = w
+    ? (w.train + w.held_out) + " of " + st.takes_per_word + " takes recorded by " + st.speaker +
+      (w.held_out ? " (" + w.held_out + " kept for testing)" : "")
+    : "";
+  $("record").disabled = !w;
+  renderTraining(st.training);
+  const notes = $("notes");
+  notes.textContent = "";
+  st.notes.forEach((n) => { const li = document.createElement("li"); li.textContent = n; notes.append(li); });
+  $("notes-panel").hidden = st.notes.length === 0;
+}
+
+function select(i, focus) {
+  const n = page.state ? page.state.words.length : 0;
+  if (!n || page.recording) return;
+  page.index = (i + n) % n;
+  discard(false);
+  render();
+  if (focus) {
+    const b = document.querySelector('#words button[data-index="' + page.index + '"]');
+    if (b) { b.focus(); b.scrollIntoView({block: "nearest"}); }
+  }
+}
+
+function nextWordToRecord() {
+  const words = page.state.words;
+  for (let k = 1; k <= words.length; k++) {
+    const j = (page.index + k) % words.length;
+    if (words[j].to_record > 0) return j;
+  }
+  return page.index;
+}
+
+// ---- the microphone ---------------------------------------------------------------------
+async function openMicrophone() {
+  if (page.audio) return page.audio;
+  if (!navigator.mediaDevices || !navigator.mediaDevices.getUserMedia) {
+    throw new Error("this browser cannot use the microphone here; open the page at http://127.0.0.1");
+  }
+  const stream = await navigator.mediaDevices.getUserMedia(
+    {audio: {echoCancellation: false, noiseSuppression: false, autoGainControl: false, channelCount: 1}});
+  const context = new AudioContext();
+  await context.audioWorklet.addModule("/page/capture-worklet.js");
+  const source = context.createMediaStreamSource(stream);
+  const node = new AudioWorkletNode(context, "wordspot-capture");
+  node.port.onmessage = (event) => onBlock(event.data);
+  source.connect(node);
+  page.audio = {context: context, stream: stream, node: node};
+  return page.audio;
+}
+
+let shownLevel = -60, loudestSinceDrawn = -60;
+function onBlock(block) {
+  let peak = 0;
+  for (let i = 0; i < block.length; i++) { const a = Math.abs(block[i]); if (a > peak) peak = a; }
+  const db = peak > 0 ? Math.max(-60, 20 * Math.log10(peak)) : -60;
+  if (db > loudestSinceDrawn) loudestSinceDrawn = db;
+  if (page.recording) {
+    page.chunks.push(block);
+    const seconds = page.chunks.length * block.length / page.audio.context.sampleRate;
+    if (seconds >= MAX_SECONDS) stopRecording();
+  }
+}
+
+function drawMeter() {
+  shownLevel = Math.max(loudestSinceDrawn, shownLevel - 1);   // rises at once, falls about 60 dB a second
+  loudestSinceDrawn = -60;
+  $("meter").value = shownLevel;
+  $("meter").textContent = Math.round(shownLevel) + " dB";
+  $("meter-text").textContent = page.audio ? Math.round(shownLevel) + " dB" : "off";
+  requestAnimationFrame(drawMeter);
+}
+
+function joined() {
+  let n = 0;
+  page.chunks.forEach((c) => { n += c.length; });
+  const out = new Float32Array(n);
+  let at = 0;
+  page.chunks.forEach((c) => { out.set(c, at); at += c.length; });
+  page.chunks = [];
+  return out;
+}
+
+// A mono 32-bit float WAV file; the server converts it to the model rate.
+function wavBytes(samples, rate) {
+  const buffer = new ArrayBuffer(44 + 4 * samples.length);
+  const v = new DataView(buffer);
+  const text = (at, s) => { for (let i = 0; i < s.length; i++) v.setUint8(at + i, s.charCodeAt(i)); };
+  text(0, "RIFF"); v.setUint32(4, 36 + 4 * samples.length, true); text(8, "WAVE");
+  text(12, "fmt "); v.setUint32(16, 16, true); v.setUint16(20, 3, true); v.setUint16(22, 1, true);
+  v.setUint32(24, rate, true); v.setUint32(28, rate * 4, true); v.setUint16(32, 4, true); v.setUint16(34, 32, true);
+  text(36, "data"); v.setUint32(40, 4 * samples.length, true);
+  for (let i = 0; i < samples.length; i++) v.setFloat32(44 + 4 * i, samples[i], true);
+  return new Blob([buffer], {type: "audio/wav"});
+}
+
+async function startRecording(kind) {
+  if (page.recording) return;
+  try {
+    await openMicrophone();
+    if (page.audio.context.state !== "running") await page.audio.context.resume();
+  } catch (e) {
+    say("The microphone could not be opened: " + e.message, true);
+    return;
+  }
+  discard(false);
+  page.chunks = [];
+  page.recording = kind;
+  if (kind === "take") {
+    $("record").classList.add("on");
+    $("record").innerHTML = "Stop <kbd>Space</kbd>";
+    say("Recording… say “" + currentWord().word + "”, then press Space.");
+  } else {
+    $("try-record").innerHTML = "Stop <kbd>T</kbd>";
+    $("try-result").textContent = "Listening… say a command, then press T.";
+  }
+}
+
+async function stopRecording() {
+  const kind = page.recording;
+  if (!kind) return;
+  page.recording = null;
+  const samples = joined();
+  const rate = page.audio.context.sampleRate;
+  if (kind === "try") {
+    $("try-record").innerHTML = "Record a test <kbd>T</kbd>";
+    return tryModel(samples, rate);
+  }
+  $("record").classList.remove("on");
+  $("record").innerHTML = "Record <kbd>Space</kbd>";
+  if (samples.length < rate * 0.1) { say("That was too short to use; press Space and say the word.", true); return; }
+  const body = wavBytes(samples, rate);
+  say("Checking the take…");
+  try {
+    const check = await postAudio("/api/check", body);
+    page.pending = {samples: samples, rate: rate, body: body, check: check};
+    drawTake(samples, rate, check);
+    showCheck(check, samples.length / rate);
+    ["play", "keep", "redo"].forEach((id) => { $(id).disabled = false; });
+    say(check.warnings.length ? "Listen to it, then keep it or record again."
+                              : "Sounds fine. Press Enter to keep it, or Backspace to record again.");
+  } catch (e) {
+    say("The take could not be checked: " + e.message, true);
+  }
+}
+
+function showCheck(check, seconds) {
+  $("take-summary").textContent = "Kept " + (check.end - check.start).toFixed(2) + " s of " + seconds.toFixed(2) +
+    " s (quiet ends trimmed); loudest point " + (check.peak_db === null ? "silent" : check.peak_db + " dB") + ".";
+  const list = $("warnings");
+  list.textContent = "";
+  check.warnings.forEach((w) => { const li = document.createElement("li"); li.textContent = w; list.append(li); });
+}
+
+function drawTake(samples, rate, check) {
+  const canvas = $("waveform");
+  const g = canvas.getContext("2d");
+  const w = canvas.width, h = canvas.height, mid = h / 2;
+  g.fillStyle = "#ffffff"; g.fillRect(0, 0, w, h);
+  const seconds = samples.length / rate;
+  const x0 = Math.round(w * check.start / seconds), x1 = Math.round(w * check.end / seconds);
+  g.fillStyle = "#d9d9d9";
+  g.fillRect(0, 0, x0, h); g.fillRect(x1, 0, w - x1, h);
+  const step = Math.max(1, Math.floor(samples.length / w));
+  g.strokeStyle = "#0b4f8a";
+  g.beginPath();
+  for (let x = 0; x < w; x++) {
+    let lo = 0, hi = 0;
+    for (let i = x * step; i < Math.min(samples.length, (x + 1) * step); i++) {
+      if (samples[i] < lo) lo = samples[i];
+      if (samples[i] > hi) hi = samples[i];
+    }
+    g.moveTo(x + 0.5, mid - hi * mid); g.lineTo(x + 0.5, mid - lo * mid + 1);
+  }
+  g.stroke();
+  g.fillStyle = "#111"; g.font = "14px sans-serif";
+  if (x0 > 40) g.fillText("trimmed", 4, 16);
+  if (w - x1 > 40) g.fillText("trimmed", x1 + 4, 16);
+  canvas.setAttribute("aria-label", "Waveform of the last take: " + seconds.toFixed(2) + " s, of which " +
+    (check.end - check.start).toFixed(2) + " s are kept");
+}
+
+function discard(tell) {
+  page.pending = null;
+  ["play", "keep", "redo"].forEach((id) => { $(id).disabled = true; });
+  if (tell) say("Take thrown away. Press Space to record again.");
+}
+
+function play() {
+  const p = page.pending;
+  if (!p || !page.audio) return;
+  const ctx = page.audio.context;
+  const buffer = ctx.createBuffer(1, p.samples.length, p.rate);
+  buffer.copyToChannel(p.samples, 0);
+  const src = ctx.createBufferSource();
+  src.buffer = buffer;
+  src.connect(ctx.destination);
+  src.start(0, p.check.start, Math.max(0.01, p.check.end - p.check.start));
+  say("Playing the kept part…");
+}
+
+async function keep() {
+  const p = page.pending;
+  const w = currentWord();
+  if (!p || !w) return;
+  discard(false);
+  const query = "?word=" + encodeURIComponent(w.word) + "&speaker=" + encodeURIComponent($("speaker").value.trim()) +
+    "&held_out=" + ($("held-out").checked ? "1" : "0");
+  try {
+    const saved = await postAudio("/api/take" + query, p.body);
+    const holder = $("saved");
+    holder.textContent = "";
+    const label = document.createElement("p");
+    label.textContent = "Last saved take (" + saved.word + "):";
+    const player = document.createElement("audio");
+    player.controls = true;
+    player.preload = "none";
+    player.src = "/takes/" + saved.path.split("/").map(encodeURIComponent).join("/");
+    holder.append(label, player);
+    await refresh();
+    if (currentWord().to_record === 0) { page.index = nextWordToRecord(); render(); }
+    say("Saved " + saved.path + " in " + saved.manifest + ".");
+  } catch (e) {
+    say("The take was not saved: " + e.message, true);
+  }
+}
+
+// ---- adding words -------------------------------------------------------------------------
+async function lookUp(event) {
+  event.preventDefault();
+  const word = $("new-word").value.trim();
+  if (!word) return;
+  try {
+    const found = await postJson("/api/word", {word: word});
+    if (found.known) {
+      say("“" + found.word + "” is already in the list.");
+      const i = page.state.words.findIndex((w) => w.word === found.word);
+      if (i >= 0) select(i, true);
+      return;
+    }
+    $("suggested-word").textContent = found.word;
+    $("new-phones").value = found.pronunciations.length ? found.pronunciations[0] : "";
+    $("suggestion-note").textContent = found.pronunciations.length
+      ? "Suggested by the open CMU pronouncing dictionary" +
+        (found.pronunciations.length > 1 ? " (others: " + found.pronunciations.slice(1).join("; ") + ")" : "") +
+        ". Change it if it does not match how you say it."
+      : "The dictionary does not know this word: type its sounds as ARPAbet phones, e.g. N IY D.";
+    $("suggestion").hidden = false;
+    $("new-phones").focus();
+  } catch (e) {
+    say(e.message, true);
+  }
+}
+
+async function confirmWord() {
+  try {
+    const added = await postJson("/api/word/add", {word: $("suggested-word").textContent, phones: $("new-phones").value});
+    $("suggestion").hidden = true;
+    $("new-word").value = "";
+    await refresh();
+    const i = page.state.words.findIndex((w) => w.word === added.word);
+    if (i >= 0) select(i, true);
+    say("Added “" + added.word + "” (" + added.pronunciations.join(" or ") + ").");
+  } catch (e) {
+    say(e.message, true);
+  }
+}
+
+// ---- training and trying --------------------------------------------------------------------
+function renderTraining(t) {
+  const st = page.state;
+  $("train-command").textContent = st.train_command;
+  const running = t.state === "running";
+  $("train").disabled = !st.ready_to_train || running;
+  let text;
+  if (running) text = "Training… (" + Math.round(100 * t.progress) + "%)";
+  else if (t.state === "failed") text = "Training stopped with an error; see the lines below.";
+  else if (st.model) text = "A trained model is ready: " + st.model + ".";
+  else if (st.ready_to_train) text = "Every word has enough takes: you can train now.";
+  else text = "Every word needs " + st.min_train_takes + " training takes first (still short: " +
+    (st.words_short_of_takes.join(", ") || "no words yet") + ").";
+  $("train-state").textContent = text;
+  $("train-progress").hidden = t.state === "idle";
+  $("train-progress").value = t.progress;
+  $("train-log").hidden = t.lines.length === 0;
+  $("train-log").textContent = t.lines.join("\n");
+  $("evaluate-line").hidden = !(st.model && st.evaluate_command);
+  $("evaluate-command").textContent = st.evaluate_command || "";
+  $("try-record").disabled = !st.model;
+  $("try-state").textContent = st.model ? "Say a command and see what the model hears." : "Train a model first.";
+  if (running && !page.polling) page.polling = setInterval(pollTraining, 1000);
+}
+
+async function startTraining() {
+  try {
+    await api("/api/train", {method: "POST"});
+    await refresh();
+  } catch (e) {
+    say(e.message, true);
+  }
+}
+
+async function pollTraining() {
+  try {
+    const t = await api("/api/train");
+    if (t.state !== "running") { clearInterval(page.polling); page.polling = null; await refresh(); return; }
+    renderTraining(t);
+  } catch (e) {
+    clearInterval(page.polling); page.polling = null;
+  }
+}
+
+async function tryModel(samples, rate) {
+  if (samples.length < rate * 0.1) { $("try-result").textContent = "That was too short; press T and speak."; return; }
+  $("try-result").textContent = "Recognising…";
+  try {
+    const r = await postAudio("/api/try", wavBytes(samples, rate));
+    $("try-result").textContent = r.words.length
+      ? "Heard: " + r.text + " — " + r.words.map((w) => w.word + " " + w.start.toFixed(2) + "–" + w.end.toFixed(2) +
+          " s, confidence " + Math.round(100 * w.confidence) + "%").join("; ")
+      : "Heard nothing (" + (r.reason || "no words") + ").";
+  } catch (e) {
+    $("try-result").textContent = "Could not recognise: " + e.message;
+  }
+}
+
+// ---- keys ----------------------------------------------------------------------------------
+function typing(target) {
+  return target && (target.tagName === "INPUT" && target.type !== "checkbox" || target.tagName === "TEXTAREA");
+}
+
+function onKey(event) {
+  if (typing(event.target) || event.altKey || event.ctrlKey || event.metaKey) return;
+  const k = event.key;
+  if (k === " " || k === "Spacebar") {
+    event.preventDefault();
+    if (event.repeat) return;
+    if (page.recording === "take") stopRecording(); else if (!page.recording && currentWord()) startRecording("take");
+  } else if (k === "ArrowDown" || k === "ArrowUp") {
+    event.preventDefault();
+    select(page.index + (k === "ArrowDown" ? 1 : -1), true);
+  } else if (k === "Enter" && page.pending) {
+    event.preventDefault();
+    keep();
+  } else if (k === "Backspace" && page.pending) {
+    event.preventDefault();
+    discard(true);
+  } else if ((k === "p" || k === "P") && page.pending) {
+    play();
+  } else if ((k === "t" || k === "T") && !$("try-record").disabled) {
+    if (page.recording === "try") stopRecording(); else if (!page.recording) startRecording("try");
+  }
+}
+
+function onKeyUp(event) {
+  // a focused button would otherwise also be pressed by the Space that records
+  if ((event.key === " " || event.key === "Spacebar") && !typing(event.target)) event.preventDefault();
+}
+
+function start() {
+  $("record").addEventListener("click", () => { if (page.recording === "take") stopRecording(); else startRecording("take"); });
+  $("play").addEventListener("click", play);
+  $("keep").addEventListener("click", keep);
+  $("redo").addEventListener("click", () => discard(true));
+  $("add-word").addEventListener("submit", lookUp);
+  $("confirm-word").addEventListener("click", confirmWord);
+  $("train").addEventListener("click", startTraining);
+  $("try-record").addEventListener("click", () => { if (page.recording === "try") stopRecording(); else startRecording("try"); });
+  $("speaker").addEventListener("change", () => { discard(false); refresh().catch((e) => say(e.message, true)); });
+  document.addEventListener("keydown", onKey);
+  document.addEventListener("keyup", onKeyUp);
+  requestAnimationFrame(drawMeter);
+  refresh().catch((e) => say("The page could not reach wordspot: " + e.message, true));
+}
+
+start();

@@ -1,0 +1,88 @@
+"""Training started from the page: ``wordspot train`` in a child process, its output kept.
+
+The page polls :meth:`TrainingJob.status`; progress is the number of the last ``pass N``
+line the trainer printed over the number of passes its configuration runs.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+import threading
+from collections import deque
+from pathlib import Path
+
+from wordspot.training.trainer import TrainingConfig
+
+__all__ = ["TrainingJob", "train_command"]
+
+_PASS_RE = re.compile(r"^\s*pass\s+(\d+)\b")
+_KEEP_LINES = 200
+
+
+def train_command(manifest, lexicon, model, *, jobs: int = 1) -> list[str]:
+    """The ``wordspot train`` command line for these files (as a list of arguments)."""
+    return ["wordspot", "train", str(manifest), "--lexicon", str(lexicon), "--out", str(model),
+            "--jobs", str(jobs)]
+
+
+class TrainingJob:
+    """At most one training run at a time, with its output lines and progress."""
+
+    def __init__(self):
+        self._lock = threading.Lock()
+        self._process: subprocess.Popen | None = None
+        self._lines: deque[str] = deque(maxlen=_KEEP_LINES)
+        self._pass = 0
+        self._total = TrainingConfig().total_passes
+
+    def start(self, manifest, lexicon, model, *, jobs: int = 1) -> bool:
+        """Start training unless a run is going on; False when one is."""
+        with self._lock:
+            if self._process is not None and self._process.poll() is None:
+                return False
+            args = train_command(manifest, lexicon, model, jobs=jobs)
+            self._lines.clear()
+            self._pass = 0
+            self._lines.append("$ " + " ".join(args))
+            self._process = subprocess.Popen(
+                [sys.executable, "-m", "wordspot.cli"] + args[1:],
+                stdout=subprocess.PIPE, stderr=subprocess.STDOUT, stdin=subprocess.DEVNULL,
+                cwd=Path(model).parent, text=True, encoding="utf-8", errors="replace",
+            )
+            threading.Thread(target=self._read, args=(self._process,), daemon=True).start()
+            return True
+
+    def _read(self, process: subprocess.Popen) -> None:
+        for raw in process.stdout:
+            for line in raw.replace("\r", "\n").splitlines():
+                if not line.strip():
+                    continue
+                with self._lock:
+                    self._lines.append(line)
+                    m = _PASS_RE.match(line)
+                    if m:
+                        self._pass = int(m.group(1))
+        process.wait()
+
+    def status(self) -> dict:
+        """``state`` (idle, running, done, failed), progress in [0, 1], the last lines."""
+        with self._lock:
+            if self._process is None:
+                state, code = "idle", None
+            else:
+                code = self._process.poll()
+                state = "running" if code is None else ("done" if code == 0 else "failed")
+            return {
+                "state": state,
+                "exit_status": code,
+                "progress": min(1.0, self._pass / self._total) if state != "done" else 1.0,
+                "lines": list(self._lines)[-30:],
+            }
+
+    def stop(self) -> None:
+        """End a run that is going on (when the server stops)."""
+        with self._lock:
+            if self._process is not None and self._process.poll() is None:
+                self._process.terminate()
