@@ -116,7 +116,7 @@ def test_phone_set_is_cmudicts_and_every_phone_occurs_often(text, starter, items
 
 
 def test_lexicon_covers_every_word_and_follows_the_project_format(text, starter):
-    from wordspot.lexicon import read_lexicon
+    from wordspot.language.lexicon import read_lexicon
 
     words, sentences, lexicon = text
     needed = set(words) | {w for s in sentences for w in s.split()}
