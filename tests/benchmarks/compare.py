@@ -243,6 +243,10 @@ def run(args) -> str:
         systems["wordspot"] = (time.perf_counter() - t0, ws.recognizer(model, single_word=True))
         models[label] = model
         log(f"[{label}] wordspot trained in {systems['wordspot'][0]:.1f} s")
+        t0 = time.perf_counter()
+        adapted = ws.adapt_wordspot([it.utterance for it in train], lexicon_path, jobs=n_jobs)
+        systems[ADAPTED] = (time.perf_counter() - t0, ws.recognizer(adapted, single_word=True))
+        log(f"[{label}] wordspot adapted from the starter in {systems[ADAPTED][0]:.1f} s")
         # ---- baselines (words trained in parallel with joblib, n_jobs processes)
         t0 = time.perf_counter()
         hmm = WholeWordHMM(n_states=hmm_cfg[0], n_mix=hmm_cfg[1], n_jobs=n_jobs).fit(examples)
@@ -261,7 +265,7 @@ def run(args) -> str:
             for set_name, items in sets.items():
                 refs = [it.words for it in items]
                 xs = [feats[it.path] for it in items]
-                if name == "wordspot":
+                if name in ("wordspot", ADAPTED):
                     hyps = _ws_parallel(rec, xs, n_jobs)
                 elif set_name == "new-words":
                     hyps = [("<unknown>",)] * len(items)  # no recordings of these words: errors
@@ -273,8 +277,16 @@ def run(args) -> str:
         last = (train, systems, model)
 
     failures: list[str] = []
+    # ---- one person's recordings: adapt or train on one voice, test on its other takes
+    one_person = []
+    try:
+        one_person = _one_person(train_all, test, lexicon_path, feats, n_jobs, devs)
+    except Exception as exc:  # a late failure must not lose the WER tables
+        log(f"one-person section failed: {exc!r}")
+        failures.append(f"one person: {exc!r}")
     # ---- recognition speed, one core, same files, from audio file to word
     train, systems, model = last
+    systems = {k: v for k, v in systems.items() if k != ADAPTED}  # the same recognizer, other means
     speed_items = test[:: max(1, len(test) // (20 if args.quick else 60))]
     speed_paths = [it.path for it in speed_items]
     audio_s = durations(speed_paths)
@@ -354,10 +366,51 @@ def run(args) -> str:
 
     total = time.perf_counter() - t_start
     text = render(args, info, rows, dev_lines, speed, len(speed_paths), audio_s, growth,
-                  len(grow_paths), gauss, prof, total)
+                  len(grow_paths), gauss, prof, total, one_person)
     if failures:
         text += "\n## Sections that failed\n\n" + "\n".join(f"- {f}" for f in failures) + "\n"
     return text
+
+
+ADAPTED = "wordspot adapted"
+ONE_PERSON_TAKES = 3  # takes per word the person records; the voice's other takes are its test
+
+
+def _one_person(train_all, test, lexicon_path, feats, n_jobs, devs):
+    """WER on one voice's held-back takes and on the unseen test voices, for the starter alone,
+    the starter adapted on the voice's first takes, and training from scratch on them."""
+    from wordspot.model import load_model
+    from wordspot.language.lexicon import read_lexicon
+
+    counts = {}
+    for it in train_all:
+        counts[it.speaker] = counts.get(it.speaker, 0) + 1
+    voice = max((v for v in counts if v not in devs), key=lambda v: (counts[v], v))
+    mine = [it for it in train_all if it.speaker == voice]
+    first = takes_subset(mine, ONE_PERSON_TAKES)
+    chosen = {it.path for it in first}
+    rest = [it for it in mine if it.path not in chosen]
+    lexicon = read_lexicon(lexicon_path)
+    starter = load_model("starter")
+    starter.lexicon = lexicon
+    out = []
+    for name, make in (("starter alone", lambda: starter),
+                       ("adapted on one voice", lambda: ws.adapt_wordspot([it.utterance for it in first],
+                                                                          lexicon_path, jobs=n_jobs)),
+                       ("from scratch on one voice", lambda: ws.train_wordspot([it.utterance for it in first],
+                                                                               lexicon_path, jobs=n_jobs))):
+        t0 = time.perf_counter()
+        model = make()
+        secs = time.perf_counter() - t0
+        rec = ws.recognizer(model, single_word=True)
+        res = {}
+        for set_name, items in ((f"{voice}, other takes", rest), ("test (unseen voices)", test)):
+            hyps = _ws_parallel(rec, [feats[it.path] for it in items], n_jobs)
+            res[set_name] = _errors([it.words for it in items], hyps)
+        out.append((name, voice, len(first), secs, res))
+        log(f"one person ({voice}, {len(first)} takes): {name}: "
+            + ", ".join(f"{k} {100 * e / n:.1f}%" for k, (e, n) in res.items()))
+    return out
 
 
 def _round_ratio(speed: dict, name: str) -> float:
@@ -370,7 +423,8 @@ def _pct(e, n):
     return f"{100.0 * e / n:.1f}" if n else "-"
 
 
-def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow, gauss, prof, total) -> str:
+def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow, gauss, prof, total,
+           one_person=()) -> str:
     L = []
     L.append(f"# wordspot vs. do-it-yourself baselines{' (quick run)' if args.quick else ''}")
     L.append("")
@@ -392,8 +446,21 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
              "whole lexicon, new words included. The baselines cannot output words they have no "
              "recordings of, so every new-words file is one error for them. Training: wordspot with "
              f"{args.jobs} processes (its `jobs`), the hmmlearn baseline with one word per joblib worker "
-             f"({args.jobs} workers), DTW only stores (or picks) templates.")
+             f"({args.jobs} workers), DTW only stores (or picks) templates. `wordspot` is trained from "
+             f"scratch (`--from-scratch`); `{ADAPTED}` adapts the shipped starter model to the same "
+             "recordings (`wordspot train`'s default); its train time is the adaptation's.")
     L.append("")
+    if one_person:
+        name0, voice, n_first, _, res0 = one_person[0]
+        L.append(f"## One person's recordings ({voice}: {n_first} recordings, the first "
+                 f"{ONE_PERSON_TAKES} takes of each word)")
+        L.append("")
+        keys = list(res0)
+        L.append("| system | time (s) | " + " | ".join(f"WER {k}" for k in keys) + " |")
+        L.append("| --- | ---: |" + " ---: |" * len(keys))
+        for name, _, _, secs, res in one_person:
+            L.append(f"| {name} | {secs:.1f} | " + " | ".join(_pct(*res[k]) for k in keys) + " |")
+        L.append("")
     # goals
     goals = []
     by = {}

@@ -8,7 +8,7 @@ from typing import Sequence
 
 import numpy as np
 
-__all__ = ["train_wordspot", "recognizer", "growth_lexicons", "gaussian_scorer"]
+__all__ = ["train_wordspot", "adapt_wordspot", "recognizer", "growth_lexicons", "gaussian_scorer"]
 
 
 def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
@@ -23,6 +23,22 @@ def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
 
     model, _summary = train(list(utterances), read_lexicon(lexicon_path),
                             config=TrainingConfig(jobs=jobs), quiet=True)
+    return model
+
+
+def adapt_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, start: str = "starter"):
+    """Adapt the shipped starter model with wordspot's default settings (``AdaptationConfig``).
+
+    Returns
+    -------
+    model : wordspot.model.AcousticModel
+    """
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+    from wordspot.training.adapt import AdaptationConfig, adapt
+
+    model, _summary = adapt(list(utterances), read_lexicon(lexicon_path), load_model(start),
+                            config=AdaptationConfig(jobs=jobs), quiet=True)
     return model
 
 

@@ -43,6 +43,10 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--start", default="starter")
     ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--tau", type=float, nargs="+", default=[3.0, 10.0, 30.0, 100.0], help="prior weights to try")
+    ap.add_argument("--passes", type=int, nargs="+", default=[1, 2, 3], help="MAP passes to try")
+    ap.add_argument("--transform", choices=("both", "on", "off"), default="both",
+                    help="with and/or without the shared mean transform")
     ap.add_argument("--jobs", type=int, default=2)
     args = ap.parse_args(argv)
 
@@ -72,10 +76,10 @@ def main(argv=None) -> int:
         known = [u for u in dev if not set(u.words) & set(fold)]
         new = [u for u in dev if set(u.words) & set(fold)]
         out = {}
-        for mode, s in (("loop", loop), ("one", one)):
-            for name, part in (("known", known), ("new", new)):
-                ev = evaluate_utterances(model, part, name=name, settings=s, jobs=args.jobs, quiet=True)
-                out[f"{name}-{mode}"] = ev.result.wer
+        for name, part, mode, s in (("known", known, "loop", loop), ("new", new, "loop", loop),
+                                    ("new", new, "one", one)):
+            ev = evaluate_utterances(model, part, name=name, settings=s, jobs=args.jobs, quiet=True)
+            out[f"{name}-{mode}"] = ev.result.wer
         return out
 
     def as_model(mix, fold_items):
@@ -90,8 +94,8 @@ def main(argv=None) -> int:
         grid = [dict(prior_weight=t, passes=2, mean_transform=m) for t in (5.0, 20.0) for m in (True, False)]
     else:
         grid = [dict(prior_weight=t, passes=p, mean_transform=m)
-                for t, p, m in itertools.product((3.0, 10.0, 30.0, 100.0), (1, 2, 3), (True, False))]
-        grid += [dict(prior_weight=10.0, passes=2, mean_transform=True, update_variances=True)]
+                for t, p, m in itertools.product(args.tau, args.passes,
+                                                 {"both": (True, False), "on": (True,), "off": (False,)}[args.transform])]
     rows = []
     base = [score(replace(start, lexicon=lexicon), fold) for fold in FOLDS]
     rows.append(("starter alone", base, 0.0))

