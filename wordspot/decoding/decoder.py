@@ -258,7 +258,7 @@ class Recognizer:
         kernel : callable, optional
             :func:`wordspot.decoding.kernels.decode` (default) or its reference version.
         """
-        net, s = self.network, self.settings
+        net = self.network
         kernel = kernel or decode_kernels.decode
         ll = np.asarray(ll, dtype=np.float64)
         if ll.ndim != 2 or ll.shape[1] != net.used_mixtures.shape[0]:
