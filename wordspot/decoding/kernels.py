@@ -214,7 +214,12 @@ _STEP = dict(cache=True, nogil=True, inline="always")
 @numba.njit(**_STEP)
 def _step_move(t, cur, cur_meta, cur_act, n_cur, nxt, nxt_meta, nxt_act, n_nxt,
                self_logp, arc_first, arc_dst, arc_logp, tail):
-    """Step 1: every token of frame t-1 along its self-loop and arcs; returns ``n_nxt``."""
+    """Step 1: every token of frame t-1 along its self-loop and arcs; returns ``n_nxt``.
+
+    The two moves are written out alike on purpose: one shared helper that took the
+    phone-end frame as an argument (read before knowing whether the move wins) made the
+    kernel 2.4 times slower.
+    """
     for i in range(n_cur):
         s = cur_act[i]
         sc = cur[s]
