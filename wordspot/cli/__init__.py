@@ -1,9 +1,10 @@
 """The ``wordspot`` command line.
 
 Each subcommand lives in its own module in this package and exposes
-``add_parser(subparsers, **options)``, which registers the subcommand (passing ``options``,
-the one-line help and the global options, on to ``add_parser``) and sets ``func`` (a
-callable taking the parsed arguments and returning an exit status). Only the chosen
+``add_parser(subparsers, **options)``, which registers the subcommand (``options``, the
+one-line help and the parent parser of the global options, go on to
+``subparsers.add_parser``) and sets ``func`` (a callable taking the parsed arguments and
+returning an exit status). Only the chosen
 subcommand's module is imported, so ``wordspot recognize`` never loads the training stack
 and ``wordspot --help`` loads none. No maths lives here.
 """

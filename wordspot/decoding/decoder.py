@@ -241,6 +241,18 @@ class Recognizer:
             return result
         return self.search(self.emissions(frames), path=path, kernel=kernel)
 
+    def kernel_arguments(self, ll: np.ndarray) -> tuple:
+        """The arguments of :func:`wordspot.decoding.kernels.decode` for emissions ``ll``."""
+        net, s = self.network, self.settings
+        return (
+            np.ascontiguousarray(ll, dtype=np.float64),
+            net.mixture, net.self_logp, net.arc_first, net.arc_dst, net.arc_logp, net.end_logp,
+            net.tail, net.item, net.start_first, net.start_state, net.start_logp,
+            net.pron_word, net.word_first, net.word_pron, net.unigram, net.backoff,
+            net.pair_first, net.pair_next, net.pair_logp, net.single_word, net.allow_empty,
+            float(s.beam), float(s.word_end_beam), int(min(s.state_limit, np.iinfo(np.int64).max)),
+        )
+
     def search(self, ll: np.ndarray, *, path: str | None = None, kernel=None) -> Recognition:
         """Token passing given emission log-likelihoods.
 
@@ -251,7 +263,7 @@ class Recognizer:
         kernel : callable, optional
             :func:`wordspot.decoding.kernels.decode` (default) or its reference version.
         """
-        net, s = self.network, self.settings
+        net = self.network
         kernel = kernel or decode_kernels.decode
         ll = np.asarray(ll, dtype=np.float64)
         if ll.ndim != 2 or ll.shape[1] != net.used_mixtures.shape[0]:
@@ -260,14 +272,7 @@ class Recognizer:
         if ll.shape[0] < net.min_frames:
             result.reason = _too_short(ll.shape[0], self.hop, net.min_frames)
             return result
-        status, final, final_link, links, link_scores, _ = kernel(
-            np.ascontiguousarray(ll, dtype=np.float64),
-            net.mixture, net.self_logp, net.arc_first, net.arc_dst, net.arc_logp, net.end_logp,
-            net.tail, net.item, net.start_first, net.start_state, net.start_logp,
-            net.pron_word, net.word_first, net.word_pron, net.unigram, net.backoff,
-            net.pair_first, net.pair_next, net.pair_logp, net.single_word, net.allow_empty,
-            float(s.beam), float(s.word_end_beam), int(min(s.state_limit, np.iinfo(np.int64).max)),
-        )
+        status, final, final_link, links, link_scores, _ = kernel(*self.kernel_arguments(ll))
         if status != decode_kernels.OK:
             result.reason = (
                 f"{REASON_NO_PATH}: no path from the entry pause through a word to the exit "

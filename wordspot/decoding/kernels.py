@@ -204,6 +204,141 @@ def _prune_threshold(score, act, n_act, scratch, best, beam, state_limit):
     return thr
 
 
+# Steps of one frame, each a compiled function that numba inlines into `decode`
+# (``inline="always"``: one loop body for the compiler, as if written in one piece). The
+# same results as the loop written in one piece, at the same speed (within 1% on the demo
+# test files; see tests/benchmarks/bench_kernel_change.py).
+_STEP = dict(cache=True, nogil=True, inline="always")
+
+
+@numba.njit(**_STEP)
+def _step_move(t, cur, cur_meta, cur_act, n_cur, nxt, nxt_meta, nxt_act, n_nxt,
+               self_logp, arc_first, arc_dst, arc_logp, tail):
+    """Step 1: every token of frame t-1 along its self-loop and arcs; returns ``n_nxt``.
+
+    The two moves are written out alike on purpose: one shared helper that took the
+    phone-end frame as an argument (read before knowing whether the move wins) made the
+    kernel 2.4 times slower.
+    """
+    for i in range(n_cur):
+        s = cur_act[i]
+        sc = cur[s]
+        if self_logp[s] > _NEG:
+            cand = sc + self_logp[s]
+            if cand > nxt[s]:
+                if nxt[s] == _NEG:
+                    nxt_act[n_nxt] = s
+                    n_nxt += 1
+                nxt[s] = cand
+                nxt_meta[s, _LINK] = cur_meta[s, _LINK]
+                nxt_meta[s, _START] = cur_meta[s, _START]
+                nxt_meta[s, _PEND] = cur_meta[s, _PEND]
+        for e in range(arc_first[s], arc_first[s + 1]):
+            d = arc_dst[e]
+            cand = sc + arc_logp[e]
+            if cand > nxt[d]:
+                if nxt[d] == _NEG:
+                    nxt_act[n_nxt] = d
+                    n_nxt += 1
+                nxt[d] = cand
+                nxt_meta[d, _LINK] = cur_meta[s, _LINK]
+                nxt_meta[d, _START] = cur_meta[s, _START]
+                if tail[d] and not tail[s]:
+                    nxt_meta[d, _PEND] = t - 1
+                else:
+                    nxt_meta[d, _PEND] = cur_meta[s, _PEND]
+    return n_nxt
+
+
+@numba.njit(**_STEP)
+def _step_emit(ll, t, mixture, nxt, nxt_act, n_nxt, pend_state, pend_score, n_pend):
+    """Step 2: frame t's emission scores onto moved tokens and waiting entries; returns the best."""
+    best = _NEG
+    for i in range(n_nxt):
+        s = nxt_act[i]
+        nxt[s] += ll[t, mixture[s]]
+        if nxt[s] > best:
+            best = nxt[s]
+    for i in range(n_pend):
+        pend_score[i] += ll[t, mixture[pend_state[i]]]
+        if pend_score[i] > best:
+            best = pend_score[i]
+    return best
+
+
+@numba.njit(**_STEP)
+def _step_prune(t, nxt, nxt_meta, nxt_act, n_nxt, pend_state, pend_score, pend_link, n_pend,
+                scratch, best, beam, state_limit):
+    """Step 3: place the waiting entries that can survive, then prune; returns ``(n_nxt, thr)``.
+
+    Entries below the beam, or below the state_limit-th best of the moved tokens alone (a
+    lower bound of the final cut), could not survive: they are dropped before they are
+    ever placed.
+    """
+    thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, state_limit)
+    for i in range(n_pend):
+        s = pend_state[i]
+        cand = pend_score[i]
+        if cand >= thr and cand > nxt[s]:
+            if nxt[s] == _NEG:
+                nxt_act[n_nxt] = s
+                n_nxt += 1
+            nxt[s] = cand
+            nxt_meta[s, _LINK] = pend_link[i]
+            nxt_meta[s, _START] = t
+            nxt_meta[s, _PEND] = -1
+    thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, state_limit)
+    kept = 0
+    for i in range(n_nxt):
+        s = nxt_act[i]
+        if nxt[s] >= thr:
+            nxt_act[kept] = s
+            kept += 1
+        else:
+            nxt[s] = _NEG
+    return kept, thr
+
+
+@numba.njit(**_STEP)
+def _step_word_ends(cur, cur_act, n_cur, end_logp, item, pron_word, end_thr, end_score, end_state, ended):
+    """Step 4: the best end of each word (0: the entry pause) within the word-end beam;
+    returns how many words ended (listed in ``ended``)."""
+    n_ended = 0
+    for i in range(n_cur):
+        s = cur_act[i]
+        if end_logp[s] == _NEG:
+            continue
+        it = item[s]
+        if it == _EXIT:
+            continue
+        sc = cur[s] + end_logp[s]
+        if sc < end_thr:
+            continue
+        w = 0 if it == _ENTRY else pron_word[it - _FIRST]
+        if end_score[w] == _NEG:
+            ended[n_ended] = w
+            n_ended += 1
+        if sc > end_score[w]:
+            end_score[w] = sc
+            end_state[w] = s
+    return n_ended
+
+
+@numba.njit(**_STEP)
+def _step_final(cur, cur_meta, cur_act, n_cur, item, end_logp):
+    """After the last frame: the best token able to leave the exit pause, and its link."""
+    final = _NEG
+    final_link = -1
+    for i in range(n_cur):
+        s = cur_act[i]
+        if item[s] == _EXIT and end_logp[s] > _NEG:
+            sc = cur[s] + end_logp[s]
+            if sc > final:
+                final = sc
+                final_link = cur_meta[s, _LINK]
+    return final, final_link
+
+
 @numba.njit(cache=True, nogil=True)
 def decode(ll, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail, item,
            start_first, start_state, start_logp, pron_word, word_first, word_pron,
@@ -252,74 +387,15 @@ def decode(ll, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail,
         n_pend += 1
 
     for t in range(n_frames):
-        # 1. move the tokens of frame t-1 one step.
         if t > 0:
-            for i in range(n_cur):
-                s = cur_act[i]
-                sc = cur[s]
-                if self_logp[s] > _NEG:
-                    cand = sc + self_logp[s]
-                    if cand > nxt[s]:
-                        if nxt[s] == _NEG:
-                            nxt_act[n_nxt] = s
-                            n_nxt += 1
-                        nxt[s] = cand
-                        nxt_meta[s, _LINK] = cur_meta[s, _LINK]
-                        nxt_meta[s, _START] = cur_meta[s, _START]
-                        nxt_meta[s, _PEND] = cur_meta[s, _PEND]
-                for e in range(arc_first[s], arc_first[s + 1]):
-                    d = arc_dst[e]
-                    cand = sc + arc_logp[e]
-                    if cand > nxt[d]:
-                        if nxt[d] == _NEG:
-                            nxt_act[n_nxt] = d
-                            n_nxt += 1
-                        nxt[d] = cand
-                        nxt_meta[d, _LINK] = cur_meta[s, _LINK]
-                        nxt_meta[d, _START] = cur_meta[s, _START]
-                        if tail[d] and not tail[s]:
-                            nxt_meta[d, _PEND] = t - 1
-                        else:
-                            nxt_meta[d, _PEND] = cur_meta[s, _PEND]
-        # 2. emissions, for moved tokens and waiting entries.
-        best = _NEG
-        for i in range(n_nxt):
-            s = nxt_act[i]
-            nxt[s] += ll[t, mixture[s]]
-            if nxt[s] > best:
-                best = nxt[s]
-        for i in range(n_pend):
-            pend_score[i] += ll[t, mixture[pend_state[i]]]
-            if pend_score[i] > best:
-                best = pend_score[i]
+            n_nxt = _step_move(t, cur, cur_meta, cur_act, n_cur, nxt, nxt_meta, nxt_act, n_nxt,
+                               self_logp, arc_first, arc_dst, arc_logp, tail)
+        best = _step_emit(ll, t, mixture, nxt, nxt_act, n_nxt, pend_state, pend_score, n_pend)
         if best == _NEG:
             return NO_TOKENS, _NEG, -1, links_int[:n_links], links_score[:n_links], n_links
-        # 3. pruning. Entries below the beam, or below the state_limit-th best of the
-        # moved tokens alone (a lower bound of the final cut), could not survive: they
-        # are dropped before they are ever placed.
-        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, state_limit)
-        for i in range(n_pend):
-            s = pend_state[i]
-            cand = pend_score[i]
-            if cand >= thr and cand > nxt[s]:
-                if nxt[s] == _NEG:
-                    nxt_act[n_nxt] = s
-                    n_nxt += 1
-                nxt[s] = cand
-                nxt_meta[s, _LINK] = pend_link[i]
-                nxt_meta[s, _START] = t
-                nxt_meta[s, _PEND] = -1
+        n_nxt, thr = _step_prune(t, nxt, nxt_meta, nxt_act, n_nxt, pend_state, pend_score, pend_link, n_pend,
+                                 scratch, best, beam, state_limit)
         n_pend = 0
-        thr = _prune_threshold(nxt, nxt_act, n_nxt, scratch, best, beam, state_limit)
-        kept = 0
-        for i in range(n_nxt):
-            s = nxt_act[i]
-            if nxt[s] >= thr:
-                nxt_act[kept] = s
-                kept += 1
-            else:
-                nxt[s] = _NEG
-        n_nxt = kept
         # swap: frame t becomes current; clear what frame t-1 left behind.
         for i in range(n_cur):
             cur[cur_act[i]] = _NEG
@@ -330,28 +406,13 @@ def decode(ll, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail,
         n_nxt = 0
         if t == n_frames - 1:
             break
-        # 4. word ends.
-        n_ended = 0
-        end_thr = best - word_end_beam
-        for i in range(n_cur):
-            s = cur_act[i]
-            if end_logp[s] == _NEG:
-                continue
-            it = item[s]
-            if it == _EXIT:
-                continue
-            sc = cur[s] + end_logp[s]
-            if sc < end_thr:
-                continue
-            w = 0 if it == _ENTRY else pron_word[it - _FIRST]
-            if end_score[w] == _NEG:
-                ended[n_ended] = w
-                n_ended += 1
-            if sc > end_score[w]:
-                end_score[w] = sc
-                end_state[w] = s
+        n_ended = _step_word_ends(cur, cur_act, n_cur, end_logp, item, pron_word, best - word_end_beam,
+                                  end_score, end_state, ended)
         if n_ended == 0:
             continue
+        # 4b and 5 stay written out here: as inlined steps of their own (links, grammar,
+        # entries) they made the kernel 2% slower on the demo test files.
+        # 4b. one word link per word end.
         for j in range(n_ended):
             w = ended[j]
             s = end_state[w]
@@ -438,15 +499,7 @@ def decode(ll, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, tail,
                     pend_link[n_pend] = enter_from[w]
                     n_pend += 1
 
-    final = _NEG
-    final_link = -1
-    for i in range(n_cur):
-        s = cur_act[i]
-        if item[s] == _EXIT and end_logp[s] > _NEG:
-            sc = cur[s] + end_logp[s]
-            if sc > final:
-                final = sc
-                final_link = cur_meta[s, _LINK]
+    final, final_link = _step_final(cur, cur_meta, cur_act, n_cur, item, end_logp)
     status = OK if final > _NEG else NO_EXIT
     return status, final, final_link, links_int[:n_links], links_score[:n_links], n_links
 
