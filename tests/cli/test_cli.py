@@ -109,31 +109,30 @@ def test_recognize_missing_audio_continues(setup, capsys):
     assert str(good) in out  # the batch went on to the next file
 
 
-def test_train_missing_words_listed_before_work(setup, capsys):
+def _train(setup, capsys, transcripts, *options):
+    """``wordspot train`` on the setup's good file with these transcripts and a one-word lexicon."""
     folder, _, good, _ = setup
     lex = folder / "lex.txt"
     lex.write_text("oven AA B AA\n", encoding="utf-8")
     manifest = folder / "train.csv"
-    manifest.write_text(f"path,transcript,speaker\n{good},oven knead,a\n{good},bagel,a\n", encoding="utf-8")
-    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"),
-                                   "--from-scratch"])
+    manifest.write_text("path,transcript,speaker\n" + "".join(f"{good},{t},a\n" for t in transcripts),
+                        encoding="utf-8")
+    return _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"), *options])
+
+
+def test_train_missing_words_listed_before_work(setup, capsys):
+    folder = setup[0]
+    status, _, err = _train(setup, capsys, ["oven knead", "bagel"], "--from-scratch")
     assert status == 2 and _one_line_error(err)
     assert "knead" in err and "bagel" in err
     assert not (folder / "m.model").exists()
 
 
 def test_train_options_of_full_training_need_from_scratch(setup, capsys):
-    folder, _, good, _ = setup
-    lex = folder / "lex.txt"
-    lex.write_text("oven AA B AA\n", encoding="utf-8")
-    manifest = folder / "train.csv"
-    manifest.write_text(f"path,transcript,speaker\n{good},oven,a\n", encoding="utf-8")
-    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"),
-                                   "--mixtures", "4", "--speed", "1.0"])
+    status, _, err = _train(setup, capsys, ["oven"], "--mixtures", "4", "--speed", "1.0")
     assert status == 2 and _one_line_error(err)
     assert "--mixtures, --speed only apply with --from-scratch" in err
-    status, _, err = _run(capsys, ["train", str(manifest), "--lexicon", str(lex), "--out", str(folder / "m.model"),
-                                   "--from-scratch", "--start", "starter"])
+    status, _, err = _train(setup, capsys, ["oven"], "--from-scratch", "--start", "starter")
     assert status == 2 and "exclude each other" in err
 
 
