@@ -28,14 +28,11 @@ processes gives exactly the same model as a serial run.
 from __future__ import annotations
 
 import datetime as _dt
-import tempfile
 import time
 import warnings
 from dataclasses import dataclass, field, replace
-from pathlib import Path
 
 import numpy as np
-from joblib import Parallel, delayed
 
 from wordspot import __version__
 from wordspot.acoustic import kernels
@@ -55,6 +52,7 @@ from wordspot.language.grammar import count_bigrams
 from wordspot.acoustic.hmm import Posteriors, graph_arrays
 from wordspot.model import AcousticModel
 from wordspot.util.progress import ProgressBar
+from wordspot.training.cluster import open_executor, using
 from wordspot.training.data import prepare_items
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
@@ -97,7 +95,15 @@ class TrainingConfig:
         Initialise the pause states from this much audio at each end of every
         recording (0: plain flat start).
     jobs : int >= 1
-        Processes for feature extraction and re-estimation.
+        Processes for feature extraction and re-estimation (ignored with ``cluster``).
+    cluster : str, optional
+        Run feature extraction and every pass on the workers of this running Dask
+        scheduler: its address (``tcp://host:8786``) or its scheduler file (see
+        :mod:`wordspot.training.cluster`; needs ``pip install "wordspot[cluster]"``).
+        The model is bit-identical to a serial run's.
+    shared_dir : str, optional
+        With ``cluster``: a folder every worker sees at the same path, for the frames
+        files (default: this machine's temporary folder, enough for local workers).
     seed : int
         Seeds the direction (sign per dimension) of the mean offsets when splitting.
     prune : float >= 0
@@ -131,6 +137,8 @@ class TrainingConfig:
     transition_floor: float = 1e-3
     pause_seconds: float = 0.15
     jobs: int = 1
+    cluster: str | None = None
+    shared_dir: str | None = None
     seed: int = 0
     prune: float = 1e-4
     warp_factors: tuple[float, ...] = (1.0,)
@@ -155,6 +163,8 @@ class TrainingConfig:
         if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
         self.noise  # validates noise_copies and noise_snr_db
+        if self.cluster is not None and not str(self.cluster).strip():
+            raise TrainingError("cluster must be a Dask scheduler address (tcp://host:8786) or scheduler file")
 
     @property
     def noise(self) -> NoiseSettings:
@@ -292,12 +302,9 @@ def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _Pa
     return result
 
 
-def _run_pass(chunks, mix, units, parallel, label, quiet, prune) -> _PassResult:
+def _run_pass(chunks, mix, units, executor, label, quiet, prune) -> _PassResult:
     bar = ProgressBar(sum(len(c) for c in chunks), label, quiet=quiet)
-    if parallel is None:
-        gen = (_chunk_pass(c, mix, units, prune) for c in chunks)
-    else:
-        gen = parallel(delayed(_chunk_pass)(c, mix, units, prune) for c in chunks)
+    gen = executor.map(_chunk_pass, [(c,) for c in chunks], common=(mix, units, prune), label=label)
     total = None
     lls = []
     for part in gen:  # in chunk order, whatever the number of processes
@@ -354,7 +361,8 @@ def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
 
 
 def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
-                config: TrainingConfig = TrainingConfig(), quiet: bool = True, report=None):
+                config: TrainingConfig = TrainingConfig(), quiet: bool = True, report=None,
+                executor=None):
     """Train mixtures and transitions on prepared utterances.
 
     Parameters
@@ -369,6 +377,8 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
         No progress bars.
     report : callable, optional
         Called with one line of text per pass.
+    executor : wordspot.training.cluster.Executor, optional
+        Where the passes run (default: one made for ``config.jobs``).
 
     Returns
     -------
@@ -384,35 +394,15 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
     # Same transcripts next to each other, so a chunk composes and refreshes each graph
     # once; the order is fixed by the data alone (stable sort), never by ``jobs``.
     items = sorted(items, key=lambda it: it.words)
-    if config.jobs == 1:
-        return _train_loop(items, units, frame_rate, config, quiet, report)
-    # Worker processes read the frames from one memory-mapped file instead of receiving
-    # copies every pass (joblib passes slices of a memory map by reference).
-    with tempfile.TemporaryDirectory(prefix="wordspot-train-") as folder:
-        return _train_loop(_shared_frames(items, Path(folder) / "frames.npy"), units, frame_rate,
-                           config, quiet, report)
+    with using(executor, config.jobs, config.cluster, config.shared_dir) as ex:
+        # Workers read the frames from memory-mapped files instead of receiving copies
+        # every pass (a task sends a view of such a file as its name and rows).
+        frames = ex.keep_on_disk([it.frames for it in items])
+        return _train_loop([replace(it, frames=f) for it, f in zip(items, frames)], units, frame_rate,
+                           config, quiet, report, ex)
 
 
-def _shared_frames(items: list[TrainingItem], path: Path) -> list[TrainingItem]:
-    """The same items with their frames as slices of one memory-mapped file at ``path``."""
-    total = sum(it.frames.shape[0] for it in items)
-    big = np.lib.format.open_memmap(path, mode="w+", dtype=np.float32, shape=(total, items[0].frames.shape[1]))
-    start = 0
-    for it in items:
-        big[start:start + it.frames.shape[0]] = it.frames
-        start += it.frames.shape[0]
-    big.flush()
-    del big
-    shared = np.load(path, mmap_mode="r")
-    out, start = [], 0
-    for it in items:
-        n = it.frames.shape[0]
-        out.append(replace(it, frames=shared[start:start + n]))
-        start += n
-    return out
-
-
-def _train_loop(items, units, frame_rate, config, quiet, report):
+def _train_loop(items, units, frame_rate, config, quiet, report, executor):
     """The passes of :func:`train_items` (items sorted, frames wherever they live)."""
     rng = np.random.default_rng(config.seed)
     mix, global_var = flat_start(items, units, frame_rate=frame_rate, pause_seconds=config.pause_seconds)
@@ -421,7 +411,6 @@ def _train_loop(items, units, frame_rate, config, quiet, report):
     dropped: list[Skipped] = []
     updated = np.ones(mix.n_pdfs, dtype=bool)
     last = None
-    parallel = Parallel(n_jobs=config.jobs, backend="loky", return_as="generator") if config.jobs > 1 else None
     n_pass = 0
     for stage, n_comp in enumerate(config.mixtures):
         if stage > 0:
@@ -433,7 +422,7 @@ def _train_loop(items, units, frame_rate, config, quiet, report):
             chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]]
                       for i in range(0, len(items), CHUNK_SIZE)]
             label = f"pass {n_pass}/{config.total_passes} ({n_comp} mix)"
-            res = _run_pass(chunks, mix, units, parallel, label, quiet, config.prune)
+            res = _run_pass(chunks, mix, units, executor, label, quiet, config.prune)
             bad = ~np.isfinite(res.loglik)
             if bad.any():
                 for k in np.flatnonzero(bad):
@@ -504,16 +493,18 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         raise TrainingError(f"{manifest or 'manifest'}: lists no recordings to train on")
     check_manifest(utterances, lexicon, manifest=manifest)
     units = default_unit_set(sorted(lexicon.units_used()))
-    items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
-                                   warps=config.warp_factors, speeds=config.speed_factors,
-                                   noise=config.noise, seed=config.seed)
-    if not items:
-        raise TrainingError(
-            f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
-            "(see the warnings above); fix or replace the files and train again"
-        )
-    units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate,
-                                               config=config, quiet=quiet, report=report)
+    with open_executor(config.jobs, config.cluster, config.shared_dir,
+                       check_paths=[utterances[0].path]) as executor:
+        items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
+                                       warps=config.warp_factors, speeds=config.speed_factors,
+                                       noise=config.noise, seed=config.seed, executor=executor)
+        if not items:
+            raise TrainingError(
+                f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
+                "(see the warnings above); fix or replace the files and train again"
+            )
+        units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate, config=config,
+                                                   quiet=quiet, report=report, executor=executor)
     summary.skipped = skipped + dropped
     if summary.unseen_units:
         warnings.warn(
