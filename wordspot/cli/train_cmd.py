@@ -20,6 +20,8 @@ examples (a bakery: bakers with dough on their hands call out commands):
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --jobs 2
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --noise-copies 3
   wordspot train phone-takes/train.csv --lexicon lexicon/bakery.txt --out phone.model --sample-rate 8000
+  wordspot train /mnt/takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model \
+      --cluster tcp://oven-room:8786 --shared-dir /mnt/takes/scratch
 
 The manifest is a CSV file with columns path,transcript,speaker (paths relative to the
 manifest's folder), for example:
@@ -83,6 +85,13 @@ def add_parser(sub):
                    "at the first stage)")
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
+    p.add_argument("--cluster", metavar="ADDRESS", default=None,
+                   help="run the work on the workers of a running Dask scheduler: its address "
+                   "(tcp://host:8786) or the file `dask scheduler --scheduler-file FILE` wrote; "
+                   'the model is the same as without (needs pip install "wordspot[cluster]")')
+    p.add_argument("--shared-dir", metavar="DIR", default=None,
+                   help="with --cluster: a folder every worker sees at the same path, for the "
+                   "features (default: this machine's temporary folder, enough for local workers)")
     p.add_argument("--seed", type=int, default=0, metavar="N", help="seed for mixture splitting (default 0)")
     p.add_argument("--noise-copies", type=_count, default=TrainingConfig.noise_copies, metavar="N",
                    help="noisy copies of every recording (babble or machine noise made from the "
@@ -111,7 +120,8 @@ def _run(args) -> int:
         extra = {"passes_per_split": args.passes, "first_passes": args.passes + 2}
     config = TrainingConfig(mixtures=mixture_schedule(args.mixtures), jobs=args.jobs, seed=args.seed,
                             noise_copies=args.noise_copies, noise_snr_db=tuple(args.noise_snr),
-                            speed_factors=tuple(args.speed), **extra)
+                            speed_factors=tuple(args.speed), cluster=args.cluster,
+                            shared_dir=args.shared_dir, **extra)
     lexicon = read_lexicon(args.lexicon)
     utterances = read_manifest(args.manifest)
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))

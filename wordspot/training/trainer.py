@@ -165,6 +165,8 @@ class TrainingConfig:
         self.noise  # validates noise_copies and noise_snr_db
         if self.cluster is not None and not str(self.cluster).strip():
             raise TrainingError("cluster must be a Dask scheduler address (tcp://host:8786) or scheduler file")
+        if self.shared_dir is not None and self.cluster is None:
+            raise TrainingError("shared_dir only applies with cluster (the workers' shared folder)")
 
     @property
     def noise(self) -> NoiseSettings:
