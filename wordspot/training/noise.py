@@ -172,5 +172,8 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
             bar.update(len(part))
         bar.close()
         feats = ex.settle(feats)
-    return [TrainingItem(items[p.index].path, items[p.index].words, np.ascontiguousarray(f), items[p.index].graph)
-            for p, f in zip(plans, feats)]
+    out: list[TrainingItem] = []
+    for recipe, f in zip(plans, feats):
+        it = items[recipe.index]
+        out.append(TrainingItem(it.path, it.words, np.ascontiguousarray(f), it.graph))
+    return out

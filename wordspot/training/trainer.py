@@ -231,6 +231,7 @@ class _PassResult:
     trans_counts: np.ndarray
     loglik: np.ndarray  # per utterance (-inf: no path)
     unit_frames: np.ndarray
+    rows: np.ndarray | None = None  # ``stats`` holds these mixtures only (the others are zero)
 
 
 class _GraphCache:
@@ -301,6 +302,11 @@ def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _Pa
         post = Posteriors(0.0, np.zeros((0, 0)), cache.self_count, cache.arc_count,
                           cache.init_count, cache.final_count)
         result.trans_counts += parameter_counts(cache.graph, post, n_params)
+    # Only the mixtures of this chunk's chains go back (the others hold zeros), so a result
+    # stays small between processes; adding zeros changes no bit of the totals.
+    result.rows = np.unique(np.concatenate([cache.pdfs for cache in caches.values()]))
+    s = result.stats
+    result.stats = MixtureStats(s.occupancy[result.rows], s.first[result.rows], s.second[result.rows])
     return result
 
 
@@ -311,11 +317,12 @@ def _run_pass(chunks, mix, units, executor, label, quiet, prune) -> _PassResult:
     lls = []
     for part in gen:  # in chunk order, whatever the number of processes
         if total is None:
-            total = part
-        else:
-            total.stats.add(part.stats)
-            total.trans_counts += part.trans_counts
-            total.unit_frames += part.unit_frames
+            total = _PassResult(MixtureStats.zeros(mix.n_pdfs, mix.n_components, mix.dim),
+                                np.zeros_like(part.trans_counts), None, np.zeros_like(part.unit_frames))
+        for name in ("occupancy", "first", "second"):
+            getattr(total.stats, name)[part.rows] += getattr(part.stats, name)
+        total.trans_counts += part.trans_counts
+        total.unit_frames += part.unit_frames
         lls.append(part.loglik)
         bar.update(len(part.loglik))
     bar.close()
