@@ -372,37 +372,57 @@ class DaskExecutor(Executor):
         token = uuid.uuid4().hex[:8]
         name = func.__name__.strip("_")
         shared = [client.scatter([_walk(c, _absolute)], broadcast=True, hash=False)[0] for c in common]
+
         def outgoing(value):  # frames as file rows, paths absolute
             return self._files.locate(_absolute(value))
 
-        futures = [client.submit(_run_task, func, _walk(task, outgoing), *shared,
-                                 key=f"wordspot-{name}-{token}-{k}", pure=False)
-                   for k, task in enumerate(tasks)]
+        sent = [_walk(task, outgoing) for task in tasks]
+        keys = [f"wordspot-{name}-{token}-{k}" for k in range(len(sent))]
+        futures = client.map(_run_task, [func] * len(sent), sent, *[[f] * len(sent) for f in shared],
+                             key=keys, pure=False)
         return self._in_order(futures, frames, label)
 
     def _in_order(self, futures, frames, label):
+        """Results as they finish, handed on in task order (frames written on arrival)."""
         writer = self._files.writer() if frames else None
         n = len(futures)
+        index = {f.key: k for k, f in enumerate(futures)}
+        ready: dict[int, object] = {}
+        done = 0
         try:
-            for k in range(n):
-                try:
-                    result = futures[k].result()
-                except self._distributed.KilledWorker as exc:
-                    raise TrainingError(
-                        f"{label}: part {k + 1} of {n} was given up after the workers running it died "
-                        f"({exc}); see the workers' logs (a worker out of memory?) and train again"
-                    ) from None
-                except concurrent.futures.CancelledError:
-                    raise TrainingError(f"{label}: part {k + 1} of {n} was lost with the connection to the "
-                                        f"Dask scheduler at {self.address}; train again") from None
+            for fut, result in self._distributed.as_completed(futures, loop=self.client.loop, with_results=True,
+                                                              raise_errors=False):
+                k = index[fut.key]
+                if fut.status != "finished":
+                    self._fail(fut, k, n, label)
                 futures[k] = None  # its result is taken: nothing can count it again
-                yield _walk(result, writer.add) if frames else result
+                ready[k] = _walk(result, writer.add) if frames else result
+                while done in ready:
+                    yield ready.pop(done)
+                    done += 1
+            if done != n:
+                raise TrainingError(f"{label}: only {done} of {n} parts came back from the Dask workers; "
+                                    "train again")
         finally:
             if writer is not None:
                 writer.close()
             left = [f for f in futures if f is not None]
             if left and self.client.status == "running":
                 self.client.cancel(left)
+
+    def _fail(self, fut, k: int, n: int, label: str):
+        """Raise the error of a task that did not finish, in words."""
+        try:
+            fut.result()
+        except self._distributed.KilledWorker as exc:
+            raise TrainingError(
+                f"{label}: part {k + 1} of {n} was given up after the workers running it died "
+                f"({exc}); see the workers' logs (a worker out of memory?) and train again"
+            ) from None
+        except concurrent.futures.CancelledError:
+            raise TrainingError(f"{label}: part {k + 1} of {n} was lost with the connection to the "
+                                f"Dask scheduler at {self.address}; train again") from None
+        raise TrainingError(f"{label}: part {k + 1} of {n} ended as {fut.status!r} on the Dask workers")
 
     def settle(self, results):
         return _walk(results, self._files.view)
