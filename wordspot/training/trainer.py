@@ -354,16 +354,36 @@ def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
     mix = single_gaussian(units.n_pdfs, mean, var)
     edge = int(round(pause_seconds * frame_rate))
     if edge > 0 and PAUSE_UNIT in units:
-        ends = [np.concatenate([it.frames[:edge], it.frames[-edge:]]).astype(np.float64)
-                for it in items if it.frames.shape[0] >= 3 * edge]
-        if ends:
-            e = np.concatenate(ends)
-            pau_var = np.maximum(e.var(axis=0), 0.01 * var)
+        used = [it.frames for it in items if it.frames.shape[0] >= 3 * edge]
+        if used:
+            # Mean and variance of all end frames, read recording by recording (the client's
+            # memory does not grow with the corpus), with the bits of numpy's mean and var.
+            n = 2 * edge * len(used)
+            end_mean = _running_sum(_end_frames(f, edge) for f in used) / n
+            end_var = _running_sum(np.square(_end_frames(f, edge) - end_mean) for f in used) / n
+            pau_var = np.maximum(end_var, 0.01 * var)
             pdfs = units.state_pdf[units.index(PAUSE_UNIT)]
             pdfs = pdfs[pdfs >= 0]
-            mix.means[pdfs, 0] = e.mean(axis=0)
+            mix.means[pdfs, 0] = end_mean
             mix.variances[pdfs, 0] = pau_var
     return mix, var
+
+
+def _end_frames(frames: np.ndarray, edge: int) -> np.ndarray:
+    return np.concatenate([frames[:edge], frames[-edge:]]).astype(np.float64)
+
+
+def _running_sum(blocks) -> np.ndarray:
+    """Column sums of the blocks' rows, added one row after the other in block order.
+
+    numpy sums a C-ordered array over axis 0 row after row too, so this gives the bits of
+    ``np.concatenate(blocks).sum(axis=0)`` without the concatenated array (checked in
+    ``tests/training/test_trainer.py``).
+    """
+    total = None
+    for b in blocks:
+        total = np.add.reduce(b if total is None else np.concatenate([total[None], b]), axis=0)
+    return total
 
 
 # ------------------------------------------------------------------ the loop
