@@ -197,9 +197,9 @@ def test_shared_dir_must_exist(cluster, tmp_path):
 
 
 def test_config_checks_cluster_options():
-    with pytest.raises(TrainingError, match="cluster must be a Dask scheduler address"):
+    with pytest.raises(TrainingError, match=r"cluster \(--cluster\) must be a Dask scheduler address"):
         TrainingConfig(cluster=" ")
-    with pytest.raises(TrainingError, match="shared_dir only applies with cluster"):
+    with pytest.raises(TrainingError, match=r"shared_dir \(--shared-dir\) only applies with cluster"):
         TrainingConfig(shared_dir="/tmp")
 
 

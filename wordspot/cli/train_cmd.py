@@ -20,7 +20,7 @@ examples (a bakery: bakers with dough on their hands call out commands):
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --jobs 2
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --noise-copies 3
   wordspot train phone-takes/train.csv --lexicon lexicon/bakery.txt --out phone.model --sample-rate 8000
-  wordspot train /mnt/takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model \
+  wordspot train /mnt/takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model \\
       --cluster tcp://oven-room:8786 --shared-dir /mnt/takes/scratch
 
 The manifest is a CSV file with columns path,transcript,speaker (paths relative to the

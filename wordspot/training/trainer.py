@@ -164,9 +164,10 @@ class TrainingConfig:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
         self.noise  # validates noise_copies and noise_snr_db
         if self.cluster is not None and not str(self.cluster).strip():
-            raise TrainingError("cluster must be a Dask scheduler address (tcp://host:8786) or scheduler file")
+            raise TrainingError("cluster (--cluster) must be a Dask scheduler address (tcp://host:8786) "
+                                "or scheduler file")
         if self.shared_dir is not None and self.cluster is None:
-            raise TrainingError("shared_dir only applies with cluster (the workers' shared folder)")
+            raise TrainingError("shared_dir (--shared-dir) only applies with cluster (--cluster)")
 
     @property
     def noise(self) -> NoiseSettings:
