@@ -6,6 +6,7 @@ by the tests themselves.
 
 import os
 import pickle
+import re
 import subprocess
 import sys
 import warnings
@@ -178,6 +179,16 @@ def test_unreachable_scheduler_is_one_line(corpus, capsys):
     assert status == 2
     assert err.startswith("wordspot: error: could not reach the Dask scheduler at tcp://127.0.0.1:9")
     assert "dask scheduler" in err and err.count("\n") == 1
+
+
+def test_scheduler_without_workers_is_one_line():
+    import dask
+
+    with dask.config.set({"distributed.comm.timeouts.connect": "1s"}):
+        with distributed.LocalCluster(n_workers=0, processes=False, dashboard_address=":0") as empty:
+            address = empty.scheduler_address
+            with pytest.raises(TrainingError, match=re.escape(f"has no workers; start some with `dask worker {address}`")):
+                DaskExecutor(address)
 
 
 def test_missing_dask_names_the_extra(corpus, monkeypatch):

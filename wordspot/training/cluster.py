@@ -334,8 +334,9 @@ class DaskExecutor(Executor):
         self._distributed = distributed
         self.address = os.fspath(address)
         wait = dask.config.get("distributed.comm.timeouts.connect")
+        from_file = Path(self.address).is_file()
         try:
-            if Path(self.address).is_file():
+            if from_file:
                 self.client = distributed.Client(scheduler_file=self.address, set_as_default=False)
             else:
                 self.client = distributed.Client(self.address, set_as_default=False)
@@ -349,8 +350,9 @@ class DaskExecutor(Executor):
             self.client.wait_for_workers(1, timeout=wait)
         except (TimeoutError, OSError):
             self.client.close()
+            start = f"--scheduler-file {self.address}" if from_file else self.address
             raise TrainingError(f"the Dask scheduler at {self.address} has no workers; start some with "
-                                f"`dask worker {self.address}`") from None
+                                f"`dask worker {start}`") from None
         try:
             folder = Path(tempfile.mkdtemp(prefix="wordspot-cluster-", dir=shared_dir))
         except OSError as exc:
