@@ -195,3 +195,17 @@ def test_speed_factors_add_copies(tmp_path, rng):
     check_probabilities(model)
     with pytest.raises(TrainingError, match="speed_factors must be"):
         TrainingConfig(speed_factors=(0.9, 0.9))
+
+
+def test_running_sum_has_the_bits_of_numpy_mean_and_var(rng):
+    # flat_start reads the pause frames recording by recording; its mean and variance must be
+    # numpy's own (np.mean / np.var over the stacked frames) to the last bit, so that models
+    # do not depend on how the frames are read.
+    from wordspot.training.trainer import _running_sum
+
+    blocks = [rng.normal(size=(30, 39)) * rng.uniform(0.1, 100) for _ in range(500)]
+    stacked = np.concatenate(blocks)
+    mean = _running_sum(blocks) / stacked.shape[0]
+    var = _running_sum(np.square(b - mean) for b in blocks) / stacked.shape[0]
+    np.testing.assert_array_equal(mean, stacked.mean(axis=0))
+    np.testing.assert_array_equal(var, stacked.var(axis=0))

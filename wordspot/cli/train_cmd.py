@@ -25,6 +25,9 @@ examples (a bakery: bakers with dough on their hands call out commands):
       adapt a model you made earlier to new takes
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --from-scratch --jobs 2
       learn every phone from your takes alone (minutes; needs many varied recordings)
+  wordspot train /mnt/takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --from-scratch \\
+      --cluster tcp://oven-room:8786 --shared-dir /mnt/takes/scratch
+      train from scratch on the workers of a Dask scheduler (a folder they all see)
 
 The manifest is a CSV file with columns path,transcript,speaker (paths relative to the
 manifest's folder), for example:
@@ -116,6 +119,13 @@ def add_parser(sub, **options):
                       f"(default {' '.join(f'{f:g}' for f in TrainingConfig.speed_factors)})")
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
+    full.add_argument("--cluster", metavar="ADDRESS", default=None,
+                      help="run the work on the workers of a running Dask scheduler: its address "
+                      "(tcp://host:8786) or the file `dask scheduler --scheduler-file FILE` wrote; "
+                      'the model is the same as without (needs pip install "wordspot[cluster]")')
+    full.add_argument("--shared-dir", metavar="DIR", default=None,
+                      help="with --cluster: a folder every worker sees at the same path, for the "
+                      "features (default: this machine's temporary folder, enough for local workers)")
     p.add_argument("--sample-rate", type=int, default=None, metavar="HZ",
                    help="model sample rate: 16000 (default) or 8000 for telephone recordings; when "
                    "adapting it must match the starting model's")
@@ -123,7 +133,7 @@ def add_parser(sub, **options):
     return p
 
 
-_SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "speed")
+_SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "speed", "cluster", "shared_dir")
 
 
 def _run(args) -> int:
@@ -161,7 +171,8 @@ def _scratch(args, lexicon, utterances, say):
         seed=args.seed if args.seed is not None else defaults.seed,
         noise_copies=args.noise_copies if args.noise_copies is not None else defaults.noise_copies,
         noise_snr_db=tuple(args.noise_snr) if args.noise_snr else defaults.noise_snr_db,
-        speed_factors=tuple(args.speed) if args.speed else defaults.speed_factors, **extra)
+        speed_factors=tuple(args.speed) if args.speed else defaults.speed_factors,
+        cluster=args.cluster, shared_dir=args.shared_dir, **extra)
     model, summary = train(utterances, lexicon, settings=settings, config=config,
                            manifest=args.manifest, quiet=args.quiet, report=say)
     return model, summary, f"{config.mixtures[-1]} Gaussians a state, from scratch"

@@ -23,13 +23,13 @@ from pathlib import Path
 
 import numpy as np
 import soxr
-from joblib import Parallel, delayed
 
 from wordspot.errors import AudioError, FeatureError, TrainingWarning
 from wordspot.audio.reading import load_audio
 from wordspot.audio.features import FeatureSettings, compute_features, file_features
 from wordspot.acoustic.graph import StateGraph, compose
 from wordspot.util.progress import ProgressBar
+from wordspot.training.cluster import using
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.training.noise import noisy_items
 from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, UnitSet
@@ -82,9 +82,13 @@ def _features_task(paths, settings, warp=1.0, speed=1.0):
 
 
 def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True,
-                     warp: float = 1.0, speed: float = 1.0):
+                     warp: float = 1.0, speed: float = 1.0, executor=None):
     """Features of every file (frequency axis warped by ``warp``, played ``speed`` times
     faster), or the error that stopped it.
+
+    ``executor`` (a :class:`wordspot.training.cluster.Executor`) runs the work; by
+    default, one for ``jobs`` local processes. A cluster's executor hands the features
+    back as memory-mapped views of files in its shared folder.
 
     Returns
     -------
@@ -96,26 +100,22 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
     chunks = [paths[i:i + CHUNK_SIZE] for i in range(0, len(paths), CHUNK_SIZE)]
     bar = ProgressBar(len(paths), "features", quiet=quiet)
     results = []
-    if jobs == 1:
-        gen = (_features_task(c, settings, warp, speed) for c in chunks)
-    else:
-        gen = Parallel(n_jobs=jobs, backend="loky", return_as="generator")(
-            delayed(_features_task)(c, settings, warp, speed) for c in chunks
-        )
-    for part in gen:
-        for feats, error, notes in part:
-            for category, message in notes:
-                warnings.warn(message, category, stacklevel=2)
-            results.append((feats, error))
-        bar.update(len(part))
-    bar.close()
-    return results
+    with using(executor, jobs) as ex:
+        for part in ex.map(_features_task, [(c,) for c in chunks], common=(settings, warp, speed),
+                           frames=True, label="features"):
+            for feats, error, notes in part:
+                for category, message in notes:
+                    warnings.warn(message, category, stacklevel=2)
+                results.append((feats, error))
+            bar.update(len(part))
+        bar.close()
+        return ex.settle(results)
 
 
 def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
                   jobs: int = 1, quiet: bool = True,
                   warps=(1.0,), speeds=(1.0,), noise=None,
-                  seed: int = 0) -> tuple[list[TrainingItem], list[Skipped]]:
+                  seed: int = 0, executor=None) -> tuple[list[TrainingItem], list[Skipped]]:
     """Load features and build chains; skip (with a warning) what cannot be used.
 
     ``warps``: frequency warp factors; each utterance gives one item per factor (the
@@ -130,6 +130,8 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
     recording (unwarped, drawn with ``seed``; see :mod:`wordspot.training.noise`) come
     after all other items.
 
+    ``executor``: where the work runs (see :func:`extract_features`).
+
     Returns
     -------
     items : list of TrainingItem
@@ -141,7 +143,7 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
     variants = [(float(w), 1.0) for w in warps] + [(1.0, float(s)) for s in speeds if float(s) != 1.0]
     for k, (warp, speed) in enumerate(variants):
         features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
-                                    warp=warp, speed=speed)
+                                    warp=warp, speed=speed, executor=executor)
         if k == 0:
             _collect(utterances, features, lexicon, units, graphs, items, skipped)
         else:
@@ -155,7 +157,7 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
         speaker = {u.path: u.speaker for u in utterances}
         base = items[:n_plain]
         items += noisy_items(base, [speaker[it.path] for it in base], noise, settings,
-                             seed=seed, jobs=jobs, quiet=quiet)
+                             seed=seed, jobs=jobs, quiet=quiet, executor=executor)
     return items, skipped
 
 

@@ -21,12 +21,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from joblib import Parallel, delayed
 
 from wordspot.audio.reading import load_audio
 from wordspot.audio.augment import NoiseSettings, babble, fit_length, mean_power, mix_at_snr, speech_span, steady_noise
 from wordspot.audio.features import FeatureSettings, compute_features
 from wordspot.util.progress import ProgressBar
+from wordspot.training.cluster import using
 from wordspot.training.items import CHUNK_SIZE, TrainingItem
 
 __all__ = ["POOL_PER_SPEAKER", "CopyRecipe", "babble_pool", "babble_streams", "plan_copies", "noisy_items"]
@@ -121,7 +121,7 @@ def _copy_features(wave: np.ndarray, recipe: CopyRecipe, pool: dict, settings: F
     return compute_features(mix_at_snr(wave, fit_length(noise, n, rng), recipe.snr_db, span=span), settings)
 
 
-def _chunk_task(paths, recipes, pool, settings):
+def _chunk_task(recipes, paths, pool, settings):
     out = []
     cache: dict = {}
     for recipe in recipes:
@@ -133,7 +133,7 @@ def _chunk_task(paths, recipes, pool, settings):
 
 
 def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, settings: FeatureSettings, *,
-                seed: int = 0, jobs: int = 1, quiet: bool = True) -> list[TrainingItem]:
+                seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None) -> list[TrainingItem]:
     """Noisy copies of prepared training items.
 
     Parameters
@@ -147,6 +147,8 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     seed : int
         The training seed; the copies depend only on it and the items, not on ``jobs``.
     jobs : int >= 1
+    executor : wordspot.training.cluster.Executor, optional
+        Where the work runs (default: one for ``jobs`` local processes).
 
     Returns
     -------
@@ -162,19 +164,16 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     plans = plan_copies(speakers, noise, seed=seed)
     chunks = [plans[i:i + CHUNK_SIZE] for i in range(0, len(plans), CHUNK_SIZE)]
     bar = ProgressBar(len(plans), "noisy copies", quiet=quiet)
-    if jobs == 1:
-        gen = (_chunk_task(paths, c, pool, settings) for c in chunks)
-    else:
-        gen = Parallel(n_jobs=jobs, backend="loky", return_as="generator")(
-            delayed(_chunk_task)(paths, c, pool, settings) for c in chunks
-        )
+    feats = []
+    with using(executor, jobs) as ex:
+        for part in ex.map(_chunk_task, [(c,) for c in chunks], common=(paths, pool, settings),
+                           frames=True, label="noisy copies"):
+            feats += part
+            bar.update(len(part))
+        bar.close()
+        feats = ex.settle(feats)
     out: list[TrainingItem] = []
-    done = 0
-    for part in gen:
-        for feats in part:
-            it = items[plans[done].index]
-            out.append(TrainingItem(it.path, it.words, np.ascontiguousarray(feats), it.graph))
-            done += 1
-        bar.update(len(part))
-    bar.close()
+    for recipe, f in zip(plans, feats):
+        it = items[recipe.index]
+        out.append(TrainingItem(it.path, it.words, np.ascontiguousarray(f), it.graph))
     return out

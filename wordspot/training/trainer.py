@@ -28,14 +28,11 @@ processes gives exactly the same model as a serial run.
 from __future__ import annotations
 
 import datetime as _dt
-import tempfile
 import time
 import warnings
 from dataclasses import dataclass, field, replace
-from pathlib import Path
 
 import numpy as np
-from joblib import Parallel, delayed
 
 from wordspot import __version__
 from wordspot.acoustic import kernels
@@ -56,6 +53,7 @@ from wordspot.language.grammar import count_bigrams
 from wordspot.acoustic.hmm import Posteriors, graph_arrays
 from wordspot.model import AcousticModel
 from wordspot.util.progress import ProgressBar
+from wordspot.training.cluster import open_executor, using
 from wordspot.training.data import prepare_items
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
@@ -98,7 +96,15 @@ class TrainingConfig:
         Initialise the pause states from this much audio at each end of every
         recording (0: plain flat start).
     jobs : int >= 1
-        Processes for feature extraction and re-estimation.
+        Processes for feature extraction and re-estimation (ignored with ``cluster``).
+    cluster : str, optional
+        Run feature extraction and every pass on the workers of this running Dask
+        scheduler: its address (``tcp://host:8786``) or its scheduler file (see
+        :mod:`wordspot.training.cluster`; needs ``pip install "wordspot[cluster]"``).
+        The model is bit-identical to a serial run's.
+    shared_dir : str, optional
+        With ``cluster``: a folder every worker sees at the same path, for the frames
+        files (default: this machine's temporary folder, enough for local workers).
     seed : int
         Seeds the direction (sign per dimension) of the mean offsets when splitting.
     prune : float >= 0
@@ -132,6 +138,8 @@ class TrainingConfig:
     transition_floor: float = 1e-3
     pause_seconds: float = 0.15
     jobs: int = 1
+    cluster: str | None = None
+    shared_dir: str | None = None
     seed: int = 0
     prune: float = 1e-4
     warp_factors: tuple[float, ...] = (1.0,)
@@ -156,6 +164,11 @@ class TrainingConfig:
         if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
         self.noise  # validates noise_copies and noise_snr_db
+        if self.cluster is not None and not str(self.cluster).strip():
+            raise TrainingError("cluster (--cluster) must be a Dask scheduler address (tcp://host:8786) "
+                                "or scheduler file")
+        if self.shared_dir is not None and self.cluster is None:
+            raise TrainingError("shared_dir (--shared-dir) only applies with cluster (--cluster)")
 
     @property
     def noise(self) -> NoiseSettings:
@@ -220,6 +233,7 @@ class _PassResult:
     trans_counts: np.ndarray
     loglik: np.ndarray  # per utterance (-inf: no path)
     unit_frames: np.ndarray
+    rows: np.ndarray | None = None  # ``stats`` holds these mixtures only (the others are zero)
 
 
 class _GraphCache:
@@ -290,24 +304,27 @@ def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _Pa
         post = Posteriors(0.0, np.zeros((0, 0)), cache.self_count, cache.arc_count,
                           cache.init_count, cache.final_count)
         result.trans_counts += parameter_counts(cache.graph, post, n_params)
+    # Only the mixtures of this chunk's chains go back (the others hold zeros), so a result
+    # stays small between processes; adding zeros changes no bit of the totals.
+    result.rows = np.unique(np.concatenate([cache.mixture_ids for cache in caches.values()]))
+    s = result.stats
+    result.stats = MixtureStats(s.occupancy[result.rows], s.first[result.rows], s.second[result.rows])
     return result
 
 
-def _run_pass(chunks, mix, units, parallel, label, quiet, prune) -> _PassResult:
+def _run_pass(chunks, mix, units, executor, label, quiet, prune) -> _PassResult:
     bar = ProgressBar(sum(len(c) for c in chunks), label, quiet=quiet)
-    if parallel is None:
-        gen = (_chunk_pass(c, mix, units, prune) for c in chunks)
-    else:
-        gen = parallel(delayed(_chunk_pass)(c, mix, units, prune) for c in chunks)
+    gen = executor.map(_chunk_pass, [(c,) for c in chunks], common=(mix, units, prune), label=label)
     total = None
     lls = []
     for part in gen:  # in chunk order, whatever the number of processes
         if total is None:
-            total = part
-        else:
-            total.stats.add(part.stats)
-            total.trans_counts += part.trans_counts
-            total.unit_frames += part.unit_frames
+            total = _PassResult(MixtureStats.zeros(mix.n_mixtures, mix.n_components, mix.dim),
+                                np.zeros_like(part.trans_counts), None, np.zeros_like(part.unit_frames))
+        for name in ("occupancy", "first", "second"):
+            getattr(total.stats, name)[part.rows] += getattr(part.stats, name)
+        total.trans_counts += part.trans_counts
+        total.unit_frames += part.unit_frames
         lls.append(part.loglik)
         bar.update(len(part.loglik))
     bar.close()
@@ -316,14 +333,14 @@ def _run_pass(chunks, mix, units, parallel, label, quiet, prune) -> _PassResult:
 
 
 def pass_statistics(chunks, mix: Mixtures, units: UnitSet, *, jobs: int = 1, quiet: bool = True,
-                    prune: float = 0.0, label: str = "statistics"):
+                    prune: float = 0.0, label: str = "statistics", executor=None):
     """One forward-backward pass over chunks of ``(frames, graph)`` pairs, summed in chunk order.
 
     Returns an object with ``stats`` (MixtureStats), ``trans_counts``, ``loglik`` (per
-    utterance) and ``unit_frames``; the same for any ``jobs``.
+    utterance) and ``unit_frames``; the same for any ``jobs`` (or ``executor``).
     """
-    parallel = Parallel(n_jobs=jobs, backend="loky", return_as="generator") if jobs > 1 else None
-    return _run_pass(chunks, mix, units, parallel, label, quiet, prune)
+    with using(executor, jobs) as ex:
+        return _run_pass(chunks, mix, units, ex, label, quiet, prune)
 
 
 # ------------------------------------------------------------------ flat start
@@ -350,23 +367,44 @@ def flat_start(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
     mix = single_gaussian(units.n_mixtures, mean, var)
     edge = int(round(pause_seconds * frame_rate))
     if edge > 0 and PAUSE_UNIT in units:
-        ends = [np.concatenate([it.frames[:edge], it.frames[-edge:]]).astype(np.float64)
-                for it in items if it.frames.shape[0] >= 3 * edge]
-        if ends:
-            e = np.concatenate(ends)
-            pau_var = np.maximum(e.var(axis=0), 0.01 * var)
+        used = [it.frames for it in items if it.frames.shape[0] >= 3 * edge]
+        if used:
+            # Mean and variance of all end frames, read recording by recording (the client's
+            # memory does not grow with the corpus), with the bits of numpy's mean and var.
+            n = 2 * edge * len(used)
+            end_mean = _running_sum(_end_frames(f, edge) for f in used) / n
+            end_var = _running_sum(np.square(_end_frames(f, edge) - end_mean) for f in used) / n
+            pau_var = np.maximum(end_var, 0.01 * var)
             mixture_ids = units.state_mixture[units.index(PAUSE_UNIT)]
             mixture_ids = mixture_ids[mixture_ids >= 0]
-            mix.means[mixture_ids, 0] = e.mean(axis=0)
+            mix.means[mixture_ids, 0] = end_mean
             mix.variances[mixture_ids, 0] = pau_var
     return mix, var
+
+
+def _end_frames(frames: np.ndarray, edge: int) -> np.ndarray:
+    return np.concatenate([frames[:edge], frames[-edge:]]).astype(np.float64)
+
+
+def _running_sum(blocks) -> np.ndarray:
+    """Column sums of the blocks' rows, added one row after the other in block order.
+
+    numpy sums a C-ordered array over axis 0 row after row too, so this gives the bits of
+    ``np.concatenate(blocks).sum(axis=0)`` without the concatenated array (checked in
+    ``tests/training/test_trainer.py``).
+    """
+    total = None
+    for b in blocks:
+        total = np.add.reduce(b if total is None else np.concatenate([total[None], b]), axis=0)
+    return total
 
 
 # ------------------------------------------------------------------ the loop
 
 
 def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
-                config: TrainingConfig = TrainingConfig(), quiet: bool = True, report=None):
+                config: TrainingConfig = TrainingConfig(), quiet: bool = True, report=None,
+                executor=None):
     """Train mixtures and transitions on prepared utterances.
 
     Parameters
@@ -381,6 +419,8 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
         No progress bars.
     report : callable, optional
         Called with one line of text per pass.
+    executor : wordspot.training.cluster.Executor, optional
+        Where the passes run (default: one made for ``config.jobs``).
 
     Returns
     -------
@@ -396,35 +436,15 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
     # Same transcripts next to each other, so a chunk composes and refreshes each graph
     # once; the order is fixed by the data alone (stable sort), never by ``jobs``.
     items = sorted(items, key=lambda it: it.words)
-    if config.jobs == 1:
-        return _train_loop(items, units, frame_rate, config, quiet, report)
-    # Worker processes read the frames from one memory-mapped file instead of receiving
-    # copies every pass (joblib passes slices of a memory map by reference).
-    with tempfile.TemporaryDirectory(prefix="wordspot-train-") as folder:
-        return _train_loop(_shared_frames(items, Path(folder) / "frames.npy"), units, frame_rate,
-                           config, quiet, report)
+    with using(executor, config.jobs, config.cluster, config.shared_dir) as ex:
+        # Workers read the frames from memory-mapped files instead of receiving copies
+        # every pass (a task sends a view of such a file as its name and rows).
+        frames = ex.keep_on_disk([it.frames for it in items])
+        return _train_loop([replace(it, frames=f) for it, f in zip(items, frames)], units, frame_rate,
+                           config, quiet, report, ex)
 
 
-def _shared_frames(items: list[TrainingItem], path: Path) -> list[TrainingItem]:
-    """The same items with their frames as slices of one memory-mapped file at ``path``."""
-    total = sum(it.frames.shape[0] for it in items)
-    big = np.lib.format.open_memmap(path, mode="w+", dtype=np.float32, shape=(total, items[0].frames.shape[1]))
-    start = 0
-    for it in items:
-        big[start:start + it.frames.shape[0]] = it.frames
-        start += it.frames.shape[0]
-    big.flush()
-    del big
-    shared = np.load(path, mmap_mode="r")
-    out, start = [], 0
-    for it in items:
-        n = it.frames.shape[0]
-        out.append(replace(it, frames=shared[start:start + n]))
-        start += n
-    return out
-
-
-def _train_loop(items, units, frame_rate, config, quiet, report):
+def _train_loop(items, units, frame_rate, config, quiet, report, executor):
     """The passes of :func:`train_items` (items sorted, frames wherever they live)."""
     rng = np.random.default_rng(config.seed)
     mix, global_var = flat_start(items, units, frame_rate=frame_rate, pause_seconds=config.pause_seconds)
@@ -433,7 +453,6 @@ def _train_loop(items, units, frame_rate, config, quiet, report):
     dropped: list[Skipped] = []
     updated = np.ones(mix.n_mixtures, dtype=bool)
     last = None
-    parallel = Parallel(n_jobs=config.jobs, backend="loky", return_as="generator") if config.jobs > 1 else None
     n_pass = 0
     for stage, n_comp in enumerate(config.mixtures):
         if stage > 0:
@@ -445,7 +464,7 @@ def _train_loop(items, units, frame_rate, config, quiet, report):
             chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]]
                       for i in range(0, len(items), CHUNK_SIZE)]
             label = f"pass {n_pass}/{config.total_passes} ({n_comp} mix)"
-            res = _run_pass(chunks, mix, units, parallel, label, quiet, config.prune)
+            res = _run_pass(chunks, mix, units, executor, label, quiet, config.prune)
             bad = ~np.isfinite(res.loglik)
             if bad.any():
                 for k in np.flatnonzero(bad):
@@ -516,16 +535,18 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         raise TrainingError(f"{manifest or 'manifest'}: lists no recordings to train on")
     check_manifest(utterances, lexicon, manifest=manifest)
     units = default_unit_set(sorted(lexicon.units_used()))
-    items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
-                                   warps=config.warp_factors, speeds=config.speed_factors,
-                                   noise=config.noise, seed=config.seed)
-    if not items:
-        raise TrainingError(
-            f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
-            "(see the warnings above); fix or replace the files and train again"
-        )
-    units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate,
-                                               config=config, quiet=quiet, report=report)
+    with open_executor(config.jobs, config.cluster, config.shared_dir,
+                       check_paths=[utterances[0].path]) as executor:
+        items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
+                                       warps=config.warp_factors, speeds=config.speed_factors,
+                                       noise=config.noise, seed=config.seed, executor=executor)
+        if not items:
+            raise TrainingError(
+                f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
+                "(see the warnings above); fix or replace the files and train again"
+            )
+        units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate, config=config,
+                                                   quiet=quiet, report=report, executor=executor)
     summary.skipped = skipped + dropped
     if summary.unseen_units:
         warnings.warn(
