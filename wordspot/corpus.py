@@ -7,7 +7,9 @@ A manifest is a CSV file (UTF-8) with a header row::
     /data/oven/oven-on.flac,oven on,ben
 
 ``path`` is relative to the manifest's folder (or absolute); ``transcript`` is the words
-spoken, separated by spaces (lower-cased here); ``speaker`` is optional ("unknown" when the
+spoken, separated by spaces (lower-cased here), or nothing at all for a recording in which
+no command is said (background, chatter, the mixer running: "no command here"; every word
+recognised in it is a false accept); ``speaker`` is optional ("unknown" when the
 column is absent or the cell empty). Extra columns are ignored.
 
 :func:`check_manifest` reports every missing file and every word without a pronunciation in
@@ -43,7 +45,7 @@ class Utterance:
     path : Path
         The audio file (resolved against the manifest's folder).
     words : tuple of str
-        The transcript, lower-case.
+        The transcript, lower-case; empty when no command is said in the recording.
     speaker : str
         Who speaks ("unknown" if the manifest does not say).
     row : int
@@ -78,7 +80,8 @@ def read_manifest(path) -> list[Utterance]:
     ------
     ManifestError
         Missing or unreadable file, not UTF-8, not CSV, no ``path``/``transcript`` column,
-        no rows, or rows with an empty path or transcript (all such rows are listed).
+        no rows, or rows with an empty path (all such rows are listed). An empty transcript
+        is allowed: it marks a recording with no command in it.
     """
     p, text = read_user_text(path, error=ManifestError, kind="manifest", missing="manifest",
                              names="manifest CSV file",
@@ -117,9 +120,6 @@ def read_manifest(path) -> list[Utterance]:
                 problems.append(f"line {row}: empty path")
                 continue
             words = tuple(text_cell.lower().split())
-            if not words:
-                problems.append(f"line {row}: empty transcript for {file_cell} (write the words spoken)")
-                continue
             audio = Path(file_cell)
             if not audio.is_absolute():
                 audio = base / audio

@@ -382,16 +382,19 @@ def _one_person(train_all, test, lexicon_path, feats, n_jobs, devs):
     from wordspot.model import load_model
     from wordspot.language.lexicon import read_lexicon
 
+    starter = load_model("starter")
+    heard = set(starter.info.get("made_from", {}).get("voices", []))
     counts = {}
     for it in train_all:
         counts[it.speaker] = counts.get(it.speaker, 0) + 1
-    voice = max((v for v in counts if v not in devs), key=lambda v: (counts[v], v))
+    # the person: a voice the starter never heard (a real user's voice is new to it), with
+    # the most takes; none of the demo's test voices is a training voice
+    voice = max((v for v in counts if v not in heard), key=lambda v: (counts[v], v))
     mine = [it for it in train_all if it.speaker == voice]
     first = takes_subset(mine, ONE_PERSON_TAKES)
     chosen = {it.path for it in first}
     rest = [it for it in mine if it.path not in chosen]
     lexicon = read_lexicon(lexicon_path)
-    starter = load_model("starter")
     starter.lexicon = lexicon
     out = []
     for name, make in (("starter alone", lambda: starter),

@@ -171,3 +171,25 @@ def test_quiet_evaluate_in_either_place(setup, capsys, where):
     assert status == 0 and "report written to" in out
     status, out, _ = _run(capsys, ["-q", *argv] if where == "before" else [*argv, "-q"])
     assert status == 0 and "report written to" not in out and "word error rate" in out
+
+
+def test_evaluate_prints_misses_and_false_accepts(setup, capsys):
+    folder, model_path, good, _ = setup
+    manifest = folder / "held-out.csv"
+    # the second row says "no command here": an empty transcript
+    manifest.write_text(f"path,transcript,speaker\n{good},oven start,a\n{good},,a\n", encoding="utf-8")
+    status, out, _ = _run(capsys, ["evaluate", "--model", model_path, str(manifest), "--json"])
+    assert status == 0
+    record = json.loads(out)
+    heard = record["recognised_words"] // 2  # the same file twice: the same words each time
+    assert record["non_command_utterances"] == 1 and record["false_accepts"] == heard
+    # one second of audio (16,000 samples at 16 kHz), counted as frames x hop, so short by
+    # at most one 25 ms analysis window
+    assert record["non_command_seconds"] == pytest.approx(1.0, abs=0.025)
+    assert record["false_accepts_per_hour"] == pytest.approx(heard * 3600 / record["non_command_seconds"], rel=1e-12)
+    assert record["miss_rate"] == pytest.approx((record["substitutions"] + record["deletions"]) / 2, abs=1e-12)
+    assert "equal_error_rate" in record
+    status, out, _ = _run(capsys, ["evaluate", "--model", model_path, str(manifest), "--report", str(folder / "r")])
+    assert status == 0
+    assert "miss rate" in out and "on 1 recording(s) without a command" in out and "per hour" in out
+    assert (folder / "r" / "det.csv").is_file() and (folder / "r" / "det.png").is_file()

@@ -209,3 +209,18 @@ def test_running_sum_has_the_bits_of_numpy_mean_and_var(rng):
     var = _running_sum(np.square(b - mean) for b in blocks) / stacked.shape[0]
     np.testing.assert_array_equal(mean, stacked.mean(axis=0))
     np.testing.assert_array_equal(var, stacked.var(axis=0))
+
+
+def test_recording_with_no_command_trains_the_pause(tmp_path, rng):
+    # An empty transcript ("no command here") is one pause unit from end to end: it is used,
+    # and it adds no word pairs (every used command recording opens once with some word).
+    manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=12)
+    add_row(manifest, "mixer.wav", 0.01 * rng.normal(size=RATE), "")
+    utts = read_manifest(manifest)
+    assert utts[-1].words == ()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", TrainingWarning)
+        model, summary = train(utts, read_lexicon(lex_path), config=TrainingConfig(**SMALL))
+    assert summary.used == 13 and not summary.skipped
+    assert model.bigrams.counts[0].sum() == 12 and model.bigrams.counts[0, 0] == 0
+    check_probabilities(model)

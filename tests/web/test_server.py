@@ -232,7 +232,8 @@ def test_a_folder_left_inconsistent_is_repaired_on_start(served, rng):
 def test_train_and_try_from_the_page(served, tmp_path, rng):
     corpus = tmp_path / "corpus"
     manifest, lexicon = make_corpus(corpus, rng, n_utterances=16, max_words=1)
-    app, port = served(lexicon=lexicon, takes=4)
+    # tone words are no speech: train them from scratch (the page adapts the starter by default)
+    app, port = served(lexicon=lexicon, takes=4, from_scratch=True)
     with open(manifest, newline="") as fh:
         rows = list(csv.DictReader(fh))
     for r in rows:
@@ -261,3 +262,13 @@ def test_train_and_try_from_the_page(served, tmp_path, rng):
         assert all(0.0 <= w["confidence"] <= 1.0 for w in heard["words"])
         hits += heard["text"] == r["transcript"]
     assert hits >= 5  # the tone words are easy: training tests reach no errors on them
+
+
+def test_training_command_adapts_the_starter_of_the_takes_rate():
+    from wordspot.web.training_job import train_command
+
+    default = train_command("t.csv", "lex.txt", "m.model")
+    assert "--from-scratch" not in default and "--start" not in default  # the 16 kHz starter
+    assert train_command("t.csv", "lex.txt", "m.model", sample_rate=8000)[-2:] == ["--start", "starter-8k"]
+    scratch = train_command("t.csv", "lex.txt", "m.model", sample_rate=8000, from_scratch=True)
+    assert scratch[-3:] == ["--from-scratch", "--sample-rate", "8000"]

@@ -21,7 +21,11 @@ examples (a bakery: commands called out with dough on your hands):
   wordspot evaluate --model bakery.model held-out/new-words.csv --lexicon bakery-plus.txt
 
 Each manifest is a CSV file with columns path,transcript,speaker. The WER interval is a
-95% bootstrap interval over utterances (Bisani and Ney, 2004). Files that cannot be read
+95% bootstrap interval over utterances (Bisani and Ney, 2004). A row with an empty
+transcript is a recording with no command in it (the mixer running, chatter): every word
+recognised there is a false accept, counted per hour of such audio. The miss rate is the
+share of said words deleted or substituted. With both kinds of row, --report also draws
+det.png (misses against false accepts as a confidence threshold moves) and writes det.csv. Files that cannot be read
 count as recognising nothing and are listed; the exit status is then 1.
 """
 

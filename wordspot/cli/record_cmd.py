@@ -45,6 +45,8 @@ def add_parser(sub, **options):
     p.add_argument("--sample-rate", type=int, default=16000, metavar="HZ",
                    help="rate the takes are saved at, the model rate (default 16000)")
     p.add_argument("--open", action="store_true", help="open the page in the default browser")
+    p.add_argument("--from-scratch", action="store_true",
+                   help="train every phone from the takes alone instead of adapting the starter model")
     p.set_defaults(func=_run)
     return p
 
@@ -60,7 +62,8 @@ def _run(args) -> int:
     folder = Path(args.folder)
     lexicon = Path(args.lexicon) if args.lexicon else folder / "lexicon.txt"
     app = RecordingApp(RecordingSettings(folder=folder, lexicon=lexicon, takes=args.takes,
-                                         speaker=args.speaker, sample_rate=args.sample_rate))
+                                         speaker=args.speaker, sample_rate=args.sample_rate,
+                                         from_scratch=args.from_scratch))
 
     def ready(url: str) -> None:
         for note in app.notes:

@@ -10,10 +10,12 @@ from __future__ import annotations
 import csv
 import json
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from wordspot.errors import WordspotError, WordspotWarning
+from wordspot.evaluation.detection import (DET_TICKS, TradeOff, equal_error_rate_of, measurable,
+                                           normal_deviate, trade_off)
 from wordspot.evaluation.scoring import EvaluationResult, WordRow, confusion_matrix
 
 __all__ = [
@@ -76,8 +78,29 @@ def render_summary(result: EvaluationResult, *, title: str | None = None) -> str
         f"  correct words         {result.hits}",
         f"utterances with errors  {result.utterance_errors} of {result.utterances} "
         f"({_pct(result.sentence_error_rate)})",
+        f"miss rate               {_pct(result.miss_rate)}   "
+        f"(reference words deleted or substituted: {result.substitutions + result.deletions} "
+        f"of {result.reference_words})",
     ]
+    lines += _detection_lines(result)
     return "\n".join(lines)
+
+
+def _detection_lines(result: EvaluationResult) -> list[str]:
+    n = result.non_command_utterances
+    if n == 0:
+        return ["false accepts           not measured: no recordings without a command "
+                "(rows with an empty transcript)"]
+    per_hour = result.false_accepts_per_hour
+    rate = "duration unknown" if per_hour is None else f"{per_hour:.1f} per hour"
+    seconds = "" if result.non_command_seconds is None else f", {result.non_command_seconds:.1f} s"
+    lines = [f"false accepts           {result.false_accepts} word(s) on {n} recording(s) "
+             f"without a command{seconds}: {rate}"]
+    eer = equal_error_rate_of(result)
+    if eer is not None:
+        lines.append(f"equal error rate        {_pct(eer)}   (confidence threshold; false-accept rate "
+                     "= share of recordings without a command that get a word)")
+    return lines
 
 
 def render_word_table(result: EvaluationResult, *, limit: int | None = None) -> str:
@@ -134,7 +157,11 @@ def render_result(result: EvaluationResult, *, title: str | None = None, word_li
 
 @dataclass(frozen=True)
 class ReportFiles:
-    """Paths written by `write_report`; ``confusions`` is None when no picture was drawn."""
+    """Paths written by `write_report`; a picture or table not written is None.
+
+    ``trade_off`` (``det.png``) and ``trade_off_table`` (``det.csv``) need both command
+    recordings and recordings without a command.
+    """
 
     folder: Path
     errors: Path
@@ -142,6 +169,8 @@ class ReportFiles:
     speakers: Path
     summary: Path
     confusions: Path | None
+    trade_off: Path | None = None
+    trade_off_table: Path | None = None
 
 
 def _write_csv(path: Path, header: list[str], rows) -> None:
@@ -151,24 +180,69 @@ def _write_csv(path: Path, header: list[str], rows) -> None:
         writer.writerows(rows)
 
 
-def _draw_confusions(result: EvaluationResult, path: Path) -> bool:
+def _figure_class(name: str):
+    """matplotlib's Agg figure maker, or None (with a warning naming ``name``) without matplotlib."""
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure
     except ImportError:
         warnings.warn(
-            "matplotlib is not installed, so confusions.png was not drawn; "
+            f"matplotlib is not installed, so {name} was not drawn; "
             "install it with: pip install matplotlib",
             WordspotWarning,
-            stacklevel=3,
+            stacklevel=4,
         )
+        return None
+
+    def make(**options):
+        fig = Figure(**options)
+        FigureCanvasAgg(fig)
+        return fig
+
+    return make
+
+
+def _draw_trade_off(points: TradeOff, path: Path) -> bool:
+    """The DET picture: miss rate against false-accept rate on normal-deviate axes."""
+    make = _figure_class(path.name)
+    if make is None:
+        return False
+    fig = make(figsize=(6.0, 6.0), dpi=100)
+    ax = fig.add_subplot()
+    x = normal_deviate(points.false_accept_rate)
+    y = normal_deviate(points.miss_rate)
+    ax.plot(x, y, drawstyle="default", marker=".", color="tab:blue", label="word confidence threshold")
+    eer = points.equal_error_rate
+    if eer is not None:
+        ax.plot([normal_deviate(eer)], [normal_deviate(eer)], "o", color="tab:red",
+                label=f"equal error rate {_pct(eer)}")
+    edge = normal_deviate([0.0, 1.0])
+    ax.plot(edge, edge, ":", color="grey", linewidth=0.8)
+    ticks = normal_deviate(DET_TICKS)
+    labels = [f"{100 * t:g}" for t in DET_TICKS]
+    ax.set_xticks(ticks, labels=labels, rotation=60)
+    ax.set_yticks(ticks, labels=labels)
+    ax.set_xlim(edge)
+    ax.set_ylim(edge)
+    ax.grid(True, linewidth=0.4)
+    ax.set_xlabel("false-accept rate (% of recordings without a command that get a word)")
+    ax.set_ylabel("miss rate (% of command words deleted or substituted)")
+    ax.set_title("Detection error trade-off")
+    ax.legend(loc="upper right", fontsize=8)
+    fig.tight_layout()
+    fig.savefig(path)
+    return True
+
+
+def _draw_confusions(result: EvaluationResult, path: Path) -> bool:
+    make = _figure_class(path.name)
+    if make is None:
         return False
     cm = confusion_matrix(result)
     rows = list(cm.words) + [INSERTED_LABEL]
     cols = list(cm.words) + [DELETED_LABEL]
     side = min(max(4.0, 0.45 * len(rows) + 2.5), 24.0)
-    fig = Figure(figsize=(side, side), dpi=100)
-    FigureCanvasAgg(fig)
+    fig = make(figsize=(side, side), dpi=100)
     ax = fig.add_subplot()
     image = ax.imshow(cm.counts, cmap="Blues", interpolation="nearest")
     fig.colorbar(image, ax=ax, fraction=0.046, pad=0.04, label="count")
@@ -196,7 +270,9 @@ def write_report(result: EvaluationResult, folder, *, picture: bool = True) -> R
     Files: ``errors.csv`` (file, reference, recognised; only utterances with errors),
     ``words.csv``, ``speakers.csv``, ``summary.json`` (`EvaluationResult.to_dict`) and, when
     ``picture`` is true and matplotlib is installed, ``confusions.png`` (a warning is issued
-    if matplotlib is missing).
+    if matplotlib is missing). When the set holds recordings with and without a command and
+    every recognised word's confidence is known: ``det.csv`` (misses and false accepts at
+    each confidence threshold) and ``det.png`` (the detection error trade-off picture).
 
     Parameters
     ----------
@@ -256,8 +332,28 @@ def write_report(result: EvaluationResult, folder, *, picture: bool = True) -> R
         )
         paths.summary.write_text(json.dumps(result.to_dict(), indent=2) + "\n", encoding="utf-8")
         drawn = picture and _draw_confusions(result, paths.confusions)
+        if not drawn:
+            paths = replace(paths, confusions=None)
+        if measurable(result):
+            points = trade_off([s.utterance for s in result.scores])
+            paths = replace(paths, trade_off_table=folder / "det.csv")
+            _write_trade_off_table(points, paths.trade_off_table)
+            if picture and _draw_trade_off(points, folder / "det.png"):
+                paths = replace(paths, trade_off=folder / "det.png")
     except OSError as exc:
         raise WordspotError(f"cannot write the report in {folder}: {exc.strerror or exc}") from None
-    if not drawn:
-        paths = ReportFiles(paths.folder, paths.errors, paths.words, paths.speakers, paths.summary, None)
     return paths
+
+
+def _write_trade_off_table(points: TradeOff, path: Path) -> None:
+    per_hour = points.false_accepts_per_hour
+    _write_csv(
+        path,
+        ["threshold", "misses", "miss_rate", "false_accepts", "false_accepts_per_hour", "false_accept_rate"],
+        (
+            [f"{t:.6g}", int(m), f"{mr:.6f}", int(fa), "" if per_hour is None else f"{per_hour[k]:.3f}",
+             f"{far:.6f}"]
+            for k, (t, m, mr, fa, far) in enumerate(zip(points.thresholds, points.misses, points.miss_rate,
+                                                         points.false_accepts, points.false_accept_rate))
+        ),
+    )

@@ -50,10 +50,21 @@ class ManifestEvaluation:
         """Recognition time divided by audio time (smaller is faster)."""
         return self.seconds / self.audio_seconds if self.audio_seconds > 0 else float("nan")
 
+    @property
+    def equal_error_rate(self) -> float | None:
+        """EER over the word-confidence threshold (:mod:`wordspot.evaluation.detection`).
+
+        None unless the set holds both command items and items with no command.
+        """
+        from wordspot.evaluation.detection import equal_error_rate_of
+
+        return equal_error_rate_of(self.result)
+
     def to_dict(self) -> dict:
-        """JSON-ready summary: the scoring result plus the set name and failures."""
+        """JSON-ready summary: the scoring result plus the set name, the EER and failures."""
         out = {"set": self.name}
         out.update(self.result.to_dict())
+        out["equal_error_rate"] = self.equal_error_rate
         out["failed_files"] = [{"path": p, "error": e} for p, e in self.failed]
         out["recognition_seconds"] = round(self.seconds, 3)
         out["audio_seconds"] = round(self.audio_seconds, 3)
@@ -113,7 +124,8 @@ def evaluate_utterances(model, utterances, *, name: str = "set", settings: Decod
                           prior=prior, jobs=jobs, label=f"recognising {name}", quiet=quiet)
     seconds = time.monotonic() - start
     scored = [
-        ScoredUtterance(str(u.path), u.speaker, tuple(u.words), tuple(r.words))
+        ScoredUtterance(str(u.path), u.speaker, tuple(u.words), tuple(r.words), seconds=float(r.duration),
+                        confidences=tuple(float(s.confidence) for s in r.segments))
         for u, r in zip(utterances, recs)
     ]
     result = score_utterances(scored, n_bootstrap=n_bootstrap, seed=seed)

@@ -17,6 +17,16 @@ Tie-break rule (several alignments can share the minimum edit count):
    insertion.
 
 Case, punctuation and spelling are compared exactly; normalise words before scoring.
+
+Recordings with no command (an empty reference, "no command here") have N = 0: every word
+recognised in them is an insertion, and here also a *false accept*. Beside the WER:
+
+    miss rate = (S + D) / N          over the command items (N > 0), the reference words
+                                     not recognised correctly;
+    false accepts per hour = words recognised on the non-command items
+                             / their total duration in hours.
+
+Only non-command items give false accepts; an insertion within a command is a WER error.
 """
 
 from __future__ import annotations
@@ -41,6 +51,8 @@ __all__ = [
     "WordAlignment",
     "align_words",
     "word_error_rate",
+    "miss_rate",
+    "false_accepts_per_hour",
     "ScoredUtterance",
     "UtteranceScore",
     "WordRow",
@@ -149,6 +161,26 @@ def word_error_rate(errors: int, reference_words: int) -> float:
     return 0.0 if errors == 0 else math.inf
 
 
+def miss_rate(substitutions: int, deletions: int, reference_words: int) -> float | None:
+    """(S + D) / N: the share of reference words not recognised correctly.
+
+    A reference word counts as missed when the alignment deletes it or substitutes another
+    word for it (common practice in keyword detection: a miss is a word said but not
+    recognised). Insertions do not count. None when N = 0 (nothing could be missed).
+    """
+    return (substitutions + deletions) / reference_words if reference_words > 0 else None
+
+
+def false_accepts_per_hour(false_accepts: int, seconds: float | None) -> float | None:
+    """Words recognised on non-command audio per hour of that audio.
+
+    None when the duration is unknown or zero (no non-command audio was scored).
+    """
+    if seconds is None or not seconds > 0:
+        return None
+    return false_accepts * 3600.0 / seconds
+
+
 def _check_words(words, what: str) -> tuple[str, ...]:
     if isinstance(words, str):
         raise ScoringError(f"{what} must be a sequence of words, not the string {words!r}; split it first")
@@ -219,12 +251,20 @@ def align_words(reference: Sequence[str], recognised: Sequence[str]) -> WordAlig
 
 @dataclass(frozen=True)
 class ScoredUtterance:
-    """One utterance to score: where it came from, who spoke, what was said and heard."""
+    """One utterance to score: where it came from, who spoke, what was said and heard.
+
+    ``seconds`` (the recording's duration) and ``confidences`` (one in [0, 1] per
+    recognised word) are optional; false accepts per hour need the first, the detection
+    trade-off (:mod:`wordspot.evaluation.detection`) the second. An empty ``reference``
+    marks a recording with no command in it.
+    """
 
     path: str | os.PathLike
     speaker: str
     reference: tuple[str, ...]
     recognised: tuple[str, ...]
+    seconds: float | None = None
+    confidences: tuple[float, ...] | None = None
 
     @classmethod
     def from_text(cls, path, speaker: str, reference: str, recognised: str) -> "ScoredUtterance":
@@ -347,10 +387,23 @@ class EvaluationResult:
     seed: int
     word_table: tuple[WordRow, ...]
     speaker_table: tuple[SpeakerRow, ...]
+    non_command_utterances: int = 0
+    false_accepts: int = 0
+    non_command_seconds: float | None = None
 
     @property
     def utterances(self) -> int:
         return len(self.scores)
+
+    @property
+    def miss_rate(self) -> float | None:
+        """(S + D) / N over the command items (see `miss_rate`); None without reference words."""
+        return miss_rate(self.substitutions, self.deletions, self.reference_words)
+
+    @property
+    def false_accepts_per_hour(self) -> float | None:
+        """Words recognised on non-command items per hour of them; None without such audio."""
+        return false_accepts_per_hour(self.false_accepts, self.non_command_seconds)
 
     @property
     def errors(self) -> int:
@@ -380,6 +433,11 @@ class EvaluationResult:
             "utterances": self.utterances,
             "utterance_errors": self.utterance_errors,
             "sentence_error_rate": self.sentence_error_rate,
+            "miss_rate": self.miss_rate,
+            "non_command_utterances": self.non_command_utterances,
+            "non_command_seconds": self.non_command_seconds,
+            "false_accepts": self.false_accepts,
+            "false_accepts_per_hour": self.false_accepts_per_hour,
             "bootstrap": {"replicates": self.n_bootstrap, "seed": self.seed},
             "words": [row.to_dict() for row in self.word_table],
             "speakers": [row.to_dict() for row in self.speaker_table],
@@ -437,8 +495,21 @@ def bootstrap_wer_interval(
         rates = np.where(
             ref_sums > 0, err_sums / np.maximum(ref_sums, 1), np.where(err_sums > 0, np.inf, 0.0)
         )
-    low, high = np.quantile(rates, [0.025, 0.975])
-    return float(low), float(high)
+    return _quantile(rates, 0.025), _quantile(rates, 0.975)
+
+
+def _quantile(values: np.ndarray, q: float) -> float:
+    """numpy's default (linear) quantile, but infinite when the upper neighbour is infinite.
+
+    A replicate drawing only recordings with no command and some words has WER inf;
+    numpy's interpolation would turn inf - inf into NaN.
+    """
+    v = np.sort(values)
+    pos = q * (v.size - 1)
+    lo, hi = int(math.floor(pos)), int(math.ceil(pos))
+    if lo == hi or math.isinf(v[hi]):
+        return float(v[hi])
+    return float(v[lo] + (pos - lo) * (v[hi] - v[lo]))
 
 
 def _word_table(scores: Sequence[UtteranceScore]) -> tuple[WordRow, ...]:
@@ -533,6 +604,8 @@ def score_utterances(
             f"nothing to score: the {len(scores)} reference transcripts hold no words; check the manifest's transcripts"
         )
     ci = bootstrap_wer_interval(errors, n_ref, n_bootstrap=n_bootstrap, seed=seed)
+    quiet = [s.utterance for s in scores if not s.utterance.reference]
+    durations = [u.seconds for u in quiet]
     return EvaluationResult(
         scores=tuple(scores),
         hits=sum(s.alignment.hits for s in scores),
@@ -547,6 +620,9 @@ def score_utterances(
         seed=seed,
         word_table=_word_table(scores),
         speaker_table=_speaker_table(scores),
+        non_command_utterances=len(quiet),
+        false_accepts=sum(len(u.recognised) for u in quiet),
+        non_command_seconds=(float(sum(durations)) if quiet and None not in durations else None),
     )
 
 

@@ -353,7 +353,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     band = measure_band(sorted(used), start.features.sample_rate)
     if band["narrow"]:
         warnings.warn(band_warning(start.features.sample_rate), TrainingWarning, stacklevel=2)
-    bigrams = count_bigrams([u.words for u in utterances if u.path in used], vocabulary=lexicon.words)
+    bigrams = count_bigrams([u.words for u in utterances if u.path in used and u.words],  # as trainer.train
+                           vocabulary=lexicon.words)
     summary.seconds = time.monotonic() - t0
     info = {
         "created": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),

@@ -37,9 +37,14 @@ from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, UnitSet
 __all__ = ["chain_slots", "extract_features", "prepare_items", "speed_copy"]
 
 def chain_slots(words, lexicon, units: UnitSet) -> list:
-    """Slots of the training chain of a transcript (see :func:`wordspot.acoustic.graph.compose`)."""
+    """Slots of the training chain of a transcript (see :func:`wordspot.acoustic.graph.compose`).
+
+    An empty transcript (a recording with no command in it) is one pause unit throughout.
+    """
     pau = units.index(PAUSE_UNIT)
     gap = units.index(GAP_UNIT)
+    if not words:
+        return [[(pau,)]]
     slots: list = [[(pau,)]]
     for k, word in enumerate(words):
         if k > 0:

@@ -558,7 +558,9 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
     band = measure_band(sorted(used), settings.sample_rate)
     if band["narrow"]:
         warnings.warn(band_warning(settings.sample_rate), TrainingWarning, stacklevel=2)
-    transcripts = [u.words for u in utterances if u.path in used]
+    # recordings with no command (empty transcripts) train the pause but add no word pairs:
+    # the prior stays the commands' own
+    transcripts = [u.words for u in utterances if u.path in used and u.words]
     bigrams = count_bigrams(transcripts, vocabulary=lexicon.words)
     summary.seconds = time.monotonic() - start
     info = {

@@ -74,6 +74,8 @@ class RecordingSettings:
         The model rate; takes are saved at it.
     min_train_takes : int
         Training takes every word needs before the page offers training.
+    from_scratch : bool
+        Train every phone from the takes alone instead of adapting the starter model.
     """
 
     folder: Path
@@ -82,6 +84,7 @@ class RecordingSettings:
     speaker: str = "baker-a"
     sample_rate: int = 16000
     min_train_takes: int = 2
+    from_scratch: bool = False
 
 
 class HttpProblem(Exception):
@@ -132,7 +135,8 @@ class RecordingApp:
         short = [w["word"] for w in words if w["train_all_speakers"] < s.min_train_takes]
         folder = self.takes.folder
         command = train_command(_relative_to_cwd(folder / TRAIN_MANIFEST), _relative_to_cwd(s.lexicon),
-                                _relative_to_cwd(self.model_path))
+                                _relative_to_cwd(self.model_path), sample_rate=s.sample_rate,
+                                from_scratch=s.from_scratch)
         evaluate = None
         if (folder / HELD_OUT_MANIFEST).is_file():
             evaluate = ["wordspot", "evaluate", "--model", _relative_to_cwd(self.model_path),
@@ -188,7 +192,8 @@ class RecordingApp:
                               f"(still short: {', '.join(state['words_short_of_takes']) or 'no words listed'})")
         folder = self.takes.folder
         started = self.training.start(folder / TRAIN_MANIFEST, self.settings.lexicon.resolve(),
-                                      self.model_path, jobs=1)
+                                      self.model_path, jobs=1, sample_rate=self.settings.sample_rate,
+                                      from_scratch=self.settings.from_scratch)
         if not started:
             raise HttpProblem(HTTPStatus.CONFLICT, "training is already running; wait for it to finish")
         return self.training.status()

@@ -13,18 +13,34 @@ import threading
 from collections import deque
 from pathlib import Path
 
+from wordspot.training.adapt import AdaptationConfig
 from wordspot.training.trainer import TrainingConfig
 
 __all__ = ["TrainingJob", "train_command"]
 
-_PASS_RE = re.compile(r"^\s*pass\s+(\d+)\b")
+_PASS_RE = re.compile(r"^\s*(?:adapt\s+)?pass\s+(\d+)\b")
 _KEEP_LINES = 200
 
 
-def train_command(manifest, lexicon, model, *, jobs: int = 1) -> list[str]:
-    """The ``wordspot train`` command line for these files (as a list of arguments)."""
-    return ["wordspot", "train", str(manifest), "--lexicon", str(lexicon), "--out", str(model),
+def train_command(manifest, lexicon, model, *, jobs: int = 1, sample_rate: int = 16000,
+                  from_scratch: bool = False) -> list[str]:
+    """The ``wordspot train`` command line for these files (as a list of arguments).
+
+    By default it adapts the starter of the takes' rate; ``from_scratch`` trains every phone
+    from the takes alone.
+    """
+    args = ["wordspot", "train", str(manifest), "--lexicon", str(lexicon), "--out", str(model),
             "--jobs", str(jobs)]
+    if from_scratch:
+        return args + ["--from-scratch", "--sample-rate", str(sample_rate)]
+    return args + (["--start", "starter-8k"] if sample_rate == 8000 else [])
+
+
+def _total_passes(from_scratch: bool) -> int:
+    if from_scratch:
+        return TrainingConfig().total_passes
+    config = AdaptationConfig()
+    return config.passes + int(config.mean_transform)
 
 
 class TrainingJob:
@@ -35,16 +51,19 @@ class TrainingJob:
         self._process: subprocess.Popen | None = None
         self._lines: deque[str] = deque(maxlen=_KEEP_LINES)
         self._pass = 0
-        self._total = TrainingConfig().total_passes
+        self._total = _total_passes(False)
 
-    def start(self, manifest, lexicon, model, *, jobs: int = 1) -> bool:
+    def start(self, manifest, lexicon, model, *, jobs: int = 1, sample_rate: int = 16000,
+              from_scratch: bool = False) -> bool:
         """Start training unless a run is going on; False when one is."""
         with self._lock:
             if self._process is not None and self._process.poll() is None:
                 return False
-            args = train_command(manifest, lexicon, model, jobs=jobs)
+            args = train_command(manifest, lexicon, model, jobs=jobs, sample_rate=sample_rate,
+                                 from_scratch=from_scratch)
             self._lines.clear()
             self._pass = 0
+            self._total = _total_passes(from_scratch)
             self._lines.append("$ " + " ".join(args))
             self._process = subprocess.Popen(
                 [sys.executable, "-m", "wordspot.cli"] + args[1:],
