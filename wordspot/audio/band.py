@@ -9,9 +9,13 @@ recognition and training measure the share of a recording's power above
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
-__all__ = ["EDGE_HZ", "NARROW_DB", "high_band_db", "is_narrow_band", "narrow_band_note", "measure_band", "band_warning"]
+from wordspot.errors import TrainingWarning
+
+__all__ = ["EDGE_HZ", "NARROW_DB", "high_band_db", "is_narrow_band", "narrow_band_note", "measure_band", "band_warning", "check_training_band"]
 
 #: Lower edge of the band that telephone audio lacks (telephone speech is band-limited
 #: to about 300-3400 Hz, ITU-T G.712; an 8 kHz recording can carry nothing above 4 kHz).
@@ -99,3 +103,11 @@ def band_warning(sample_rate: int) -> str:
     return (f"the training recordings carry nothing above {EDGE_HZ / 1000:g} kHz (telephone band) but the "
             f"model rate is {sample_rate} Hz: train with --sample-rate 8000 (or adapt --start starter-8k), "
             "so that recognition matches the recordings")
+
+
+def check_training_band(paths, sample_rate: int) -> dict:
+    """:func:`measure_band` of training recordings, warning when they are narrowband at a wideband rate."""
+    band = measure_band(paths, sample_rate)
+    if band["narrow"]:
+        warnings.warn(band_warning(sample_rate), TrainingWarning, stacklevel=3)
+    return band

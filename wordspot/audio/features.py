@@ -254,6 +254,14 @@ def _validate(s: FeatureSettings) -> None:
 # ----------------------------------------------------------------------------- mel scale
 
 
+# Slaney's mel scale (Slaney 1998, as librosa computes it): linear below 1000 Hz at
+# 200/3 Hz a mel, logarithmic above with a step of log(6.4)/27 per mel.
+_SLANEY_HZ_PER_MEL = 200.0 / 3.0
+_SLANEY_LOG_HZ = 1000.0
+_SLANEY_LOG_MEL = _SLANEY_LOG_HZ / _SLANEY_HZ_PER_MEL
+_SLANEY_LOG_STEP = math.log(6.4) / 27.0
+
+
 def hz_to_mel(frequencies, *, scale: str = "slaney") -> np.ndarray:
     """Convert Hz to mel.
 
@@ -266,13 +274,9 @@ def hz_to_mel(frequencies, *, scale: str = "slaney") -> np.ndarray:
         return 2595.0 * np.log10(1.0 + f / 700.0)
     if scale != "slaney":
         raise FeatureError(f"mel scale {scale!r} is unknown; use one of {', '.join(_MEL_SCALES)}")
-    f_sp = 200.0 / 3.0
-    min_log_hz = 1000.0
-    min_log_mel = min_log_hz / f_sp
-    logstep = math.log(6.4) / 27.0
-    linear = f / f_sp
-    logpart = min_log_mel + np.log(np.maximum(f, min_log_hz) / min_log_hz) / logstep
-    return np.where(f >= min_log_hz, logpart, linear)
+    linear = f / _SLANEY_HZ_PER_MEL
+    logpart = _SLANEY_LOG_MEL + np.log(np.maximum(f, _SLANEY_LOG_HZ) / _SLANEY_LOG_HZ) / _SLANEY_LOG_STEP
+    return np.where(f >= _SLANEY_LOG_HZ, logpart, linear)
 
 
 def mel_to_hz(mels, *, scale: str = "slaney") -> np.ndarray:
@@ -282,12 +286,8 @@ def mel_to_hz(mels, *, scale: str = "slaney") -> np.ndarray:
         return 700.0 * (10.0 ** (m / 2595.0) - 1.0)
     if scale != "slaney":
         raise FeatureError(f"mel scale {scale!r} is unknown; use one of {', '.join(_MEL_SCALES)}")
-    f_sp = 200.0 / 3.0
-    min_log_hz = 1000.0
-    min_log_mel = min_log_hz / f_sp
-    logstep = math.log(6.4) / 27.0
-    logpart = min_log_hz * np.exp(logstep * (np.maximum(m, min_log_mel) - min_log_mel))
-    return np.where(m >= min_log_mel, logpart, f_sp * m)
+    logpart = _SLANEY_LOG_HZ * np.exp(_SLANEY_LOG_STEP * (np.maximum(m, _SLANEY_LOG_MEL) - _SLANEY_LOG_MEL))
+    return np.where(m >= _SLANEY_LOG_MEL, logpart, _SLANEY_HZ_PER_MEL * m)
 
 
 def warp_frequencies(frequencies, factor: float, *, upper: float, knee: float = 0.85) -> np.ndarray:

@@ -26,7 +26,6 @@ from __future__ import annotations
 
 import datetime as _dt
 import time
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -35,8 +34,8 @@ from wordspot import __version__
 from wordspot.acoustic.gmm import Mixtures, MixtureStats
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
 from wordspot.corpus import check_manifest
-from wordspot.audio.band import band_warning, measure_band
-from wordspot.errors import TrainingError, TrainingWarning
+from wordspot.audio.band import check_training_band
+from wordspot.errors import TrainingError
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
@@ -350,9 +349,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
                                           report=report)
     summary.skipped = skipped
     used = {it.path for it in items}
-    band = measure_band(sorted(used), start.features.sample_rate)
-    if band["narrow"]:
-        warnings.warn(band_warning(start.features.sample_rate), TrainingWarning, stacklevel=2)
+    band = check_training_band(sorted(used), start.features.sample_rate)
     bigrams = count_bigrams([u.words for u in utterances if u.path in used and u.words],  # as trainer.train
                            vocabulary=lexicon.words)
     summary.seconds = time.monotonic() - t0

@@ -38,7 +38,7 @@ from wordspot import __version__
 from wordspot.acoustic import kernels
 from wordspot.corpus import check_manifest
 from wordspot.audio.augment import NoiseSettings
-from wordspot.audio.band import band_warning, measure_band
+from wordspot.audio.band import check_training_band
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.audio.features import FeatureSettings
 from wordspot.acoustic.gmm import (
@@ -555,9 +555,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
             TrainingWarning, stacklevel=2,
         )
     used = {it.path for it in items} - {s.path for s in dropped}
-    band = measure_band(sorted(used), settings.sample_rate)
-    if band["narrow"]:
-        warnings.warn(band_warning(settings.sample_rate), TrainingWarning, stacklevel=2)
+    band = check_training_band(sorted(used), settings.sample_rate)
     # recordings with no command (empty transcripts) train the pause but add no word pairs:
     # the prior stays the commands' own
     transcripts = [u.words for u in utterances if u.path in used and u.words]
