@@ -66,7 +66,7 @@ def test_single_word_score_equals_hmmlearn_viterbi(rng):
     entries = {"sack": [["S", "AA", "K"]]}
     model = tiny_model(rng, entries)
     settings = DecoderSettings.unpruned(grammar_weight=0.0, insertion_penalty=0.0, single_word=True,
-                                        allow_empty=False)
+                                        allow_empty=False, filler=False)
     rec = build_recognizer(model, settings=settings)
     graph = chain_graph(model, [model.lexicon.pronunciations("sack")])
     s = graph.n_states
@@ -185,13 +185,14 @@ def test_words_times_and_confidence_on_clean_frames(rng):
 
 def test_wrong_word_gets_lower_confidence(rng):
     # Force the only word of a lexicon onto frames of another word: its confidence must
-    # drop below that of the right word on the same frames (the measure's purpose).
+    # drop below that of the right word on the same frames (the measure's purpose). The
+    # filler is off: it would reject the forced word outright (tests/decoding/test_filler.py).
     model = tiny_model(rng, ENTRIES)
     path = pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"]) + pause_mixtures(model, 6)
     frames = frames_along(model, path, rng)
     right = recognize_features(model, frames, lexicon=Lexicon({"bat": [["B", "AA", "T"]]}))
     wrong = recognize_features(model, frames, lexicon=Lexicon({"tab": [["T", "AA", "B"]]}),
-                               settings=DecoderSettings.unpruned())
+                               settings=DecoderSettings.unpruned(filler=False))
     assert right.words == ["bat"] and wrong.words == ["tab"]
     assert wrong.segments[0].confidence < right.segments[0].confidence
 

@@ -27,7 +27,9 @@ from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
 from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.language.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
-from wordspot.decoding.network import Network, compile_network
+from wordspot.decoding.filler import FillerSettings
+from wordspot.decoding.network import FIRST_WORD_ITEM, Network, compile_network
+from wordspot.decoding.spans import Piece, piece_of, piece_score
 from wordspot.audio.workspace import work_array
 
 __all__ = [
@@ -49,6 +51,7 @@ CONFIDENCE_SCALE = 4.0
 REASON_TOO_SHORT = "too short"
 REASON_SILENCE = "silence or noise only"
 REASON_NO_PATH = "no complete path"
+REASON_NO_COMMAND = "no command"
 
 
 @dataclass(frozen=True)
@@ -79,6 +82,15 @@ class DecoderSettings:
         Exactly one word per file (isolated commands).
     allow_empty : bool
         Allow the pause-only result (how silence comes out empty).
+    filler : bool
+        Let a free phone loop (talk that is no command) and pauses between words compete
+        with the commands (:mod:`wordspot.decoding.filler`).
+    filler_penalty : float <= 0
+        Log units added for every phone the filler spells.
+    pause_penalty : float <= 0
+        Log units added when a pause between words begins.
+    filler_frame_penalty : float <= 0
+        Log units added for every frame the filler spells.
     """
 
     beam: float = 800.0
@@ -88,6 +100,10 @@ class DecoderSettings:
     insertion_penalty: float = -60.0
     single_word: bool = False
     allow_empty: bool = True
+    filler: bool = True
+    filler_penalty: float = -80.0
+    pause_penalty: float = -10.0
+    filler_frame_penalty: float = 0.0
 
     def __post_init__(self) -> None:
         for name in ("beam", "word_end_beam"):
@@ -97,6 +113,7 @@ class DecoderSettings:
         if not (isinstance(self.state_limit, (int, np.integer)) and self.state_limit > 0):
             raise DecodingError(f"state_limit must be a whole number > 0, got {self.state_limit!r}")
         self.grammar  # validates weight and penalty
+        self.background  # validates the filler's penalties
 
     @property
     def grammar(self) -> GrammarSettings:
@@ -107,6 +124,11 @@ class DecoderSettings:
             return GrammarSettings(self.grammar_weight, self.insertion_penalty, self.single_word)
         except GrammarError as exc:
             raise DecodingError(str(exc)) from None
+
+    @property
+    def background(self) -> FillerSettings:
+        """The filler part of these settings."""
+        return FillerSettings(bool(self.filler), self.filler_penalty, self.pause_penalty, self.filler_frame_penalty)
 
     @classmethod
     def unpruned(cls, **changes) -> "DecoderSettings":
@@ -135,6 +157,8 @@ class WordSegment:
         Weighted log prior of the link into the word plus the insertion penalty.
     confidence : float in [0, 1]
         See the module docstring.
+    measures : tuple of float
+        What the confidence is computed from, named by :data:`MEASURE_NAMES`.
     """
 
     word: str
@@ -146,6 +170,7 @@ class WordSegment:
     acoustic: float
     grammar: float
     confidence: float
+    measures: tuple[float, ...] = ()
 
 
 @dataclass
@@ -190,6 +215,12 @@ class Recognition:
         return not self.error
 
 
+#: Names of :attr:`WordSegment.measures`: per-frame margins of the word's acoustic score
+#: (its frames and trailing pause) over the best free state at every frame, over the best
+#: free sequence of phones and pauses, and over the best other command; then the log of
+#: frames per phone.
+MEASURE_NAMES = ("free_margin", "filler_margin", "runner_up_margin", "log_frames_per_phone", "next_to_filler")
+
 #: Precision of emission scoring during recognition (training scores in float64).
 EMISSION_DTYPE = np.float32
 
@@ -207,6 +238,37 @@ class Recognizer:
     settings: DecoderSettings
     hop: float
     _scoring: tuple | None = field(default=None, repr=False)
+    _pieces: tuple | None = field(default=None, repr=False)
+
+    def pieces(self) -> tuple[Piece | None, list[Piece]]:
+        """The filler loop (phones and the pause; None without background words) and each
+        command's pronunciations, as pieces of the network (:mod:`wordspot.decoding.spans`)."""
+        if self._pieces is None:
+            net = self.network
+            filler = None
+            if net.background is not None:
+                bg = net.background
+                items = [p + FIRST_WORD_ITEM for w in (bg.fillers[0], bg.pauses[0])
+                         for p in net.word_pron[net.word_first[w]:net.word_first[w + 1]]]
+                filler = piece_of(net, items)
+            words = [piece_of(net, net.word_pron[net.word_first[w]:net.word_first[w + 1]] + FIRST_WORD_ITEM)
+                     for w in range(1, net.n_words + 1)]
+            self._pieces = (filler, words)
+        return self._pieces
+
+    def margins(self, ll: np.ndarray, word: int, first: int, last: int, acoustic: float) -> tuple[float, float]:
+        """Per-frame margins of a command's acoustic score over frames ``first..last``.
+
+        Returns ``(filler, runner_up)``: over the best free sequence of phones and pauses
+        (no penalties; NaN without background words), and over the best other command
+        passing through those frames once (NaN with a one-word vocabulary).
+        """
+        filler, words = self.pieces()
+        span = last - first + 1
+        f = np.nan if filler is None else (acoustic - piece_score(ll, first, last, filler, 0.0)) / span
+        others = [piece_score(ll, first, last, p) for w, p in enumerate(words, start=1) if w != word]
+        r = (acoustic - max(others)) / span if others else np.nan
+        return float(f), float(r)
 
     def emissions(self, frames: np.ndarray) -> np.ndarray:
         """Log-likelihood of every frame under every mixture the network uses, (T, P).
@@ -286,16 +348,19 @@ class Recognizer:
             chain.append(k)
             k = int(links[k, 5])
         chain.reverse()  # chain[0] is the entry pause
-        if len(chain) <= 1:
-            result.reason = f"{REASON_SILENCE}: the pause model explains the recording better than any word"
-            return result
         best_free = np.concatenate([[0.0], np.cumsum(ll.max(axis=1))])
-        for prev, k in zip(chain[:-1], chain[1:]):
+        bg = net.background
+        is_filler = [bg is not None and int(links[k, 0]) in bg.fillers for k in chain] + [False]
+        for i, (prev, k) in enumerate(zip(chain[:-1], chain[1:]), start=1):
             word, pron, start, phone_end, end = (int(x) for x in links[k, :5])
+            if not net.is_command(word):
+                continue  # filler or pause between commands
             grammar = float(net.link_row(int(links[prev, 0]))[word])
             acoustic = float(link_scores[k] - link_scores[prev] - grammar)
             span = end - start + 1
             d = (acoustic - (best_free[end + 1] - best_free[start])) / span
+            filler_margin, runner_up = self.margins(ll, word, start, end, acoustic)
+            per_phone = np.log((phone_end - start + 1) / len(net.prons[pron]))
             result.segments.append(
                 WordSegment(
                     word=net.words[word - 1],
@@ -307,8 +372,15 @@ class Recognizer:
                     acoustic=acoustic,
                     grammar=grammar,
                     confidence=float(np.exp(min(d, 0.0) / CONFIDENCE_SCALE)),
+                    measures=(float(d), filler_margin, runner_up, float(per_phone),
+                              float(is_filler[i - 1]) + float(is_filler[i + 1])),
                 )
             )
+        if len(chain) <= 1:
+            result.reason = f"{REASON_SILENCE}: the pause model explains the recording better than any word"
+        elif not result.segments:
+            result.reason = (f"{REASON_NO_COMMAND}: the filler (any phones) and pause models explain the "
+                             "recording better than any command word")
         return result
 
     def decode_file(self, path) -> Recognition:
@@ -384,7 +456,8 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
     else:
         bigram = prior_for_vocabulary(lex.words, getattr(model, "bigrams", None), prior)
     net = compile_network(
-        model.units, model.mixtures.n_mixtures, lex, bigram, settings.grammar, allow_empty=settings.allow_empty
+        model.units, model.mixtures.n_mixtures, lex, bigram, settings.grammar, allow_empty=settings.allow_empty,
+        filler=settings.background,
     )
     mix = model.mixtures
     sub = Mixtures(mix.weights[net.used_mixtures], mix.means[net.used_mixtures], mix.variances[net.used_mixtures])

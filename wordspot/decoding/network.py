@@ -16,7 +16,8 @@ end*, and word ends enter the next items through the grammar (:mod:`wordspot.lan
     entry pause -> word -> [gap] -> word -> [gap] -> ... -> exit pause
 
 with score ``weight * log P(next | previous) + insertion_penalty`` on each word-to-word
-link. With ``single_word`` a word may only be followed by the exit pause. The empty
+link. After the commands come the *background words* when they are on: the filler (one
+item per phone) and the pause between words (:mod:`wordspot.decoding.filler`). With ``single_word`` a word may only be followed by the exit pause. The empty
 utterance (entry pause straight into the exit pause) is allowed unless switched off:
 it is how a file with nothing but silence comes out empty.
 """
@@ -29,6 +30,7 @@ import numpy as np
 
 from wordspot.errors import DecodingError, LexiconError
 from wordspot.language.grammar import BigramPrior, GrammarSettings
+from wordspot.decoding.filler import BackgroundWords, FillerSettings, background_words, extend_links
 from wordspot.acoustic.graph import StateGraph, compose
 from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, UnitSet
 
@@ -80,9 +82,13 @@ class Network:
         The grammar link scores (weight and insertion penalty applied), in the back-off
         form of :class:`~wordspot.language.grammar.BigramPrior`.
     single_word : bool
+        The kernel's own one-word rule (off when the background words carry it).
     allow_empty : bool
     min_frames : int
         Fewest frames of a complete path holding one word.
+    background : BackgroundWords or None
+        The filler and pause words after the commands (:mod:`wordspot.decoding.filler`),
+        or None when they are switched off.
     """
 
     words: tuple[str, ...]
@@ -110,6 +116,11 @@ class Network:
     single_word: bool
     allow_empty: bool
     min_frames: int
+    background: BackgroundWords | None = None
+
+    def is_command(self, word: int) -> bool:
+        """Is word index ``word`` one of the commands (not the boundary, filler or pause)?"""
+        return 0 < word <= len(self.words)
 
     @property
     def n_states(self) -> int:
@@ -177,6 +188,7 @@ def compile_network(
     grammar: GrammarSettings = GrammarSettings(),
     *,
     allow_empty: bool = True,
+    filler: FillerSettings | None = None,
 ) -> Network:
     """Lay out the recognition network.
 
@@ -193,6 +205,9 @@ def compile_network(
     grammar : GrammarSettings
     allow_empty : bool
         Allow the empty utterance (pause only).
+    filler : FillerSettings, optional
+        Let a free phone loop and pauses between words compete with the commands (see
+        :mod:`wordspot.decoding.filler`); off when None or not ``enabled``.
 
     Raises
     ------
@@ -226,6 +241,22 @@ def compile_network(
         if len(prons) == word_first[-1]:
             raise LexiconError(f"word {word!r} has no pronunciation")
         word_first.append(len(prons))
+    n_real_prons = len(prons)
+
+    bg = None
+    if filler is not None and filler.enabled:
+        bg = background_words(len(words), grammar.single_word, allow_empty)
+        phones = [u for u, name in enumerate(units.names) if name not in (PAUSE_UNIT, GAP_UNIT)]
+        for v in range(len(words) + 1, bg.n_words + 1):
+            for u in phones if v in bg.fillers else [pause]:
+                g = compose([[[u]]], units)
+                if v in bg.fillers and filler.frame_penalty:
+                    g.self_logp = g.self_logp + filler.frame_penalty
+                    g.arc_logp = g.arc_logp + filler.frame_penalty
+                graphs.append(g)
+                prons.append((units.names[u],))
+                pron_word.append(v)
+            word_first.append(len(prons))
 
     sizes = np.array([g.n_states for g in graphs], dtype=np.int64)
     offsets = np.concatenate([[0], np.cumsum(sizes)])
@@ -234,7 +265,7 @@ def compile_network(
     used_mixtures, mixture = np.unique(model_mixture, return_inverse=True)
     item = np.repeat(np.arange(len(graphs), dtype=np.int64), sizes)
     # A trailing-pause state is one in the second slot of a word's graph.
-    tail = (cat("slot") == 1) & (item >= FIRST_WORD_ITEM)
+    tail = (cat("slot") == 1) & (item >= FIRST_WORD_ITEM) & (item < FIRST_WORD_ITEM + n_real_prons)
 
     src = np.concatenate([g.arc_src.astype(np.int64) + o for g, o in zip(graphs, offsets)])
     dst = np.concatenate([g.arc_dst.astype(np.int64) + o for g, o in zip(graphs, offsets)])
@@ -253,10 +284,18 @@ def compile_network(
     pair_logp = _scaled(prior.pair_logp, grammar.weight) + np.where(prior.pair_next > 0, pen, 0.0)
     pair_first = np.asarray(prior.pair_start, dtype=np.int64)
     backoff = _scaled(prior.backoff, grammar.weight)
+    single_word = bool(grammar.single_word)
+    if bg is not None:
+        unigram, backoff, pair_first, pair_next, pair_logp = extend_links(
+            unigram, backoff, pair_first, np.asarray(prior.pair_next, dtype=np.int64), pair_logp, bg, filler,
+            single_word=single_word, allow_empty=bool(allow_empty))
+        single_word = False  # the link tables carry the rule now
+    else:
+        pair_next = np.asarray(prior.pair_next, dtype=np.int64)
 
     pause_min = graphs[ENTRY_ITEM].min_frames()
     word_min = min(compose([[_unit_ids(words[v - 1], p, units)]], units).min_frames()
-                   for p, v in zip(prons, pron_word))
+                   for p, v in zip(prons[:n_real_prons], pron_word))
     return Network(
         words=words,
         prons=tuple(prons),
@@ -278,9 +317,10 @@ def compile_network(
         unigram=np.ascontiguousarray(unigram),
         backoff=np.ascontiguousarray(backoff),
         pair_first=pair_first,
-        pair_next=np.asarray(prior.pair_next, dtype=np.int64),
+        pair_next=np.ascontiguousarray(pair_next, dtype=np.int64),
         pair_logp=np.ascontiguousarray(pair_logp),
-        single_word=bool(grammar.single_word),
+        single_word=single_word,
         allow_empty=bool(allow_empty),
         min_frames=int(2 * pause_min + word_min),
+        background=bg,
     )

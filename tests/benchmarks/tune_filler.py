@@ -1,0 +1,162 @@
+#!/usr/bin/env python3
+"""Choose the filler and pause penalties on dev material only.
+
+Dev material (no demo test voice, no demo test recording):
+
+* ``words``: the demo training recordings of the dev voices (``dev_candidate`` in
+  ``recordings/voices.csv``), one command each, recognised in the word loop;
+* ``joined``: 2-4 of those recordings of one voice joined by 0.3-1 s gaps of white or pink
+  noise, mains hum or dithered digital silence at -70 to -40 dBFS (as
+  ``joined_pauses.py`` does with the test voices);
+* ``other talk``: the starter corpus's dev recordings (its own dev voices) whose words are
+  none of the lexicon's: every command word recognised there is a false accept.
+
+The model must not have heard the dev voices: adapt the starter on the other training
+voices first, e.g.::
+
+    python tests/benchmarks/tune_filler.py --model dev.model
+
+(``--make-model dev.model`` writes that model first.) Emissions are computed once per
+file; every setting then re-runs only the search.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import sys
+import tempfile
+from collections import defaultdict
+from itertools import product
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parents[1]
+sys.path.insert(0, str(HERE))
+
+from compare_data import dev_voices  # noqa: E402
+from joined_pauses import KINDS, RATE, background  # noqa: E402
+
+
+def _rows(path: Path) -> list[dict]:
+    with open(path, newline="", encoding="utf-8") as fh:
+        return list(csv.DictReader(fh))
+
+
+def make_dev_model(out: Path) -> None:
+    """Adapt the starter on the demo training voices that are not dev voices."""
+    from wordspot import api
+
+    rec = REPO / "recordings"
+    held = set(dev_voices(rec / "voices.csv"))
+    with tempfile.TemporaryDirectory() as tmp:
+        manifest = Path(tmp) / "dev-train.csv"
+        with open(manifest, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(["path", "transcript", "speaker"])
+            for r in _rows(rec / "train.csv"):
+                if r["speaker"] not in held:
+                    w.writerow([str(rec / r["path"]), r["transcript"], r["speaker"]])
+        api.train(manifest, REPO / "lexicon" / "bakery.txt", out=out)
+
+
+def dev_sets(model, n_joined: int, seed: int = 20261203):
+    """(name, list of (waveform, reference words)) for the three dev sets."""
+    from wordspot.audio.reading import load_audio
+
+    rec = REPO / "recordings"
+    held = set(dev_voices(rec / "voices.csv"))
+    words = [r for r in _rows(rec / "train.csv") if r["speaker"] in held]
+    sets = {"words": [(load_audio(rec / r["path"], sample_rate=RATE), r["transcript"].split()) for r in words]}
+
+    rng = np.random.default_rng(seed)
+    by_voice = defaultdict(list)
+    for (wave, ref), r in zip(sets["words"], words):
+        by_voice[r["speaker"]].append((wave, ref))
+    voices = sorted(by_voice)
+    joined = []
+    for i in range(n_joined):
+        pool = by_voice[voices[i % len(voices)]]
+        picks = [pool[k] for k in rng.choice(len(pool), size=rng.integers(2, 5), replace=False)]
+        kind, level = KINDS[i % len(KINDS)], rng.uniform(-70, -40)
+        parts = [background(kind, int(0.3 * RATE), level, rng)]
+        for j, (wave, _) in enumerate(picks):
+            parts.append(wave)
+            gap = int(rng.uniform(0.3, 1.0) * RATE) if j < len(picks) - 1 else int(0.3 * RATE)
+            parts.append(background(kind, gap, level, rng))
+        joined.append((np.concatenate(parts).astype(np.float32), [w for _, ref in picks for w in ref]))
+    sets["joined"] = joined
+
+    vocab = set(model.lexicon.words) | set(_demo_new_words())
+    starter_dev = rec / "starter" / "dev.csv"
+    if starter_dev.exists():
+        other = [r for r in _rows(starter_dev) if not (set(r["transcript"].split()) & vocab)]
+        sets["other talk"] = [(load_audio(starter_dev.parent / r["path"], sample_rate=RATE), []) for r in other]
+    else:
+        print(f"note: {starter_dev} is missing (python recordings/starter.py build); no 'other talk' set")
+    return sets
+
+
+def _demo_new_words() -> list[str]:
+    return [r["transcript"] for r in _rows(REPO / "recordings" / "new-words.csv")]
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--model", type=Path, required=True)
+    ap.add_argument("--make-model", action="store_true", help="adapt the starter on the non-dev voices first")
+    ap.add_argument("--joined", type=int, default=100)
+    ap.add_argument("--phone", type=float, nargs="+", default=[-20.0, -30.0, -40.0, -50.0, -60.0])
+    ap.add_argument("--pause", type=float, nargs="+", default=[0.0, -10.0, -30.0])
+    ap.add_argument("--frame", type=float, nargs="+", default=[0.0])
+    ap.add_argument("--single-word", action="store_true")
+    args = ap.parse_args(argv)
+
+    from wordspot.audio.features import compute_features
+    from wordspot.decoding.decoder import DecoderSettings, build_recognizer
+    from wordspot.evaluation.scoring import align_words
+    from wordspot.model import load_model
+
+    if args.make_model:
+        make_dev_model(args.model)
+    model = load_model(args.model)
+    sets = dev_sets(model, args.joined)
+    base = build_recognizer(model, settings=DecoderSettings(single_word=args.single_word))
+    cached = {name: [(base.emissions(compute_features(w, model.features)), ref) for w, ref in items]
+              for name, items in sets.items()}
+    print(f"model {args.model}; " + ", ".join(f"{k} {len(v)} files" for k, v in cached.items()))
+    print("| filler | phone | pause | frame | " + " | ".join(f"{k}: right, WER" for k in cached) + " |")
+
+    def run(settings):
+        rec = build_recognizer(model, settings=settings)
+        assert np.array_equal(rec.network.used_mixtures, base.network.used_mixtures) or not settings.filler
+        cells = []
+        for name, items in cached.items():
+            right = errors = words = 0
+            for ll, ref in items:
+                ll_used = ll if settings.filler else ll[:, np.searchsorted(base.network.used_mixtures,
+                                                                           rec.network.used_mixtures)]
+                hyp = rec.search(ll_used).words
+                right += hyp == ref
+                a = align_words(ref, hyp)
+                errors += a.substitutions + a.deletions + a.insertions
+                words += len(ref)
+            if name == "other talk":
+                cells.append(f"{100 * (1 - right / len(items)):.1f}% with a word")
+            else:
+                cells.append(f"{100 * right / len(items):.0f}%, {100 * errors / max(words, 1):.1f}%")
+        return cells
+
+    print("| off | | | | " + " | ".join(run(DecoderSettings(filler=False, single_word=args.single_word))) + " |",
+          flush=True)
+    for phone, pause, frame in product(args.phone, args.pause, args.frame):
+        s = DecoderSettings(single_word=args.single_word, filler_penalty=phone, pause_penalty=pause,
+                            filler_frame_penalty=frame)
+        print(f"| on | {phone:g} | {pause:g} | {frame:g} | " + " | ".join(run(s)) + " |", flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,146 @@
+"""Best scores of parts of the network over one stretch of frames (for confidence measures).
+
+After the search has placed a command on frames ``a..b``, two questions tell how sure it
+is: how well would *any* phones explain those frames (the free phone loop, with the pause
+unit), and how well would the *next best* command? Both are Viterbi scores of a piece of
+the compiled network over exactly those frames: a :class:`Piece` holds the states of some
+items with local numbering; :func:`piece_score` runs the recursion, letting a path that
+leaves one item enter any item of the piece again (``reenter_logp`` added) or, with
+``reenter_logp = -inf``, pass through exactly one item.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+
+__all__ = ["Piece", "piece_of", "piece_score", "piece_score_reference"]
+
+_NEG = -np.inf
+
+
+@dataclass(frozen=True)
+class Piece:
+    """States of some items of a network, numbered locally (all int64 / float64 arrays)."""
+
+    mixture: np.ndarray
+    self_logp: np.ndarray
+    arc_first: np.ndarray
+    arc_dst: np.ndarray
+    arc_logp: np.ndarray
+    end_logp: np.ndarray
+    start_state: np.ndarray
+    start_logp: np.ndarray
+
+    @property
+    def n_states(self) -> int:
+        return int(self.mixture.shape[0])
+
+
+def piece_of(net, items) -> Piece:
+    """The states of ``items`` of compiled network ``net`` (arcs stay inside an item)."""
+    items = np.asarray(sorted(set(int(i) for i in items)), dtype=np.int64)
+    keep = np.flatnonzero(np.isin(net.item, items))
+    local = np.full(net.n_states, -1, dtype=np.int64)
+    local[keep] = np.arange(keep.size)
+    arc_first, dst, lp = [0], [], []
+    for s in keep:
+        a, b = net.arc_first[s], net.arc_first[s + 1]
+        dst.extend(local[net.arc_dst[a:b]].tolist())
+        lp.extend(net.arc_logp[a:b].tolist())
+        arc_first.append(len(dst))
+    starts = [(k, net.start_state[k]) for i in items for k in range(net.start_first[i], net.start_first[i + 1])]
+    return Piece(
+        mixture=np.ascontiguousarray(net.mixture[keep]),
+        self_logp=np.ascontiguousarray(net.self_logp[keep]),
+        arc_first=np.array(arc_first, dtype=np.int64),
+        arc_dst=np.array(dst, dtype=np.int64),
+        arc_logp=np.array(lp, dtype=np.float64),
+        end_logp=np.ascontiguousarray(net.end_logp[keep]),
+        start_state=np.array([local[s] for _, s in starts], dtype=np.int64),
+        start_logp=np.array([net.start_logp[k] for k, _ in starts], dtype=np.float64),
+    )
+
+
+@numba.njit(cache=True, nogil=True)
+def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp,
+           start_state, start_logp, reenter_logp):
+    n = mixture.shape[0]
+    cur = np.full(n, _NEG)
+    nxt = np.full(n, _NEG)
+    for k in range(start_state.shape[0]):
+        s = start_state[k]
+        v = start_logp[k] + ll[first, mixture[s]]
+        if v > cur[s]:
+            cur[s] = v
+    for t in range(first + 1, last + 1):
+        for s in range(n):
+            nxt[s] = _NEG
+        ended = _NEG
+        for s in range(n):
+            sc = cur[s]
+            if sc == _NEG:
+                continue
+            if self_logp[s] + sc > nxt[s]:
+                nxt[s] = self_logp[s] + sc
+            for e in range(arc_first[s], arc_first[s + 1]):
+                d = arc_dst[e]
+                if sc + arc_logp[e] > nxt[d]:
+                    nxt[d] = sc + arc_logp[e]
+            if sc + end_logp[s] > ended:
+                ended = sc + end_logp[s]
+        if reenter_logp > _NEG and ended > _NEG:
+            for k in range(start_state.shape[0]):
+                s = start_state[k]
+                v = ended + reenter_logp + start_logp[k]
+                if v > nxt[s]:
+                    nxt[s] = v
+        for s in range(n):
+            if nxt[s] > _NEG:
+                nxt[s] += ll[t, mixture[s]]
+        cur, nxt = nxt, cur
+    best = _NEG
+    for s in range(n):
+        if cur[s] + end_logp[s] > best:
+            best = cur[s] + end_logp[s]
+    return best
+
+
+def piece_score(ll: np.ndarray, first: int, last: int, piece: Piece, reenter_logp: float = _NEG) -> float:
+    """Best log score of a path through ``piece`` covering frames ``first..last`` exactly.
+
+    Parameters
+    ----------
+    ll : ndarray, shape (T, P)
+        Emission log-likelihoods in the network's mixture columns.
+    first, last : int
+        Inclusive frame range.
+    piece : Piece
+    reenter_logp : float
+        Added each time a path leaves an item and enters one again; -inf: one item only.
+    """
+    return float(_score(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
+                        piece.self_logp, piece.arc_first, piece.arc_dst, piece.arc_logp, piece.end_logp,
+                        piece.start_state, piece.start_logp, float(reenter_logp)))
+
+
+def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
+    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+    n = piece.n_states
+    trans = np.full((n, n), _NEG)
+    trans[np.arange(n), np.arange(n)] = piece.self_logp
+    for s in range(n):
+        for e in range(piece.arc_first[s], piece.arc_first[s + 1]):
+            trans[s, piece.arc_dst[e]] = max(trans[s, piece.arc_dst[e]], piece.arc_logp[e])
+    enter = np.full(n, _NEG)
+    for s, lp in zip(piece.start_state, piece.start_logp):
+        enter[s] = max(enter[s], lp)
+    delta = enter + ll[first, piece.mixture]
+    for t in range(first + 1, last + 1):
+        moved = np.max(delta[:, None] + trans, axis=0)
+        ended = np.max(delta + piece.end_logp)
+        moved = np.maximum(moved, ended + reenter_logp + enter)
+        delta = moved + ll[t, piece.mixture]
+    return float(np.max(delta + piece.end_logp))
