@@ -71,6 +71,13 @@ def add_decoder_options(p) -> None:
                    help=f"weight of the word-pair prior (default {d.grammar_weight:g})")
     p.add_argument("--insertion-penalty", type=float, default=d.insertion_penalty,
                    help=f"log score added per word; negative gives fewer words (default {d.insertion_penalty:g})")
+    p.add_argument("--no-filler", action="store_true",
+                   help="let only the commands and the pause explain the audio (no rejection of other talk)")
+    p.add_argument("--filler-penalty", type=float, default=d.filler_penalty,
+                   help="log score added per phone of other talk; lower (more negative) lets more audio "
+                        f"through as commands (default {d.filler_penalty:g})")
+    p.add_argument("--pause-penalty", type=float, default=d.pause_penalty,
+                   help=f"log score added per pause between words (default {d.pause_penalty:g})")
 
 
 def settings_from_args(args) -> DecoderSettings:
@@ -82,6 +89,9 @@ def settings_from_args(args) -> DecoderSettings:
         grammar_weight=args.grammar_weight,
         insertion_penalty=args.insertion_penalty,
         single_word=args.single_word,
+        filler=not args.no_filler,
+        filler_penalty=args.filler_penalty,
+        pause_penalty=args.pause_penalty,
     )
 
 
