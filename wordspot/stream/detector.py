@@ -7,11 +7,13 @@ the file by sliding inwards; it is computed every ``FLOOR_STEP`` frames (0.1 s),
 using the window of the first frame of its group. A quantile rather than the minimum, so that a short dropout
 of digital silence does not pull the floor down.
 
-Speech starts at a frame ``onset_db`` above the floor and goes on while frames stay
-``offset_db`` above it; it ends once ``hangover`` seconds have passed without such a
-frame, at the last frame that was above. Runs shorter than ``min_speech`` are dropped.
+Speech starts at a frame ``onset_db`` above the floor, or up to ``lookback`` seconds earlier
+where the frames before it are already ``offset_db`` above (weak first consonants), and
+goes on while frames stay ``offset_db`` above the floor; it ends once ``hangover`` seconds
+have passed without such a frame, at the last frame that was above. Runs shorter than ``min_speech`` are dropped.
 A stretch is the run with ``padding`` seconds added on both sides (within the file), so
-the decoder's pause model sees background before and after the words. A run that reaches
+the decoder's pause model sees background before and after the words; a stretch starts no
+earlier than the previous one ends, so no sample is recognised twice. A run that reaches
 ``max_stretch`` seconds is cut at its quietest frame in the second half, so the decoder
 never gets more than that (plus padding) at once; the pieces meet without padding.
 
@@ -58,6 +60,7 @@ class DetectorSettings:
     onset_db: float = 10.0
     offset_db: float = 5.0
     min_speech: float = 0.1
+    lookback: float = 0.3
     hangover: float = 0.4
     padding: float = 0.25
     max_stretch: float = 12.0
@@ -66,7 +69,7 @@ class DetectorSettings:
         for name in ("frame_seconds", "hop_seconds", "max_stretch"):
             if not _number(getattr(self, name)) or getattr(self, name) <= 0:
                 raise AudioError(f"DetectorSettings.{name} must be a number > 0, got {getattr(self, name)!r}")
-        for name in ("floor_back", "floor_ahead", "min_speech", "hangover", "padding"):
+        for name in ("floor_back", "floor_ahead", "min_speech", "lookback", "hangover", "padding"):
             if not _number(getattr(self, name)) or getattr(self, name) < 0:
                 raise AudioError(f"DetectorSettings.{name} must be a number >= 0, got {getattr(self, name)!r}")
         if not (_number(self.floor_quantile) and 0 <= self.floor_quantile <= 1):
@@ -144,6 +147,10 @@ class SpeechDetector:
         # the open run: first frame, first sample of its stretch, last frame above the offset
         self._run: tuple[int, int, int] | None = None
         self._pending: list[Stretch] = []
+        self._lookback = frames(s.lookback)
+        self._above_before = np.zeros(0, dtype=bool)
+        self._free_from = 0  # frames before this belong to an earlier run
+        self._prev_end = 0  # end sample of the last stretch (a later one starts no earlier)
 
     # ------------------------------------------------------------------ feeding
 
@@ -182,7 +189,7 @@ class SpeechDetector:
         starts = [s.start for s in self._pending]
         if self._run is not None:
             starts.append(self._run[1])
-        starts.append(max(0, self._next * self.hop - self._pad))
+        starts.append(max(0, (self._next - self._lookback) * self.hop - self._pad))
         return min(starts)
 
     # ------------------------------------------------------------------ deciding
@@ -213,11 +220,17 @@ class SpeechDetector:
         rel = self._energy[t0 - self._e_at : t1 - self._e_at] - self._floors(t0, t1, n_frames)
         loud_on = rel >= s.onset_db
         loud_on_going = rel >= s.offset_db
+        # above the offset, with the last decided frames of earlier chunks in front
+        above = np.concatenate([self._above_before, loud_on_going])
+        shift = self._above_before.shape[0]
         for i in range(t1 - t0):
             t = t0 + i
             if self._run is None:
                 if loud_on[i]:
-                    self._run = (t, max(0, t * self.hop - self._pad), t)
+                    first, k = t, i + shift
+                    while first > self._free_from and t - first < self._lookback and k > 0 and above[k - 1]:
+                        first, k = first - 1, k - 1
+                    self._run = (first, max(self._prev_end, first * self.hop - self._pad), t)
                 continue
             first, start, last = self._run
             if loud_on_going[i]:
@@ -227,13 +240,16 @@ class SpeechDetector:
                 self._close_run()
             elif t - first + 1 >= self._max_run:
                 self._split_run(t)
+        self._above_before = above[above.shape[0] - self._lookback :] if self._lookback else above[:0]
 
     def _close_run(self) -> None:
         first, start, last = self._run
         self._run = None
+        self._free_from = last + 1
         if last - first + 1 < self._min_speech:
             return
         speech_end = last * self.hop + self.frame
+        self._prev_end = speech_end + self._pad
         self._pending.append(Stretch(start=start, end=speech_end + self._pad,
                                      speech_start=max(start, first * self.hop), speech_end=speech_end))
 
@@ -244,6 +260,7 @@ class SpeechDetector:
         seg = self._energy[lo - self._e_at : t + 1 - self._e_at]
         cut = lo + int(np.argmin(seg))  # the first of equally quiet frames
         boundary = cut * self.hop + self.frame // 2
+        self._prev_end = boundary
         if last >= first and min(last, cut) - first + 1 >= self._min_speech:
             self._pending.append(Stretch(start=start, end=boundary, speech_start=max(start, first * self.hop),
                                          speech_end=min(boundary, last * self.hop + self.frame)))

@@ -21,8 +21,9 @@ from wordspot.audio.features import compute_features
 from wordspot.errors import AudioError, DecodingError
 from wordspot.stream.blocks import BlockReader
 from wordspot.stream.detector import DetectorSettings, SpeechDetector, Stretch
+from wordspot.util.progress import ProgressBar
 
-__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "scan_file", "group_words"]
+__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "scan_file", "scan_files", "group_words"]
 
 
 @dataclass(frozen=True)
@@ -175,3 +176,36 @@ def scan_file(recognizer, path, *, settings: ScanSettings | None = None, progres
     except AudioError as exc:
         result.error = str(exc)
     return result
+
+
+def scan_files(recognizer, paths, *, settings: ScanSettings | None = None, jobs: int = 1,
+               quiet: bool = True) -> list[ScanResult]:
+    """Scan files in order; a progress bar per file (seconds read) unless ``quiet``.
+
+    With ``jobs > 1`` that many files are scanned at once in threads (the search kernel
+    releases the interpreter lock) and no bar is drawn.
+    """
+    if not (isinstance(jobs, (int, np.integer)) and jobs >= 1):
+        raise DecodingError(f"jobs must be a whole number >= 1, got {jobs!r}")
+    paths = [os.fspath(p) for p in paths]
+    if jobs > 1 and len(paths) > 1:
+        from joblib import Parallel, delayed
+
+        return Parallel(n_jobs=jobs, prefer="threads")(
+            delayed(scan_file)(recognizer, p, settings=settings) for p in paths)
+    results = []
+    for p in paths:
+        total = _header_seconds(p)
+        with ProgressBar(int(np.ceil(total)), f"scanning {os.path.basename(p)}", quiet=quiet) as bar:
+            results.append(scan_file(recognizer, p, settings=settings,
+                                     progress=lambda seconds: bar.update(int(seconds) - bar.done)))
+    return results
+
+
+def _header_seconds(path) -> float:
+    from wordspot.audio.reading import audio_duration
+
+    try:
+        return audio_duration(path)
+    except AudioError:
+        return 0.0  # scan_file reports the problem
