@@ -78,7 +78,7 @@ def glue(out: Path, items, rng, *, minutes: float | None = None, gap=(2.0, 12.0)
 
         write_gap(lead)
         i = 0
-        while (limit is None and i < len(items)) or (limit is not None and pos < limit):
+        while items and ((limit is None and i < len(items)) or (limit is not None and pos < limit)):
             path, words, s0, s1 = items[i % len(items)]
             speech, rate = sf.read(path, dtype="float64")
             assert rate == RATE

@@ -105,11 +105,11 @@ def test_stretches_never_overlap(rng):
 def test_blocks_give_the_same_stretches_as_the_whole(rng, settings):
     # Streaming-exact by construction (state carried across blocks); checked against one
     # push of everything, for block sizes from one sample up, on bursts of varied length.
-    starts = np.cumsum(rng.uniform(0.3, 3.0, size=25))
+    starts = np.cumsum(rng.uniform(0.5, 4.0, size=25))
     x = _with_bursts(rng, float(starts[-1] + 3), [(a, a + rng.uniform(0.05, 2.5)) for a in starts], bed=-50.0,
                      level=-30.0)
     whole = find_stretches(x, RATE, settings)
-    assert len(whole) >= 10
+    assert len(whole) >= 8
     for sizes in ([1, 7, 160, 401], [16000], list(rng.integers(1, 40000, size=20))):
         assert _in_blocks(x, [int(n) for n in sizes], settings) == whole
 

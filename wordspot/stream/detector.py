@@ -58,10 +58,10 @@ class DetectorSettings:
     floor_ahead: float = 1.0
     floor_quantile: float = 0.1
     onset_db: float = 10.0
-    offset_db: float = 5.0
-    min_speech: float = 0.1
+    offset_db: float = 3.0
+    min_speech: float = 0.2
     lookback: float = 0.3
-    hangover: float = 0.4
+    hangover: float = 0.6
     padding: float = 0.25
     max_stretch: float = 12.0
 
