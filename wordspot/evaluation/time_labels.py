@@ -28,7 +28,7 @@ from pathlib import Path
 from wordspot.corpus import MAX_LISTED_PROBLEMS
 from wordspot.errors import ManifestError
 from wordspot.util.atomic import write_bytes_atomically
-from wordspot.util.textfile import read_user_text
+from wordspot.util.textfile import csv_with_header, read_user_text
 
 __all__ = ["TimedCommand", "LabelledRecording", "read_time_labels", "write_time_labels", "COLUMNS"]
 
@@ -76,21 +76,10 @@ def read_time_labels(path) -> list[LabelledRecording]:
     p, text = read_user_text(path, error=ManifestError, kind="time-label file", missing="time-label file",
                              names="time-label CSV file", save_as="save the time labels as UTF-8 CSV",
                              encoding="utf-8-sig")
-    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+    reader, columns = csv_with_header(p, text, error=ManifestError, required=COLUMNS, kind="time-label file",
+                                      example=",".join(COLUMNS), rows="command")
+    index = {c: columns[c] for c in COLUMNS}
     try:
-        header = next(reader, None)
-        while header is not None and not any(cell.strip() for cell in header):
-            header = next(reader, None)
-        if header is None:
-            raise ManifestError(f"{p}: time-label file is empty; it needs the header `{','.join(COLUMNS)}`")
-        names = [cell.strip().lower() for cell in header]
-        missing = [c for c in COLUMNS if c not in names]
-        if missing:
-            raise ManifestError(
-                f"{p}, line {reader.line_num}: header lacks column(s) {', '.join(missing)}; "
-                f"the first row must be `{','.join(COLUMNS)}` (found: {','.join(names)})"
-            )
-        index = {c: names.index(c) for c in COLUMNS}
         order: dict[Path, list] = {}
         empty_rows: dict[Path, int] = {}
         problems: list[str] = []
