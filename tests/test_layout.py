@@ -18,6 +18,7 @@ LAYERS = (
     ("audio", "language", "acoustic"),
     ("corpus", "model"),
     ("training", "decoding"),
+    ("stream",),
     ("evaluation",),
     ("api", "demo"),
     ("web",),

@@ -1,4 +1,4 @@
-"""The Python interface: the same four jobs as the command line.
+"""The Python interface: the same jobs as the command line.
 
 >>> import wordspot
 >>> model = wordspot.train("my-takes/train.csv", "lexicon/bakery.txt", out="bakery.model")  # doctest: +SKIP
@@ -7,6 +7,8 @@
 ['oven start']
 >>> wordspot.evaluate(model, "my-takes/held-out.csv").result.wer                           # doctest: +SKIP
 0.012
+>>> [(c.start, c.text) for c in wordspot.scan(model, "morning.flac")[0].commands]           # doctest: +SKIP
+[(83.45, 'oven start'), (312.9, 'timer five minutes')]
 """
 
 from __future__ import annotations
@@ -14,7 +16,7 @@ from __future__ import annotations
 from dataclasses import replace
 from pathlib import Path
 
-__all__ = ["train", "load", "recognize", "evaluate"]
+__all__ = ["train", "load", "recognize", "evaluate", "scan", "evaluate_scan"]
 
 
 def _lexicon(lexicon):
@@ -116,3 +118,59 @@ def evaluate(model, manifest, *, lexicon=None, prior=None, single_word: bool = F
 
     return evaluate_manifest(_model(model), manifest, settings=_settings(settings, single_word),
                              lexicon=_lexicon(lexicon), prior=prior, jobs=jobs, n_bootstrap=n_bootstrap)
+
+
+def _scan_settings(scan_settings, min_confidence):
+    from wordspot.stream.scan import ScanSettings
+
+    scan_settings = scan_settings or ScanSettings()
+    return scan_settings if min_confidence is None else replace(scan_settings, min_confidence=min_confidence)
+
+
+def scan(model, paths, *, lexicon=None, prior=None, settings=None, scan_settings=None, min_confidence=None,
+         jobs: int = 1, quiet: bool = True):
+    """Find the commands in recordings of any length (``wordspot scan``).
+
+    Parameters
+    ----------
+    model : AcousticModel or model file
+    paths : path or list of paths
+    lexicon, prior, settings
+        As for :func:`recognize`.
+    scan_settings : wordspot.stream.scan.ScanSettings, optional
+        Speech detection, block size, confidence threshold, pause that splits commands.
+    min_confidence : float, optional
+        Overrides ``scan_settings.min_confidence``: words below it are dropped.
+
+    Returns
+    -------
+    list of wordspot.stream.scan.ScanResult
+        One per file, in order: ``.commands`` (start, end, words, confidence), ``.duration``
+        and ``.error`` (set when the file could not be read).
+    """
+    from wordspot.decoding.decoder import build_recognizer
+    from wordspot.stream.scan import scan_files
+
+    if isinstance(paths, (str, Path)):
+        paths = [paths]
+    recognizer = build_recognizer(_model(model), settings=settings, lexicon=_lexicon(lexicon), prior=prior)
+    return scan_files(recognizer, paths, settings=_scan_settings(scan_settings, min_confidence), jobs=jobs,
+                      quiet=quiet)
+
+
+def evaluate_scan(model, labels, *, lexicon=None, prior=None, settings=None, scan_settings=None,
+                  min_confidence=None, jobs: int = 1, quiet: bool = True):
+    """Scan the recordings of a time-label file and score the commands found.
+
+    Returns
+    -------
+    wordspot.evaluation.scan_run.ScanEvaluation
+        ``.score`` (hits, misses, false accepts per hour, boundary errors) and each file's
+        result.
+    """
+    from wordspot.decoding.decoder import build_recognizer
+    from wordspot.evaluation.scan_run import evaluate_scan as _evaluate_scan
+
+    recognizer = build_recognizer(_model(model), settings=settings, lexicon=_lexicon(lexicon), prior=prior)
+    return _evaluate_scan(recognizer, labels, settings=_scan_settings(scan_settings, min_confidence), jobs=jobs,
+                          quiet=quiet)

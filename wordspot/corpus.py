@@ -19,14 +19,13 @@ one error, so a user can fix them all in one go.
 from __future__ import annotations
 
 import csv
-import io
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Sequence
 
 from wordspot.errors import ManifestError
 from wordspot.language.lexicon import invalid_word_character
-from wordspot.util.textfile import read_user_text
+from wordspot.util.textfile import csv_with_header, read_user_text
 
 __all__ = ["Utterance", "read_manifest", "check_manifest", "MAX_LISTED_PROBLEMS"]
 
@@ -88,24 +87,11 @@ def read_manifest(path) -> list[Utterance]:
                              save_as="save the manifest as UTF-8 CSV", encoding="utf-8-sig")
     if "\x00" in text:
         raise ManifestError(f"{p}: holds NUL characters, so it is not a CSV text file")
-    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+    reader, columns = csv_with_header(p, text, error=ManifestError, required=_REQUIRED, kind="manifest",
+                                      example="path,transcript,speaker", rows="recording")
     try:
-        header = next(reader, None)
-        while header is not None and not any(cell.strip() for cell in header):
-            header = next(reader, None)
-        if header is None:
-            raise ManifestError(
-                f"{p}: manifest is empty; it needs a header row `path,transcript,speaker` and one row per recording"
-            )
-        names = [cell.strip().lower() for cell in header]
-        missing = [c for c in _REQUIRED if c not in names]
-        if missing:
-            raise ManifestError(
-                f"{p}, line {reader.line_num}: header lacks column(s) {', '.join(missing)}; "
-                f"the first row must name the columns, e.g. `path,transcript,speaker` (found: {','.join(names)})"
-            )
-        i_path, i_text = names.index("path"), names.index("transcript")
-        i_speaker = names.index("speaker") if "speaker" in names else None
+        i_path, i_text = columns["path"], columns["transcript"]
+        i_speaker = columns.get("speaker")
         base = p.parent
         utterances: list[Utterance] = []
         problems: list[str] = []

@@ -21,7 +21,7 @@ import soxr
 from wordspot.errors import AudioError, AudioWarning
 from wordspot.util.textfile import check_is_file
 
-__all__ = ["MIN_DURATION", "load_audio", "audio_duration", "check_waveform"]
+__all__ = ["MIN_DURATION", "open_audio", "load_audio", "audio_duration", "check_waveform", "short_reason"]
 
 #: Shortest recording accepted, in seconds (a spoken command takes longer than this).
 MIN_DURATION = 0.1
@@ -56,7 +56,7 @@ def _open_header(path: Path, opener=soundfile.info):
         opened = opener(str(path))
     except (RuntimeError, soundfile.SoundFileError, OSError, ValueError) as exc:
         raise AudioError(
-            f"{path}: cannot read this audio file ({_short(exc)}); "
+            f"{path}: cannot read this audio file ({short_reason(exc)}); "
             "it may be damaged, truncated or in an unsupported format; re-export it as WAV or FLAC"
         ) from None
     if opened.samplerate <= 0:
@@ -66,7 +66,8 @@ def _open_header(path: Path, opener=soundfile.info):
     return opened
 
 
-def _short(exc: BaseException) -> str:
+def short_reason(exc: BaseException) -> str:
+    """An exception's message on one line, at most 120 characters (for error messages)."""
     text = " ".join(str(exc).split())
     return text if len(text) <= 120 else text[:117] + "..."
 
@@ -101,6 +102,32 @@ def _wav_data_shortfall(path: Path) -> tuple[int, int] | None:
     except OSError:
         return None
     return None
+
+
+def open_audio(path) -> soundfile.SoundFile:
+    """Open an audio file for reading after the checks every reader makes.
+
+    The file must exist, have a readable header with a sample rate above zero and, for
+    WAV files, hold every byte its header promises. Use it as a context manager.
+
+    Raises
+    ------
+    AudioError
+        Missing, unreadable or truncated file (the message names it).
+    """
+    p = _as_path(path)
+    _check_exists(p)
+    handle = _open_header(p, soundfile.SoundFile)
+    # only RIFF/WAVE files can be cut short unnoticed (see _wav_data_shortfall)
+    shortfall = _wav_data_shortfall(p) if str(handle.format).startswith("WAV") else None
+    if shortfall is not None:
+        handle.close()
+        promised, present = shortfall
+        raise AudioError(
+            f"{p}: file is truncated (header promises {promised} bytes of samples, "
+            f"only {max(present, 0)} are there); copy or record it again"
+        )
+    return handle
 
 
 def check_waveform(wave: np.ndarray, *, source: str = "<array>") -> None:
@@ -186,22 +213,13 @@ def load_audio(path, *, sample_rate: int = 16000) -> np.ndarray:
     if isinstance(sample_rate, bool) or not isinstance(sample_rate, (int, np.integer)) or sample_rate <= 0:
         raise AudioError(f"sample_rate must be a positive whole number of Hz, got {sample_rate!r}")
     p = _as_path(path)
-    _check_exists(p)
-    with _open_header(p, soundfile.SoundFile) as handle:  # one open for header and samples
+    with open_audio(p) as handle:  # one open for header and samples
         file_rate = handle.samplerate
-        # only RIFF/WAVE files can be cut short unnoticed (see _wav_data_shortfall)
-        shortfall = _wav_data_shortfall(p) if str(handle.format).startswith("WAV") else None
-        if shortfall is not None:
-            promised, present = shortfall
-            raise AudioError(
-                f"{p}: file is truncated (header promises {promised} bytes of samples, "
-                f"only {max(present, 0)} are there); copy or record it again"
-            )
         try:
             data = handle.read(dtype="float32", always_2d=True)
         except (RuntimeError, soundfile.SoundFileError, OSError, ValueError, MemoryError) as exc:
             raise AudioError(
-                f"{p}: cannot read the samples ({_short(exc)}); the file may be damaged or truncated; "
+                f"{p}: cannot read the samples ({short_reason(exc)}); the file may be damaged or truncated; "
                 "re-export it as WAV or FLAC"
             ) from None
     if data.shape[0] == 0 or data.shape[1] == 0:

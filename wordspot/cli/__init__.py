@@ -27,6 +27,7 @@ _COMMANDS = {
     "record": "record takes of every word in the browser, then train and try the model",
     "train": "train an acoustic model from recordings and their transcripts",
     "recognize": "recognise the words spoken in audio files",
+    "scan": "find the commands said in long recordings, with their times",
     "evaluate": "measure word error rate on held-out recordings",
     "lexicon": "check a lexicon file or suggest pronunciations for new words",
 }
@@ -40,6 +41,7 @@ examples (a bakery: bakers with dough on their hands call out commands):
   wordspot lexicon suggest proof knead            pronunciations for two new command words
   wordspot train my-takes/train.csv --lexicon bakery.txt --out bakery.model
   wordspot recognize --model bakery.model oven-start.wav
+  wordspot scan --model bakery.model morning.flac  commands in a long recording, with times
   wordspot evaluate --model bakery.model my-takes/held-out.csv
 
 Voice commands are a convenience, never a safety device: keep a physical stop within

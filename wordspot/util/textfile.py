@@ -1,11 +1,13 @@
-"""Reading a user's files (manifest, lexicon; audio paths) with one clear error per problem."""
+"""Reading a user's files (manifest, lexicon, time labels; audio paths) with one clear error per problem."""
 
 from __future__ import annotations
 
+import csv
+import io
 import os
 from pathlib import Path
 
-__all__ = ["read_user_text", "check_is_file"]
+__all__ = ["read_user_text", "check_is_file", "csv_with_header"]
 
 
 def read_user_text(path, *, error: type, kind: str, missing: str, names: str, save_as: str,
@@ -59,3 +61,46 @@ def check_is_file(path: Path, *, error: type, not_found: str, is_folder: str) ->
         raise error(f"{path}: {not_found}")
     if folder:
         raise error(f"{path}: {is_folder}")
+
+
+def csv_with_header(p: Path, text: str, *, error: type, required, kind: str, example: str, rows: str):
+    """Start reading CSV ``text`` of file ``p``: skip blank lines, check the header.
+
+    Parameters
+    ----------
+    required : sequence of str
+        Column names the header must hold (compared lower-case, without spaces).
+    kind, example, rows : str
+        For messages: what the file is ("manifest"), its header (``path,transcript,speaker``)
+        and what a row stands for ("recording").
+
+    Returns
+    -------
+    reader : csv.reader
+        Positioned after the header (``reader.line_num`` gives line numbers).
+    index : dict
+        Column name -> position, for every column of the header.
+
+    Raises
+    ------
+    error
+        The file is empty or the header lacks a required column; a ``csv.Error`` while
+        reading the header is turned into one too.
+    """
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+    try:
+        header = next(reader, None)
+        while header is not None and not any(cell.strip() for cell in header):
+            header = next(reader, None)
+    except csv.Error as exc:
+        raise error(f"{p}, line {reader.line_num}: not valid CSV ({exc}); check quotes and commas") from None
+    if header is None:
+        raise error(f"{p}: {kind} is empty; it needs a header row `{example}` and one row per {rows}")
+    names = [cell.strip().lower() for cell in header]
+    missing = [c for c in required if c not in names]
+    if missing:
+        raise error(
+            f"{p}, line {reader.line_num}: header lacks column(s) {', '.join(missing)}; "
+            f"the first row must name the columns, e.g. `{example}` (found: {','.join(names)})"
+        )
+    return reader, {name: i for i, name in reversed(list(enumerate(names)))}

@@ -1,0 +1,8 @@
+"""Long recordings: reading them in blocks, finding the stretches with speech, and
+recognising each stretch, with memory that stays flat in the recording's length.
+
+``blocks`` reads and resamples a file piece by piece, ``detector`` finds speech stretches
+(energy against an adaptive noise floor, the same stretches whatever the block size), and
+``scan`` runs the ordinary recognizer on each stretch and turns its words into timed
+commands.
+"""

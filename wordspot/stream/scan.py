@@ -1,0 +1,211 @@
+"""Finding commands in recordings of any length.
+
+A file is read in blocks (:mod:`wordspot.stream.blocks`); the speech detector
+(:mod:`wordspot.stream.detector`) marks the stretches with speech; each stretch is
+recognised as one utterance by the ordinary recognizer (features with the model's
+settings, normalised over the stretch, then token passing); the words are moved to times
+from the start of the file. The words of one stretch form one command, unless a pause of
+more than ``split_pause`` seconds lies between two of them. Only the samples of the
+stretch in progress and one block are held, so memory does not grow with the length of
+the recording.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from wordspot.audio.features import compute_features
+from wordspot.errors import AudioError, DecodingError
+from wordspot.stream.blocks import BlockReader
+from wordspot.stream.detector import DetectorSettings, SpeechDetector, Stretch
+from wordspot.util.progress import ProgressBar
+
+__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "scan_file", "scan_files", "group_words"]
+
+
+@dataclass(frozen=True)
+class ScanSettings:
+    """How long recordings are scanned.
+
+    Parameters
+    ----------
+    detector : DetectorSettings
+        How speech stretches are found.
+    block_seconds : float > 0
+        Seconds of audio read at a time (does not change the result).
+    min_confidence : float in [0, 1]
+        Words of lower confidence are dropped before commands are formed.
+    split_pause : float >= 0
+        A longer pause between two words of one stretch starts a new command.
+    """
+
+    detector: DetectorSettings = field(default_factory=DetectorSettings)
+    block_seconds: float = 30.0
+    min_confidence: float = 0.0
+    split_pause: float = 0.5
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.detector, DetectorSettings):
+            raise DecodingError(f"ScanSettings.detector must be a DetectorSettings, got {type(self.detector).__name__}")
+        if not (isinstance(self.block_seconds, (int, float)) and self.block_seconds > 0):
+            raise DecodingError(f"block_seconds must be a number of seconds > 0, got {self.block_seconds!r}")
+        if not (isinstance(self.min_confidence, (int, float)) and 0 <= self.min_confidence <= 1):
+            raise DecodingError(f"min_confidence must be between 0 and 1, got {self.min_confidence!r}")
+        if not (isinstance(self.split_pause, (int, float)) and self.split_pause >= 0):
+            raise DecodingError(f"split_pause must be a number of seconds >= 0, got {self.split_pause!r}")
+
+
+@dataclass(frozen=True)
+class FoundWord:
+    """A recognised word with times in seconds from the start of the file."""
+
+    word: str
+    start: float
+    end: float
+    confidence: float
+
+
+@dataclass(frozen=True)
+class FoundCommand:
+    """Words said together: times from the start of the file, the lowest word confidence."""
+
+    path: str
+    start: float
+    end: float
+    words: tuple[str, ...]
+    confidence: float
+    parts: tuple[FoundWord, ...] = ()
+
+    @property
+    def text(self) -> str:
+        return " ".join(self.words)
+
+
+@dataclass
+class ScanResult:
+    """One file's commands, how long it is, how many stretches were recognised, any error."""
+
+    path: str
+    commands: list[FoundCommand] = field(default_factory=list)
+    duration: float = 0.0
+    stretches: int = 0
+    error: str = ""
+
+
+def group_words(path: str, words, split_pause: float) -> list[FoundCommand]:
+    """Group time-ordered words into commands at pauses longer than ``split_pause``."""
+    groups: list[list[FoundWord]] = []
+    for w in words:
+        if groups and w.start - groups[-1][-1].end <= split_pause:
+            groups[-1].append(w)
+        else:
+            groups.append([w])
+    return [
+        FoundCommand(path=path, start=g[0].start, end=g[-1].end, words=tuple(w.word for w in g),
+                     confidence=min(w.confidence for w in g), parts=tuple(g))
+        for g in groups
+    ]
+
+
+def _recognise(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
+               path: str) -> list[FoundCommand]:
+    if wave.shape[0] < recognizer.features.window_length:
+        return []
+    result = recognizer.decode(compute_features(wave, recognizer.features))
+    offset = stretch.start / rate
+    words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
+             for s in result.segments if s.confidence >= settings.min_confidence]
+    return group_words(path, words, settings.split_pause)
+
+
+def scan_file(recognizer, path, *, settings: ScanSettings | None = None, progress=None) -> ScanResult:
+    """Find the commands in one audio file of any length.
+
+    Parameters
+    ----------
+    recognizer : wordspot.decoding.decoder.Recognizer
+        Built once with :func:`~wordspot.decoding.decoder.build_recognizer`.
+    path : str or os.PathLike
+    settings : ScanSettings, optional
+    progress : callable, optional
+        Called with the seconds of the file read so far after each block.
+
+    Returns
+    -------
+    ScanResult
+        Commands in time order; ``error`` set (and the commands up to the fault kept) when
+        the file cannot be read.
+    """
+    settings = settings or ScanSettings()
+    rate = recognizer.features.sample_rate
+    name = os.fspath(path)
+    result = ScanResult(path=name)
+    try:
+        reader = BlockReader(path, rate, block_seconds=settings.block_seconds)
+    except AudioError as exc:
+        result.error = str(exc)
+        return result
+    result.duration = reader.duration
+    detector = SpeechDetector(rate, settings.detector)
+    held = np.zeros(0, dtype=np.float32)  # samples [held_at, held_at + len(held))
+    held_at = 0
+    read = 0
+
+    def handle(stretches):
+        for st in stretches:
+            wave = held[st.start - held_at : st.end - held_at]
+            result.commands.extend(_recognise(recognizer, wave, st, rate, settings, name))
+            result.stretches += 1
+
+    try:
+        with reader:
+            for block in reader:
+                held = np.concatenate([held, block])
+                handle(detector.push(block))
+                read += block.shape[0]
+                drop = detector.keep_from - held_at
+                if drop > 0:
+                    held = held[drop:]
+                    held_at += drop
+                if progress is not None:
+                    progress(read / rate)
+            handle(detector.finish())
+    except AudioError as exc:
+        result.error = str(exc)
+    return result
+
+
+def scan_files(recognizer, paths, *, settings: ScanSettings | None = None, jobs: int = 1,
+               quiet: bool = True) -> list[ScanResult]:
+    """Scan files in order; a progress bar per file (seconds read) unless ``quiet``.
+
+    With ``jobs > 1`` that many files are scanned at once in threads (the search kernel
+    releases the interpreter lock) and no bar is drawn.
+    """
+    if not (isinstance(jobs, (int, np.integer)) and jobs >= 1):
+        raise DecodingError(f"jobs must be a whole number >= 1, got {jobs!r}")
+    paths = [os.fspath(p) for p in paths]
+    if jobs > 1 and len(paths) > 1:
+        from joblib import Parallel, delayed
+
+        return Parallel(n_jobs=jobs, prefer="threads")(
+            delayed(scan_file)(recognizer, p, settings=settings) for p in paths)
+    results = []
+    for p in paths:
+        total = _header_seconds(p)
+        with ProgressBar(int(np.ceil(total)), f"scanning {os.path.basename(p)}", quiet=quiet) as bar:
+            results.append(scan_file(recognizer, p, settings=settings,
+                                     progress=lambda seconds: bar.update(int(seconds) - bar.done)))
+    return results
+
+
+def _header_seconds(path) -> float:
+    from wordspot.audio.reading import audio_duration
+
+    try:
+        return audio_duration(path)
+    except AudioError:
+        return 0.0  # scan_file reports the problem
