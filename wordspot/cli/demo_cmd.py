@@ -35,7 +35,8 @@ def add_parser(sub, **options):
         **options,
         description="Build three models of the bakery commands (the shipped starter alone, the starter "
         "adapted on the demo's training recordings, and one trained from scratch), evaluate each on "
-        "every demo test set (clean, noisy at 20/10/5 dB, phrases, new words) and print one table.",
+        "every demo test set (clean, noisy at 20/10/5 dB, phrases, new words) and print one table, then the "
+        "test commands among recordings with no command (miss rate, false accepts) and the long recordings.",
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
