@@ -7,7 +7,8 @@ Real users train on their own voice (see the README's quick tour).
 Three kinds of row: word sets (the WER table); the test commands among the distractors,
 files with no command (miss rate, share of those files with a recognised word, false
 accepts per hour); and the long recordings with embedded commands (``long.csv``), which
-need ``wordspot.api.scan``: a build without it says so in the table.
+need the long-recording scan (``wordspot.api.scan``, handed in by the command line): a
+build without it says so in the table.
 """
 
 from __future__ import annotations
@@ -180,21 +181,20 @@ def read_long_reference(manifest: Path) -> LongReference:
     return LongReference(manifest, files, sum(1 for row in rows if row["words"].strip()), seconds)
 
 
-def long_row(model, reference: LongReference, *, jobs: int = 1) -> DemoRow:
-    """The long recordings' row: ``wordspot.api.scan`` on each file, or a note that it is missing.
+def long_row(model, reference: LongReference, *, scan=None, jobs: int = 1) -> DemoRow:
+    """The long recordings' row: ``scan`` on each file, or a note that this build has none.
 
-    The long-recording command (``api.scan`` and its timed scoring against ``long.csv``) is
-    built separately; a build without ``api.scan`` reports the reference alone.
+    ``scan`` is the long-recording function (``wordspot.api.scan`` where the build has it;
+    the command line passes it), called as ``scan(model, path, jobs=jobs)``; None reports
+    the reference alone.
     """
-    from wordspot import api
-
     base = dict(name="long", utterances=len(reference.files), words=reference.commands, wer=float("nan"),
                 wer_ci95=(float("nan"), float("nan")), substitutions=0, deletions=0, insertions=0,
                 kind="long", seconds=reference.seconds)
-    if not hasattr(api, "scan"):
+    if scan is None:
         return DemoRow(note="long-recording results: not available in this build", **base)
-    found = [api.scan(model, path, jobs=jobs) for path in reference.files]
-    return DemoRow(note=f"{sum(len(f) for f in found)} commands found by wordspot.api.scan", **base)
+    found = [scan(model, path, jobs=jobs) for path in reference.files]
+    return DemoRow(note=f"{sum(len(f) for f in found)} commands found by the long-recording scan", **base)
 
 
 #: The demo's systems, in table order: name -> what it is.
@@ -239,8 +239,10 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
 
 
 def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, systems=tuple(SYSTEMS),
-             jobs: int = 2, quiet: bool = False, say=print):
+             jobs: int = 2, quiet: bool = False, say=print, scan=None):
     """Build each system's model (or load ``model_path``) and evaluate it on every demo set.
+
+    ``scan`` is the long-recording function for the ``long`` row (see `long_row`).
 
     Returns
     -------
@@ -280,7 +282,7 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
             rows.append(demo_row(ds, ev.result))
             evs.append(ev)
         if (folder / "long.csv").is_file():
-            rows.append(long_row(model, read_long_reference(folder / "long.csv"), jobs=jobs))
+            rows.append(long_row(model, read_long_reference(folder / "long.csv"), scan=scan, jobs=jobs))
         results[name], evaluations[name] = rows, evs
     return results, files, evaluations, seconds
 
