@@ -37,6 +37,7 @@ import sys
 import tempfile
 import time
 import zlib
+from collections import Counter
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -84,6 +85,109 @@ BABBLE_TEXT = (
     "the train was late because of leaves on the line near the bridge",
     "our neighbours are planting roses and tulips along their fence",
 )
+
+# Distractors and long-recording talk: bakery and kitchen words and sentences of our own that
+# are no command. The generator refuses any text holding a command word, a new word, one of
+# their plurals or a listed sound-alike of one (``check_not_commands``).
+DISTRACTOR_WORDS = (
+    "flour butter sugar honey yeast apron basket ladle whisk spoon kettle napkin counter shelf "
+    "tray crust pastry muffin biscuit cookie cherry lemon almond walnut raisin cinnamon vanilla "
+    "ginger cream cheese pumpkin apple croissant bagel pretzel scone waffle pancake cupboard "
+    "fridge freezer saucepan spatula sieve jug custard icing sprinkles bucket towel broom "
+    "customer delivery morning "
+    # near a command in sound on purpose (mixer, stop, six, next, repeat, timer)
+    "mister stock sticks nest reheat timber"
+).split()
+
+DISTRACTOR_SENTENCES = (
+    "the rolls need a little more salt today",
+    "could you pass me the big wooden spoon",
+    "the flour delivery came early this morning",
+    "my hands are covered in sticky butter",
+    "these croissants look lovely and golden",
+    "we are almost out of brown sugar",
+    "please wipe the counter when you have a moment",
+    "the customers liked the lemon tarts yesterday",
+    "put the cooling rack by the window",
+    "i think the cherry jam needs more sugar",
+    "the apron hook by the door is broken",
+    "have you seen the big blue bowl",
+    "the cinnamon buns sell out every saturday",
+    "let me wash my hands first",
+    "the pastry should rest in the cold room",
+    "this batch of scones came out well",
+    "the walnut loaf smells wonderful",
+    "can somebody sweep the floor near the sink",
+    "the crust on this tart is a bit pale",
+    "we should order more vanilla and almonds",
+    "the kettle is boiling in the staff room",
+    "keep the broken biscuits aside",
+    "the honey cake needs a thin layer of icing",
+    "my sister is coming in at noon today",
+    "the pumpkin muffins were a hit last week",
+    "grab a clean towel from the shelf",
+    "the ginger snaps are in the round tin",
+    "the sieve is hanging above the sink",
+    "we sold every bagel before lunch",
+    "the window display needs fresh flowers",
+)
+
+LONG_TALK = (
+    "good morning everyone the shop opens in half an hour",
+    "the rye loaves need a little longer in the tins",
+    "somebody left the flour sack open again",
+    "the baguettes are cooling on the rack by the door",
+    "we have a big order of rolls from the cafe",
+    "i will glaze the fruit buns after this tray",
+    "the butter is still very hard",
+    "please keep the side door shut",
+    "the apricot pastries sold well on saturday",
+    "did anybody taste the new rhubarb filling",
+    "the poppy seed rolls look a bit flat today",
+    "let us make extra cheese scones this afternoon",
+    "the floor near the sink is slippery",
+    "i like the smell of toasted hazelnuts",
+    "the delivery van is parked across the street",
+    "we need more paper bags at the till",
+    "the chocolate brownies are cut and wrapped",
+    "the lady from the flower shop wants a birthday cake",
+    "my arms are tired from kneading all morning",
+    "the sesame bagels go in the basket on the left",
+    "wipe the scales when you finish weighing",
+    "the plum tart could use a pinch of sugar",
+    "the light in the cold room flickers",
+    "they painted the cafe across the road",
+    "the raisin buns are a customer favourite",
+    "please bring the spare apron from the cupboard",
+    "the crumb cake needs a little more butter",
+    "we ran out of oat milk at lunchtime",
+    "the almond croissants are still warm",
+    "the window glass is steamed up again",
+)
+
+#: Words that sound like a command or new word (same pronunciation in the CMU dictionary),
+#: refused in distractor and talk text along with the words themselves and their plurals.
+SOUND_ALIKES = ("to", "too", "for", "fore", "won", "ate", "know", "paws", "doe", "bred", "oh")
+
+#: Kitchen noise recipes (``make_noise``): the two of test-noisy and three more.
+KITCHEN_NOISES = ("mixer", "fan", "clatter", "water", "babble")
+DISTRACTOR_NOISE_CLIPS = 12          # per recipe
+DISTRACTOR_NOISE_SECONDS = (1.0, 4.0)
+DISTRACTOR_NOISE_DBFS = (-45.0, -30.0)  # RMS of a noise-only clip
+NOISE_PEAK_LIMIT = 10 ** (-12 / 20)  # noise peaks, so speech (< -3 dBFS) plus noise never clips
+
+# Long recordings: talk, kitchen noise, quiet and embedded commands, 1-2 minutes each.
+LONG_RECORDINGS = 6
+LONG_COMMANDS = (10, 15)        # embedded commands per recording (inclusive)
+LONG_TALK_SENTENCES = (9, 13)   # inclusive
+LONG_COMMAND_GAP_S = (0.5, 3.0)  # pause between a command and the speech next to it
+LONG_TALK_GAP_S = (0.3, 1.2)     # pause between two talk sentences
+LONG_QUIET_S = (2.0, 6.0)        # a stretch of room tone only (between talk sentences)
+LONG_NOISE_ALONE_S = (1.5, 4.0)  # a stretch of noise without speech (between talk sentences)
+LONG_NOISE_ALONE_DBFS = (-46.0, -30.0)
+LONG_BED_DBFS = (-52.0, -36.0)   # noise under speech
+LONG_ENDS_S = (0.5, 2.0)         # room tone at the start and the end
+LONG_SECONDS = (60.0, 120.0)     # the generator refuses a recording outside this length
 
 ESPEAK_BASE_RATE = 175   # words a minute (engine default)
 ESPEAK_BASE_PITCH = 50   # 0..99 (engine default)
@@ -260,6 +364,181 @@ def plan(seed: int) -> tuple[dict[str, list[Take]], list[NoisyTake]]:
     return sets, noisy
 
 
+def check_not_commands(texts, what: str) -> None:
+    """Refuse text that holds a command word, a new word, a plural of one or a sound-alike."""
+    banned = set(VOCABULARY) | set(NEW_WORDS) | set(SOUND_ALIKES)
+    banned |= {w + "s" for w in VOCABULARY + list(NEW_WORDS)}
+    for text in texts:
+        _check_text(text)
+        clash = sorted(set(text.split()) & banned)
+        if clash:
+            raise CorpusError(f"{what} {text!r} holds command or new words {clash}; reword it")
+
+
+@dataclass(frozen=True)
+class NoiseClip:
+    """One noise-only distractor file: kitchen noise over room tone, no speech."""
+
+    kind: str
+    rel_path: str
+    seconds: float
+    dbfs: float
+
+
+def plan_distractors(seed: int) -> tuple[list[Take], list[NoiseClip]]:
+    """The distractor set: words and sentences by the test voices, then noise-only clips.
+
+    Each word and each sentence is spoken by two test voices (rotating pairs), so every
+    voice says as many as the others; noise clips take their length and level from the seed.
+    """
+    check_not_commands(DISTRACTOR_WORDS, "distractor word")
+    check_not_commands(DISTRACTOR_SENTENCES, "distractor sentence")
+    voices = [v for v in VOICES if v.split == "test"]
+    takes = []
+    for i, word in enumerate(DISTRACTOR_WORDS):
+        for voice in (voices[i % 5], voices[(i + 2) % 5]):
+            rel = f"audio/distractors/{voice.voice_id}/w-{word}.flac"
+            takes.append(Take("distractors", voice, word, 1, rel))
+    for i, sentence in enumerate(DISTRACTOR_SENTENCES):
+        for voice in (voices[i % 5], voices[(i + 1) % 5]):
+            rel = f"audio/distractors/{voice.voice_id}/s{i + 1:02d}-{slug(' '.join(sentence.split()[:4]))}.flac"
+            takes.append(Take("distractors", voice, sentence, 1, rel))
+    clips = []
+    for kind in KITCHEN_NOISES:
+        for j in range(1, DISTRACTOR_NOISE_CLIPS + 1):
+            rel = f"audio/distractors/noise/{kind}-{j:02d}.flac"
+            rng = rng_for(seed, "clip/" + rel)
+            clips.append(NoiseClip(kind, rel, float(rng.uniform(*DISTRACTOR_NOISE_SECONDS)),
+                                   float(rng.uniform(*DISTRACTOR_NOISE_DBFS))))
+    return takes, clips
+
+
+@dataclass(frozen=True)
+class LongEvent:
+    """One stretch of a long recording, in time order.
+
+    ``kind`` is "talk" or "command" (``take`` is the speech), "quiet" (room tone only) or
+    "noise" (kitchen noise ``noise`` alone, at ``dbfs``); ``gap_s`` is the pause before it.
+    """
+
+    kind: str
+    gap_s: float
+    take: Take | None = None
+    seconds: float = 0.0
+    noise: str = ""
+    dbfs: float = 0.0
+
+
+@dataclass(frozen=True)
+class NoiseBed:
+    """Kitchen noise running under the speech events ``first`` to ``last`` (inclusive)."""
+
+    noise: str
+    first: int
+    last: int
+    before_s: float
+    after_s: float
+    dbfs: float
+
+
+@dataclass(frozen=True)
+class LongPlan:
+    """One long recording: its events, the noise under them and the room tone."""
+
+    rel_path: str
+    voice: Voice
+    events: tuple[LongEvent, ...]
+    beds: tuple[NoiseBed, ...]
+    lead_s: float
+    tail_s: float
+    tone_dbfs: float
+    tone_pole: float
+
+    @property
+    def takes(self) -> list[Take]:
+        return [e.take for e in self.events if e.take is not None]
+
+
+def plan_long(seed: int) -> list[LongPlan]:
+    """The long recordings: talk sentences with commands, quiet and noise between and under.
+
+    Commands sit in the pauses between talk sentences (one to several in a row, each with a
+    pause of ``LONG_COMMAND_GAP_S`` on both sides); quiet and noise-alone stretches sit only
+    between two talk sentences, so every command keeps its short pauses.
+    """
+    check_not_commands(LONG_TALK, "talk sentence")
+    if set(LONG_TALK) & set(DISTRACTOR_SENTENCES):
+        raise CorpusError("long-recording talk must differ from the distractor sentences")
+    voices = [v for v in VOICES if v.split == "test"]
+    phrases = phrase_list(seed)
+    # Command counts spread over the whole range: the range's values in a seeded order.
+    span = LONG_COMMANDS[1] - LONG_COMMANDS[0] + 1
+    counts = [LONG_COMMANDS[0] + int(i) % span for i in rng_for(seed, "long-commands").permutation(LONG_RECORDINGS)]
+    plans = []
+    for k in range(LONG_RECORDINGS):
+        voice = voices[k % len(voices)]
+        rel = f"audio/long/{voice.voice_id}/long-{k + 1:02d}.flac"
+        rng = rng_for(seed, "plan/" + rel)
+        n_cmd = counts[k]
+        n_talk = int(rng.integers(LONG_TALK_SENTENCES[0], LONG_TALK_SENTENCES[1] + 1))
+        talk = [LONG_TALK[i] for i in rng.choice(len(LONG_TALK), size=n_talk, replace=False)]
+        commands = [VOCABULARY[int(rng.integers(len(VOCABULARY)))] if rng.random() < 0.4
+                    else phrases[int(rng.integers(len(phrases)))] for _ in range(n_cmd)]
+        # Slots 0..n_talk lie before, between and after the talk sentences; a few get a quiet
+        # or noise stretch, the others share the commands.
+        n_stretch = int(rng.integers(2, 5))
+        stretch_slots = sorted(int(i) for i in rng.choice(np.arange(1, n_talk), size=n_stretch, replace=False))
+        free = [i for i in range(n_talk + 1) if i not in stretch_slots]
+        per_slot = Counter(int(free[int(rng.integers(len(free)))]) for _ in range(n_cmd))
+        kinds: list[tuple] = []
+        c = 0
+        for slot in range(n_talk + 1):
+            if slot in stretch_slots:
+                if rng.random() < 0.5:
+                    kinds.append(("quiet", float(rng.uniform(*LONG_QUIET_S))))
+                else:
+                    kinds.append(("noise", float(rng.uniform(*LONG_NOISE_ALONE_S)),
+                                  KITCHEN_NOISES[int(rng.integers(len(KITCHEN_NOISES)))],
+                                  float(rng.uniform(*LONG_NOISE_ALONE_DBFS))))
+            for _ in range(per_slot[slot]):
+                kinds.append(("command", commands[c]))
+                c += 1
+            if slot < n_talk:
+                kinds.append(("talk", talk[slot]))
+        events = []
+        previous = None
+        for i, spec in enumerate(kinds):
+            if spec[0] in ("quiet", "noise"):
+                gap = float(rng.uniform(*LONG_TALK_GAP_S))
+                seconds = spec[1]
+                events.append(LongEvent(spec[0], gap, seconds=seconds, noise=spec[2] if spec[0] == "noise" else "",
+                                        dbfs=spec[3] if spec[0] == "noise" else 0.0))
+                previous = spec[0]
+                continue
+            if previous is None:
+                gap = 0.0  # the room tone lead comes first
+            elif "command" in (spec[0], previous):
+                gap = float(rng.uniform(*LONG_COMMAND_GAP_S))
+            else:
+                gap = float(rng.uniform(*LONG_TALK_GAP_S))
+            part = f"{rel}#{i:02d}-{slug(spec[1])}"
+            events.append(LongEvent(spec[0], gap, take=Take("long", voice, spec[1], 1, part)))
+            previous = spec[0]
+        speech = [i for i, e in enumerate(events) if e.take is not None]
+        beds = []
+        for _ in range(int(rng.integers(2, 4))):
+            first = int(rng.integers(len(speech)))
+            last = min(len(speech) - 1, first + int(rng.integers(0, 4)))
+            beds.append(NoiseBed(KITCHEN_NOISES[int(rng.integers(len(KITCHEN_NOISES)))],
+                                 speech[first], speech[last], float(rng.uniform(0.3, 2.0)),
+                                 float(rng.uniform(0.3, 2.0)), float(rng.uniform(*LONG_BED_DBFS))))
+        lead = float(rng.uniform(*LONG_ENDS_S))  # within LONG_COMMAND_GAP_S too, for a command first or last
+        tail = float(rng.uniform(*LONG_ENDS_S))
+        plans.append(LongPlan(rel, voice, tuple(events), tuple(beds), lead, tail,
+                              float(rng.uniform(*ROOM_TONE_DBFS)), float(rng.uniform(0.95, 0.985))))
+    return plans
+
+
 # --------------------------------------------------------------------------- engines
 
 def check_engines() -> None:
@@ -424,8 +703,8 @@ def room_tone(rng: np.random.Generator, n: int, dbfs: float, pole: float) -> np.
     return y * (10 ** (dbfs / 20) / np.sqrt(np.mean(y ** 2)))
 
 
-def finish_take(take: Take, raw: Path, seed: int) -> tuple[bytes, np.ndarray, float, float]:
-    """Engine output -> trimmed, levelled speech inside room tone -> FLAC bytes."""
+def levelled_speech(take: Take, raw: Path, seed: int) -> np.ndarray:
+    """Engine output -> trimmed speech at the take's drawn level (peaks below -3 dBFS)."""
     d = draw_for(seed, take.rel_path)
     v = take.voice
     effects: list[str] = []
@@ -438,6 +717,13 @@ def finish_take(take: Take, raw: Path, seed: int) -> tuple[bytes, np.ndarray, fl
     peak = np.max(np.abs(speech))
     if peak > PEAK_LIMIT:
         speech *= PEAK_LIMIT / peak
+    return speech
+
+
+def finish_take(take: Take, raw: Path, seed: int) -> tuple[bytes, np.ndarray, float, float]:
+    """Engine output -> trimmed, levelled speech inside room tone -> FLAC bytes."""
+    d = draw_for(seed, take.rel_path)
+    speech = levelled_speech(take, raw, seed)
     lead = int(round(d.lead_s * SAMPLE_RATE))
     tail = int(round(d.tail_s * SAMPLE_RATE))
     total = lead + len(speech) + tail
@@ -471,7 +757,19 @@ def babble_streams(seed: int, workdir: Path, jobs: int) -> list[np.ndarray]:
 
 
 def make_noise(kind: str, n: int, rng: np.random.Generator, streams: list[np.ndarray]) -> np.ndarray:
-    """``n`` samples of babble (4-6 overlapping talkers) or fan-and-mains-hum noise."""
+    """``n`` samples of one kitchen noise recipe (any level; callers scale it).
+
+    babble: 4-6 overlapping talkers; fan: low-passed noise with blade modulation and mains
+    hum; mixer: a motor's hum with harmonics, speed and load wobble and gear rattle; clatter:
+    random short decaying knocks and rings (dishes, trays, cutlery); water: band-passed noise
+    whose level fluctuates (a running tap, splashes).
+    """
+    if kind == "mixer":
+        return _mixer_noise(n, rng)
+    if kind == "clatter":
+        return _clatter_noise(n, rng)
+    if kind == "water":
+        return _water_noise(n, rng)
     if kind == "babble":
         n_talk = int(rng.integers(4, 7))
         picks = rng.choice(len(streams), size=n_talk, replace=False)
@@ -494,6 +792,147 @@ def make_noise(kind: str, n: int, rng: np.random.Generator, streams: list[np.nda
         blade = 1 + 0.2 * np.sin(2 * np.pi * rng.uniform(8, 25) * t)
         return broadband * blade + hiss + hum
     raise CorpusError(f"unknown noise type {kind!r}")
+
+
+def _smooth_random(n: int, rng: np.random.Generator, cutoff_hz: float) -> np.ndarray:
+    """Slowly varying noise of unit RMS (white noise through a 2nd-order low-pass)."""
+    b, a = butter(2, cutoff_hz / (SAMPLE_RATE / 2))
+    y = lfilter(b, a, rng.standard_normal(n + SAMPLE_RATE))[SAMPLE_RATE:]
+    return y / np.sqrt(np.mean(y ** 2))
+
+
+def _mixer_noise(n: int, rng: np.random.Generator) -> np.ndarray:
+    """A stand mixer: motor hum (fundamental 80-180 Hz, 8 harmonics) whose speed and loudness
+    wobble with the load of the dough hook, plus band-limited gear rattle."""
+    t = np.arange(n) / SAMPLE_RATE
+    f0 = rng.uniform(80, 180)
+    speed = 1 + 0.01 * _smooth_random(n, rng, 2.0)
+    phase = 2 * np.pi * f0 * np.cumsum(speed) / SAMPLE_RATE
+    tilt = rng.uniform(0.5, 1.2)
+    hum = sum(rng.uniform(0.5, 1.0) / h ** tilt * np.sin(h * phase + rng.uniform(0, 2 * np.pi))
+              for h in range(1, 9))
+    wobble = 1 + rng.uniform(0.15, 0.35) * np.sin(2 * np.pi * rng.uniform(0.5, 3.0) * t + rng.uniform(0, 2 * np.pi))
+    b, a = butter(2, [rng.uniform(800, 1500) / (SAMPLE_RATE / 2), rng.uniform(3000, 5000) / (SAMPLE_RATE / 2)],
+                  btype="band")
+    rattle = lfilter(b, a, rng.standard_normal(n))
+    rattle *= rng.uniform(0.1, 0.3) * np.sqrt(np.mean(hum ** 2) / np.mean(rattle ** 2))
+    return (hum + rattle) * wobble
+
+
+def _clatter_noise(n: int, rng: np.random.Generator) -> np.ndarray:
+    """Dishes and trays: knocks at random times (2-8 a second), each a burst of band-passed
+    noise or a ringing tone (1-6 kHz) decaying in 5-80 ms, levels spread over 20 dB."""
+    out = np.zeros(n)
+    rate = rng.uniform(2, 8)
+    count = max(1, int(rng.poisson(rate * n / SAMPLE_RATE)))
+    for start in np.sort(rng.integers(0, n, size=count)):
+        length = min(n - start, int(0.4 * SAMPLE_RATE))
+        t = np.arange(length) / SAMPLE_RATE
+        decay = np.exp(-t / rng.uniform(0.005, 0.08))
+        if rng.random() < 0.5:
+            centre = rng.uniform(1000, 6000)
+            b, a = butter(2, [0.7 * centre / (SAMPLE_RATE / 2), min(0.99, 1.3 * centre / (SAMPLE_RATE / 2))],
+                          btype="band")
+            knock = lfilter(b, a, rng.standard_normal(length))
+        else:
+            knock = np.sin(2 * np.pi * rng.uniform(1000, 6000) * t + rng.uniform(0, 2 * np.pi))
+        knock *= decay / max(np.max(np.abs(knock)), 1e-12)
+        out[start: start + length] += knock * 10 ** (rng.uniform(-20, 0) / 20)
+    return out
+
+
+def _water_noise(n: int, rng: np.random.Generator) -> np.ndarray:
+    """A running tap: noise band-passed to 300-5000 Hz (edges drawn) whose level fluctuates
+    (gurgle, 3-12 Hz) around a slowly drifting mean."""
+    low, high = rng.uniform(300, 800), rng.uniform(2500, 5000)
+    b, a = butter(2, [low / (SAMPLE_RATE / 2), high / (SAMPLE_RATE / 2)], btype="band")
+    hiss = lfilter(b, a, rng.standard_normal(n + 2000))[2000:]
+    gurgle = np.exp(0.35 * _smooth_random(n, rng, rng.uniform(3, 12)))
+    drift = np.exp(0.2 * _smooth_random(n, rng, 0.5))
+    return hiss * gurgle * drift
+
+
+def scaled_noise(kind: str, n: int, dbfs: float, rng: np.random.Generator, streams: list[np.ndarray],
+                 fade_s: float = 0.04) -> np.ndarray:
+    """``n`` samples of a noise recipe at ``dbfs`` RMS, faded in and out, peaks below -12 dBFS."""
+    noise = make_noise(kind, n, rng, streams)
+    noise *= 10 ** (dbfs / 20) / np.sqrt(np.mean(noise ** 2))
+    peak = np.max(np.abs(noise))
+    if peak > NOISE_PEAK_LIMIT:
+        noise *= NOISE_PEAK_LIMIT / peak
+    m = min(int(fade_s * SAMPLE_RATE), n // 2)
+    if m:
+        ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(m) / m)
+        noise[:m] *= ramp
+        noise[n - m:] *= ramp[::-1]
+    return noise
+
+
+def make_noise_clip(clip: NoiseClip, seed: int, streams: list[np.ndarray]) -> bytes:
+    """A noise-only distractor: room tone with the noise over all but 0.05-0.3 s at each end."""
+    rng = rng_for(seed, clip.rel_path)
+    total = int(round(clip.seconds * SAMPLE_RATE))
+    lead, tail = (int(rng.uniform(0.05, 0.3) * SAMPLE_RATE) for _ in range(2))
+    signal = room_tone(rng_for(seed, "tone/" + clip.rel_path), total, float(rng.uniform(*ROOM_TONE_DBFS)),
+                       float(rng.uniform(0.95, 0.985)))
+    signal[lead: total - tail] += scaled_noise(clip.kind, total - lead - tail, clip.dbfs,
+                                               rng_for(seed, "noise/" + clip.rel_path), streams)
+    return flac_bytes(to_int16(signal))
+
+
+def long_layout(plan: LongPlan, lengths: list[int]) -> tuple[int, list[int], list[tuple]]:
+    """Where everything of a long recording goes, in samples.
+
+    ``lengths`` are the speech parts' lengths (``plan.takes`` order). Returns the total
+    length, the start of each speech part, and the noise pieces as (kind, start, length,
+    dbfs, key); the key seeds the piece's noise.
+    """
+    rate = SAMPLE_RATE
+    pos = int(round(plan.lead_s * rate))
+    starts: list[int] = []
+    spans: list[tuple[int, int]] = []   # every event's (start, end)
+    noises: list[tuple] = []
+    parts = iter(lengths)
+    for i, e in enumerate(plan.events):
+        pos += int(round(e.gap_s * rate))
+        n = next(parts) if e.take is not None else int(round(e.seconds * rate))
+        if e.take is not None:
+            starts.append(pos)
+        elif e.kind == "noise":
+            noises.append((e.noise, pos, n, e.dbfs, f"{plan.rel_path}#alone{i:02d}"))
+        spans.append((pos, pos + n))
+        pos += n
+    total = pos + int(round(plan.tail_s * rate))
+    for j, bed in enumerate(plan.beds):
+        a = max(0, spans[bed.first][0] - int(round(bed.before_s * rate)))
+        b = min(total, spans[bed.last][1] + int(round(bed.after_s * rate)))
+        noises.append((bed.noise, a, b - a, bed.dbfs, f"{plan.rel_path}#bed{j}"))
+    return total, starts, noises
+
+
+def assemble_long(plan: LongPlan, speech: list[np.ndarray], seed: int,
+                  streams: list[np.ndarray]) -> tuple[bytes, list[tuple[float, float, str]]]:
+    """Room tone, speech parts and noise pieces summed into one FLAC file.
+
+    Returns the file and one (start, end, words) label per command: the first and last
+    sample of the command's trimmed speech, in seconds.
+    """
+    total, starts, noises = long_layout(plan, [len(x) for x in speech])
+    seconds = total / SAMPLE_RATE
+    if not LONG_SECONDS[0] <= seconds <= LONG_SECONDS[1]:
+        raise CorpusError(f"{plan.rel_path} would last {seconds:.1f} s, outside {LONG_SECONDS}; "
+                          "change LONG_COMMANDS or LONG_TALK_SENTENCES")
+    signal = room_tone(rng_for(seed, "tone/" + plan.rel_path), total, plan.tone_dbfs, plan.tone_pole)
+    for kind, a, n, dbfs, key in noises:
+        signal[a: a + n] += scaled_noise(kind, n, dbfs, rng_for(seed, key), streams, fade_s=0.25)
+    labels = []
+    for e, x, a in zip([e for e in plan.events if e.take is not None], speech, starts):
+        signal[a: a + len(x)] += x
+        if e.kind == "command":
+            labels.append((a / SAMPLE_RATE, (a + len(x)) / SAMPLE_RATE, e.take.text))
+    if np.max(np.abs(signal)) >= 32767 / 32768:
+        raise CorpusError(f"{plan.rel_path} would clip; lower LONG_BED_DBFS")
+    return flac_bytes(to_int16(signal)), labels
 
 
 def mix_noisy(nt: NoisyTake, clean_q: np.ndarray, span: tuple[float, float], seed: int,
@@ -624,6 +1063,32 @@ def voices_csv() -> bytes:
                       "takes_per_word", "dev_candidate", "debian_package"], rows)
 
 
+def distractors_csv(takes: list[Take], clips: list[NoiseClip], clean: dict) -> bytes:
+    """The distractor manifest: empty transcripts ("no command here"), what each file holds.
+
+    ``kind`` is word, sentence or noise; ``content`` the words said or the noise recipe;
+    noise clips have the speaker ``noise-<recipe>`` and no speech span.
+    """
+    rows = [[t.rel_path, "", t.voice.voice_id, "sentence" if " " in t.text else "word", t.text,
+             f"{clean[t.rel_path][2]:.3f}", f"{clean[t.rel_path][3]:.3f}"] for t in takes]
+    rows += [[c.rel_path, "", f"noise-{c.kind}", "noise", c.kind, "", ""] for c in clips]
+    return csv_bytes(["path", "transcript", "speaker", "kind", "content", "speech_start", "speech_end"], rows)
+
+
+def long_csv(longs: list[LongPlan], labels: dict[str, list[tuple[float, float, str]]]) -> bytes:
+    """The long recordings' reference: ``path,start,end,words``, one row per command.
+
+    A recording without commands gets one row with empty start, end and words.
+    """
+    rows = []
+    for lp in longs:
+        found = labels[lp.rel_path]
+        rows += [[lp.rel_path, f"{a:.3f}", f"{b:.3f}", words] for a, b, words in found]
+        if not found:
+            rows.append([lp.rel_path, "", "", ""])
+    return csv_bytes(["path", "start", "end", "words"], rows)
+
+
 def check_new_word_phones(lexicon_path: Path) -> None:
     """Every phone of a new word must occur in some training word."""
     prons: dict[str, list[list[str]]] = {}
@@ -663,46 +1128,74 @@ def check_espeak_voices_differ(workdir: Path) -> None:
 
 # --------------------------------------------------------------------------- main
 
+def _babble_needed(noisy: list[NoisyTake], clips: list[NoiseClip], longs: list[LongPlan]) -> bool:
+    kinds = {nt.noise for nt in noisy} | {c.kind for c in clips}
+    kinds |= {e.noise for lp in longs for e in lp.events} | {b.noise for lp in longs for b in lp.beds}
+    return "babble" in kinds
+
+
 def build(root: Path, seed: int, only: list[str], jobs: int) -> None:
     t0 = time.time()
     check_engines()
     here = Path(__file__).resolve().parent
     check_new_word_phones(here.parent / "lexicon" / "bakery.txt")
     sets, noisy = plan(seed)
+    distractor_takes, clips = plan_distractors(seed)
+    longs = plan_long(seed)
     selected = (lambda rel: True) if not only else (
         lambda rel: any(fnmatch.fnmatch(rel, pat) for pat in only))
     writer = SafeWriter(root)
     wanted_noisy = [nt for nt in noisy if selected(nt.rel_path)]
+    wanted_clips = [c for c in clips if selected(c.rel_path)]
+    wanted_long = [lp for lp in longs if selected(lp.rel_path)]
     needed_clean = {nt.clean.rel_path for nt in wanted_noisy}
     takes = [t for ts in sets.values() for t in ts if selected(t.rel_path) or t.rel_path in needed_clean]
+    takes += [t for t in distractor_takes if selected(t.rel_path)]
+    parts = [t for lp in wanted_long for t in lp.takes]
     outputs = [t.rel_path for t in takes if selected(t.rel_path)] + [nt.rel_path for nt in wanted_noisy]
+    outputs += [c.rel_path for c in wanted_clips] + [lp.rel_path for lp in wanted_long]
     if not only:
-        outputs += ["voices.csv"] + [f"{name}.csv" for name in list(sets) + ["test-noisy"]]
+        outputs += ["voices.csv", "distractors.csv", "long.csv"]
+        outputs += [f"{name}.csv" for name in list(sets) + ["test-noisy"]]
     for rel in outputs:  # fail before any slow work
         writer.check_writable(rel)
 
     with tempfile.TemporaryDirectory(prefix="wordspot-corpus-") as tmp:
         work = Path(tmp)
         check_espeak_voices_differ(work)
-        raw = {t.rel_path: work / f"raw-{i:05d}.wav" for i, t in enumerate(takes)}
-        synthesize_raw([(t.voice, t.text, draw_for(seed, t.rel_path), raw[t.rel_path]) for t in takes], jobs)
-        print(f"engines done: {len(takes)} takes in {time.time() - t0:.1f} s", flush=True)
+        raw = {t.rel_path: work / f"raw-{i:05d}.wav" for i, t in enumerate(takes + parts)}
+        synthesize_raw([(t.voice, t.text, draw_for(seed, t.rel_path), raw[t.rel_path])
+                        for t in takes + parts], jobs)
+        print(f"engines done: {len(takes) + len(parts)} takes in {time.time() - t0:.1f} s", flush=True)
         # Worker start-up costs seconds: small builds run in this process.
-        workers = jobs if len(takes) + len(wanted_noisy) >= 40 else 1
+        small = len(takes) + len(parts) + len(wanted_noisy) + len(wanted_clips) < 40
+        workers = 1 if small else jobs
         finished = Parallel(n_jobs=workers)(delayed(finish_take)(t, raw[t.rel_path], seed) for t in takes)
         clean = {t.rel_path: f for t, f in zip(takes, finished)}
         for t in takes:
             if selected(t.rel_path):
                 writer.write(t.rel_path, clean[t.rel_path][0])
         print(f"clean audio written in {time.time() - t0:.1f} s", flush=True)
+        streams = (babble_streams(seed, work, jobs) if _babble_needed(wanted_noisy, wanted_clips, wanted_long)
+                   else [])
         if wanted_noisy:
-            needs_babble = any(nt.noise == "babble" for nt in wanted_noisy)
-            streams = babble_streams(seed, work, jobs) if needs_babble else []
             mixed = Parallel(n_jobs=workers)(
                 delayed(mix_noisy)(nt, clean[nt.clean.rel_path][1], clean[nt.clean.rel_path][2:],
                                    seed, streams) for nt in wanted_noisy)
             for nt, data in zip(wanted_noisy, mixed):
                 writer.write(nt.rel_path, data)
+        made = Parallel(n_jobs=workers)(delayed(make_noise_clip)(c, seed, streams) for c in wanted_clips)
+        for c, data in zip(wanted_clips, made):
+            writer.write(c.rel_path, data)
+        speech = Parallel(n_jobs=workers)(delayed(levelled_speech)(t, raw[t.rel_path], seed) for t in parts)
+        speech_of = {t.rel_path: x for t, x in zip(parts, speech)}
+        assembled = Parallel(n_jobs=workers)(
+            delayed(assemble_long)(lp, [speech_of[t.rel_path] for t in lp.takes], seed, streams)
+            for lp in wanted_long)
+        labels = {}
+        for lp, (data, lp_labels) in zip(wanted_long, assembled):
+            writer.write(lp.rel_path, data)
+            labels[lp.rel_path] = lp_labels
     if not only:
         header = ["path", "transcript", "speaker", "speech_start", "speech_end"]
         for name, ts in sets.items():
@@ -714,6 +1207,8 @@ def build(root: Path, seed: int, only: list[str], jobs: int) -> None:
                  nt.clean.rel_path] for nt in noisy]
         writer.write("test-noisy.csv", csv_bytes(header[:3] + ["snr_db", "noise"] + header[3:]
                                                  + ["clean_path"], rows))
+        writer.write("distractors.csv", distractors_csv(distractor_takes, clips, clean))
+        writer.write("long.csv", long_csv(longs, labels))
         writer.write("voices.csv", voices_csv())
     removed = writer.finish(full_build=not only)
     for rel in removed:

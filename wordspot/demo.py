@@ -3,6 +3,12 @@
 The demo corpus (``recordings/`` in a checkout) is synthetic speech from several
 text-to-speech engines and voices; its test sets use voices that training never heard.
 Real users train on their own voice (see the README's quick tour).
+
+Three kinds of row: word sets (the WER table); the test commands among the distractors,
+files with no command (miss rate, share of those files with a recognised word, false
+accepts per hour); and the long recordings with embedded commands (``long.csv``), which
+need the long-recording scan (``wordspot.api.scan``, handed in by the command line): a
+build without it says so in the table.
 """
 
 from __future__ import annotations
@@ -13,23 +19,34 @@ from pathlib import Path
 
 from wordspot.errors import WordspotError
 
-__all__ = ["DemoSet", "DemoRow", "SYSTEMS", "find_recordings", "demo_sets", "run_demo", "render_table"]
+__all__ = ["DemoSet", "DemoRow", "LongReference", "SYSTEMS", "find_recordings", "demo_sets", "demo_row",
+           "read_long_reference", "long_row", "run_demo", "render_table"]
 
 _NOISY_LEVELS = (20, 10, 5)
 
 
 @dataclass(frozen=True)
 class DemoSet:
-    """One row of the demo table: a name, the utterances, and a note on what it shows."""
+    """One row of the demo tables: a name, the utterances, and a note on what it shows.
+
+    ``kind`` is "words" (a row of the WER table) or "detection" (command recordings among
+    recordings with no command: miss rate and false accepts).
+    """
 
     name: str
     utterances: tuple
     note: str
+    kind: str = "words"
 
 
 @dataclass(frozen=True)
 class DemoRow:
-    """Measured figures of one demo set."""
+    """Measured figures of one demo set.
+
+    ``kind`` "words" and "detection" rows come from the ordinary evaluation; the detection
+    figures are filled for "detection" rows. A "long" row describes the long recordings:
+    ``utterances`` files, ``words`` embedded commands, ``seconds`` of audio, no WER.
+    """
 
     name: str
     utterances: int
@@ -40,9 +57,23 @@ class DemoRow:
     deletions: int
     insertions: int
     note: str
+    kind: str = "words"
+    miss_rate: float | None = None
+    non_command_files: int = 0
+    false_accept_files: int = 0
+    false_accepts_per_hour: float | None = None
+    seconds: float = 0.0
+
+    @property
+    def false_accept_share(self) -> float | None:
+        """Share of the files with no command on which any word was recognised."""
+        return self.false_accept_files / self.non_command_files if self.non_command_files else None
 
     def to_dict(self) -> dict:
-        return {
+        if self.kind == "long":
+            return {"kind": "long", "files": self.utterances, "commands": self.words,
+                    "seconds": round(self.seconds, 3), "note": self.note}
+        out = {
             "utterances": self.utterances,
             "reference_words": self.words,
             "wer": self.wer,
@@ -52,6 +83,21 @@ class DemoRow:
             "insertions": self.insertions,
             "note": self.note,
         }
+        if self.kind == "detection":
+            out.update(kind="detection", miss_rate=self.miss_rate, non_command_files=self.non_command_files,
+                       false_accept_files=self.false_accept_files, false_accept_share=self.false_accept_share,
+                       false_accepts_per_hour=self.false_accepts_per_hour)
+        return out
+
+
+@dataclass(frozen=True)
+class LongReference:
+    """The long recordings' reference (``long.csv``: ``path,start,end,words``, a row a command)."""
+
+    manifest: Path
+    files: tuple[Path, ...]
+    commands: int
+    seconds: float
 
 
 def find_recordings(explicit=None) -> Path:
@@ -94,7 +140,61 @@ def demo_sets(folder: Path) -> list[DemoSet]:
                         "2-4 word commands"))
     sets.append(DemoSet("new-words", tuple(read_manifest(folder / "new-words.csv")),
                         "words with no training recordings"))
+    distractors = folder / "distractors.csv"
+    if distractors.is_file():
+        sets.append(DemoSet("test+distractors", sets[0].utterances + tuple(read_manifest(distractors)),
+                            "the test commands among words, talk and kitchen noise with no command",
+                            kind="detection"))
     return sets
+
+
+def demo_row(ds: DemoSet, result) -> DemoRow:
+    """The table row of a set from its :class:`wordspot.evaluation.scoring.EvaluationResult`."""
+    false_accept_files = sum(1 for s in result.scores if not s.utterance.reference and s.utterance.recognised)
+    return DemoRow(ds.name, result.utterances, result.reference_words, result.wer, tuple(result.wer_ci95),
+                   result.substitutions, result.deletions, result.insertions, ds.note, kind=ds.kind,
+                   miss_rate=result.miss_rate, non_command_files=result.non_command_utterances,
+                   false_accept_files=false_accept_files, false_accepts_per_hour=result.false_accepts_per_hour)
+
+
+def read_long_reference(manifest: Path) -> LongReference:
+    """Files, embedded commands and total length of the long recordings listed in ``manifest``.
+
+    Raises
+    ------
+    WordspotError
+        The file is not a ``path,start,end,words`` CSV, or a listed recording is missing.
+    """
+    import soundfile as sf
+
+    manifest = Path(manifest)
+    with open(manifest, newline="", encoding="utf-8") as f:
+        rows = list(csv.DictReader(f))
+    if not rows or not {"path", "start", "end", "words"} <= set(rows[0]):
+        raise WordspotError(f"{manifest}: expected a CSV with the header path,start,end,words and a row a command")
+    files = tuple(manifest.parent / p for p in dict.fromkeys(row["path"] for row in rows))
+    missing = [str(p) for p in files if not p.is_file()]
+    if missing:
+        raise WordspotError(f"{manifest}: listed recordings not found: {', '.join(missing)}; rebuild them with "
+                            "recordings/synthesize.py or correct the paths")
+    seconds = float(sum(sf.info(str(p)).duration for p in files))
+    return LongReference(manifest, files, sum(1 for row in rows if row["words"].strip()), seconds)
+
+
+def long_row(model, reference: LongReference, *, scan=None, jobs: int = 1) -> DemoRow:
+    """The long recordings' row: ``scan`` on each file, or a note that this build has none.
+
+    ``scan`` is the long-recording function (``wordspot.api.scan`` where the build has it;
+    the command line passes it), called as ``scan(model, path, jobs=jobs)``; None reports
+    the reference alone.
+    """
+    base = dict(name="long", utterances=len(reference.files), words=reference.commands, wer=float("nan"),
+                wer_ci95=(float("nan"), float("nan")), substitutions=0, deletions=0, insertions=0,
+                kind="long", seconds=reference.seconds)
+    if scan is None:
+        return DemoRow(note="long-recording results: not available in this build", **base)
+    found = [scan(model, path, jobs=jobs) for path in reference.files]
+    return DemoRow(note=f"{sum(len(f) for f in found)} commands found by the long-recording scan", **base)
 
 
 #: The demo's systems, in table order: name -> what it is.
@@ -139,8 +239,10 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
 
 
 def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, systems=tuple(SYSTEMS),
-             jobs: int = 2, quiet: bool = False, say=print):
+             jobs: int = 2, quiet: bool = False, say=print, scan=None):
     """Build each system's model (or load ``model_path``) and evaluate it on every demo set.
+
+    ``scan`` is the long-recording function for the ``long`` row (see `long_row`).
 
     Returns
     -------
@@ -177,10 +279,10 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
             ev = evaluate_utterances(model, ds.utterances, name=ds.name, jobs=jobs, quiet=quiet)
             files_ = write_report(ev.result, out_dir / "report" / name / ds.name)
             write_html_report(ev, files_.folder, confusions=files_.confusions)
-            r = ev.result
-            rows.append(DemoRow(ds.name, r.utterances, r.reference_words, r.wer, tuple(r.wer_ci95),
-                                r.substitutions, r.deletions, r.insertions, ds.note))
+            rows.append(demo_row(ds, ev.result))
             evs.append(ev)
+        if (folder / "long.csv").is_file():
+            rows.append(long_row(model, read_long_reference(folder / "long.csv"), scan=scan, jobs=jobs))
         results[name], evaluations[name] = rows, evs
     return results, files, evaluations, seconds
 
@@ -189,24 +291,57 @@ def _pct(x: float) -> str:
     return f"{100 * x:.1f}%"
 
 
+def _columns(header: list[str], body: list[list[str]], right: set[int]) -> list[str]:
+    widths = [max(len(x) for x in col) for col in zip(header, *body)]
+
+    def line(cells):
+        return "  ".join(c.rjust(w) if i in right else c.ljust(w) for i, (c, w) in enumerate(zip(cells, widths))).rstrip()
+
+    return [line(header), line(["-" * w for w in widths])] + [line(b) for b in body]
+
+
+def _optional_pct(x: float | None) -> str:
+    return "-" if x is None else _pct(x)
+
+
 def render_table(results: dict) -> str:
-    """The demo's results as aligned plain-text columns: one row per set, WER of each system."""
+    """The demo's results as aligned plain text.
+
+    The WER table (one row per word set, a column per system); then, when the sets hold
+    them, the commands among files with no command (a row per system: miss rate on the
+    commands, share of the other files with any recognised word, false accepts per hour)
+    and a line on the long recordings.
+    """
     names = list(results)
     first = results[names[0]]
     header = ["set", "utts", "words"] + [f"WER {n}" for n in names] + ["what it shows"]
     body = []
     for k, row in enumerate(first):
+        if row.kind != "words":
+            continue
         cells = [row.name, str(row.utterances), str(row.words)]
         for n in names:
             r = results[n][k]
             cells.append(f"{_pct(r.wer)} ({_pct(r.wer_ci95[0])}-{_pct(r.wer_ci95[1])})")
         body.append(cells + [row.note])
-    widths = [max(len(x) for x in col) for col in zip(header, *body)]
-    right = set(range(1, 3 + len(names)))
-
-    def line(cells):
-        return "  ".join(c.rjust(w) if i in right else c.ljust(w) for i, (c, w) in enumerate(zip(cells, widths))).rstrip()
-
-    out = [line(header), line(["-" * w for w in widths])]
-    out += [line(b) for b in body]
+    out = _columns(header, body, set(range(1, 3 + len(names))))
+    for k, row in enumerate(first):
+        if row.kind == "detection":
+            out += ["", f"{row.name}: {row.note}",
+                    f"({row.utterances - row.non_command_files} command files with {row.words} words, "
+                    f"{row.non_command_files} files with no command)"]
+            body = []
+            for n in names:
+                r = results[n][k]
+                share = "-" if r.false_accept_share is None else (
+                    f"{_pct(r.false_accept_share)} ({r.false_accept_files} of {r.non_command_files})")
+                per_hour = "-" if r.false_accepts_per_hour is None else f"{r.false_accepts_per_hour:.1f}"
+                body.append([n, _optional_pct(r.miss_rate), share, per_hour])
+            out += _columns(["system", "miss rate", "files with no command that got a word", "false accepts/hour"],
+                            body, {1, 2, 3})
+        elif row.kind == "long":
+            out += ["", f"long recordings: {row.utterances} files, {row.seconds / 60:.1f} min, "
+                        f"{row.words} embedded commands (long.csv)"]
+            notes = [results[n][k].note for n in names]
+            out += notes[:1] if len(set(notes)) == 1 else [f"{n}: {note}" for n, note in zip(names, notes)]
     return "\n".join(out)

@@ -35,7 +35,8 @@ def add_parser(sub, **options):
         **options,
         description="Build three models of the bakery commands (the shipped starter alone, the starter "
         "adapted on the demo's training recordings, and one trained from scratch), evaluate each on "
-        "every demo test set (clean, noisy at 20/10/5 dB, phrases, new words) and print one table.",
+        "every demo test set (clean, noisy at 20/10/5 dB, phrases, new words) and print one table, then the "
+        "test commands among recordings with no command (miss rate, false accepts) and the long recordings.",
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -55,6 +56,7 @@ def add_parser(sub, **options):
 
 
 def _run(args) -> int:
+    from wordspot import api
     from wordspot.demo import SYSTEMS, find_recordings, render_table, run_demo
 
     folder = find_recordings(args.recordings)
@@ -62,7 +64,8 @@ def _run(args) -> int:
     chatty = not (args.quiet or args.json)
     say = (lambda line: print(line, file=sys.stderr, flush=True)) if chatty else (lambda line: None)
     results, files, _, seconds = run_demo(folder, out_dir, model_path=args.model, systems=tuple(args.systems),
-                                          jobs=args.jobs, quiet=not chatty, say=say)
+                                          jobs=args.jobs, quiet=not chatty, say=say,
+                                          scan=getattr(api, "scan", None))  # the long recordings, where built
     if args.json:
         print(json.dumps({name: {r.name: r.to_dict() for r in rows} for name, rows in results.items()}, indent=2))
         return 0
