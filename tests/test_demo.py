@@ -10,10 +10,11 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from wordspot.demo import DemoRow, demo_row, demo_sets, long_row, read_long_reference, render_table
+from wordspot.demo import DemoRow, demo_row, demo_sets, long_row, render_table
 from wordspot.errors import WordspotError
 
-RECORDINGS = Path(__file__).resolve().parents[1] / "recordings"
+REPO = Path(__file__).resolve().parents[1]
+RECORDINGS = REPO / "recordings"
 pytestmark = pytest.mark.skipif(not (RECORDINGS / "distractors.csv").is_file(), reason="demo recordings not present")
 
 
@@ -74,15 +75,16 @@ def _row(name, kind="words", **kw):
 
 
 def test_render_table_keeps_detection_and_long_rows_out_of_the_wer_table():
+    long_a = dict(utterances=6, words=75, seconds=480.0, hits=60, false_accepts=4, false_accepts_per_hour=30.0,
+                  on_time=0.9, scan_seconds=12.5)
+    long_b = dict(long_a, hits=0, false_accepts=0, false_accepts_per_hour=0.0, on_time=None)
     rows = {
         "a": [_row("test"), _row("test+distractors", "detection", utterances=20, miss_rate=0.25,
                                  non_command_files=10, false_accept_files=1, false_accepts_per_hour=72.0),
-              _row("long", "long", utterances=6, words=75, seconds=480.0, note="long-recording results: "
-                   "not available in this build")],
+              _row("long", "long", **long_a)],
         "b": [_row("test", wer=0.3), _row("test+distractors", "detection", utterances=20, miss_rate=None,
                                           non_command_files=10, false_accept_files=0, false_accepts_per_hour=0.0),
-              _row("long", "long", utterances=6, words=75, seconds=480.0, note="long-recording results: "
-                   "not available in this build")],
+              _row("long", "long", **long_b)],
     }
     lines = render_table(rows).splitlines()
     wer_table = lines[:lines.index("")]
@@ -94,37 +96,28 @@ def test_render_table_keeps_detection_and_long_rows_out_of_the_wer_table():
     a, b = detection[4].split(), detection[5].split()
     assert a == ["a", "25.0%", "10.0%", "(1", "of", "10)", "72.0"]
     assert b == ["b", "-", "0.0%", "(0", "of", "10)", "0.0"]
-    assert lines[-2] == "long recordings: 6 files, 8.0 min, 75 embedded commands (long.csv)"
-    assert lines[-1] == "long-recording results: not available in this build"
+    assert lines[-5] == "long recordings (wordspot scan): 6 files, 8.0 min, 75 embedded commands (long.csv)"
+    # 60 of 75 found = 80%; 30 per hour = 2.5 per 5 minutes (arithmetic)
+    assert lines[-2].split() == ["a", "80.0%", "(60", "of", "75)", "4", "(2.5", "per", "5", "min)", "90.0%", "12.5"]
+    assert lines[-1].split() == ["b", "0.0%", "(0", "of", "75)", "0", "(0.0", "per", "5", "min)", "-", "12.5"]
 
 
-def test_long_reference_counts_files_commands_and_minutes():
-    ref = read_long_reference(RECORDINGS / "long.csv")
+def test_long_row_scans_the_long_recordings():
+    # The shipped starter with the bakery words on the demo's long set: the row counts
+    # what long.csv lists (read with the csv module) and the audio's length (libsndfile).
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    model = load_model("starter")
+    model.lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
+    row = long_row(model, RECORDINGS / "long.csv", jobs=1)
     with open(RECORDINGS / "long.csv", newline="", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
-    assert ref.commands == len(rows) == sum(1 for r in rows if r["words"])
-    assert [p.relative_to(RECORDINGS).as_posix() for p in ref.files] == list(dict.fromkeys(r["path"] for r in rows))
-    # soundfile's frame count over the sample rate, file by file (reference: libsndfile).
-    seconds = 0.0
-    for p in ref.files:
-        x, sr = sf.read(str(p), dtype="int16")
-        seconds += len(x) / sr
-    assert ref.seconds == pytest.approx(seconds, abs=1e-9)
-
-
-def test_long_reference_errors_name_the_file(tmp_path):
-    bad = tmp_path / "long.csv"
-    bad.write_text("path,transcript,speaker\nx.flac,,\n", encoding="utf-8")
-    with pytest.raises(WordspotError, match=r"long\.csv: expected a CSV with the header path,start,end,words"):
-        read_long_reference(bad)
-    bad.write_text("path,start,end,words\nmissing.flac,1.000,2.000,stop\n", encoding="utf-8")
-    with pytest.raises(WordspotError, match=r"not found: .*missing\.flac"):
-        read_long_reference(bad)
-
-
-def test_long_row_without_scan_says_so():
-    row = long_row(None, read_long_reference(RECORDINGS / "long.csv"), scan=None)
-    assert row.kind == "long" and row.utterances == 6 and 60 * 6 <= row.seconds <= 120 * 6
-    assert row.note == "long-recording results: not available in this build"
-    assert row.to_dict()["commands"] == row.words and math.isnan(row.wer)
-    assert np.isnan(row.wer_ci95).all()
+    files = list(dict.fromkeys(r["path"] for r in rows))
+    assert row.kind == "long" and row.utterances == len(files) == 6
+    assert row.words == sum(1 for r in rows if r["words"].strip())
+    assert row.seconds == pytest.approx(sum(sf.info(str(RECORDINGS / f)).duration for f in files), abs=0.05)
+    assert 0 < row.hits <= row.words and row.false_accepts >= 0
+    assert row.false_accepts_per_hour == pytest.approx(row.false_accepts / (row.seconds / 3600), rel=1e-3)
+    d = row.to_dict()
+    assert d["hits"] == row.hits and d["hit_rate"] == pytest.approx(row.hits / row.words) and math.isnan(row.wer)

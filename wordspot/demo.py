@@ -6,9 +6,9 @@ Real users train on their own voice (see the README's quick tour).
 
 Three kinds of row: word sets (the WER table); the test commands among the distractors,
 files with no command (miss rate, share of those files with a recognised word, false
-accepts per hour); and the long recordings with embedded commands (``long.csv``), which
-need the long-recording scan (``wordspot.api.scan``, handed in by the command line): a
-build without it says so in the table.
+accepts per hour); and the long recordings with embedded commands (``long.csv``), scanned
+as ``wordspot scan`` does and scored against their time labels (hits, false accepts per
+hour, boundaries).
 """
 
 from __future__ import annotations
@@ -19,8 +19,8 @@ from pathlib import Path
 
 from wordspot.errors import WordspotError
 
-__all__ = ["DemoSet", "DemoRow", "LongReference", "SYSTEMS", "find_recordings", "demo_sets", "demo_row",
-           "read_long_reference", "long_row", "run_demo", "render_table"]
+__all__ = ["DemoSet", "DemoRow", "SYSTEMS", "find_recordings", "demo_sets", "demo_row", "long_row", "run_demo",
+           "render_table"]
 
 _NOISY_LEVELS = (20, 10, 5)
 
@@ -44,8 +44,10 @@ class DemoRow:
     """Measured figures of one demo set.
 
     ``kind`` "words" and "detection" rows come from the ordinary evaluation; the detection
-    figures are filled for "detection" rows. A "long" row describes the long recordings:
-    ``utterances`` files, ``words`` embedded commands, ``seconds`` of audio, no WER.
+    figures are filled for "detection" rows. A "long" row holds the scan of the long
+    recordings: ``utterances`` files, ``words`` embedded commands, ``seconds`` of audio,
+    ``hits``, ``false_accepts`` (and per hour), ``on_time`` (share of hits with both ends
+    within 0.3 s) and ``scan_seconds``; no WER.
     """
 
     name: str
@@ -63,6 +65,10 @@ class DemoRow:
     false_accept_files: int = 0
     false_accepts_per_hour: float | None = None
     seconds: float = 0.0
+    hits: int = 0
+    false_accepts: int = 0
+    on_time: float | None = None
+    scan_seconds: float = 0.0
 
     @property
     def false_accept_share(self) -> float | None:
@@ -72,7 +78,10 @@ class DemoRow:
     def to_dict(self) -> dict:
         if self.kind == "long":
             return {"kind": "long", "files": self.utterances, "commands": self.words,
-                    "seconds": round(self.seconds, 3), "note": self.note}
+                    "seconds": round(self.seconds, 3), "hits": self.hits,
+                    "hit_rate": self.hits / self.words if self.words else None,
+                    "false_accepts": self.false_accepts, "false_accepts_per_hour": self.false_accepts_per_hour,
+                    "on_time": self.on_time, "scan_seconds": round(self.scan_seconds, 3), "note": self.note}
         out = {
             "utterances": self.utterances,
             "reference_words": self.words,
@@ -88,16 +97,6 @@ class DemoRow:
                        false_accept_files=self.false_accept_files, false_accept_share=self.false_accept_share,
                        false_accepts_per_hour=self.false_accepts_per_hour)
         return out
-
-
-@dataclass(frozen=True)
-class LongReference:
-    """The long recordings' reference (``long.csv``: ``path,start,end,words``, a row a command)."""
-
-    manifest: Path
-    files: tuple[Path, ...]
-    commands: int
-    seconds: float
 
 
 def find_recordings(explicit=None) -> Path:
@@ -157,44 +156,18 @@ def demo_row(ds: DemoSet, result) -> DemoRow:
                    false_accept_files=false_accept_files, false_accepts_per_hour=result.false_accepts_per_hour)
 
 
-def read_long_reference(manifest: Path) -> LongReference:
-    """Files, embedded commands and total length of the long recordings listed in ``manifest``.
+def long_row(model, labels: Path, *, jobs: int = 1) -> DemoRow:
+    """The long recordings' row: every recording of ``labels`` scanned and scored."""
+    from wordspot.decoding.decoder import build_recognizer
+    from wordspot.evaluation.scan_run import evaluate_scan
 
-    Raises
-    ------
-    WordspotError
-        The file is not a ``path,start,end,words`` CSV, or a listed recording is missing.
-    """
-    import soundfile as sf
-
-    manifest = Path(manifest)
-    with open(manifest, newline="", encoding="utf-8") as f:
-        rows = list(csv.DictReader(f))
-    if not rows or not {"path", "start", "end", "words"} <= set(rows[0]):
-        raise WordspotError(f"{manifest}: expected a CSV with the header path,start,end,words and a row a command")
-    files = tuple(manifest.parent / p for p in dict.fromkeys(row["path"] for row in rows))
-    missing = [str(p) for p in files if not p.is_file()]
-    if missing:
-        raise WordspotError(f"{manifest}: listed recordings not found: {', '.join(missing)}; rebuild them with "
-                            "recordings/synthesize.py or correct the paths")
-    seconds = float(sum(sf.info(str(p)).duration for p in files))
-    return LongReference(manifest, files, sum(1 for row in rows if row["words"].strip()), seconds)
-
-
-def long_row(model, reference: LongReference, *, scan=None, jobs: int = 1) -> DemoRow:
-    """The long recordings' row: ``scan`` on each file, or a note that this build has none.
-
-    ``scan`` is the long-recording function (``wordspot.api.scan`` where the build has it;
-    the command line passes it), called as ``scan(model, path, jobs=jobs)``; None reports
-    the reference alone.
-    """
-    base = dict(name="long", utterances=len(reference.files), words=reference.commands, wer=float("nan"),
-                wer_ci95=(float("nan"), float("nan")), substitutions=0, deletions=0, insertions=0,
-                kind="long", seconds=reference.seconds)
-    if scan is None:
-        return DemoRow(note="long-recording results: not available in this build", **base)
-    found = [scan(model, path, jobs=jobs) for path in reference.files]
-    return DemoRow(note=f"{sum(len(f) for f in found)} commands found by the long-recording scan", **base)
+    ev = evaluate_scan(build_recognizer(model), labels, jobs=jobs)
+    sc = ev.score
+    return DemoRow("long", len(sc.recordings), sc.labels, float("nan"), (float("nan"), float("nan")), 0, 0, 0,
+                   "commands among talk, kitchen noise and quiet", kind="long",
+                   false_accepts_per_hour=sc.false_accepts_per_hour, seconds=sc.hours * 3600.0, hits=sc.hits,
+                   false_accepts=sc.false_accepts, on_time=sc.boundary()["on_time"] if sc.hits else None,
+                   scan_seconds=ev.seconds)
 
 
 #: The demo's systems, in table order: name -> what it is.
@@ -239,10 +212,8 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
 
 
 def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, systems=tuple(SYSTEMS),
-             jobs: int = 2, quiet: bool = False, say=print, scan=None):
+             jobs: int = 2, quiet: bool = False, say=print):
     """Build each system's model (or load ``model_path``) and evaluate it on every demo set.
-
-    ``scan`` is the long-recording function for the ``long`` row (see `long_row`).
 
     Returns
     -------
@@ -282,7 +253,8 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
             rows.append(demo_row(ds, ev.result))
             evs.append(ev)
         if (folder / "long.csv").is_file():
-            rows.append(long_row(model, read_long_reference(folder / "long.csv"), scan=scan, jobs=jobs))
+            say(f"{name}: scanning the long recordings (long.csv) ...")
+            rows.append(long_row(model, folder / "long.csv", jobs=jobs))
         results[name], evaluations[name] = rows, evs
     return results, files, evaluations, seconds
 
@@ -340,8 +312,15 @@ def render_table(results: dict) -> str:
             out += _columns(["system", "miss rate", "files with no command that got a word", "false accepts/hour"],
                             body, {1, 2, 3})
         elif row.kind == "long":
-            out += ["", f"long recordings: {row.utterances} files, {row.seconds / 60:.1f} min, "
+            out += ["", f"long recordings (wordspot scan): {row.utterances} files, {row.seconds / 60:.1f} min, "
                         f"{row.words} embedded commands (long.csv)"]
-            notes = [results[n][k].note for n in names]
-            out += notes[:1] if len(set(notes)) == 1 else [f"{n}: {note}" for n, note in zip(names, notes)]
+            body = []
+            for n in names:
+                r = results[n][k]
+                on_time = "-" if r.on_time is None else _pct(r.on_time)
+                body.append([n, f"{_pct(r.hits / r.words) if r.words else '-'} ({r.hits} of {r.words})",
+                             f"{r.false_accepts} ({r.false_accepts_per_hour / 12:.1f} per 5 min)", on_time,
+                             f"{r.scan_seconds:.1f}"])
+            out += _columns(["system", "found, right words", "false accepts", "both ends within 0.3 s",
+                             "scan s"], body, {1, 2, 3, 4})
     return "\n".join(out)

@@ -64,8 +64,7 @@ def _run(args) -> int:
     chatty = not (args.quiet or args.json)
     say = (lambda line: print(line, file=sys.stderr, flush=True)) if chatty else (lambda line: None)
     results, files, _, seconds = run_demo(folder, out_dir, model_path=args.model, systems=tuple(args.systems),
-                                          jobs=args.jobs, quiet=not chatty, say=say,
-                                          scan=getattr(api, "scan", None))  # the long recordings, where built
+                                          jobs=args.jobs, quiet=not chatty, say=say)
     if args.json:
         print(json.dumps({name: {r.name: r.to_dict() for r in rows} for name, rows in results.items()}, indent=2))
         return 0
