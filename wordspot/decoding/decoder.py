@@ -4,13 +4,11 @@ The search is token passing over a compiled network (:mod:`wordspot.decoding.net
 pruning (:mod:`wordspot.decoding.kernels`); the best path is traced back through the word
 links at the end.
 
-Per-word confidence (a heuristic, not a calibrated probability): over the frames the
-word covers (its trailing pause included), ``d`` is the mean per-frame difference
-between the word's acoustic score and the score of the single best-scoring state of the
-network at each of those frames (an unconstrained upper bound). ``d <= 0`` up to the
-transition terms; the confidence is ``exp(min(d, 0) / CONFIDENCE_SCALE)``, so 1 means
-the word's path is as good as the best free choice of state at every frame and it falls
-towards 0 as the word explains its frames worse than some other state would.
+Per-word confidence (:mod:`wordspot.decoding.confidence`): every word gets its measures
+(``WordSegment.measures``); the model's calibration, when it has one, turns them into
+the probability that the word is right, otherwise a documented heuristic is used. Words
+below the threshold (``DecoderSettings.min_confidence``) are dropped from the result and
+kept in ``Recognition.dropped``.
 """
 
 from __future__ import annotations
@@ -22,6 +20,8 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
+from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, split_by_confidence,
+                                          usable_calibration, word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
@@ -42,13 +42,10 @@ __all__ = [
     "CONFIDENCE_SCALE",
 ]
 
-#: Nats per frame by which a word may trail the best free state before its confidence
-#: falls to 1/e (chosen by us, see the module docstring).
-CONFIDENCE_SCALE = 4.0
-
 REASON_TOO_SHORT = "too short"
 REASON_SILENCE = "silence or noise only"
 REASON_NO_PATH = "no complete path"
+REASON_LOW_CONFIDENCE = "below the confidence threshold"
 
 
 @dataclass(frozen=True)
@@ -79,6 +76,10 @@ class DecoderSettings:
         Exactly one word per file (isolated commands).
     allow_empty : bool
         Allow the pause-only result (how silence comes out empty).
+    min_confidence : float in [0, 1] or None
+        Words with a lower confidence are dropped (kept in ``Recognition.dropped``). None:
+        ``DEFAULT_MIN_CONFIDENCE`` when the model's confidence is calibrated, 0 (keep every
+        word) when it is the heuristic.
     """
 
     beam: float = 800.0
@@ -88,8 +89,12 @@ class DecoderSettings:
     insertion_penalty: float = -60.0
     single_word: bool = False
     allow_empty: bool = True
+    min_confidence: float | None = None
 
     def __post_init__(self) -> None:
+        m = self.min_confidence
+        if m is not None and not (isinstance(m, (int, float)) and not isinstance(m, bool) and 0.0 <= m <= 1.0):
+            raise DecodingError(f"min_confidence must be a number from 0 to 1 (or None for the default), got {m!r}")
         for name in ("beam", "word_end_beam"):
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and value > 0) or np.isnan(value):
@@ -134,7 +139,10 @@ class WordSegment:
     grammar : float
         Weighted log prior of the link into the word plus the insertion penalty.
     confidence : float in [0, 1]
-        See the module docstring.
+        The probability that the word is right when the model is calibrated, else a
+        heuristic (:mod:`wordspot.decoding.confidence`).
+    measures : tuple of float
+        The word's confidence measures, named by ``confidence.MEASURE_NAMES``.
     """
 
     word: str
@@ -146,6 +154,7 @@ class WordSegment:
     acoustic: float
     grammar: float
     confidence: float
+    measures: tuple[float, ...] = ()
 
 
 @dataclass
@@ -167,6 +176,8 @@ class Recognition:
     narrow_band : bool
         The file carries (next to) nothing above 4 kHz although the model's rate could
         (see :mod:`wordspot.audio.band`): telephone-band audio given to a wideband model.
+    dropped : list of WordSegment
+        Words of the best path below the confidence threshold, left out of ``segments``.
     """
 
     path: str | None = None
@@ -176,6 +187,7 @@ class Recognition:
     error: str = ""
     duration: float = 0.0
     narrow_band: bool = False
+    dropped: list[WordSegment] = field(default_factory=list)
 
     @property
     def words(self) -> list[str]:
@@ -206,7 +218,15 @@ class Recognizer:
     features: object
     settings: DecoderSettings
     hop: float
+    calibration: object = None
     _scoring: tuple | None = field(default=None, repr=False)
+
+    @property
+    def min_confidence(self) -> float:
+        """The threshold in force (see ``DecoderSettings.min_confidence``)."""
+        if self.settings.min_confidence is not None:
+            return float(self.settings.min_confidence)
+        return DEFAULT_MIN_CONFIDENCE if self.calibration is not None else 0.0
 
     def emissions(self, frames: np.ndarray) -> np.ndarray:
         """Log-likelihood of every frame under every mixture the network uses, (T, P).
@@ -294,8 +314,8 @@ class Recognizer:
             word, pron, start, phone_end, end = (int(x) for x in links[k, :5])
             grammar = float(net.link_row(int(links[prev, 0]))[word])
             acoustic = float(link_scores[k] - link_scores[prev] - grammar)
-            span = end - start + 1
-            d = (acoustic - (best_free[end + 1] - best_free[start])) / span
+            measures = word_measures(acoustic=acoustic, best_free=best_free, start=start, phone_end=phone_end,
+                                     end=end, n_phones=len(net.prons[pron]))
             result.segments.append(
                 WordSegment(
                     word=net.words[word - 1],
@@ -306,9 +326,15 @@ class Recognizer:
                     last_frame=phone_end,
                     acoustic=acoustic,
                     grammar=grammar,
-                    confidence=float(np.exp(min(d, 0.0) / CONFIDENCE_SCALE)),
+                    confidence=word_confidence(measures, self.calibration),
+                    measures=measures,
                 )
             )
+        # confidence threshold (wordspot.decoding.confidence)
+        result.segments, result.dropped = split_by_confidence(result.segments, self.min_confidence)
+        if result.dropped and not result.segments:
+            result.reason = (f"{REASON_LOW_CONFIDENCE}: every word heard ({' '.join(s.word for s in result.dropped)}) "
+                             f"has a confidence below {self.min_confidence:g}")
         return result
 
     def decode_file(self, path) -> Recognition:
@@ -390,7 +416,9 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
     sub = Mixtures(mix.weights[net.used_mixtures], mix.means[net.used_mixtures], mix.variances[net.used_mixtures])
     feats = model.features
     hop = feats.hop_length / feats.sample_rate
-    return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop)
+    calibration = usable_calibration(getattr(model, "calibration", None))
+    return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
+                      calibration=calibration)
 
 
 def recognize_features(model, frames, *, settings: DecoderSettings | None = None, lexicon=None,
