@@ -24,12 +24,12 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field, replace
-from typing import Callable, Sequence
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
 from wordspot.decoding.confidence import MEASURE_NAMES
-from wordspot.decoding.decoder import DecoderSettings, build_recognizer
+from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.errors import TrainingError, TrainingWarning, WordspotError
 from wordspot.evaluation.reliability import word_hits
 from wordspot.language.grammar import BigramCounts, estimate_prior
@@ -40,6 +40,7 @@ __all__ = [
     "CalibrationConfig",
     "CalibrationExamples",
     "split_held_out",
+    "held_out_recognitions",
     "calibration_examples",
     "fit_calibration",
     "train_calibrated",
@@ -139,17 +140,13 @@ def _prior_without(model, lexicon):
     return estimate_prior(BigramCounts(tuple(lexicon.words), np.asarray(counts.counts)[np.ix_(order, order)]))
 
 
-def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                         quiet: bool = True) -> CalibrationExamples:
-    """Recognise held-out recordings with the whole lexicon and without their own words.
+def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
+                          quiet: bool = True) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
+    """Recognise each recording with the whole lexicon and with its own words removed.
 
-    Parameters
-    ----------
-    model : AcousticModel
-        Trained without these recordings.
-    utterances : sequence of Utterance
-    settings : DecoderSettings, optional
-        Default: the word loop with no confidence threshold.
+    Yields ``(utterance, whole, without_own)`` in order: ``whole`` is None when the file
+    cannot be read; ``without_own`` is None when there is nothing to remove (no command)
+    or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
     """
     from wordspot.audio.features import compute_features
     from wordspot.audio.reading import load_audio
@@ -157,7 +154,6 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
     settings = replace(settings or DecoderSettings(), min_confidence=0.0)
     full = build_recognizer(model, settings=settings)
     without: dict[frozenset, object] = {}
-    rows, right, removed, failed = [], [], [], []
     with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
         for u in utterances:
             bar.update()
@@ -166,26 +162,48 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
                     warnings.simplefilter("ignore")
                     frames = compute_features(load_audio(u.path, sample_rate=model.features.sample_rate),
                                               model.features)
-                heard = full.decode(frames)
+                whole = full.decode(frames, path=str(u.path))
             except WordspotError:
-                failed.append(str(u.path))
+                yield u, None, None
                 continue
-            segments = heard.segments + heard.dropped
-            rows += [s.measures for s in segments]
-            right += word_hits(u.words, [s.word for s in segments])
-            removed += [False] * len(segments)
             own = frozenset(u.words)
             others = [w for w in model.lexicon.words if w not in own]
             if not own or not others:
-                continue  # nothing to remove (no command), or nothing left to hear
+                yield u, whole, None
+                continue
             if own not in without:
                 lex = model.lexicon.restricted_to(others)
                 without[own] = build_recognizer(model, settings=settings, lexicon=lex,
                                                 prior=_prior_without(model, lex))
-            wrong = without[own].decode(frames)
-            rows += [s.measures for s in wrong.segments + wrong.dropped]
-            right += [False] * len(wrong.segments + wrong.dropped)
-            removed += [True] * len(wrong.segments + wrong.dropped)
+            yield u, whole, without[own].decode(frames, path=str(u.path))
+
+
+def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
+                         quiet: bool = True) -> CalibrationExamples:
+    """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
+
+    Parameters
+    ----------
+    model : AcousticModel
+        Trained without these recordings.
+    utterances : sequence of Utterance
+    settings : DecoderSettings, optional
+        Default: the word loop (no confidence threshold in any case).
+    """
+    rows, right, removed, failed = [], [], [], []
+    for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet):
+        if whole is None:
+            failed.append(str(u.path))
+            continue
+        heard = whole.segments + whole.dropped
+        rows += [s.measures for s in heard]
+        right += word_hits(u.words, [s.word for s in heard])
+        removed += [False] * len(heard)
+        if without_own is not None:
+            wrong = without_own.segments + without_own.dropped
+            rows += [s.measures for s in wrong]
+            right += [False] * len(wrong)
+            removed += [True] * len(wrong)
     measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
     return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
                                recordings=len(utterances) - len(failed), failed=failed)
