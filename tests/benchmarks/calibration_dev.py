@@ -32,7 +32,7 @@ sys.path.insert(0, str(HERE))
 
 from compare_data import dev_voices  # noqa: E402
 
-THRESHOLDS = (0.0, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9)
+THRESHOLDS = (0.0, 0.05, 0.1, 0.2, 0.3, 0.4, 0.45, 0.5, 0.55, 0.6, 0.7, 0.8, 0.9)
 
 
 def _table(title, conf, right):
