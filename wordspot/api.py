@@ -60,7 +60,10 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
         From scratch only: the feature settings (an adapted model keeps its start's).
     calibration : bool or CalibrationConfig
         Fit the word-confidence calibration on recordings held out of a first training
-        (:mod:`wordspot.evaluation.calibrate`); False: none (heuristic confidences).
+        (:mod:`wordspot.evaluation.calibrate`); False: none (heuristic confidences). Unless
+        the configuration says ``refit``, an adapted model is adapted again on every
+        recording, while a model trained from scratch is the one trained without the
+        held-out share (training twice takes twice as long).
     quiet : bool
         No progress bars.
 

@@ -87,3 +87,8 @@ def test_command_line_threshold_and_reliability(calibrated, tmp_path, capsys):
     assert main(["evaluate", "--model", str(path), str(manifest), "--min-confidence", "0"]) == 0
     out = capsys.readouterr().out
     assert "Confidence reliability (every word heard" in out
+    assert main(["evaluate", "--model", str(path), str(manifest), "--json"]) == 0
+    record = json.loads(capsys.readouterr().out)
+    rows = record["confidence_reliability"]
+    assert len(rows) == 10 and sum(r["words"] for r in rows) >= 30  # dropped words count too
+    assert 0.0 <= record["expected_calibration_error"] <= 1.0

@@ -13,6 +13,7 @@ from pathlib import Path
 from wordspot.corpus import check_manifest, read_manifest
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.util.progress import ProgressBar
+from wordspot.evaluation.reliability import expected_calibration_error, reliability_of
 from wordspot.evaluation.scoring import EvaluationResult, ScoredUtterance, score_utterances
 
 __all__ = ["ManifestEvaluation", "scored_utterance", "evaluate_utterances", "evaluate_manifest"]
@@ -65,6 +66,9 @@ class ManifestEvaluation:
         out = {"set": self.name}
         out.update(self.result.to_dict())
         out["equal_error_rate"] = self.equal_error_rate
+        rows = reliability_of(self.result)
+        out["confidence_reliability"] = None if rows is None else [r.to_dict() for r in rows]
+        out["expected_calibration_error"] = None if rows is None else expected_calibration_error(rows)
         out["failed_files"] = [{"path": p, "error": e} for p, e in self.failed]
         out["recognition_seconds"] = round(self.seconds, 3)
         out["audio_seconds"] = round(self.audio_seconds, 3)
