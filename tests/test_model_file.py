@@ -14,6 +14,7 @@ from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import parse_lexicon
 from wordspot.model import FORMAT_VERSION, AcousticModel, _checksum, load_model, save_model
 from wordspot.acoustic.units import default_unit_set
+from wordspot.util.logistic import Calibration
 
 
 @pytest.fixture
@@ -43,6 +44,9 @@ def assert_same(a: AcousticModel, b: AcousticModel):
     assert a.bigrams.words == b.bigrams.words
     np.testing.assert_array_equal(a.bigrams.counts, b.bigrams.counts)
     assert a.info == b.info
+    assert (a.calibration is None) == (b.calibration is None)
+    if a.calibration is not None:
+        assert a.calibration.to_dict() == b.calibration.to_dict()
 
 
 def test_round_trip_is_identical(model, tmp_path):
@@ -206,3 +210,57 @@ def test_failed_write_leaves_old_model(model, tmp_path, monkeypatch):
         save_model(model, path)
     assert path.read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["m.model"]
+
+
+def _calibrated(model):
+    cal = Calibration(("acoustic_per_frame", "free_margin"), np.array([-60.5, -2.25]), np.array([4.0, 1.5]),
+                      np.array([0.25, 1.75]), -0.5)
+    return AcousticModel(model.features, model.units, model.mixtures, model.lexicon, model.bigrams, model.info, cal)
+
+
+def test_calibration_round_trip(model, tmp_path):
+    calibrated = _calibrated(model)
+    path = save_model(calibrated, tmp_path / "m.model")
+    back = load_model(path)
+    assert_same(calibrated, back)
+    rows = np.array([[-61.0, -1.0], [-50.0, -4.0]])
+    np.testing.assert_array_equal(back.calibration.predict(rows), calibrated.calibration.predict(rows))
+    assert load_model(save_model(model, tmp_path / "plain.model")).calibration is None
+
+
+def _with_header(path, **fields):
+    """Change header fields and write a matching checksum (a file the writer could have made)."""
+    def edit(arrays):
+        header = json.loads(arrays.pop("header").tobytes().decode())
+        header.update(fields)
+        header["checksum"] = _checksum(arrays, header)
+        arrays["header"] = np.frombuffer(json.dumps(header).encode(), dtype=np.uint8)
+
+    _rewrite(path, edit)
+
+
+def test_file_without_calibration_key_loads_without_calibration(model, tmp_path):
+    # Files written before calibrations existed have no such key (format version 2 all the same).
+    path = save_model(_calibrated(model), tmp_path / "m.model")
+
+    def drop(arrays):
+        h = json.loads(arrays.pop("header").tobytes().decode())
+        assert h["version"] == 2 and "calibration" in h
+        h.pop("calibration")
+        h["checksum"] = _checksum(arrays, h)
+        arrays["header"] = np.frombuffer(json.dumps(h).encode(), dtype=np.uint8)
+
+    _rewrite(path, drop)
+    assert load_model(path).calibration is None
+
+
+@pytest.mark.parametrize("calibration, match", [
+    ({"names": ["a"], "means": [0.0]}, "expected the keys"),
+    ({"names": ["a"], "means": [0.0], "scales": [-1.0], "coefficients": [1.0], "intercept": 0.0}, "scales must be > 0"),
+    (None, "expected the keys"),
+])
+def test_malformed_calibration_is_refused_naming_the_file(model, tmp_path, calibration, match):
+    path = save_model(model, tmp_path / "m.model")
+    _with_header(path, calibration=calibration)
+    with pytest.raises(ModelFileError, match=rf"m\.model: the confidence calibration is malformed \(.*{match}.*wordspot train"):
+        load_model(path)

@@ -33,14 +33,17 @@ def _model(model):
     return model if isinstance(model, AcousticModel) else load_model(model)
 
 
-def _settings(settings, single_word):
+def _settings(settings, single_word, min_confidence):
     from wordspot.decoding.decoder import DecoderSettings
 
     settings = settings or DecoderSettings()
+    if min_confidence is not None:
+        settings = replace(settings, min_confidence=min_confidence)
     return replace(settings, single_word=True) if single_word else settings
 
 
-def train(manifest, lexicon, *, out=None, start=None, config=None, features=None, quiet: bool = True):
+def train(manifest, lexicon, *, out=None, start=None, config=None, features=None, calibration=True,
+          quiet: bool = True):
     """Train a model from a manifest of recordings and a lexicon (``wordspot train``).
 
     Parameters
@@ -57,6 +60,12 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
         How to train from scratch (``TrainingConfig``) or adapt (``AdaptationConfig``).
     features : wordspot.audio.features.FeatureSettings, optional
         From scratch only: the feature settings (an adapted model keeps its start's).
+    calibration : bool or CalibrationConfig
+        Fit the word-confidence calibration on recordings held out of a first training
+        (:mod:`wordspot.evaluation.calibrate`); False: none (heuristic confidences). Unless
+        the configuration says ``refit``, an adapted model is adapted again on every
+        recording, while a model trained from scratch is the one trained without the
+        held-out share (training twice takes twice as long).
     quiet : bool
         No progress bars.
 
@@ -65,19 +74,31 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
     AcousticModel
     """
     from wordspot.corpus import read_manifest
+    from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
     from wordspot.model import save_model
 
+    utterances = read_manifest(manifest)
+    lex = _lexicon(lexicon)
     if start is None:
         from wordspot.training.trainer import TrainingConfig
         from wordspot.training.trainer import train as _train
 
-        model, _summary = _train(read_manifest(manifest), _lexicon(lexicon), settings=features,
-                                 config=config or TrainingConfig(), manifest=manifest, quiet=quiet)
+        def fit(utts):
+            return _train(utts, lex, settings=features, config=config or TrainingConfig(), manifest=manifest,
+                          quiet=quiet)
     else:
         from wordspot.training.adapt import AdaptationConfig, adapt
 
-        model, _summary = adapt(read_manifest(manifest), _lexicon(lexicon), _model(start),
-                                config=config or AdaptationConfig(), manifest=manifest, quiet=quiet)
+        start_model = _model(start)
+
+        def fit(utts):
+            return adapt(utts, lex, start_model, config=config or AdaptationConfig(), manifest=manifest, quiet=quiet)
+    if calibration is False or calibration is None:
+        model, _summary = fit(utterances)
+    else:
+        cal = calibration if isinstance(calibration, CalibrationConfig) else CalibrationConfig()
+        model, _summary = train_calibrated(fit, utterances, config=cal.decided(adapting=start is not None),
+                                           quiet=quiet)
     if out is not None:
         save_model(model, Path(out))
     return model
@@ -91,23 +112,25 @@ def load(path):
 
 
 def recognize(model, paths, *, lexicon=None, prior=None, single_word: bool = False, settings=None,
-              jobs: int = 1):
+              jobs: int = 1, min_confidence: float | None = None):
     """Recognise audio files (``wordspot recognize``); one Recognition per file, in order.
 
     ``model`` is an AcousticModel or a model file; ``lexicon`` (a Lexicon or a file)
     replaces the model's vocabulary; ``prior`` is a BigramPrior or a prior file.
+    ``min_confidence`` drops words below it (into ``Recognition.dropped``); None: the
+    default of ``DecoderSettings.min_confidence``.
     """
     from wordspot.decoding.decoder import recognize_files
 
     if isinstance(paths, (str, Path)):
         paths = [paths]
-    return recognize_files(_model(model), paths, settings=_settings(settings, single_word),
+    return recognize_files(_model(model), paths, settings=_settings(settings, single_word, min_confidence),
                            lexicon=_lexicon(lexicon), prior=prior, jobs=jobs)
 
 
 def evaluate(model, manifest, *, lexicon=None, prior=None, single_word: bool = False, settings=None,
-             jobs: int = 1, n_bootstrap: int = 1000):
-    """Word error rate of a model on a manifest (``wordspot evaluate``).
+             jobs: int = 1, n_bootstrap: int = 1000, min_confidence: float | None = None):
+    """Word error rate of a model on a manifest (``wordspot evaluate``); ``min_confidence`` as for `recognize`.
 
     Returns
     -------
@@ -116,7 +139,7 @@ def evaluate(model, manifest, *, lexicon=None, prior=None, single_word: bool = F
     """
     from wordspot.evaluation.run import evaluate_manifest
 
-    return evaluate_manifest(_model(model), manifest, settings=_settings(settings, single_word),
+    return evaluate_manifest(_model(model), manifest, settings=_settings(settings, single_word, min_confidence),
                              lexicon=_lexicon(lexicon), prior=prior, jobs=jobs, n_bootstrap=n_bootstrap)
 
 

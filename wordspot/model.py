@@ -8,8 +8,10 @@ estimated from.
 File format ("wordspot-model", version :data:`FORMAT_VERSION`): a numpy ``.npz`` archive
 of plain numeric arrays (read with ``allow_pickle=False``, so loading never runs code)
 plus one ``header`` array of UTF-8 bytes holding JSON: the format name and version, the
-feature settings, unit names, lexicon text, bigram vocabulary, training info and a
-SHA-256 checksum over every array and the rest of the header. The file is written to a
+feature settings, unit names, lexicon text, bigram vocabulary, training info, the
+optional confidence calibration (key ``calibration``, :meth:`Calibration.to_dict`; absent
+= none, so files without it, written before it existed, load unchanged) and a SHA-256
+checksum over every array and the rest of the header. The file is written to a
 temporary name in the same folder, flushed to disk and renamed over the target, so a
 crash never leaves a half-written model.
 """
@@ -33,6 +35,7 @@ from wordspot.language.lexicon import Lexicon, parse_lexicon
 from wordspot.acoustic.units import UnitSet
 from wordspot.starters import is_starter_name, starter_path
 from wordspot.util.atomic import write_atomically
+from wordspot.util.logistic import Calibration
 
 __all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
 
@@ -61,6 +64,9 @@ class AcousticModel:
         Word-pair counts of the training transcripts.
     info : dict
         JSON-serialisable facts about training (date, data, passes, log-likelihoods).
+    calibration : Calibration or None
+        Turns a recognised word's measures into the probability that it is right
+        (:mod:`wordspot.decoding.confidence`); None: the heuristic confidence.
     """
 
     features: FeatureSettings
@@ -69,6 +75,7 @@ class AcousticModel:
     lexicon: Lexicon
     bigrams: BigramCounts
     info: dict = field(default_factory=dict)
+    calibration: Calibration | None = None
 
 
 def _arrays(model: AcousticModel) -> dict[str, np.ndarray]:
@@ -131,6 +138,8 @@ def save_model(model: AcousticModel, path) -> Path:
         "bigram_words": list(model.bigrams.words),
         "info": model.info,
     }
+    if model.calibration is not None:
+        header["calibration"] = model.calibration.to_dict()
     try:
         json.dumps(header)
     except (TypeError, ValueError) as exc:
@@ -243,5 +252,11 @@ def _build(p: Path, header: dict, a: dict) -> AcousticModel:
     if counts.shape != (len(words) + 1, len(words) + 1) or (counts < 0).any():
         raise ModelFileError(f"{p}: bigram table does not match its vocabulary; {_RETRAIN}")
     info = header.get("info", {})
+    calibration = None
+    if "calibration" in header:
+        try:
+            calibration = Calibration.from_dict(header["calibration"])
+        except ValueError as exc:
+            raise ModelFileError(f"{p}: the confidence calibration is malformed ({exc}); {_RETRAIN}") from None
     return AcousticModel(features, units, Mixtures(w, mu, var), lexicon, BigramCounts(words, counts),
-                         dict(info) if isinstance(info, dict) else {})
+                         dict(info) if isinstance(info, dict) else {}, calibration)

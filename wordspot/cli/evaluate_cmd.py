@@ -19,6 +19,8 @@ examples (a bakery: commands called out with dough on your hands):
       writes index.html (open it in a browser: every error with a player and a picture),
       errors.csv, words.csv, speakers.csv, summary.json and confusions.png
   wordspot evaluate --model bakery.model held-out/new-words.csv --lexicon bakery-plus.txt
+  wordspot evaluate --model bakery.model held-out/takes.csv held-out/mixer-running.csv --min-confidence 0.8
+      what dropping words below 0.8 confidence costs in misses and saves in false accepts
 
 Each manifest is a CSV file with columns path,transcript,speaker. The WER interval is a
 95% bootstrap interval over utterances (Bisani and Ney, 2004). A row with an empty
@@ -26,7 +28,9 @@ transcript is a recording with no command in it (the mixer running, chatter): ev
 recognised there is a false accept, counted per hour of such audio. The miss rate is the
 share of said words deleted or substituted. With both kinds of row, --report also draws
 det.png (misses against false accepts as a confidence threshold moves) and writes det.csv. Files that cannot be read
-count as recognising nothing and are listed; the exit status is then 1.
+count as recognising nothing and are listed; the exit status is then 1. The reliability
+table compares each confidence bin's mean confidence with its share of right words (every
+word heard counts, those below --min-confidence too).
 """
 
 

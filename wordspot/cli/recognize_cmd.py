@@ -8,6 +8,7 @@ import json
 import math
 import sys
 
+from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
 from wordspot.decoding.decoder import DecoderSettings, Recognition, recognize_files
 
 __all__ = ["add_parser", "add_decoder_options", "settings_from_args", "format_text", "format_jsonl", "write_csv"]
@@ -23,6 +24,9 @@ examples (a bakery: commands called out with dough on your hands):
   wordspot recognize --model bakery.model --lexicon more-words.txt knead.wav
       a new vocabulary without retraining (words made of the model's phones)
   wordspot recognize --model bakery.model --prior orders.txt takes/*.wav
+  wordspot recognize --model bakery.model --min-confidence 0.8 takes/*.wav
+      only words the model is at least 80% sure of (its confidences are probabilities
+      when `wordspot train` calibrated them, as it does by default)
 
 prior file (plain text): one word pair a line, previous word, next word, a count;
 '^' is the start and '$' the end of an utterance; '#' starts a comment:
@@ -78,6 +82,20 @@ def add_decoder_options(p) -> None:
                         f"through as commands (default {d.filler_penalty:g})")
     p.add_argument("--pause-penalty", type=float, default=d.pause_penalty,
                    help=f"log score added per pause between words (default {d.pause_penalty:g})")
+    p.add_argument("--min-confidence", type=_probability, default=None, metavar="P",
+                   help="drop words whose confidence is below P (0 keeps every word; default "
+                   f"{DEFAULT_MIN_CONFIDENCE:g} for a model with calibrated confidences, else 0)")
+
+
+def _probability(text: str) -> float:
+    """An argparse type: a number from 0 to 1."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, got {text!r}") from None
+    if not 0.0 <= value <= 1.0:
+        raise argparse.ArgumentTypeError(f"must be from 0 to 1, got {text}")
+    return value
 
 
 def settings_from_args(args) -> DecoderSettings:
@@ -92,6 +110,7 @@ def settings_from_args(args) -> DecoderSettings:
         filler=not args.no_filler,
         filler_penalty=args.filler_penalty,
         pause_penalty=args.pause_penalty,
+        min_confidence=args.min_confidence,
     )
 
 
@@ -136,6 +155,9 @@ def format_jsonl(r: Recognition) -> str:
         ],
         "score": _num(r.score),
     }
+    if r.dropped:
+        record["below_threshold"] = [{"word": s.word, "start": round(s.start, 3), "end": round(s.end, 3),
+                                      "confidence": round(s.confidence, 4)} for s in r.dropped]
     if r.reason:
         record["reason"] = r.reason
     if r.error:

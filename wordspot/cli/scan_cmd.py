@@ -63,8 +63,6 @@ def add_parser(sub, **options):
                    help="text (default): readable lines; jsonl: one JSON object per command; csv: one row per command")
     p.add_argument("--output", "-o", metavar="OUT", help="write the commands to this file (default: standard output)")
     d = ScanSettings()
-    p.add_argument("--min-confidence", type=float, default=d.min_confidence, metavar="C",
-                   help=f"drop words of lower confidence, 0-1 (default {d.min_confidence:g})")
     p.add_argument("--split-pause", type=float, default=d.split_pause, metavar="S",
                    help=f"a longer pause (seconds) between words starts a new command (default {d.split_pause:g})")
     add_decoder_options(p)
@@ -136,7 +134,7 @@ def _run(args) -> int:
     files = [str(r.path) for r in labels] if labels is not None else args.files
     if not files:
         raise DecodingError("no audio files given; name one or more, or a time-label file with --reference")
-    settings = ScanSettings(min_confidence=args.min_confidence, split_pause=args.split_pause)
+    settings = ScanSettings(split_pause=args.split_pause)  # the decoder options carry --min-confidence
     model = load_model(args.model)
     lexicon = read_lexicon(args.lexicon) if args.lexicon else None
     recognizer = build_recognizer(model, settings=settings_from_args(args), lexicon=lexicon, prior=args.prior)

@@ -8,6 +8,7 @@ import os
 from wordspot.corpus import read_manifest
 from wordspot.audio.features import FeatureSettings
 from wordspot.errors import FeatureError, TrainingError
+from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
 from wordspot.training.adapt import AdaptationConfig, adapt
@@ -25,6 +26,8 @@ examples (a bakery: bakers with dough on their hands call out commands):
       adapt a model you made earlier to new takes
   wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --from-scratch --jobs 2
       learn every phone from your takes alone (minutes; needs many varied recordings)
+  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --no-calibration
+      skip the word-confidence calibration (confidences stay a rough score, not a probability)
   wordspot train /mnt/takes/train.csv --lexicon lexicon/bakery.txt --out bakery.model --from-scratch \\
       --cluster tcp://oven-room:8786 --shared-dir /mnt/takes/scratch
       train from scratch on the workers of a Dask scheduler (a folder they all see)
@@ -39,6 +42,12 @@ Recordings may hold single words or whole commands. Every word must be in the le
 model's own lexicon. Audio at other rates is resampled
 to the model rate. Each pass prints the average log-likelihood per frame, which should
 rise from pass to pass; the summary lists skipped recordings and units without data.
+
+Word confidences are calibrated by default: 15% of each transcript's recordings are held
+out of a first training, recognised, and a logistic regression learns from them how
+often a word with given scores is right; the model is then trained again on everything
+(adapting; from scratch the first model is kept unless --refit) and stores the fit, so
+`wordspot recognize` reports each word's confidence as the probability that it is right.
 """
 
 
@@ -126,6 +135,16 @@ def add_parser(sub, **options):
     full.add_argument("--shared-dir", metavar="DIR", default=None,
                       help="with --cluster: a folder every worker sees at the same path, for the "
                       "features (default: this machine's temporary folder, enough for local workers)")
+    cal = p.add_argument_group("confidence calibration (on by default)")
+    cal.add_argument("--no-calibration", action="store_true",
+                     help="do not calibrate word confidences (train once on every recording)")
+    cal.add_argument("--calibration-share", type=float, default=CalibrationConfig.held_out_share, metavar="F",
+                     help="share of each transcript's recordings held out to fit the calibration "
+                     f"(default {CalibrationConfig.held_out_share:g})")
+    cal.add_argument("--refit", action=argparse.BooleanOptionalAction, default=None,
+                     help="after calibrating, train again on every recording (default: yes when adapting, "
+                     "no with --from-scratch, which keeps the model trained without the held-out share "
+                     "rather than take twice as long)")
     p.add_argument("--sample-rate", type=int, default=None, metavar="HZ",
                    help="model sample rate: 16000 (default) or 8000 for telephone recordings; when "
                    "adapting it must match the starting model's")
@@ -143,13 +162,21 @@ def _run(args) -> int:
     if args.from_scratch:
         if args.start is not None:
             raise TrainingError("--start and --from-scratch exclude each other: choose one")
-        model, summary, what = _scratch(args, lexicon, utterances, say)
+        fit, what = _scratch(args, lexicon, say)
     else:
         given = [f"--{n.replace('_', '-')}" for n in _SCRATCH_ONLY if getattr(args, n) is not None]
         if given:
             raise TrainingError(f"{', '.join(given)} only apply with --from-scratch; "
                                 "add --from-scratch, or leave them out to adapt a model")
-        model, summary, what = _adapted(args, lexicon, utterances, say)
+        fit, what = _adapted(args, lexicon, say)
+    if args.no_calibration:
+        model, summary = fit(utterances)
+    else:
+        config = CalibrationConfig(held_out_share=args.calibration_share, refit=args.refit)
+        model, summary = train_calibrated(fit, utterances, config=config.decided(adapting=not args.from_scratch),
+                                          quiet=args.quiet, report=say)
+    if model.info.get("borrowed_pronunciations"):
+        say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
     for line in summary.lines():
         say(line)
     path = save_model(model, args.out)
@@ -157,7 +184,8 @@ def _run(args) -> int:
     return 0
 
 
-def _scratch(args, lexicon, utterances, say):
+def _scratch(args, lexicon, say):
+    """The training function (recordings -> model, summary) and what it makes, from the options."""
     try:
         settings = FeatureSettings(sample_rate=args.sample_rate or 16000)
     except FeatureError as exc:
@@ -173,12 +201,16 @@ def _scratch(args, lexicon, utterances, say):
         noise_snr_db=tuple(args.noise_snr) if args.noise_snr else defaults.noise_snr_db,
         speed_factors=tuple(args.speed) if args.speed else defaults.speed_factors,
         cluster=args.cluster, shared_dir=args.shared_dir, **extra)
-    model, summary = train(utterances, lexicon, settings=settings, config=config,
-                           manifest=args.manifest, quiet=args.quiet, report=say)
-    return model, summary, f"{config.mixtures[-1]} Gaussians a state, from scratch"
+
+    def fit(utterances):
+        return train(utterances, lexicon, settings=settings, config=config,
+                     manifest=args.manifest, quiet=args.quiet, report=say)
+
+    return fit, f"{config.mixtures[-1]} Gaussians a state, from scratch"
 
 
-def _adapted(args, lexicon, utterances, say):
+def _adapted(args, lexicon, say):
+    """The adapting function (recordings -> model, summary) and what it makes, from the options."""
     from wordspot.model import load_model
 
     name = args.start or ("starter-8k" if args.sample_rate == 8000 else "starter")
@@ -191,8 +223,9 @@ def _adapted(args, lexicon, utterances, say):
     config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
                               mean_transform=not args.no_mean_transform,
                               update_variances=args.adapt_variances, jobs=args.jobs)
-    model, summary = adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
-                           quiet=args.quiet, report=say)
-    if model.info.get("borrowed_pronunciations"):
-        say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
-    return model, summary, f"adapted from {name}"
+
+    def fit(utterances):
+        return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
+                     quiet=args.quiet, report=say)
+
+    return fit, f"adapted from {name}"

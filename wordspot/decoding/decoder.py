@@ -4,13 +4,11 @@ The search is token passing over a compiled network (:mod:`wordspot.decoding.net
 pruning (:mod:`wordspot.decoding.kernels`); the best path is traced back through the word
 links at the end.
 
-Per-word confidence (a heuristic, not a calibrated probability): over the frames the
-word covers (its trailing pause included), ``d`` is the mean per-frame difference
-between the word's acoustic score and the score of the single best-scoring state of the
-network at each of those frames (an unconstrained upper bound). ``d <= 0`` up to the
-transition terms; the confidence is ``exp(min(d, 0) / CONFIDENCE_SCALE)``, so 1 means
-the word's path is as good as the best free choice of state at every frame and it falls
-towards 0 as the word explains its frames worse than some other state would.
+Per-word confidence (:mod:`wordspot.decoding.confidence`): every word gets its measures
+(``WordSegment.measures``); the model's calibration, when it has one, turns them into
+the probability that the word is right, otherwise a documented heuristic is used. Words
+below the threshold (``DecoderSettings.min_confidence``) are dropped from the result and
+kept in ``Recognition.dropped``.
 """
 
 from __future__ import annotations
@@ -22,6 +20,8 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
+from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, split_by_confidence,
+                                          usable_calibration, word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
@@ -44,14 +44,11 @@ __all__ = [
     "CONFIDENCE_SCALE",
 ]
 
-#: Nats per frame by which a word may trail the best free state before its confidence
-#: falls to 1/e (chosen by us, see the module docstring).
-CONFIDENCE_SCALE = 4.0
-
 REASON_TOO_SHORT = "too short"
 REASON_SILENCE = "silence or noise only"
 REASON_NO_PATH = "no complete path"
 REASON_NO_COMMAND = "no command"
+REASON_LOW_CONFIDENCE = "below the confidence threshold"
 
 
 @dataclass(frozen=True)
@@ -91,6 +88,10 @@ class DecoderSettings:
         Log units added when a pause between words begins.
     filler_frame_penalty : float <= 0
         Log units added for every frame the filler spells.
+    min_confidence : float in [0, 1] or None
+        Words with a lower confidence are dropped (kept in ``Recognition.dropped``). None:
+        ``DEFAULT_MIN_CONFIDENCE`` when the model's confidence is calibrated, 0 (keep every
+        word) when it is the heuristic.
     """
 
     beam: float = 800.0
@@ -104,8 +105,12 @@ class DecoderSettings:
     filler_penalty: float = -80.0
     pause_penalty: float = -10.0
     filler_frame_penalty: float = 0.0
+    min_confidence: float | None = None
 
     def __post_init__(self) -> None:
+        m = self.min_confidence
+        if m is not None and not (isinstance(m, (int, float)) and not isinstance(m, bool) and 0.0 <= m <= 1.0):
+            raise DecodingError(f"min_confidence must be a number from 0 to 1 (or None for the default), got {m!r}")
         for name in ("beam", "word_end_beam"):
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and value > 0) or np.isnan(value):
@@ -156,9 +161,10 @@ class WordSegment:
     grammar : float
         Weighted log prior of the link into the word plus the insertion penalty.
     confidence : float in [0, 1]
-        See the module docstring.
+        The probability that the word is right when the model is calibrated, else a
+        heuristic (:mod:`wordspot.decoding.confidence`).
     measures : tuple of float
-        What the confidence is computed from, named by :data:`MEASURE_NAMES`.
+        The word's confidence measures, named by ``confidence.MEASURE_NAMES``.
     """
 
     word: str
@@ -192,6 +198,8 @@ class Recognition:
     narrow_band : bool
         The file carries (next to) nothing above 4 kHz although the model's rate could
         (see :mod:`wordspot.audio.band`): telephone-band audio given to a wideband model.
+    dropped : list of WordSegment
+        Words of the best path below the confidence threshold, left out of ``segments``.
     """
 
     path: str | None = None
@@ -201,6 +209,7 @@ class Recognition:
     error: str = ""
     duration: float = 0.0
     narrow_band: bool = False
+    dropped: list[WordSegment] = field(default_factory=list)
 
     @property
     def words(self) -> list[str]:
@@ -214,12 +223,6 @@ class Recognition:
     def ok(self) -> bool:
         return not self.error
 
-
-#: Names of :attr:`WordSegment.measures`: per-frame margins of the word's acoustic score
-#: (its frames and trailing pause) over the best free state at every frame, over the best
-#: free sequence of phones and pauses, and over the best other command; then the log of
-#: frames per phone.
-MEASURE_NAMES = ("free_margin", "filler_margin", "runner_up_margin", "log_frames_per_phone", "next_to_filler")
 
 #: Precision of emission scoring during recognition (training scores in float64).
 EMISSION_DTYPE = np.float32
@@ -237,6 +240,7 @@ class Recognizer:
     features: object
     settings: DecoderSettings
     hop: float
+    calibration: object = None
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
 
@@ -269,6 +273,13 @@ class Recognizer:
         others = [piece_score(ll, first, last, p) for w, p in enumerate(words, start=1) if w != word]
         r = (acoustic - max(others)) / span if others else np.nan
         return float(f), float(r)
+
+    @property
+    def min_confidence(self) -> float:
+        """The threshold in force (see ``DecoderSettings.min_confidence``)."""
+        if self.settings.min_confidence is not None:
+            return float(self.settings.min_confidence)
+        return DEFAULT_MIN_CONFIDENCE if self.calibration is not None else 0.0
 
     def emissions(self, frames: np.ndarray) -> np.ndarray:
         """Log-likelihood of every frame under every mixture the network uses, (T, P).
@@ -357,10 +368,11 @@ class Recognizer:
                 continue  # filler or pause between commands
             grammar = float(net.link_row(int(links[prev, 0]))[word])
             acoustic = float(link_scores[k] - link_scores[prev] - grammar)
-            span = end - start + 1
-            d = (acoustic - (best_free[end + 1] - best_free[start])) / span
             filler_margin, runner_up = self.margins(ll, word, start, end, acoustic)
-            per_phone = np.log((phone_end - start + 1) / len(net.prons[pron]))
+            measures = word_measures(acoustic=acoustic, best_free=best_free, start=start, phone_end=phone_end,
+                                     end=end, n_phones=len(net.prons[pron]), filler_margin=filler_margin,
+                                     runner_up_margin=runner_up,
+                                     next_to_filler=int(is_filler[i - 1]) + int(is_filler[i + 1]))
             result.segments.append(
                 WordSegment(
                     word=net.words[word - 1],
@@ -371,13 +383,17 @@ class Recognizer:
                     last_frame=phone_end,
                     acoustic=acoustic,
                     grammar=grammar,
-                    confidence=float(np.exp(min(d, 0.0) / CONFIDENCE_SCALE)),
-                    measures=(float(d), filler_margin, runner_up, float(per_phone),
-                              float(is_filler[i - 1]) + float(is_filler[i + 1])),
+                    confidence=word_confidence(measures, self.calibration),
+                    measures=measures,
                 )
             )
+        # confidence threshold (wordspot.decoding.confidence)
+        result.segments, result.dropped = split_by_confidence(result.segments, self.min_confidence)
         if len(chain) <= 1:
             result.reason = f"{REASON_SILENCE}: the pause model explains the recording better than any word"
+        elif result.dropped and not result.segments:
+            result.reason = (f"{REASON_LOW_CONFIDENCE}: every word heard ({' '.join(s.word for s in result.dropped)}) "
+                             f"has a confidence below {self.min_confidence:g}")
         elif not result.segments:
             result.reason = (f"{REASON_NO_COMMAND}: the filler (any phones) and pause models explain the "
                              "recording better than any command word")
@@ -463,7 +479,9 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
     sub = Mixtures(mix.weights[net.used_mixtures], mix.means[net.used_mixtures], mix.variances[net.used_mixtures])
     feats = model.features
     hop = feats.hop_length / feats.sample_rate
-    return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop)
+    calibration = usable_calibration(getattr(model, "calibration", None))
+    return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
+                      calibration=calibration)
 
 
 def recognize_features(model, frames, *, settings: DecoderSettings | None = None, lexicon=None,

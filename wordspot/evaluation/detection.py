@@ -1,8 +1,10 @@
 """The detection trade-off: misses against false accepts as a confidence threshold moves.
 
-Each recognised word carries a confidence (``WordSegment.confidence``, a documented
-heuristic in [0, 1], not a calibrated probability). A *threshold* t keeps the words with
-confidence >= t and drops the others; every item is then scored again (the same alignment
+Each recognised word carries a confidence (``WordSegment.confidence``: the probability
+that the word is right when the model is calibrated, else a heuristic in [0, 1]). A
+*threshold* t keeps the words with confidence >= t and drops the others; the words the
+recogniser's own threshold already dropped take part too (``ScoredUtterance.every_word``),
+so the curve reaches below it. Every item is then scored again (the same alignment
 as :func:`wordspot.evaluation.scoring.align_words`). At each threshold:
 
 - **miss rate** = (S + D) / N over the command items (reference words deleted or
@@ -156,12 +158,13 @@ def trade_off(utterances: Sequence[ScoredUtterance]) -> TradeOff:
     """
     items = []
     for u in utterances:
-        if u.confidences is None or len(u.confidences) != len(u.recognised):
+        words, confidences = u.every_word()
+        if confidences is None or len(confidences) != len(words):
             raise ScoringError(
                 f"{u.path}: the detection trade-off needs one confidence per recognised word; "
-                f"got {None if u.confidences is None else len(u.confidences)} for {len(u.recognised)} word(s)"
+                f"got {None if confidences is None else len(confidences)} for {len(words)} word(s)"
             )
-        items.append((bool(u.reference), *_item_levels(u.reference, u.recognised, u.confidences, bool(u.reference))))
+        items.append((bool(u.reference), *_item_levels(u.reference, words, confidences, bool(u.reference))))
     quiet = [u for u in utterances if not u.reference]
     n_words = sum(len(u.reference) for u in utterances)
     if not quiet or n_words == 0:
@@ -223,8 +226,9 @@ def equal_error_rate(miss_rate, false_accept_rate) -> float | None:
 def measurable(result: EvaluationResult) -> bool:
     """Whether `trade_off` can run on a scored set: both kinds of item, every confidence known."""
     utts = [s.utterance for s in result.scores]
+    every = [u.every_word() for u in utts]
     return (result.reference_words > 0 and result.non_command_utterances > 0
-            and all(u.confidences is not None and len(u.confidences) == len(u.recognised) for u in utts))
+            and all(c is not None and len(c) == len(w) for w, c in every))
 
 
 def equal_error_rate_of(result: EvaluationResult) -> float | None:

@@ -21,6 +21,7 @@ from urllib.parse import quote
 import numpy as np
 
 from wordspot.errors import WordspotError
+from wordspot.evaluation.reliability import expected_calibration_error, reliability_of
 from wordspot.evaluation.report import format_percent as _pct
 from wordspot.evaluation.scoring import DELETION, HIT, INSERTION, SUBSTITUTION
 
@@ -251,6 +252,11 @@ def write_html_report(evaluation, folder, *, copy_audio: bool = False, confusion
         rel = quote(Path(os.path.relpath(Path(confusions).resolve(), folder.resolve())).as_posix())
         confusions_html = (f'<h2>Confusions</h2><img src="{_e(rel)}" alt="Which word was recognised as which: '
                            f'rows are the words said, columns the words recognised" width="600">')
+    reliability = reliability_of(r)
+    reliability_html = "" if reliability is None else (
+        f"<dt>confidence reliability</dt><dd>expected calibration error "
+        f"{_pct(expected_calibration_error(reliability))} over {sum(b.words for b in reliability)} words heard "
+        f"(mean confidence against share right, per bin: reliability.csv)</dd>")
     options = "".join(f'<option value="{_e(s)}">{_e(s)}</option>' for s in speakers)
     title = f"wordspot evaluation: {evaluation.name}"
     page = f"""<!DOCTYPE html>
@@ -268,6 +274,7 @@ def write_html_report(evaluation, folder, *, copy_audio: bool = False, confusion
 <dt>correct words</dt><dd>{r.hits}</dd>
 <dt>utterances with errors</dt><dd>{r.utterance_errors} of {r.utterances} ({_pct(r.sentence_error_rate)})</dd>
 <dt>files that could not be read</dt><dd>{len(evaluation.failed)}</dd>
+{reliability_html}
 </dl>
 <h2 id="errors-heading">Utterances with errors</h2>
 <p class="note">Each box shows a word said (top) and the word heard (bottom); errors are named

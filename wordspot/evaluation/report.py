@@ -16,6 +16,7 @@ from pathlib import Path
 from wordspot.errors import WordspotError, WordspotWarning
 from wordspot.evaluation.detection import (DET_TICKS, TradeOff, equal_error_rate_of, measurable,
                                            normal_deviate, trade_off)
+from wordspot.evaluation.reliability import expected_calibration_error, reliability_of
 from wordspot.evaluation.scoring import EvaluationResult, WordRow, confusion_matrix
 
 __all__ = [
@@ -26,6 +27,7 @@ __all__ = [
     "render_summary",
     "render_word_table",
     "render_speaker_table",
+    "render_reliability",
     "render_result",
     "write_report",
 ]
@@ -144,15 +146,30 @@ def render_speaker_table(result: EvaluationResult) -> str:
     return _columns(header, body, right=set(range(1, 8)))
 
 
+def render_reliability(result: EvaluationResult) -> str | None:
+    """The reliability table, one line per confidence bin that holds words (None without words)."""
+    rows = reliability_of(result)
+    if rows is None:
+        return None
+    body = [[f"{r.low:.1f}-{r.high:.1f}", str(r.words), f"{r.mean_confidence:.2f}", _pct(r.share_correct)]
+            for r in rows if r.words]
+    gap = expected_calibration_error(rows)
+    head = (f"Confidence reliability (every word heard, those below the threshold too; "
+            f"expected calibration error {_pct(gap)})")
+    return head + "\n" + _columns(["confidence", "words", "mean", "right"], body, right={1, 2, 3})
+
+
 def render_result(result: EvaluationResult, *, title: str | None = None, word_limit: int | None = 20) -> str:
-    """Summary, per-word and per-speaker tables as one text block."""
-    return "\n\n".join(
-        [
-            render_summary(result, title=title),
-            "By word\n" + render_word_table(result, limit=word_limit),
-            "By speaker\n" + render_speaker_table(result),
-        ]
-    )
+    """Summary, per-word and per-speaker tables and the reliability table as one text block."""
+    parts = [
+        render_summary(result, title=title),
+        "By word\n" + render_word_table(result, limit=word_limit),
+        "By speaker\n" + render_speaker_table(result),
+    ]
+    reliability = render_reliability(result)
+    if reliability is not None:
+        parts.append(reliability)
+    return "\n\n".join(parts)
 
 
 @dataclass(frozen=True)
@@ -160,7 +177,8 @@ class ReportFiles:
     """Paths written by `write_report`; a picture or table not written is None.
 
     ``trade_off`` (``det.png``) and ``trade_off_table`` (``det.csv``) need both command
-    recordings and recordings without a command.
+    recordings and recordings without a command; ``reliability`` (``reliability.csv``)
+    needs at least one word heard with a confidence.
     """
 
     folder: Path
@@ -171,6 +189,7 @@ class ReportFiles:
     confusions: Path | None
     trade_off: Path | None = None
     trade_off_table: Path | None = None
+    reliability: Path | None = None
 
 
 def _write_csv(path: Path, header: list[str], rows) -> None:
@@ -273,6 +292,8 @@ def write_report(result: EvaluationResult, folder, *, picture: bool = True) -> R
     if matplotlib is missing). When the set holds recordings with and without a command and
     every recognised word's confidence is known: ``det.csv`` (misses and false accepts at
     each confidence threshold) and ``det.png`` (the detection error trade-off picture).
+``reliability.csv``: words, mean confidence and share right per confidence bin
+(:mod:`wordspot.evaluation.reliability`).
 
     Parameters
     ----------
@@ -334,6 +355,13 @@ def write_report(result: EvaluationResult, folder, *, picture: bool = True) -> R
         drawn = picture and _draw_confusions(result, paths.confusions)
         if not drawn:
             paths = replace(paths, confusions=None)
+        rows = reliability_of(result)
+        if rows is not None:
+            paths = replace(paths, reliability=folder / "reliability.csv")
+            _write_csv(paths.reliability, ["low", "high", "words", "correct", "mean_confidence", "share_correct"],
+                       ([f"{r.low:.2f}", f"{r.high:.2f}", r.words, r.correct,
+                         "" if r.words == 0 else f"{r.mean_confidence:.6f}",
+                         "" if r.words == 0 else f"{r.share_correct:.6f}"] for r in rows))
         if measurable(result):
             points = trade_off([s.utterance for s in result.scores])
             paths = replace(paths, trade_off_table=folder / "det.csv")

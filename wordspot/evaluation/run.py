@@ -13,9 +13,10 @@ from pathlib import Path
 from wordspot.corpus import check_manifest, read_manifest
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.util.progress import ProgressBar
+from wordspot.evaluation.reliability import expected_calibration_error, reliability_of
 from wordspot.evaluation.scoring import EvaluationResult, ScoredUtterance, score_utterances
 
-__all__ = ["ManifestEvaluation", "evaluate_utterances", "evaluate_manifest"]
+__all__ = ["ManifestEvaluation", "scored_utterance", "evaluate_utterances", "evaluate_manifest"]
 
 
 @dataclass
@@ -65,10 +66,23 @@ class ManifestEvaluation:
         out = {"set": self.name}
         out.update(self.result.to_dict())
         out["equal_error_rate"] = self.equal_error_rate
+        rows = reliability_of(self.result)
+        out["confidence_reliability"] = None if rows is None else [r.to_dict() for r in rows]
+        out["expected_calibration_error"] = None if rows is None else expected_calibration_error(rows)
         out["failed_files"] = [{"path": p, "error": e} for p, e in self.failed]
         out["recognition_seconds"] = round(self.seconds, 3)
         out["audio_seconds"] = round(self.audio_seconds, 3)
         return out
+
+
+def scored_utterance(utterance, recognition: Recognition) -> ScoredUtterance:
+    """What to score of one recognition: the kept words, and every word heard with its confidence."""
+    heard = sorted(recognition.segments + recognition.dropped, key=lambda s: s.first_frame)
+    return ScoredUtterance(str(utterance.path), utterance.speaker, tuple(utterance.words), tuple(recognition.words),
+                           seconds=float(recognition.duration),
+                           confidences=tuple(float(s.confidence) for s in recognition.segments),
+                           heard=tuple(s.word for s in heard),
+                           heard_confidences=tuple(float(s.confidence) for s in heard))
 
 
 def _recognize_all(model, paths, *, settings, lexicon, prior, jobs: int, label: str,
@@ -123,11 +137,7 @@ def evaluate_utterances(model, utterances, *, name: str = "set", settings: Decod
     recs = _recognize_all(model, [u.path for u in utterances], settings=settings, lexicon=lexicon,
                           prior=prior, jobs=jobs, label=f"recognising {name}", quiet=quiet)
     seconds = time.monotonic() - start
-    scored = [
-        ScoredUtterance(str(u.path), u.speaker, tuple(u.words), tuple(r.words), seconds=float(r.duration),
-                        confidences=tuple(float(s.confidence) for s in r.segments))
-        for u, r in zip(utterances, recs)
-    ]
+    scored = [scored_utterance(u, r) for u, r in zip(utterances, recs)]
     result = score_utterances(scored, n_bootstrap=n_bootstrap, seed=seed)
     failed = [(str(r.path), r.error) for r in recs if r.error]
     audio = float(sum(r.duration for r in recs))

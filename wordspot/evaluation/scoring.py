@@ -256,7 +256,10 @@ class ScoredUtterance:
     ``seconds`` (the recording's duration) and ``confidences`` (one in [0, 1] per
     recognised word) are optional; false accepts per hour need the first, the detection
     trade-off (:mod:`wordspot.evaluation.detection`) the second. An empty ``reference``
-    marks a recording with no command in it.
+    marks a recording with no command in it. ``heard`` and ``heard_confidences``, when
+    given, are every word of the best path before the confidence threshold dropped some
+    (``recognised`` being what was kept): the trade-off and the reliability table look at
+    all of them.
     """
 
     path: str | os.PathLike
@@ -265,6 +268,14 @@ class ScoredUtterance:
     recognised: tuple[str, ...]
     seconds: float | None = None
     confidences: tuple[float, ...] | None = None
+    heard: tuple[str, ...] | None = None
+    heard_confidences: tuple[float, ...] | None = None
+
+    def every_word(self) -> tuple[tuple[str, ...], tuple[float, ...] | None]:
+        """(words, confidences) before the threshold: ``heard`` if given, else ``recognised``."""
+        if self.heard is None:
+            return self.recognised, self.confidences
+        return self.heard, self.heard_confidences
 
     @classmethod
     def from_text(cls, path, speaker: str, reference: str, recognised: str) -> "ScoredUtterance":

@@ -37,7 +37,8 @@ class ScanSettings:
     block_seconds : float > 0
         Seconds of audio read at a time (does not change the result).
     min_confidence : float in [0, 1]
-        Words of lower confidence are dropped before commands are formed.
+        Words of lower confidence are dropped before commands are formed, on top of the
+        recognizer's own threshold (``DecoderSettings.min_confidence``).
     split_pause : float >= 0
         A longer pause between two words of one stretch starts a new command.
     """

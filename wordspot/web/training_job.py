@@ -1,7 +1,9 @@
 """Training started from the page: ``wordspot train`` in a child process, its output kept.
 
 The page polls :meth:`TrainingJob.status`; progress is the number of the last ``pass N``
-line the trainer printed over the number of passes its configuration runs.
+line the trainer printed over the number of passes its configuration runs (twice as many
+when the confidence calibration trains first without its held-out takes and then again
+on all of them, as adapting does).
 """
 
 from __future__ import annotations
@@ -19,6 +21,9 @@ from wordspot.training.trainer import TrainingConfig
 __all__ = ["TrainingJob", "train_command"]
 
 _PASS_RE = re.compile(r"^\s*(?:adapt\s+)?pass\s+(\d+)\b")
+# what wordspot.evaluation.calibrate reports before its first and its second training
+_FIRST_OF_TWO = "confidence calibration: training on "
+_SECOND = "confidence calibration: training again"
 _KEEP_LINES = 200
 
 
@@ -52,6 +57,9 @@ class TrainingJob:
         self._lines: deque[str] = deque(maxlen=_KEEP_LINES)
         self._pass = 0
         self._total = _total_passes(False)
+        self._from_scratch = False
+        self._rounds = 1  # trainings this run makes
+        self._round = 0  # trainings finished
 
     def start(self, manifest, lexicon, model, *, jobs: int = 1, sample_rate: int = 16000,
               from_scratch: bool = False) -> bool:
@@ -64,6 +72,8 @@ class TrainingJob:
             self._lines.clear()
             self._pass = 0
             self._total = _total_passes(from_scratch)
+            self._from_scratch = from_scratch
+            self._rounds, self._round = 1, 0
             self._lines.append("$ " + " ".join(args))
             self._process = subprocess.Popen(
                 [sys.executable, "-m", "wordspot.cli"] + args[1:],
@@ -83,6 +93,10 @@ class TrainingJob:
                     m = _PASS_RE.match(line)
                     if m:
                         self._pass = int(m.group(1))
+                    elif line.startswith(_FIRST_OF_TWO) and not self._from_scratch:
+                        self._rounds = 2  # adapting trains again on every take (--refit)
+                    elif line.startswith(_SECOND):
+                        self._round, self._pass = self._round + 1, 0
         process.wait()
 
     def status(self) -> dict:
@@ -96,7 +110,8 @@ class TrainingJob:
             return {
                 "state": state,
                 "exit_status": code,
-                "progress": min(1.0, self._pass / self._total) if state != "done" else 1.0,
+                "progress": (min(1.0, (self._round * self._total + self._pass) / (self._rounds * self._total))
+                             if state != "done" else 1.0),
                 "lines": list(self._lines)[-30:],
             }
 

@@ -1,0 +1,146 @@
+"""Fitting the confidence calibration at training time: the split, the skips, the order of work."""
+
+from __future__ import annotations
+
+import warnings
+from collections import Counter
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from decoding_helpers import tiny_model
+from wordspot.corpus import Utterance
+from wordspot.decoding.confidence import MEASURE_NAMES
+from wordspot.errors import TrainingError, TrainingWarning
+from wordspot.evaluation import calibrate
+from wordspot.evaluation.calibrate import (CalibrationConfig, CalibrationExamples, fit_calibration,
+                                           split_held_out, train_calibrated)
+
+WORDS = ("oven", "stop", "start")
+
+
+def _utterances(speakers=5, takes=4, transcripts=(("oven",), ("stop",), ("oven", "start"))):
+    out = []
+    for words in transcripts:
+        for s in range(speakers):
+            for t in range(takes):
+                out.append(Utterance(Path(f"{'-'.join(words)}-{s}-{t}.wav"), words, f"baker-{s}", len(out) + 2))
+    return out
+
+
+def test_split_is_a_partition_in_manifest_order():
+    utts = _utterances()
+    rest, held = split_held_out(utts, 0.15, seed=3)
+    assert sorted(u.row for u in rest + held) == [u.row for u in utts]
+    assert [u.row for u in rest] == sorted(u.row for u in rest) and [u.row for u in held] == sorted(u.row for u in held)
+    assert split_held_out(utts, 0.15, seed=3) == (rest, held)  # seeded
+    assert split_held_out(utts, 0.15, seed=4)[1] != held
+
+
+def test_split_takes_the_share_of_every_transcript_spread_over_speakers():
+    # 20 recordings a transcript (5 speakers x 4 takes) and a share of 1/4: exactly 5 held
+    # out per transcript, evenly spaced in speaker order, so one per speaker (stratified
+    # hold-out, common practice)
+    rest, held = split_held_out(_utterances(), 0.25, seed=0)
+    assert Counter(u.words for u in held) == {("oven",): 5, ("stop",): 5, ("oven", "start"): 5}
+    for words in {u.words for u in held}:
+        assert sorted(u.speaker for u in held if u.words == words) == [f"baker-{s}" for s in range(5)]
+    # a share that does not divide: 0.15 x 20 = 3 held out per transcript
+    _, held = split_held_out(_utterances(), 0.15, seed=0)
+    assert set(Counter(u.words for u in held).values()) == {3}
+
+
+def test_split_keeps_one_recording_of_every_transcript_for_training():
+    utts = _utterances(speakers=1, takes=2) + _utterances(speakers=1, takes=1, transcripts=(("start",),))
+    for seed in range(20):
+        rest, held = split_held_out(utts, 0.9, seed=seed)
+        assert {u.words for u in rest} == {u.words for u in utts}
+        assert all(u.words != ("start",) for u in held)
+
+
+def _examples(right, wrong, recordings=40, rng=None):
+    rng = rng or np.random.default_rng(5)
+    # one column per measure of MEASURE_NAMES, in its order
+    good = rng.normal([-50.0, -1.0, 2.0, -0.5, 3.0, 0.0], 1.0, size=(right, 6))
+    bad = rng.normal([-60.0, -6.0, 2.5, -3.0, 0.0, 1.0], 1.0, size=(wrong, 6))
+    labels = np.r_[np.ones(right, bool), np.zeros(wrong, bool)]
+    return CalibrationExamples(np.vstack([good, bad]), labels, ~labels, recordings=recordings)
+
+
+def test_fit_needs_both_kinds_of_word():
+    with pytest.warns(TrainingWarning, match=r"calibration skipped: 40 held-out recording\(s\) gave 30 right and 0 wrong"):
+        assert fit_calibration(_examples(30, 0)) is None
+    with pytest.warns(TrainingWarning, match="it needs 20 recordings"):
+        assert fit_calibration(_examples(30, 30, recordings=12)) is None
+    cal = fit_calibration(_examples(30, 30))
+    assert cal.names == MEASURE_NAMES
+    assert cal.coefficients[1] > 0  # right words have the larger free margin in these examples
+
+
+def test_train_calibrated_trains_on_the_rest_then_on_everything(rng, monkeypatch):
+    utts = _utterances(speakers=5, takes=6)  # 30 a transcript; a share of 0.3 holds out 9 of each
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    calls = []
+
+    def fake_train(part):
+        calls.append(list(part))
+        return replace(model, info={"call": len(calls)}), f"summary {len(calls)}"
+
+    def fake_examples(m, held, **_):
+        assert m.info == {"call": 1} and len(held) == 27  # the model trained without the held-out part
+        return _examples(20, 25, recordings=len(held))
+
+    monkeypatch.setattr(calibrate, "calibration_examples", fake_examples)
+    lines = []
+    out, summary = train_calibrated(fake_train, utts, config=CalibrationConfig(held_out_share=0.3, refit=True),
+                                   report=lines.append)
+    assert [len(c) for c in calls] == [90 - 27, 90] and summary == "summary 2"
+    assert out.info["call"] == 2 and out.calibration is not None
+    assert out.info["calibration"]["right_words"] == 20 and out.info["calibration"]["wrong_words"] == 25
+    assert lines[0] == "confidence calibration: training on 63 recordings, 27 held out"
+    calls.clear()
+    out, summary = train_calibrated(fake_train, utts, config=CalibrationConfig(held_out_share=0.3, refit=False))
+    assert [len(c) for c in calls] == [63] and out.info["call"] == 1 and out.calibration is not None
+    assert out.info["calibration"]["refit_on_all"] is False
+
+
+def test_too_few_recordings_train_once_without_calibration(rng):
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    calls = []
+
+    def fake_train(part):
+        calls.append(len(part))
+        return model, None
+
+    utts = _utterances(speakers=2, takes=3)
+    with pytest.warns(TrainingWarning, match=r"calibration skipped: holding out 15% .* gives \d+, fewer than the 20"):
+        out, _ = train_calibrated(fake_train, utts)
+    assert calls == [len(utts)] and out.calibration is None
+
+
+def test_refit_default_depends_on_the_kind_of_training():
+    assert CalibrationConfig().decided(adapting=True).refit is True
+    assert CalibrationConfig().decided(adapting=False).refit is False
+    assert CalibrationConfig(refit=True).decided(adapting=False).refit is True
+
+
+@pytest.mark.parametrize("share", [0.0, 1.0, -0.2, True])
+def test_bad_share_is_refused(share):
+    with pytest.raises(TrainingError, match="held-out share for calibration must be between 0 and 1"):
+        CalibrationConfig(held_out_share=share)
+
+
+def test_cli_refuses_a_bad_share(tmp_path, capsys):
+    from wordspot.cli import main
+
+    manifest = tmp_path / "train.csv"
+    manifest.write_text("path,transcript,speaker\na.wav,oven,ann\n")
+    (tmp_path / "lex.txt").write_text("oven AH V AH N\n")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        status = main(["train", str(manifest), "--lexicon", str(tmp_path / "lex.txt"), "--out",
+                       str(tmp_path / "m.model"), "--calibration-share", "2"])
+    assert status == 2
+    assert "held-out share for calibration must be between 0 and 1" in capsys.readouterr().err

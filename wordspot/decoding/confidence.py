@@ -1,0 +1,128 @@
+"""Word confidence: the measures of a recognised word and the probability that it is right.
+
+For every word on the best path the decoder computes the *measures* named in
+:data:`MEASURE_NAMES` (:func:`word_measures`). A model trained with a calibration
+(:class:`wordspot.util.logistic.Calibration`, fitted by :mod:`wordspot.evaluation.calibrate`)
+turns them into the probability that the word is right; a model without one, or with
+one over other measures than this decoder computes, keeps the heuristic
+:func:`heuristic_confidence`.
+
+Measures (over the word's frames, its trailing pause included, unless said otherwise):
+
+- ``acoustic_per_frame``: the word's acoustic log score divided by its frames;
+- ``free_margin``: ``d``, the mean per-frame difference between that score and the score of
+  the single best state of the whole network at each frame (an unconstrained upper bound,
+  so ``d <= 0`` up to the transition terms);
+- ``frames_per_phone``: log of the frames of the word's phones (pause excluded) over its
+  number of phones (very short or very long phones are suspicious);
+- ``filler_margin``: per frame, the word's acoustic score minus the best free sequence of
+  phones and pauses over the same frames (:mod:`wordspot.decoding.spans`; <= 0 up to the
+  gap's skip term, since the word's own phones are one such sequence);
+- ``runner_up_margin``: per frame, the word's acoustic score minus that of the best other
+  command passing once through the same frames;
+- ``next_to_filler``: how many of the word's two neighbours on the best path (0, 1 or 2)
+  are the filler: a command inside other talk rather than between pauses.
+
+Without the filler (``--no-filler``) or with a one-word vocabulary the margins are
+undefined (NaN) and the confidence is the heuristic.
+
+The heuristic is ``exp(min(d, 0) / CONFIDENCE_SCALE)``: 1 when the word's path is as good as
+the best free choice of state at every frame, falling towards 0 as other states explain
+the frames better.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from typing import Sequence
+
+import numpy as np
+
+from wordspot.errors import WordspotWarning
+
+__all__ = [
+    "MEASURE_NAMES",
+    "CONFIDENCE_SCALE",
+    "DEFAULT_MIN_CONFIDENCE",
+    "word_measures",
+    "heuristic_confidence",
+    "usable_calibration",
+    "word_confidence",
+    "split_by_confidence",
+]
+
+#: The measures :func:`word_measures` returns, in order (stored with every calibration).
+MEASURE_NAMES = ("acoustic_per_frame", "free_margin", "frames_per_phone", "filler_margin", "runner_up_margin",
+                 "next_to_filler")
+
+#: Nats per frame by which a word may trail the best free state before its heuristic
+#: confidence falls to 1/e (chosen by us).
+CONFIDENCE_SCALE = 4.0
+
+#: The word-confidence threshold used when none is given and the model's confidence is
+#: calibrated (words below it are dropped). Provisional: chosen on the demo's dev voices,
+#: see DEVELOPERS.md ("Calibrated confidence").
+DEFAULT_MIN_CONFIDENCE = 0.5
+
+
+def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_end: int, end: int,
+                  n_phones: int, filler_margin: float = float("nan"), runner_up_margin: float = float("nan"),
+                  next_to_filler: int = 0) -> tuple[float, ...]:
+    """The measures of one recognised word, in the order of :data:`MEASURE_NAMES`.
+
+    Parameters
+    ----------
+    acoustic : float
+        The word's acoustic log score over frames ``start .. end``.
+    best_free : ndarray, shape (T + 1,)
+        Running sum of the best state score of each frame (``best_free[t]`` = sum of frames
+        before ``t``).
+    start, phone_end, end : int
+        First frame, last frame of the phones, last frame with the trailing pause (inclusive).
+    n_phones : int >= 1
+    filler_margin, runner_up_margin : float
+        Per-frame margins over frames ``start .. end`` (see the module docstring).
+    next_to_filler : int
+        Neighbours on the best path that are the filler.
+    """
+    span = end - start + 1
+    free_margin = (acoustic - (best_free[end + 1] - best_free[start])) / span
+    return (acoustic / span, float(free_margin), math.log((phone_end - start + 1) / n_phones),
+            float(filler_margin), float(runner_up_margin), float(next_to_filler))
+
+
+def heuristic_confidence(measures: Sequence[float]) -> float:
+    """``exp(min(d, 0) / CONFIDENCE_SCALE)`` from the ``free_margin`` measure ``d``."""
+    d = measures[MEASURE_NAMES.index("free_margin")]
+    return float(np.exp(min(d, 0.0) / CONFIDENCE_SCALE))
+
+
+def usable_calibration(calibration, names: Sequence[str] = MEASURE_NAMES, *, source: str = "the model"):
+    """``calibration`` if it is over exactly ``names`` (in order), else None with one warning."""
+    if calibration is None:
+        return None
+    if tuple(calibration.names) == tuple(names):
+        return calibration
+    warnings.warn(
+        f"{source}: its confidence calibration uses the measures {', '.join(calibration.names)}, but this "
+        f"wordspot computes {', '.join(names)}; word confidences are the uncalibrated heuristic "
+        "(train the model again to calibrate them)",
+        WordspotWarning,
+        stacklevel=3,
+    )
+    return None
+
+
+def word_confidence(measures: Sequence[float], calibration=None) -> float:
+    """The calibrated probability that the word is right, or the heuristic without a calibration."""
+    if calibration is None or not np.all(np.isfinite(measures)):
+        return heuristic_confidence(measures)
+    return float(calibration.predict(np.asarray(measures, dtype=np.float64)))
+
+
+def split_by_confidence(segments: list, threshold: float) -> tuple[list, list]:
+    """(words with confidence >= threshold, the others), each in their original order."""
+    kept = [s for s in segments if s.confidence >= threshold]
+    dropped = [s for s in segments if s.confidence < threshold]
+    return kept, dropped

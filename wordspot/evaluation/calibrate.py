@@ -1,0 +1,274 @@
+"""Fitting the confidence calibration at training time, on recordings held out of training.
+
+:func:`train_calibrated` wraps any training function (adapting a model, or training one
+from scratch; this module does not import training, the caller hands it in):
+
+1. hold out a share of the recordings (:func:`split_held_out`: per transcript, spread over
+   the speakers, seeded; every transcript keeps at least one recording for training);
+2. train on the rest;
+3. recognise each held-out recording (:func:`calibration_examples`) (a) with the whole
+   lexicon, labelling every word heard right or wrong by the word alignment
+   (:func:`wordspot.evaluation.reliability.word_hits`), and (b) with the recording's own
+   words removed from the lexicon, a stand-in for speech that holds no command: every
+   word heard then is wrong. (b) gives the wrong words a clean held-out set would lack;
+4. fit the logistic regression of right / wrong on the words' measures
+   (:func:`wordspot.util.logistic.fit_logistic`);
+5. train again on every recording (``refit``; else keep the model trained on the rest)
+   and store the calibration in that model.
+
+Too few held-out recordings, or too few words of one kind, skip the calibration with one
+warning; the model then keeps the heuristic confidence.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field, replace
+from typing import Callable, Iterator, Sequence
+
+import numpy as np
+
+from wordspot.decoding.confidence import MEASURE_NAMES
+from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
+from wordspot.errors import TrainingError, TrainingWarning, WordspotError
+from wordspot.evaluation.reliability import word_hits
+from wordspot.language.grammar import BigramCounts, estimate_prior
+from wordspot.util.logistic import DEFAULT_PENALTY, Calibration, fit_logistic
+from wordspot.util.progress import ProgressBar
+
+__all__ = [
+    "CalibrationConfig",
+    "CalibrationExamples",
+    "split_held_out",
+    "held_out_recognitions",
+    "calibration_examples",
+    "fit_calibration",
+    "train_calibrated",
+]
+
+
+@dataclass(frozen=True)
+class CalibrationConfig:
+    """How the confidence calibration is fitted at training time.
+
+    Parameters
+    ----------
+    held_out_share : float in (0, 1)
+        Share of the recordings of each transcript held out of the first training.
+    seed : int
+        Seed of the choice of held-out recordings.
+    refit : bool or None
+        Train again on every recording once the calibration is fitted. None: yes when
+        adapting (seconds), no when training from scratch (minutes; the model trained
+        without the held-out share is kept). Decided by the caller of :func:`train_calibrated`.
+    min_items : int
+        Fewest held-out recordings to fit on.
+    min_per_class : int
+        Fewest right and fewest wrong words to fit on.
+    penalty : float
+        L2 penalty of the logistic regression (standardised measures).
+    settings : DecoderSettings
+        How the held-out recordings are recognised (the word loop; no threshold).
+    """
+
+    held_out_share: float = 0.15
+    seed: int = 0
+    refit: bool | None = None
+    min_items: int = 20
+    min_per_class: int = 5
+    penalty: float = DEFAULT_PENALTY
+    settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
+
+    def __post_init__(self) -> None:
+        s = self.held_out_share
+        if isinstance(s, bool) or not isinstance(s, (int, float)) or not 0.0 < s < 1.0:
+            raise TrainingError(f"the held-out share for calibration must be between 0 and 1 (e.g. 0.15), got {s!r}")
+
+    def decided(self, *, adapting: bool) -> "CalibrationConfig":
+        """This configuration with ``refit`` settled: as given, else True when adapting."""
+        return self if self.refit is not None else replace(self, refit=adapting)
+
+
+@dataclass
+class CalibrationExamples:
+    """Measures of the words heard on held-out recordings, and whether each is right.
+
+    ``own_words_removed`` marks the words heard with the recording's own words taken out of
+    the lexicon (all wrong by construction).
+    """
+
+    measures: np.ndarray
+    right: np.ndarray
+    own_words_removed: np.ndarray
+    recordings: int = 0
+    failed: list[str] = field(default_factory=list)
+
+
+def split_held_out(utterances: Sequence, share: float, seed: int = 0) -> tuple[list, list]:
+    """(training part, held-out part), both in manifest order.
+
+    Per transcript, about ``share`` of its recordings (rounded at random so that the
+    expected number is exact) are held out, evenly spaced in the recordings sorted by
+    speaker, so every speaker gives about the same share; at least one recording of every
+    transcript stays in training.
+    """
+    rng = np.random.default_rng(seed)
+    groups: dict[tuple[str, ...], list[int]] = {}
+    for i, u in enumerate(utterances):
+        groups.setdefault(tuple(u.words), []).append(i)
+    held: set[int] = set()
+    for words in sorted(groups):
+        members = groups[words]
+        n = len(members)
+        k = min(int(share * n + rng.random()), n - 1)
+        if k <= 0:
+            continue
+        keys = rng.random(n)
+        order = [members[j] for j in sorted(range(n), key=lambda j: (utterances[members[j]].speaker, keys[j]))]
+        offset = rng.random()
+        held.update(order[int((j + offset) * n / k)] for j in range(k))
+    rest = [u for i, u in enumerate(utterances) if i not in held]
+    return rest, [u for i, u in enumerate(utterances) if i in held]
+
+
+def _prior_without(model, lexicon):
+    """The model's word-pair prior over the smaller ``lexicon`` (None: uniform)."""
+    counts = model.bigrams
+    if not set(lexicon.words) <= set(counts.words):
+        return None
+    order = [0] + [counts.words.index(w) + 1 for w in lexicon.words]
+    return estimate_prior(BigramCounts(tuple(lexicon.words), np.asarray(counts.counts)[np.ix_(order, order)]))
+
+
+def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
+                          quiet: bool = True) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
+    """Recognise each recording with the whole lexicon and with its own words removed.
+
+    Yields ``(utterance, whole, without_own)`` in order: ``whole`` is None when the file
+    cannot be read; ``without_own`` is None when there is nothing to remove (no command)
+    or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
+    """
+    from wordspot.audio.features import compute_features
+    from wordspot.audio.reading import load_audio
+
+    settings = replace(settings or DecoderSettings(), min_confidence=0.0)
+    full = build_recognizer(model, settings=settings)
+    without: dict[frozenset, object] = {}
+    with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
+        for u in utterances:
+            bar.update()
+            try:
+                with warnings.catch_warnings():  # training has warned about these files already
+                    warnings.simplefilter("ignore")
+                    frames = compute_features(load_audio(u.path, sample_rate=model.features.sample_rate),
+                                              model.features)
+                whole = full.decode(frames, path=str(u.path))
+            except WordspotError:
+                yield u, None, None
+                continue
+            own = frozenset(u.words)
+            others = [w for w in model.lexicon.words if w not in own]
+            if not own or not others:
+                yield u, whole, None
+                continue
+            if own not in without:
+                lex = model.lexicon.restricted_to(others)
+                without[own] = build_recognizer(model, settings=settings, lexicon=lex,
+                                                prior=_prior_without(model, lex))
+            yield u, whole, without[own].decode(frames, path=str(u.path))
+
+
+def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
+                         quiet: bool = True) -> CalibrationExamples:
+    """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
+
+    Parameters
+    ----------
+    model : AcousticModel
+        Trained without these recordings.
+    utterances : sequence of Utterance
+    settings : DecoderSettings, optional
+        Default: the word loop (no confidence threshold in any case).
+    """
+    rows, right, removed, failed = [], [], [], []
+    for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet):
+        if whole is None:
+            failed.append(str(u.path))
+            continue
+        heard = whole.segments + whole.dropped
+        rows += [s.measures for s in heard]
+        right += word_hits(u.words, [s.word for s in heard])
+        removed += [False] * len(heard)
+        if without_own is not None:
+            wrong = without_own.segments + without_own.dropped
+            rows += [s.measures for s in wrong]
+            right += [False] * len(wrong)
+            removed += [True] * len(wrong)
+    measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
+    return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
+                               recordings=len(utterances) - len(failed), failed=failed)
+
+
+def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig = CalibrationConfig(),
+                    names: Sequence[str] = MEASURE_NAMES) -> Calibration | None:
+    """The logistic regression of right / wrong on the measures, or None with one warning."""
+    n_right = int(examples.right.sum())
+    n_wrong = int(examples.right.size - n_right)
+    if examples.recordings < config.min_items or min(n_right, n_wrong) < config.min_per_class:
+        warnings.warn(
+            f"confidence calibration skipped: {examples.recordings} held-out recording(s) gave {n_right} right "
+            f"and {n_wrong} wrong word(s); it needs {config.min_items} recordings and {config.min_per_class} "
+            "words of each kind (record more takes, or raise the held-out share); word confidences stay "
+            "the uncalibrated heuristic",
+            TrainingWarning,
+            stacklevel=2,
+        )
+        return None
+    try:
+        return fit_logistic(examples.measures, examples.right.astype(int), names, penalty=config.penalty)
+    except ValueError as exc:
+        warnings.warn(f"confidence calibration skipped: {exc}", TrainingWarning, stacklevel=2)
+        return None
+
+
+def train_calibrated(train: Callable, utterances: Sequence, *, config: CalibrationConfig = CalibrationConfig(),
+                     quiet: bool = True, report: Callable[[str], None] | None = None):
+    """Train with ``train(utterances) -> (model, summary)`` and store a fitted calibration.
+
+    ``config.refit`` should be decided (:meth:`CalibrationConfig.decided`; None counts as
+    False). Returns what the last
+    call of ``train`` returned, its model carrying the calibration (or none, with a warning,
+    when there was too little to fit on) and ``info["calibration"]`` describing the fit.
+    """
+    say = report or (lambda line: None)
+    utterances = list(utterances)
+    rest, held = split_held_out(utterances, config.held_out_share, config.seed)
+    if len(held) < config.min_items:
+        warnings.warn(
+            f"confidence calibration skipped: holding out {config.held_out_share:.0%} of each transcript's "
+            f"recordings gives {len(held)}, fewer than the {config.min_items} needed (record more takes, or "
+            "raise the held-out share); word confidences stay the uncalibrated heuristic",
+            TrainingWarning,
+            stacklevel=2,
+        )
+        return train(utterances)
+    say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
+    model, summary = train(rest)
+    examples = calibration_examples(model, held, settings=config.settings, quiet=quiet)
+    calibration = fit_calibration(examples, config=config)
+    n_right = int(examples.right.sum())
+    say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
+        f"{examples.right.size - n_right} wrong ({int(examples.own_words_removed.sum())} of them heard "
+        "with the recording's own words removed)" + ("" if calibration is not None else "; not fitted"))
+    if config.refit:
+        say(f"confidence calibration: training again on all {len(utterances)} recordings")
+        model, summary = train(utterances)
+    if calibration is not None:
+        model = replace(model, calibration=calibration,
+                        info={**model.info, "calibration": {
+                            "held_out_share": config.held_out_share, "seed": config.seed,
+                            "held_out_recordings": examples.recordings, "right_words": n_right,
+                            "wrong_words": int(examples.right.size - n_right),
+                            "wrong_with_own_words_removed": int(examples.own_words_removed.sum()),
+                            "refit_on_all": bool(config.refit)}})
+    return model, summary

@@ -1,0 +1,186 @@
+"""Logistic regression with an L2 penalty, fitted on standardised inputs, and its stored form.
+
+The model: P(y = 1 | x) = 1 / (1 + exp(-(b + sum_k w_k z_k))), with ``z_k = (x_k - m_k) / s_k``
+the inputs standardised by their training means ``m`` and standard deviations ``s``.
+:func:`fit_logistic` minimises the penalised negative log-likelihood
+
+    L(w, b) = sum_i [log(1 + exp(t_i)) - y_i t_i] + penalty / 2 * ||w||^2,   t_i = b + z_i . w
+
+(the intercept ``b`` is not penalised) with scipy's Newton-CG, given the analytic
+gradient and Hessian. It is the objective of scikit-learn's ``LogisticRegression`` with
+``C = 1 / penalty``. The penalty keeps the coefficients finite on separable data.
+
+:class:`Calibration` is the fitted result: it names its inputs, predicts probabilities
+with numpy alone (scipy is imported only to fit), and turns into plain JSON data and back.
+Errors are ``ValueError`` (callers add the file or option they concern).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["DEFAULT_PENALTY", "Calibration", "fit_logistic", "sigmoid"]
+
+#: L2 penalty on the standardised coefficients (scikit-learn's C = 1): small beside the
+#: hundreds of examples a calibration is fitted on.
+DEFAULT_PENALTY = 1.0
+
+
+def sigmoid(t) -> np.ndarray:
+    """1 / (1 + exp(-t)) without overflow for large |t|."""
+    t = np.asarray(t, dtype=np.float64)
+    e = np.exp(-np.abs(t))
+    return np.where(t >= 0, 1.0 / (1.0 + e), e / (1.0 + e))
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """A fitted logistic regression over named measures.
+
+    Attributes
+    ----------
+    names : tuple of str
+        The measures, in the order of the columns of ``X``.
+    means, scales : ndarray, shape (k,)
+        Standardisation: column ``j`` is used as ``(X[:, j] - means[j]) / scales[j]``.
+    coefficients : ndarray, shape (k,)
+        Weights of the standardised measures.
+    intercept : float
+    """
+
+    names: tuple[str, ...]
+    means: np.ndarray
+    scales: np.ndarray
+    coefficients: np.ndarray
+    intercept: float
+
+    def __post_init__(self) -> None:
+        names = tuple(self.names)
+        if not names or not all(isinstance(n, str) and n for n in names) or len(set(names)) != len(names):
+            raise ValueError(f"measure names must be distinct non-empty strings, got {list(self.names)!r}")
+        object.__setattr__(self, "names", names)
+        for field_name in ("means", "scales", "coefficients"):
+            a = np.asarray(getattr(self, field_name), dtype=np.float64)
+            if a.shape != (len(names),) or not np.isfinite(a).all():
+                raise ValueError(f"{field_name} must be {len(names)} finite numbers, got {getattr(self, field_name)!r}")
+            object.__setattr__(self, field_name, a)
+        if not (self.scales > 0).all():
+            raise ValueError(f"scales must be > 0, got {self.scales.tolist()}")
+        if isinstance(self.intercept, bool) or not isinstance(self.intercept, (int, float)) \
+                or not math.isfinite(self.intercept):
+            raise ValueError(f"intercept must be a finite number, got {self.intercept!r}")
+        object.__setattr__(self, "intercept", float(self.intercept))
+
+    def decision(self, X) -> np.ndarray:
+        """The log-odds ``b + z . w`` of each row of ``X`` (shape (n, k), or (k,) for one row)."""
+        x = np.asarray(X, dtype=np.float64)
+        if x.shape[-1:] != (len(self.names),) or x.ndim > 2:
+            raise ValueError(f"expected rows of {len(self.names)} measures ({', '.join(self.names)}), got shape {x.shape}")
+        return self.intercept + ((x - self.means) / self.scales) @ self.coefficients
+
+    def predict(self, X) -> np.ndarray:
+        """P(y = 1) of each row of ``X``; a float array of shape (n,) (or a 0-d array for one row)."""
+        return sigmoid(self.decision(X))
+
+    def to_dict(self) -> dict:
+        """Plain JSON data: names, means, scales, coefficients, intercept."""
+        return {
+            "names": list(self.names),
+            "means": self.means.tolist(),
+            "scales": self.scales.tolist(),
+            "coefficients": self.coefficients.tolist(),
+            "intercept": self.intercept,
+        }
+
+    @classmethod
+    def from_dict(cls, data) -> "Calibration":
+        """The inverse of :meth:`to_dict`; ``ValueError`` on anything malformed."""
+        keys = ("names", "means", "scales", "coefficients", "intercept")
+        if not isinstance(data, dict) or set(data) != set(keys):
+            found = sorted(data) if isinstance(data, dict) else type(data).__name__
+            raise ValueError(f"expected the keys {', '.join(keys)}, found {found}")
+        lists = {}
+        for key in keys[:4]:
+            value = data[key]
+            if not isinstance(value, list):
+                raise ValueError(f"{key} must be a list, got {type(value).__name__}")
+            if key != "names" and not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value):
+                raise ValueError(f"{key} must hold numbers, got {value!r}")
+            lists[key] = value
+        return cls(tuple(lists["names"]), np.array(lists["means"], dtype=np.float64),
+                   np.array(lists["scales"], dtype=np.float64),
+                   np.array(lists["coefficients"], dtype=np.float64), data["intercept"])
+
+
+def _design(z: np.ndarray) -> np.ndarray:
+    return np.hstack([z, np.ones((z.shape[0], 1))])
+
+
+def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 1e-10) -> Calibration:
+    """Fit P(y = 1 | x) by penalised maximum likelihood (see the module docstring).
+
+    Parameters
+    ----------
+    X : array_like, shape (n, k)
+        Finite measures, one row per example.
+    y : array_like of 0 / 1 (or bool), shape (n,)
+        Both classes must occur.
+    names : sequence of str, length k
+    penalty : float > 0
+        L2 weight on the standardised coefficients (scikit-learn's ``C = 1 / penalty``).
+    tol : float
+        Newton-CG's tolerance on the step (``xtol``).
+
+    Returns
+    -------
+    Calibration
+
+    Raises
+    ------
+    ValueError
+        Shapes disagree, values are not finite, a label is not 0 / 1, one class is absent,
+        or the optimiser did not converge.
+    """
+    from scipy.optimize import minimize
+
+    x = np.asarray(X, dtype=np.float64)
+    labels = np.asarray(y)
+    names = tuple(names)
+    if x.ndim != 2 or x.shape[1] != len(names) or labels.shape != (x.shape[0],):
+        raise ValueError(f"X must be (n, {len(names)}) and y (n,), got {x.shape} and {labels.shape}")
+    if not np.isfinite(x).all():
+        raise ValueError("X holds NaN or infinite values")
+    if not np.isin(labels, (0, 1)).all():
+        raise ValueError("y must hold only 0 and 1")
+    labels = labels.astype(np.float64)
+    if labels.min() == labels.max():
+        raise ValueError(f"y holds only the class {int(labels[0])}; both classes are needed")
+    if not (isinstance(penalty, (int, float)) and penalty > 0 and math.isfinite(penalty)):
+        raise ValueError(f"penalty must be a finite number > 0, got {penalty!r}")
+    means = x.mean(axis=0)
+    scales = x.std(axis=0)
+    scales[scales == 0] = 1.0  # a constant column: its standardised values are all 0
+    a = _design((x - means) / scales)
+    ridge = np.full(a.shape[1], float(penalty))
+    ridge[-1] = 0.0  # the intercept is not penalised
+
+    def loss(theta):
+        t = a @ theta
+        # log(1 + exp(t)) = logaddexp(0, t), stable for any t
+        return float(np.sum(np.logaddexp(0.0, t) - labels * t) + 0.5 * np.dot(ridge * theta, theta))
+
+    def gradient(theta):
+        return a.T @ (sigmoid(a @ theta) - labels) + ridge * theta
+
+    def hessian(theta):
+        p = sigmoid(a @ theta)
+        return (a * (p * (1.0 - p))[:, None]).T @ a + np.diag(ridge)
+
+    out = minimize(loss, np.zeros(a.shape[1]), jac=gradient, hess=hessian, method="Newton-CG",
+                   options={"xtol": tol, "maxiter": 200})
+    if not out.success or not np.isfinite(out.x).all():
+        raise ValueError(f"the logistic regression did not converge ({out.message})")
+    return Calibration(names, means, scales, out.x[:-1].copy(), float(out.x[-1]))
