@@ -14,6 +14,7 @@ hour, boundaries).
 from __future__ import annotations
 
 import csv
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -193,17 +194,27 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         train_utts = read_manifest(folder / "train.csv")
         say(f"{system}: {len(train_utts)} recordings of {len({u.speaker for u in train_utts})} voices "
             f"({folder / 'train.csv'}) ...")
+        from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
+
         if system == "adapted":
             from wordspot.training.adapt import AdaptationConfig, adapt
 
-            model, summary = adapt(train_utts, lexicon, load_model("starter"), config=AdaptationConfig(jobs=jobs),
-                                   manifest=folder / "train.csv", quiet=quiet, report=None if quiet else say)
+            starter = load_model("starter")
+
+            def fit(utts):
+                return adapt(utts, lexicon, starter, config=AdaptationConfig(jobs=jobs), manifest=folder / "train.csv",
+                             quiet=quiet, report=None if quiet else say)
         else:
             from wordspot.training.trainer import TrainingConfig, train
 
-            model, summary = train(train_utts, lexicon, config=TrainingConfig(jobs=jobs),
-                                   manifest=folder / "train.csv", quiet=quiet, report=None if quiet else say)
-        seconds = summary.seconds
+            def fit(utts):
+                return train(utts, lexicon, config=TrainingConfig(jobs=jobs), manifest=folder / "train.csv",
+                             quiet=quiet, report=None if quiet else say)
+        # as `wordspot train` does: calibrated confidences, fitted on held-out recordings
+        began = time.perf_counter()
+        model, _summary = train_calibrated(fit, train_utts, config=CalibrationConfig().decided(
+            adapting=system == "adapted"), quiet=quiet, report=None if quiet else say)
+        seconds = time.perf_counter() - began
     model_file = out_dir / f"bakery-{system}.model"
     save_model(model, model_file)
     if seconds:
