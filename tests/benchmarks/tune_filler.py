@@ -8,6 +8,10 @@ Dev material (no demo test voice, no demo test recording):
 * ``joined``: 2-4 of those recordings of one voice joined by 0.3-1 s gaps of white or pink
   noise, mains hum or dithered digital silence at -70 to -40 dBFS (as
   ``joined_pauses.py`` does with the test voices);
+* ``phrases``: 2-4 of those recordings of one voice cut to their spoken span (the
+  ``speech_start`` / ``speech_end`` columns of ``train.csv``) and joined with 30-120 ms of
+  the first recording's own room tone between them: commands said in one breath, without
+  the coarticulation of a real phrase (a stand-in; the demo's phrases are test voices);
 * ``other talk``: the starter corpus's dev recordings (its own dev voices) whose words are
   none of the lexicon's: every command word recognised there is a false accept.
 
@@ -88,6 +92,24 @@ def dev_sets(model, n_joined: int, seed: int = 20261203):
             parts.append(background(kind, gap, level, rng))
         joined.append((np.concatenate(parts).astype(np.float32), [w for _, ref in picks for w in ref]))
     sets["joined"] = joined
+
+    spans = {}
+    for (wave, ref), r in zip(sets["words"], words):
+        a, b = int(float(r["speech_start"]) * RATE), int(float(r["speech_end"]) * RATE)
+        spans.setdefault(r["speaker"], []).append((wave, ref, a, b))
+    phrases = []
+    for i in range(n_joined):
+        pool = spans[voices[i % len(voices)]]
+        picks = [pool[k] for k in rng.choice(len(pool), size=rng.integers(2, 5), replace=False)]
+        first, _, a0, _ = picks[0]
+        tone = first[:max(a0 - int(0.02 * RATE), int(0.05 * RATE))]
+        parts = [tone]
+        for j, (wave, _, a, b) in enumerate(picks):
+            parts.append(wave[a:b])
+            gap = int(rng.uniform(0.03, 0.12) * RATE) if j < len(picks) - 1 else len(tone)
+            parts.append(np.resize(tone, gap))
+        phrases.append((np.concatenate(parts).astype(np.float32), [w for _, ref, _, _ in picks for w in ref]))
+    sets["phrases"] = phrases
 
     vocab = set(model.lexicon.words) | set(_demo_new_words())
     starter_dev = rec / "starter" / "dev.csv"

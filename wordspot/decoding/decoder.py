@@ -102,7 +102,7 @@ class DecoderSettings:
     single_word: bool = False
     allow_empty: bool = True
     filler: bool = True
-    filler_penalty: float = -80.0
+    filler_penalty: float = -100.0
     pause_penalty: float = -10.0
     filler_frame_penalty: float = 0.0
     min_confidence: float | None = None

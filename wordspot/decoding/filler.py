@@ -65,7 +65,7 @@ class FillerSettings:
     """
 
     enabled: bool = True
-    phone_penalty: float = -80.0
+    phone_penalty: float = -100.0
     pause_penalty: float = -10.0
     frame_penalty: float = 0.0
 
