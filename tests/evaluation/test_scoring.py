@@ -170,12 +170,25 @@ def test_bad_words_raise():
         align_words(["oven"], [""])
 
 
+def test_only_no_command_recordings_are_scored_for_false_accepts():
+    # Every transcript empty (a set of distractors alone): N = 0, so the WER is 0 with no
+    # word heard and infinite otherwise (word_error_rate's convention, as jiwer's
+    # process_words insertions against an empty reference count every heard word), and
+    # every heard word is a false accept.
+    quiet = [ScoredUtterance("a.wav", "s", (), ("oven",)), ScoredUtterance("b.wav", "s", (), ())]
+    result = score_utterances(quiet)
+    assert result.reference_words == 0 and result.insertions == 1 and result.wer == float("inf")
+    assert result.non_command_utterances == 2 and result.false_accepts == 1 and result.miss_rate is None
+    assert score_utterances(quiet[1:]).wer == 0.0
+    from wordspot.evaluation.report import render_summary
+
+    text = render_summary(result)
+    assert "word error rate         n/a" in text and "false accepts" in text
+
+
 def test_score_utterances_rejects_empty_input():
     with pytest.raises(ScoringError, match="no utterances"):
         score_utterances([])
-    empty = [ScoredUtterance("a.wav", "s", (), ("oven",))]
-    with pytest.raises(WordspotError, match="hold no words"):
-        score_utterances(empty)
     with pytest.raises(ScoringError, match="bad.wav: .*not a single non-empty word"):
         score_utterances([ScoredUtterance("bad.wav", "s", ("oven on",), ())])
     with pytest.raises(ScoringError, match="b.wav: speaker must be a string, got None"):

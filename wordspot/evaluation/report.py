@@ -69,11 +69,15 @@ def render_summary(result: EvaluationResult, *, title: str | None = None) -> str
     """The summary block: WER with its interval, the error counts, the utterance error rate."""
     low, high = result.wer_ci95
     lines = [title] if title else []
+    if result.reference_words:
+        wer = (f"word error rate         {_pct(result.wer)}   "
+               f"(95% interval {_pct(low)} .. {_pct(high)}, {result.n_bootstrap} bootstrap replicates)")
+    else:  # only recordings with no command: nothing to get right, only false accepts
+        wer = "word error rate         n/a   (no command words said; see the false accepts)"
     lines += [
         f"utterances scored       {result.utterances}",
         f"reference words         {result.reference_words}",
-        f"word error rate         {_pct(result.wer)}   "
-        f"(95% interval {_pct(low)} .. {_pct(high)}, {result.n_bootstrap} bootstrap replicates)",
+        wer,
         f"  substitutions         {result.substitutions}",
         f"  deletions             {result.deletions}",
         f"  insertions            {result.insertions}",
