@@ -144,3 +144,27 @@ def test_cli_refuses_a_bad_share(tmp_path, capsys):
                        str(tmp_path / "m.model"), "--calibration-share", "2"])
     assert status == 2
     assert "held-out share for calibration must be between 0 and 1" in capsys.readouterr().err
+
+
+def test_held_out_recordings_are_also_heard_faster():
+    # Each recording is recognised once per speed factor; played 1.25 times faster it lasts
+    # 1 / 1.25 as long (speed perturbation as in Ko et al. 2015: resample, read at the old
+    # rate), within a frame or two.
+    from wordspot.evaluation.calibrate import held_out_recognitions
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    repo = Path(__file__).resolve().parents[2]
+    model = load_model("starter")
+    model.lexicon = read_lexicon(repo / "lexicon" / "bakery.txt")
+    utt = Utterance(repo / "recordings" / "audio" / "test" / "flite-rms" / "oven-t1.flac", ("oven",), "rms", 2)
+    got = list(held_out_recognitions(model, [utt], speeds=(1.0, 1.25)))
+    assert len(got) == 2 and all(u is utt and whole is not None and without is not None for u, whole, without in got)
+    assert got[1][1].duration == pytest.approx(got[0][1].duration / 1.25, abs=0.02)
+    assert "oven" not in got[0][2].words  # its own word was taken out of the vocabulary
+
+
+@pytest.mark.parametrize("speeds", [(), (0.1,), (1.0, 3.0)])
+def test_bad_calibration_speeds_are_refused(speeds):
+    with pytest.raises(TrainingError, match="calibration speeds must be factors from 0.5 to 2"):
+        CalibrationConfig(speeds=speeds)

@@ -69,6 +69,11 @@ class CalibrationConfig:
         L2 penalty of the logistic regression (standardised measures).
     settings : DecoderSettings
         How the held-out recordings are recognised (the word loop; no threshold).
+    speeds : tuple of float
+        Each held-out recording is also recognised played this many times faster
+        (``training.data.speed_copy``), so that the calibration holds for quicker and
+        slower speech than the takes (words inside a phrase are shorter than the same
+        words said alone).
     """
 
     held_out_share: float = 0.15
@@ -78,11 +83,15 @@ class CalibrationConfig:
     min_per_class: int = 5
     penalty: float = DEFAULT_PENALTY
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
+    speeds: tuple[float, ...] = (1.0,)
 
     def __post_init__(self) -> None:
         s = self.held_out_share
         if isinstance(s, bool) or not isinstance(s, (int, float)) or not 0.0 < s < 1.0:
             raise TrainingError(f"the held-out share for calibration must be between 0 and 1 (e.g. 0.15), got {s!r}")
+        if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
+            raise TrainingError(f"calibration speeds must be factors from 0.5 to 2 (e.g. (0.9, 1.0, 1.1)), "
+                                f"got {self.speeds!r}")
 
     def decided(self, *, adapting: bool) -> "CalibrationConfig":
         """This configuration with ``refit`` settled: as given, else True when adapting."""
@@ -141,15 +150,18 @@ def _prior_without(model, lexicon):
 
 
 def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                          quiet: bool = True) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
+                          quiet: bool = True, speeds=(1.0,)
+                          ) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
     """Recognise each recording with the whole lexicon and with its own words removed.
 
-    Yields ``(utterance, whole, without_own)`` in order: ``whole`` is None when the file
-    cannot be read; ``without_own`` is None when there is nothing to remove (no command)
-    or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
+    Yields ``(utterance, whole, without_own)`` in order, once per speed factor of
+    ``speeds`` (the recording played that many times faster): ``whole`` is None when the
+    file cannot be read; ``without_own`` is None when there is nothing to remove (no
+    command) or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
     """
     from wordspot.audio.features import compute_features
     from wordspot.audio.reading import load_audio
+    from wordspot.training.data import speed_copy
 
     settings = replace(settings or DecoderSettings(), min_confidence=0.0)
     full = build_recognizer(model, settings=settings)
@@ -157,29 +169,35 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
     with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
         for u in utterances:
             bar.update()
+            rate = model.features.sample_rate
             try:
                 with warnings.catch_warnings():  # training has warned about these files already
                     warnings.simplefilter("ignore")
-                    frames = compute_features(load_audio(u.path, sample_rate=model.features.sample_rate),
-                                              model.features)
-                whole = full.decode(frames, path=str(u.path))
+                    wave = load_audio(u.path, sample_rate=rate)
+                    copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
             except WordspotError:
                 yield u, None, None
                 continue
             own = frozenset(u.words)
             others = [w for w in model.lexicon.words if w not in own]
-            if not own or not others:
-                yield u, whole, None
-                continue
-            if own not in without:
+            if own and others and own not in without:
                 lex = model.lexicon.restricted_to(others)
                 without[own] = build_recognizer(model, settings=settings, lexicon=lex,
                                                 prior=_prior_without(model, lex))
-            yield u, whole, without[own].decode(frames, path=str(u.path))
+            for frames in copies:
+                try:
+                    whole = full.decode(frames, path=str(u.path))
+                except WordspotError:
+                    yield u, None, None
+                    continue
+                if not own or not others:
+                    yield u, whole, None
+                else:
+                    yield u, whole, without[own].decode(frames, path=str(u.path))
 
 
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                         quiet: bool = True) -> CalibrationExamples:
+                         quiet: bool = True, speeds=(1.0,)) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -189,11 +207,15 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
     utterances : sequence of Utterance
     settings : DecoderSettings, optional
         Default: the word loop (no confidence threshold in any case).
+    speeds : tuple of float
+        Speed factors at which every recording is recognised (see :class:`CalibrationConfig`).
     """
     rows, right, removed, failed = [], [], [], []
-    for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet):
+    for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
+                                                       speeds=speeds):
         if whole is None:
-            failed.append(str(u.path))
+            if str(u.path) not in failed:
+                failed.append(str(u.path))
             continue
         heard = whole.segments + whole.dropped
         rows += [s.measures for s in heard]
@@ -254,7 +276,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         return train(utterances)
     say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
     model, summary = train(rest)
-    examples = calibration_examples(model, held, settings=config.settings, quiet=quiet)
+    examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds)
     calibration = fit_calibration(examples, config=config)
     n_right = int(examples.right.sum())
     say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
