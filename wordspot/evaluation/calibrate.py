@@ -83,7 +83,7 @@ class CalibrationConfig:
     min_per_class: int = 5
     penalty: float = DEFAULT_PENALTY
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
-    speeds: tuple[float, ...] = (1.0,)
+    speeds: tuple[float, ...] = (0.9, 1.0, 1.1)
 
     def __post_init__(self) -> None:
         s = self.held_out_share
