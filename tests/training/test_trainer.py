@@ -183,11 +183,12 @@ def test_speed_copy_scales_frequency_and_length(rng):
 
 def test_speed_factors_add_copies(tmp_path, rng):
     manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=8)
-    cfg = TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(0.9, 1.0, 1.1), noise_copies=0)
+    cfg = TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(0.9, 1.0, 1.1), noise_copies=0,
+                         background_share=0)
     model, summary = train(read_manifest(manifest), read_lexicon(lex_path), config=cfg)
     plain, plain_summary = train(read_manifest(manifest), read_lexicon(lex_path),
                                  config=TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(1.0,),
-                                                       noise_copies=0))
+                                                       noise_copies=0, background_share=0))
     assert summary.used == plain_summary.used == 8  # recordings, not copies
     # Copies at 0.9 and 1.1 hold about 1/0.9 + 1/1.1 = 2.02 times the plain frames.
     np.testing.assert_allclose(summary.n_frames / plain_summary.n_frames, 1 + 1 / 0.9 + 1 / 1.1, rtol=0.03)
