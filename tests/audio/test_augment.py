@@ -1,10 +1,18 @@
-"""Tests for wordspot.audio.augment: mixing at an SNR, babble, steady machine noise."""
+"""Tests for wordspot.audio.augment: mixing at an SNR, babble, steady machine noise, backgrounds."""
 
 import numpy as np
 import pytest
 
+from scipy import signal
+
 from wordspot.audio.augment import (
+    LSB_16,
     NoiseSettings,
+    background,
+    dithered_silence,
+    mains_hum,
+    pink_noise,
+    rms_dbfs,
     babble,
     fit_length,
     measured_snr,
@@ -114,3 +122,59 @@ def test_steady_noise_has_unit_power_mains_hum_and_is_seeded():
 def test_noise_settings_reject_bad_values(kwargs, message):
     with pytest.raises(AugmentError, match=message):
         NoiseSettings(**kwargs)
+
+
+@pytest.mark.parametrize("kind", ["white", "pink", "hum", "fan", "babble"])
+@pytest.mark.parametrize("dbfs", [-70.0, -45.0, -30.0])
+def test_background_level_is_the_requested_dbfs(rng, kind, dbfs):
+    # dBFS of float audio: 20 log10(RMS), full scale 1 (common practice), computed here by hand
+    streams = [rng.standard_normal(3000), 0.3 * rng.standard_normal(5000)]
+    x = background(kind, 2 * RATE + 7, dbfs, rng, sample_rate=RATE, mains=60.0, streams=streams)
+    assert x.shape == (2 * RATE + 7,)
+    assert 20 * np.log10(np.sqrt(np.mean(x**2))) == pytest.approx(dbfs, abs=0.5)
+    assert rms_dbfs(x) == pytest.approx(dbfs, abs=0.5)
+
+
+def test_rms_dbfs_of_known_signals():
+    # a full-scale sine has RMS 1/sqrt(2): -3.01 dBFS; a square wave of +-0.1 is -20 dBFS (from memory)
+    t = np.arange(RATE) / RATE
+    assert rms_dbfs(np.sin(2 * np.pi * 440 * t)) == pytest.approx(-3.0103, abs=1e-3)
+    assert rms_dbfs(np.where(t < 0.5, 0.1, -0.1)) == pytest.approx(-20.0, abs=1e-9)
+    assert rms_dbfs(np.zeros(10)) == -np.inf
+    with pytest.raises(AugmentError, match="unknown background kind 'rain'"):
+        background("rain", 10, -40.0, rng=np.random.default_rng(0))
+
+
+def test_pink_noise_falls_three_db_per_octave(rng):
+    # 1/f noise: power halves per doubling of frequency, 10 log10(1/2) = -3.01 dB per octave
+    # (a published property of pink noise). Welch spectrum (scipy.signal.welch), 8 s,
+    # least-squares slope of dB against octaves over 100 Hz - 6 kHz.
+    x = pink_noise(8 * RATE, rng, sample_rate=RATE)
+    f, p = signal.welch(x, fs=RATE, nperseg=4096)
+    band = (f >= 100) & (f <= 6000)
+    slope = np.polyfit(np.log2(f[band]), 10 * np.log10(p[band]), 1)[0]
+    assert slope == pytest.approx(-3.01, abs=0.25)
+    assert np.mean(x**2) == pytest.approx(1.0, rel=1e-9)
+
+
+@pytest.mark.parametrize("mains", [50.0, 60.0])
+def test_hum_energy_sits_at_multiples_of_the_mains_frequency(rng, mains):
+    # one second at 16 kHz: numpy's FFT has 1 Hz bins, so whole-period sines fall on single bins
+    x = mains_hum(RATE, rng, sample_rate=RATE, mains=mains)
+    power = np.abs(np.fft.rfft(x)) ** 2
+    multiples = np.arange(1, 8) * int(mains)
+    assert power[multiples].sum() / power.sum() > 0.999
+    # amplitudes fall as 1/h: the 2nd harmonic has a quarter of the fundamental's power
+    assert power[multiples[1]] / power[multiples[0]] == pytest.approx(0.25, rel=1e-6)
+
+
+def test_dither_stays_within_one_lsb_of_16_bit(rng):
+    # one LSB of 16-bit audio is 2^-15 on the [-1, 1) scale (the PCM convention soundfile reads)
+    x = dithered_silence(RATE, rng)
+    assert LSB_16 == 2.0**-15
+    assert set(np.unique(np.round(x / LSB_16)).tolist()) == {-1.0, 0.0, 1.0}
+    assert np.max(np.abs(x)) <= LSB_16
+    # it survives a round trip through 16-bit integers exactly
+    np.testing.assert_array_equal((x * 32768).astype(np.int16) / 32768.0, x)
+    np.testing.assert_array_equal(background("dither", RATE, -40.0, np.random.default_rng(5)),
+                                  dithered_silence(RATE, np.random.default_rng(5)))

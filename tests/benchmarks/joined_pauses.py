@@ -20,29 +20,12 @@ from pathlib import Path
 
 import numpy as np
 
+from wordspot.audio.augment import background
+
 HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 RATE = 16000
 KINDS = ("white", "pink", "hum", "dither")
-
-
-def background(kind: str, n: int, dbfs: float, rng: np.random.Generator) -> np.ndarray:
-    """``n`` samples of one background at ``dbfs`` RMS (dB relative to full scale)."""
-    if kind == "white":
-        x = rng.normal(size=n)
-    elif kind == "pink":  # 1/f power: white noise shaped in the frequency domain
-        spec = np.fft.rfft(rng.normal(size=n))
-        f = np.fft.rfftfreq(n, 1 / RATE)
-        spec[1:] /= np.sqrt(f[1:])
-        spec[0] = 0
-        x = np.fft.irfft(spec, n)
-    elif kind == "hum":  # 50 Hz mains and its odd harmonics
-        t = np.arange(n) / RATE
-        x = sum(np.sin(2 * np.pi * 50 * k * t + rng.uniform(0, 2 * np.pi)) / k for k in (1, 3, 5, 7))
-    else:  # digital silence with dither of one least significant bit of 16-bit audio
-        return rng.integers(-1, 2, size=n) / 32768.0
-    x = np.asarray(x, dtype=np.float64)
-    return x / np.sqrt(np.mean(x**2)) * 10 ** (dbfs / 20)
 
 
 def main(argv=None) -> int:

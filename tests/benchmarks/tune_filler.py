@@ -13,14 +13,18 @@ Dev material (no demo test voice, no demo test recording):
   the first recording's own room tone between them: commands said in one breath, without
   the coarticulation of a real phrase (a stand-in; the demo's phrases are test voices);
 * ``other talk``: the starter corpus's dev recordings (its own dev voices) whose words are
-  none of the lexicon's: every command word recognised there is a false accept.
+  none of the lexicon's: every command word recognised there is a false accept;
+* ``noise only``: 60 clips of 1-4 s of one background each, drawn with the training
+  recipes (:func:`wordspot.training.backgrounds.plan_backgrounds`, another seed; babble
+  from the other-talk recordings): every command word there is a false accept.
 
 The model must not have heard the dev voices: adapt the starter on the other training
 voices first, e.g.::
 
     python tests/benchmarks/tune_filler.py --model dev.model
 
-(``--make-model dev.model`` writes that model first.) Emissions are computed once per
+(``--make-model`` writes that model first: the starter adapted with the current defaults,
+or with ``--background-share F`` / ``--model-seed N``.) Emissions are computed once per
 file; every setting then re-runs only the search.
 """
 
@@ -44,14 +48,19 @@ from compare_data import dev_voices  # noqa: E402
 from joined_pauses import KINDS, RATE, background  # noqa: E402
 
 
+#: The sets without commands: every word heard there is a false accept.
+NO_COMMAND = ("other talk", "noise only")
+
+
 def _rows(path: Path) -> list[dict]:
     with open(path, newline="", encoding="utf-8") as fh:
         return list(csv.DictReader(fh))
 
 
-def make_dev_model(out: Path) -> None:
+def make_dev_model(out: Path, background_share: float | None = None, seed: int = 0) -> None:
     """Adapt the starter on the demo training voices that are not dev voices."""
     from wordspot import api
+    from wordspot.training.adapt import AdaptationConfig
 
     rec = REPO / "recordings"
     held = set(dev_voices(rec / "voices.csv"))
@@ -63,11 +72,13 @@ def make_dev_model(out: Path) -> None:
             for r in _rows(rec / "train.csv"):
                 if r["speaker"] not in held:
                     w.writerow([str(rec / r["path"]), r["transcript"], r["speaker"]])
-        api.train(manifest, REPO / "lexicon" / "bakery.txt", out=out)
+        share = {} if background_share is None else {"background_share": background_share}
+        api.train(manifest, REPO / "lexicon" / "bakery.txt", out=out, start="starter",
+                  config=AdaptationConfig(seed=seed, **share))
 
 
 def dev_sets(model, n_joined: int, seed: int = 20261203):
-    """(name, list of (waveform, reference words)) for the three dev sets."""
+    """(name, list of (waveform, reference words)) for the dev sets."""
     from wordspot.audio.reading import load_audio
 
     rec = REPO / "recordings"
@@ -118,7 +129,19 @@ def dev_sets(model, n_joined: int, seed: int = 20261203):
         sets["other talk"] = [(load_audio(starter_dev.parent / r["path"], sample_rate=RATE), []) for r in other]
     else:
         print(f"note: {starter_dev} is missing (python recordings/starter.py build); no 'other talk' set")
+    sets["noise only"] = noise_only(sets.get("other talk") or sets["words"], rng)
     return sets
+
+
+def noise_only(talk, rng, n: int = 60):
+    """``n`` clips of 1-4 s of one background each, from the training recipes."""
+    from wordspot.training.backgrounds import background_wave, plan_backgrounds
+
+    pool = {f"t{k % 8}": [] for k in range(8)}  # eight babble talkers from the given recordings
+    for k, (wave, _) in enumerate(talk[:96]):
+        pool[f"t{k % 8}"].append((k, wave))
+    recipes = plan_backgrounds(n, sorted(pool), seed=int(rng.integers(2**31)), seconds=(1.0, 4.0))
+    return [(background_wave(r, pool, RATE), []) for r in recipes]
 
 
 def _demo_new_words() -> list[str]:
@@ -129,6 +152,9 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--model", type=Path, required=True)
     ap.add_argument("--make-model", action="store_true", help="adapt the starter on the non-dev voices first")
+    ap.add_argument("--background-share", type=float, default=None,
+                    help="with --make-model: the adaptation's background share (default: its default)")
+    ap.add_argument("--model-seed", type=int, default=0, help="with --make-model: the adaptation's seed")
     ap.add_argument("--joined", type=int, default=100)
     ap.add_argument("--phone", type=float, nargs="+", default=[-20.0, -30.0, -40.0, -50.0, -60.0])
     ap.add_argument("--pause", type=float, nargs="+", default=[0.0, -10.0, -30.0])
@@ -142,14 +168,15 @@ def main(argv=None) -> int:
     from wordspot.model import load_model
 
     if args.make_model:
-        make_dev_model(args.model)
+        make_dev_model(args.model, args.background_share, args.model_seed)
     model = load_model(args.model)
     sets = dev_sets(model, args.joined)
     base = build_recognizer(model, settings=DecoderSettings(single_word=args.single_word))
     cached = {name: [(base.emissions(compute_features(w, model.features)), ref) for w, ref in items]
               for name, items in sets.items()}
     print(f"model {args.model}; " + ", ".join(f"{k} {len(v)} files" for k, v in cached.items()))
-    print("| filler | phone | pause | frame | " + " | ".join(f"{k}: right, WER" for k in cached) + " |")
+    print("| filler | phone | pause | frame | " + " | ".join(
+        f"{k}: files with a word" if k in NO_COMMAND else f"{k}: right, WER" for k in cached) + " |")
 
     def run(settings):
         rec = build_recognizer(model, settings=settings)
@@ -165,7 +192,7 @@ def main(argv=None) -> int:
                 a = align_words(ref, hyp)
                 errors += a.substitutions + a.deletions + a.insertions
                 words += len(ref)
-            if name == "other talk":
+            if name in NO_COMMAND:
                 cells.append(f"{100 * (1 - right / len(items)):.1f}% with a word")
             else:
                 cells.append(f"{100 * right / len(items):.0f}%, {100 * errors / max(words, 1):.1f}%")

@@ -160,7 +160,7 @@ def test_chunk_given_up_is_a_clear_error(corpus, tmp_path):
     # No retries allowed: the first worker death gives the chunk up.
     with local_cluster(**{"distributed.scheduler.allowed-failures": 0}) as c, distributed.Client(c) as client:
         client.register_plugin(_KillOnce(tmp_path / "unused", nth=1, every_time=True), name="kill-always")
-        config = TrainingConfig(mixtures=(1,), first_passes=1, speed_factors=(1.0,), noise_copies=0,
+        config = TrainingConfig(mixtures=(1,), first_passes=1, speed_factors=(1.0,), noise_copies=0, background_share=0,
                                 cluster=c.scheduler_address)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")

@@ -123,15 +123,27 @@ def test_train_command_writes_a_model(tmp_path, rng, capsys):
     manifest, lex_path = make_corpus(tmp_path / "c", rng, n_utterances=12)
     out = tmp_path / "tones.model"
     status = main(["train", str(manifest), "--lexicon", str(lex_path), "--out", str(out),
-                   "--from-scratch", "--mixtures", "2", "--passes", "1", "--speed", "1.0"])
+                   "--from-scratch", "--mixtures", "2", "--passes", "1", "--speed", "1.0",
+                   "--background-share", "0.5"])
     assert status == 0
     printed = capsys.readouterr().out
     assert "log-likelihood per frame" in printed and "wrote" in printed
+    assert "background-only items (no command): 20" in printed  # 0.5 x 12 recordings, at least 20
     model = load_model(out)
+    assert model.info["background_share"] == 0.5 and model.info["background_items"] == 20
     assert model.mixtures.n_components == 2
     assert model.info["passes"] == 3 + 1  # first stage N+2, then N after the split
     assert model.info["speed_factors"] == [1.0]
     check_probabilities(model)
+
+
+def test_train_command_refuses_a_bad_background_share(tmp_path, rng, capsys):
+    manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=2)
+    for extra in ([], ["--from-scratch"]):  # adapting and from scratch
+        status = main(["train", str(manifest), "--lexicon", str(lex_path), "--out", str(tmp_path / "m"),
+                       "--background-share", "1.5", *extra])
+        err = capsys.readouterr().err
+        assert status == 2 and "--background-share" in err and "from 0 to 1" in err and err.count("\n") == 1
 
 
 def test_train_command_reports_missing_lexicon(tmp_path, rng, capsys):
@@ -183,11 +195,12 @@ def test_speed_copy_scales_frequency_and_length(rng):
 
 def test_speed_factors_add_copies(tmp_path, rng):
     manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=8)
-    cfg = TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(0.9, 1.0, 1.1), noise_copies=0)
+    cfg = TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(0.9, 1.0, 1.1), noise_copies=0,
+                         background_share=0)
     model, summary = train(read_manifest(manifest), read_lexicon(lex_path), config=cfg)
     plain, plain_summary = train(read_manifest(manifest), read_lexicon(lex_path),
                                  config=TrainingConfig(mixtures=(1,), first_passes=2, speed_factors=(1.0,),
-                                                       noise_copies=0))
+                                                       noise_copies=0, background_share=0))
     assert summary.used == plain_summary.used == 8  # recordings, not copies
     # Copies at 0.9 and 1.1 hold about 1/0.9 + 1/1.1 = 2.02 times the plain frames.
     np.testing.assert_allclose(summary.n_frames / plain_summary.n_frames, 1 + 1 / 0.9 + 1 / 1.1, rtol=0.03)

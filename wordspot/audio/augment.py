@@ -13,6 +13,11 @@ needed.
 - Steady noise, like an oven fan or a mixer motor: coloured broadband noise (spectrum
   flat to falling as 1/f^2, i.e. white to brown) through a gentle low-pass, a little hiss,
   and mains hum (50 or 60 Hz and a few harmonics) at a random level.
+- Backgrounds with no speech at all, at a level in dBFS (RMS relative to a full-scale
+  square wave, i.e. 0 dBFS is RMS 1; common practice for float audio in [-1, 1]): white
+  noise, pink noise (power falling as 1/f, -3 dB per octave), mains hum (odd and even
+  harmonics falling as 1/h), and digital silence with dither of one least significant
+  bit of 16-bit audio (samples -1, 0 or +1 times 2^-15).
 """
 
 from __future__ import annotations
@@ -36,7 +41,17 @@ __all__ = [
     "talker_stream",
     "babble",
     "steady_noise",
+    "LSB_16",
+    "rms_dbfs",
+    "at_dbfs",
+    "pink_noise",
+    "mains_hum",
+    "dithered_silence",
+    "background",
 ]
+
+#: One least significant bit of 16-bit audio on the float scale [-1, 1).
+LSB_16 = 1.0 / 32768.0
 
 #: The noise kinds :class:`NoiseSettings` accepts.
 NOISE_KINDS = ("babble", "steady")
@@ -247,3 +262,81 @@ def steady_noise(length: int, rng: np.random.Generator, *, sample_rate: int = 16
     hum *= 10.0 ** (rng.uniform(-15.0, 5.0) / 20.0) / np.sqrt(np.mean(hum**2))
     out = broad + hiss + hum
     return out / np.sqrt(np.mean(out**2))
+
+
+def rms_dbfs(wave) -> float:
+    """RMS level in dBFS: 20 log10(sqrt(mean(x^2))) (-inf for digital silence)."""
+    p = mean_power(wave)
+    return float(10.0 * np.log10(p)) if p > 0 else float("-inf")
+
+
+def at_dbfs(wave, dbfs: float) -> np.ndarray:
+    """``wave`` scaled to an RMS level of ``dbfs`` (float64)."""
+    x = _wave(wave, "wave")
+    p = mean_power(x)
+    if p <= 0:
+        raise AugmentError("a wave of digital silence cannot be scaled to a level")
+    return x * (10.0 ** (dbfs / 20.0) / np.sqrt(p))
+
+
+def pink_noise(length: int, rng: np.random.Generator, *, sample_rate: int = 16000) -> np.ndarray:
+    """Pink noise (power spectrum ~ 1/f above 20 Hz, flat below), unit mean power.
+
+    White Gaussian noise shaped in the frequency domain, at a fast FFT length cut to
+    ``length``.
+    """
+    if length < 1:
+        raise AugmentError(f"length must be at least one sample, got {length}")
+    n_fft = scipy.fft.next_fast_len(length, real=True)
+    spec = np.fft.rfft(rng.standard_normal(n_fft))
+    freqs = np.fft.rfftfreq(n_fft, 1.0 / sample_rate)
+    spec *= np.maximum(freqs, 20.0) ** -0.5
+    spec[0] = 0.0
+    x = np.fft.irfft(spec, n=n_fft)[:length]
+    return x / (np.sqrt(np.mean(x**2)) + 1e-30)
+
+
+def mains_hum(length: int, rng: np.random.Generator, *, sample_rate: int = 16000, mains: float = 50.0,
+              harmonics: int = 7) -> np.ndarray:
+    """Mains hum of unit mean power: ``mains`` Hz and its multiples up to ``harmonics``
+    (below Nyquist), amplitude 1/h, random phases."""
+    if length < 1:
+        raise AugmentError(f"length must be at least one sample, got {length}")
+    t = np.arange(length) / sample_rate
+    x = np.zeros(length)
+    for h in range(1, harmonics + 1):
+        if h * mains < sample_rate / 2:
+            x += np.sin(2 * np.pi * h * mains * t + rng.uniform(0, 2 * np.pi)) / h
+    return x / (np.sqrt(np.mean(x**2)) + 1e-30)
+
+
+def dithered_silence(length: int, rng: np.random.Generator) -> np.ndarray:
+    """Digital silence with dither: each sample -1, 0 or +1 LSB of 16-bit audio, equally likely."""
+    if length < 1:
+        raise AugmentError(f"length must be at least one sample, got {length}")
+    return rng.integers(-1, 2, size=length) * LSB_16
+
+
+def background(kind: str, length: int, dbfs: float, rng: np.random.Generator, *,
+               sample_rate: int = 16000, mains: float = 50.0, streams=()) -> np.ndarray:
+    """``length`` samples of one background at ``dbfs`` RMS.
+
+    ``kind``: "white", "pink", "hum" (``mains`` Hz), "fan" (:func:`steady_noise`),
+    "babble" (of ``streams``, see :func:`babble`) or "dither" (:func:`dithered_silence`,
+    whose level is fixed by its one LSB, so ``dbfs`` is ignored).
+    """
+    if kind == "dither":
+        return dithered_silence(length, rng)
+    if kind == "white":
+        x = rng.standard_normal(length)
+    elif kind == "pink":
+        x = pink_noise(length, rng, sample_rate=sample_rate)
+    elif kind == "hum":
+        x = mains_hum(length, rng, sample_rate=sample_rate, mains=mains)
+    elif kind == "fan":
+        x = steady_noise(length, rng, sample_rate=sample_rate)
+    elif kind == "babble":
+        x = babble(streams, length, rng)
+    else:
+        raise AugmentError(f"unknown background kind {kind!r}: use white, pink, hum, fan, babble or dither")
+    return at_dbfs(x, dbfs)

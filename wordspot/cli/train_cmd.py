@@ -126,6 +126,10 @@ def add_parser(sub, **options):
                       help="speed perturbation: also train on copies of every recording played F times "
                       "faster (e.g. --speed 0.9 1.0 1.1 triples the data; helps with new voices) "
                       f"(default {' '.join(f'{f:g}' for f in TrainingConfig.speed_factors)})")
+    p.add_argument("--background-share", type=float, default=None, metavar="F",
+                   help="add background-only training items (noise, hum, dithered silence, babble, fan; "
+                   "no command) as this share of the recordings, at least 20 (0: none; default "
+                   f"{TrainingConfig.background_share:g}), so that pauses over other backgrounds stay pauses")
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
     full.add_argument("--cluster", metavar="ADDRESS", default=None,
@@ -200,13 +204,18 @@ def _scratch(args, lexicon, say):
         noise_copies=args.noise_copies if args.noise_copies is not None else defaults.noise_copies,
         noise_snr_db=tuple(args.noise_snr) if args.noise_snr else defaults.noise_snr_db,
         speed_factors=tuple(args.speed) if args.speed else defaults.speed_factors,
-        cluster=args.cluster, shared_dir=args.shared_dir, **extra)
+        cluster=args.cluster, shared_dir=args.shared_dir, **_share(args), **extra)
 
     def fit(utterances):
         return train(utterances, lexicon, settings=settings, config=config,
                      manifest=args.manifest, quiet=args.quiet, report=say)
 
     return fit, f"{config.mixtures[-1]} Gaussians a state, from scratch"
+
+
+def _share(args) -> dict:
+    """``background_share`` when given (the configs check it), else nothing (their defaults)."""
+    return {} if args.background_share is None else {"background_share": args.background_share}
 
 
 def _adapted(args, lexicon, say):
@@ -222,7 +231,7 @@ def _adapted(args, lexicon, say):
         )
     config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
                               mean_transform=not args.no_mean_transform,
-                              update_variances=args.adapt_variances, jobs=args.jobs)
+                              update_variances=args.adapt_variances, jobs=args.jobs, **_share(args))
 
     def fit(utterances):
         return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,

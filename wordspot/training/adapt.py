@@ -39,6 +39,7 @@ from wordspot.errors import TrainingError
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
+from wordspot.training.backgrounds import check_share
 from wordspot.training.data import prepare_items
 from wordspot.training.items import CHUNK_SIZE
 from wordspot.training.trainer import TrainingSummary, pass_statistics
@@ -82,6 +83,12 @@ class AdaptationConfig:
         Processes for features and statistics.
     prune : float >= 0
         As in training: frame/mixture posteriors below this add nothing.
+    background_share : float in [0, 1]
+        Background-only items added to the user's recordings (see
+        ``TrainingConfig.background_share``), so that the pause class's transform and MAP
+        update see more than the user's room tone; 0 adds none.
+    seed : int
+        Seeds the background items.
     """
 
     prior_weight: float = 300.0
@@ -91,6 +98,8 @@ class AdaptationConfig:
     update_variances: bool = False
     jobs: int = 1
     prune: float = 1e-4
+    background_share: float = 0.1
+    seed: int = 0
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -101,6 +110,7 @@ class AdaptationConfig:
                 raise TrainingError(f"{name} must be a whole number >= 1, got {v!r}")
         if not self.min_transform_frames > 0 or self.prune < 0:
             raise TrainingError("min_transform_frames must be > 0 and prune >= 0")
+        object.__setattr__(self, "background_share", check_share(self.background_share))
 
 
 # ------------------------------------------------------------------ MAP (pure functions)
@@ -291,7 +301,7 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
             weights = np.where(off, 0.0, weights)
             weights[seen] /= weights[seen].sum(axis=1, keepdims=True)
         current = Mixtures(weights, means, variances)
-    summary.used = len({it.path for it in items})
+    summary.count(items)
     summary.n_frames = int(n_frames)
     summary.frames_per_unit = {name: float(res.unit_frames[u]) for u, name in enumerate(units.names)}
     return current, summary, transform
@@ -342,13 +352,13 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
             "use ARPAbet phones the starting model knows, or train with --from-scratch"
         )
     items, skipped = prepare_items(utterances, lexicon, start.units, start.features, jobs=config.jobs,
-                                   quiet=quiet)
+                                   quiet=quiet, background_share=config.background_share, seed=config.seed)
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
                                           report=report)
     summary.skipped = skipped
-    used = {it.path for it in items}
+    used = {it.path for it in items if not it.background}
     band = check_training_band(sorted(used), start.features.sample_rate)
     bigrams = count_bigrams([u.words for u in utterances if u.path in used and u.words],  # as trainer.train
                            vocabulary=lexicon.words)
@@ -365,6 +375,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "passes": int(config.passes),
         "mean_transform": {("pause", "speech")[c]: how for c, how in sorted(transform.items())},
         "update_variances": bool(config.update_variances),
+        "background_share": float(config.background_share),
+        "background_items": int(summary.backgrounds),
         "borrowed_pronunciations": borrowed,
         "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
         "seconds": round(summary.seconds, 2),

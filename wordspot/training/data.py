@@ -31,6 +31,7 @@ from wordspot.acoustic.graph import StateGraph, compose
 from wordspot.util.progress import ProgressBar
 from wordspot.training.cluster import using
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
+from wordspot.training.backgrounds import background_count, background_items
 from wordspot.training.noise import noisy_items
 from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, UnitSet
 
@@ -119,7 +120,7 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
 
 def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
                   jobs: int = 1, quiet: bool = True,
-                  warps=(1.0,), speeds=(1.0,), noise=None,
+                  warps=(1.0,), speeds=(1.0,), noise=None, background_share: float = 0.0,
                   seed: int = 0, executor=None) -> tuple[list[TrainingItem], list[Skipped]]:
     """Load features and build chains; skip (with a warning) what cannot be used.
 
@@ -134,6 +135,10 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
     ``noise``: a :class:`wordspot.audio.augment.NoiseSettings`; its noisy copies of every usable
     recording (unwarped, drawn with ``seed``; see :mod:`wordspot.training.noise`) come
     after all other items.
+
+    ``background_share``: background-only items (no command, one pause unit; see
+    :mod:`wordspot.training.backgrounds`), ``background_count(usable recordings, share)``
+    of them, drawn with ``seed``, come last; 0 adds none.
 
     ``executor``: where the work runs (see :func:`extract_features`).
 
@@ -163,6 +168,13 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
         base = items[:n_plain]
         items += noisy_items(base, [speaker[it.path] for it in base], noise, settings,
                              seed=seed, jobs=jobs, quiet=quiet, executor=executor)
+    count = background_count(n_plain, background_share)
+    if count:
+        speaker = {u.path: u.speaker for u in utterances}
+        graph = graphs.get(()) or compose(chain_slots((), lexicon, units), units)
+        items += background_items(count, [it.path for it in items[:n_plain]],
+                                  [speaker[it.path] for it in items[:n_plain]], graph, settings,
+                                  seed=seed, jobs=jobs, quiet=quiet, executor=executor)
     return items, skipped
 
 

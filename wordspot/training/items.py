@@ -1,6 +1,6 @@
 """The record of one training utterance and the fixed chunk size of parallel work.
 
-Both the plain and the noisy-copy preparation use them, so they live apart from either.
+The plain, noisy-copy and background-item preparations use them, so they live apart from either.
 """
 
 from __future__ import annotations
@@ -28,6 +28,7 @@ class TrainingItem:
     words: tuple[str, ...]
     frames: np.ndarray  # (T, D) float32
     graph: StateGraph
+    background: bool = False  # a synthesised background-only item, not a recording
 
 
 @dataclass(frozen=True)

@@ -53,6 +53,7 @@ from wordspot.language.grammar import count_bigrams
 from wordspot.acoustic.hmm import Posteriors, graph_arrays
 from wordspot.model import AcousticModel
 from wordspot.util.progress import ProgressBar
+from wordspot.training.backgrounds import check_share
 from wordspot.training.cluster import open_executor, using
 from wordspot.training.data import prepare_items
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
@@ -128,6 +129,10 @@ class TrainingConfig:
         two times in three (``NoiseSettings.kinds``).
     noise_snr_db : (float, float)
         Each noisy copy's SNR in dB, drawn uniformly from this range.
+    background_share : float in [0, 1]
+        Background-only items (no command: noise, hum, dithered silence, babble, fan at -70
+        to -30 dBFS; :mod:`wordspot.training.backgrounds`) as a share of the recordings,
+        at least 20 when above 0; 0 adds none.
     """
 
     mixtures: tuple[int, ...] = (1, 2, 4, 8)
@@ -146,6 +151,7 @@ class TrainingConfig:
     speed_factors: tuple[float, ...] = (0.9, 1.0, 1.1)
     noise_copies: int = 2
     noise_snr_db: tuple[float, float] = (0.0, 25.0)
+    background_share: float = 0.1
 
     def __post_init__(self) -> None:
         m = tuple(self.mixtures)
@@ -164,6 +170,7 @@ class TrainingConfig:
         if self.min_occupancy < 0 or self.transition_floor < 0 or self.pause_seconds < 0 or self.prune < 0:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
         self.noise  # validates noise_copies and noise_snr_db
+        object.__setattr__(self, "background_share", check_share(self.background_share))
         if self.cluster is not None and not str(self.cluster).strip():
             raise TrainingError("cluster (--cluster) must be a Dask scheduler address (tcp://host:8786) "
                                 "or scheduler file")
@@ -187,9 +194,11 @@ class TrainingSummary:
     Attributes
     ----------
     used : int
-        Utterances that took part to the end.
+        Recordings that took part to the end.
+    backgrounds : int
+        Synthesised background-only items that took part (not counted in ``used``).
     n_frames : int
-        Frames in those utterances.
+        Frames in all items (copies and background items included).
     skipped : list of Skipped
         Utterances left out, with the reason.
     passes : list of (int, float)
@@ -203,6 +212,7 @@ class TrainingSummary:
     """
 
     used: int = 0
+    backgrounds: int = 0
     n_frames: int = 0
     skipped: list = field(default_factory=list)
     passes: list = field(default_factory=list)
@@ -210,10 +220,17 @@ class TrainingSummary:
     unseen_units: list = field(default_factory=list)
     seconds: float = 0.0
 
+    def count(self, items) -> None:
+        """Set ``used`` (recordings, not augmented copies) and ``backgrounds`` from training items."""
+        self.used = len({it.path for it in items if not it.background})
+        self.backgrounds = sum(1 for it in items if it.background)
+
     def lines(self) -> list[str]:
         """The summary as short text lines for people."""
-        out = [f"utterances used: {self.used} ({self.n_frames} frames)",
-               f"utterances skipped: {len(self.skipped)}"]
+        out = [f"utterances used: {self.used} ({self.n_frames} frames)"]
+        if self.backgrounds:
+            out.append(f"background-only items (no command): {self.backgrounds}")
+        out.append(f"utterances skipped: {len(self.skipped)}")
         out += [f"  {s.path}: {s.reason}" for s in self.skipped]
         if self.frames_per_unit:
             cells = [f"{u} {f:.0f}" for u, f in sorted(self.frames_per_unit.items())]
@@ -484,7 +501,7 @@ def _train_loop(items, units, frame_rate, config, quiet, report, executor):
                                            min_occupancy=config.min_occupancy)
             units = update_transitions(units, res.trans_counts, floor=config.transition_floor)
             last = res
-    summary.used = len({it.path for it in items})  # recordings, not augmented copies
+    summary.count(items)
     summary.n_frames = int(sum(it.frames.shape[0] for it in items))
     summary.frames_per_unit = {name: float(last.unit_frames[u]) for u, name in enumerate(units.names)}
     seen = np.zeros(units.n_units, dtype=bool)
@@ -539,7 +556,8 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
                        check_paths=[utterances[0].path]) as executor:
         items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
                                        warps=config.warp_factors, speeds=config.speed_factors,
-                                       noise=config.noise, seed=config.seed, executor=executor)
+                                       noise=config.noise, background_share=config.background_share,
+                                       seed=config.seed, executor=executor)
         if not items:
             raise TrainingError(
                 f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
@@ -554,7 +572,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
             + "; they keep their flat-start parameters (add recordings of words that use them)",
             TrainingWarning, stacklevel=2,
         )
-    used = {it.path for it in items} - {s.path for s in dropped}
+    used = {it.path for it in items if not it.background} - {s.path for s in dropped}
     band = check_training_band(sorted(used), settings.sample_rate)
     # recordings with no command (empty transcripts) train the pause but add no word pairs:
     # the prior stays the commands' own
@@ -577,6 +595,8 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         "noise_copies": int(config.noise_copies),
         "noise_snr_db": [float(v) for v in config.noise_snr_db],
         "noise_kinds": list(config.noise.kinds),
+        "background_share": float(config.background_share),
+        "background_items": int(summary.backgrounds),
         "unseen_units": list(summary.unseen_units),
         "audio_band": band,
     }

@@ -1,0 +1,125 @@
+"""Tests for wordspot.training.backgrounds: background-only training items."""
+
+import numpy as np
+import pytest
+
+from tone_corpus import load_corpus
+from wordspot.acoustic.units import PAUSE_UNIT
+from wordspot.audio.augment import rms_dbfs
+from wordspot.audio.features import FeatureSettings
+from wordspot.errors import TrainingError
+from wordspot.training.adapt import AdaptationConfig, adapt
+from wordspot.training.backgrounds import (
+    BACKGROUND_KINDS,
+    MIN_BACKGROUNDS,
+    background_count,
+    background_wave,
+    plan_backgrounds,
+)
+from wordspot.training.data import prepare_items
+from wordspot.training.trainer import TrainingConfig, train, train_items
+
+RATE = 16000
+SMALL = dict(mixtures=(1, 2), first_passes=2, passes_per_split=1, speed_factors=(1.0,), noise_copies=0)
+
+
+def test_count_is_the_share_with_a_minimum():
+    assert background_count(1000, 0.1) == 100
+    assert background_count(1000, 0.25) == 250
+    assert background_count(50, 0.1) == MIN_BACKGROUNDS
+    assert background_count(1000, 0.0) == 0 and background_count(0, 0.5) == 0
+    for bad in (-0.1, 1.5, "many", True):
+        with pytest.raises(TrainingError, match="background_share"):
+            TrainingConfig(background_share=bad)
+    with pytest.raises(TrainingError, match="from 0 to 1"):
+        AdaptationConfig(background_share=2.0)
+
+
+def test_plans_depend_only_on_the_seed_and_cover_the_ranges():
+    speakers = ["a", "b", "c", "d"]
+    plans = plan_backgrounds(600, speakers, seed=4)
+    assert plans == plan_backgrounds(600, speakers, seed=4)
+    assert plans != plan_backgrounds(600, speakers, seed=5)
+    assert plan_backgrounds(30, speakers, seed=4) == plans[:30]  # a recipe does not depend on the count
+    assert {p.kind for p in plans} == set(BACKGROUND_KINDS)
+    assert all(-70.0 <= p.dbfs <= -30.0 and 1.0 <= p.seconds <= 3.0 for p in plans)
+    assert all(p.mains in (50.0, 60.0) for p in plans)
+    for p in plans:
+        assert (len(p.talkers) >= 3 and set(p.talkers) <= set(speakers)) if p.kind == "babble" else not p.talkers
+        assert (p.floor_dbfs == -np.inf) if p.kind == "dither" else (-85.0 <= p.floor_dbfs <= -75.0)
+
+
+def test_waves_have_the_recipe_level_plus_the_floor(rng):
+    # uncorrelated signals add in power: 10 log10(10^(L/10) + 10^(F/10)) (textbook arithmetic)
+    pool = {s: [(k, rng.standard_normal(4000) * 0.1)] for k, s in enumerate("abcd")}
+    for recipe in plan_backgrounds(40, "abcd", seed=1):
+        x = background_wave(recipe, pool, RATE)
+        assert x.dtype == np.float32 and x.shape == (int(round(recipe.seconds * RATE)),)
+        if recipe.kind == "dither":
+            assert np.max(np.abs(x)) <= 2.0**-15
+            continue
+        expected = 10 * np.log10(10 ** (recipe.dbfs / 10) + 10 ** (recipe.floor_dbfs / 10))
+        assert rms_dbfs(x) == pytest.approx(expected, abs=0.5)
+        np.testing.assert_array_equal(x, background_wave(recipe, pool, RATE))
+
+
+@pytest.fixture
+def tiny(tmp_path, rng):
+    return load_corpus(tmp_path, rng, n_utterances=12)
+
+
+def test_items_are_pause_only_and_the_same_for_any_number_of_jobs(tiny):
+    utts, lex, units = tiny
+    s = FeatureSettings()
+    clean, _ = prepare_items(utts, lex, units, s)
+    one, _ = prepare_items(utts, lex, units, s, background_share=0.5, seed=3)
+    two, _ = prepare_items(utts, lex, units, s, background_share=0.5, seed=3, jobs=2)
+    assert len(one) == len(two) == len(clean) + MIN_BACKGROUNDS
+    for a, b in zip(one, two):
+        np.testing.assert_array_equal(a.frames, b.frames)
+        assert a.path == b.path and a.background == b.background
+    for a, b in zip(one, clean):  # the recordings' items come first, untouched
+        np.testing.assert_array_equal(a.frames, b.frames)
+    pau = units.index(PAUSE_UNIT)
+    for it in one[len(clean):]:
+        assert it.background and it.words == ()
+        assert set(it.graph.unit.tolist()) == {pau}  # one pause unit from end to end
+        # 1-3 s at the model's frame rate (100 frames a second)
+        assert 95 <= it.frames.shape[0] <= 305 and it.frames.shape[1] == clean[0].frames.shape[1]
+
+
+def test_training_counts_them_and_share_zero_is_the_plain_result(tiny):
+    utts, lex, units = tiny
+    plain_items, _ = prepare_items(utts, lex, units, FeatureSettings())
+    _, plain_mix, _, _ = train_items(plain_items, units, frame_rate=100.0,
+                                     config=TrainingConfig(**SMALL, background_share=0.0))
+    zero, zero_summary = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.0))
+    # no background items: the model of the items prepared without them, to the bit
+    np.testing.assert_array_equal(zero.mixtures.means, plain_mix.means)
+    assert zero_summary.backgrounds == 0 and zero.info["background_items"] == 0
+    model, summary = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.25))
+    assert summary.used == zero_summary.used == len(utts)  # recordings only
+    assert summary.backgrounds == MIN_BACKGROUNDS == model.info["background_items"]
+    assert "background-only items (no command): 20" in summary.lines()
+    assert summary.n_frames > zero_summary.n_frames + MIN_BACKGROUNDS * 95
+    assert not np.array_equal(model.mixtures.means, zero.mixtures.means)
+
+
+def test_adaptation_statistics_see_them_in_the_pause(tiny):
+    utts, lex, units = tiny
+    start, _ = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.0))
+    cfg = dict(passes=1, mean_transform=False, prior_weight=10.0)
+    plain, s0 = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_share=0.0))
+    more, s1 = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_share=0.1, seed=2))
+    assert s0.backgrounds == 0 and s1.backgrounds == MIN_BACKGROUNDS and s1.used == s0.used == len(utts)
+    assert more.info["background_items"] == MIN_BACKGROUNDS
+    # one statistics pass over the same starting model: the pause unit gains exactly the
+    # background items' frames (every frame of a pause-only chain is a pause frame), the rest nothing
+    added = s1.n_frames - s0.n_frames
+    assert s1.frames_per_unit[PAUSE_UNIT] - s0.frames_per_unit[PAUSE_UNIT] == pytest.approx(added, rel=1e-9)
+    for name in s0.frames_per_unit:
+        if name != PAUSE_UNIT:
+            assert s1.frames_per_unit[name] == pytest.approx(s0.frames_per_unit[name], rel=1e-9, abs=1e-9)
+    pau = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
+    pau = pau[pau >= 0]
+    assert not np.array_equal(more.mixtures.means[pau], plain.mixtures.means[pau])

@@ -1,0 +1,161 @@
+"""Background-only training items: pauses over more than the user's room tone.
+
+The pause unit learns from the ends of the user's recordings, mostly one quiet room. Extra
+items of a background alone (white or pink noise, mains hum, dithered digital silence,
+babble, fan noise; see :func:`wordspot.audio.augment.background`), 1-3 s long at -70 to
+-30 dBFS over a faint room-tone floor, each with an empty transcript (one ``pau`` chain,
+as a "no command here" recording), teach it the rest.
+
+Reproducible for any number of processes: the recipes (kind, length, level, mains
+frequency, floor, babble talkers, noise seed) are drawn up front from the training seed
+alone, and the work is split into fixed chunks whose results come back in order.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from wordspot.audio.augment import babble, background, pink_noise
+from wordspot.audio.features import FeatureSettings, compute_features
+from wordspot.errors import TrainingError
+from wordspot.training.cluster import using
+from wordspot.training.items import CHUNK_SIZE, TrainingItem
+from wordspot.training.noise import babble_pool
+from wordspot.util.progress import ProgressBar
+
+__all__ = ["BACKGROUND_KINDS", "MIN_BACKGROUNDS", "BackgroundRecipe", "check_share", "background_count",
+           "plan_backgrounds", "background_wave", "background_items"]
+
+#: The kinds drawn, each with equal chance.
+BACKGROUND_KINDS = ("white", "pink", "hum", "dither", "babble", "fan")
+
+#: Fewest background items when the share is above zero (a few recordings still get a
+#: few of every kind).
+MIN_BACKGROUNDS = 20
+
+#: Separates these random streams from the other uses of the training seed.
+_STREAM = 7349
+
+
+@dataclass(frozen=True)
+class BackgroundRecipe:
+    """How to make one background item."""
+
+    number: int
+    kind: str
+    seconds: float
+    dbfs: float
+    mains: float  # hum only
+    floor_dbfs: float  # room tone under it (-inf: none, for digital silence)
+    talkers: tuple  # speaker names (babble only)
+    noise_seed: int
+
+
+def check_share(share) -> float:
+    """``share`` as a float in [0, 1], else a TrainingError."""
+    try:
+        value = float(share)
+    except (TypeError, ValueError):
+        value = float("nan")
+    if isinstance(share, bool) or not (0.0 <= value <= 1.0):
+        raise TrainingError(f"background_share (--background-share) must be a number from 0 to 1 "
+                            f"(0.1 adds a tenth as many background-only items; 0 none), got {share!r}")
+    return value
+
+
+def background_count(n_recordings: int, share: float) -> int:
+    """Items for ``n_recordings`` usable recordings: ``round(share * n)``, at least
+    :data:`MIN_BACKGROUNDS` (0 when the share is 0 or there are no recordings)."""
+    if share <= 0 or n_recordings <= 0:
+        return 0
+    return max(MIN_BACKGROUNDS, int(round(share * n_recordings)))
+
+
+def plan_backgrounds(count: int, speakers, *, seed: int, levels=(-70.0, -30.0), seconds=(1.0, 3.0),
+                     kinds=BACKGROUND_KINDS) -> list[BackgroundRecipe]:
+    """Recipes of ``count`` background items, from ``seed`` alone.
+
+    ``speakers``: the names babble may draw its 3-6 talkers from (with repeats when there
+    are fewer).
+    """
+    names = sorted({str(s) for s in speakers})
+    plans = []
+    for k in range(count):
+        rng = np.random.default_rng([seed, _STREAM, k])
+        kind = kinds[int(rng.integers(len(kinds)))]
+        length = float(rng.uniform(*seconds))
+        level = float(rng.uniform(*levels))
+        mains = 50.0 if rng.random() < 0.5 else 60.0
+        floor = float(rng.uniform(-85.0, -75.0)) if kind != "dither" else float("-inf")
+        talkers: tuple = ()
+        if kind == "babble" and names:
+            n = int(rng.integers(3, 7))
+            talkers = tuple(str(s) for s in rng.choice(names, size=n, replace=len(names) < n))
+        plans.append(BackgroundRecipe(k, kind, length, level, mains, floor, talkers, int(rng.integers(2**31))))
+    return plans
+
+
+def background_wave(recipe: BackgroundRecipe, pool: dict, sample_rate: int) -> np.ndarray:
+    """The waveform of one recipe (float32); babble without talkers becomes fan noise."""
+    rng = np.random.default_rng(recipe.noise_seed)
+    n = int(round(recipe.seconds * sample_rate))
+    kind = recipe.kind
+    streams = [np.concatenate([x for _, x in pool[t]]) for t in recipe.talkers if pool.get(t)]
+    if kind == "babble" and not streams:
+        kind = "fan"
+    x = background(kind, n, recipe.dbfs, rng, sample_rate=sample_rate, mains=recipe.mains, streams=streams)
+    if np.isfinite(recipe.floor_dbfs):
+        x = x + pink_noise(n, rng, sample_rate=sample_rate) * 10.0 ** (recipe.floor_dbfs / 20.0)
+    return x.astype(np.float32)
+
+
+def _chunk_task(recipes, pool, settings):
+    return [compute_features(background_wave(r, pool, settings.sample_rate), settings) for r in recipes]
+
+
+def background_items(count: int, paths, speakers, graph, settings: FeatureSettings, *,
+                     seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None) -> list[TrainingItem]:
+    """``count`` background-only training items (empty transcript, one pause unit).
+
+    Parameters
+    ----------
+    count : int >= 0
+        See :func:`background_count`.
+    paths, speakers : sequences
+        The usable recordings and their speakers: babble is made of their speech parts
+        (:func:`wordspot.training.noise.babble_pool`).
+    graph : StateGraph
+        The chain of an empty transcript (one pause unit; :func:`wordspot.training.data.chain_slots`).
+    settings : FeatureSettings
+    seed : int
+        The training seed; the items depend only on it and the recordings, not on ``jobs``.
+    jobs : int >= 1
+    executor : wordspot.training.cluster.Executor, optional
+
+    Returns
+    -------
+    list of TrainingItem
+        ``background`` set, paths ``background-NNN-KIND`` (no file behind them).
+    """
+    if count <= 0:
+        return []
+    speakers = [str(s) for s in speakers]
+    plans = plan_backgrounds(count, speakers, seed=seed)
+    pool = babble_pool(list(paths), speakers, seed=seed, sample_rate=settings.sample_rate) \
+        if any(p.talkers for p in plans) else {}
+    chunks = [plans[i:i + CHUNK_SIZE] for i in range(0, len(plans), CHUNK_SIZE)]
+    bar = ProgressBar(len(plans), "backgrounds", quiet=quiet)
+    feats = []
+    with using(executor, jobs) as ex:
+        for part in ex.map(_chunk_task, [(c,) for c in chunks], common=(pool, settings),
+                           frames=True, label="backgrounds"):
+            feats += part
+            bar.update(len(part))
+        bar.close()
+        feats = ex.settle(feats)
+    return [TrainingItem(Path(f"background-{r.number:03d}-{r.kind}"), (), np.ascontiguousarray(f), graph,
+                         background=True)
+            for r, f in zip(plans, feats)]
