@@ -122,6 +122,21 @@ def dev_sets(model, n_joined: int, seed: int = 20261203):
         phrases.append((np.concatenate(parts).astype(np.float32), [w for _, ref, _, _ in picks for w in ref]))
     sets["phrases"] = phrases
 
+    # the dev commands in babble (other dev voices' speech) or fan noise at 10 dB SNR
+    from wordspot.audio.augment import babble, mix_at_snr, speech_span, steady_noise, talker_stream
+
+    streams = {v: talker_stream([w for w, _ in by_voice[v]]) for v in voices}
+    noisy = []
+    for i, ((wave, ref), r) in enumerate(zip(sets["words"], words)):
+        if i % 2:
+            noise = steady_noise(len(wave), rng)
+        else:
+            others = [streams[v] for v in voices if v != r["speaker"]]
+            noise = babble(others, len(wave), rng)
+        span = speech_span(wave, RATE)
+        noisy.append((mix_at_snr(wave, noise, 10.0, span=span).astype(np.float32), ref))
+    sets["noisy 10 dB"] = noisy
+
     vocab = set(model.lexicon.words) | set(_demo_new_words())
     starter_dev = rec / "starter" / "dev.csv"
     if starter_dev.exists():

@@ -2,9 +2,12 @@
 
 The pause unit learns from the ends of the user's recordings, mostly one quiet room. Extra
 items of a background alone (white or pink noise, mains hum, dithered digital silence,
-babble, fan noise; see :func:`wordspot.audio.augment.background`), 1-3 s long at -70 to
--30 dBFS over a faint room-tone floor, each with an empty transcript (one ``pau`` chain,
-as a "no command here" recording), teach it the rest.
+fan noise; see :func:`wordspot.audio.augment.background`), 1-3 s long at -70 to -30 dBFS
+over a faint room-tone floor, each with an empty transcript (one ``pau`` chain, as a "no
+command here" recording), teach it the rest. Babble can be asked for (``kinds``) but is not
+among the defaults: a pause that has learnt speech takes speech in babble for pause (on the
+dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands
+in noise at 10 dB alike; see DEVELOPERS.md).
 
 Reproducible for any number of processes: the recipes (kind, length, level, mains
 frequency, floor, babble talkers, noise seed) are drawn up front from the training seed
@@ -30,7 +33,8 @@ __all__ = ["BACKGROUND_KINDS", "MIN_BACKGROUNDS", "BackgroundRecipe", "check_sha
            "plan_backgrounds", "background_wave", "background_items"]
 
 #: The kinds drawn, each with equal chance.
-BACKGROUND_KINDS = ("white", "pink", "hum", "dither", "babble", "fan")
+#: The default kinds of background item (babble, which the plan also knows, is left out).
+BACKGROUND_KINDS = ("white", "pink", "hum", "dither", "fan")
 
 #: Fewest background items when the share is above zero (a few recordings still get a
 #: few of every kind).
