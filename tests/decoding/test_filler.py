@@ -155,5 +155,7 @@ def test_filler_piece_reenters(rng):
 def test_bad_filler_settings_are_named():
     with pytest.raises(DecodingError, match="phone_penalty must be a finite number <= 0"):
         FillerSettings(phone_penalty=5.0)
-    with pytest.raises(DecodingError, match="pause_penalty"):
+    with pytest.raises(DecodingError, match=r"pause_penalty \(--pause-penalty\) must be a finite number <= 0"):
         DecoderSettings(pause_penalty=float("nan"))
+    with pytest.raises(DecodingError, match=r"^filler_penalty \(--filler-penalty\) must be"):
+        DecoderSettings(filler_penalty=5.0)

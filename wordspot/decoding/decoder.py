@@ -133,7 +133,16 @@ class DecoderSettings:
     @property
     def background(self) -> FillerSettings:
         """The filler part of these settings."""
-        return FillerSettings(bool(self.filler), self.filler_penalty, self.pause_penalty, self.filler_frame_penalty)
+        try:
+            return FillerSettings(bool(self.filler), self.filler_penalty, self.pause_penalty, self.filler_frame_penalty)
+        except DecodingError as exc:  # name the setting as the caller knows it
+            names = {"phone_penalty": "filler_penalty (--filler-penalty)", "pause_penalty": "pause_penalty "
+                     "(--pause-penalty)", "frame_penalty": "filler_frame_penalty"}
+            message = str(exc)
+            for inner, outer in names.items():
+                if message.startswith(inner):
+                    message = outer + message[len(inner):]
+            raise DecodingError(message) from None
 
     @classmethod
     def unpruned(cls, **changes) -> "DecoderSettings":
