@@ -38,6 +38,7 @@ def main(argv=None) -> int:
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
     ap.add_argument("--filler-penalty", type=float, nargs="+", default=[-80.0],
                     help="filler penalties to try (each with its own calibration, as training would fit it)")
+    ap.add_argument("--backwards", action="store_true", help="calibration also hears held-out takes backwards")
     ap.add_argument("--speeds", type=float, nargs="+", default=None,
                     help="speed factors of the calibration's held-out recordings (default: the configuration's)")
     args = ap.parse_args(argv)
@@ -64,8 +65,8 @@ def main(argv=None) -> int:
         for seed, fp in [(seed, fp) for fp in args.filler_penalty for seed in args.seeds]:
             settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
-                              calibration=CalibrationConfig(seed=seed, settings=settings, **(
-                                  {"speeds": tuple(args.speeds)} if args.speeds else {})))
+                              calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
+                                                            **({"speeds": tuple(args.speeds)} if args.speeds else {})))
             if sets is None:
                 sets = dev_sets(model, 100)
             rec = build_recognizer(model, settings=settings)

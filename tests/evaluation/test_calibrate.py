@@ -168,3 +168,22 @@ def test_held_out_recordings_are_also_heard_faster():
 def test_bad_calibration_speeds_are_refused(speeds):
     with pytest.raises(TrainingError, match="calibration speeds must be factors from 0.5 to 2"):
         CalibrationConfig(speeds=speeds)
+
+
+def test_backwards_takes_add_only_wrong_words(monkeypatch):
+    # A recording played backwards says no command (its phones in reverse order): every
+    # word heard there is labelled wrong, beside the ordinary examples.
+    from wordspot.evaluation.calibrate import backwards_recognitions, calibration_examples
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    repo = Path(__file__).resolve().parents[2]
+    model = load_model("starter")
+    model.lexicon = read_lexicon(repo / "lexicon" / "bakery.txt")
+    utts = [Utterance(repo / "recordings" / "audio" / "test" / "flite-rms" / f"{w}-t1.flac", (w,), "rms", 2)
+            for w in ("oven", "minutes", "resume")]
+    heard_backwards = sum(len(r.segments) + len(r.dropped) for r in backwards_recognitions(model, utts))
+    plain = calibration_examples(model, utts)
+    both = calibration_examples(model, utts, backwards=True)
+    assert both.right.size == plain.right.size + heard_backwards and heard_backwards > 0
+    assert both.right.sum() == plain.right.sum() and not both.right[plain.right.size:].any()

@@ -41,6 +41,7 @@ __all__ = [
     "CalibrationExamples",
     "split_held_out",
     "held_out_recognitions",
+    "backwards_recognitions",
     "calibration_examples",
     "fit_calibration",
     "train_calibrated",
@@ -74,6 +75,9 @@ class CalibrationConfig:
         (``training.data.speed_copy``), so that the calibration holds for quicker and
         slower speech than the takes (words inside a phrase are shorter than the same
         words said alone).
+    backwards : bool
+        Also recognise each held-out recording played backwards, with the whole lexicon:
+        speech of the same voice that says no command, so every word heard is wrong.
     """
 
     held_out_share: float = 0.15
@@ -84,6 +88,7 @@ class CalibrationConfig:
     penalty: float = DEFAULT_PENALTY
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
     speeds: tuple[float, ...] = (0.9, 1.0, 1.1)
+    backwards: bool = False
 
     def __post_init__(self) -> None:
         s = self.held_out_share
@@ -196,8 +201,25 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
                     yield u, whole, without[own].decode(frames, path=str(u.path))
 
 
+def backwards_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None
+                           ) -> Iterator[Recognition]:
+    """Each readable recording played backwards, recognised with the whole lexicon (no threshold)."""
+    from wordspot.audio.features import compute_features
+    from wordspot.audio.reading import load_audio
+
+    rec = build_recognizer(model, settings=replace(settings or DecoderSettings(), min_confidence=0.0))
+    for u in utterances:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                wave = load_audio(u.path, sample_rate=model.features.sample_rate)[::-1].copy()
+                yield rec.decode(compute_features(wave, model.features), path=str(u.path))
+        except WordspotError:
+            continue
+
+
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                         quiet: bool = True, speeds=(1.0,)) -> CalibrationExamples:
+                         quiet: bool = True, speeds=(1.0,), backwards: bool = False) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -209,6 +231,9 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
         Default: the word loop (no confidence threshold in any case).
     speeds : tuple of float
         Speed factors at which every recording is recognised (see :class:`CalibrationConfig`).
+    backwards : bool
+        Add the words heard in the recordings played backwards, all wrong (counted with
+        the own-words-removed stand-ins).
     """
     rows, right, removed, failed = [], [], [], []
     for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
@@ -223,6 +248,12 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
         removed += [False] * len(heard)
         if without_own is not None:
             wrong = without_own.segments + without_own.dropped
+            rows += [s.measures for s in wrong]
+            right += [False] * len(wrong)
+            removed += [True] * len(wrong)
+    if backwards:
+        for got in backwards_recognitions(model, utterances, settings=settings):
+            wrong = got.segments + got.dropped
             rows += [s.measures for s in wrong]
             right += [False] * len(wrong)
             removed += [True] * len(wrong)
@@ -276,7 +307,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         return train(utterances)
     say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
     model, summary = train(rest)
-    examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds)
+    examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
+                                    backwards=config.backwards)
     calibration = fit_calibration(examples, config=config)
     n_right = int(examples.right.sum())
     say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
