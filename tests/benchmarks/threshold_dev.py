@@ -87,7 +87,9 @@ def main(argv=None) -> int:
                                100 * right / len(items) if name == "joined" else 100 * (1 - right / len(items)))
                 table[fp, t].append(row)
             print(f"filler {fp:g}, seed {seed} done", file=sys.stderr, flush=True)
-    names = ("dev command WER", "joined files exactly right", "phrase stand-ins WER", "other-talk files with a command")
+    label = {"words": "dev command WER", "joined": "joined files exactly right", "phrases": "phrase stand-ins WER"}
+    names = [label.get(name, f"{name}: files not exactly right" if name not in ("other talk", "noise only")
+                       else f"{name}: files with a command") for name in sets]
     print(f"seeds {args.seeds}: mean (min-max)")
     print("| filler penalty | threshold | " + " | ".join(names) + " |")
     print("| ---: | ---: |" + " ---: |" * len(names))
