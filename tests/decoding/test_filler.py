@@ -10,7 +10,8 @@ from wordspot.acoustic.graph import compose
 from wordspot.acoustic.units import GAP_UNIT
 from wordspot.decoding.decoder import REASON_NO_COMMAND, DecoderSettings, build_recognizer
 from wordspot.decoding.filler import FillerSettings
-from wordspot.decoding.spans import piece_of, piece_score, piece_score_reference
+from wordspot.decoding.network import FIRST_WORD_ITEM
+from wordspot.decoding.spans import piece_ends, piece_of, piece_score, piece_score_reference
 from wordspot.errors import DecodingError
 from wordspot.language.lexicon import Lexicon
 
@@ -125,15 +126,19 @@ def test_piece_score_matches_textbook_viterbi(rng):
     net = rec.network
     frames = frames_along(model, word_mixtures(model, ["S", "AA", "K"]) + gap_mixtures(model, 2), rng)
     ll = np.asarray(rec.emissions(frames), dtype=np.float64)
-    _, words = rec.pieces()
     u = model.units
     graph = compose([[[u.index(x) for x in ("S", "AA", "K")]], [[u.index(GAP_UNIT)]]], u)
     column = {int(p): j for j, p in enumerate(net.used_mixtures)}
     want = viterbi_score(graph, ll[:, [column[int(p)] for p in graph.mixture]])
-    piece = words[net.words.index("sack")]
+    sack = net.words.index("sack") + 1
+    piece = piece_of(net, net.word_pron[net.word_first[sack]:net.word_first[sack + 1]] + FIRST_WORD_ITEM)
     got = piece_score(ll, 0, ll.shape[0] - 1, piece)
     assert np.isfinite(got) and got == pytest.approx(want, abs=1e-6)
     assert got == pytest.approx(piece_score_reference(ll, 0, ll.shape[0] - 1, piece), abs=1e-9)
+    # all commands in one pass: sack's states give sack's own score
+    _, commands, state_word = rec.pieces()
+    ends = piece_ends(ll, 0, ll.shape[0] - 1, commands)
+    assert ends[state_word == sack].max() == pytest.approx(got, abs=1e-9)
 
 
 def test_filler_piece_reenters(rng):
@@ -143,7 +148,7 @@ def test_filler_piece_reenters(rng):
     rec = build_recognizer(model, settings=DecoderSettings())
     frames = frames_along(model, word_mixtures(model, ["T", "AA", "B"]), rng)
     ll = np.asarray(rec.emissions(frames), dtype=np.float64)
-    filler, _ = rec.pieces()
+    filler, _, _ = rec.pieces()
     for reenter in (0.0, -5.0):
         a = piece_score(ll, 0, ll.shape[0] - 1, filler, reenter)
         b = piece_score_reference(ll, 0, ll.shape[0] - 1, filler, reenter)

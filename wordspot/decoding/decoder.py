@@ -27,9 +27,9 @@ from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
 from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.language.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
-from wordspot.decoding.filler import FillerSettings
+from wordspot.decoding.filler import FillerSettings, check_penalty
 from wordspot.decoding.network import FIRST_WORD_ITEM, Network, compile_network
-from wordspot.decoding.spans import Piece, piece_of, piece_score
+from wordspot.decoding.spans import Piece, piece_ends, piece_of, piece_score
 from wordspot.audio.workspace import work_array
 
 __all__ = [
@@ -118,7 +118,9 @@ class DecoderSettings:
         if not (isinstance(self.state_limit, (int, np.integer)) and self.state_limit > 0):
             raise DecodingError(f"state_limit must be a whole number > 0, got {self.state_limit!r}")
         self.grammar  # validates weight and penalty
-        self.background  # validates the filler's penalties
+        for name, option in (("filler_penalty", " (--filler-penalty)"), ("pause_penalty", " (--pause-penalty)"),
+                             ("filler_frame_penalty", "")):
+            check_penalty(getattr(self, name), name + option)
 
     @property
     def grammar(self) -> GrammarSettings:
@@ -133,16 +135,7 @@ class DecoderSettings:
     @property
     def background(self) -> FillerSettings:
         """The filler part of these settings."""
-        try:
-            return FillerSettings(bool(self.filler), self.filler_penalty, self.pause_penalty, self.filler_frame_penalty)
-        except DecodingError as exc:  # name the setting as the caller knows it
-            names = {"phone_penalty": "filler_penalty (--filler-penalty)", "pause_penalty": "pause_penalty "
-                     "(--pause-penalty)", "frame_penalty": "filler_frame_penalty"}
-            message = str(exc)
-            for inner, outer in names.items():
-                if message.startswith(inner):
-                    message = outer + message[len(inner):]
-            raise DecodingError(message) from None
+        return FillerSettings(bool(self.filler), self.filler_penalty, self.pause_penalty, self.filler_frame_penalty)
 
     @classmethod
     def unpruned(cls, **changes) -> "DecoderSettings":
@@ -253,9 +246,10 @@ class Recognizer:
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
 
-    def pieces(self) -> tuple[Piece | None, list[Piece]]:
-        """The filler loop (phones and the pause; None without background words) and each
-        command's pronunciations, as pieces of the network (:mod:`wordspot.decoding.spans`)."""
+    def pieces(self) -> tuple[Piece | None, Piece, np.ndarray]:
+        """The filler loop (phones and the pause; None without background words), all
+        commands' pronunciations as one piece of the network (:mod:`wordspot.decoding.spans`),
+        and the command (1..V) of each of that piece's states."""
         if self._pieces is None:
             net = self.network
             filler = None
@@ -264,9 +258,10 @@ class Recognizer:
                 items = [p + FIRST_WORD_ITEM for w in (bg.fillers[0], bg.pauses[0])
                          for p in net.word_pron[net.word_first[w]:net.word_first[w + 1]]]
                 filler = piece_of(net, items)
-            words = [piece_of(net, net.word_pron[net.word_first[w]:net.word_first[w + 1]] + FIRST_WORD_ITEM)
-                     for w in range(1, net.n_words + 1)]
-            self._pieces = (filler, words)
+            items = net.word_pron[net.word_first[1]:net.word_first[net.n_words + 1]] + FIRST_WORD_ITEM
+            commands = piece_of(net, items)
+            state_word = net.pron_word[net.item[np.isin(net.item, items)] - FIRST_WORD_ITEM]
+            self._pieces = (filler, commands, state_word)
         return self._pieces
 
     def margins(self, ll: np.ndarray, word: int, first: int, last: int, acoustic: float) -> tuple[float, float]:
@@ -276,11 +271,11 @@ class Recognizer:
         (no penalties; NaN without background words), and over the best other command
         passing through those frames once (NaN with a one-word vocabulary).
         """
-        filler, words = self.pieces()
+        filler, commands, state_word = self.pieces()
         span = last - first + 1
         f = np.nan if filler is None else (acoustic - piece_score(ll, first, last, filler, 0.0)) / span
-        others = [piece_score(ll, first, last, p) for w, p in enumerate(words, start=1) if w != word]
-        r = (acoustic - max(others)) / span if others else np.nan
+        others = piece_ends(ll, first, last, commands)[state_word != word]
+        r = (acoustic - others.max()) / span if others.size else np.nan
         return float(f), float(r)
 
     @property

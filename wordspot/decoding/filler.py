@@ -38,10 +38,7 @@ import numpy as np
 
 from wordspot.errors import DecodingError
 
-__all__ = ["FillerSettings", "BackgroundWords", "background_words", "extend_links", "FILLER", "PAUSE"]
-
-FILLER = "<filler>"
-PAUSE = "<pause>"
+__all__ = ["FillerSettings", "BackgroundWords", "background_words", "extend_links", "check_penalty"]
 
 _NEG = -np.inf
 
@@ -71,9 +68,13 @@ class FillerSettings:
 
     def __post_init__(self) -> None:
         for name in ("phone_penalty", "pause_penalty", "frame_penalty"):
-            value = getattr(self, name)
-            if not (isinstance(value, (int, float)) and np.isfinite(value) and value <= 0):
-                raise DecodingError(f"{name} must be a finite number <= 0, got {value!r}")
+            check_penalty(getattr(self, name), name)
+
+
+def check_penalty(value, name: str) -> None:
+    """A penalty is a finite number <= 0 (``DecodingError`` naming ``name`` otherwise)."""
+    if not (isinstance(value, (int, float)) and np.isfinite(value) and value <= 0):
+        raise DecodingError(f"{name} must be a finite number <= 0, got {value!r}")
 
 
 @dataclass(frozen=True)
@@ -92,10 +93,6 @@ class BackgroundWords:
     def n_words(self) -> int:
         """Commands plus background words (the boundary, index 0, not counted)."""
         return self.n_real + len(self.fillers) + len(self.pauses)
-
-    def names(self) -> tuple[str, ...]:
-        """Name of every background word, in index order."""
-        return tuple(FILLER if v in self.fillers else PAUSE for v in range(self.n_real + 1, self.n_words + 1))
 
 
 def background_words(n_real: int, single_word: bool, allow_empty: bool = True) -> BackgroundWords:

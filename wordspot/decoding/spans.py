@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-__all__ = ["Piece", "piece_of", "piece_score", "piece_score_reference"]
+__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "piece_score_reference"]
 
 _NEG = -np.inf
 
@@ -42,7 +42,7 @@ class Piece:
 def piece_of(net, items) -> Piece:
     """The states of ``items`` of compiled network ``net`` (arcs stay inside an item)."""
     items = np.asarray(sorted(set(int(i) for i in items)), dtype=np.int64)
-    keep = np.flatnonzero(np.isin(net.item, items))
+    keep = np.flatnonzero(np.isin(net.item, items))  # in item order
     local = np.full(net.n_states, -1, dtype=np.int64)
     local[keep] = np.arange(keep.size)
     arc_first, dst, lp = [0], [], []
@@ -101,11 +101,26 @@ def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, en
             if nxt[s] > _NEG:
                 nxt[s] += ll[t, mixture[s]]
         cur, nxt = nxt, cur
-    best = _NEG
+    out = np.empty(n)
     for s in range(n):
-        if cur[s] + end_logp[s] > best:
-            best = cur[s] + end_logp[s]
-    return best
+        out[s] = cur[s] + end_logp[s]
+    return out
+
+
+def _ends(ll, first, last, piece, reenter_logp):
+    return _score(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
+                  piece.self_logp, piece.arc_first, piece.arc_dst, piece.arc_logp, piece.end_logp,
+                  piece.start_state, piece.start_logp, float(reenter_logp))
+
+
+def piece_ends(ll: np.ndarray, first: int, last: int, piece: Piece) -> np.ndarray:
+    """Per state of ``piece``: the best score of a path through one item that covers frames
+    ``first..last`` and leaves the item from that state (-inf where none can).
+
+    With no re-entry the items do not meet, so the best over one item's states is that
+    item's own score: one pass scores every item of the piece at once.
+    """
+    return _ends(ll, first, last, piece, _NEG)
 
 
 def piece_score(ll: np.ndarray, first: int, last: int, piece: Piece, reenter_logp: float = _NEG) -> float:
@@ -121,9 +136,7 @@ def piece_score(ll: np.ndarray, first: int, last: int, piece: Piece, reenter_log
     reenter_logp : float
         Added each time a path leaves an item and enters one again; -inf: one item only.
     """
-    return float(_score(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
-                        piece.self_logp, piece.arc_first, piece.arc_dst, piece.arc_logp, piece.end_logp,
-                        piece.start_state, piece.start_logp, float(reenter_logp)))
+    return float(np.max(_ends(ll, first, last, piece, reenter_logp)))
 
 
 def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
