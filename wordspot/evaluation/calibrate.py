@@ -165,7 +165,6 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
     command) or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
     """
     from wordspot.audio.features import compute_features
-    from wordspot.audio.reading import load_audio
     from wordspot.training.data import speed_copy
 
     settings = replace(settings or DecoderSettings(), min_confidence=0.0)
@@ -176,10 +175,8 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
             bar.update()
             rate = model.features.sample_rate
             try:
-                with warnings.catch_warnings():  # training has warned about these files already
-                    warnings.simplefilter("ignore")
-                    wave = load_audio(u.path, sample_rate=rate)
-                    copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
+                wave = _quiet_load(model, u.path)
+                copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
             except WordspotError:
                 yield u, None, None
                 continue
@@ -201,19 +198,25 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
                     yield u, whole, without[own].decode(frames, path=str(u.path))
 
 
+def _quiet_load(model, path) -> np.ndarray:
+    """The recording at the model's rate; training has warned about these files already."""
+    from wordspot.audio.reading import load_audio
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return load_audio(path, sample_rate=model.features.sample_rate)
+
+
 def backwards_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None
                            ) -> Iterator[Recognition]:
     """Each readable recording played backwards, recognised with the whole lexicon (no threshold)."""
     from wordspot.audio.features import compute_features
-    from wordspot.audio.reading import load_audio
 
     rec = build_recognizer(model, settings=replace(settings or DecoderSettings(), min_confidence=0.0))
     for u in utterances:
         try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                wave = load_audio(u.path, sample_rate=model.features.sample_rate)[::-1].copy()
-                yield rec.decode(compute_features(wave, model.features), path=str(u.path))
+            wave = _quiet_load(model, u.path)[::-1].copy()
+            yield rec.decode(compute_features(wave, model.features), path=str(u.path))
         except WordspotError:
             continue
 
