@@ -71,7 +71,8 @@ def test_word_against_filler_worked_by_hand(rng):
 
 def test_long_pause_between_commands_stays_a_pause(rng):
     # 60 frames of pause between two commands: the pause word takes them (for its penalty)
-    # instead of a command's one-state gap or the exit pause.
+    # instead of a command's one-state gap or the exit pause. (Constructed example: the
+    # frames are drawn along a known path, so the right answer is known by construction.)
     model = tiny_model(rng, ENTRIES)
     path = (pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"]) + pause_mixtures(model, 60)
             + word_mixtures(model, ["S", "AA", "K"]) + pause_mixtures(model, 6))
@@ -89,6 +90,7 @@ def test_single_word_mode_gives_one_command_or_none(rng):
     rec = build_recognizer(model, settings=DecoderSettings(single_word=True))
     assert len(rec.decode(frames).words) == 1
     # link tables: after a command only the exit or the background copies after it
+    # (the rule as designed, read back from the tables; no outside reference)
     net = rec.network
     bg = net.background
     for v in range(1, net.n_words + 1):

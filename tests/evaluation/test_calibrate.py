@@ -172,7 +172,8 @@ def test_bad_calibration_speeds_are_refused(speeds):
 
 def test_backwards_takes_add_only_wrong_words(monkeypatch):
     # A recording played backwards says no command (its phones in reverse order): every
-    # word heard there is labelled wrong, beside the ordinary examples.
+    # word heard there is labelled wrong, beside the ordinary examples. (Our own labelling
+    # rule, checked by counting; no outside reference.)
     from wordspot.evaluation.calibrate import backwards_recognitions, calibration_examples
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
