@@ -16,7 +16,6 @@ command. The calibration is fitted with the filler penalty it is used with.
 from __future__ import annotations
 
 import argparse
-import csv
 import sys
 import tempfile
 from pathlib import Path
@@ -27,8 +26,7 @@ HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 sys.path.insert(0, str(HERE))
 
-from compare_data import dev_voices  # noqa: E402
-from tune_filler import dev_sets  # noqa: E402
+from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
 
 THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.5)
 
@@ -49,19 +47,10 @@ def main(argv=None) -> int:
     from wordspot.evaluation.calibrate import CalibrationConfig
     from wordspot.evaluation.scoring import align_words
 
-    rec_dir = REPO / "recordings"
-    held = set(dev_voices(rec_dir / "voices.csv"))
     table = {(f, t): [] for f in args.filler_penalty for t in THRESHOLDS}
     sets = None
     with tempfile.TemporaryDirectory() as tmp:
-        manifest = Path(tmp) / "dev-train.csv"
-        with open(rec_dir / "train.csv", newline="", encoding="utf-8") as fh, \
-                open(manifest, "w", newline="", encoding="utf-8") as out:
-            w = csv.writer(out)
-            w.writerow(["path", "transcript", "speaker"])
-            for r in csv.DictReader(fh):
-                if r["speaker"] not in held:
-                    w.writerow([str(rec_dir / r["path"]), r["transcript"], r["speaker"]])
+        manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
         for seed, fp in [(seed, fp) for fp in args.filler_penalty for seed in args.seeds]:
             settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",

@@ -57,21 +57,26 @@ def _rows(path: Path) -> list[dict]:
         return list(csv.DictReader(fh))
 
 
+def write_dev_train_manifest(path: Path) -> Path:
+    """A manifest of the demo training recordings whose voices are not dev voices."""
+    rec = REPO / "recordings"
+    held = set(dev_voices(rec / "voices.csv"))
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["path", "transcript", "speaker"])
+        for r in _rows(rec / "train.csv"):
+            if r["speaker"] not in held:
+                w.writerow([str(rec / r["path"]), r["transcript"], r["speaker"]])
+    return path
+
+
 def make_dev_model(out: Path, background_share: float | None = None, seed: int = 0) -> None:
     """Adapt the starter on the demo training voices that are not dev voices."""
     from wordspot import api
     from wordspot.training.adapt import AdaptationConfig
 
-    rec = REPO / "recordings"
-    held = set(dev_voices(rec / "voices.csv"))
     with tempfile.TemporaryDirectory() as tmp:
-        manifest = Path(tmp) / "dev-train.csv"
-        with open(manifest, "w", newline="", encoding="utf-8") as fh:
-            w = csv.writer(fh)
-            w.writerow(["path", "transcript", "speaker"])
-            for r in _rows(rec / "train.csv"):
-                if r["speaker"] not in held:
-                    w.writerow([str(rec / r["path"]), r["transcript"], r["speaker"]])
+        manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
         share = {} if background_share is None else {"background_share": background_share}
         api.train(manifest, REPO / "lexicon" / "bakery.txt", out=out, start="starter",
                   config=AdaptationConfig(seed=seed, **share))
