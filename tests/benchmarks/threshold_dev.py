@@ -28,7 +28,7 @@ sys.path.insert(0, str(HERE))
 
 from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
 
-THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.5)
+THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.015, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.5)
 
 
 def main(argv=None) -> int:
@@ -37,6 +37,8 @@ def main(argv=None) -> int:
     ap.add_argument("--filler-penalty", type=float, nargs="+", default=[-80.0],
                     help="filler penalties to try (each with its own calibration, as training would fit it)")
     ap.add_argument("--backwards", action="store_true", help="calibration also hears held-out takes backwards")
+    ap.add_argument("--jumbled", type=int, default=None,
+                    help="clips of jumbled held-out speech in the calibration (default: the configuration's)")
     ap.add_argument("--speeds", type=float, nargs="+", default=None,
                     help="speed factors of the calibration's held-out recordings (default: the configuration's)")
     args = ap.parse_args(argv)
@@ -55,7 +57,8 @@ def main(argv=None) -> int:
             settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
-                                                            **({"speeds": tuple(args.speeds)} if args.speeds else {})))
+                                                            **({"speeds": tuple(args.speeds)} if args.speeds else {}),
+                                                            **({} if args.jumbled is None else {"jumbled": args.jumbled})))
             if sets is None:
                 sets = dev_sets(model, 100)
             rec = build_recognizer(model, settings=settings)

@@ -28,7 +28,7 @@ def _bat_tab(rng):
     return model, frames_along(model, path, rng)
 
 
-def _calibration(names=MEASURE_NAMES, coefficients=(0.5, 2.0, -0.25, 1.0, 0.5, -1.0)):
+def _calibration(names=MEASURE_NAMES, coefficients=(0.5, 2.0, -0.25, 1.0, 0.5, -1.0, 0.3, 1.5)):
     k = len(names)
     return Calibration(tuple(names), np.linspace(-40.0, 0.0, k), np.linspace(1.0, 3.0, k),
                        np.array(coefficients[:k], dtype=float), 0.75)
@@ -40,8 +40,8 @@ def test_measures_of_a_worked_example():
     # with acoustic score -16: per frame -4, margin (-16 - (-14)) / 4 = -0.5, log(3 / 2).
     best_free = np.array([0.0, -1.0, -3.0, -6.0, -10.0, -15.0])
     got = word_measures(acoustic=-16.0, best_free=best_free, start=1, phone_end=3, end=4, n_phones=2,
-                        filler_margin=-0.25, runner_up_margin=1.5, next_to_filler=1)
-    assert got == pytest.approx((-4.0, -0.5, math.log(1.5), -0.25, 1.5, 1.0), abs=1e-12)
+                        filler_margin=-0.25, runner_up_margin=1.5, next_to_filler=1, phone_filler_margin=-0.75)
+    assert got == pytest.approx((-4.0, -0.5, math.log(1.5), -0.25, 1.5, 1.0, 2.0, -0.75), abs=1e-12)
     # the heuristic of the module docstring: exp(min(d, 0) / 4)
     assert heuristic_confidence(got) == pytest.approx(math.exp(-0.5 / CONFIDENCE_SCALE), rel=1e-12)
     assert heuristic_confidence((0.0, 0.3, 0.0)) == 1.0
@@ -62,6 +62,37 @@ def test_decoder_measures_follow_the_known_frame_spans(rng):
         assert margin == pytest.approx((seg.acoustic - best) / span, rel=1e-6, abs=1e-9)
         assert per_phone == pytest.approx(math.log(n_phone_frames / 3), rel=1e-12)
         assert seg.confidence == heuristic_confidence(seg.measures)  # no calibration in the model
+
+
+def test_phone_margin_is_near_zero_on_the_words_own_phones_and_falls_on_a_wrong_phone(rng):
+    # Constructed example (known by construction): frames drawn along B AA T are best
+    # explained, phone by phone, by those very phones, so each phone's own model scores as
+    # well as the free filler on its frames (margin 0 up to the filler's cheaper re-entry;
+    # never above, since the phone's own item is one of the filler's paths). Along B AA K
+    # the word "bat" must put T on K's frames, which the filler explains with K: the mean
+    # falls by a third of that phone's per-frame gap, far below.
+    model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
+    rec = build_recognizer(model)
+    net = rec.network
+    bat = int(net.word_pron[net.word_first[net.words.index("bat") + 1]])
+    right = frames_along(model, pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"])
+                         + pause_mixtures(model, 6), rng)
+    wrong = frames_along(model, pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "K"])
+                         + pause_mixtures(model, 6), rng)
+    on_right = rec.phone_margin(rec.emissions(right).astype(np.float64), bat, 6, 32)
+    on_wrong = rec.phone_margin(rec.emissions(wrong).astype(np.float64), bat, 6, 32)
+    assert -1.0 < on_right <= 1e-9
+    assert on_wrong < on_right - 3.0
+    # the decoder stores the same number as the word's last measure
+    seg = rec.decode(right).segments[0]
+    assert seg.word == "bat"
+    ll = rec.emissions(right).astype(np.float64)
+    assert seg.measures[MEASURE_NAMES.index("phone_filler_margin")] == pytest.approx(
+        rec.phone_margin(ll, bat, seg.first_frame, seg.last_frame), abs=1e-9)
+    assert seg.measures[MEASURE_NAMES.index("phones")] == 3.0
+    # without the filler there is nothing to compare with
+    plain = build_recognizer(model, settings=DecoderSettings(filler=False))
+    assert np.isnan(plain.phone_margin(ll, bat, 6, 32))
 
 
 def test_calibration_turns_measures_into_the_logistic_probability(rng):

@@ -63,8 +63,8 @@ def test_split_keeps_one_recording_of_every_transcript_for_training():
 def _examples(right, wrong, recordings=40, rng=None):
     rng = rng or np.random.default_rng(5)
     # one column per measure of MEASURE_NAMES, in its order
-    good = rng.normal([-50.0, -1.0, 2.0, -0.5, 3.0, 0.0], 1.0, size=(right, 6))
-    bad = rng.normal([-60.0, -6.0, 2.5, -3.0, 0.0, 1.0], 1.0, size=(wrong, 6))
+    good = rng.normal([-50.0, -1.0, 2.0, -0.5, 3.0, 0.0, 4.0, -0.3], 1.0, size=(right, 8))
+    bad = rng.normal([-60.0, -6.0, 2.5, -3.0, 0.0, 1.0, 3.0, -2.0], 1.0, size=(wrong, 8))
     labels = np.r_[np.ones(right, bool), np.zeros(wrong, bool)]
     return CalibrationExamples(np.vstack([good, bad]), labels, ~labels, recordings=recordings)
 
@@ -188,3 +188,34 @@ def test_backwards_takes_add_only_wrong_words(monkeypatch):
     both = calibration_examples(model, utts, backwards=True)
     assert both.right.size == plain.right.size + heard_backwards and heard_backwards > 0
     assert both.right.sum() == plain.right.sum() and not both.right[plain.right.size:].any()
+
+
+def test_jumbled_speech_adds_only_wrong_words_and_is_seeded():
+    # Jumbled clips say no command (pieces of the takes, at most half a word each, in
+    # random order): every word heard there is labelled wrong and marked, beside the
+    # ordinary examples; the same seed gives the same words. (Our own labelling rule,
+    # checked by counting; no outside reference.)
+    from wordspot.evaluation.calibrate import calibration_examples, jumbled_recognitions
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    repo = Path(__file__).resolve().parents[2]
+    model = load_model("starter")
+    model.lexicon = read_lexicon(repo / "lexicon" / "bakery.txt")
+    utts = [Utterance(repo / "recordings" / "audio" / "test" / "flite-rms" / f"{w}-t1.flac", (w,), "rms", 2)
+            for w in ("oven", "minutes", "resume", "cancel")]
+    heard = [s.word for r in jumbled_recognitions(model, utts, 6, seed=1) for s in r.segments + r.dropped]
+    assert heard and heard == [s.word for r in jumbled_recognitions(model, utts, 6, seed=1)
+                               for s in r.segments + r.dropped]
+    plain = calibration_examples(model, utts)
+    both = calibration_examples(model, utts, jumbled=6, seed=1)
+    assert both.right.size == plain.right.size + len(heard)
+    assert both.right.sum() == plain.right.sum() and not both.right[plain.right.size:].any()
+    assert both.jumbled.sum() == len(heard) and both.jumbled[plain.right.size:].all()
+    assert both.own_words_removed[plain.right.size:].all()
+
+
+@pytest.mark.parametrize("n", [-1, 1.5, True, "10"])
+def test_bad_number_of_jumbled_clips_is_refused(n):
+    with pytest.raises(TrainingError, match="number of jumbled clips"):
+        CalibrationConfig(jumbled=n)

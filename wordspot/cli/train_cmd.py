@@ -145,6 +145,10 @@ def add_parser(sub, **options):
     cal.add_argument("--calibration-share", type=float, default=CalibrationConfig.held_out_share, metavar="F",
                      help="share of each transcript's recordings held out to fit the calibration "
                      f"(default {CalibrationConfig.held_out_share:g})")
+    cal.add_argument("--jumbled-clips", type=int, default=CalibrationConfig.jumbled, metavar="N",
+                     help="clips of the held-out recordings cut into short pieces and joined in random "
+                     "order, whose words count as wrong when fitting the calibration: your own voice "
+                     f"saying no command (default {CalibrationConfig.jumbled}; 0: none)")
     cal.add_argument("--refit", action=argparse.BooleanOptionalAction, default=None,
                      help="after calibrating, train again on every recording (default: yes when adapting, "
                      "no with --from-scratch, which keeps the model trained without the held-out share "
@@ -176,7 +180,8 @@ def _run(args) -> int:
     if args.no_calibration:
         model, summary = fit(utterances)
     else:
-        config = CalibrationConfig(held_out_share=args.calibration_share, refit=args.refit)
+        config = CalibrationConfig(held_out_share=args.calibration_share, refit=args.refit,
+                                   jumbled=args.jumbled_clips)
         model, summary = train_calibrated(fit, utterances, config=config.decided(adapting=not args.from_scratch),
                                           quiet=args.quiet, report=say)
     if model.info.get("borrowed_pronunciations"):

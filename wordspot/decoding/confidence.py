@@ -21,7 +21,13 @@ Measures (over the word's frames, its trailing pause included, unless said other
 - ``runner_up_margin``: per frame, the word's acoustic score minus that of the best other
   command passing once through the same frames;
 - ``next_to_filler``: how many of the word's two neighbours on the best path (0, 1 or 2)
-  are the filler: a command inside other talk rather than between pauses.
+  are the filler: a command inside other talk rather than between pauses;
+- ``phones``: the number of phones of the word's pronunciation (short words turn up in
+  other talk more easily);
+- ``phone_filler_margin``: the mean over the word's phones (aligned to its phone frames)
+  of each phone's per-frame margin over the best free sequence of phones and pauses on
+  that phone's frames (``Recognizer.phone_margin``): every phone counts the same, so one
+  phone that fits badly shows even in a long word.
 
 Without the filler (``--no-filler``) or with a one-word vocabulary the margins are
 undefined (NaN) and the confidence is the heuristic.
@@ -54,7 +60,7 @@ __all__ = [
 
 #: The measures :func:`word_measures` returns, in order (stored with every calibration).
 MEASURE_NAMES = ("acoustic_per_frame", "free_margin", "frames_per_phone", "filler_margin", "runner_up_margin",
-                 "next_to_filler")
+                 "next_to_filler", "phones", "phone_filler_margin")
 
 #: Nats per frame by which a word may trail the best free state before its heuristic
 #: confidence falls to 1/e (chosen by us).
@@ -64,13 +70,13 @@ CONFIDENCE_SCALE = 4.0
 #: calibrated (words below it are dropped): drop the words the model finds almost surely
 #: wrong. Chosen on the demo's dev voices (DEVELOPERS.md, "Calibrated confidence"): the
 #: highest that kept dev command WER within about a point of the search without filler
-#: (1.1% -> 2.2%), while other talk taken for commands fell from 96% to 73% of files.
-DEFAULT_MIN_CONFIDENCE = 0.002
+#: (1.1% -> 2.2%), while other talk taken for commands fell from 94% to 53% of files.
+DEFAULT_MIN_CONFIDENCE = 0.005
 
 
 def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_end: int, end: int,
                   n_phones: int, filler_margin: float = float("nan"), runner_up_margin: float = float("nan"),
-                  next_to_filler: int = 0) -> tuple[float, ...]:
+                  next_to_filler: int = 0, phone_filler_margin: float = float("nan")) -> tuple[float, ...]:
     """The measures of one recognised word, in the order of :data:`MEASURE_NAMES`.
 
     Parameters
@@ -87,11 +93,14 @@ def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_e
         Per-frame margins over frames ``start .. end`` (see the module docstring).
     next_to_filler : int
         Neighbours on the best path that are the filler.
+    phone_filler_margin : float
+        Mean per-phone margin over the filler (see the module docstring).
     """
     span = end - start + 1
     free_margin = (acoustic - (best_free[end + 1] - best_free[start])) / span
     return (acoustic / span, float(free_margin), math.log((phone_end - start + 1) / n_phones),
-            float(filler_margin), float(runner_up_margin), float(next_to_filler))
+            float(filler_margin), float(runner_up_margin), float(next_to_filler), float(n_phones),
+            float(phone_filler_margin))
 
 
 def heuristic_confidence(measures: Sequence[float]) -> float:

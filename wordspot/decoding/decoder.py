@@ -29,7 +29,7 @@ from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.language.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
 from wordspot.decoding.filler import FillerSettings, check_penalty
 from wordspot.decoding.network import FIRST_WORD_ITEM, Network, compile_network
-from wordspot.decoding.spans import Piece, piece_ends, piece_of, piece_score
+from wordspot.decoding.spans import Piece, piece_ends, piece_of, piece_path, piece_score
 from wordspot.audio.workspace import work_array
 
 __all__ = [
@@ -245,6 +245,8 @@ class Recognizer:
     calibration: object = None
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
+    _pron_pieces: dict = field(default_factory=dict, repr=False)
+    _filler_phones: dict | None = field(default=None, repr=False)
 
     def pieces(self) -> tuple[Piece | None, Piece, np.ndarray]:
         """The filler loop (phones and the pause; None without background words), all
@@ -254,10 +256,7 @@ class Recognizer:
             net = self.network
             filler = None
             if net.background is not None:
-                bg = net.background
-                items = [p + FIRST_WORD_ITEM for w in (bg.fillers[0], bg.pauses[0])
-                         for p in net.word_pron[net.word_first[w]:net.word_first[w + 1]]]
-                filler = piece_of(net, items)
+                filler = piece_of(net, _background_items(net))
             items = net.word_pron[net.word_first[1]:net.word_first[net.n_words + 1]] + FIRST_WORD_ITEM
             commands = piece_of(net, items)
             state_word = net.pron_word[net.item[np.isin(net.item, items)] - FIRST_WORD_ITEM]
@@ -277,6 +276,43 @@ class Recognizer:
         others = piece_ends(ll, first, last, commands)[state_word != word]
         r = (acoustic - others.max()) / span if others.size else np.nan
         return float(f), float(r)
+
+    def phone_margin(self, ll: np.ndarray, pron: int, first: int, last: int) -> float:
+        """Mean over a command's phones of each phone's per-frame margin over the filler.
+
+        The pronunciation ``pron`` is aligned to frames ``first..last`` (its phones; the
+        best path through its item, :func:`~wordspot.decoding.spans.piece_path`); over
+        each phone's frames, that phone's own model (its filler item, passed once) is
+        compared with the best free sequence of phones and pauses. Each phone counts the
+        same however long it is, so one phone that fits badly shows even in a long word.
+        NaN without background words.
+        """
+        filler = self.pieces()[0]
+        if filler is None:
+            return float("nan")
+        net = self.network
+        item = pron + FIRST_WORD_ITEM
+        if pron not in self._pron_pieces:
+            self._pron_pieces[pron] = (piece_of(net, [item]), net.phone[net.item == item])
+        if self._filler_phones is None:
+            # the filler piece's states in order, each named by its item's single unit
+            keep = np.flatnonzero(np.isin(net.item, _background_items(net)))
+            names = [net.prons[int(net.item[s]) - FIRST_WORD_ITEM][0] for s in keep]
+            self._filler_phones = {n: np.array([k for k, m in enumerate(names) if m == n]) for n in set(names)}
+        piece, phone_of = self._pron_pieces[pron]
+        states, score = piece_path(ll, first, last, piece)
+        if not np.isfinite(score):
+            return float("nan")
+        phones = phone_of[states]
+        margins = []
+        for k, name in enumerate(net.prons[pron]):
+            frames = np.flatnonzero(phones == k)
+            if frames.size == 0:
+                continue
+            a, b = first + int(frames[0]), first + int(frames[-1])
+            own = piece_ends(ll, a, b, filler)[self._filler_phones[name]].max()
+            margins.append((own - piece_score(ll, a, b, filler, 0.0)) / (b - a + 1))
+        return float(np.mean(margins)) if margins else float("nan")
 
     @property
     def min_confidence(self) -> float:
@@ -376,7 +412,8 @@ class Recognizer:
             measures = word_measures(acoustic=acoustic, best_free=best_free, start=start, phone_end=phone_end,
                                      end=end, n_phones=len(net.prons[pron]), filler_margin=filler_margin,
                                      runner_up_margin=runner_up,
-                                     next_to_filler=int(is_filler[i - 1]) + int(is_filler[i + 1]))
+                                     next_to_filler=int(is_filler[i - 1]) + int(is_filler[i + 1]),
+                                     phone_filler_margin=self.phone_margin(ll, pron, start, phone_end))
             result.segments.append(
                 WordSegment(
                     word=net.words[word - 1],
@@ -429,6 +466,13 @@ class Recognizer:
         result = self.decode(frames, path=name)
         result.narrow_band = is_narrow_band(wave, self.features.sample_rate)
         return result
+
+
+def _background_items(net: Network) -> list[int]:
+    """Items of the first copy of the filler (one per phone) and of the pause word."""
+    bg = net.background
+    return [int(p) + FIRST_WORD_ITEM for w in (bg.fillers[0], bg.pauses[0])
+            for p in net.word_pron[net.word_first[w]:net.word_first[w + 1]]]
 
 
 def _too_short(n: int, hop: float, need: int) -> str:

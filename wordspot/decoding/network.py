@@ -89,6 +89,9 @@ class Network:
     background : BackgroundWords or None
         The filler and pause words after the commands (:mod:`wordspot.decoding.filler`),
         or None when they are switched off.
+    phone : ndarray, shape (S,)
+        Place of each state's unit in its item (0 for the first phone of a pronunciation,
+        1 for the next, ...); -1 for a word's trailing-pause states.
     """
 
     words: tuple[str, ...]
@@ -117,6 +120,7 @@ class Network:
     allow_empty: bool
     min_frames: int
     background: BackgroundWords | None = None
+    phone: np.ndarray | None = None
 
     def is_command(self, word: int) -> bool:
         """Is word index ``word`` one of the commands (not the boundary, filler or pause)?"""
@@ -266,6 +270,10 @@ def compile_network(
     item = np.repeat(np.arange(len(graphs), dtype=np.int64), sizes)
     # A trailing-pause state is one in the second slot of a word's graph.
     tail = (cat("slot") == 1) & (item >= FIRST_WORD_ITEM) & (item < FIRST_WORD_ITEM + n_real_prons)
+    # Each unit's states start at position 0: count those starts within every item.
+    unit_start = (cat("position") == 0).astype(np.int64)
+    before = np.cumsum(unit_start) - unit_start
+    phone = np.where(tail, -1, np.cumsum(unit_start) - 1 - before[offsets[:-1]][item])
 
     src = np.concatenate([g.arc_src.astype(np.int64) + o for g, o in zip(graphs, offsets)])
     dst = np.concatenate([g.arc_dst.astype(np.int64) + o for g, o in zip(graphs, offsets)])
@@ -323,4 +331,5 @@ def compile_network(
         allow_empty=bool(allow_empty),
         min_frames=int(2 * pause_min + word_min),
         background=bg,
+        phone=np.ascontiguousarray(phone, dtype=np.int64),
     )

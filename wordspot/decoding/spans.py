@@ -16,7 +16,8 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "piece_score_reference"]
+__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "piece_score_reference", "piece_path",
+           "piece_path_reference"]
 
 _NEG = -np.inf
 
@@ -157,3 +158,90 @@ def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _
         moved = np.maximum(moved, ended + reenter_logp + enter)
         delta = moved + ll[t, piece.mixture]
     return float(np.max(delta + piece.end_logp))
+
+
+@numba.njit(cache=True, nogil=True)
+def _align(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp, start_state, start_logp):
+    n = mixture.shape[0]
+    frames = last - first + 1
+    back = np.full((frames, n), -1, dtype=np.int64)
+    cur = np.full(n, _NEG)
+    nxt = np.full(n, _NEG)
+    for k in range(start_state.shape[0]):
+        s = start_state[k]
+        v = start_logp[k] + ll[first, mixture[s]]
+        if v > cur[s]:
+            cur[s] = v
+    for t in range(1, frames):
+        for s in range(n):
+            nxt[s] = _NEG
+        for s in range(n):
+            sc = cur[s]
+            if sc == _NEG:
+                continue
+            if sc + self_logp[s] > nxt[s]:
+                nxt[s] = sc + self_logp[s]
+                back[t, s] = s
+            for e in range(arc_first[s], arc_first[s + 1]):
+                d = arc_dst[e]
+                if sc + arc_logp[e] > nxt[d]:
+                    nxt[d] = sc + arc_logp[e]
+                    back[t, d] = s
+        for s in range(n):
+            if nxt[s] > _NEG:
+                nxt[s] += ll[first + t, mixture[s]]
+        cur, nxt = nxt, cur
+    path = np.full(frames, -1, dtype=np.int64)
+    best, arg = _NEG, -1
+    for s in range(n):
+        if cur[s] + end_logp[s] > best:
+            best, arg = cur[s] + end_logp[s], s
+    if arg < 0:
+        return path, best
+    path[frames - 1] = arg
+    for t in range(frames - 1, 0, -1):
+        arg = back[t, arg]
+        path[t - 1] = arg
+    return path, best
+
+
+def piece_path(ll: np.ndarray, first: int, last: int, piece: Piece) -> tuple[np.ndarray, float]:
+    """The best path through one item of ``piece`` over frames ``first..last`` exactly.
+
+    Returns ``(states, score)``: the piece's local state at each frame (shape
+    ``(last - first + 1,)``) and the path's log score, as :func:`piece_score` gives it
+    with no re-entry; all states -1 and score -inf where no path fits.
+    """
+    path, score = _align(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
+                         piece.self_logp, piece.arc_first, piece.arc_dst, piece.arc_logp, piece.end_logp,
+                         piece.start_state, piece.start_logp)
+    return path, float(score)
+
+
+def piece_path_reference(ll, first, last, piece: Piece) -> tuple[np.ndarray, float]:
+    """Plain-numpy version of :func:`piece_path`: dense matrix, back-pointers kept per frame."""
+    n = piece.n_states
+    trans = np.full((n, n), _NEG)
+    trans[np.arange(n), np.arange(n)] = piece.self_logp
+    for s in range(n):
+        for e in range(piece.arc_first[s], piece.arc_first[s + 1]):
+            trans[s, piece.arc_dst[e]] = max(trans[s, piece.arc_dst[e]], piece.arc_logp[e])
+    enter = np.full(n, _NEG)
+    for s, lp in zip(piece.start_state, piece.start_logp):
+        enter[s] = max(enter[s], lp)
+    delta = enter + ll[first, piece.mixture]
+    back = []
+    for t in range(first + 1, last + 1):
+        cand = delta[:, None] + trans
+        arg = np.argmax(cand, axis=0)
+        back.append(arg)
+        delta = cand[arg, np.arange(n)] + ll[t, piece.mixture]
+    final = delta + piece.end_logp
+    s = int(np.argmax(final))
+    if not np.isfinite(final[s]):
+        return np.full(last - first + 1, -1, dtype=np.int64), float(_NEG)
+    path = [s]
+    for arg in reversed(back):
+        s = int(arg[s])
+        path.append(s)
+    return np.array(path[::-1], dtype=np.int64), float(final.max())

@@ -11,6 +11,9 @@ from scratch; this module does not import training, the caller hands it in):
    (:func:`wordspot.evaluation.reliability.word_hits`), and (b) with the recording's own
    words removed from the lexicon, a stand-in for speech that holds no command: every
    word heard then is wrong. (b) gives the wrong words a clean held-out set would lack;
+   (c) recognise clips of the held-out recordings cut into short pieces and joined in
+   random order (:mod:`wordspot.audio.jumble`): the user's own phones in an order that
+   spells no command, as in other talk; every word heard there is wrong too;
 4. fit the logistic regression of right / wrong on the words' measures
    (:func:`wordspot.util.logistic.fit_logistic`);
 5. train again on every recording (``refit``; else keep the model trained on the rest)
@@ -42,10 +45,16 @@ __all__ = [
     "split_held_out",
     "held_out_recognitions",
     "backwards_recognitions",
+    "jumbled_recognitions",
+    "DEFAULT_JUMBLED",
     "calibration_examples",
     "fit_calibration",
     "train_calibrated",
 ]
+
+
+#: Clips of jumbled held-out speech in the calibration (chosen on dev material, DEVELOPERS.md).
+DEFAULT_JUMBLED = 150
 
 
 @dataclass(frozen=True)
@@ -78,6 +87,10 @@ class CalibrationConfig:
     backwards : bool
         Also recognise each held-out recording played backwards, with the whole lexicon:
         speech of the same voice that says no command, so every word heard is wrong.
+    jumbled : int
+        Clips of jumbled speech made from the held-out recordings
+        (:func:`wordspot.audio.jumble.jumbled_speech`, seeded by ``seed``) recognised with
+        the whole lexicon; every word heard there is wrong. 0: none.
     """
 
     held_out_share: float = 0.15
@@ -89,6 +102,7 @@ class CalibrationConfig:
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
     speeds: tuple[float, ...] = (0.9, 1.0, 1.1)
     backwards: bool = False
+    jumbled: int = DEFAULT_JUMBLED
 
     def __post_init__(self) -> None:
         s = self.held_out_share
@@ -97,6 +111,10 @@ class CalibrationConfig:
         if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
             raise TrainingError(f"calibration speeds must be factors from 0.5 to 2 (e.g. (0.9, 1.0, 1.1)), "
                                 f"got {self.speeds!r}")
+        j = self.jumbled
+        if isinstance(j, bool) or not isinstance(j, (int, np.integer)) or j < 0:
+            raise TrainingError(f"the number of jumbled clips for calibration must be a whole number >= 0 "
+                                f"(e.g. {DEFAULT_JUMBLED}), got {j!r}")
 
     def decided(self, *, adapting: bool) -> "CalibrationConfig":
         """This configuration with ``refit`` settled: as given, else True when adapting."""
@@ -108,12 +126,14 @@ class CalibrationExamples:
     """Measures of the words heard on held-out recordings, and whether each is right.
 
     ``own_words_removed`` marks the words heard with the recording's own words taken out of
-    the lexicon (all wrong by construction).
+    the lexicon, or in recordings with no command (backwards, jumbled): all wrong by
+    construction; ``jumbled`` marks those heard in jumbled speech.
     """
 
     measures: np.ndarray
     right: np.ndarray
     own_words_removed: np.ndarray
+    jumbled: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))
     recordings: int = 0
     failed: list[str] = field(default_factory=list)
 
@@ -221,8 +241,31 @@ def backwards_recognitions(model, utterances: Sequence, *, settings: DecoderSett
             continue
 
 
+def jumbled_recognitions(model, utterances: Sequence, n: int, *, seed: int = 0,
+                         settings: DecoderSettings | None = None) -> Iterator[Recognition]:
+    """``n`` clips of jumbled speech from the readable recordings, recognised with the whole
+    lexicon (no threshold)."""
+    from wordspot.audio.features import compute_features
+    from wordspot.audio.jumble import jumbled_speech
+
+    waves = []
+    for u in utterances:
+        try:
+            waves.append(_quiet_load(model, u.path))
+        except WordspotError:
+            continue
+    rate = model.features.sample_rate
+    rec = build_recognizer(model, settings=replace(settings or DecoderSettings(), min_confidence=0.0))
+    for clip in jumbled_speech(waves, rate, n, np.random.default_rng([seed, 0x6A756D62])):
+        try:
+            yield rec.decode(compute_features(clip, model.features), path="jumbled held-out speech")
+        except WordspotError:
+            continue
+
+
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                         quiet: bool = True, speeds=(1.0,), backwards: bool = False) -> CalibrationExamples:
+                         quiet: bool = True, speeds=(1.0,), backwards: bool = False, jumbled: int = 0,
+                         seed: int = 0) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -237,6 +280,11 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
     backwards : bool
         Add the words heard in the recordings played backwards, all wrong (counted with
         the own-words-removed stand-ins).
+    jumbled : int
+        Add the words heard in this many clips of jumbled speech, all wrong (counted with
+        the own-words-removed stand-ins and marked in ``jumbled``).
+    seed : int
+        Seed of the jumbled clips.
     """
     rows, right, removed, failed = [], [], [], []
     for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
@@ -260,9 +308,17 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
             rows += [s.measures for s in wrong]
             right += [False] * len(wrong)
             removed += [True] * len(wrong)
+    before = len(rows)
+    if jumbled:
+        for got in jumbled_recognitions(model, utterances, jumbled, seed=seed, settings=settings):
+            wrong = got.segments + got.dropped
+            rows += [s.measures for s in wrong]
+            right += [False] * len(wrong)
+            removed += [True] * len(wrong)
     measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
     return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
-                               recordings=len(utterances) - len(failed), failed=failed)
+                               np.arange(len(rows)) >= before, recordings=len(utterances) - len(failed),
+                               failed=failed)
 
 
 def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig = CalibrationConfig(),
@@ -311,12 +367,14 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
     model, summary = train(rest)
     examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
-                                    backwards=config.backwards)
+                                    backwards=config.backwards, jumbled=config.jumbled, seed=config.seed)
     calibration = fit_calibration(examples, config=config)
     n_right = int(examples.right.sum())
+    n_jumbled = int(examples.jumbled.sum())
+    n_removed = int(examples.own_words_removed.sum()) - n_jumbled
     say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
-        f"{examples.right.size - n_right} wrong ({int(examples.own_words_removed.sum())} of them heard "
-        "with the recording's own words removed)" + ("" if calibration is not None else "; not fitted"))
+        f"{examples.right.size - n_right} wrong ({n_removed} of them heard with the recording's own words "
+        f"removed, {n_jumbled} in jumbled speech)" + ("" if calibration is not None else "; not fitted"))
     if config.refit:
         say(f"confidence calibration: training again on all {len(utterances)} recordings")
         model, summary = train(utterances)
@@ -326,6 +384,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                             "held_out_share": config.held_out_share, "seed": config.seed,
                             "held_out_recordings": examples.recordings, "right_words": n_right,
                             "wrong_words": int(examples.right.size - n_right),
-                            "wrong_with_own_words_removed": int(examples.own_words_removed.sum()),
+                            "wrong_with_own_words_removed": n_removed,
+                            "wrong_in_jumbled_speech": n_jumbled,
+                            "jumbled_clips": config.jumbled,
                             "refit_on_all": bool(config.refit)}})
     return model, summary
