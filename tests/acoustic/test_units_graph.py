@@ -11,9 +11,9 @@ import itertools
 
 import numpy as np
 import pytest
-from hmmlearn.base import BaseHMM
 from scipy.special import logsumexp
 
+from decoding_helpers import TableHMM
 from wordspot.acoustic.graph import compose
 from wordspot.acoustic.units import (
     EXIT,
@@ -105,23 +105,6 @@ def test_all_skippable_is_refused(units):
         compose([[(g,)]], units)
 
 
-class _TableHMM(BaseHMM):
-    """hmmlearn model whose per-state log-likelihoods come from a fixed table."""
-
-    def __init__(self, table, **kw):
-        super().__init__(n_components=table.shape[1], **kw)
-        self.table = table
-
-    def _compute_log_likelihood(self, X):
-        return self.table[X[:, 0].astype(int)]
-
-    def _check(self):
-        pass
-
-    def _get_n_fit_scalars_per_param(self):
-        return {}
-
-
 def test_forward_matches_hmmlearn(units, rng):
     # Forward log probability of a composed chain, summed over all paths, against
     # hmmlearn's forward pass (reference library) on the same dense model. hmmlearn lets
@@ -144,8 +127,8 @@ def test_forward_matches_hmmlearn(units, rng):
     ours = logsumexp(alpha)
 
     # hmmlearn's forward pass on the same dense matrix (its rows miss the end mass of
-    # the last pause state; _TableHMM skips hmmlearn's row-sum check for that reason).
-    model = _TableHMM(table, implementation="log")
+    # the last pause state; TableHMM skips hmmlearn's row-sum check for that reason).
+    model = TableHMM(table, implementation="log")
     model.startprob_ = start
     with np.errstate(divide="ignore"):
         model.transmat_ = a

@@ -5,9 +5,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from hmmlearn.base import BaseHMM
 
-from decoding_helpers import frames_along, gap_mixtures, tiny_model, word_mixtures
+from decoding_helpers import TableHMM, frames_along, gap_mixtures, tiny_model, word_mixtures
 from wordspot.decoding.decoder import DecoderSettings, build_recognizer
 from wordspot.decoding.network import FIRST_WORD_ITEM
 from wordspot.decoding.spans import piece_of, piece_path, piece_path_reference, piece_score
@@ -18,23 +17,6 @@ ENTRIES = {"bat": [["B", "AA", "T"]], "sack": [["S", "AA", "K"]]}
 @pytest.fixture
 def rng():
     return np.random.default_rng(11)
-
-
-class _TableHMM(BaseHMM):
-    """hmmlearn model whose per-state log-likelihoods come from a fixed table."""
-
-    def __init__(self, table, **kw):
-        super().__init__(n_components=table.shape[1], **kw)
-        self.table = table
-
-    def _compute_log_likelihood(self, X):
-        return self.table[X[:, 0].astype(int)]
-
-    def _check(self):
-        pass
-
-    def _get_n_fit_scalars_per_param(self):
-        return {}
 
 
 def _sack(rng, frames_per_state=3, gap=2):
@@ -63,7 +45,7 @@ def test_path_matches_hmmlearn_viterbi(rng):
             trans[s, piece.arc_dst[e]] += np.exp(piece.arc_logp[e])
     start = np.zeros(n)
     start[piece.start_state] = np.exp(piece.start_logp)
-    ref = _TableHMM(table, implementation="log")
+    ref = TableHMM(table, implementation="log")
     ref.startprob_, ref.transmat_ = start, trans
     with np.errstate(divide="ignore"):
         want_score, want_states = ref.decode(np.arange(ll.shape[0])[:, None], algorithm="viterbi")

@@ -66,16 +66,23 @@ def piece_of(net, items) -> Piece:
 
 
 @numba.njit(cache=True, nogil=True)
-def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp,
-           start_state, start_logp, reenter_logp):
-    n = mixture.shape[0]
-    cur = np.full(n, _NEG)
-    nxt = np.full(n, _NEG)
+def _entered(ll, first, mixture, start_state, start_logp):
+    """Scores at the first frame: the best entry into each state plus its emission."""
+    cur = np.full(mixture.shape[0], _NEG)
     for k in range(start_state.shape[0]):
         s = start_state[k]
         v = start_logp[k] + ll[first, mixture[s]]
         if v > cur[s]:
             cur[s] = v
+    return cur
+
+
+@numba.njit(cache=True, nogil=True)
+def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp,
+           start_state, start_logp, reenter_logp):
+    n = mixture.shape[0]
+    cur = _entered(ll, first, mixture, start_state, start_logp)
+    nxt = np.full(n, _NEG)
     for t in range(first + 1, last + 1):
         for s in range(n):
             nxt[s] = _NEG
@@ -140,8 +147,8 @@ def piece_score(ll: np.ndarray, first: int, last: int, piece: Piece, reenter_log
     return float(np.max(_ends(ll, first, last, piece, reenter_logp)))
 
 
-def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
-    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+def _dense(piece: Piece) -> tuple[np.ndarray, np.ndarray]:
+    """(log transition matrix (S, S), log entry vector (S,)) of a piece, -inf where none."""
     n = piece.n_states
     trans = np.full((n, n), _NEG)
     trans[np.arange(n), np.arange(n)] = piece.self_logp
@@ -151,6 +158,12 @@ def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _
     enter = np.full(n, _NEG)
     for s, lp in zip(piece.start_state, piece.start_logp):
         enter[s] = max(enter[s], lp)
+    return trans, enter
+
+
+def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
+    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+    trans, enter = _dense(piece)
     delta = enter + ll[first, piece.mixture]
     for t in range(first + 1, last + 1):
         moved = np.max(delta[:, None] + trans, axis=0)
@@ -165,13 +178,8 @@ def _align(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, en
     n = mixture.shape[0]
     frames = last - first + 1
     back = np.full((frames, n), -1, dtype=np.int64)
-    cur = np.full(n, _NEG)
+    cur = _entered(ll, first, mixture, start_state, start_logp)
     nxt = np.full(n, _NEG)
-    for k in range(start_state.shape[0]):
-        s = start_state[k]
-        v = start_logp[k] + ll[first, mixture[s]]
-        if v > cur[s]:
-            cur[s] = v
     for t in range(1, frames):
         for s in range(n):
             nxt[s] = _NEG
@@ -220,15 +228,8 @@ def piece_path(ll: np.ndarray, first: int, last: int, piece: Piece) -> tuple[np.
 
 def piece_path_reference(ll, first, last, piece: Piece) -> tuple[np.ndarray, float]:
     """Plain-numpy version of :func:`piece_path`: dense matrix, back-pointers kept per frame."""
+    trans, enter = _dense(piece)
     n = piece.n_states
-    trans = np.full((n, n), _NEG)
-    trans[np.arange(n), np.arange(n)] = piece.self_logp
-    for s in range(n):
-        for e in range(piece.arc_first[s], piece.arc_first[s + 1]):
-            trans[s, piece.arc_dst[e]] = max(trans[s, piece.arc_dst[e]], piece.arc_logp[e])
-    enter = np.full(n, _NEG)
-    for s, lp in zip(piece.start_state, piece.start_logp):
-        enter[s] = max(enter[s], lp)
     delta = enter + ll[first, piece.mixture]
     back = []
     for t in range(first + 1, last + 1):
