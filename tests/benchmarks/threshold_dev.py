@@ -75,11 +75,12 @@ def main(argv=None) -> int:
                         a = align_words(ref, kept)
                         errors += a.substitutions + a.deletions + a.insertions
                         words += len(ref)
-                    row.append(100 * errors / words if name in ("words", "phrases") else
+                    row.append(100 * errors / words if name in ("words", "phrases", "real phrases") else
                                100 * right / len(items) if name == "joined" else 100 * (1 - right / len(items)))
                 table[fp, t].append(row)
             print(f"filler {fp:g}, seed {seed} done", file=sys.stderr, flush=True)
-    label = {"words": "dev command WER", "joined": "joined files exactly right", "phrases": "phrase stand-ins WER"}
+    label = {"words": "dev command WER", "joined": "joined files exactly right", "phrases": "phrase stand-ins WER",
+             "real phrases": "real phrases WER"}
     names = [label.get(name, f"{name}: files not exactly right" if name not in ("other talk", "noise only")
                        else f"{name}: files with a command") for name in sets]
     print(f"seeds {args.seeds}: mean (min-max)")

@@ -12,6 +12,9 @@ Dev material (no demo test voice, no demo test recording):
   ``speech_start`` / ``speech_end`` columns of ``train.csv``) and joined with 30-120 ms of
   the first recording's own room tone between them: commands said in one breath, without
   the coarticulation of a real phrase (a stand-in; the demo's phrases are test voices);
+* ``real phrases``: 90 multi-word commands synthesised by the dev voices
+  (``dev_phrases.py``; only where the text-to-speech engines are installed): quicker and
+  coarticulated, as the demo's test phrases are;
 * ``other talk``: the starter corpus's dev recordings (its own dev voices) whose words are
   none of the lexicon's: every command word recognised there is a false accept;
 * ``noise only``: 60 clips of 1-4 s of one background each, drawn with the training
@@ -126,6 +129,11 @@ def dev_sets(model, n_joined: int, seed: int = 20261203):
             parts.append(np.resize(tone, gap))
         phrases.append((np.concatenate(parts).astype(np.float32), [w for _, ref, _, _ in picks for w in ref]))
     sets["phrases"] = phrases
+    from dev_phrases import dev_phrase_set  # real phrases by the dev voices (needs the TTS engines)
+
+    real = dev_phrase_set()
+    if real:
+        sets["real phrases"] = real
 
     # the dev commands in babble (other dev voices' speech) or fan noise at 10 dB SNR
     from wordspot.audio.augment import babble, mix_at_snr, speech_span, steady_noise, talker_stream
