@@ -100,7 +100,7 @@ class CalibrationConfig:
     min_per_class: int = 5
     penalty: float = DEFAULT_PENALTY
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
-    speeds: tuple[float, ...] = (0.9, 1.0, 1.1)
+    speeds: tuple[float, ...] = (0.9, 1.0, 1.1, 1.25, 1.4)
     backwards: bool = False
     jumbled: int = DEFAULT_JUMBLED
 
