@@ -1,8 +1,9 @@
 #!/usr/bin/env python3
 """The default confidence threshold on dev material, over several calibration seeds.
 
-The starter is adapted with calibration (as ``wordspot train`` does) on the demo training
-voices that are not dev voices, once per seed of the held-out split; each model then
+The starter is adapted with calibration (as ``wordspot train`` does; or, with
+``--from-scratch``, a model is trained from scratch) on the demo training voices that are
+not dev voices, once per seed of the held-out split; each model then
 recognises the dev sets of ``tune_filler.py`` (the dev voices' commands, the same joined by
 pauses of other backgrounds, and the starter corpus's dev voices saying words and
 sentences with no command) with no threshold, and every threshold is applied afterwards.
@@ -37,6 +38,8 @@ def main(argv=None) -> int:
     ap.add_argument("--filler-penalty", type=float, nargs="+", default=[-80.0],
                     help="filler penalties to try (each with its own calibration, as training would fit it)")
     ap.add_argument("--backwards", action="store_true", help="calibration also hears held-out takes backwards")
+    ap.add_argument("--from-scratch", action="store_true",
+                    help="train each model from scratch (wordspot train --from-scratch) instead of adapting the starter")
     ap.add_argument("--jumbled", type=int, default=None,
                     help="clips of jumbled held-out speech in the calibration (default: the configuration's)")
     ap.add_argument("--speeds", type=float, nargs="+", default=None,
@@ -55,7 +58,7 @@ def main(argv=None) -> int:
         manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
         for seed, fp in [(seed, fp) for fp in args.filler_penalty for seed in args.seeds]:
             settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
-            model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
+            model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start=None if args.from_scratch else "starter",
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
                                                             **({"speeds": tuple(args.speeds)} if args.speeds else {}),
                                                             **({} if args.jumbled is None else {"jumbled": args.jumbled})))
