@@ -15,7 +15,8 @@ import soundfile as sf
 
 from decoding_helpers import tiny_model
 from wordspot.cli import build_parser, chosen_command, main
-from wordspot.errors import ModelFileError
+from wordspot.errors import ModelFileError, TrainingError
+from wordspot.evaluation.calibrate import CalibrationConfig
 from wordspot.model import save_model
 
 ENTRIES = {"oven": [["AA", "B", "AA"]], "start": [["S", "T", "AA", "T"]], "stop": [["S", "T", "AA", "B"]]}
@@ -134,6 +135,25 @@ def test_train_options_of_full_training_need_from_scratch(setup, capsys):
     assert "--mixtures, --speed only apply with --from-scratch" in err
     status, _, err = _train(setup, capsys, ["oven"], "--from-scratch", "--start", "starter")
     assert status == 2 and "exclude each other" in err
+
+
+def test_train_jumbled_clips_reach_the_calibration_and_bad_counts_are_named(setup, capsys, monkeypatch):
+    import wordspot.cli.train_cmd as train_cmd
+
+    seen = []
+
+    def fake(fit, utterances, *, config, **_):
+        seen.append(config)
+        raise TrainingError("stopped here by the test")
+
+    monkeypatch.setattr(train_cmd, "train_calibrated", fake)
+    status, _, err = _train(setup, capsys, ["oven"], "--jumbled-clips", "0")
+    assert status == 2 and "stopped here by the test" in err
+    assert seen[-1].jumbled == 0
+    _train(setup, capsys, ["oven"])
+    assert seen[-1].jumbled == CalibrationConfig().jumbled == 150
+    status, _, err = _train(setup, capsys, ["oven"], "--jumbled-clips", "-3")
+    assert status == 2 and _one_line_error(err) and "number of jumbled clips" in err
 
 
 def test_debug_shows_the_traceback(setup):
