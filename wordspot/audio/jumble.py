@@ -77,7 +77,6 @@ def jumbled_speech(waves: Sequence[np.ndarray], sample_rate: int, n: int, rng: n
         for j in picks:
             w, a, b = usable[j]
             length = min(int(rng.uniform(*settings.piece_seconds) * sample_rate), int((b - a) * settings.max_share))
-            length = max(length, 1)
             start = int(rng.integers(a, b - length + 1))
             piece = w[start:start + length].copy()
             fade = min(int(settings.fade_seconds * sample_rate), length // 4)

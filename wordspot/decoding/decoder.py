@@ -246,7 +246,7 @@ class Recognizer:
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
-    _filler_phones: dict | None = field(default=None, repr=False)
+    _filler_phones: dict | None = field(default=None, repr=False)  # set with the filler piece
 
     def pieces(self) -> tuple[Piece | None, Piece, np.ndarray]:
         """The filler loop (phones and the pause; None without background words), all
@@ -256,7 +256,11 @@ class Recognizer:
             net = self.network
             filler = None
             if net.background is not None:
-                filler = piece_of(net, _background_items(net))
+                items = _background_items(net)
+                filler = piece_of(net, items)
+                # the filler piece's states in order, each named by its item's single unit
+                names = [net.prons[int(i) - FIRST_WORD_ITEM][0] for i in net.item[np.isin(net.item, items)]]
+                self._filler_phones = {n: np.array([k for k, m in enumerate(names) if m == n]) for n in set(names)}
             items = net.word_pron[net.word_first[1]:net.word_first[net.n_words + 1]] + FIRST_WORD_ITEM
             commands = piece_of(net, items)
             state_word = net.pron_word[net.item[np.isin(net.item, items)] - FIRST_WORD_ITEM]
@@ -294,11 +298,6 @@ class Recognizer:
         item = pron + FIRST_WORD_ITEM
         if pron not in self._pron_pieces:
             self._pron_pieces[pron] = (piece_of(net, [item]), net.phone[net.item == item])
-        if self._filler_phones is None:
-            # the filler piece's states in order, each named by its item's single unit
-            keep = np.flatnonzero(np.isin(net.item, _background_items(net)))
-            names = [net.prons[int(net.item[s]) - FIRST_WORD_ITEM][0] for s in keep]
-            self._filler_phones = {n: np.array([k for k, m in enumerate(names) if m == n]) for n in set(names)}
         piece, phone_of = self._pron_pieces[pron]
         states, score = piece_path(ll, first, last, piece)
         if not np.isfinite(score):

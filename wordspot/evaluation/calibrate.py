@@ -227,40 +227,45 @@ def _quiet_load(model, path) -> np.ndarray:
         return load_audio(path, sample_rate=model.features.sample_rate)
 
 
-def backwards_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None
-                           ) -> Iterator[Recognition]:
-    """Each readable recording played backwards, recognised with the whole lexicon (no threshold)."""
+def _readable_waves(model, utterances: Sequence) -> list[tuple[str, np.ndarray]]:
+    """(path, waveform at the model's rate) of every recording that can be read."""
+    waves = []
+    for u in utterances:
+        try:
+            waves.append((str(u.path), _quiet_load(model, u.path)))
+        except WordspotError:
+            continue
+    return waves
+
+
+def _recognitions(model, clips, settings: DecoderSettings | None) -> Iterator[Recognition]:
+    """``(name, waveform)`` clips recognised with the whole lexicon (no threshold)."""
     from wordspot.audio.features import compute_features
 
     rec = build_recognizer(model, settings=replace(settings or DecoderSettings(), min_confidence=0.0))
-    for u in utterances:
+    for name, wave in clips:
         try:
-            wave = _quiet_load(model, u.path)[::-1].copy()
-            yield rec.decode(compute_features(wave, model.features), path=str(u.path))
+            yield rec.decode(compute_features(wave, model.features), path=name)
         except WordspotError:
             continue
+
+
+def backwards_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None
+                           ) -> Iterator[Recognition]:
+    """Each readable recording played backwards, recognised with the whole lexicon (no threshold)."""
+    clips = ((name, wave[::-1].copy()) for name, wave in _readable_waves(model, utterances))
+    return _recognitions(model, clips, settings)
 
 
 def jumbled_recognitions(model, utterances: Sequence, n: int, *, seed: int = 0,
                          settings: DecoderSettings | None = None) -> Iterator[Recognition]:
     """``n`` clips of jumbled speech from the readable recordings, recognised with the whole
     lexicon (no threshold)."""
-    from wordspot.audio.features import compute_features
     from wordspot.audio.jumble import jumbled_speech
 
-    waves = []
-    for u in utterances:
-        try:
-            waves.append(_quiet_load(model, u.path))
-        except WordspotError:
-            continue
-    rate = model.features.sample_rate
-    rec = build_recognizer(model, settings=replace(settings or DecoderSettings(), min_confidence=0.0))
-    for clip in jumbled_speech(waves, rate, n, np.random.default_rng([seed, 0x6A756D62])):
-        try:
-            yield rec.decode(compute_features(clip, model.features), path="jumbled held-out speech")
-        except WordspotError:
-            continue
+    waves = [wave for _, wave in _readable_waves(model, utterances)]
+    clips = jumbled_speech(waves, model.features.sample_rate, n, np.random.default_rng([seed, 0x6A756D62]))
+    return _recognitions(model, (("jumbled held-out speech", c) for c in clips), settings)
 
 
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
@@ -287,6 +292,14 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
         Seed of the jumbled clips.
     """
     rows, right, removed, failed = [], [], [], []
+
+    def all_wrong(recognitions):
+        for got in recognitions:
+            wrong = got.segments + got.dropped
+            rows.extend(s.measures for s in wrong)
+            right.extend([False] * len(wrong))
+            removed.extend([True] * len(wrong))
+
     for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
                                                        speeds=speeds):
         if whole is None:
@@ -298,23 +311,12 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
         right += word_hits(u.words, [s.word for s in heard])
         removed += [False] * len(heard)
         if without_own is not None:
-            wrong = without_own.segments + without_own.dropped
-            rows += [s.measures for s in wrong]
-            right += [False] * len(wrong)
-            removed += [True] * len(wrong)
+            all_wrong([without_own])
     if backwards:
-        for got in backwards_recognitions(model, utterances, settings=settings):
-            wrong = got.segments + got.dropped
-            rows += [s.measures for s in wrong]
-            right += [False] * len(wrong)
-            removed += [True] * len(wrong)
+        all_wrong(backwards_recognitions(model, utterances, settings=settings))
     before = len(rows)
     if jumbled:
-        for got in jumbled_recognitions(model, utterances, jumbled, seed=seed, settings=settings):
-            wrong = got.segments + got.dropped
-            rows += [s.measures for s in wrong]
-            right += [False] * len(wrong)
-            removed += [True] * len(wrong)
+        all_wrong(jumbled_recognitions(model, utterances, jumbled, seed=seed, settings=settings))
     measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
     return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
                                np.arange(len(rows)) >= before, recordings=len(utterances) - len(failed),
