@@ -11,7 +11,8 @@ Steps:
    the demo's test voices and new words are left out on purpose, see recordings/README.md).
 2. Train one model per rate from scratch on the corpus's train split, with the settings
    below. The dev split's voices (flite awb and two espeak-ng voices) stay out, so that
-   the dev measures of the starter and of adaptation (DEVELOPERS.md) stay fair; add
+   the dev measures of the starter and of adaptation (docs/experiments/2026-12-02-starter-corpus.md,
+   docs/experiments/2026-12-02-adaptation.md) stay fair; add
    ``--manifests recordings/starter/train.csv recordings/starter/dev.csv`` to use them too.
 3. Record in each model file how it was made (corpus, voices, what was left out, date,
    this command) and write it into ``wordspot/starters/`` (atomically).

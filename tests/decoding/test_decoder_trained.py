@@ -74,7 +74,8 @@ def test_phrases_have_the_right_length_and_ordered_times(model, test_features):
 
 def test_default_beam_equals_unpruned(model, test_features):
     # The default beams are meant to cost no accuracy: on the demo test set they give the
-    # unpruned result for at least 99% of the files (DEVELOPERS.md "Decoding").
+    # unpruned result for at least 99% of the files
+    # (docs/experiments/2026-12-01-decoder-settings.md).
     pruned = build_recognizer(model)
     exact = build_recognizer(model, settings=DecoderSettings.unpruned())
     files = test_features["test.csv"] + test_features["test-phrases.csv"]

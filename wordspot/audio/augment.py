@@ -70,7 +70,8 @@ class NoiseSettings:
     kinds : tuple of str
         Noise kinds (see :data:`NOISE_KINDS`); each copy draws one entry with equal chance,
         so a kind listed twice comes twice as often. The default draws babble two times in
-        three: on held-out voices that cut 10 dB errors from 23.6% to 20.4% (DEVELOPERS.md).
+        three: on held-out voices that cut 10 dB errors from 23.6% to 20.4%
+        (docs/experiments/2026-12-02-training-recipe.md).
     talkers : (int, int)
         Babble is made of this many talker streams (drawn uniformly, inclusive).
     """

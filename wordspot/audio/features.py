@@ -90,7 +90,8 @@ class FeatureSettings:
         Also divide every column by its standard deviation over the utterance (needs
         ``cmn``); evens out how loud and how "bright" a talker is, and how much noise has
         flattened the spectrum. On by default since it cut 10 dB single-word errors on
-        held-out voices from 42.5% to 35.6% (clean 1.1% to 0.4%; DEVELOPERS.md).
+        held-out voices from 42.5% to 35.6% (clean 1.1% to 0.4%;
+        docs/experiments/2026-12-02-training-recipe.md).
     static_c0 : bool
         Keep the static c0 column (False drops it; its deltas are kept).
     fmin : float >= 0

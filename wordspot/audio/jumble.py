@@ -26,7 +26,9 @@ __all__ = ["JumbleSettings", "jumbled_speech"]
 
 @dataclass(frozen=True)
 class JumbleSettings:
-    """How jumbled clips are cut and joined (defaults chosen on dev material, see DEVELOPERS.md).
+    """How jumbled clips are cut and joined (defaults chosen on dev material).
+
+    Evidence: docs/experiments/2026-12-02-per-phone-measures-and-jumbled-speech.md.
 
     Parameters
     ----------

@@ -68,7 +68,8 @@ CONFIDENCE_SCALE = 4.0
 
 #: The word-confidence threshold used when none is given and the model's confidence is
 #: calibrated (words below it are dropped): drop the words the model finds almost surely
-#: wrong. Chosen on the demo's dev voices (DEVELOPERS.md, "Calibrated confidence"): the
+#: wrong. Chosen on the demo's dev voices
+#: (docs/experiments/2026-12-02-per-phone-measures-and-jumbled-speech.md): the
 #: highest that kept dev command WER within about a point of the search without filler
 #: (1.1% -> 2.2%), while other talk taken for commands fell from 94% to 53% of files.
 DEFAULT_MIN_CONFIDENCE = 0.005

@@ -53,7 +53,8 @@ __all__ = [
 ]
 
 
-#: Clips of jumbled held-out speech in the calibration (chosen on dev material, DEVELOPERS.md).
+#: Clips of jumbled held-out speech in the calibration (chosen on dev material,
+#: docs/experiments/2026-12-02-per-phone-measures-and-jumbled-speech.md).
 DEFAULT_JUMBLED = 150
 
 

@@ -48,8 +48,8 @@ _CHUNK = 2048
 class DetectorSettings:
     """How speech stretches are found (seconds and dB; see the module docstring).
 
-    The defaults were chosen on the demo's dev voices (DEVELOPERS.md, "Scanning long
-    recordings").
+    The defaults were chosen on the demo's dev voices
+    (docs/experiments/2026-12-02-long-recordings.md).
     """
 
     frame_seconds: float = 0.025

@@ -68,7 +68,8 @@ class AdaptationConfig:
         ``tau``: how many frames of the user's data weigh as much as the starting model
         (0: plain maximum likelihood where there is data). 300 was best of 3-10^9 on the
         dev split of the demo's training voices, for voices the adaptation never heard
-        (DEVELOPERS.md); with the shared transform on, MAP then adds only a little.
+        (docs/experiments/2026-12-02-adaptation.md); with the shared transform on, MAP then adds
+        only a little.
     passes : int >= 1
         MAP passes (each one forward-backward over the user's data); 2 did no better than 1
         on the dev split.

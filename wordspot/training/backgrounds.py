@@ -7,7 +7,7 @@ over a faint room-tone floor, each with an empty transcript (one ``pau`` chain, 
 command here" recording), teach it the rest. Babble can be asked for (``kinds``) but is not
 among the defaults: a pause that has learnt speech takes speech in babble for pause (on the
 dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands
-in noise at 10 dB alike; see DEVELOPERS.md).
+in noise at 10 dB alike; see docs/experiments/2026-12-02-background-items.md).
 
 Reproducible for any number of processes: the recipes (kind, length, level, mains
 frequency, floor, babble talkers, noise seed) are drawn up front from the training seed

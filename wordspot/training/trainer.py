@@ -1,6 +1,6 @@
 """Acoustic training: flat start, embedded re-estimation and mixture growth.
 
-Outline (DEVELOPERS.md "Training" gives the defaults and the measurements behind them):
+Outline (the measurements behind the defaults are in docs/experiments/2026-12-02-training-recipe.md):
 
 1. **Flat start.** Every state's mixture is one Gaussian with the global mean and
    variance of all training frames; transitions are the topology defaults of
@@ -84,7 +84,7 @@ class TrainingConfig:
         Gaussians per state at each stage, increasing (default 1, 2, 4, 8).
     first_passes : int >= 1
         Re-estimation passes at the first stage (from the flat start); 5 did as well as 6
-        on held-out voices, for one pass less (DEVELOPERS.md).
+        on held-out voices, for one pass less (docs/experiments/2026-12-02-training-recipe.md).
     passes_per_split : int >= 1
         Passes after each mixture growth step.
     variance_floor : float > 0
@@ -120,12 +120,14 @@ class TrainingConfig:
         played that much faster (tempo, pitch and formants together; see
         :func:`wordspot.training.data.speed_copy`). The default ``(0.9, 1.0, 1.1)``
         triples the data and the training time; on the demo set it cut isolated-word
-        errors on unseen voices from 10.4% to 2.4% (DEVELOPERS.md). ``(1.0,)`` turns it off.
+        errors on unseen voices from 10.4% to 2.4% (docs/experiments/2026-12-02-training-recipe.md).
+        ``(1.0,)`` turns it off.
     noise_copies : int >= 0
         Noisy copies of every recording for multi-condition training (babble or steady
         machine noise; see :mod:`wordspot.training.noise`); 0 trains on the clean ones only.
         The default 2 (with ``FeatureSettings.cvn``) cut 10 dB single-word errors on
-        held-out voices from 35.6% (one copy) to 23.6% (DEVELOPERS.md); each copy is babble
+        held-out voices from 35.6% (one copy) to 23.6% (docs/experiments/2026-12-02-training-recipe.md);
+        each copy is babble
         two times in three (``NoiseSettings.kinds``).
     noise_snr_db : (float, float)
         Each noisy copy's SNR in dB, drawn uniformly from this range.
