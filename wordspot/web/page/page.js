@@ -8,7 +8,9 @@ const MAX_SECONDS = 15;
 const page = {
   state: null,        // last /api/state answer
   index: 0,           // selected word
-  audio: null,        // {context, stream, node}
+  audio: null,        // {stream, context, source, node} only while the microphone is open
+  opening: false,     // true while the browser is asked for the microphone
+  player: null,       // the audio context playing a take back (no microphone in it)
   recording: null,    // "take" or "try" while recording
   chunks: [],
   pending: null,      // {samples, rate, body, check} of the take waiting for keep/redo
@@ -111,6 +113,9 @@ function nextWordToRecord() {
 }
 
 // ---- the microphone ---------------------------------------------------------------------
+// Opened for one recording and released as soon as it ends: every track stopped, the audio
+// graph disconnected and closed, no reference kept; so the browser stops showing the page
+// as listening, and the sign at the top of the page says which it is.
 async function openMicrophone() {
   if (page.audio) return page.audio;
   if (!navigator.mediaDevices || !navigator.mediaDevices.getUserMedia) {
@@ -118,14 +123,53 @@ async function openMicrophone() {
   }
   const stream = await navigator.mediaDevices.getUserMedia(
     {audio: {echoCancellation: false, noiseSuppression: false, autoGainControl: false, channelCount: 1}});
-  const context = new AudioContext();
-  await context.audioWorklet.addModule("/page/capture-worklet.js");
-  const source = context.createMediaStreamSource(stream);
-  const node = new AudioWorkletNode(context, "wordspot-capture");
-  node.port.onmessage = (event) => onBlock(event.data);
-  source.connect(node);
-  page.audio = {context: context, stream: stream, node: node};
-  return page.audio;
+  const audio = {stream: stream, context: null, source: null, node: null};
+  page.audio = audio;
+  showMicrophone();
+  stream.getTracks().forEach((t) => t.addEventListener("ended", microphoneLost));
+  try {
+    audio.context = new AudioContext();
+    await audio.context.audioWorklet.addModule("/page/capture-worklet.js");
+    if (page.audio !== audio) throw new Error("it was closed while opening");
+    audio.source = audio.context.createMediaStreamSource(stream);
+    audio.node = new AudioWorkletNode(audio.context, "wordspot-capture");
+    audio.node.port.onmessage = (event) => onBlock(event.data);
+    audio.source.connect(audio.node);
+  } catch (e) {
+    releaseAudio(audio);
+    throw e;
+  }
+  return audio;
+}
+
+function releaseAudio(audio) {
+  if (audio.stream) audio.stream.getTracks().forEach((t) => { t.removeEventListener("ended", microphoneLost); t.stop(); });
+  if (audio.node) { audio.node.port.onmessage = null; audio.node.disconnect(); }
+  if (audio.source) audio.source.disconnect();
+  if (audio.context && audio.context.state !== "closed") audio.context.close().catch(() => {});
+  audio.stream = audio.context = audio.source = audio.node = null;
+  if (page.audio === audio) page.audio = null;
+  showMicrophone();
+}
+
+function closeMicrophone() {
+  if (page.audio) releaseAudio(page.audio);
+}
+
+function showMicrophone() {
+  const on = page.audio !== null;
+  $("mic-state").dataset.on = on ? "true" : "false";
+  $("mic-text").textContent = on ? "Microphone on" : "Microphone off";
+}
+
+// The browser ended the microphone itself (unplugged, or permission taken back).
+function microphoneLost() {
+  if (page.recording) {
+    stopRecording();
+    say("The microphone stopped during the take; check that it is plugged in and allowed.", true);
+  } else {
+    closeMicrophone();
+  }
 }
 
 let shownLevel = -60, loudestSinceDrawn = -60;
@@ -134,7 +178,7 @@ function onBlock(block) {
   for (let i = 0; i < block.length; i++) { const a = Math.abs(block[i]); if (a > peak) peak = a; }
   const db = peak > 0 ? Math.max(-60, 20 * Math.log10(peak)) : -60;
   if (db > loudestSinceDrawn) loudestSinceDrawn = db;
-  if (page.recording) {
+  if (page.recording && page.audio) {
     page.chunks.push(block);
     const seconds = page.chunks.length * block.length / page.audio.context.sampleRate;
     if (seconds >= MAX_SECONDS) stopRecording();
@@ -174,21 +218,25 @@ function wavBytes(samples, rate) {
 }
 
 async function startRecording(kind) {
-  if (page.recording) return;
+  if (page.recording || page.opening) return;
+  page.opening = true;
   try {
-    await openMicrophone();
-    if (page.audio.context.state !== "running") await page.audio.context.resume();
+    const audio = await openMicrophone();
+    if (audio.context.state !== "running") await audio.context.resume();
   } catch (e) {
+    closeMicrophone();
     say("The microphone could not be opened: " + e.message, true);
     return;
+  } finally {
+    page.opening = false;
   }
   discard(false);
   page.chunks = [];
   page.recording = kind;
   if (kind === "take") {
     $("record").classList.add("on");
-    $("record").innerHTML = "Stop <kbd>Space</kbd>";
-    say("Recording… say “" + currentWord().word + "”, then press Space.");
+    $("record").innerHTML = "Stop recording <kbd>R</kbd>";
+    say("Recording… say “" + currentWord().word + "”, then press R.");
   } else {
     $("try-record").innerHTML = "Stop <kbd>T</kbd>";
     $("try-result").textContent = "Listening… say a command, then press T.";
@@ -200,14 +248,15 @@ async function stopRecording() {
   if (!kind) return;
   page.recording = null;
   const samples = joined();
-  const rate = page.audio.context.sampleRate;
+  const rate = page.audio ? page.audio.context.sampleRate : 48000;
+  closeMicrophone();
   if (kind === "try") {
     $("try-record").innerHTML = "Record a test <kbd>T</kbd>";
     return tryModel(samples, rate);
   }
   $("record").classList.remove("on");
-  $("record").innerHTML = "Record <kbd>Space</kbd>";
-  if (samples.length < rate * 0.1) { say("That was too short to use; press Space and say the word.", true); return; }
+  $("record").innerHTML = "Record <kbd>R</kbd>";
+  if (samples.length < rate * 0.1) { say("That was too short to use; press R and say the word.", true); return; }
   const body = wavBytes(samples, rate);
   say("Checking the take…");
   try {
@@ -217,7 +266,7 @@ async function stopRecording() {
     showCheck(check, samples.length / rate);
     ["play", "keep", "redo"].forEach((id) => { $(id).disabled = false; });
     say(check.warnings.length ? "Listen to it, then keep it or record again."
-                              : "Sounds fine. Press Enter to keep it, or Backspace to record again.");
+                              : "Sounds fine. Press K to keep it, or A to record again.");
   } catch (e) {
     say("The take could not be checked: " + e.message, true);
   }
@@ -262,20 +311,28 @@ function drawTake(samples, rate, check) {
 function discard(tell) {
   page.pending = null;
   ["play", "keep", "redo"].forEach((id) => { $(id).disabled = true; });
-  if (tell) say("Take thrown away. Press Space to record again.");
+  if (tell) say("Take thrown away. Press R to record again.");
 }
 
+// Plays the kept part through an output-only audio context, closed when it ends.
 function play() {
   const p = page.pending;
-  if (!p || !page.audio) return;
-  const ctx = page.audio.context;
+  if (!p) return;
+  stopPlaying();
+  const ctx = new AudioContext();
+  page.player = ctx;
   const buffer = ctx.createBuffer(1, p.samples.length, p.rate);
   buffer.copyToChannel(p.samples, 0);
   const src = ctx.createBufferSource();
   src.buffer = buffer;
   src.connect(ctx.destination);
+  src.onended = () => { if (page.player === ctx) stopPlaying(); };
   src.start(0, p.check.start, Math.max(0.01, p.check.end - p.check.start));
   say("Playing the kept part…");
+}
+
+function stopPlaying() {
+  if (page.player) { page.player.close().catch(() => {}); page.player = null; }
 }
 
 async function keep() {
@@ -404,36 +461,35 @@ async function tryModel(samples, rate) {
 }
 
 // ---- keys ----------------------------------------------------------------------------------
+// Each key is the first letter of a word on its button (shown there and in the help text):
+// R record / stop, L listen, K keep, A record again, N next word, B back one word, T test.
+// Plain letters only, so no browser shortcut is taken; nothing happens while typing in a box.
 function typing(target) {
-  return target && (target.tagName === "INPUT" && target.type !== "checkbox" || target.tagName === "TEXTAREA");
+  if (!target) return false;
+  if (target.isContentEditable || target.tagName === "TEXTAREA" || target.tagName === "SELECT") return true;
+  return target.tagName === "INPUT" && !["checkbox", "radio", "button", "submit", "reset"].includes(target.type);
 }
 
 function onKey(event) {
-  if (typing(event.target) || event.altKey || event.ctrlKey || event.metaKey) return;
-  const k = event.key;
-  if (k === " " || k === "Spacebar") {
-    event.preventDefault();
-    if (event.repeat) return;
+  if (typing(event.target) || event.altKey || event.ctrlKey || event.metaKey || event.key.length !== 1) return;
+  const k = event.key.toLowerCase();
+  if (event.repeat && (k === "r" || k === "t")) { event.preventDefault(); return; }
+  if (k === "r") {
     if (page.recording === "take") stopRecording(); else if (!page.recording && currentWord()) startRecording("take");
-  } else if (k === "ArrowDown" || k === "ArrowUp") {
-    event.preventDefault();
-    select(page.index + (k === "ArrowDown" ? 1 : -1), true);
-  } else if (k === "Enter" && page.pending) {
-    event.preventDefault();
+  } else if (k === "n" || k === "b") {
+    select(page.index + (k === "n" ? 1 : -1), true);
+  } else if (k === "k" && page.pending) {
     keep();
-  } else if (k === "Backspace" && page.pending) {
-    event.preventDefault();
+  } else if (k === "a" && page.pending) {
     discard(true);
-  } else if ((k === "p" || k === "P") && page.pending) {
+  } else if (k === "l" && page.pending) {
     play();
-  } else if ((k === "t" || k === "T") && !$("try-record").disabled) {
+  } else if (k === "t" && !$("try-record").disabled) {
     if (page.recording === "try") stopRecording(); else if (!page.recording) startRecording("try");
+  } else {
+    return;
   }
-}
-
-function onKeyUp(event) {
-  // a focused button would otherwise also be pressed by the Space that records
-  if ((event.key === " " || event.key === "Spacebar") && !typing(event.target)) event.preventDefault();
+  event.preventDefault();
 }
 
 function start() {
@@ -445,9 +501,13 @@ function start() {
   $("confirm-word").addEventListener("click", confirmWord);
   $("train").addEventListener("click", startTraining);
   $("try-record").addEventListener("click", () => { if (page.recording === "try") stopRecording(); else startRecording("try"); });
+  $("word-next").addEventListener("click", () => select(page.index + 1, false));
+  $("word-back").addEventListener("click", () => select(page.index - 1, false));
   $("speaker").addEventListener("change", () => { discard(false); refresh().catch((e) => say(e.message, true)); });
   document.addEventListener("keydown", onKey);
-  document.addEventListener("keyup", onKeyUp);
+  // leaving or closing the page releases the microphone even in the middle of a take
+  window.addEventListener("pagehide", () => { page.recording = null; page.chunks = []; closeMicrophone(); stopPlaying(); });
+  showMicrophone();
   requestAnimationFrame(drawMeter);
   refresh().catch((e) => say("The page could not reach wordspot: " + e.message, true));
 }
