@@ -20,7 +20,7 @@ FLAC = RECORDINGS / "audio" / "train" / "espeak-en-gb-f3" / "back-t1.flac"
 
 @pytest.fixture
 def served(tmp_path):
-    lexicon = tmp_path / "words.txt"
+    lexicon = tmp_path / "bakery-words.txt"
     lexicon.write_text("back B AE K\noven AH V AH N\n", encoding="utf-8")
     started = []
 
@@ -123,7 +123,7 @@ def test_concurrent_saves_over_http(served):
     assert all((app.takes.folder / r["path"]).is_file() for r in rows)
 
 
-@pytest.mark.parametrize("path", ["/takes/../words.txt", "/takes/%2e%2e/words.txt", "/takes/audio/../../words.txt",
+@pytest.mark.parametrize("path", ["/takes/../bakery-words.txt", "/takes/%2e%2e/bakery-words.txt", "/takes/audio/../../bakery-words.txt",
                                   "/takes//etc/passwd"])
 def test_paths_outside_the_folder_are_refused(served, path):
     _, port = served()
@@ -208,7 +208,7 @@ def test_words_are_suggested_and_added(served, tmp_path):
     status, added = request(port, "POST", "/api/word/add",
                             json.dumps({"word": "knead", "phones": "n iy d"}).encode())
     assert status == 200 and added["pronunciations"] == ["N IY D"]
-    assert (tmp_path / "words.txt").read_text(encoding="utf-8").splitlines()[-1].split() == ["knead", "N", "IY", "D"]
+    assert (tmp_path / "bakery-words.txt").read_text(encoding="utf-8").splitlines()[-1].split() == ["knead", "N", "IY", "D"]
     status, state = request(port, "GET", "/api/state")
     assert "knead" in [w["word"] for w in state["words"]]
     status, answer = request(port, "POST", "/api/word/add", json.dumps({"word": "proof", "phones": "P R XX F"}).encode())
