@@ -2,6 +2,7 @@
 
 import csv
 import json
+import re
 import sys
 
 import pytest
@@ -61,6 +62,12 @@ def test_tables_show_the_rows():
     assert len(short.splitlines()) == 2 + 2 + 1  # header, rule, two rows, the "more words" note
     assert f"({len(r.word_table) - 2} more words" in short
     speakers = render_speaker_table(r)
+    # Column names spelt out, the same words as the HTML report's speaker table.
+    from wordspot.evaluation.html_report import _speaker_table
+
+    html_names = re.findall(r"<th>([^<]*)</th>", _speaker_table(r))
+    assert [c.strip() for c in re.split(r" {2,}", speakers.splitlines()[0])] == html_names
+    assert html_names[3:6] == ["substituted", "deleted", "inserted"]
     ann = next(line for line in speakers.splitlines() if line.startswith("ann"))
     bo = next(line for line in speakers.splitlines() if line.startswith("bo"))
     assert ann.split() == ["ann", "2", "4", "0", "0", "1", "25.00%", "1"]
