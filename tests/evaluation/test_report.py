@@ -5,6 +5,7 @@ import json
 import re
 import sys
 
+import numpy as np
 import pytest
 
 from wordspot.errors import WordspotError, WordspotWarning
@@ -113,3 +114,32 @@ def test_report_folder_that_is_a_file(tmp_path):
     target.write_text("not a folder")
     with pytest.raises(WordspotError, match="report folder .*taken"):
         write_report(_result(), target)
+
+
+def _rgb(hex_colour):
+    return tuple(int(hex_colour[k:k + 2], 16) for k in (1, 3, 5))
+
+
+def test_confusion_picture_draws_with_the_reports_own_palette(tmp_path):
+    from matplotlib.colors import to_hex
+    from matplotlib.image import imread
+
+    from wordspot.evaluation import html_report
+    from wordspot.evaluation.report import (COUNT_COLOURS, INK_COLOUR, PAGE_COLOUR, WAVE_COLOUR,
+                                            _confusion_figure, _figure_class)
+
+    # The palette is the HTML page's: its style sheet paints the page, the text and the
+    # waveform with these very colours.
+    assert f"background: {PAGE_COLOUR}" in html_report._STYLE and f"color: {INK_COLOUR}" in html_report._STYLE
+    assert f"stroke: {WAVE_COLOUR}" in html_report._STYLE
+    fig = _confusion_figure(_result(), _figure_class("confusions.png"))
+    (image,) = fig.axes[0].images
+    cmap = image.get_cmap()
+    assert COUNT_COLOURS == (PAGE_COLOUR, WAVE_COLOUR)
+    assert to_hex(cmap(0.0)) == PAGE_COLOUR and to_hex(cmap(1.0)) == WAVE_COLOUR
+    # The count labels are in the palette's colours too.
+    assert {to_hex(t.get_color()) for t in fig.axes[0].texts} <= {PAGE_COLOUR, INK_COLOUR}
+    # And the written picture shows the largest count in the waveform blue.
+    files = write_report(_result(), tmp_path)
+    pixels = np.round(imread(files.confusions)[:, :, :3] * 255).astype(int)
+    assert (pixels == _rgb(WAVE_COLOUR)).all(axis=2).sum() > 100
