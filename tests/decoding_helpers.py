@@ -73,12 +73,12 @@ def chain_graph(model, words_prons):
     ``words_prons`` lists, per word, its alternative pronunciations (phone names).
     """
     u = model.units
-    pau, gap = u.index(PAUSE_UNIT), u.index(GAP_UNIT)
-    slots = [[[pau]]]
+    pause, gap = u.index(PAUSE_UNIT), u.index(GAP_UNIT)
+    slots = [[[pause]]]
     for prons in words_prons:
         slots.append([[u.index(x) for x in pron] for pron in prons])
         slots.append([[gap]])
-    slots.append([[pau]])
+    slots.append([[pause]])
     return compose(slots, u)
 
 

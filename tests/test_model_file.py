@@ -13,7 +13,7 @@ from wordspot.acoustic.gmm import Mixtures
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import parse_lexicon
 from wordspot.model import FORMAT_VERSION, AcousticModel, _checksum, load_model, save_model
-from wordspot.acoustic.units import default_unit_set
+from wordspot.acoustic.units import PAUSE_UNIT, default_unit_set
 from wordspot.util.logistic import Calibration
 
 
@@ -120,7 +120,7 @@ def _set_header(path, **fields):
 def test_wrong_version_is_refused(model, tmp_path):
     path = save_model(model, tmp_path / "m.model")
     _set_header(path, version=FORMAT_VERSION + 1)
-    with pytest.raises(ModelFileError, match=rf"format version {FORMAT_VERSION + 1}.*reads versions 1, {FORMAT_VERSION}"
+    with pytest.raises(ModelFileError, match=rf"format version {FORMAT_VERSION + 1}.*reads versions 1, 2, {FORMAT_VERSION}"
                                              r".*wordspot train"):
         load_model(path)
     _set_header(path, version=True)  # JSON true is not the number 1
@@ -128,13 +128,20 @@ def test_wrong_version_is_refused(model, tmp_path):
         load_model(path)
 
 
+def _old_unit_names(names):
+    """Unit names as format versions 1 and 2 wrote them: the pause unit was called ``pau``."""
+    return ["pau" if n == PAUSE_UNIT else n for n in names]
+
+
 def _as_version_1(path):
     """Rewrite a saved model in the layout of format version 1, which called each unit
-    state's mixture table ``unit_state_pdf``, with that version's checksum over the names."""
+    state's mixture table ``unit_state_pdf`` and the pause unit ``pau``, with that version's
+    checksum over the names."""
     def edit(arrays):
         header = json.loads(arrays.pop("header").tobytes().decode())
         arrays["unit_state_pdf"] = arrays.pop("unit_state_mixture")
         header["version"] = 1
+        header["units"] = _old_unit_names(header["units"])
         header["checksum"] = _checksum(arrays, header)
         arrays["header"] = np.frombuffer(json.dumps(header).encode(), dtype=np.uint8)
 
@@ -142,12 +149,72 @@ def _as_version_1(path):
 
 
 def test_version_1_file_still_loads(model, tmp_path):
-    assert FORMAT_VERSION == 2
+    assert FORMAT_VERSION == 3
     path = save_model(model, tmp_path / "m.model")
     _as_version_1(path)
     with np.load(path, allow_pickle=False) as data:
         assert "unit_state_pdf" in data.files and "unit_state_mixture" not in data.files
+        assert "pau" in json.loads(data["header"].tobytes().decode())["units"]
     assert_same(model, load_model(path))
+
+
+def _as_version_2(path, names=_old_unit_names):
+    """Rewrite a saved model as format version 2 wrote it: the pause unit called ``pau``,
+    with that version's checksum over the header as written."""
+    def edit(arrays):
+        header = json.loads(arrays.pop("header").tobytes().decode())
+        header["version"] = 2
+        header["units"] = names(header["units"])
+        header["checksum"] = _checksum(arrays, header)
+        arrays["header"] = np.frombuffer(json.dumps(header).encode(), dtype=np.uint8)
+
+    _rewrite(path, edit)
+
+
+def test_version_2_file_still_loads_with_the_pause_unit_renamed(model, tmp_path):
+    assert PAUSE_UNIT == "quiet"
+    path = save_model(model, tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        header = json.loads(data["header"].tobytes().decode())
+        assert header["version"] == 3 and "quiet" in header["units"] and "pau" not in header["units"]
+    _as_version_2(path)
+    with np.load(path, allow_pickle=False) as data:
+        old = json.loads(data["header"].tobytes().decode())["units"]
+    assert "pau" in old and PAUSE_UNIT not in old
+    back = load_model(path)
+    assert back.units.index(PAUSE_UNIT) == old.index("pau") and "pau" not in back.units
+    assert_same(model, back)
+    # Saved again it is a version-3 file under the new name, loading the same.
+    again = save_model(back, tmp_path / "again.model")
+    assert_same(model, load_model(again))
+
+
+def test_version_2_file_is_still_checked(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    _as_version_2(path)
+
+    def nudge(arrays):
+        arrays["unit_entry"][0, 0] += 1e-9
+
+    _rewrite(path, nudge)
+    with pytest.raises(ModelFileError, match=r"m\.model: checksum mismatch"):
+        load_model(path)
+    # The checksum covers the unit names as written: changing them alone is refused too.
+    path = save_model(model, tmp_path / "m.model")
+    _as_version_2(path)
+    _set_header(path, units=list(model.units.names))
+    with pytest.raises(ModelFileError, match=r"m\.model: checksum mismatch"):
+        load_model(path)
+
+
+def test_old_file_whose_phone_took_the_new_name_is_refused(model, tmp_path):
+    # A version-2 lexicon could spell a word with a unit called "quiet"; renaming "pau" would
+    # give two units one name, which is refused in one line instead of mixing them up.
+    path = save_model(model, tmp_path / "m.model")
+    _as_version_2(path, names=lambda names: ["quiet" if n == "AH" else "pau" if n == PAUSE_UNIT else n
+                                             for n in names])
+    with pytest.raises(ModelFileError, match=r"m\.model: unit name\(s\) 'quiet' occur more than once"):
+        load_model(path)
 
 
 def test_version_1_file_is_still_checked(model, tmp_path):
@@ -240,12 +307,12 @@ def _with_header(path, **fields):
 
 
 def test_file_without_calibration_key_loads_without_calibration(model, tmp_path):
-    # Files written before calibrations existed have no such key (format version 2 all the same).
+    # Files written before calibrations existed have no such key (same format version all the same).
     path = save_model(_calibrated(model), tmp_path / "m.model")
 
     def drop(arrays):
         h = json.loads(arrays.pop("header").tobytes().decode())
-        assert h["version"] == 2 and "calibration" in h
+        assert h["version"] == FORMAT_VERSION and "calibration" in h
         h.pop("calibration")
         h["checksum"] = _checksum(arrays, h)
         arrays["header"] = np.frombuffer(json.dumps(h).encode(), dtype=np.uint8)

@@ -21,7 +21,7 @@ def _phone(rng, freq, seconds):
 
 
 def make_corpus(folder: Path, rng, n_utterances: int = 24, max_words: int = 2):
-    """Write WAV files, ``train.csv`` and ``lexicon.txt`` into ``folder``.
+    """Write WAV files, ``train.csv`` and ``pronunciations.txt`` into ``folder``.
 
     Returns
     -------
@@ -45,7 +45,7 @@ def make_corpus(folder: Path, rng, n_utterances: int = 24, max_words: int = 2):
         rows.append(f"u{i:02d}.wav,{' '.join(words)},s{i % 3}")
     manifest = folder / "train.csv"
     manifest.write_text("\n".join(rows) + "\n")
-    lexicon = folder / "lexicon.txt"
+    lexicon = folder / "pronunciations.txt"
     lexicon.write_text("".join(f"{w} {' '.join(p)}\n" for w, p in WORDS.items()))
     return manifest, lexicon
 

@@ -14,6 +14,10 @@ optional confidence calibration (key ``calibration``, :meth:`Calibration.to_dict
 checksum over every array and the rest of the header. The file is written to a
 temporary name in the same folder, flushed to disk and renamed over the target, so a
 crash never leaves a half-written model.
+
+Older versions still load: version 1 named one array differently, and versions 1 and 2
+called the pause unit ``pau`` (now ``quiet``, :data:`wordspot.acoustic.units.PAUSE_UNIT`);
+both names are mapped on load, after the checksum is checked over the file as written.
 """
 
 from __future__ import annotations
@@ -40,11 +44,15 @@ from wordspot.util.logistic import Calibration
 __all__ = ["AcousticModel", "save_model", "load_model", "FORMAT_NAME", "FORMAT_VERSION"]
 
 FORMAT_NAME = "wordspot-model"
-FORMAT_VERSION = 2
+FORMAT_VERSION = 3
 # Version 1 named each unit state's mixture table ``unit_state_pdf``; version 2 calls it
 # ``unit_state_mixture``. Files of version 1 still load: the old name is mapped on load.
 _RENAMED_IN_VERSION_2 = {"unit_state_pdf": "unit_state_mixture"}
-_READABLE_VERSIONS = (1, FORMAT_VERSION)
+# Versions 1 and 2 named the pause unit ``pau``; version 3 calls it ``quiet``. Files of
+# versions 1 and 2 (the shipped starter models among them) still load: the unit list in
+# the header is mapped on load.
+_UNITS_RENAMED_IN_VERSION_3 = {"pau": "quiet"}
+_READABLE_VERSIONS = (1, 2, FORMAT_VERSION)
 
 _RETRAIN = "train a new one with `wordspot train`"
 
@@ -211,6 +219,8 @@ def load_model(path) -> AcousticModel:
         raise ModelFileError(f"{p}: checksum mismatch: the file was altered or damaged; {_RETRAIN}")
     arrays = {renamed.get(name, name): a for name, a in arrays.items()}
     try:
+        if version < 3:
+            header["units"] = [_UNITS_RENAMED_IN_VERSION_3.get(n, n) for n in header["units"]]
         return _build(p, header, arrays)
     except (KeyError, TypeError, ValueError, IndexError) as exc:
         if isinstance(exc, ModelFileError):

@@ -13,6 +13,8 @@ from wordspot.acoustic.hmm import forward_backward, graph_arrays, viterbi_path
 from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
 from wordspot.acoustic.units import (
     EXIT,
+    GAP_UNIT,
+    PAUSE_UNIT,
     UnitSet,
     default_unit_set,
     n_transition_params,
@@ -67,9 +69,9 @@ def test_compiled_kernels_equal_reference(rng, n_states, n_arcs, n_frames):
 def test_kernels_on_training_chain_equal_reference(rng):
     # A real chain: pause (skip and return arcs), two words, optional gap, pause.
     units = default_unit_set(["AH", "B", "K"])
-    ids = [units.index(n) for n in ("pau", "AH", "B", "K", "gap")]
-    pau, ah, b, k, gap = ids
-    graph = compose([[(pau,)], [(b, ah, k), (b, k)], [(gap,)], [(k, ah)], [(pau,)]], units)
+    ids = [units.index(n) for n in (PAUSE_UNIT, "AH", "B", "K", GAP_UNIT)]
+    pause, ah, b, k, gap = ids
+    graph = compose([[(pause,)], [(b, ah, k), (b, k)], [(gap,)], [(k, ah)], [(pause,)]], units)
     x = rng.normal(size=(40, graph.n_states)) * 2
     arrays = graph_arrays(graph)
     total, alpha = kernels.forward(x, *arrays)
@@ -87,7 +89,8 @@ def test_kernels_on_training_chain_equal_reference(rng):
 
 def test_no_path_gives_minus_inf_not_nan(rng):
     units = default_unit_set(["AH"])
-    graph = compose([[(units.index("pau"),)], [(units.index("AH"),)], [(units.index("pau"),)]], units)
+    pause = units.index(PAUSE_UNIT)
+    graph = compose([[(pause,)], [(units.index("AH"),)], [(pause,)]], units)
     x = rng.normal(size=(2, graph.n_states))  # shorter than min_frames
     assert graph.min_frames() > 2
     post = forward_backward(graph, x)
@@ -99,12 +102,12 @@ def test_no_path_gives_minus_inf_not_nan(rng):
 
 def test_refresh_graph_equals_compose():
     units = default_unit_set(["AH", "B"])
-    pau, ah, b, gap = (units.index(n) for n in ("pau", "AH", "B", "gap"))
-    slots = [[(pau,)], [(b, ah)], [(gap,)], [(ah,)], [(pau,)]]
+    pause, ah, b, gap = (units.index(n) for n in (PAUSE_UNIT, "AH", "B", GAP_UNIT))
+    slots = [[(pause,)], [(b, ah)], [(gap,)], [(ah,)], [(pause,)]]
     g0 = compose(slots, units)
     changed = units.with_flat_params(units.flat_params())
     changed.trans[ah, 0] = [0.3, 0.7, 0.0, 0.0]
-    changed.trans[units.index("pau"), 2] = [0.2, 0.0, 0.5, 0.3]
+    changed.trans[pause, 2] = [0.2, 0.0, 0.5, 0.3]
     changed.entry[gap] = [0.8, 0.0, 0.0, 0.2]
     want = compose(slots, changed)
     got = refresh_graph(g0, changed)

@@ -60,6 +60,23 @@ def test_validate_refuses_bad_rows(units):
         units.validate()
 
 
+def test_pause_unit_has_our_own_name(units):
+    # Our own plain name for the silence-and-background unit; the last two units are the
+    # pause and the short pause, after the phones.
+    assert PAUSE_UNIT == "quiet" and units.names[-2:] == ("quiet", GAP_UNIT)
+    assert "pau" not in units.names
+    # A phone list that already names the pause unit does not get it twice.
+    assert default_unit_set(["AH", PAUSE_UNIT, "T"]).names == ("AH", "T", PAUSE_UNIT, GAP_UNIT)
+
+
+def test_validate_refuses_a_name_used_twice(units):
+    from dataclasses import replace
+
+    twice = replace(units, names=units.names[:1] + units.names[:1] + units.names[2:])
+    with pytest.raises(ModelFileError, match=rf"unit name\(s\) '{units.names[0]}' occur more than once"):
+        twice.validate(source="m.model")
+
+
 def test_chain_is_row_stochastic_with_end(units):
     # For a graph with no alternatives, every state's outgoing mass (self + arcs + end)
     # is one: composition multiplies exits by entries that themselves sum to one.

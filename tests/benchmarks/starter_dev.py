@@ -39,7 +39,7 @@ def main(argv=None) -> int:
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
 
-    starter_lex = read_lexicon(REPO / "recordings" / "starter-text" / "lexicon.txt")
+    starter_lex = read_lexicon(REPO / "recordings" / "starter-text" / "pronunciations.txt")
     dev = [u for u in read_manifest(REPO / "recordings" / "starter" / "dev.csv") if len(u.words) == 1]
     dev = dev[:: max(1, len(dev) // args.most)][: args.most]
     dev_lex = starter_lex.restricted_to(sorted({u.words[0] for u in dev}))

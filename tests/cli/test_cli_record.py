@@ -23,12 +23,39 @@ def test_record_serves_the_page_and_stops_cleanly(tmp_path):
         with urllib.request.urlopen(match.group(0) + "api/state", timeout=30) as answer:
             state = json.load(answer)
         assert state["words"] == [] and state["takes_per_word"] == 2
-        assert state["lexicon"].endswith("lexicon.txt") and folder.is_dir()
+        assert state["lexicon"].endswith("pronunciations.txt") and folder.is_dir()
+        assert state["notes"] == []
     finally:
         proc.send_signal(signal.SIGINT)
         _, err = proc.communicate(timeout=30)
     assert proc.returncode == 0
     assert "stopped" in err and "Traceback" not in err
+
+
+def test_record_reads_an_old_folder_lexicon_txt_and_says_so_once(tmp_path):
+    # A takes folder from before the file was called pronunciations.txt.
+    folder = tmp_path / "old takes"
+    folder.mkdir()
+    (folder / "lexicon.txt").write_text("back B AE K\noven AH V AH N\n", encoding="utf-8")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "wordspot.cli", "record", str(folder), "--port", "0"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )
+    try:
+        line = proc.stdout.readline()
+        match = re.search(r"http://127\.0\.0\.1:(\d+)/", line)
+        assert match, line + proc.stderr.read()
+        with urllib.request.urlopen(match.group(0) + "api/state", timeout=30) as answer:
+            state = json.load(answer)
+        assert [w["word"] for w in state["words"]] == ["back", "oven"]
+        assert state["lexicon"].endswith("lexicon.txt")
+    finally:
+        proc.send_signal(signal.SIGINT)
+        _, err = proc.communicate(timeout=30)
+    assert proc.returncode == 0 and "Traceback" not in err
+    notes = [ln for ln in err.splitlines() if "lexicon.txt" in ln]
+    assert len(notes) == 1 and notes[0].startswith("wordspot: note: ") and "pronunciations.txt" in notes[0]
+    assert not (folder / "pronunciations.txt").exists()
 
 
 @pytest.mark.parametrize(("args", "message"), [(["--takes", "0"], "--takes must be 1 or more"),

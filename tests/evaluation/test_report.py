@@ -2,8 +2,10 @@
 
 import csv
 import json
+import re
 import sys
 
+import numpy as np
 import pytest
 
 from wordspot.errors import WordspotError, WordspotWarning
@@ -61,6 +63,12 @@ def test_tables_show_the_rows():
     assert len(short.splitlines()) == 2 + 2 + 1  # header, rule, two rows, the "more words" note
     assert f"({len(r.word_table) - 2} more words" in short
     speakers = render_speaker_table(r)
+    # Column names spelt out, the same words as the HTML report's speaker table.
+    from wordspot.evaluation.html_report import _speaker_table
+
+    html_names = re.findall(r"<th>([^<]*)</th>", _speaker_table(r))
+    assert [c.strip() for c in re.split(r" {2,}", speakers.splitlines()[0])] == html_names
+    assert html_names[3:6] == ["substituted", "deleted", "inserted"]
     ann = next(line for line in speakers.splitlines() if line.startswith("ann"))
     bo = next(line for line in speakers.splitlines() if line.startswith("bo"))
     assert ann.split() == ["ann", "2", "4", "0", "0", "1", "25.00%", "1"]
@@ -106,3 +114,32 @@ def test_report_folder_that_is_a_file(tmp_path):
     target.write_text("not a folder")
     with pytest.raises(WordspotError, match="report folder .*taken"):
         write_report(_result(), target)
+
+
+def _rgb(hex_colour):
+    return tuple(int(hex_colour[k:k + 2], 16) for k in (1, 3, 5))
+
+
+def test_confusion_picture_draws_with_the_reports_own_palette(tmp_path):
+    from matplotlib.colors import to_hex
+    from matplotlib.image import imread
+
+    from wordspot.evaluation import html_report
+    from wordspot.evaluation.report import (COUNT_COLOURS, INK_COLOUR, PAGE_COLOUR, WAVE_COLOUR,
+                                            _confusion_figure, _figure_class)
+
+    # The palette is the HTML page's: its style sheet paints the page, the text and the
+    # waveform with these very colours.
+    assert f"background: {PAGE_COLOUR}" in html_report._STYLE and f"color: {INK_COLOUR}" in html_report._STYLE
+    assert f"stroke: {WAVE_COLOUR}" in html_report._STYLE
+    fig = _confusion_figure(_result(), _figure_class("confusions.png"))
+    (image,) = fig.axes[0].images
+    cmap = image.get_cmap()
+    assert COUNT_COLOURS == (PAGE_COLOUR, WAVE_COLOUR)
+    assert to_hex(cmap(0.0)) == PAGE_COLOUR and to_hex(cmap(1.0)) == WAVE_COLOUR
+    # The count labels are in the palette's colours too.
+    assert {to_hex(t.get_color()) for t in fig.axes[0].texts} <= {PAGE_COLOUR, INK_COLOUR}
+    # And the written picture shows the largest count in the waveform blue.
+    files = write_report(_result(), tmp_path)
+    pixels = np.round(imread(files.confusions)[:, :, :3] * 255).astype(int)
+    assert (pixels == _rgb(WAVE_COLOUR)).all(axis=2).sum() > 100

@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 
 from tone_corpus import WORDS, make_corpus
+from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT
 from wordspot.corpus import read_manifest
 from wordspot.errors import TrainingError
 from wordspot.language.lexicon import Lexicon, read_lexicon
@@ -140,7 +141,7 @@ def test_adaptation_raises_likelihood_and_keeps_the_rest(tone_models, tmp_path):
     touched = {p for w in {w for u in only_key for w in u.words} for pron in lex.pronunciations(w) for p in pron}
     u = model.units
     for k, name in enumerate(u.names):
-        if name in touched or name in ("pau", "gap"):
+        if name in touched or name in (PAUSE_UNIT, GAP_UNIT):
             continue
         pdfs = u.state_mixture[k, : u.n_states[k]]
         np.testing.assert_array_equal(adapted.mixtures.means[pdfs], model.mixtures.means[pdfs])

@@ -80,10 +80,10 @@ def test_items_are_pause_only_and_the_same_for_any_number_of_jobs(tiny):
         assert a.path == b.path and a.background == b.background
     for a, b in zip(one, clean):  # the recordings' items come first, untouched
         np.testing.assert_array_equal(a.frames, b.frames)
-    pau = units.index(PAUSE_UNIT)
+    pause = units.index(PAUSE_UNIT)
     for it in one[len(clean):]:
         assert it.background and it.words == ()
-        assert set(it.graph.unit.tolist()) == {pau}  # one pause unit from end to end
+        assert set(it.graph.unit.tolist()) == {pause}  # one pause unit from end to end
         # 1-3 s at the model's frame rate (100 frames a second)
         assert 95 <= it.frames.shape[0] <= 305 and it.frames.shape[1] == clean[0].frames.shape[1]
 
@@ -120,6 +120,6 @@ def test_adaptation_statistics_see_them_in_the_pause(tiny):
     for name in s0.frames_per_unit:
         if name != PAUSE_UNIT:
             assert s1.frames_per_unit[name] == pytest.approx(s0.frames_per_unit[name], rel=1e-9, abs=1e-9)
-    pau = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
-    pau = pau[pau >= 0]
-    assert not np.array_equal(more.mixtures.means[pau], plain.mixtures.means[pau])
+    pause_mixtures = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
+    pause_mixtures = pause_mixtures[pause_mixtures >= 0]
+    assert not np.array_equal(more.mixtures.means[pause_mixtures], plain.mixtures.means[pause_mixtures])

@@ -26,7 +26,7 @@ SOURCE = RECORDINGS / "audio" / "train" / "espeak-en-gb-f3" / "back-t1.flac"
 
 @pytest.fixture
 def page_server(tmp_path):
-    lexicon = tmp_path / "words.txt"
+    lexicon = tmp_path / "bakery-words.txt"
     lexicon.write_text("oven AH V AH N\nstart S T AA R T\n", encoding="utf-8")
     app = RecordingApp(RecordingSettings(folder=tmp_path / "takes", lexicon=lexicon, takes=2, speaker="baker-a"))
     server = make_server(app)

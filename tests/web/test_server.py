@@ -20,7 +20,7 @@ FLAC = RECORDINGS / "audio" / "train" / "espeak-en-gb-f3" / "back-t1.flac"
 
 @pytest.fixture
 def served(tmp_path):
-    lexicon = tmp_path / "words.txt"
+    lexicon = tmp_path / "bakery-words.txt"
     lexicon.write_text("back B AE K\noven AH V AH N\n", encoding="utf-8")
     started = []
 
@@ -123,7 +123,7 @@ def test_concurrent_saves_over_http(served):
     assert all((app.takes.folder / r["path"]).is_file() for r in rows)
 
 
-@pytest.mark.parametrize("path", ["/takes/../words.txt", "/takes/%2e%2e/words.txt", "/takes/audio/../../words.txt",
+@pytest.mark.parametrize("path", ["/takes/../bakery-words.txt", "/takes/%2e%2e/bakery-words.txt", "/takes/audio/../../bakery-words.txt",
                                   "/takes//etc/passwd"])
 def test_paths_outside_the_folder_are_refused(served, path):
     _, port = served()
@@ -208,13 +208,69 @@ def test_words_are_suggested_and_added(served, tmp_path):
     status, added = request(port, "POST", "/api/word/add",
                             json.dumps({"word": "knead", "phones": "n iy d"}).encode())
     assert status == 200 and added["pronunciations"] == ["N IY D"]
-    assert (tmp_path / "words.txt").read_text(encoding="utf-8").splitlines()[-1].split() == ["knead", "N", "IY", "D"]
+    assert (tmp_path / "bakery-words.txt").read_text(encoding="utf-8").splitlines()[-1].split() == ["knead", "N", "IY", "D"]
     status, state = request(port, "GET", "/api/state")
     assert "knead" in [w["word"] for w in state["words"]]
     status, answer = request(port, "POST", "/api/word/add", json.dumps({"word": "proof", "phones": "P R XX F"}).encode())
     assert status == 400 and "not a known unit" in answer["error"]
     status, answer = request(port, "POST", "/api/word", b"not json")
     assert status == 400 and "not JSON" in answer["error"]
+
+
+def _add(port, word, phones):
+    return request(port, "POST", "/api/word/add", json.dumps({"word": word, "phones": phones}).encode())
+
+
+def test_a_new_folder_keeps_its_words_in_pronunciations_txt(served, tmp_path):
+    app, port = served(lexicon=None)
+    folder = tmp_path / "takes"
+    status, state = request(port, "GET", "/api/state")
+    assert status == 200 and state["words"] == [] and state["notes"] == []
+    assert state["lexicon"] == str(folder / "pronunciations.txt")
+    assert "pronunciations.txt" in state["train_command"]
+    status, _ = _add(port, "knead", "N IY D")
+    assert status == 200
+    assert (folder / "pronunciations.txt").read_text(encoding="utf-8").split() == ["knead", "N", "IY", "D"]
+    assert not (folder / "lexicon.txt").exists()
+
+
+def test_a_folder_with_the_old_lexicon_txt_keeps_working(served, tmp_path):
+    # Takes folders made before the file was called pronunciations.txt hold lexicon.txt.
+    folder = tmp_path / "takes"
+    folder.mkdir()
+    old = folder / "lexicon.txt"
+    old.write_text("# our bakery\nback B AE K\noven AH V AH N\n", encoding="utf-8")
+    app, port = served(lexicon=None)
+    status, state = request(port, "GET", "/api/state")
+    assert status == 200 and [w["word"] for w in state["words"]] == ["back", "oven"]
+    assert state["lexicon"] == str(old) and "lexicon.txt" in state["train_command"]
+    about = [n for n in state["notes"] if "lexicon.txt" in n]
+    assert len(about) == 1 and "pronunciations.txt" in about[0] and "before" in about[0]
+    # Words added on the page go into the old file, after what it held; no second file appears.
+    status, _ = _add(port, "knead", "N IY D")
+    assert status == 200
+    text = old.read_text(encoding="utf-8")
+    assert text.startswith("# our bakery\nback B AE K\noven AH V AH N\n")
+    assert text.splitlines()[-1].split() == ["knead", "N", "IY", "D"] and len(text.splitlines()) == 4
+    assert not (folder / "pronunciations.txt").exists()
+    # Opened again (the page restarted): the same file, the same single note.
+    app2, port2 = served(lexicon=None)
+    status, state = request(port2, "GET", "/api/state")
+    assert [w["word"] for w in state["words"]] == ["back", "knead", "oven"]  # the page lists them sorted
+    assert len([n for n in state["notes"] if "lexicon.txt" in n]) == 1
+
+
+def test_with_both_names_the_new_file_is_read_and_the_old_one_named(served, tmp_path):
+    folder = tmp_path / "takes"
+    folder.mkdir()
+    (folder / "lexicon.txt").write_text("back B AE K\n", encoding="utf-8")
+    (folder / "pronunciations.txt").write_text("oven AH V AH N\n", encoding="utf-8")
+    app, port = served(lexicon=None)
+    status, state = request(port, "GET", "/api/state")
+    assert [w["word"] for w in state["words"]] == ["oven"]
+    about = [n for n in state["notes"] if "lexicon.txt" in n]
+    assert len(about) == 1 and "not read" in about[0]
+    assert (folder / "lexicon.txt").read_text(encoding="utf-8") == "back B AE K\n"
 
 
 def test_a_folder_left_inconsistent_is_repaired_on_start(served, rng):

@@ -2,7 +2,7 @@
 
 A *unit* is a sub-word sound model: one per phone of the lexicon, plus two of our own:
 
-* ``pau`` (:data:`PAUSE_UNIT`): silence and background before, between and after words.
+* ``quiet`` (:data:`PAUSE_UNIT`): silence and background before, between and after words.
   Three states; the first may skip to the last and the last may return to the first,
   so any length of silence fits.
 * ``gap`` (:data:`GAP_UNIT`): an optional one-state short pause between words, which
@@ -36,7 +36,7 @@ __all__ = [
     "entry_param_id",
 ]
 
-PAUSE_UNIT = "pau"
+PAUSE_UNIT = "quiet"
 GAP_UNIT = "gap"
 MAX_STATES = 3
 EXIT = MAX_STATES  # column of ``trans`` and element of ``entry`` meaning "leave / skip"
@@ -147,6 +147,9 @@ class UnitSet:
     def validate(self, source: str = "model") -> None:
         """Raise ModelFileError unless shapes agree and every row sums to one."""
         u = self.n_units
+        if len(set(self.names)) != u:
+            twice = sorted({n for n in self.names if self.names.count(n) > 1})
+            raise ModelFileError(f"{source}: unit name(s) {', '.join(map(repr, twice))} occur more than once")
         if self.n_states.shape != (u,) or self.state_mixture.shape != (u, MAX_STATES):
             raise ModelFileError(f"{source}: unit tables have inconsistent shapes")
         if self.trans.shape != (u, MAX_STATES, _ROW) or self.entry.shape != (u, _ROW):
@@ -176,13 +179,13 @@ def default_unit_set(phones) -> UnitSet:
     Parameters
     ----------
     phones : iterable of str
-        Phone units (for example every unit the lexicon uses). ``pau`` and ``gap`` are
+        Phone units (for example every unit the lexicon uses). ``quiet`` and ``gap`` are
         appended if absent.
 
     Returns
     -------
     UnitSet
-        Phones get three left-to-right states with their own mixtures; ``pau`` gets three
+        Phones get three left-to-right states with their own mixtures; ``quiet`` gets three
         states that can skip and return; ``gap`` gets one skippable state tied to the
         middle pause state.
     """

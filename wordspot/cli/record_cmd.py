@@ -18,7 +18,8 @@ Open the address it prints in a browser on this computer (the server answers onl
 127.0.0.1). Press Space to record and to stop, Enter to keep a take, Backspace to record
 it again, the Up and Down arrows for another word. Each take is trimmed of its quiet ends
 and saved as a 16-bit WAV file at the model rate in FOLDER/audio/SPEAKER/, and listed in
-FOLDER/train.csv (or FOLDER/held-out.csv when kept for testing). When every word has
+FOLDER/train.csv (or FOLDER/held-out.csv when kept for testing). Words typed on the page
+go into FOLDER/pronunciations.txt unless --lexicon names a file. When every word has
 enough takes the page trains a model (FOLDER/words.model) and lets you try it.
 Stop the server with Ctrl+C; nothing half-written is left behind.
 """
@@ -37,7 +38,8 @@ def add_parser(sub, **options):
     p.add_argument("folder", metavar="FOLDER", help="takes folder (created if missing)")
     p.add_argument("--lexicon", metavar="LEX",
                    help="lexicon file whose words to record; words added on the page are appended to it "
-                   "(default FOLDER/lexicon.txt)")
+                   "(default FOLDER/pronunciations.txt, or FOLDER/lexicon.txt, its earlier name, when only "
+                   "that one is there)")
     p.add_argument("--takes", type=int, default=3, metavar="N", help="takes of every word per speaker (default 3)")
     p.add_argument("--speaker", default="baker-a", metavar="NAME", help="speaker name to start with (default baker-a)")
     p.add_argument("--port", type=int, default=8765, metavar="PORT",
@@ -60,7 +62,7 @@ def _run(args) -> int:
     if args.sample_rate not in (8000, 16000):
         raise WordspotError(f"--sample-rate must be 16000 or 8000, got {args.sample_rate}")
     folder = Path(args.folder)
-    lexicon = Path(args.lexicon) if args.lexicon else folder / "lexicon.txt"
+    lexicon = Path(args.lexicon) if args.lexicon else None  # None: the folder's own file
     app = RecordingApp(RecordingSettings(folder=folder, lexicon=lexicon, takes=args.takes,
                                          speaker=args.speaker, sample_rate=args.sample_rate,
                                          from_scratch=args.from_scratch))

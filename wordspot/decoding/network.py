@@ -2,7 +2,7 @@
 
 The network is a set of *items*, each a small left-to-right piece of states:
 
-* item 0: the entry pause (the ``pau`` unit), where every utterance begins;
+* item 0: the entry pause (the ``quiet`` unit), where every utterance begins;
 * item 1: the exit pause, where every utterance ends;
 * item ``2 + p``: pronunciation ``p`` of a word: its units' states followed by a
   skippable copy of the short pause (the ``gap`` unit) so that an optional pause after
@@ -199,7 +199,7 @@ def compile_network(
     Parameters
     ----------
     units : UnitSet
-        Must hold the pause unit ``pau``; the ``gap`` unit is used after words if present.
+        Must hold the pause unit ``quiet``; the ``gap`` unit is used after words if present.
     n_mixtures : int
         Number of mixtures in the model (for checking the tying table).
     lexicon : Lexicon

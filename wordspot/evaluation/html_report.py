@@ -15,6 +15,7 @@ import html
 import os
 import shutil
 import warnings
+from string import Template
 from pathlib import Path
 from urllib.parse import quote
 
@@ -22,6 +23,7 @@ import numpy as np
 
 from wordspot.errors import WordspotError
 from wordspot.evaluation.reliability import expected_calibration_error, reliability_of
+from wordspot.evaluation.report import HEADING_COLOUR, INK_COLOUR, PAGE_COLOUR, WAVE_COLOUR
 from wordspot.evaluation.report import format_percent as _pct
 from wordspot.evaluation.scoring import DELETION, HIT, INSERTION, SUBSTITUTION
 
@@ -132,11 +134,12 @@ def _speaker_table(result) -> str:
             '</tr></thead><tbody>' + "".join(rows) + "</tbody></table>")
 
 
-_STYLE = """
-body { font: 16px/1.45 system-ui, sans-serif; color: #111; background: #fff; margin: 1rem 1.5rem; }
+# The colours shared with the confusion picture come from the report's palette.
+_STYLE = Template("""
+body { font: 16px/1.45 system-ui, sans-serif; color: $ink; background: $page; margin: 1rem 1.5rem; }
 h1 { font-size: 1.5rem; } h2 { font-size: 1.2rem; margin-top: 1.5rem; }
 table { border-collapse: collapse; } th, td { border: 1px solid #999; padding: 0.25rem 0.5rem; text-align: left; vertical-align: top; }
-th { background: #eef1f5; } dl.summary { display: grid; grid-template-columns: max-content auto; gap: 0.15rem 1rem; }
+th { background: $heading; } dl.summary { display: grid; grid-template-columns: max-content auto; gap: 0.15rem 1rem; }
 dl.summary dt { font-weight: 600; } dl.summary dd { margin: 0; }
 .aligned { display: flex; flex-wrap: wrap; gap: 0.3rem; min-width: 17rem; }
 #errors audio { width: 14rem; }
@@ -148,14 +151,14 @@ dl.summary dt { font-weight: 600; } dl.summary dd { margin: 0; }
 .pair.deletion { border-color: #a00000; background: #fde8e8; }
 .pair.insertion { border-color: #4a148c; background: #f1e6fb; }
 svg.wave { background: #fafafa; border: 1px solid #bbb; }
-svg.wave .env { stroke: #0b4f8a; stroke-width: 1; fill: none; }
+svg.wave .env { stroke: $wave; stroke-width: 1; fill: none; }
 svg.wave .word { fill: #f5a400; fill-opacity: 0.25; stroke: #8a5a00; }
-svg.wave text { font: 11px sans-serif; fill: #111; }
+svg.wave text { font: 11px sans-serif; fill: $ink; }
 .controls { display: flex; gap: 1rem; flex-wrap: wrap; align-items: center; margin: 0.5rem 0; }
 input, select, button { font: inherit; min-height: 40px; padding: 0.2rem 0.5rem; }
 th button { border: 0; background: none; font-weight: 700; cursor: pointer; padding: 0; min-height: 0; }
 .note { color: #444; }
-"""
+""").substitute(page=PAGE_COLOUR, ink=INK_COLOUR, heading=HEADING_COLOUR, wave=WAVE_COLOUR)
 
 _SCRIPT = """
 (function () {

@@ -22,6 +22,11 @@ from wordspot.evaluation.scoring import EvaluationResult, WordRow, confusion_mat
 __all__ = [
     "DELETED_LABEL",
     "INSERTED_LABEL",
+    "PAGE_COLOUR",
+    "INK_COLOUR",
+    "HEADING_COLOUR",
+    "WAVE_COLOUR",
+    "COUNT_COLOURS",
     "ReportFiles",
     "format_percent",
     "render_summary",
@@ -36,6 +41,19 @@ __all__ = [
 DELETED_LABEL = "(deleted)"
 #: How an insertion (nothing said) is shown in the picture.
 INSERTED_LABEL = "(inserted)"
+
+# The reports' own colours. The HTML page's style sheet is built from them
+# (:mod:`wordspot.evaluation.html_report`) and the confusion picture draws with them.
+#: Page background.
+PAGE_COLOUR = "#ffffff"
+#: Text.
+INK_COLOUR = "#111111"
+#: Table headings.
+HEADING_COLOUR = "#eef1f5"
+#: The waveform's outline.
+WAVE_COLOUR = "#0b4f8a"
+#: The confusion picture's colours from no count to the largest: page to waveform blue.
+COUNT_COLOURS = (PAGE_COLOUR, WAVE_COLOUR)
 
 
 def format_percent(x: float | None) -> str:
@@ -146,7 +164,8 @@ def render_speaker_table(result: EvaluationResult) -> str:
         ]
         for r in result.speaker_table
     ]
-    header = ["speaker", "utterances", "words", "subst", "del", "ins", "WER", "utts with errors"]
+    header = ["speaker", "utterances", "words", "substituted", "deleted", "inserted", "WER",
+              "utterances with errors"]
     return _columns(header, body, right=set(range(1, 8)))
 
 
@@ -261,13 +280,24 @@ def _draw_confusions(result: EvaluationResult, path: Path) -> bool:
     make = _figure_class(path.name)
     if make is None:
         return False
+    fig = _confusion_figure(result, make)
+    fig.savefig(path)
+    return True
+
+
+def _confusion_figure(result: EvaluationResult, make):
+    """The confusion picture as a figure (``make`` from :func:`_figure_class`), coloured
+    from :data:`COUNT_COLOURS`."""
+    from matplotlib.colors import LinearSegmentedColormap
+
+    counts_map = LinearSegmentedColormap.from_list("wordspot-counts", COUNT_COLOURS)
     cm = confusion_matrix(result)
     rows = list(cm.words) + [INSERTED_LABEL]
     cols = list(cm.words) + [DELETED_LABEL]
     side = min(max(4.0, 0.45 * len(rows) + 2.5), 24.0)
     fig = make(figsize=(side, side), dpi=100)
     ax = fig.add_subplot()
-    image = ax.imshow(cm.counts, cmap="Blues", interpolation="nearest")
+    image = ax.imshow(cm.counts, cmap=counts_map, interpolation="nearest")
     fig.colorbar(image, ax=ax, fraction=0.046, pad=0.04, label="count")
     ax.set_xticks(range(len(cols)), labels=cols, rotation=60, ha="right")
     ax.set_yticks(range(len(rows)), labels=rows)
@@ -280,11 +310,10 @@ def _draw_confusions(result: EvaluationResult, path: Path) -> bool:
             for c in range(cm.counts.shape[1]):
                 n = int(cm.counts[r, c])
                 if n:
-                    colour = "white" if n > 0.6 * top else "black"
+                    colour = PAGE_COLOUR if n > 0.6 * top else INK_COLOUR
                     ax.text(c, r, str(n), ha="center", va="center", fontsize=8, color=colour)
     fig.tight_layout()
-    fig.savefig(path)
-    return True
+    return fig
 
 
 def write_report(result: EvaluationResult, folder, *, picture: bool = True) -> ReportFiles:

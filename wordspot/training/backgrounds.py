@@ -3,7 +3,7 @@
 The pause unit learns from the ends of the user's recordings, mostly one quiet room. Extra
 items of a background alone (white or pink noise, mains hum, dithered digital silence,
 fan noise; see :func:`wordspot.audio.augment.background`), 1-3 s long at -70 to -30 dBFS
-over a faint room-tone floor, each with an empty transcript (one ``pau`` chain, as a "no
+over a faint room-tone floor, each with an empty transcript (one ``quiet`` chain, as a "no
 command here" recording), teach it the rest. Babble can be asked for (``kinds``) but is not
 among the defaults: a pause that has learnt speech takes speech in babble for pause (on the
 dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands

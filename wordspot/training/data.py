@@ -3,7 +3,7 @@
 Features are computed once, up front (in parallel over processes when ``jobs > 1``), and
 kept in memory for all passes. Each utterance's chain is
 
-    pau, word 1 (all its pronunciations as alternatives), [gap], word 2, ..., pau
+    quiet, word 1 (all its pronunciations as alternatives), [gap], word 2, ..., quiet
 
 composed into one :class:`~wordspot.acoustic.graph.StateGraph`. Files that fail to load and
 utterances too short for their chain are skipped with a :class:`TrainingWarning` naming
@@ -42,16 +42,16 @@ def chain_slots(words, lexicon, units: UnitSet) -> list:
 
     An empty transcript (a recording with no command in it) is one pause unit throughout.
     """
-    pau = units.index(PAUSE_UNIT)
+    pause = units.index(PAUSE_UNIT)
     gap = units.index(GAP_UNIT)
     if not words:
-        return [[(pau,)]]
-    slots: list = [[(pau,)]]
+        return [[(pause,)]]
+    slots: list = [[(pause,)]]
     for k, word in enumerate(words):
         if k > 0:
             slots.append([(gap,)])
         slots.append([tuple(units.index(u) for u in pron) for pron in lexicon.pronunciations(word)])
-    slots.append([(pau,)])
+    slots.append([(pause,)])
     return slots
 
 

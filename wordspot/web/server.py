@@ -30,7 +30,7 @@ import mimetypes
 import os
 import sys
 import threading
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from http import HTTPStatus
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 from pathlib import Path
@@ -41,7 +41,7 @@ import soundfile
 from wordspot.audio.decode import decode_audio_bytes
 from wordspot.audio.trim import check_take
 from wordspot.errors import WordspotError
-from wordspot.web.takes import HELD_OUT_MANIFEST, TRAIN_MANIFEST, TakeFolder, speaker_slug
+from wordspot.web.takes import HELD_OUT_MANIFEST, TRAIN_MANIFEST, TakeFolder, folder_pronunciations, speaker_slug
 from wordspot.web.training_job import TrainingJob, train_command
 from wordspot.web.words import WordList
 
@@ -64,8 +64,9 @@ class RecordingSettings:
     ----------
     folder : Path
         The takes folder.
-    lexicon : Path
-        The lexicon file (``FOLDER/lexicon.txt`` unless given).
+    lexicon : Path or None
+        The lexicon file; None: the takes folder's own
+        (:func:`wordspot.web.takes.folder_pronunciations`).
     takes : int
         Takes of every word each speaker is asked for.
     speaker : str
@@ -79,7 +80,7 @@ class RecordingSettings:
     """
 
     folder: Path
-    lexicon: Path
+    lexicon: Path | None = None
     takes: int = 3
     speaker: str = "baker-a"
     sample_rate: int = 16000
@@ -107,11 +108,15 @@ class RecordingApp:
     """Everything the page works on: the folder, the word list, training, the model."""
 
     def __init__(self, settings: RecordingSettings):
+        found = None
+        if settings.lexicon is None:
+            lexicon, found = folder_pronunciations(settings.folder)
+            settings = replace(settings, lexicon=lexicon)
         self.settings = settings
         self.takes = TakeFolder(settings.folder, sample_rate=settings.sample_rate)
         self.words = WordList(settings.lexicon)
         self.training = TrainingJob()
-        self.notes = self.takes.reconcile().notes()
+        self.notes = ([found] if found else []) + self.takes.reconcile().notes()
         self._model_lock = threading.Lock()
         self._recognizer = None
         self._model_stamp = None

@@ -2,6 +2,8 @@
 
 Layout (every path in a manifest is relative to the folder)::
 
+    FOLDER/pronunciations.txt                          the words and their phones (a lexicon
+                                                       file) unless ``--lexicon`` names another
     FOLDER/train.csv        path,transcript,speaker   takes to train on
     FOLDER/held-out.csv     path,transcript,speaker   takes kept for testing
     FOLDER/audio/SPEAKER/WORD-N.wav                    16-bit PCM at the model rate
@@ -12,6 +14,9 @@ manifest with its new row. A crash between the two leaves a WAV file that no man
 lists; :meth:`TakeFolder.reconcile` (run when the folder is opened) moves such files into
 ``set-aside/`` and reports manifest rows whose file is missing, so the manifests never
 name a file that is not there because of us, and nothing recorded is lost.
+
+Takes folders made before the pronunciation file got its present name hold it as
+``lexicon.txt``; :func:`folder_pronunciations` still finds it there and says so once.
 """
 
 from __future__ import annotations
@@ -41,6 +46,9 @@ except ImportError:  # pragma: no cover - Windows
 __all__ = [
     "TRAIN_MANIFEST",
     "HELD_OUT_MANIFEST",
+    "PRONUNCIATIONS_FILE",
+    "OLD_PRONUNCIATIONS_FILE",
+    "folder_pronunciations",
     "AUDIO_FOLDER",
     "SET_ASIDE_FOLDER",
     "ManifestRow",
@@ -54,6 +62,10 @@ TRAIN_MANIFEST = "train.csv"
 HELD_OUT_MANIFEST = "held-out.csv"
 AUDIO_FOLDER = "audio"
 SET_ASIDE_FOLDER = "set-aside"
+#: The takes folder's lexicon file: the words to record and their phones.
+PRONUNCIATIONS_FILE = "pronunciations.txt"
+#: Its earlier name; a folder that has only this file keeps using it.
+OLD_PRONUNCIATIONS_FILE = "lexicon.txt"
 _LOCK_FILE = ".wordspot-takes.lock"
 _HEADER = ("path", "transcript", "speaker")
 _SLUG_RE = re.compile(r"[^a-z0-9_-]+")
@@ -65,6 +77,25 @@ def speaker_slug(name: str) -> str:
     if not slug:
         raise WordspotError(f"speaker name {name!r} has no letters or digits; type a name such as baker-a")
     return slug[:40]
+
+
+def folder_pronunciations(folder) -> tuple[Path, str | None]:
+    """The takes folder's pronunciation file, and a note when it goes by its earlier name.
+
+    Returns ``FOLDER/pronunciations.txt`` (which need not exist yet), or
+    ``FOLDER/lexicon.txt`` when only that older file is there: it is read and added to
+    where it is, never moved or copied, so nothing in it is lost and commands that name it
+    keep working. The note (None when there is nothing to say) is one plain sentence.
+    """
+    folder = Path(folder)
+    new, old = folder / PRONUNCIATIONS_FILE, folder / OLD_PRONUNCIATIONS_FILE
+    if not old.is_file():
+        return new, None
+    if new.exists():
+        return new, (f"{old} is not read: this folder also has {new}, which is; move any words you "
+                     f"still need from {OLD_PRONUNCIATIONS_FILE} into it")
+    return old, (f"the words and phones are read from and added to {old}, the name this file had before; "
+                 f"new takes folders call it {PRONUNCIATIONS_FILE}")
 
 
 @dataclass(frozen=True)

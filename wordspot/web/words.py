@@ -33,7 +33,8 @@ class WordList:
     Parameters
     ----------
     path : str or path
-        The lexicon file (``--lexicon``, or ``lexicon.txt`` in the takes folder).
+        The lexicon file (``--lexicon``, or the takes folder's ``pronunciations.txt``,
+        see :func:`wordspot.web.takes.folder_pronunciations`).
     """
 
     def __init__(self, path):
