@@ -112,6 +112,14 @@ def test_changes_need_the_session_key_even_without_an_origin(served, tmp_path):
     assert status == 200 and "knead" in word_list(port)
 
 
+def test_the_page_cannot_be_shown_inside_another_page(served):
+    # a page framed by another could be steered with the person's own clicks and keys
+    _, port = served()
+    received, _ = raw_exchange(port, http_request("GET", "/", port, {"Connection": "close"}))
+    head = received.split(b"\r\n\r\n", 1)[0].lower()
+    assert b"content-security-policy: frame-ancestors 'none'" in head and b"x-frame-options: deny" in head
+
+
 def test_every_server_has_its_own_random_key_in_its_page(served):
     _, port_a = served()
     _, port_b = served()
