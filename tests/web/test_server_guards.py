@@ -259,7 +259,8 @@ def test_phones_must_all_be_phones(served, tmp_path):
     _, port = served()
     lexicon_before = (tmp_path / "words.txt").read_bytes()
     for phones, bad in (("AH # x", "'#'"), ("N IY D;", "'D;'"), ("N IY D 9", "'9'")):
-        status, answer = request(port, "POST", "/api/word/add", json.dumps({"word": "knead", "phones": phones}).encode())
+        body = json.dumps({"word": "knead", "phones": phones}).encode()
+        status, answer = request(port, "POST", "/api/word/add", body)
         assert status == 400 and bad in answer["error"], answer
     assert (tmp_path / "words.txt").read_bytes() == lexicon_before
 
