@@ -59,9 +59,12 @@ def test_record_reads_an_old_folder_lexicon_txt_and_says_so_once(tmp_path):
 
 
 @pytest.mark.parametrize(("args", "message"), [(["--takes", "0"], "--takes must be 1 or more"),
-                                                (["--sample-rate", "44100"], "--sample-rate must be 16000 or 8000")])
+                                                (["--sample-rate", "44100"], "--sample-rate must be 16000 or 8000"),
+                                                (["--port", "99999"], "--port must be 0-65535 (0 = any free port)"),
+                                                (["--port", "-1"], "--port must be 0-65535 (0 = any free port)")])
 def test_bad_options_give_one_line(tmp_path, args, message):
     done = subprocess.run([sys.executable, "-m", "wordspot.cli", "record", str(tmp_path), *args],
                           capture_output=True, text=True, timeout=60)
     assert done.returncode == 2
     assert message in done.stderr and "Traceback" not in done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1

@@ -12,48 +12,11 @@ import pytest
 import soundfile as sf
 
 from conftest import RECORDINGS
+from recording_server import SESSION_HEADER, post_audio, request, served, session_key  # noqa: F401 - a fixture
 from tone_corpus import make_corpus
 from wordspot.web.server import LOOPBACK, MAX_UPLOAD_BYTES, RecordingApp, RecordingSettings, make_server
 
 FLAC = RECORDINGS / "audio" / "train" / "espeak-en-gb-f3" / "back-t1.flac"
-
-
-@pytest.fixture
-def served(tmp_path):
-    lexicon = tmp_path / "bakery-words.txt"
-    lexicon.write_text("back B AE K\noven AH V AH N\n", encoding="utf-8")
-    started = []
-
-    def start(**changes):
-        settings = dict(folder=tmp_path / "takes", lexicon=lexicon, takes=2)
-        settings.update(changes)
-        app = RecordingApp(RecordingSettings(**settings))
-        server = make_server(app)
-        threading.Thread(target=server.serve_forever, daemon=True).start()
-        started.append(server)
-        return app, server.server_address[1]
-
-    yield start
-    for server in started:
-        server.shutdown()
-        server.server_close()
-        server.app.stop()
-
-
-def request(port, method, path, body=None, headers=None):
-    conn = http.client.HTTPConnection(LOOPBACK, port, timeout=60)
-    try:
-        conn.request(method, path, body=body, headers=headers or {})
-        answer = conn.getresponse()
-        data = answer.read()
-    finally:
-        conn.close()
-    kind = answer.getheader("Content-Type", "")
-    return answer.status, (json.loads(data) if kind.startswith("application/json") else data)
-
-
-def post_audio(port, path, body, kind="audio/flac"):
-    return request(port, "POST", path, body, {"Content-Type": kind})
 
 
 def manifest_rows(app, name="train.csv"):
@@ -147,6 +110,7 @@ def test_oversized_uploads_are_refused_before_reading(served):
         conn.putrequest("POST", "/api/take?word=back")
         conn.putheader("Content-Type", "audio/wav")
         conn.putheader("Content-Length", str(MAX_UPLOAD_BYTES + 1))
+        conn.putheader(SESSION_HEADER, session_key(port))
         conn.endheaders()  # the body is never sent: the answer must not wait for it
         answer = conn.getresponse()
         data = json.loads(answer.read())

@@ -59,6 +59,8 @@ def _run(args) -> int:
 
     if args.takes < 1:
         raise WordspotError(f"--takes must be 1 or more, got {args.takes}")
+    if not 0 <= args.port <= 65535:
+        raise WordspotError(f"--port must be 0-65535 (0 = any free port), got {args.port}")
     if args.sample_rate not in (8000, 16000):
         raise WordspotError(f"--sample-rate must be 16000 or 8000, got {args.sample_rate}")
     folder = Path(args.folder)

@@ -3,9 +3,20 @@
 Nothing here listens beyond this computer: the address is fixed to the loopback
 interface, requests naming another host are refused (so a web page elsewhere cannot
 reach the server through a look-alike name), and posts from another origin are refused.
+Other web pages open in the same browser can still send requests here without reading the
+answers, so every request that changes something must also carry the session key: a
+random value made when the server starts, written into the page it serves (a ``<meta
+name="wordspot-session">`` tag, which other pages cannot read) and sent back by the page
+in the ``Wordspot-Session`` header. A request answered before its body is read (refused,
+too large, of unknown length) ends its connection, so a body can never be taken for a
+second request. Connections that stay idle are closed after ``idle_seconds``, and at most
+``max_connections`` are served at once (beyond that: 503 and closed). An audio upload is
+judged by its header (sample rate, channels, length) before a sample is decoded.
+
 Every answer of the interface is JSON; errors are ``{"error": "..."}`` in plain words with
-the HTTP status that fits (400 bad request, 403 outside the folder or another origin, 404,
-413 too large, 415 not audio, 409 busy).
+the HTTP status that fits (400 bad request, 403 outside the folder, another origin or no
+session key, 404, 411 no length, 413 too large, 415 not audio, 409 busy, 503 too many
+connections).
 
 Interface (all under the page's own address):
 
@@ -24,12 +35,17 @@ Interface (all under the page's own address):
 
 from __future__ import annotations
 
+import hmac
 import io
 import json
 import mimetypes
 import os
+import re
+import secrets
+import socket
 import sys
 import threading
+import time
 from dataclasses import dataclass, replace
 from http import HTTPStatus
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
@@ -38,20 +54,33 @@ from urllib.parse import parse_qs, unquote, urlsplit
 
 import soundfile
 
-from wordspot.audio.decode import decode_audio_bytes
+from wordspot.audio.decode import check_audio_header, decode_audio_bytes
 from wordspot.audio.trim import check_take
 from wordspot.errors import WordspotError
 from wordspot.web.takes import HELD_OUT_MANIFEST, TRAIN_MANIFEST, TakeFolder, folder_pronunciations, speaker_slug
 from wordspot.web.training_job import TrainingJob, train_command
 from wordspot.web.words import WordList
 
-__all__ = ["LOOPBACK", "MAX_UPLOAD_BYTES", "RecordingSettings", "RecordingApp", "make_server", "serve"]
+__all__ = ["LOOPBACK", "MAX_UPLOAD_BYTES", "SESSION_HEADER", "RecordingSettings", "RecordingApp", "make_server",
+           "serve"]
 
 #: The only address the server binds to.
 LOOPBACK = "127.0.0.1"
 #: Largest audio upload accepted (about 80 s of the page's 48 kHz float samples).
 MAX_UPLOAD_BYTES = 16 * 1024 * 1024
 _MAX_JSON_BYTES = 16 * 1024
+#: The request header that carries the session key on every request that changes something.
+SESSION_HEADER = "Wordspot-Session"
+# The tag of index.html that receives the session key when the page is served.
+_SESSION_TAG = b'<meta name="wordspot-session" content="">'
+# After an answer given with the body unread, at most this many bytes are read and dropped
+# (for at most _DROP_SECONDS) before the connection is closed: closing with unread bytes
+# would reset the connection, and the client could lose the answer.
+_DROP_LIMIT = 64 * 1024
+_DROP_SECONDS = 2.0
+# Paths, names and words longer than this are cut short in messages.
+_SHOWN = 60
+_DIGITS = re.compile(r"[0-9]+\Z")
 PAGE_DIR = Path(__file__).resolve().parent / "page"
 MODEL_NAME = "words.model"
 
@@ -77,6 +106,12 @@ class RecordingSettings:
         Training takes every word needs before the page offers training.
     from_scratch : bool
         Train every phone from the takes alone instead of adapting the starter model.
+    max_take_seconds : float
+        Longest upload accepted (the page itself stops recording after 15 s).
+    idle_seconds : float
+        A connection that sends nothing for this long is closed.
+    max_connections : int
+        Connections served at once; more are answered 503 and closed.
     """
 
     folder: Path
@@ -86,6 +121,9 @@ class RecordingSettings:
     sample_rate: int = 16000
     min_train_takes: int = 2
     from_scratch: bool = False
+    max_take_seconds: float = 30.0
+    idle_seconds: float = 30.0
+    max_connections: int = 32
 
 
 class HttpProblem(Exception):
@@ -94,6 +132,20 @@ class HttpProblem(Exception):
     def __init__(self, status: HTTPStatus, message: str):
         super().__init__(message)
         self.status = status
+
+
+def _shown(text: str, limit: int = _SHOWN) -> str:
+    """``text`` cut to ``limit`` characters, so that it fits in a message."""
+    return text if len(text) <= limit else text[:limit] + "..."
+
+
+def _size(n: int) -> str:
+    """A byte count in the unit that suits it (KB and MB of 1024)."""
+    if n < 1024:
+        return f"{n} bytes"
+    if n < 1024 * 1024:
+        return f"{n / 1024:.0f} KB"
+    return f"{n / (1024 * 1024):.1f} MB"
 
 
 def _relative_to_cwd(path: Path) -> str:
@@ -165,8 +217,11 @@ class RecordingApp:
             "max_upload_bytes": MAX_UPLOAD_BYTES,
         }
 
+    def _decode(self, body: bytes, rate: int):
+        return decode_audio_bytes(body, rate, source="the recording", max_seconds=self.settings.max_take_seconds)
+
     def check(self, body: bytes) -> dict:
-        wave = decode_audio_bytes(body, self.settings.sample_rate, source="the recording")
+        wave = self._decode(body, self.settings.sample_rate)
         found = check_take(wave, self.settings.sample_rate)
         out = found.to_dict(self.settings.sample_rate)
         out["seconds"] = wave.size / self.settings.sample_rate
@@ -176,9 +231,10 @@ class RecordingApp:
         if not word:
             raise WordspotError("say which word the take is of (word=...)")
         if word.lower() not in self.words.lexicon:
-            raise WordspotError(f"{word!r} is not in the lexicon {self.settings.lexicon}; add it on the page first")
+            raise WordspotError(f"{_shown(word)!r} is not in the lexicon {self.settings.lexicon}; "
+                                "add it on the page first")
         rate = self.settings.sample_rate
-        wave = decode_audio_bytes(body, rate, source="the recording")
+        wave = self._decode(body, rate)
         found = check_take(wave, rate)
         if found.end <= found.start:
             raise WordspotError("the take is silent, so it was not saved; check the microphone and record again")
@@ -216,7 +272,7 @@ class RecordingApp:
                 self._recognizer = build_recognizer(load_model(self.model_path))
                 self._model_stamp = stamp
             rec = self._recognizer
-        wave = decode_audio_bytes(body, rec.features.sample_rate, source="the recording")
+        wave = self._decode(body, rec.features.sample_rate)
         result = rec.decode(compute_features(wave, rec.features))
         return {
             "text": result.text,
@@ -237,6 +293,11 @@ class _Handler(BaseHTTPRequestHandler):
     def app(self) -> RecordingApp:
         return self.server.app
 
+    def setup(self):
+        self.timeout = self.server.app.settings.idle_seconds  # read by the base class
+        self._body_read = False
+        super().setup()
+
     # -- plumbing ------------------------------------------------------------------------
     def log_message(self, format, *args):  # noqa: A002 - the base class's name
         if self.server.verbose:
@@ -244,10 +305,15 @@ class _Handler(BaseHTTPRequestHandler):
 
     def _send(self, status: int, body: bytes, content_type: str) -> None:
         self.send_response(status)
+        if not self._body_read and self._declared_length() != 0:
+            self.send_header("Connection", "close")  # the unread body must never be read as a request
         self.send_header("Content-Type", content_type)
         self.send_header("Content-Length", str(len(body)))
         self.send_header("Cache-Control", "no-store")
         self.send_header("X-Content-Type-Options", "nosniff")
+        # no other page may show this one in a frame (and steer it with the person's clicks and keys)
+        self.send_header("Content-Security-Policy", "frame-ancestors 'none'")
+        self.send_header("X-Frame-Options", "DENY")
         self.end_headers()
         if self.command != "HEAD":
             self.wfile.write(body)
@@ -260,30 +326,71 @@ class _Handler(BaseHTTPRequestHandler):
         host = (self.headers.get("Host") or "").strip().lower()
         if host not in {f"{LOOPBACK}:{port}", f"localhost:{port}"}:
             raise HttpProblem(HTTPStatus.FORBIDDEN, f"this page answers only at http://{LOOPBACK}:{port}/")
+        if self.command in ("GET", "HEAD"):
+            return
         origin = self.headers.get("Origin")
-        if self.command == "POST" and origin is not None and origin.lower() not in {
-            f"http://{LOOPBACK}:{port}", f"http://localhost:{port}"}:
+        if origin is not None and origin.lower() not in {f"http://{LOOPBACK}:{port}", f"http://localhost:{port}"}:
             raise HttpProblem(HTTPStatus.FORBIDDEN, "requests from other web pages are refused")
+        given = (self.headers.get(SESSION_HEADER) or "").encode("utf-8", "replace")
+        if not hmac.compare_digest(given, self.server.session_key.encode("ascii")):
+            raise HttpProblem(HTTPStatus.FORBIDDEN,
+                              f"this request does not carry the page's session key ({SESSION_HEADER} header); "
+                              f"changes are accepted only from the page at http://{LOOPBACK}:{port}/ "
+                              "(reload it if the server was restarted)")
 
-    def _body(self, limit: int) -> bytes:
-        length = self.headers.get("Content-Length")
-        if length is None or not length.isdigit():
-            raise HttpProblem(HTTPStatus.LENGTH_REQUIRED, "send the length of the body (Content-Length)")
-        n = int(length)
+    def _declared_length(self) -> int | None:
+        """Bytes the request says follow its header: 0 for none, None if that is not known."""
+        if self.headers.get("Transfer-Encoding") is not None:
+            return None
+        lengths = self.headers.get_all("Content-Length") or []
+        if not lengths:
+            return 0
+        if len(lengths) > 1 or not _DIGITS.match(lengths[0].strip()):
+            return None
+        return int(lengths[0].strip())
+
+    def _body(self, limit: int, what: str = "the request body") -> bytes:
+        n = self._declared_length()
+        if n is None:
+            raise HttpProblem(HTTPStatus.LENGTH_REQUIRED,
+                              "send the body with one length (Content-Length), not in pieces")
         if n > limit:
-            self.close_connection = True
+            hint = " (a take should last a few seconds)" if what == "the upload" else ""
             raise HttpProblem(HTTPStatus.REQUEST_ENTITY_TOO_LARGE,
-                              f"the upload is {n / 1e6:.1f} MB; at most {limit / 1e6:.1f} MB is accepted "
-                              "(a take should last a few seconds)")
-        return self.rfile.read(n)
+                              f"{what} is {_size(n)}; at most {_size(limit)} is accepted{hint}")
+        data = self.rfile.read(n)
+        if len(data) < n:
+            self.close_connection = True
+            raise HttpProblem(HTTPStatus.BAD_REQUEST, f"{what} ended after {_size(len(data))} of {_size(n)}")
+        self._body_read = True
+        return data
+
+    def _linger(self) -> None:
+        """End an answer given with the body unread: send the end of the answer, then read
+        and drop what the client still sends (at most ``_DROP_LIMIT`` bytes, for at most
+        ``_DROP_SECONDS``), so that closing does not reset the connection before the client
+        has read the answer. Nothing read here is ever taken for a request."""
+        try:
+            self.wfile.flush()
+            self.connection.shutdown(socket.SHUT_WR)
+            end = time.monotonic() + _DROP_SECONDS
+            left = _DROP_LIMIT
+            while left > 0 and time.monotonic() < end:
+                self.connection.settimeout(max(0.01, end - time.monotonic()))
+                chunk = self.rfile.read1(left)
+                if not chunk:
+                    break
+                left -= len(chunk)
+        except OSError:  # timed out or reset: the connection closes either way
+            pass
 
     def _audio_body(self) -> bytes:
         kind = (self.headers.get("Content-Type") or "").split(";")[0].strip().lower()
         if kind and not (kind.startswith("audio/") or kind == "application/octet-stream"):
-            self._body(MAX_UPLOAD_BYTES)  # read and drop, to keep the connection usable
+            self._body(MAX_UPLOAD_BYTES, "the upload")  # read and drop, to keep the connection usable
             raise HttpProblem(HTTPStatus.UNSUPPORTED_MEDIA_TYPE,
-                              f"expected a recording (audio/wav), got {kind}")
-        body = self._body(MAX_UPLOAD_BYTES)
+                              f"expected a recording (audio/wav), got {_shown(kind)}")
+        body = self._body(MAX_UPLOAD_BYTES, "the upload")
         if not body:
             raise HttpProblem(HTTPStatus.BAD_REQUEST, "the upload is empty; record again")
         try:  # a cheap look at the header before decoding
@@ -291,6 +398,8 @@ class _Handler(BaseHTTPRequestHandler):
         except (RuntimeError, soundfile.SoundFileError, TypeError, ValueError):
             raise HttpProblem(HTTPStatus.UNSUPPORTED_MEDIA_TYPE,
                               "the upload is not audio that can be read; send a WAV, FLAC or OGG file") from None
+        # rate, channels and length from the header, before anything is decoded (400 if wrong)
+        check_audio_header(body, max_seconds=self.app.settings.max_take_seconds, source="the recording")
         return body
 
     def _json_body(self) -> dict:
@@ -303,6 +412,7 @@ class _Handler(BaseHTTPRequestHandler):
         return data
 
     def _handle(self, route) -> None:
+        self._body_read = False
         try:
             self._check_host()
             route()
@@ -310,11 +420,14 @@ class _Handler(BaseHTTPRequestHandler):
             self._json(exc.status, {"error": str(exc)})
         except WordspotError as exc:
             self._json(HTTPStatus.BAD_REQUEST, {"error": str(exc)})
-        except (BrokenPipeError, ConnectionResetError):
+        except (BrokenPipeError, ConnectionResetError, TimeoutError):
             self.close_connection = True
+            return
         except Exception as exc:  # one clear line for the page, never a traceback
-            sys.stderr.write(f"wordspot record: internal error on {self.command} {self.path}: {exc!r}\n")
+            sys.stderr.write(f"wordspot record: internal error on {self.command} {_shown(self.path)}: {exc!r}\n")
             self._json(HTTPStatus.INTERNAL_SERVER_ERROR, {"error": f"internal error: {exc}"})
+        if self.close_connection and not self._body_read and self._declared_length() != 0:
+            self._linger()
 
     # -- routes --------------------------------------------------------------------------
     def do_GET(self):
@@ -341,25 +454,37 @@ class _Handler(BaseHTTPRequestHandler):
         elif path == "/api/train":
             self._json(200, self.app.training.status())
         else:
-            raise HttpProblem(HTTPStatus.NOT_FOUND, f"nothing at {path}")
+            raise HttpProblem(HTTPStatus.NOT_FOUND, f"nothing at {_shown(path)}")
 
     def _page_file(self, name: str) -> None:
         files = {p.name: p for p in PAGE_DIR.iterdir() if p.is_file()}
         if name not in files:
-            raise HttpProblem(HTTPStatus.NOT_FOUND, f"the page has no file {name}")
+            raise HttpProblem(HTTPStatus.NOT_FOUND, f"the page has no file {_shown(name)}")
         kind = mimetypes.guess_type(name)[0] or "application/octet-stream"
         if kind.startswith("text/") or kind.endswith("javascript"):
             kind += "; charset=utf-8"
-        self._send(200, files[name].read_bytes(), kind)
+        data = files[name].read_bytes()
+        if name == "index.html":  # the session key, for the page's own requests
+            filled = _SESSION_TAG.replace(b'content=""', b'content="' + self.server.session_key.encode("ascii") + b'"')
+            data = data.replace(_SESSION_TAG, filled)
+        self._send(200, data, kind)
 
     def _take_file(self, relative: str) -> None:
+        if "\x00" in relative:
+            raise HttpProblem(HTTPStatus.BAD_REQUEST, "a take's path cannot hold a NUL character")
         try:
             full = self.app.takes.resolve(relative)
         except WordspotError as exc:
-            raise HttpProblem(HTTPStatus.FORBIDDEN, str(exc)) from None
-        if not full.is_file():
-            raise HttpProblem(HTTPStatus.NOT_FOUND, f"no take {relative} in the folder")
-        self._send(200, full.read_bytes(), mimetypes.guess_type(full.name)[0] or "application/octet-stream")
+            raise HttpProblem(HTTPStatus.FORBIDDEN, _shown(str(exc), 3 * _SHOWN)) from None
+        except (OSError, ValueError):  # a name too long for the file system, and the like
+            full = None
+        try:
+            data = full.read_bytes() if full is not None and full.is_file() else None
+        except (OSError, ValueError):
+            data = None
+        if data is None:
+            raise HttpProblem(HTTPStatus.NOT_FOUND, f"no take {_shown(relative)} in the folder")
+        self._send(200, data, mimetypes.guess_type(full.name)[0] or "application/octet-stream")
 
     def _post(self):
         url = urlsplit(self.path)
@@ -383,17 +508,72 @@ class _Handler(BaseHTTPRequestHandler):
             self._json(200, app.recognise(self._audio_body()))
         else:
             self._body(MAX_UPLOAD_BYTES)
-            raise HttpProblem(HTTPStatus.NOT_FOUND, f"nothing to post to at {url.path}")
+            raise HttpProblem(HTTPStatus.NOT_FOUND, f"nothing to post to at {_shown(url.path)}")
+
+
+_BUSY = json.dumps({"error": "too many connections to the recording page at once; try again in a moment"}).encode()
+_BUSY_ANSWER = (b"HTTP/1.1 503 Service Unavailable\r\nContent-Type: application/json; charset=utf-8\r\n"
+                b"Content-Length: " + str(len(_BUSY)).encode() + b"\r\nConnection: close\r\n\r\n" + _BUSY)
 
 
 class _Server(ThreadingHTTPServer):
+    """The threading server with a session key and a cap on connections served at once."""
+
     daemon_threads = True
     allow_reuse_address = True
 
     def __init__(self, app: RecordingApp, port: int, verbose: bool):
         self.app = app
         self.verbose = verbose
+        self.session_key = secrets.token_urlsafe(32)
+        self._open = 0
+        self._open_lock = threading.Lock()
         super().__init__((LOOPBACK, port), _Handler)
+
+    def process_request(self, request, client_address):
+        with self._open_lock:
+            room = self._open < self.app.settings.max_connections
+            if room:
+                self._open += 1
+        if not room:
+            self._refuse(request)
+            return
+        try:
+            super().process_request(request, client_address)  # a thread runs process_request_thread
+        except BaseException:
+            self._closed_one()
+            raise
+
+    def process_request_thread(self, request, client_address):
+        try:
+            super().process_request_thread(request, client_address)
+        finally:
+            self._closed_one()
+
+    def handle_error(self, request, client_address):
+        """A client that went away is no error; anything else is one line, never a traceback."""
+        exc = sys.exc_info()[1]
+        if isinstance(exc, (ConnectionError, TimeoutError)):
+            return
+        sys.stderr.write(f"wordspot record: a connection ended with an error: {exc!r}\n")
+
+    def _closed_one(self) -> None:
+        with self._open_lock:
+            self._open -= 1
+
+    def _refuse(self, request) -> None:
+        """Answer 503 and close, in the listening thread (a short wait at most)."""
+        try:
+            request.settimeout(0.1)
+            try:  # take in what the client sent already, so closing does not reset the answer away
+                request.recv(_DROP_LIMIT)
+            except (TimeoutError, OSError):
+                pass
+            request.settimeout(1.0)
+            request.sendall(_BUSY_ANSWER)
+        except OSError:
+            pass
+        self.shutdown_request(request)
 
 
 def make_server(app: RecordingApp, *, port: int = 0, verbose: bool = False) -> _Server:
@@ -402,8 +582,10 @@ def make_server(app: RecordingApp, *, port: int = 0, verbose: bool = False) -> _
     Raises
     ------
     WordspotError
-        The port is taken or not allowed.
+        The port is taken or not allowed (0-65535, 0 = any free port).
     """
+    if not 0 <= port <= 65535:
+        raise WordspotError(f"port must be 0-65535 (0 = any free port), got {port}")
     try:
         return _Server(app, port, verbose)
     except OSError as exc:

@@ -37,6 +37,7 @@ from wordspot.audio.writing import write_wav
 from wordspot.errors import ManifestError, WordspotError
 from wordspot.language.lexicon import check_word
 from wordspot.util.atomic import is_temporary, write_bytes_atomically
+from wordspot.web.words import MAX_WORD_LENGTH
 
 try:  # POSIX: also keep a second process on the same folder out while we write
     import fcntl
@@ -266,9 +267,14 @@ class TakeFolder:
         Raises
         ------
         WordspotError
-            A bad word or speaker name, or the folder cannot be written.
+            A bad or too long word (its file name is made of it), a bad speaker name, or
+            the folder cannot be written.
         """
         word = check_word(str(word).strip().lower())
+        if len(word) > MAX_WORD_LENGTH:
+            raise WordspotError(f"the word {word[:MAX_WORD_LENGTH]}... is {len(word)} characters long, too long "
+                                f"for a file name; takes are saved only of words of at most {MAX_WORD_LENGTH} "
+                                "characters (shorten it in the lexicon)")
         slug = speaker_slug(speaker)
         manifest = self.manifest_path(held_out)
         with self.locked():

@@ -4,7 +4,8 @@ The page lists every word of the lexicon file. A word typed on the page that the
 lacks gets the open CMU pronouncing dictionary's pronunciation as a suggestion
 (:func:`wordspot.language.lexicon.suggest_pronunciations`, the same as ``wordspot lexicon
 suggest``); once the person confirms it (or types phones), one line is added to the
-lexicon file, which is rewritten atomically.
+lexicon file, which is rewritten atomically. A word longer than :data:`MAX_WORD_LENGTH`
+characters is refused here, since every take of it is saved under a file name made of it.
 """
 
 from __future__ import annotations
@@ -18,13 +19,33 @@ from wordspot.language.lexicon import (
     Lexicon,
     check_word,
     format_entry,
-    parse_lexicon,
     read_lexicon,
     suggest_pronunciations,
 )
 from wordspot.util.atomic import write_bytes_atomically
 
-__all__ = ["WordList"]
+__all__ = ["MAX_WORD_LENGTH", "WordList"]
+
+#: Longest word the page adds (the takes of a word are files named after it).
+MAX_WORD_LENGTH = 40
+_JSON_KINDS = {type(None): "null", bool: "true or false", int: "a number", float: "a number",
+               list: "a list", dict: "an object"}
+
+
+def _text(value, what: str) -> str:
+    """``value`` if it is a string; otherwise a LexiconError naming what arrived instead."""
+    if not isinstance(value, str):
+        got = _JSON_KINDS.get(type(value), type(value).__name__)
+        raise LexiconError(f"{what} must be text, got {got}")
+    return value
+
+
+def _checked_word(value) -> str:
+    word = check_word(_text(value, "the word").strip())
+    if len(word) > MAX_WORD_LENGTH:
+        raise LexiconError(f"the word {word[:MAX_WORD_LENGTH]}... is {len(word)} characters long; "
+                           f"at most {MAX_WORD_LENGTH} characters are accepted (type one command word)")
+    return word
 
 
 class WordList:
@@ -53,7 +74,7 @@ class WordList:
 
     def suggest(self, word: str) -> dict:
         """What the page shows for a typed word: known already, or suggested phones."""
-        word = check_word(str(word).strip())
+        word = _checked_word(word)
         known = self.pronunciations(word)
         if known:
             return {"word": word, "known": True, "pronunciations": known}
@@ -66,11 +87,14 @@ class WordList:
         Raises
         ------
         LexiconError
-            A bad word or an unknown phone (the message lists the known ones).
+            A word that is not text, too long or holds a bad character; phones that are not
+            text, or a phone that is not an ARPAbet phone (the message names it and lists
+            the known ones).
         """
-        word = check_word(str(word).strip())
-        line = format_entry(word, str(phones).upper().split())
-        entry = parse_lexicon(line, source="the typed pronunciation", inventory=ARPABET_PHONES)
+        word = _checked_word(word)
+        units = _text(phones, "the phones").upper().split()
+        entry = Lexicon([(word, units)], inventory=ARPABET_PHONES, source="the typed pronunciation")
+        line = format_entry(word, units)
         with self._lock:
             new = entry.pronunciations(word)[0]
             if word not in self.lexicon or new not in self.lexicon.pronunciations(word):

@@ -19,7 +19,15 @@ const page = {
 };
 
 // ---- talking to the server -------------------------------------------------------------
+// The server writes its session key into the page; every request that changes something
+// sends it back, which other web pages cannot do (they cannot read this page).
+const SESSION = document.querySelector('meta[name="wordspot-session"]').content;
+
 async function api(path, options) {
+  options = Object.assign({}, options);
+  if (options.method && options.method !== "GET") {
+    options.headers = Object.assign({"Wordspot-Session": SESSION}, options.headers);
+  }
   const answer = await fetch(path, options);
   let data = null;
   try { data = await answer.json(); } catch (e) { data = {error: "the server sent no answer"}; }
