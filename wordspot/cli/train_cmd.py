@@ -109,7 +109,8 @@ def add_parser(sub, **options):
     full.add_argument("--from-scratch", action="store_true",
                       help="learn every phone from these recordings alone, starting from nothing")
     full.add_argument("--mixtures", type=_positive, default=None, metavar="N",
-                      help="Gaussians per state at the end, reached by doubling (default 8)")
+                      help="detail of each sound's model at the end (Gaussians a state), reached by doubling; "
+                           "more needs more recordings (default 8)")
     full.add_argument("--passes", type=_positive, default=None, metavar="N",
                       help="re-estimation passes after each mixture doubling; the first stage gets N+2 "
                       f"(default {TrainingConfig.passes_per_split}, and {TrainingConfig.first_passes} "
@@ -189,7 +190,7 @@ def _run(args) -> int:
     for line in summary.lines():
         say(line)
     path = save_model(model, args.out)
-    print(f"wrote {os.fspath(path)} ({summary.used} utterances, {what}, {summary.seconds:.1f} s)")
+    print(f"wrote {os.fspath(path)} ({summary.used} recordings, {what}, {summary.seconds:.1f} s)")
     return 0
 
 
@@ -215,7 +216,7 @@ def _scratch(args, lexicon, say):
         return train(utterances, lexicon, settings=settings, config=config,
                      manifest=args.manifest, quiet=args.quiet, report=say)
 
-    return fit, f"{config.mixtures[-1]} Gaussians a state, from scratch"
+    return fit, f"trained from scratch to detail {config.mixtures[-1]} (Gaussians a state)"
 
 
 def _share(args) -> dict:
