@@ -87,7 +87,8 @@ def test_profile_rows_name_files_without_this_machines_paths(tmp_path):
 
     # common practice, no source: a results file names files relative to the repository
     assert source_name(str(REPO / "wordspot" / "decoding" / "kernels.py")) == "wordspot/decoding/kernels.py"
-    assert source_name(str(tmp_path / "checkout" / "wordspot" / "api.py"), repo=tmp_path / "checkout") == "wordspot/api.py"
+    checkout = tmp_path / "checkout"
+    assert source_name(str(checkout / "wordspot" / "api.py"), repo=checkout) == "wordspot/api.py"
     assert source_name("/opt/venv/lib/python3.11/site-packages/numpy/fft/_pocketfft.py") == "numpy/fft/_pocketfft.py"
     assert source_name("/usr/lib/python3.11/json/decoder.py") == "json/decoder.py"
     assert source_name("/somewhere/else/helper.py") == "helper.py"

@@ -297,7 +297,7 @@ def render_table(results: dict) -> str:
     """
     names = list(results)
     first = results[names[0]]
-    header = ["set", "utts", "words"] + [f"WER {n}" for n in names] + ["what it shows"]
+    header = ["set", "files", "words"] + [f"WER {n}" for n in names] + ["what it shows"]
     body = []
     for k, row in enumerate(first):
         if row.kind != "words":

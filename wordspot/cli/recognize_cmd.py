@@ -66,13 +66,16 @@ def add_decoder_options(p) -> None:
     p.add_argument("--single-word", action="store_true", help="exactly one word per file (isolated commands)")
     p.add_argument("--jobs", "-j", type=int, default=1, metavar="N", help="files decoded at once, in threads (default 1)")
     d = DecoderSettings()
-    p.add_argument("--beam", type=float, default=d.beam, help="how far behind the best guess a guess may fall and still be followed (search beam, log units); larger is slower but loses fewer words (default {:g})".format(d.beam))
+    p.add_argument("--beam", type=float, default=d.beam,
+                   help="how far behind the best guess a guess may fall and still be followed (search beam, "
+                   f"log units); larger is slower but loses fewer words (default {d.beam:g})")
     p.add_argument("--word-end-beam", type=float, default=d.word_end_beam,
                    help=f"the same for the ends of words (word-end beam; default {d.word_end_beam:g})")
     p.add_argument("--state-limit", type=int, default=d.state_limit,
-                   help=f"most guesses kept at each 10 ms step (states a frame; default {d.state_limit})")
+                   help=f"most guesses kept at each step of the sound (states a frame; default {d.state_limit})")
     p.add_argument("--grammar-weight", type=float, default=d.grammar_weight,
-                   help=f"how much the usual word order counts (weight of the word-pair prior; default {d.grammar_weight:g})")
+                   help="how much the usual word order counts (weight of the word-pair prior; "
+                   f"default {d.grammar_weight:g})")
     p.add_argument("--insertion-penalty", type=float, default=d.insertion_penalty,
                    help=f"score added for each word heard (log units); negative gives fewer words (default {d.insertion_penalty:g})")
     p.add_argument("--no-filler", action="store_true",

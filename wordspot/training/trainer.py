@@ -235,7 +235,7 @@ class TrainingSummary:
     def lines(self) -> list[str]:
         """The summary as short text lines for people."""
         minutes = self.n_frames * self.frame_seconds / 60
-        out = [f"recordings used: {self.used} ({minutes:.1f} min of sound with the extra copies)"]
+        out = [f"recordings used: {self.used} ({minutes:.1f} min of sound, copies and background sounds included)"]
         if self.backgrounds:
             out.append(f"background sounds added (no command): {self.backgrounds}")
         out.append(f"recordings skipped: {len(self.skipped)}")
