@@ -90,10 +90,13 @@ def test_work_folder_is_named_after_this_process():
 
 
 # A parent that starts one worker the way loky does (its own process, our initializer first)
-# and then waits; the worker writes a file into the parent's work folder and waits too.
+# and then waits; the worker writes a file into the parent's work folder and waits too. The
+# parent has a second thread, as a training run has: killed, it hands its children to that
+# thread for a moment, so the worker still sees the same parent process id.
 PARENT = textwrap.dedent("""
-    import subprocess, sys, time
+    import subprocess, sys, threading, time
     from wordspot.training.workers import work_folder
+    threading.Thread(target=time.sleep, args=(600,), daemon=True).start()
     folder = work_folder()
     (folder / "frames.f32").write_bytes(b"0" * 64)
     subprocess.Popen([sys.executable, "-c", sys.argv[1], str(folder)])
@@ -145,6 +148,89 @@ def test_worker_stays_while_its_parent_lives(tmp_path):
         parent.wait()
 
 
+# A parent that starts a process the way the recording page starts training: the variable
+# names the parent, the child calls end_with_starter() and then works quietly (no output that
+# could fail on a closed pipe and end it anyway).
+STARTER = textwrap.dedent("""
+    import os, subprocess, sys, time
+    from wordspot.training.workers import PARENT_VARIABLE
+    env = {**os.environ, PARENT_VARIABLE: str(os.getpid())}
+    subprocess.Popen([sys.executable, "-c", sys.argv[1]], env=env, stdout=subprocess.DEVNULL)
+    time.sleep(600)
+""")
+STARTED = textwrap.dedent("""
+    import time
+    from wordspot.training.workers import end_with_starter
+    assert end_with_starter()
+    time.sleep(600)
+""")
+
+
+@linux_proc
+def test_a_process_started_with_the_variable_ends_with_its_starter(tmp_path):
+    parent = subprocess.Popen([sys.executable, "-c", STARTER, STARTED], env=env(tmp_path))
+    try:
+        assert wait_until(lambda: len(children(parent.pid)) == 1, 30)
+        (child,) = children(parent.pid)
+        time.sleep(1.5)
+        assert running(child)
+        parent.send_signal(signal.SIGKILL)
+        parent.wait()
+        assert wait_until(lambda: not running(child), 4.0)
+    finally:
+        parent.kill()
+        parent.wait()
+
+
+def test_the_variable_is_ignored_unless_it_names_the_parent(monkeypatch):
+    from wordspot.training.workers import PARENT_VARIABLE, end_with_starter
+
+    monkeypatch.delenv(PARENT_VARIABLE, raising=False)
+    assert not end_with_starter()
+    monkeypatch.setenv(PARENT_VARIABLE, "not a number")
+    assert not end_with_starter()
+    monkeypatch.setenv(PARENT_VARIABLE, str(os.getpid()))  # this process, not its parent
+    assert not end_with_starter()
+
+
+def test_training_job_names_the_server_to_the_training(tmp_path, monkeypatch):
+    import wordspot.web.training_job as training_job
+    from wordspot.training.workers import PARENT_VARIABLE
+
+    seen = {}
+
+    class Recorded:  # stands in for the child process: records how it was started
+        stdout = iter(())
+
+        def __init__(self, args, **kwargs):
+            seen.update(kwargs, args=args)
+
+        def poll(self):
+            return 0
+
+        def wait(self):
+            return 0
+
+    monkeypatch.setattr(training_job.subprocess, "Popen", Recorded)
+    assert training_job.TrainingJob().start(tmp_path / "train.csv", tmp_path / "words.txt", tmp_path / "m.model")
+    assert seen["env"][PARENT_VARIABLE] == str(os.getpid()) and "train" in seen["args"]
+
+
+@linux_proc
+def test_sigterm_from_anyone_else_still_ends_a_worker(tmp_path):
+    parent = subprocess.Popen([sys.executable, "-c", PARENT, WORKER], env=env(tmp_path))
+    try:
+        assert wait_until(lambda: len(children(parent.pid)) == 1, 30)
+        (worker,) = children(parent.pid)
+        time.sleep(1.0)
+        os.kill(worker, signal.SIGTERM)
+        assert wait_until(lambda: not running(worker), 3.0)
+        assert next(tmp_path.glob(f"{FOLDER_PREFIX}{parent.pid}-*")).is_dir()  # the parent still uses it
+    finally:
+        parent.kill()
+        parent.wait()
+
+
 def _is_loky_worker(pid: int) -> bool:
     return "loky" in command_line(pid) and "resource_tracker" not in command_line(pid)
 
@@ -172,7 +258,8 @@ def test_killed_training_leaves_no_workers_or_folders(tmp_path):
         assert wait_until(lambda: not any(map(running, started)), 5.0), \
             [command_line(p)[:80] for p in started if running(p)]
         # its work folder (frames, joblib's files) and loky's semaphores in /dev/shm
-        assert wait_until(lambda: not list(scratch.glob(f"{FOLDER_PREFIX}{train.pid}-*")), 2.0)
+        assert wait_until(lambda: not list(scratch.glob(f"{FOLDER_PREFIX}{train.pid}-*")), 2.0), \
+            [str(p.relative_to(scratch)) for p in scratch.rglob("*")]
         shm = Path("/dev/shm")
         if shm.is_dir():
             assert wait_until(lambda: not [p for p in shm.iterdir() if f"-{train.pid}-" in p.name
@@ -180,5 +267,46 @@ def test_killed_training_leaves_no_workers_or_folders(tmp_path):
     finally:
         train.kill()
         train.wait()
+        for pid in filter(running, started):  # left over when the test fails
+            os.kill(pid, signal.SIGKILL)
+
+
+# The recording page's training: ``wordspot train`` started from a request thread that ends at
+# once (so no kernel signal may be tied to that thread); the page's server is then killed.
+SERVER = textwrap.dedent("""
+    import sys, threading, time
+    from wordspot.web.training_job import TrainingJob
+    job = TrainingJob()
+    request = threading.Thread(target=job.start, args=tuple(sys.argv[1:4]), kwargs={"jobs": 2, "from_scratch": True})
+    request.start()
+    request.join()
+    time.sleep(600)
+""")
+
+
+@linux_proc
+@pytest.mark.slow
+def test_training_started_by_the_page_ends_with_its_server(tmp_path):
+    manifest, lexicon = make_corpus(tmp_path / "tones", np.random.default_rng(6), n_utterances=60)
+    scratch = tmp_path / "tmp"
+    scratch.mkdir()
+    server = subprocess.Popen([sys.executable, "-c", SERVER, str(manifest), str(lexicon), str(tmp_path / "t.model")],
+                              env=env(scratch), stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    started = []
+    try:
+        assert wait_until(lambda: any("wordspot.cli" in command_line(p) for p in children(server.pid)), 30)
+        (training,) = [p for p in children(server.pid) if "wordspot.cli" in command_line(p)]
+        assert wait_until(lambda: sum(map(_is_loky_worker, children(training))) == 2, 120)
+        time.sleep(2.0)  # the request thread that started it ended long ago: it goes on
+        assert running(training)
+        started = [training] + children(training)
+        server.send_signal(signal.SIGKILL)
+        server.wait()
+        assert wait_until(lambda: not any(map(running, started)), 6.0), \
+            [command_line(p)[:80] for p in started if running(p)]
+        assert wait_until(lambda: not list(scratch.glob(f"{FOLDER_PREFIX}*")), 2.0)
+    finally:
+        server.kill()
+        server.wait()
         for pid in filter(running, started):  # left over when the test fails
             os.kill(pid, signal.SIGKILL)

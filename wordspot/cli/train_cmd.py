@@ -13,6 +13,7 @@ from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
 from wordspot.training.adapt import AdaptationConfig, adapt
 from wordspot.training.trainer import TrainingConfig, train
+from wordspot.training.workers import end_with_starter
 
 __all__ = ["add_parser", "mixture_schedule"]
 
@@ -165,6 +166,7 @@ _SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "spe
 
 
 def _run(args) -> int:
+    end_with_starter()  # started by the recording page: end when it ends
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     lexicon = read_lexicon(args.lexicon)
     utterances = read_manifest(args.manifest)

@@ -8,7 +8,8 @@ killed with SIGKILL, which runs no clean-up of its own):
 - everywhere, a small thread checks every second whether its parent process has changed
   (``os.getppid()``: an orphan is handed to another process).
 
-Either way the worker first removes its parent's work folder. The parent's work folder
+Either way, and when a worker ends on its own because its parent's end closed its task
+pipe, the worker first removes its parent's work folder. The parent's work folder
 (frames files and joblib's temporary files) is named after the parent's process id
 (``wordspot-work-<pid>-...``), so a later run also removes the folders of processes that
 no longer exist (:func:`remove_stale_folders`).
@@ -29,13 +30,18 @@ import signal
 import sys
 import tempfile
 import threading
+import time
 from pathlib import Path
 
-__all__ = ["FOLDER_PREFIX", "work_folder", "remove_stale_folders", "tie_to_parent"]
+__all__ = ["FOLDER_PREFIX", "PARENT_VARIABLE", "work_folder", "remove_stale_folders", "tie_to_parent",
+           "end_with_starter"]
 
 #: Start of the name of a process's work folder; its process id follows.
 FOLDER_PREFIX = "wordspot-work-"
 _FOLDER_RE = re.compile(re.escape(FOLDER_PREFIX) + r"(\d+)-")
+#: Environment variable naming the process a ``wordspot train`` run ends with (set by the
+#: recording page for the training it starts; see :func:`end_with_starter`).
+PARENT_VARIABLE = "WORDSPOT_END_WITH"
 _PR_SET_PDEATHSIG = 1  # from <linux/prctl.h>
 _POLL_SECONDS = 1.0
 
@@ -95,10 +101,38 @@ def _orphaned(parent_pid: int, folder: str | None) -> None:
     os._exit(1)
 
 
-def _on_sigterm(parent_pid: int, folder: str | None):
+def _parent_gone(parent_pid: int) -> bool:
+    """Whether the parent has ended or is ending.
+
+    A parent with several threads that is killed hands its children to one of its other
+    threads for a moment, so ``os.getppid()`` still names it; its main thread is then
+    already a zombie (state Z in /proc on Linux).
+    """
+    if os.getppid() != parent_pid:
+        return True
+    try:
+        with open(f"/proc/{parent_pid}/stat", "rb") as f:
+            state = f.read().rsplit(b")", 1)[1].split()[0]
+    except (OSError, IndexError):
+        return False
+    return state in (b"Z", b"X")
+
+
+def _remove_if_orphaned(parent_pid: int, folder: str | None) -> None:
+    if folder and _parent_gone(parent_pid):
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def _on_sigterm(parent_pid: int, folder: str | None, wait: float = 1.0):
     def handler(signum, frame):
-        if os.getppid() != parent_pid:
-            _orphaned(parent_pid, folder)
+        # the signal Linux sends at the parent's end may come before the parent is fully gone
+        deadline = time.monotonic() + wait
+        while True:
+            if _parent_gone(parent_pid):
+                _orphaned(parent_pid, folder)
+            if time.monotonic() >= deadline:
+                break
+            time.sleep(0.02)
         # Asked to end by someone else: end as SIGTERM always ends a process.
         signal.signal(signal.SIGTERM, signal.SIG_DFL)
         os.kill(os.getpid(), signal.SIGTERM)
@@ -107,7 +141,7 @@ def _on_sigterm(parent_pid: int, folder: str | None):
 
 def _watch(parent_pid: int, folder: str | None, every: float) -> None:
     while True:
-        if os.getppid() != parent_pid:
+        if _parent_gone(parent_pid):
             _orphaned(parent_pid, folder)
         threading.Event().wait(every)
 
@@ -125,7 +159,8 @@ def _ask_for_signal_at_parent_end() -> bool:
         return False
 
 
-def tie_to_parent(parent_pid: int, folder: str | None = None, every: float = _POLL_SECONDS) -> None:
+def tie_to_parent(parent_pid: int, folder: str | None = None, every: float = _POLL_SECONDS, *,
+                  kernel_signal: bool = True) -> None:
     """Worker initializer: end this process (removing ``folder``) once ``parent_pid`` is gone.
 
     Parameters
@@ -136,11 +171,34 @@ def tie_to_parent(parent_pid: int, folder: str | None = None, every: float = _PO
         Its work folder, removed by the first worker that finds the parent gone.
     every : float
         Seconds between checks of the watching thread.
+    kernel_signal : bool
+        Also ask Linux for SIGTERM when the parent ends. Only for a process started from a
+        thread that lives as long as the parent (the signal comes when that thread ends).
     """
-    if threading.current_thread() is threading.main_thread():
-        signal.signal(signal.SIGTERM, _on_sigterm(parent_pid, folder))
-    _ask_for_signal_at_parent_end()
-    if os.getppid() != parent_pid:  # the parent ended before the signal was asked for
+    if kernel_signal:
+        if threading.current_thread() is threading.main_thread():
+            signal.signal(signal.SIGTERM, _on_sigterm(parent_pid, folder))
+        _ask_for_signal_at_parent_end()
+    if _parent_gone(parent_pid):  # the parent ended before the signal was asked for
         _orphaned(parent_pid, folder)
+    # a worker may also end on its own when the parent's end closes its task pipe
+    atexit.register(_remove_if_orphaned, parent_pid, folder)
     threading.Thread(target=_watch, args=(parent_pid, folder, every), name="wordspot-parent-watch",
                      daemon=True).start()
+
+
+def end_with_starter() -> bool:
+    """End this process once the process named by ``WORDSPOT_END_WITH`` is gone (if set).
+
+    The recording page starts ``wordspot train`` from a short-lived request thread, so only
+    the watching thread is used (no kernel signal). False when the variable is not set or
+    does not name this process's parent.
+    """
+    try:
+        pid = int(os.environ.get(PARENT_VARIABLE, ""))
+    except ValueError:
+        return False
+    if pid != os.getppid():
+        return False
+    tie_to_parent(pid, kernel_signal=False)
+    return True
