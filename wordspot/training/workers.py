@@ -6,7 +6,7 @@ killed with SIGKILL, which runs no clean-up of its own):
 
 - on Linux, the kernel sends it SIGTERM when the parent ends (``prctl(PR_SET_PDEATHSIG)``);
 - everywhere, a small thread checks every second whether its parent process has changed
-  (``os.getppid()``: an orphan is handed to another process).
+  (``os.getppid()``: an orphan is handed to another process) or, on Linux, is a zombie.
 
 Either way, and when a worker ends on its own because its parent's end closed its task
 pipe, the worker first removes its parent's work folder. The parent's work folder
