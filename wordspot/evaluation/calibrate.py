@@ -332,8 +332,8 @@ def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig 
         warnings.warn(
             f"confidence calibration skipped: {examples.recordings} held-out recording(s) gave {n_right} right "
             f"and {n_wrong} wrong word(s); it needs {config.min_items} recordings and {config.min_per_class} "
-            "words of each kind (record more takes, or raise the held-out share); word confidences stay "
-            "the uncalibrated heuristic",
+            "words of each kind (record more takes, or raise the held-out share, --calibration-share); word "
+            "confidences stay rough scores, not probabilities (the uncalibrated heuristic)",
             TrainingWarning,
             stacklevel=2,
         )
