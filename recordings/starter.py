@@ -95,15 +95,15 @@ _OFFENSIVE_ROT13 = (
 ).split()
 
 #: Words that the dictionary-case check lets through but that are mostly names of people,
-#: places or brands, titles, abbreviations or informal spellings here. Our own list, from
-#: reading the chosen words.
-_NAME_LIKE = frozenset("""
-    mary ben bob don frank graham harry henry jack james joe joey lee martin mike peter sam tom
-    tony walsh wang smith trump thatcher troy raj heather goldsmith johannes bowie hayward kensington
-    boston brunswick canada china japan paris russia shanghai angeles los san jersey worcester
-    wellington pueblo yahoo twitter android python
-    ms mrs mr dr jr st co inc ltd vs etc ok ca ce id eu un al de la ama sos ma ya ye tho re
-""".split())
+#: places or brands, titles, abbreviations or informal spellings here, in ROT13 like the list
+#: above (decode with codecs.decode(word, "rot13")). Our own list, from reading the chosen words.
+_NAME_LIKE_ROT13 = (
+    "znel ora obo qba senax tenunz uneel urael wnpx wnzrf wbr wbrl yrr znegva zvxr crgre fnz gbz "
+    "gbal jnyfu jnat fzvgu gehzc gungpure gebl enw urngure tbyqfzvgu wbunaarf objvr unljneq xrafvatgba "
+    "obfgba oehafjvpx pnanqn puvan wncna cnevf ehffvn funatunv natryrf ybf fna wrefrl jbeprfgre "
+    "jryyvatgba chroyb lnubb gjvggre naqebvq clguba "
+    "zf zef ze qe we fg pb vap ygq if rgp bx pn pr vq rh ha ny qr yn nzn fbf zn ln lr gub er"
+).split()
 
 
 def _rot13(word: str) -> str:
@@ -112,6 +112,7 @@ def _rot13(word: str) -> str:
 
 
 OFFENSIVE = frozenset(_rot13(w) for w in _OFFENSIVE_ROT13)
+_NAME_LIKE = frozenset(_rot13(w) for w in _NAME_LIKE_ROT13)
 
 
 class StarterError(RuntimeError):

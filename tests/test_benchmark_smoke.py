@@ -4,6 +4,7 @@ Two well-separated "words", each a sequence of Gaussian frames around its own tw
 (first half, second half); both recognisers must tell them apart. Not the benchmark itself.
 """
 
+import re
 import sys
 from pathlib import Path
 
@@ -79,3 +80,26 @@ def test_template_dtw_engines_agree(problem):
     assert [len(t) for t in a.templates_] == [len(t) for t in b.templates_]
     for _, x in test:
         np.testing.assert_array_equal(a.scores(x), b.scores(x))
+
+
+def test_profile_rows_name_files_without_this_machines_paths(tmp_path):
+    from compare_measure import REPO, profile_top, source_name
+
+    # common practice, no source: a results file names files relative to the repository
+    assert source_name(str(REPO / "wordspot" / "decoding" / "kernels.py")) == "wordspot/decoding/kernels.py"
+    checkout = tmp_path / "checkout"
+    assert source_name(str(checkout / "wordspot" / "api.py"), repo=checkout) == "wordspot/api.py"
+    assert source_name("/opt/venv/lib/python3.11/site-packages/numpy/fft/_pocketfft.py") == "numpy/fft/_pocketfft.py"
+    assert source_name("/usr/lib/python3.11/json/decoder.py") == "json/decoder.py"
+    assert source_name("/somewhere/else/helper.py") == "helper.py"
+    assert source_name("~") == "~"
+    from wordspot.audio.features import FeatureSettings, compute_features
+
+    rows = profile_top(lambda: compute_features(np.zeros(16000, dtype=np.float32), FeatureSettings()), top=50)
+    assert rows and not any(name.startswith("/") for name, *_ in rows)
+    assert any(name.startswith("wordspot/audio/features.py:") for name, *_ in rows)
+
+
+def test_results_file_holds_no_absolute_paths():
+    text = (Path(__file__).resolve().parent / "benchmarks" / "results.md").read_text(encoding="utf-8")
+    assert not re.search(r"`/(?:work|home|root|tmp|Users|opt|usr)/", text)

@@ -2,7 +2,7 @@
 
 The demo corpus (``recordings/`` in a checkout) is synthetic speech from several
 text-to-speech engines and voices; its test sets use voices that training never heard.
-Real users train on their own voice (see the README's quick tour).
+Real users train on their own voice (README: "Quick tour: train on your own recordings").
 
 Three kinds of row: word sets (the WER table); the test commands among the distractors,
 files with no command (miss rate, share of those files with a recognised word, false
@@ -297,7 +297,7 @@ def render_table(results: dict) -> str:
     """
     names = list(results)
     first = results[names[0]]
-    header = ["set", "utts", "words"] + [f"WER {n}" for n in names] + ["what it shows"]
+    header = ["set", "files", "words"] + [f"WER {n}" for n in names] + ["what it shows"]
     body = []
     for k, row in enumerate(first):
         if row.kind != "words":

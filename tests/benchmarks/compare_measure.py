@@ -7,12 +7,17 @@ import io
 import os
 import platform
 import pstats
+import re
 import time
+from pathlib import Path
 from typing import Callable
 
 import numpy as np
 
-__all__ = ["machine_info", "matmul_flop_rate", "best_time", "profile_top"]
+__all__ = ["machine_info", "matmul_flop_rate", "best_time", "profile_top", "source_name"]
+
+#: The repository this file sits in (tests/benchmarks/ is two levels down).
+REPO = Path(__file__).resolve().parents[2]
 
 
 def machine_info() -> dict[str, str]:
@@ -60,10 +65,21 @@ def profile_top(fn: Callable[[], object], *, top: int = 12) -> list[tuple[str, i
     stats = pstats.Stats(prof, stream=io.StringIO())
     rows = []
     for (filename, line, name), (cc, nc, tt, ct, _callers) in stats.stats.items():
-        short = filename
-        for marker in ("site-packages/", "/work/main/", "lib/python"):
-            if marker in short:
-                short = short.split(marker, 1)[1]
-        rows.append((f"{short}:{line}({name})", int(nc), float(tt), float(ct)))
+        rows.append((f"{source_name(filename)}:{line}({name})", int(nc), float(tt), float(ct)))
     rows.sort(key=lambda r: -r[2])
     return rows[:top]
+
+
+def source_name(filename: str, repo: Path = REPO) -> str:
+    """A profiled file as it may be printed: relative to the repository, to the installed
+    packages, or the standard library's, never an absolute path of this machine."""
+    if not os.path.isabs(filename):
+        return filename  # "~" (built-ins) and the like
+    path = Path(os.path.abspath(filename))
+    try:
+        return path.relative_to(Path(os.path.abspath(repo))).as_posix()
+    except ValueError:
+        pass
+    text = path.as_posix()
+    m = re.search(r"/(?:site-packages|dist-packages)/(.+)$", text) or re.search(r"/lib/python[\d.]*/(.+)$", text)
+    return m.group(1) if m else path.name

@@ -21,7 +21,7 @@ def test_check_prints_summary(bakery, capsys):
     out = capsys.readouterr().out.splitlines()
     used = {"N", "IY", "D", "P", "R", "UW", "F", "AH", "V", "AO"}
     assert out[0] == f"{bakery}: 3 words, 4 pronunciations, {len(used)} of 39 phones used"
-    assert out[1] == f"units used ({len(used)}): {' '.join(sorted(used))}"
+    assert out[1] == f"sounds used ({len(used)}): {' '.join(sorted(used))}"
     never = [p for p in ARPABET_PHONES if p not in used]
     assert out[2] == f"phones never used ({len(never)}): {' '.join(never)}"
 
@@ -40,7 +40,7 @@ def test_check_any_units(tmp_path, capsys):
     path.write_text("hum HUM_1 HUM_2\nknead N IY D\n", encoding="utf-8")
     assert main(["lexicon", "check", "--any-units", str(path)]) == 0
     out = capsys.readouterr().out
-    assert "units outside the 39 phones (2): HUM_1 HUM_2" in out and "3 of 39 phones used" in out
+    assert "sounds that are not among the 39 ARPAbet phones (2): HUM_1 HUM_2" in out and "3 of 39 phones used" in out
 
 
 def test_check_missing_and_empty_files(tmp_path, capsys):

@@ -222,6 +222,7 @@ def test_too_short_gives_empty_result_with_reason(rng):
     assert need == 2 + 6 + 2  # two pauses of >= 2 frames and the 2-phone "sack" (3 frames each)
     got = rec.decode(frames_along(model, [0] * (need - 1), rng))
     assert got.words == [] and got.reason.startswith("too short")
+    assert "record a longer take" in got.reason and f"({need * model.features.hop_ms / 1000:.2f} s" in got.reason
 
 
 def test_silence_only_gives_empty_result(rng):
@@ -239,6 +240,9 @@ def test_no_complete_path_gives_empty_result(rng):
     path = pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"])[:12]
     got = recognize_features(model, frames_along(model, path, rng), settings=DecoderSettings(beam=10.0, insertion_penalty=0.0))
     assert got.words == [] and got.reason.startswith("no complete path")
+    # what happened and what to do, in plain words (no "entry pause")
+    assert "lost track of the recording" in got.reason and "larger --beam" in got.reason
+    assert "entry pause" not in got.reason
 
 
 def test_bad_features_and_settings_raise_clear_errors(rng):

@@ -38,6 +38,7 @@ def test_phones_that_spell_no_word_are_absorbed_and_a_word_is_reported(rng):
     word = pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"]) + pause_mixtures(model, 6)
     got_other = rec.decode(frames_along(model, other, rng))
     assert got_other.words == [] and got_other.reason.startswith(REASON_NO_COMMAND)
+    assert "sounds more like other talk" in got_other.reason and "(any phones)" not in got_other.reason
     assert rec.decode(frames_along(model, word, rng)).words == ["bat"]
     # without the filler the same non-word comes out as some command
     plain = build_recognizer(model, settings=_settings(filler=False))

@@ -88,6 +88,11 @@ def test_one_row_per_utterance_with_errors_and_players_that_find_their_files(tmp
     text = page.read_text(encoding="utf-8")
     assert "50.00%" in text and "3 of 4" in text
     assert "http://" not in text and "https://" not in text
+    # plain words for people; the trade's terms only in parentheses
+    assert "<h2 id=\"errors-heading\">Recordings with errors</h2>" in text
+    assert "<dt>heard as another word</dt><dd>1 (substituted)</dd>" in text and "<dt>missed</dt><dd>3 (deleted)</dd>" in text
+    visible = re.sub(r"<script>.*?</script>|<style>.*?</style>|<[^>]+>", " ", text, flags=re.S)
+    assert "utterance" not in visible.lower() and "replicates" not in visible
 
 
 def test_errors_are_named_in_words(tmp_path):

@@ -93,11 +93,12 @@ def test_reports_show_the_table(tmp_path):
               for k, (w, c) in enumerate(zip(["oven" if ok else "stop" for ok in CORRECT], CONFIDENCES))]
     result = score_utterances(scored, n_bootstrap=10)
     text = render_result(result)
-    assert "expected calibration error 13.13%" in text  # 13.125% rounded
+    assert "confidences are off by 13.13% on average: expected calibration error" in text  # 13.125% rounded
     assert re.search(r"\n0\.9-1\.0 +3 +0\.95 +100\.00%", text)
     files = write_report(result, tmp_path / "report", picture=False)
     with open(files.reliability, newline="") as fh:
         table = list(csv.DictReader(fh))
     assert len(table) == 10 and table[5]["words"] == "2" and table[5]["share_correct"] == "0.500000"
     page = write_html_report(ManifestEvaluation("set", result, [], [], 0.1, 8.0), tmp_path / "report")
-    assert "expected calibration error 13.13% over 8 words heard" in Path(page).read_text(encoding="utf-8")
+    assert ("confidences are off by 13.13% on average over 8 words heard (expected calibration error"
+            in Path(page).read_text(encoding="utf-8"))

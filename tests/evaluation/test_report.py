@@ -45,11 +45,15 @@ def test_summary_shows_the_figures():
     assert text.splitlines()[0] == "bakery test set"
     assert "50.00%" in text
     assert f"{100 * low:.2f}%" in text and f"{100 * high:.2f}%" in text
-    assert "300 bootstrap replicates" in text
+    assert "likely lie between" in text and "300 bootstrap draws" in text
     assert "3 of 4" in text and "75.00%" in text
-    for label, value in [("substitutions", 1), ("deletions", 3), ("insertions", 1), ("reference words", 10)]:
-        line = next(line for line in text.splitlines() if label in line)
-        assert line.split()[-1] == str(value)
+    for label, value in [("heard as another word", 1), ("missed", 3), ("heard but not said", 1), ("words said", 10),
+                         ("recordings scored", 4)]:
+        line = next(line.strip() for line in text.splitlines() if line.strip().startswith(label))
+        assert line[len(label):].split()[0] == str(value)
+    # in plain words; the trade's terms only in parentheses
+    assert "utterance" not in text and "replicates" not in text and "reference words" not in text
+    assert "(substitutions)" in text and "(deletions)" in text and "(insertions)" in text
 
 
 def test_tables_show_the_rows():

@@ -2,6 +2,7 @@
 
 import json
 import math
+import re
 from functools import lru_cache
 
 import jiwer
@@ -183,11 +184,11 @@ def test_only_no_command_recordings_are_scored_for_false_accepts():
     from wordspot.evaluation.report import render_summary
 
     text = render_summary(result)
-    assert "word error rate         n/a" in text and "false accepts" in text
+    assert re.search(r"word error rate +n/a", text) and "false accepts" in text
 
 
 def test_score_utterances_rejects_empty_input():
-    with pytest.raises(ScoringError, match="no utterances"):
+    with pytest.raises(ScoringError, match="no recordings"):
         score_utterances([])
     with pytest.raises(ScoringError, match="bad.wav: .*not a single non-empty word"):
         score_utterances([ScoredUtterance("bad.wav", "s", ("oven on",), ())])

@@ -48,7 +48,7 @@ def test_scores_worked_by_hand():
     assert b_["start_mean"] == pytest.approx(0.3) and b_["start_median"] == pytest.approx(0.3)
     assert b_["on_time"] == pytest.approx(0.5)  # only the first hit has both ends within 0.3 s
     text = format_timed_score(s)
-    assert "hits 2 (66.7%), misses 1" in text and "2.0 per hour" in text
+    assert "found with the right words 2 (66.7%: hits), missed 1" in text and "2.0 per hour" in text
 
 
 def test_recording_without_commands_and_missing_duration():

@@ -100,7 +100,7 @@ def test_training_counts_them_and_share_zero_is_the_plain_result(tiny):
     model, summary = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.25))
     assert summary.used == zero_summary.used == len(utts)  # recordings only
     assert summary.backgrounds == MIN_BACKGROUNDS == model.info["background_items"]
-    assert "background-only items (no command): 20" in summary.lines()
+    assert "background sounds added (no command): 20" in summary.lines()
     assert summary.n_frames > zero_summary.n_frames + MIN_BACKGROUNDS * 95
     assert not np.array_equal(model.mixtures.means, zero.mixtures.means)
 

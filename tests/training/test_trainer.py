@@ -11,7 +11,7 @@ from wordspot.corpus import read_manifest
 from wordspot.errors import ManifestError, TrainingError, TrainingWarning
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import load_model
-from wordspot.training.trainer import TrainingConfig, train
+from wordspot.training.trainer import PASS_LEGEND, TrainingConfig, train
 from wordspot.cli.train_cmd import mixture_schedule
 
 from conftest import LEXICON_DIR, RECORDINGS
@@ -50,14 +50,16 @@ def test_training_with_silent_and_short_files(tmp_path, rng):
     skipped = {s.path.name for s in summary.skipped}
     assert skipped == {"short.wav", "tiny.wav"}
     assert summary.used == 17  # 16 tone utterances and the silent one
-    assert len(summary.passes) == 5 and len(lines) == 5
+    assert len(summary.passes) == 5 and lines[0] == PASS_LEGEND and len(lines) == 1 + 5
+    assert lines[1].split()[:2] == ["pass", "1"] and "detail 1" in lines[1] and "fit " in lines[1]
     check_probabilities(model)
     assert model.mixtures.n_components == 2
     assert model.info["utterances"] == 17 and len(model.info["loglik_per_pass"]) == 5
     # Word-pair counts: every used utterance opens once with some word.
     assert model.bigrams.counts[0].sum() == 17
     text = "\n".join(summary.lines())
-    assert "short.wav" in text and "utterances used: 17" in text
+    assert "short.wav" in text and "recordings used: 17 (" in text and "recordings skipped: 2" in text
+    assert "utterance" not in text and "frames per unit" not in text and "units with no data" not in text
 
 
 def test_likelihood_rises_on_tone_corpus(tmp_path, rng):
@@ -127,8 +129,8 @@ def test_train_command_writes_a_model(tmp_path, rng, capsys):
                    "--background-share", "0.5"])
     assert status == 0
     printed = capsys.readouterr().out
-    assert "log-likelihood per frame" in printed and "wrote" in printed
-    assert "background-only items (no command): 20" in printed  # 0.5 x 12 recordings, at least 20
+    assert PASS_LEGEND in printed and "wrote" in printed and "(12 recordings, trained from scratch" in printed
+    assert "background sounds added (no command): 20" in printed  # 0.5 x 12 recordings, at least 20
     model = load_model(out)
     assert model.info["background_share"] == 0.5 and model.info["background_items"] == 20
     assert model.mixtures.n_components == 2

@@ -6,7 +6,7 @@ import io
 
 import pytest
 
-from wordspot.training.adapt import AdaptationConfig
+from wordspot.training.adapt import ADAPT_LEGEND, AdaptationConfig
 from wordspot.web.training_job import TrainingJob
 
 
@@ -33,7 +33,7 @@ def _progress(lines):
 def test_progress_counts_both_trainings_of_a_calibrated_adaptation():
     passes = AdaptationConfig().passes + int(AdaptationConfig().mean_transform)
     first = ["confidence calibration: training on 80 recordings, 14 held out"]
-    first += [f"adapt pass {k}  log-likelihood per frame -40.0" for k in range(1, passes + 1)]
+    first += [ADAPT_LEGEND] + [f"adapt pass {k}  fit -40.0" for k in range(1, passes + 1)]
     # worked by hand: all passes of the first of two trainings are half the run, one more a
     # further 1 / (2 x passes)
     assert _progress(first) == pytest.approx(0.5)

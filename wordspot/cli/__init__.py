@@ -46,6 +46,7 @@ examples (a bakery: bakers with dough on their hands call out commands):
 
 Voice commands are a convenience, never a safety device: keep a physical stop within
 reach for anything that can hurt someone (ovens, mixers, slicers), and follow local rules.
+A misheard command can also start something: let nothing dangerous start on voice alone.
 """
 
 

@@ -13,7 +13,7 @@ _EPILOG = """\
 The demo recordings are synthetic speech from text-to-speech voices, set in a bakery
 where bakers call out commands to a recipe screen, the oven and the mixer. The test sets
 use voices that training never heard. Your own recordings of your own voice are what you
-should train on for real use (see README: "Train on your own recordings").
+should train on for real use (see README: "Quick tour: train on your own recordings").
 
 examples:
   wordspot demo                              three systems side by side (about 4 minutes)
@@ -23,10 +23,13 @@ examples:
 
 Voice commands are a convenience, never a safety device: keep a physical stop within
 reach for ovens, mixers and anything else that can hurt someone, and follow local rules.
+A misheard command can also start something: let nothing dangerous start or speed up on
+voice alone.
 """
 
 _SAFETY = ("Voice commands are a convenience, never a safety device: keep a physical stop within reach "
-           "for the oven, the mixer and anything else that can hurt someone, and follow local rules.")
+           "for the oven, the mixer and anything else that can hurt someone, and follow local rules. "
+           "A misheard command can also start something: let nothing dangerous start or speed up on voice alone.")
 
 
 def add_parser(sub, **options):
@@ -82,6 +85,7 @@ def _run(args) -> int:
     print(f"  wordspot recognize --model {model_file} --times {folder / 'audio' / 'test-phrases'}/*/*.flac")
     print("  record your own takes, list them in a manifest (path,transcript,speaker) and run")
     print("  wordspot train my-takes/train.csv --lexicon lexicon/bakery.txt --out my.model")
+    print('  (README: "Quick tour: train on your own recordings")')
     print()
     print(_SAFETY)
     return 0

@@ -23,7 +23,7 @@ examples (a bakery: commands called out with dough on your hands):
       what dropping words below 0.8 confidence costs in misses and saves in false accepts
 
 Each manifest is a CSV file with columns path,transcript,speaker. The WER interval is a
-95% bootstrap interval over utterances (Bisani and Ney, 2004). A row with an empty
+95% bootstrap interval over recordings (Bisani and Ney, 2004). A row with an empty
 transcript is a recording with no command in it (the mixer running, chatter): every word
 recognised there is a false accept, counted per hour of such audio. The miss rate is the
 share of said words deleted or substituted. With both kinds of row, --report also draws
@@ -39,7 +39,8 @@ def add_parser(sub, **options):
         "evaluate",
         **options,
         description="Recognise every recording of one or more manifests and compare the words with "
-        "their transcripts: substitutions, deletions, insertions, WER with a 95%% interval, "
+        "their transcripts: words heard as another word, missed, or heard but not said, the word "
+        "error rate (WER) with the range it likely lies in (95% interval), "
         "and tables by word and by speaker.",
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
@@ -54,7 +55,7 @@ def add_parser(sub, **options):
                    help="with --report: copy the recordings with errors into the report folder, so that "
                    "index.html plays them after the folder is moved")
     p.add_argument("--bootstrap", type=int, default=1000, metavar="N",
-                   help="bootstrap replicates for the WER interval (default 1000)")
+                   help="resampling draws for the likely range of the WER (bootstrap; default 1000)")
     add_decoder_options(p)
     p.set_defaults(func=_run)
     return p
@@ -90,8 +91,10 @@ def _run(args) -> int:
             print(json.dumps(ev.to_dict(), ensure_ascii=False))
         else:
             print(render_result(ev.result, title=f"{name} ({manifest})"))
-            print(f"recognition: {ev.seconds:.1f} s for {ev.audio_seconds:.1f} s of audio "
-                  f"(real-time factor {ev.real_time_factor:.4f})\n")
+            print(f"recognition took {ev.seconds:.1f} s for {ev.audio_seconds:.1f} s of sound"
+                  + (f", {1 / ev.real_time_factor:.0f} times faster than the sound lasts"
+                     if ev.real_time_factor > 0 else "")
+                  + f" (real-time factor {ev.real_time_factor:.4f})\n")
         if args.report:
             folder = Path(args.report)
             if len(args.manifests) > 1:

@@ -89,9 +89,9 @@ def _run_check(args) -> int:
     phones_used = len(used) - len(extra)
     print(f"{args.file}: {len(lex)} words, {lex.n_pronunciations} pronunciations, "
           f"{phones_used} of {len(ARPABET_PHONES)} phones used")
-    print(f"units used ({len(used)}): {' '.join(sorted(used))}")
+    print(f"sounds used ({len(used)}): {' '.join(sorted(used))}")
     if extra:
-        print(f"units outside the 39 phones ({len(extra)}): {' '.join(extra)}")
+        print(f"sounds that are not among the 39 ARPAbet phones ({len(extra)}): {' '.join(extra)}")
     print(f"phones never used ({len(unused)}): {' '.join(unused) if unused else '(none)'}")
     return 0
 

@@ -30,7 +30,7 @@ examples (a bakery: commands called out with dough on your hands):
       when `wordspot train` calibrated them, as it does by default)
 
 prior file (plain text): one word pair a line, previous word, next word, a count;
-'^' is the start and '$' the end of an utterance; '#' starts a comment:
+'^' is the start and '$' the end of a recording; '#' starts a comment:
   ^      oven   12
   oven   start  10
   start  $      10
@@ -67,22 +67,25 @@ def add_decoder_options(p) -> None:
     p.add_argument("--single-word", action="store_true", help="exactly one word per file (isolated commands)")
     p.add_argument("--jobs", "-j", type=int, default=1, metavar="N", help="files decoded at once, in threads (default 1)")
     d = DecoderSettings()
-    p.add_argument("--beam", type=float, default=d.beam, help=f"search beam in log units (default {d.beam:g})")
+    p.add_argument("--beam", type=float, default=d.beam,
+                   help="how far behind the best guess a guess may fall and still be followed (search beam, "
+                   f"log units); larger is slower but loses fewer words (default {d.beam:g})")
     p.add_argument("--word-end-beam", type=float, default=d.word_end_beam,
-                   help=f"beam for word ends (default {d.word_end_beam:g})")
+                   help=f"the same for the ends of words (word-end beam; default {d.word_end_beam:g})")
     p.add_argument("--state-limit", type=int, default=d.state_limit,
-                   help=f"most states kept per frame (default {d.state_limit})")
+                   help=f"most guesses kept at each step of the sound (states a frame; default {d.state_limit})")
     p.add_argument("--grammar-weight", type=float, default=d.grammar_weight,
-                   help=f"weight of the word-pair prior (default {d.grammar_weight:g})")
+                   help="how much the usual word order counts (weight of the word-pair prior; "
+                   f"default {d.grammar_weight:g})")
     p.add_argument("--insertion-penalty", type=float, default=d.insertion_penalty,
-                   help=f"log score added per word; negative gives fewer words (default {d.insertion_penalty:g})")
+                   help=f"score added for each word heard (log units); negative gives fewer words (default {d.insertion_penalty:g})")
     p.add_argument("--no-filler", action="store_true",
                    help="let only the commands and the pause explain the audio (no rejection of other talk)")
     p.add_argument("--filler-penalty", type=float, default=d.filler_penalty,
-                   help="log score added per phone of other talk; lower (more negative) lets more audio "
+                   help="score added for each sound of other talk (log units, a phone of the filler); lower (more negative) lets more audio "
                         f"through as commands (default {d.filler_penalty:g})")
     p.add_argument("--pause-penalty", type=float, default=d.pause_penalty,
-                   help=f"log score added per pause between words (default {d.pause_penalty:g})")
+                   help=f"score added for each pause between words (log units; default {d.pause_penalty:g})")
     p.add_argument("--min-confidence", type=_probability, default=None, metavar="P",
                    help="drop words whose confidence is below P (0 keeps every word; default "
                    f"{DEFAULT_MIN_CONFIDENCE:g} for a model with calibrated confidences, else 0)")

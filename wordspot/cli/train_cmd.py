@@ -13,6 +13,7 @@ from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
 from wordspot.training.adapt import AdaptationConfig, adapt
 from wordspot.training.trainer import TrainingConfig, train
+from wordspot.training.workers import end_with_starter
 
 __all__ = ["add_parser", "mixture_schedule"]
 
@@ -109,7 +110,8 @@ def add_parser(sub, **options):
     full.add_argument("--from-scratch", action="store_true",
                       help="learn every phone from these recordings alone, starting from nothing")
     full.add_argument("--mixtures", type=_positive, default=None, metavar="N",
-                      help="Gaussians per state at the end, reached by doubling (default 8)")
+                      help="detail of each sound's model at the end (Gaussians a state), reached by doubling; "
+                           "more needs more recordings (default 8)")
     full.add_argument("--passes", type=_positive, default=None, metavar="N",
                       help="re-estimation passes after each mixture doubling; the first stage gets N+2 "
                       f"(default {TrainingConfig.passes_per_split}, and {TrainingConfig.first_passes} "
@@ -164,6 +166,7 @@ _SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "spe
 
 
 def _run(args) -> int:
+    end_with_starter()  # started by the recording page: end when it ends
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     lexicon = read_lexicon(args.lexicon)
     utterances = read_manifest(args.manifest)
@@ -189,7 +192,7 @@ def _run(args) -> int:
     for line in summary.lines():
         say(line)
     path = save_model(model, args.out)
-    print(f"wrote {os.fspath(path)} ({summary.used} utterances, {what}, {summary.seconds:.1f} s)")
+    print(f"wrote {os.fspath(path)} ({summary.used} recordings, {what}, {summary.seconds:.1f} s)")
     return 0
 
 
@@ -215,7 +218,7 @@ def _scratch(args, lexicon, say):
         return train(utterances, lexicon, settings=settings, config=config,
                      manifest=args.manifest, quiet=args.quiet, report=say)
 
-    return fit, f"{config.mixtures[-1]} Gaussians a state, from scratch"
+    return fit, f"trained from scratch to detail {config.mixtures[-1]} (Gaussians a state)"
 
 
 def _share(args) -> dict:

@@ -117,9 +117,10 @@ def usable_calibration(calibration, names: Sequence[str] = MEASURE_NAMES, *, sou
     if tuple(calibration.names) == tuple(names):
         return calibration
     warnings.warn(
-        f"{source}: its confidence calibration uses the measures {', '.join(calibration.names)}, but this "
-        f"wordspot computes {', '.join(names)}; word confidences are the uncalibrated heuristic "
-        "(train the model again to calibrate them)",
+        f"{source}: the model was made by another version of wordspot, so its word confidences are rough "
+        f"scores, not probabilities (its calibration uses the measures {', '.join(calibration.names)}, this "
+        f"version computes {', '.join(names)}: the uncalibrated heuristic); train the model again to "
+        "calibrate them",
         WordspotWarning,
         stacklevel=3,
     )

@@ -422,8 +422,9 @@ class Recognizer:
         status, final, final_link, links, link_scores, _ = kernel(*self.kernel_arguments(ll))
         if status != decode_kernels.OK:
             result.reason = (
-                f"{REASON_NO_PATH}: no path from the entry pause through a word to the exit "
-                "pause survived the search (unclear audio or noise; a wider --beam may help)"
+                f"{REASON_NO_PATH}: the recogniser lost track of the recording before its end (unclear "
+                "sound or loud noise); record it again nearer the microphone, or let the search keep "
+                "more guesses with a larger --beam"
             )
             return result
         result.score = float(final)
@@ -465,13 +466,13 @@ class Recognizer:
         # confidence threshold (wordspot.decoding.confidence)
         result.segments, result.dropped = split_by_confidence(result.segments, self.min_confidence)
         if len(chain) <= 1:
-            result.reason = f"{REASON_SILENCE}: the pause model explains the recording better than any word"
+            result.reason = f"{REASON_SILENCE}: the recording sounds more like a pause than like any word"
         elif result.dropped and not result.segments:
             result.reason = (f"{REASON_LOW_CONFIDENCE}: every word heard ({' '.join(s.word for s in result.dropped)}) "
                              f"has a confidence below {self.min_confidence:g}")
         elif not result.segments:
-            result.reason = (f"{REASON_NO_COMMAND}: the filler (any phones) and pause models explain the "
-                             "recording better than any command word")
+            result.reason = (f"{REASON_NO_COMMAND}: the recording sounds more like other talk or "
+                             "background sound than like any of the command words (filler and pause models)")
         return result
 
     def decode_file(self, path) -> Recognition:
@@ -491,8 +492,9 @@ class Recognizer:
             if 0.0 < seconds < max(MIN_DURATION, self.network.min_frames * self.hop):
                 return Recognition(
                     path=name, duration=seconds,
-                    reason=f"{REASON_TOO_SHORT}: {seconds:.3f} s of audio, fewer than the shortest "
-                    f"word with the pauses around it needs ({self.network.min_frames} frames)",
+                    reason=f"{REASON_TOO_SHORT}: {seconds:.3f} s of sound, shorter than the shortest "
+                    f"word with a pause before and after it "
+                    f"({self.network.min_frames * self.hop:.2f} s); record a longer take",
                 )
             return Recognition(path=name, error=str(exc))
         except (OSError, ValueError, RuntimeError) as exc:  # anything the readers let through
@@ -511,8 +513,8 @@ def _background_items(net: Network) -> list[int]:
 
 def _too_short(n: int, hop: float, need: int) -> str:
     return (
-        f"{REASON_TOO_SHORT}: {n} frames ({n * hop:.2f} s); the shortest word with the "
-        f"pauses around it needs {need}"
+        f"{REASON_TOO_SHORT}: {n * hop:.2f} s of sound, shorter than the shortest word with a pause "
+        f"before and after it ({need * hop:.2f} s, {need} frames); record a longer take"
     )
 
 

@@ -333,8 +333,8 @@ def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig 
         warnings.warn(
             f"confidence calibration skipped: {examples.recordings} held-out recording(s) gave {n_right} right "
             f"and {n_wrong} wrong word(s); it needs {config.min_items} recordings and {config.min_per_class} "
-            "words of each kind (record more takes, or raise the held-out share); word confidences stay "
-            "the uncalibrated heuristic",
+            "words of each kind (record more takes, or raise the held-out share, --calibration-share); word "
+            "confidences stay rough scores, not probabilities (the uncalibrated heuristic)",
             TrainingWarning,
             stacklevel=2,
         )
@@ -362,7 +362,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         warnings.warn(
             f"confidence calibration skipped: holding out {config.held_out_share:.0%} of each transcript's "
             f"recordings gives {len(held)}, fewer than the {config.min_items} needed (record more takes, or "
-            "raise the held-out share); word confidences stay the uncalibrated heuristic",
+            "raise the held-out share, --calibration-share); word confidences stay rough scores, not "
+            "probabilities (the uncalibrated heuristic)",
             TrainingWarning,
             stacklevel=2,
         )

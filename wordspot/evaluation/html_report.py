@@ -129,8 +129,8 @@ def _speaker_table(result) -> str:
     rows = [f"<tr><td>{_e(r.speaker)}</td><td>{r.utterances}</td><td>{r.reference_words}</td>"
             f"<td>{r.substitutions}</td><td>{r.deletions}</td><td>{r.insertions}</td><td>{_pct(r.wer)}</td>"
             f"<td>{r.utterance_errors}</td></tr>" for r in result.speaker_table]
-    return ('<table class="figures"><thead><tr><th>speaker</th><th>utterances</th><th>words</th>'
-            '<th>substituted</th><th>deleted</th><th>inserted</th><th>WER</th><th>utterances with errors</th>'
+    return ('<table class="figures"><thead><tr><th>speaker</th><th>recordings</th><th>words</th>'
+            '<th>substituted</th><th>deleted</th><th>inserted</th><th>WER</th><th>recordings with errors</th>'
             '</tr></thead><tbody>' + "".join(rows) + "</tbody></table>")
 
 
@@ -257,9 +257,10 @@ def write_html_report(evaluation, folder, *, copy_audio: bool = False, confusion
                            f'rows are the words said, columns the words recognised" width="600">')
     reliability = reliability_of(r)
     reliability_html = "" if reliability is None else (
-        f"<dt>confidence reliability</dt><dd>expected calibration error "
-        f"{_pct(expected_calibration_error(reliability))} over {sum(b.words for b in reliability)} words heard "
-        f"(mean confidence against share right, per bin: reliability.csv)</dd>")
+        f"<dt>confidence reliability</dt><dd>confidences are off by "
+        f"{_pct(expected_calibration_error(reliability))} on average over {sum(b.words for b in reliability)} "
+        f"words heard (expected calibration error; mean confidence against share right, per bin: "
+        f"reliability.csv)</dd>")
     options = "".join(f'<option value="{_e(s)}">{_e(s)}</option>' for s in speakers)
     title = f"wordspot evaluation: {evaluation.name}"
     page = f"""<!DOCTYPE html>
@@ -269,17 +270,17 @@ def write_html_report(evaluation, folder, *, copy_audio: bool = False, confusion
 <h1>{_e(title)}</h1>
 <h2>Summary</h2>
 <dl class="summary">
-<dt>word error rate</dt><dd>{_pct(r.wer)} (95% interval {_pct(low)} to {_pct(high)}, {r.n_bootstrap} bootstrap replicates)</dd>
-<dt>reference words</dt><dd>{r.reference_words}</dd>
-<dt>substituted</dt><dd>{r.substitutions}</dd>
-<dt>deleted</dt><dd>{r.deletions}</dd>
-<dt>inserted</dt><dd>{r.insertions}</dd>
-<dt>correct words</dt><dd>{r.hits}</dd>
-<dt>utterances with errors</dt><dd>{r.utterance_errors} of {r.utterances} ({_pct(r.sentence_error_rate)})</dd>
+<dt>word error rate</dt><dd>{_pct(r.wer)} (on more recordings like these it would likely lie between {_pct(low)} and {_pct(high)}: 95% interval from {r.n_bootstrap} bootstrap draws)</dd>
+<dt>words said</dt><dd>{r.reference_words} (in the transcripts)</dd>
+<dt>heard as another word</dt><dd>{r.substitutions} (substituted)</dd>
+<dt>missed</dt><dd>{r.deletions} (deleted)</dd>
+<dt>heard but not said</dt><dd>{r.insertions} (inserted)</dd>
+<dt>heard right</dt><dd>{r.hits}</dd>
+<dt>recordings with errors</dt><dd>{r.utterance_errors} of {r.utterances} ({_pct(r.sentence_error_rate)})</dd>
 <dt>files that could not be read</dt><dd>{len(evaluation.failed)}</dd>
 {reliability_html}
 </dl>
-<h2 id="errors-heading">Utterances with errors</h2>
+<h2 id="errors-heading">Recordings with errors</h2>
 <p class="note">Each box shows a word said (top) and the word heard (bottom); errors are named
 (substituted, deleted, inserted) and coloured. The picture marks where the recognised words were heard.</p>
 <div class="controls">
@@ -293,7 +294,7 @@ def write_html_report(evaluation, folder, *, copy_audio: bool = False, confusion
 </tr></thead><tbody>
 {"".join(rows) if rows else ""}
 </tbody></table>
-{"" if rows else '<p>No utterance has an error.</p>'}
+{"" if rows else '<p>No recording has an error.</p>'}
 <h2>By word</h2>
 {_word_table(r)}
 <h2>By speaker</h2>

@@ -83,48 +83,53 @@ def _confusion_text(row: WordRow, sep: str = ", ") -> str:
     return sep.join(f"{DELETED_LABEL if r is None else r} x{c}" for r, c in row.confusions)
 
 
+def _labelled(rows) -> list[str]:
+    """``(label, value)`` rows as lines with the values in one column."""
+    width = max(len(label) for label, _ in rows) + 2
+    return [f"{label.ljust(width)}{value}" for label, value in rows]
+
+
 def render_summary(result: EvaluationResult, *, title: str | None = None) -> str:
-    """The summary block: WER with its interval, the error counts, the utterance error rate."""
+    """The summary block: WER with its interval, the error counts, the recording error rate."""
     low, high = result.wer_ci95
     lines = [title] if title else []
     if result.reference_words:
-        wer = (f"word error rate         {_pct(result.wer)}   "
-               f"(95% interval {_pct(low)} .. {_pct(high)}, {result.n_bootstrap} bootstrap replicates)")
+        wer = (f"{_pct(result.wer)}   (on more recordings like these it would likely lie between {_pct(low)} "
+               f"and {_pct(high)}: 95% interval from {result.n_bootstrap} bootstrap draws)")
     else:  # only recordings with no command: nothing to get right, only false accepts
-        wer = "word error rate         n/a   (no command words said; see the false accepts)"
-    lines += [
-        f"utterances scored       {result.utterances}",
-        f"reference words         {result.reference_words}",
-        wer,
-        f"  substitutions         {result.substitutions}",
-        f"  deletions             {result.deletions}",
-        f"  insertions            {result.insertions}",
-        f"  correct words         {result.hits}",
-        f"utterances with errors  {result.utterance_errors} of {result.utterances} "
-        f"({_pct(result.sentence_error_rate)})",
-        f"miss rate               {_pct(result.miss_rate)}   "
-        f"(reference words deleted or substituted: {result.substitutions + result.deletions} "
-        f"of {result.reference_words})",
+        wer = "n/a   (no command words said; see the words heard where none was said)"
+    rows = [
+        ("recordings scored", result.utterances),
+        ("words said", f"{result.reference_words}   (in the transcripts)"),
+        ("word error rate", wer),
+        ("  heard as another word", f"{result.substitutions}   (substitutions)"),
+        ("  missed", f"{result.deletions}   (deletions)"),
+        ("  heard but not said", f"{result.insertions}   (insertions)"),
+        ("  heard right", result.hits),
+        ("recordings with errors", f"{result.utterance_errors} of {result.utterances} "
+                                   f"({_pct(result.sentence_error_rate)})"),
+        ("miss rate", f"{_pct(result.miss_rate)}   (words said but missed or heard as another word: "
+                      f"{result.substitutions + result.deletions} of {result.reference_words})"),
     ]
-    lines += _detection_lines(result)
-    return "\n".join(lines)
+    rows += _detection_rows(result)
+    return "\n".join(lines + _labelled(rows))
 
 
-def _detection_lines(result: EvaluationResult) -> list[str]:
+def _detection_rows(result: EvaluationResult) -> list[tuple[str, str]]:
     n = result.non_command_utterances
     if n == 0:
-        return ["false accepts           not measured: no recordings without a command "
-                "(rows with an empty transcript)"]
+        return [("false accepts", "not measured: no recordings without a command "
+                                  "(rows with an empty transcript); record some other talk and room sound")]
     per_hour = result.false_accepts_per_hour
     rate = "duration unknown" if per_hour is None else f"{per_hour:.1f} per hour"
     seconds = "" if result.non_command_seconds is None else f", {result.non_command_seconds:.1f} s"
-    lines = [f"false accepts           {result.false_accepts} word(s) on {n} recording(s) "
-             f"without a command{seconds}: {rate}"]
+    rows = [("false accepts", f"{result.false_accepts} word(s) heard on {n} recording(s) "
+                              f"without a command{seconds}: {rate}")]
     eer = equal_error_rate_of(result)
     if eer is not None:
-        lines.append(f"equal error rate        {_pct(eer)}   (confidence threshold; false-accept rate "
-                     "= share of recordings without a command that get a word)")
-    return lines
+        rows.append(("equal error rate", f"{_pct(eer)}   (at the confidence threshold where the miss rate "
+                                         "equals the share of recordings without a command that get a word)"))
+    return rows
 
 
 def render_word_table(result: EvaluationResult, *, limit: int | None = None) -> str:
@@ -178,7 +183,7 @@ def render_reliability(result: EvaluationResult) -> str | None:
             for r in rows if r.words]
     gap = expected_calibration_error(rows)
     head = (f"Confidence reliability (every word heard, those below the threshold too; "
-            f"expected calibration error {_pct(gap)})")
+            f"confidences are off by {_pct(gap)} on average: expected calibration error)")
     return head + "\n" + _columns(["confidence", "words", "mean", "right"], body, right={1, 2, 3})
 
 

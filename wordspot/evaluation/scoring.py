@@ -596,7 +596,7 @@ def score_utterances(
     """
     records = tuple(records)
     if not records:
-        raise ScoringError("nothing to score: no utterances were given")
+        raise ScoringError("nothing to score: no recordings were given")
     scores = []
     for rec in records:
         if not isinstance(rec, ScoredUtterance):

@@ -181,14 +181,16 @@ def format_timed_score(score: TimedScore) -> str:
     b = score.boundary()
     lines = [
         f"recordings {len(score.recordings)}, {score.hours * 60:.1f} min of audio, {score.labels} labelled commands",
-        f"hits {score.hits} ({100 * score.hit_rate:.1f}%), misses {score.misses}",
-        f"false accepts {score.false_accepts} ({score.false_accepts_per_hour:.1f} per hour; "
-        f"{score.wrong_words} of them wrong words on a command)",
+        f"found with the right words {score.hits} ({100 * score.hit_rate:.1f}%: hits), "
+        f"missed {score.misses}",
+        f"found where none was said or with the wrong words {score.false_accepts} "
+        f"({score.false_accepts_per_hour:.1f} per hour: false accepts; {score.wrong_words} of them wrong words "
+        "on a command)",
     ]
     if score.hits:
         lines.append(
-            f"boundaries of hits: start off by {b['start_mean']:.3f} s mean, {b['start_median']:.3f} s median; "
-            f"end {b['end_mean']:.3f} / {b['end_median']:.3f} s; "
+            f"timing of the commands found: starts off by {b['start_mean']:.3f} s on average "
+            f"({b['start_median']:.3f} s median), ends by {b['end_mean']:.3f} s ({b['end_median']:.3f} s); "
             f"{100 * b['on_time']:.1f}% within {BOUNDARY_TOLERANCE:g} s at both ends"
         )
     return "\n".join(lines)

@@ -55,7 +55,11 @@ __all__ = [
     "vocabulary_for",
     "adapt_items",
     "adapt",
+    "ADAPT_LEGEND",
 ]
+
+#: Said once before the adapting pass lines: what their figure means.
+ADAPT_LEGEND = "each pass: fit = log-likelihood a frame, which should rise from pass to pass"
 
 
 @dataclass(frozen=True)
@@ -257,7 +261,7 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
         Per regression class (0 pause, 1 speech): "full", "bias" or "none".
     """
     if not items:
-        raise TrainingError("no usable utterance to adapt on")
+        raise TrainingError("no usable recording to adapt on")
     items = sorted(items, key=lambda it: it.words)
     floor = variance_floor if variance_floor is not None else 0.01 * mix.variances.min(axis=(0, 1))
     summary = TrainingSummary()
@@ -274,7 +278,9 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
         avg = float(res.loglik[ok].sum() / n_frames) if ok.any() else float("-inf")
         summary.passes.append((int(current.n_components), avg))
         if report is not None:
-            report(f"adapt pass {k}  log-likelihood per frame {avg:.4f}")
+            if k == 1:
+                report(ADAPT_LEGEND)
+            report(f"adapt pass {k}  fit {avg:.4f}")
         return res
 
     k = 0
@@ -359,6 +365,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
                                           report=report)
     summary.skipped = skipped
+    summary.frame_seconds = start.features.hop_ms / 1000
     used = {it.path for it in items if not it.background}
     band = check_training_band(sorted(used), start.features.sample_rate)
     bigrams = count_bigrams([u.words for u in utterances if u.path in used and u.words],  # as trainer.train

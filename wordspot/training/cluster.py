@@ -6,7 +6,8 @@ whatever ran them. Summing results in that order is what makes a model bit-ident
 for any ``jobs`` and on a cluster.
 
 - :class:`SerialExecutor`: this process (``jobs == 1``).
-- :class:`ProcessExecutor`: local worker processes through joblib (``jobs > 1``).
+- :class:`ProcessExecutor`: local worker processes through joblib (``jobs > 1``), which end
+  with this process (:mod:`wordspot.training.workers`).
 - :class:`DaskExecutor`: the workers of a running Dask scheduler (``dask.distributed``,
   the optional extra ``wordspot[cluster]``; imported here, and only when used).
 
@@ -43,6 +44,7 @@ import numpy as np
 from joblib import Parallel, delayed
 
 from wordspot.errors import TrainingError
+from wordspot.training.workers import tie_to_parent, work_folder
 
 __all__ = ["INSTALL_HINT", "Executor", "SerialExecutor", "ProcessExecutor", "DaskExecutor",
            "open_executor", "using"]
@@ -232,20 +234,27 @@ class SerialExecutor(Executor):
 
 
 class ProcessExecutor(Executor):
-    """Local worker processes (joblib's loky backend); frames shared through temporary files."""
+    """Local worker processes (joblib's loky backend); frames shared through temporary files.
+
+    The workers end when this process ends, however it ends, and the work folder goes with
+    them (:mod:`wordspot.training.workers`): frames files and joblib's own temporary files
+    both live in it.
+    """
 
     def __init__(self, jobs: int):
         self.jobs = int(jobs)
         self._files: _FrameFiles | None = None
 
     def map(self, func, tasks, *, common=(), frames=False, label="work"):
-        run = Parallel(n_jobs=self.jobs, backend="loky", return_as="generator")
+        folder = str(work_folder())
+        run = Parallel(n_jobs=self.jobs, backend="loky", return_as="generator", temp_folder=folder,
+                       initializer=tie_to_parent, initargs=(os.getpid(), folder))
         return run(delayed(func)(*task, *common) for task in tasks)
 
     def keep_on_disk(self, arrays) -> list:
         # joblib sends a view of a memory map as its file name and offset, not its data.
         if self._files is None:
-            self._files = _FrameFiles(tempfile.mkdtemp(prefix="wordspot-train-"))
+            self._files = _FrameFiles(tempfile.mkdtemp(prefix="frames-", dir=work_folder()))
         return self._files.keep(arrays)
 
     def close(self) -> None:

@@ -155,12 +155,12 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
         features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
                                     warp=warp, speed=speed, executor=executor)
         if k == 0:
-            _collect(utterances, features, lexicon, units, graphs, items, skipped)
+            _collect(utterances, features, lexicon, units, graphs, items, skipped, settings.hop_ms / 1000)
         else:
             bad = {s.path for s in skipped}
             _collect([u for u in utterances if u.path not in bad],
                      [f for u, f in zip(utterances, features) if u.path not in bad],
-                     lexicon, units, graphs, items, None)
+                     lexicon, units, graphs, items, None, settings.hop_ms / 1000)
         if k == 0:
             n_plain = len(items)
     if noise is not None and noise.copies > 0:
@@ -178,7 +178,7 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
     return items, skipped
 
 
-def _collect(utterances, features, lexicon, units, graphs, items, skipped) -> None:
+def _collect(utterances, features, lexicon, units, graphs, items, skipped, hop: float) -> None:
     for utt, (feats, error) in zip(utterances, features):
         if feats is None:
             reason = f"could not be loaded: {error}"
@@ -189,8 +189,9 @@ def _collect(utterances, features, lexicon, units, graphs, items, skipped) -> No
                 graphs[utt.words] = graph
             need = graph.min_frames()
             if feats.shape[0] < need:
-                reason = (f"too short: {feats.shape[0]} frames, but its chain of "
-                          f"{len(utt.words)} word(s) needs at least {need}")
+                reason = (f"too short: {feats.shape[0] * hop:.2f} s of sound for its {len(utt.words)} word(s), "
+                          f"which need at least {need * hop:.2f} s ({need} frames); record it again, "
+                          "or fix its transcript")
             else:
                 items.append(TrainingItem(utt.path, utt.words, np.ascontiguousarray(feats), graph))
                 continue

@@ -60,7 +60,11 @@ from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet, default_unit_set, n_transition_params
 
-__all__ = ["TrainingConfig", "TrainingSummary", "train", "train_items", "flat_start", "pass_statistics"]
+__all__ = ["TrainingConfig", "TrainingSummary", "PASS_LEGEND", "train", "train_items", "flat_start", "pass_statistics"]
+
+#: Said once before the pass lines: what their figures mean.
+PASS_LEGEND = ("each pass: detail = Gaussians a state (more after each doubling); fit = log-likelihood a "
+               "frame, which should rise from pass to pass")
 
 
 def _factors(name: str, value) -> tuple[float, ...]:
@@ -207,6 +211,8 @@ class TrainingSummary:
         Per pass: Gaussians per state, average log-likelihood per frame.
     frames_per_unit : dict of str -> float
         Expected frames of each unit in the last pass.
+    frame_seconds : float
+        Seconds a frame steps (turns frames into time for people).
     unseen_units : list of str
         Units that saw (almost) no data and keep their flat-start parameters.
     seconds : float
@@ -219,6 +225,7 @@ class TrainingSummary:
     skipped: list = field(default_factory=list)
     passes: list = field(default_factory=list)
     frames_per_unit: dict = field(default_factory=dict)
+    frame_seconds: float = 0.01
     unseen_units: list = field(default_factory=list)
     seconds: float = 0.0
 
@@ -229,15 +236,16 @@ class TrainingSummary:
 
     def lines(self) -> list[str]:
         """The summary as short text lines for people."""
-        out = [f"utterances used: {self.used} ({self.n_frames} frames)"]
+        minutes = self.n_frames * self.frame_seconds / 60
+        out = [f"recordings used: {self.used} ({minutes:.1f} min of sound, copies and background sounds included)"]
         if self.backgrounds:
-            out.append(f"background-only items (no command): {self.backgrounds}")
-        out.append(f"utterances skipped: {len(self.skipped)}")
+            out.append(f"background sounds added (no command): {self.backgrounds}")
+        out.append(f"recordings skipped: {len(self.skipped)}")
         out += [f"  {s.path}: {s.reason}" for s in self.skipped]
         if self.frames_per_unit:
-            cells = [f"{u} {f:.0f}" for u, f in sorted(self.frames_per_unit.items())]
-            out.append("frames per unit: " + ", ".join(cells))
-        out.append("units with no data (flat-start parameters): "
+            cells = [f"{u} {f * self.frame_seconds:.1f}" for u, f in sorted(self.frames_per_unit.items())]
+            out.append("seconds of sound each phone was learnt from: " + ", ".join(cells))
+        out.append("phones heard in no recording (left as they started): "
                    + (", ".join(self.unseen_units) if self.unseen_units else "none"))
         out.append(f"training time: {self.seconds:.1f} s")
         return out
@@ -451,7 +459,7 @@ def train_items(items: list[TrainingItem], units: UnitSet, *, frame_rate: float,
         Utterances dropped because no path through their chain fits.
     """
     if not items:
-        raise TrainingError("no usable utterance to train on")
+        raise TrainingError("no usable recording to train on")
     # Same transcripts next to each other, so a chunk composes and refreshes each graph
     # once; the order is fixed by the data alone (stable sort), never by ``jobs``.
     items = sorted(items, key=lambda it: it.words)
@@ -492,13 +500,15 @@ def _train_loop(items, units, frame_rate, config, quiet, report, executor):
                     warnings.warn(f"skipping {items[k].path}: {reason}", TrainingWarning, stacklevel=2)
                 items = [it for k, it in enumerate(items) if not bad[k]]
                 if not items:
-                    raise TrainingError("no usable utterance to train on: no chain fits its audio")
+                    raise TrainingError("no recording is usable: none of them matches its transcript "
+                                        "(no path through its chain fits the audio); check the transcripts")
             n_frames = sum(it.frames.shape[0] for it in items)
             avg = float(res.loglik[~bad].sum() / n_frames)
             summary.passes.append((int(n_comp), avg))
             if report is not None:
-                report(f"pass {n_pass:2d}  {n_comp} Gaussian(s)/state  "
-                       f"log-likelihood per frame {avg:.4f}")
+                if n_pass == 1:
+                    report(PASS_LEGEND)
+                report(f"pass {n_pass:2d}  detail {n_comp}  fit {avg:.4f}")
             mix, updated = update_mixtures(mix, res.stats, variance_floor=floor,
                                            min_occupancy=config.min_occupancy)
             units = update_transitions(units, res.trans_counts, floor=config.transition_floor)
@@ -568,10 +578,11 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         units, mix, summary, dropped = train_items(items, units, frame_rate=settings.frame_rate, config=config,
                                                    quiet=quiet, report=report, executor=executor)
     summary.skipped = skipped + dropped
+    summary.frame_seconds = settings.hop_ms / 1000
     if summary.unseen_units:
         warnings.warn(
-            "no training data for unit(s) " + ", ".join(summary.unseen_units)
-            + "; they keep their flat-start parameters (add recordings of words that use them)",
+            "no recording holds the phone(s) " + ", ".join(summary.unseen_units)
+            + ", so they stay untrained (flat-start parameters): record words that use them",
             TrainingWarning, stacklevel=2,
         )
     used = {it.path for it in items if not it.background} - {s.path for s in dropped}

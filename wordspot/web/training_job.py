@@ -8,6 +8,7 @@ on all of them, as adapting does).
 
 from __future__ import annotations
 
+import os
 import re
 import subprocess
 import sys
@@ -17,6 +18,7 @@ from pathlib import Path
 
 from wordspot.training.adapt import AdaptationConfig
 from wordspot.training.trainer import TrainingConfig
+from wordspot.training.workers import PARENT_VARIABLE
 
 __all__ = ["TrainingJob", "train_command"]
 
@@ -79,6 +81,7 @@ class TrainingJob:
                 [sys.executable, "-m", "wordspot.cli"] + args[1:],
                 stdout=subprocess.PIPE, stderr=subprocess.STDOUT, stdin=subprocess.DEVNULL,
                 cwd=Path(model).parent, text=True, encoding="utf-8", errors="replace",
+                env={**os.environ, PARENT_VARIABLE: str(os.getpid())},  # ends when this process ends
             )
             threading.Thread(target=self._read, args=(self._process,), daemon=True).start()
             return True
