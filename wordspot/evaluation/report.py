@@ -169,8 +169,8 @@ def render_speaker_table(result: EvaluationResult) -> str:
         ]
         for r in result.speaker_table
     ]
-    header = ["speaker", "utterances", "words", "substituted", "deleted", "inserted", "WER",
-              "utterances with errors"]
+    header = ["speaker", "recordings", "words", "substituted", "deleted", "inserted", "WER",
+              "recordings with errors"]
     return _columns(header, body, right=set(range(1, 8)))
 
 
