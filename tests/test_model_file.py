@@ -3,6 +3,7 @@
 import json
 import os
 import zipfile
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -13,6 +14,7 @@ from wordspot.acoustic.gmm import Mixtures
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import parse_lexicon
 from wordspot.model import FORMAT_VERSION, AcousticModel, _checksum, load_model, save_model
+from wordspot.acoustic.scorer import StateScorer
 from wordspot.acoustic.units import default_unit_set
 from wordspot.util.logistic import Calibration
 
@@ -47,6 +49,9 @@ def assert_same(a: AcousticModel, b: AcousticModel):
     assert (a.calibration is None) == (b.calibration is None)
     if a.calibration is not None:
         assert a.calibration.to_dict() == b.calibration.to_dict()
+    assert (a.scorer is None) == (b.scorer is None)
+    if a.scorer is not None:
+        assert a.scorer.same_as(b.scorer)
 
 
 def test_round_trip_is_identical(model, tmp_path):
@@ -263,4 +268,97 @@ def test_malformed_calibration_is_refused_naming_the_file(model, tmp_path, calib
     path = save_model(model, tmp_path / "m.model")
     _with_header(path, calibration=calibration)
     with pytest.raises(ModelFileError, match=rf"m\.model: the confidence calibration is malformed \(.*{match}.*wordspot train"):
+        load_model(path)
+
+
+def _with_scorer(model, rng, hidden=(6, 5), context=2):
+    p, d = model.units.n_mixtures, model.features.dim
+    sizes = [d * (2 * context + 1), *hidden, p]
+    prior = rng.uniform(0.5, 2.0, p)
+    scorer = StateScorer(context, rng.normal(size=sizes[0]), rng.uniform(0.5, 2.0, sizes[0]),
+                         tuple(rng.normal(size=(a, b)) for a, b in zip(sizes[:-1], sizes[1:])),
+                         tuple(rng.normal(size=b) for b in sizes[1:]), np.log(prior / prior.sum()))
+    return replace(model, scorer=scorer)
+
+
+def test_scorer_round_trip_is_bit_exact_without_pickle(model, rng, tmp_path):
+    net = _with_scorer(model, rng)
+    path = save_model(net, tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        names = set(data.files)
+        assert {"scorer_input_mean", "scorer_input_scale", "scorer_log_prior", "scorer_weight_0", "scorer_bias_2"} <= names
+        assert all(data[n].dtype == np.float32 for n in names if n.startswith("scorer_"))
+    back = load_model(path)
+    assert_same(net, back)
+    assert back.scorer.same_as(net.scorer)
+    frames = rng.normal(size=(12, model.features.dim))
+    np.testing.assert_array_equal(back.scorer.log_posteriors(frames), net.scorer.log_posteriors(frames))
+    # without a scorer: no scorer tables, no header key, and nothing on loading
+    plain = save_model(model, tmp_path / "plain.model")
+    with np.load(plain, allow_pickle=False) as data:
+        assert not [n for n in data.files if n.startswith("scorer")]
+        assert "scorer" not in json.loads(data["header"].tobytes().decode())
+    assert load_model(plain).scorer is None
+
+
+def test_scorer_tables_are_under_the_checksum(model, rng, tmp_path):
+    path = save_model(_with_scorer(model, rng), tmp_path / "m.model")
+
+    def nudge(arrays):
+        arrays["scorer_weight_1"][0, 0] += 1e-3
+
+    _rewrite(path, nudge)
+    with pytest.raises(ModelFileError, match=r"m\.model: checksum mismatch"):
+        load_model(path)
+
+
+def _rewrite_checked(path, change):
+    """Apply ``change(arrays, header)`` and write a matching checksum (damage the checksum cannot see)."""
+    def edit(arrays):
+        header = json.loads(arrays.pop("header").tobytes().decode())
+        change(arrays, header)
+        header["checksum"] = _checksum(arrays, header)
+        arrays["header"] = np.frombuffer(json.dumps(header).encode(), dtype=np.uint8)
+
+    _rewrite(path, edit)
+
+
+@pytest.mark.parametrize("change, match", [
+    (lambda a, h: a.update(scorer_weight_1=a["scorer_weight_1"][:-1]), r"state scorer is malformed \(layer 1"),
+    (lambda a, h: a.update(scorer_bias_2=a["scorer_bias_2"][:3]), r"state scorer is malformed \(layer 2"),
+    (lambda a, h: a.update(scorer_input_scale=a["scorer_input_scale"][:10]), r"state scorer is malformed \(input scale"),
+    (lambda a, h: a.update(scorer_log_prior=a["scorer_log_prior"] * np.nan), r"state scorer is malformed \(.*finite"),
+    (lambda a, h: a.pop("scorer_bias_0"), "does not hold the expected tables"),
+    (lambda a, h: h["scorer"].update(layers=2), "does not hold the expected tables"),
+    (lambda a, h: h["scorer"].update(layers="3"), "state scorer entry with '3' layers"),
+    (lambda a, h: h.update(scorer=[1, 2]), "state scorer entry with None layers"),
+    (lambda a, h: h["scorer"].update(hidden="tanh"), "state scorer entry this wordspot cannot use"),
+    (lambda a, h: a.update(scorer_weight_0=a["scorer_weight_0"].astype(np.float64)), "not float32"),
+    (lambda a, h: h.pop("scorer"), "does not hold the expected tables"),
+])
+def test_damaged_scorer_is_refused_naming_the_file(model, rng, tmp_path, change, match):
+    path = save_model(_with_scorer(model, rng), tmp_path / "m.model")
+    _rewrite_checked(path, change)
+    with pytest.raises(ModelFileError, match=rf"m\.model: .*{match}.*wordspot train"):
+        load_model(path)
+
+
+def test_scorer_must_fit_the_model(model, rng, tmp_path):
+    net = _with_scorer(model, rng).scorer  # cut to one class less than the model's mixtures
+    p = net.n_classes - 1
+    prior = np.log(np.full(p, 1.0 / p))
+    small = StateScorer(net.context, net.input_mean, net.input_scale, net.weights[:-1] + (net.weights[-1][:, :p],),
+                        net.biases[:-1] + (net.biases[-1][:p],), prior)
+    path = save_model(replace(model, scorer=small), tmp_path / "m.model")
+    with pytest.raises(ModelFileError, match=rf"m\.model: the state scorer has {p} classes .* the model has {p + 1} "
+                                             r"mixtures.*wordspot train"):
+        load_model(path)
+
+
+@pytest.mark.parametrize("keep", [0.5, 0.95])
+def test_truncated_file_with_scorer_is_refused(model, rng, tmp_path, keep):
+    path = save_model(_with_scorer(model, rng), tmp_path / "m.model")
+    data = path.read_bytes()
+    path.write_bytes(data[: int(len(data) * keep)])
+    with pytest.raises(ModelFileError, match=r"m\.model: .*(damaged|altered).*wordspot train"):
         load_model(path)

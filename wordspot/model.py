@@ -11,7 +11,13 @@ plus one ``header`` array of UTF-8 bytes holding JSON: the format name and versi
 feature settings, unit names, lexicon text, bigram vocabulary, training info, the
 optional confidence calibration (key ``calibration``, :meth:`Calibration.to_dict`; absent
 = none, so files without it, written before it existed, load unchanged) and a SHA-256
-checksum over every array and the rest of the header. The file is written to a
+checksum over every array and the rest of the header.
+
+The optional state scorer (:class:`wordspot.acoustic.scorer.StateScorer`) is stored as
+float32 arrays ``scorer_input_mean``, ``scorer_input_scale``, ``scorer_log_prior`` and
+``scorer_weight_<k>`` / ``scorer_bias_<k>`` for each layer ``k``, with header key
+``scorer`` (``context``, ``layers``, ``hidden``: the activation); absent = no scorer, so
+files without one load unchanged. The checksum covers these arrays as any other. The file is written to a
 temporary name in the same folder, flushed to disk and renamed over the target, so a
 crash never leaves a half-written model.
 """
@@ -30,6 +36,7 @@ import numpy as np
 from wordspot.errors import FeatureError, LexiconError, ModelFileError
 from wordspot.audio.features import FeatureSettings
 from wordspot.acoustic.gmm import Mixtures
+from wordspot.acoustic.scorer import StateScorer
 from wordspot.language.grammar import BigramCounts
 from wordspot.language.lexicon import Lexicon, parse_lexicon
 from wordspot.acoustic.units import UnitSet
@@ -67,6 +74,9 @@ class AcousticModel:
     calibration : Calibration or None
         Turns a recognised word's measures into the probability that it is right
         (:mod:`wordspot.decoding.confidence`); None: the heuristic confidence.
+    scorer : StateScorer or None
+        A network giving the posterior of every mixture id from a window of frames, used
+        by the search when the decoder settings ask for it; None: the mixtures alone.
     """
 
     features: FeatureSettings
@@ -76,11 +86,32 @@ class AcousticModel:
     bigrams: BigramCounts
     info: dict = field(default_factory=dict)
     calibration: Calibration | None = None
+    scorer: StateScorer | None = None
+
+
+#: The activation of the scorer's hidden layers, as the header names it.
+_SCORER_HIDDEN = "relu"
+_SCORER_MAX_LAYERS = 16
+
+
+def _scorer_arrays(scorer: StateScorer) -> dict[str, np.ndarray]:
+    out = {"scorer_input_mean": scorer.input_mean, "scorer_input_scale": scorer.input_scale,
+           "scorer_log_prior": scorer.log_prior}
+    for k, (w, b) in enumerate(zip(scorer.weights, scorer.biases)):
+        out[f"scorer_weight_{k}"] = w
+        out[f"scorer_bias_{k}"] = b
+    return {name: np.ascontiguousarray(a, dtype=np.float32) for name, a in out.items()}
+
+
+def _scorer_names(layers: int) -> set[str]:
+    return ({"scorer_input_mean", "scorer_input_scale", "scorer_log_prior"}
+            | {f"scorer_{kind}_{k}" for kind in ("weight", "bias") for k in range(layers)})
 
 
 def _arrays(model: AcousticModel) -> dict[str, np.ndarray]:
     u, m = model.units, model.mixtures
-    return {
+    scorer = getattr(model, "scorer", None)
+    return {**({} if scorer is None else _scorer_arrays(scorer)),
         "unit_n_states": np.ascontiguousarray(u.n_states, dtype=np.int64),
         "unit_state_mixture": np.ascontiguousarray(u.state_mixture, dtype=np.int64),
         "unit_trans": np.ascontiguousarray(u.trans, dtype=np.float64),
@@ -140,6 +171,9 @@ def save_model(model: AcousticModel, path) -> Path:
     }
     if model.calibration is not None:
         header["calibration"] = model.calibration.to_dict()
+    if getattr(model, "scorer", None) is not None:
+        header["scorer"] = {"context": int(model.scorer.context), "layers": len(model.scorer.weights),
+                            "hidden": _SCORER_HIDDEN}
     try:
         json.dumps(header)
     except (TypeError, ValueError) as exc:
@@ -205,6 +239,8 @@ def load_model(path) -> AcousticModel:
     renamed = _RENAMED_IN_VERSION_2 if version == 1 else {}
     written_as = {new: old for old, new in renamed.items()}
     expected = {written_as.get(name, name) for name in _ARRAY_NAMES}
+    if "scorer" in header:
+        expected |= _scorer_names(_scorer_layers(p, header["scorer"]))
     if set(arrays) != expected:
         raise _damaged(p, "does not hold the expected tables")
     if header.get("checksum") != _checksum(arrays, header):  # over the names as written
@@ -216,6 +252,35 @@ def load_model(path) -> AcousticModel:
         if isinstance(exc, ModelFileError):
             raise
         raise _damaged(p, f"has inconsistent contents ({exc})") from None
+
+
+def _scorer_layers(p: Path, settings) -> int:
+    """The scorer's layer count from its header entry, checked."""
+    layers = settings.get("layers") if isinstance(settings, dict) else None
+    if type(layers) is not int or not 1 <= layers <= _SCORER_MAX_LAYERS:
+        raise _damaged(p, f"has a state scorer entry with {layers!r} layers")
+    return layers
+
+
+def _build_scorer(p: Path, settings: dict, a: dict, n_mixtures: int, dim: int) -> StateScorer:
+    context = settings.get("context")
+    if type(context) is not int or settings.get("hidden") != _SCORER_HIDDEN:
+        raise _damaged(p, f"has a state scorer entry this wordspot cannot use ({settings})")
+    layers = _scorer_layers(p, settings)
+    arrays = [a["scorer_input_mean"], a["scorer_input_scale"], a["scorer_log_prior"]]
+    weights = [a[f"scorer_weight_{k}"] for k in range(layers)]
+    biases = [a[f"scorer_bias_{k}"] for k in range(layers)]
+    if any(x.dtype != np.float32 for x in arrays + weights + biases):
+        raise _damaged(p, "holds state scorer tables that are not float32")
+    try:
+        scorer = StateScorer(context, arrays[0], arrays[1], tuple(weights), tuple(biases), arrays[2])
+    except ValueError as exc:
+        raise ModelFileError(f"{p}: the state scorer is malformed ({exc}); {_RETRAIN}") from None
+    if scorer.n_classes != n_mixtures or scorer.frame_dim != dim:
+        raise ModelFileError(
+            f"{p}: the state scorer has {scorer.n_classes} classes over frames of {scorer.frame_dim} values, but "
+            f"the model has {n_mixtures} mixtures and frames of {dim}; {_RETRAIN}")
+    return scorer
 
 
 _ARRAY_NAMES = ("unit_n_states", "unit_state_mixture", "unit_trans", "unit_entry",
@@ -258,5 +323,8 @@ def _build(p: Path, header: dict, a: dict) -> AcousticModel:
             calibration = Calibration.from_dict(header["calibration"])
         except ValueError as exc:
             raise ModelFileError(f"{p}: the confidence calibration is malformed ({exc}); {_RETRAIN}") from None
+    scorer = None
+    if "scorer" in header:
+        scorer = _build_scorer(p, header["scorer"], a, units.n_mixtures, features.dim)
     return AcousticModel(features, units, Mixtures(w, mu, var), lexicon, BigramCounts(words, counts),
-                         dict(info) if isinstance(info, dict) else {}, calibration)
+                         dict(info) if isinstance(info, dict) else {}, calibration, scorer)

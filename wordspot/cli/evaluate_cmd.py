@@ -7,7 +7,7 @@ import json
 import sys
 from pathlib import Path
 
-from wordspot.cli.recognize_cmd import add_decoder_options, settings_from_args
+from wordspot.cli.recognize_cmd import add_decoder_options, scorer_note, settings_from_args
 
 __all__ = ["add_parser"]
 
@@ -70,6 +70,8 @@ def _run(args) -> int:
 
     settings = settings_from_args(args)
     model = load_model(args.model)
+    if scorer_note(model, settings):
+        print(f"wordspot: note: {scorer_note(model, settings)}", file=sys.stderr)
     lexicon = read_lexicon(args.lexicon) if args.lexicon else None
     failed = 0
     names = [Path(m).stem for m in args.manifests]

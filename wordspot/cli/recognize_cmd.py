@@ -11,7 +11,8 @@ import sys
 from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
 from wordspot.decoding.decoder import DecoderSettings, Recognition, recognize_files
 
-__all__ = ["add_parser", "add_decoder_options", "settings_from_args", "format_text", "format_jsonl", "write_csv"]
+__all__ = ["add_parser", "add_decoder_options", "settings_from_args", "scorer_note", "format_text", "format_jsonl",
+           "write_csv"]
 
 _EPILOG = """\
 examples (a bakery: commands called out with dough on your hands):
@@ -85,6 +86,12 @@ def add_decoder_options(p) -> None:
     p.add_argument("--min-confidence", type=_probability, default=None, metavar="P",
                    help="drop words whose confidence is below P (0 keeps every word; default "
                    f"{DEFAULT_MIN_CONFIDENCE:g} for a model with calibrated confidences, else 0)")
+    p.add_argument("--scorer-weight", type=_probability, default=d.scorer_weight, metavar="W",
+                   help="share of the model's state scorer (a network over a window of frames) in the state "
+                        f"scores, from 0 (mixtures only) to 1 (network only); needs a model that has one "
+                        f"(default {d.scorer_weight:g})")
+    p.add_argument("--scorer-scale", type=_positive, default=d.scorer_scale, metavar="S",
+                   help=f"multiplies the state scorer's log scores (default {d.scorer_scale:g})")
 
 
 def _probability(text: str) -> float:
@@ -96,6 +103,25 @@ def _probability(text: str) -> float:
     if not 0.0 <= value <= 1.0:
         raise argparse.ArgumentTypeError(f"must be from 0 to 1, got {text}")
     return value
+
+
+def _positive(text: str) -> float:
+    """An argparse type: a finite number > 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number > 0, got {text!r}") from None
+    if not (0.0 < value < math.inf):
+        raise argparse.ArgumentTypeError(f"must be a finite number > 0, got {text}")
+    return value
+
+
+def scorer_note(model, settings: DecoderSettings) -> str:
+    """A note when a scorer weight is asked of a model without a state scorer ("" otherwise)."""
+    if settings.scorer_weight > 0 and getattr(model, "scorer", None) is None:
+        return (f"--scorer-weight {settings.scorer_weight:g} has no effect: this model has no state scorer, "
+                "so its mixtures alone score the audio")
+    return ""
 
 
 def settings_from_args(args) -> DecoderSettings:
@@ -111,6 +137,8 @@ def settings_from_args(args) -> DecoderSettings:
         filler_penalty=args.filler_penalty,
         pause_penalty=args.pause_penalty,
         min_confidence=args.min_confidence,
+        scorer_weight=args.scorer_weight,
+        scorer_scale=args.scorer_scale,
     )
 
 
@@ -186,6 +214,8 @@ def _run(args) -> int:
 
     settings = settings_from_args(args)
     model = load_model(args.model)
+    if scorer_note(model, settings):
+        print(f"wordspot: note: {scorer_note(model, settings)}", file=sys.stderr)
     lexicon = read_lexicon(args.lexicon) if args.lexicon else None
     results = recognize_files(
         model, args.files, settings=settings, lexicon=lexicon, prior=args.prior, jobs=args.jobs

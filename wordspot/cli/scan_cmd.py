@@ -8,7 +8,7 @@ import io
 import json
 import sys
 
-from wordspot.cli.recognize_cmd import add_decoder_options, settings_from_args
+from wordspot.cli.recognize_cmd import add_decoder_options, scorer_note, settings_from_args
 from wordspot.stream.scan import ScanResult, ScanSettings
 
 __all__ = ["add_parser", "format_clock", "text_lines", "jsonl_lines", "write_csv", "COLUMNS"]
@@ -136,8 +136,11 @@ def _run(args) -> int:
         raise DecodingError("no audio files given; name one or more, or a time-label file with --reference")
     settings = ScanSettings(split_pause=args.split_pause)  # the decoder options carry --min-confidence
     model = load_model(args.model)
+    decoder_settings = settings_from_args(args)
+    if scorer_note(model, decoder_settings):
+        print(f"wordspot: note: {scorer_note(model, decoder_settings)}", file=sys.stderr)
     lexicon = read_lexicon(args.lexicon) if args.lexicon else None
-    recognizer = build_recognizer(model, settings=settings_from_args(args), lexicon=lexicon, prior=args.prior)
+    recognizer = build_recognizer(model, settings=decoder_settings, lexicon=lexicon, prior=args.prior)
 
     from wordspot.stream.scan import scan_files
 

@@ -92,6 +92,13 @@ class DecoderSettings:
         Words with a lower confidence are dropped (kept in ``Recognition.dropped``). None:
         ``DEFAULT_MIN_CONFIDENCE`` when the model's confidence is calibrated, 0 (keep every
         word) when it is the heuristic.
+    scorer_weight : float in [0, 1]
+        Share of the model's state scorer (:mod:`wordspot.acoustic.scorer`) in the state
+        scores: ``w * scorer_scale * (log posterior - log prior) + (1 - w) * mixture
+        log-likelihood``. 0: the mixtures alone; 1: the network alone (the mixtures are
+        then not computed). Ignored for a model without a scorer.
+    scorer_scale : float > 0
+        Multiplies the scorer's scaled log-likelihoods.
     """
 
     beam: float = 800.0
@@ -106,6 +113,8 @@ class DecoderSettings:
     pause_penalty: float = -10.0
     filler_frame_penalty: float = 0.0
     min_confidence: float | None = None
+    scorer_weight: float = 0.0
+    scorer_scale: float = 1.0
 
     def __post_init__(self) -> None:
         m = self.min_confidence
@@ -117,6 +126,11 @@ class DecoderSettings:
                 raise DecodingError(f"{name} must be a number > 0 (inf turns pruning off), got {value!r}")
         if not (isinstance(self.state_limit, (int, np.integer)) and self.state_limit > 0):
             raise DecodingError(f"state_limit must be a whole number > 0, got {self.state_limit!r}")
+        w, sc = self.scorer_weight, self.scorer_scale
+        if not (isinstance(w, (int, float)) and not isinstance(w, bool) and 0.0 <= w <= 1.0):
+            raise DecodingError(f"scorer_weight (--scorer-weight) must be a number from 0 to 1, got {w!r}")
+        if not (isinstance(sc, (int, float)) and not isinstance(sc, bool) and 0.0 < sc < np.inf):
+            raise DecodingError(f"scorer_scale (--scorer-scale) must be a finite number > 0, got {sc!r}")
         self.grammar  # validates weight and penalty
         for name, option in (("filler_penalty", " (--filler-penalty)"), ("pause_penalty", " (--pause-penalty)"),
                              ("filler_frame_penalty", "")):
@@ -243,6 +257,7 @@ class Recognizer:
     settings: DecoderSettings
     hop: float
     calibration: object = None
+    scorer: object = None  # the model's StateScorer when the settings give it a weight, else None
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
@@ -330,7 +345,27 @@ class Recognizer:
         scores the difference is a few 1e-4 at most on the demo files, far below the
         score gaps the search decides on (same words on every demo test file, checked
         when this was introduced). Training keeps double precision.
+
+        With a state scorer and ``settings.scorer_weight`` w > 0 the scores are
+        ``w * scale * (log posterior - log prior) + (1 - w) * mixture log-likelihood`` for
+        the same columns (:meth:`wordspot.acoustic.scorer.StateScorer.scaled_log_likelihoods`);
+        with w = 1 the mixtures are not computed.
         """
+        s = self.settings
+        w = float(s.scorer_weight) if self.scorer is not None else 0.0
+        if w > 0.0:
+            net = self.scorer.scaled_log_likelihoods(frames, s.scorer_scale * w, columns=self.network.used_mixtures,
+                                                     work=work_array)
+            if w >= 1.0:
+                return net.astype(np.float64)
+            gmm = self._mixture_scores(frames)
+            gmm *= 1.0 - w
+            gmm += net
+            return gmm
+        return self._mixture_scores(frames)
+
+    def _mixture_scores(self, frames: np.ndarray) -> np.ndarray:
+        """The mixtures' log-likelihoods of :meth:`emissions`, (T, P) float64."""
         if self._scoring is None:
             w, c = scoring_matrix(self.mixtures)
             self._scoring = (w.astype(EMISSION_DTYPE), c.astype(EMISSION_DTYPE))
@@ -527,8 +562,13 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
     feats = model.features
     hop = feats.hop_length / feats.sample_rate
     calibration = usable_calibration(getattr(model, "calibration", None))
+    scorer = getattr(model, "scorer", None) if settings.scorer_weight > 0 else None
+    if scorer is not None and (scorer.n_classes != mix.n_mixtures or scorer.frame_dim != mix.dim):
+        raise DecodingError(f"the model's state scorer has {scorer.n_classes} classes over frames of "
+                            f"{scorer.frame_dim} values, but the model has {mix.n_mixtures} mixtures and frames "
+                            f"of {mix.dim}")
     return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
-                      calibration=calibration)
+                      calibration=calibration, scorer=scorer)
 
 
 def recognize_features(model, frames, *, settings: DecoderSettings | None = None, lexicon=None,
