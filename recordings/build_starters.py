@@ -3,6 +3,7 @@
 
     python recordings/build_starters.py            # corpus (if missing) + both starters
     python recordings/build_starters.py --rates 16000 --jobs 2
+    python recordings/build_starters.py --scorer-only   # only the state scorer, on the shipped starters
 
 Steps:
 
@@ -14,8 +15,17 @@ Steps:
    the dev measures of the starter and of adaptation (docs/experiments/2026-12-02-starter-corpus.md,
    docs/experiments/2026-12-02-adaptation.md) stay fair; add
    ``--manifests recordings/starter/train.csv recordings/starter/dev.csv`` to use them too.
-3. Record in each model file how it was made (corpus, voices, what was left out, date,
-   this command) and write it into ``wordspot/starters/`` (atomically).
+3. Add the state scorer (:mod:`wordspot.acoustic.scorer`): align the same train split,
+   plus background-only items (noise alone, labelled with the pause unit's states), with
+   the model just trained (:func:`wordspot.training.frame_labels.align_frames`), fit the
+   network on those frame labels (:func:`wordspot.training.scorer_fit.fit_scorer`), measure
+   its frame accuracy on the dev split's alignment, and attach it as ``model.scorer``.
+   ``--scorer-only`` runs this step alone on the existing starter files (the shipped ones,
+   or those in ``--out``), so the Gaussian mixtures are not trained again; ``--no-scorer``
+   leaves it out.
+4. Record in each model file how it was made (corpus, voices, what was left out, date,
+   this command, the scorer's settings and dev figures) and write it into
+   ``wordspot/starters/`` (atomically).
 """
 
 from __future__ import annotations
@@ -41,6 +51,16 @@ PASSES_PER_SPLIT = 3
 NOISE_COPIES = 1
 SPEED_FACTORS = (1.0,)
 NAMES = {16000: "starter", 8000: "starter-8k"}
+
+#: The state scorer: hidden layers, frames of context on each side, training frames at most
+#: (a seeded subsample), background-only items per recording and the seed; chosen on the
+#: starter corpus's dev split (docs/experiments/2026-12-02-state-scorer.md).
+SCORER_HIDDEN = (256, 256)
+SCORER_CONTEXT = 5
+SCORER_MAX_FRAMES = 1_000_000
+SCORER_BACKGROUND_SHARE = 0.1
+SCORER_SEED = 0
+DEV = CORPUS / "dev.csv"
 
 
 def _voices(manifest: Path) -> list[str]:
@@ -103,6 +123,90 @@ def train_one(rate: int, jobs: int, mixtures: int, quiet: bool, manifests: list[
     return path
 
 
+def aligned(model, manifests: list[Path], *, jobs: int, background_share: float, seed: int, quiet: bool,
+            cache: Path | None = None, tag: str = "train"):
+    """Frames and mixture labels of the manifests' recordings (plus background-only items),
+    aligned with ``model``; read from / written to ``cache/<tag>-<rate>.npz`` when given.
+
+    Returns (frames list, labels list, background flags, number of utterances skipped).
+    """
+    import numpy as np
+
+    from wordspot.corpus import read_manifest
+    from wordspot.training.frame_labels import align_frames
+
+    rate = model.features.sample_rate
+    path = cache / f"{tag}-{rate}.npz" if cache else None
+    if path is not None and path.exists():
+        with np.load(path, allow_pickle=False) as z:
+            cut = np.cumsum(z["lengths"])[:-1]
+            return (np.split(z["frames"], cut), np.split(z["labels"], cut), z["background"].tolist(),
+                    int(z["skipped"]))
+    t0 = time.monotonic()
+    utterances = [u for m in manifests for u in read_manifest(m)]
+    got = align_frames(model, utterances, jobs=jobs, background_share=background_share, seed=seed, quiet=quiet)
+    print(f"{NAMES[rate]} {tag}: {len(got.items)} items aligned ({sum(it.background for it in got.items)} "
+          f"background-only), {got.n_frames} frames, {len(got.skipped)} skipped, "
+          f"{time.monotonic() - t0:.0f} s", flush=True)
+    for s in got.skipped[:5]:
+        print(f"  skipped {s.path}: {s.reason}")
+    if path is not None:
+        np.savez(path, frames=np.concatenate(got.frames), labels=np.concatenate(got.labels),
+                 lengths=np.array([len(y) for y in got.labels], dtype=np.int64),
+                 background=np.array([it.background for it in got.items]), skipped=len(got.skipped))
+    return got.frames, got.labels, [it.background for it in got.items], len(got.skipped)
+
+
+def frame_accuracy(scorer, frames_list, labels_list) -> float:
+    """Share of frames whose most probable mixture id is their label."""
+    right = total = 0
+    for x, y in zip(frames_list, labels_list):
+        right += int((scorer.log_posteriors(x).argmax(axis=1) == y).sum())
+        total += len(y)
+    return right / max(total, 1)
+
+
+def add_scorer(path: Path, jobs: int, quiet: bool, manifests: list[Path], config, cache: Path | None = None) -> Path:
+    """Fit the state scorer of the model file ``path`` on its alignment of ``manifests`` and
+    write the model back with it (atomically)."""
+    from wordspot.model import load_model, save_model
+    from wordspot.training.scorer_fit import fit_scorer_with_report
+
+    t0 = time.monotonic()
+    model = load_model(path)
+    name = model.info.get("name", path.stem)
+    frames, labels, _, skipped = aligned(model, manifests, jobs=jobs, background_share=SCORER_BACKGROUND_SHARE,
+                                         seed=config.seed, quiet=quiet, cache=cache)
+    t_align = time.monotonic() - t0
+    scorer, fit = fit_scorer_with_report(frames, labels, model.mixtures.n_mixtures, config)
+    t_fit = time.monotonic() - t0 - t_align
+    dev = None
+    if DEV.exists():
+        dev_frames, dev_labels, _, _ = aligned(model, [DEV], jobs=jobs, background_share=0.0, seed=config.seed,
+                                               quiet=quiet, cache=cache, tag="dev")
+        dev = round(frame_accuracy(scorer, dev_frames, dev_labels), 4)
+    model.scorer = scorer
+    model.info["scorer"] = {
+        "made_from": [str(m.relative_to(REPO)) if m.is_relative_to(REPO) else str(m) for m in manifests],
+        "labels": "forced alignment with this model's mixtures (training chains; background-only "
+                  f"items, share {SCORER_BACKGROUND_SHARE}, labelled with the pause states)",
+        "hidden": list(config.hidden), "context": int(config.context), "seed": int(config.seed),
+        "max_frames": int(config.max_frames), "utterances_skipped": int(skipped),
+        "train_frames": fit.train_frames, "epochs": fit.best_epoch + 1,
+        "held_out_frame_accuracy": round(float(fit.held_out_accuracy), 4),
+        "dev_frame_accuracy": dev,
+        "built": dt.date.today().isoformat(),
+        "command": "python recordings/build_starters.py " + " ".join(sys.argv[1:]),
+        "seconds": round(time.monotonic() - t0, 1),
+    }
+    out = save_model(model, path)
+    print(f"{name}: scorer {config.hidden} context {config.context}, {fit.train_frames} frames, "
+          f"epoch {fit.best_epoch + 1}, held-out frame accuracy {fit.held_out_accuracy:.3f}, dev {dev}, "
+          f"align {t_align:.0f} s, fit {t_fit:.0f} s, {time.monotonic() - t0:.0f} s -> {out} "
+          f"({out.stat().st_size / 1e6:.1f} MB)", flush=True)
+    return out
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0],
                                  formatter_class=argparse.RawDescriptionHelpFormatter)
@@ -114,13 +218,50 @@ def main(argv=None) -> int:
     ap.add_argument("--out", type=Path, default=None,
                     help="write NAME.model files into this folder instead of wordspot/starters/ (dev runs)")
     ap.add_argument("--quiet", action="store_true")
+    step = ap.add_mutually_exclusive_group()
+    step.add_argument("--scorer-only", action="store_true",
+                      help="only add the state scorer to the existing starter files (no Gaussian training)")
+    step.add_argument("--no-scorer", action="store_true", help="train the Gaussian mixtures only")
+    ap.add_argument("--scorer-hidden", type=int, nargs="+", default=list(SCORER_HIDDEN),
+                    help=f"hidden layer sizes of the scorer (default {' '.join(map(str, SCORER_HIDDEN))})")
+    ap.add_argument("--scorer-context", type=int, default=SCORER_CONTEXT,
+                    help=f"frames of context on each side (default {SCORER_CONTEXT})")
+    ap.add_argument("--scorer-frames", type=int, default=SCORER_MAX_FRAMES,
+                    help=f"training frames at most (default {SCORER_MAX_FRAMES})")
+    ap.add_argument("--scorer-seed", type=int, default=SCORER_SEED, help=f"(default {SCORER_SEED})")
+    ap.add_argument("--align-cache", type=Path, default=None,
+                    help="keep the alignments in this folder and reuse them (dev runs)")
     args = ap.parse_args(argv)
     if any(m.parent == CORPUS for m in args.manifests):
         build_corpus(args.jobs)
     (args.out or OUT).mkdir(parents=True, exist_ok=True)
+    if args.align_cache:
+        args.align_cache.mkdir(parents=True, exist_ok=True)
+    config = None
+    if not args.no_scorer:
+        from wordspot.errors import TrainingError
+        from wordspot.training.scorer_fit import ScorerConfig
+
+        try:
+            config = ScorerConfig(hidden=tuple(args.scorer_hidden), context=args.scorer_context,
+                                  max_frames=args.scorer_frames, seed=args.scorer_seed)
+        except TrainingError as exc:
+            print(f"build_starters.py: error: {exc}", file=sys.stderr)
+            return 2
     t0 = time.monotonic()
     for rate in args.rates:
-        train_one(rate, args.jobs, args.mixtures, args.quiet, args.manifests, args.out)
+        if args.scorer_only:
+            from wordspot.starters import starter_path
+
+            path = (args.out / f"{NAMES[rate]}.model") if args.out else starter_path(NAMES[rate])
+            if not path.exists():
+                print(f"build_starters.py: error: {path} does not exist; build it first "
+                      "(without --scorer-only)", file=sys.stderr)
+                return 2
+        else:
+            path = train_one(rate, args.jobs, args.mixtures, args.quiet, args.manifests, args.out)
+        if config is not None:
+            add_scorer(path, args.jobs, args.quiet, args.manifests, config, args.align_cache)
     print(f"starters rebuilt in {time.monotonic() - t0:.0f} s")
     return 0
 
