@@ -209,6 +209,9 @@ class TrainingSummary:
         Units that saw (almost) no data and keep their flat-start parameters.
     seconds : float
         Wall-clock time of the whole training.
+    scorer_note : str
+        What was done to a starting model's state scorer, in plain words ("" when there
+        is none).
     """
 
     used: int = 0
@@ -219,6 +222,7 @@ class TrainingSummary:
     frames_per_unit: dict = field(default_factory=dict)
     unseen_units: list = field(default_factory=list)
     seconds: float = 0.0
+    scorer_note: str = ""
 
     def count(self, items) -> None:
         """Set ``used`` (recordings, not augmented copies) and ``backgrounds`` from training items."""
@@ -237,6 +241,8 @@ class TrainingSummary:
             out.append("frames per unit: " + ", ".join(cells))
         out.append("units with no data (flat-start parameters): "
                    + (", ".join(self.unseen_units) if self.unseen_units else "none"))
+        if self.scorer_note:
+            out.append(self.scorer_note)
         out.append(f"training time: {self.seconds:.1f} s")
         return out
 
