@@ -21,7 +21,7 @@ fitted first on part of the starter corpus's train split (``--corpus``; aligned 
 start) and kept in ``--base`` for later runs:
 
     python tests/benchmarks/scorer_adapt_dev.py --start starter --corpus recordings/starter \\
-        --base /tmp/base-scorer.model --seeds 0 1 2 --variants all:0.5 output:0.5
+        --base /tmp/base-scorer.model --seeds 0 1 2 --variants all:0.25 output:0.25
 
 A variant is ``LAYERS:RHO`` (``LAYERS`` all or output), optionally followed by
 ``,NAME=VALUE`` for any other field of ``ScorerAdaptConfig`` (for example
@@ -83,7 +83,7 @@ def main(argv=None) -> int:
                     help="the starter corpus (its dev.csv gives the other talk; train.csv a base scorer)")
     ap.add_argument("--base", type=Path, default=None, help="model file to keep / reuse the fitted base scorer in")
     ap.add_argument("--base-recordings", type=int, default=1500)
-    ap.add_argument("--variants", nargs="+", default=["all:0.5", "output:0.5"])
+    ap.add_argument("--variants", nargs="+", default=["all:0.25", "output:0.25"])
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
     ap.add_argument("--weights", type=float, nargs="+", default=[0.5, 1.0])
     ap.add_argument("--scale", type=float, default=1.0)
