@@ -64,9 +64,9 @@ class ScorerAdaptConfig:
     The defaults were chosen on dev data only (the demo's dev voices, none of its test
     sets; ``tests/benchmarks/scorer_adapt_dev.py``, record in
     ``docs/experiments/2026-12-02-scorer-adaptation.md``): every layer at rho 0.25 (8,000
-    frames, 3 epochs, step 0.001) raised a stand-in network's dev frame accuracy from 56.4% to 64.2% and cut
-    the dev command WER with the network alone from 7.6% to 0.6% (means of 3 seeds); rho
-    0.5 and the output layer alone gained less. With the shipped starter's network: 68.2%
+    frames, 3 epochs, step 0.001) raised a stand-in network's dev frame accuracy from
+    56.4% to 64.2% and cut the dev command WER with the network alone from 7.6% to 0.6%
+    (means of 3 seeds); rho 0.5 and the output layer alone gained less. With the shipped starter's network: 68.2%
     -> 72.0% of dev frames, command WER and other talk unchanged. It costs about 1 s of one
     core for the demo's recordings.
 
