@@ -58,6 +58,8 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
         as ``wordspot train`` does by default; ``None`` trains from scratch.
     config : TrainingConfig or AdaptationConfig, optional
         How to train from scratch (``TrainingConfig``) or adapt (``AdaptationConfig``).
+        Adapting also tunes the starting model's state scorer to the recordings when it
+        has one; ``AdaptationConfig(scorer=None)`` keeps it as it is.
     features : wordspot.audio.features.FeatureSettings, optional
         From scratch only: the feature settings (an adapted model keeps its start's).
     calibration : bool or CalibrationConfig

@@ -106,6 +106,10 @@ def add_parser(sub, **options):
     start.add_argument("--no-mean-transform", action="store_true",
                        help="skip the shared transform that first moves every phone towards your voice")
     start.add_argument("--adapt-variances", action="store_true", help="also adapt the variances")
+    start.add_argument("--keep-starter-scorer", action="store_true",
+                       help="when the starting model has a sound scorer (a network that rates every "
+                       "sound from a short window of audio), keep it as it is; by default it is tuned to "
+                       "your recordings after the phones are adapted")
     full = p.add_argument_group("training from scratch")
     full.add_argument("--from-scratch", action="store_true",
                       help="learn every phone from these recordings alone, starting from nothing")
@@ -239,7 +243,8 @@ def _adapted(args, lexicon, say):
         )
     config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
                               mean_transform=not args.no_mean_transform,
-                              update_variances=args.adapt_variances, jobs=args.jobs, **_share(args))
+                              update_variances=args.adapt_variances, jobs=args.jobs,
+                              **({"scorer": None} if args.keep_starter_scorer else {}), **_share(args))
 
     def fit(utterances):
         return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,

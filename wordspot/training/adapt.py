@@ -20,6 +20,12 @@ Two steps, both over the same forward-backward statistics that training collects
    and, when asked, variances from the second-order statistics in the same way. With no
    data a Gaussian keeps its prior; with much data it tends to the maximum-likelihood
    estimate. The prior is the (transformed) starting model throughout the passes.
+
+When the starting model has a state scorer (a network giving the posterior of every
+mixture id), the user's recordings are then aligned with the adapted mixtures and the
+network is tuned to those frames, with a penalty towards its own starting outputs
+(:mod:`wordspot.training.scorer_adapt`); ``AdaptationConfig.scorer = None`` keeps it as
+it is.
 """
 
 from __future__ import annotations
@@ -31,7 +37,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from wordspot import __version__
-from wordspot.acoustic.gmm import Mixtures, MixtureStats
+from wordspot.acoustic.gmm import Mixtures, MixtureStats, scoring_matrix
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
 from wordspot.corpus import check_manifest
 from wordspot.audio.band import check_training_band
@@ -41,7 +47,9 @@ from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
 from wordspot.training.backgrounds import check_share
 from wordspot.training.data import prepare_items
+from wordspot.training.frame_labels import align_one
 from wordspot.training.items import CHUNK_SIZE
+from wordspot.training.scorer_adapt import ScorerAdaptConfig, adapt_scorer
 from wordspot.training.trainer import TrainingSummary, pass_statistics
 
 __all__ = [
@@ -54,6 +62,8 @@ __all__ = [
     "regression_classes",
     "vocabulary_for",
     "adapt_items",
+    "align_for_scorer",
+    "tune_scorer",
     "adapt",
     "ADAPT_LEGEND",
 ]
@@ -94,6 +104,9 @@ class AdaptationConfig:
         update see more than the user's room tone; 0 adds none.
     seed : int
         Seeds the background items.
+    scorer : ScorerAdaptConfig or None
+        How to tune the starting model's state scorer to the recordings (when it has
+        one); None keeps the starting model's scorer unchanged.
     """
 
     prior_weight: float = 300.0
@@ -105,6 +118,7 @@ class AdaptationConfig:
     prune: float = 1e-4
     background_share: float = 0.1
     seed: int = 0
+    scorer: ScorerAdaptConfig | None = ScorerAdaptConfig()
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -116,6 +130,8 @@ class AdaptationConfig:
         if not self.min_transform_frames > 0 or self.prune < 0:
             raise TrainingError("min_transform_frames must be > 0 and prune >= 0")
         object.__setattr__(self, "background_share", check_share(self.background_share))
+        if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
+            raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
 
 
 # ------------------------------------------------------------------ MAP (pure functions)
@@ -314,6 +330,61 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     return current, summary, transform
 
 
+def align_for_scorer(items, mix: Mixtures) -> tuple[list, list]:
+    """Frames and per-frame mixture ids of the recordings among ``items`` (background-only
+    items left out), by forced alignment of each one's chain with ``mix``
+    (:func:`wordspot.training.frame_labels.align_one`); items no path fits are left out."""
+    scoring = scoring_matrix(mix)
+    frames, labels = [], []
+    for it in items:
+        if it.background:
+            continue
+        score, y = align_one(it.frames, it.graph, scoring, mix.n_components)
+        if np.isfinite(score):
+            frames.append(np.asarray(it.frames, dtype=np.float32))
+            labels.append(y)
+    return frames, labels
+
+
+def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptConfig, report=None):
+    """The starting model's scorer tuned to ``items`` aligned with ``mix``.
+
+    Returns
+    -------
+    scorer : StateScorer
+    info : dict
+        What was done, for the model's ``info``.
+    note : str
+        One plain sentence for the training summary.
+    """
+    t0 = time.monotonic()
+    frames, labels = align_for_scorer(items, mix)
+    if not labels:
+        return start.scorer, {"tuned": False, "reason": "no recording could be aligned"}, \
+            "kept the starting model's sound scorer as it is (no recording could be aligned)"
+    speech = regression_classes(start.units) == 1
+    scorer, rep = adapt_scorer(start.scorer, frames, labels, config, speech_classes=speech,
+                               frame_seconds=start.features.hop_ms / 1000.0)
+    seconds = time.monotonic() - t0
+    held = [round(v, 4) for v in rep.held_out_loss]
+    info = {"tuned": rep.best_epoch > 0, "rho": float(config.rho), "layers": config.layers,
+            "prior": config.prior, "seed": int(config.seed), "recordings": rep.recordings,
+            "seconds_of_speech": round(rep.seconds_of_speech, 1), "train_frames": rep.train_frames,
+            "held_out_frames": rep.held_out_frames, "held_out_loss": held, "epoch_kept": rep.best_epoch,
+            "held_out_accuracy": [None if not np.isfinite(a) else round(a, 4) for a in rep.held_out_accuracy],
+            "seconds": round(seconds, 2)}
+    if report is not None:
+        report(f"sound scorer: held-out loss per epoch {', '.join(f'{v:.3f}' for v in held)}; "
+               f"epoch {rep.best_epoch} kept ({seconds:.1f} s)")
+    if rep.best_epoch == 0:
+        note = ("kept the starting model's sound scorer as it is: tuning it to your recordings did not "
+                "help on the recordings held out to check it")
+    else:
+        note = (f"tuned the sound scorer to your voice on {rep.seconds_of_speech:.0f} seconds of speech "
+                f"({rep.recordings} recordings)")
+    return scorer, info, note
+
+
 def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lexicon, list[str]]:
     """The user's lexicon, plus pronunciations from the starting model for transcript words it lacks.
 
@@ -390,6 +461,15 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "seconds": round(summary.seconds, 2),
     }
     info["audio_band"] = band
+    scorer = start.scorer
+    if scorer is not None and config.scorer is not None:
+        scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
+                                                                             report=report)
+    elif scorer is not None:
+        info["scorer_adaptation"] = {"tuned": False, "reason": "kept by request"}
+        summary.scorer_note = "kept the starting model's sound scorer as it is (as asked)"
+    summary.seconds = time.monotonic() - t0
+    info["seconds"] = round(summary.seconds, 2)
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
-                          bigrams=bigrams, info=info)
+                          bigrams=bigrams, info=info, scorer=scorer)
     return model, summary

@@ -217,6 +217,9 @@ class TrainingSummary:
         Units that saw (almost) no data and keep their flat-start parameters.
     seconds : float
         Wall-clock time of the whole training.
+    scorer_note : str
+        What was done to a starting model's state scorer, in plain words ("" when there
+        is none).
     """
 
     used: int = 0
@@ -228,6 +231,7 @@ class TrainingSummary:
     frame_seconds: float = 0.01
     unseen_units: list = field(default_factory=list)
     seconds: float = 0.0
+    scorer_note: str = ""
 
     def count(self, items) -> None:
         """Set ``used`` (recordings, not augmented copies) and ``backgrounds`` from training items."""
@@ -247,6 +251,8 @@ class TrainingSummary:
             out.append("seconds of sound each phone was learnt from: " + ", ".join(cells))
         out.append("phones heard in no recording (left as they started): "
                    + (", ".join(self.unseen_units) if self.unseen_units else "none"))
+        if self.scorer_note:
+            out.append(self.scorer_note)
         out.append(f"training time: {self.seconds:.1f} s")
         return out
 
