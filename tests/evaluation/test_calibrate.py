@@ -12,11 +12,11 @@ import pytest
 
 from decoding_helpers import tiny_model
 from wordspot.corpus import Utterance
-from wordspot.decoding.confidence import MEASURE_NAMES
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.evaluation import calibrate
-from wordspot.evaluation.calibrate import (CalibrationConfig, CalibrationExamples, fit_calibration,
-                                           split_held_out, train_calibrated)
+from wordspot.evaluation.calibrate import (CALIBRATION_POSTERIOR_MEASURES, CalibrationConfig, CalibrationExamples,
+                                           fit_calibration, split_held_out, train_calibrated)
 
 WORDS = ("oven", "stop", "start")
 
@@ -60,13 +60,18 @@ def test_split_keeps_one_recording_of_every_transcript_for_training():
         assert all(u.words != ("start",) for u in held)
 
 
-def _examples(right, wrong, recordings=40, rng=None):
+def _examples(right, wrong, recordings=40, rng=None, posteriors=False):
     rng = rng or np.random.default_rng(5)
     # one column per measure of MEASURE_NAMES, in its order
     good = rng.normal([-50.0, -1.0, 2.0, -0.5, 3.0, 0.0, 4.0, -0.3], 1.0, size=(right, 8))
     bad = rng.normal([-60.0, -6.0, 2.5, -3.0, 0.0, 1.0, 3.0, -2.0], 1.0, size=(wrong, 8))
     labels = np.r_[np.ones(right, bool), np.zeros(wrong, bool)]
-    return CalibrationExamples(np.vstack([good, bad]), labels, ~labels, recordings=recordings)
+    if posteriors:  # right words' states are the likelier ones under the network
+        post = np.vstack([rng.normal([-1.0, -1.2, -2.5, 0.0], 0.5, size=(right, 4)),
+                          rng.normal([-3.0, -3.2, -5.0, -2.0], 0.5, size=(wrong, 4))])
+    else:  # a model without a state scorer: NaN
+        post = np.full((right + wrong, 4), np.nan)
+    return CalibrationExamples(np.hstack([np.vstack([good, bad]), post]), labels, ~labels, recordings=recordings)
 
 
 def test_fit_needs_both_kinds_of_word():
@@ -75,8 +80,19 @@ def test_fit_needs_both_kinds_of_word():
     with pytest.warns(TrainingWarning, match="it needs 20 recordings"):
         assert fit_calibration(_examples(30, 30, recordings=12)) is None
     cal = fit_calibration(_examples(30, 30))
-    assert cal.names == MEASURE_NAMES
+    assert cal.names == BASE_MEASURE_NAMES  # no state scorer: the posterior measures are NaN and left out
     assert cal.coefficients[1] > 0  # right words have the larger free margin in these examples
+
+
+def test_fit_uses_the_posterior_measures_when_the_model_has_a_scorer():
+    cal = fit_calibration(_examples(30, 30, posteriors=True))
+    assert cal.names == BASE_MEASURE_NAMES + CALIBRATION_POSTERIOR_MEASURES
+    assert set(cal.names) <= set(MEASURE_NAMES)
+    # a chosen subset is fitted on exactly those columns
+    names = ("posterior_mean", "free_margin")
+    sub = fit_calibration(_examples(30, 30, posteriors=True), names=names)
+    assert sub.names == names
+    assert sub.means[0] == pytest.approx(_examples(30, 30, posteriors=True).measures[:, 8].mean(), rel=1e-12)
 
 
 def test_train_calibrated_trains_on_the_rest_then_on_everything(rng, monkeypatch):

@@ -183,7 +183,8 @@ def _run(args) -> int:
         config = CalibrationConfig(held_out_share=args.calibration_share, refit=args.refit,
                                    jumbled=args.jumbled_clips)
         model, summary = train_calibrated(fit, utterances, config=config.decided(adapting=not args.from_scratch),
-                                          quiet=args.quiet, report=say)
+                                          quiet=args.quiet, report=say,
+                                          fallback=getattr(fit, "start_calibration", None))
     if model.info.get("borrowed_pronunciations"):
         say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
     for line in summary.lines():
@@ -242,4 +243,5 @@ def _adapted(args, lexicon, say):
         return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
                      quiet=args.quiet, report=say)
 
+    fit.start_calibration = getattr(start, "calibration", None)  # kept when the takes are too few for one
     return fit, f"adapted from {name}"
