@@ -15,6 +15,7 @@ from wordspot.corpus import Utterance
 from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.evaluation import calibrate
+from wordspot.util.logistic import Calibration
 from wordspot.evaluation.calibrate import (CALIBRATION_POSTERIOR_MEASURES, CalibrationConfig, CalibrationExamples,
                                            fit_calibration, split_held_out, train_calibrated)
 
@@ -134,6 +135,44 @@ def test_too_few_recordings_train_once_without_calibration(rng):
     with pytest.warns(TrainingWarning, match=r"calibration skipped: holding out 15% .* gives \d+, fewer than the 20"):
         out, _ = train_calibrated(fake_train, utts)
     assert calls == [len(utts)] and out.calibration is None
+
+
+def _starter_calibration(names):
+    k = len(names)
+    return Calibration(tuple(names), np.zeros(k), np.ones(k), np.full(k, 0.5), -1.0)
+
+
+def test_too_few_takes_keep_the_starting_models_calibration_and_say_so(rng, recwarn):
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    start_cal = _starter_calibration(BASE_MEASURE_NAMES)
+    lines = []
+    out, _ = train_calibrated(lambda part: (model, None), _utterances(speakers=2, takes=3), fallback=start_cal,
+                              report=lines.append)
+    assert out.calibration is start_cal and out.info["calibration"]["kept_from_start"] is True
+    assert not [w for w in recwarn.list if issubclass(w.category, TrainingWarning)]
+    assert any("keeps the calibration it started with" in line and "fewer than the 20 needed" in line
+               for line in lines)
+
+
+def test_enough_takes_but_too_few_words_of_a_kind_also_keep_it(rng, monkeypatch):
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    monkeypatch.setattr(calibrate, "calibration_examples", lambda m, held, **_: _examples(30, 0, recordings=len(held)))
+    start_cal = _starter_calibration(BASE_MEASURE_NAMES)
+    lines = []
+    out, _ = train_calibrated(lambda part: (model, None), _utterances(speakers=5, takes=6), fallback=start_cal,
+                              config=CalibrationConfig(held_out_share=0.3, refit=False), report=lines.append)
+    assert out.calibration is start_cal
+    assert "30 right and 0 wrong words, too few to fit one for your voice" in lines[-1]
+
+
+def test_a_starting_calibration_over_posterior_measures_needs_a_scorer(rng):
+    # without a state scorer the adapted model cannot compute the posterior measures: the
+    # starter's calibration is not kept and training warns as before
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    start_cal = _starter_calibration(BASE_MEASURE_NAMES + CALIBRATION_POSTERIOR_MEASURES)
+    with pytest.warns(TrainingWarning, match="uncalibrated heuristic"):
+        out, _ = train_calibrated(lambda part: (model, None), _utterances(speakers=2, takes=3), fallback=start_cal)
+    assert out.calibration is None
 
 
 def test_refit_default_depends_on_the_kind_of_training():

@@ -54,6 +54,9 @@ class StarterCalibrationConfig:
         Clips of jumbled speech per vocabulary.
     noise : int
         Background-only clips per vocabulary.
+    speeds : tuple of float
+        The command recordings are also recognised played this many times faster
+        (``training.data.speed_copy``; words inside phrases are quicker than said alone).
     seed : int
     settings : DecoderSettings
         How the recordings are recognised (no threshold in any case).
@@ -61,11 +64,12 @@ class StarterCalibrationConfig:
         L2 penalty of the logistic regression.
     """
 
-    vocabularies: int = 8
-    words: tuple[int, int] = (6, 20)
-    other_talk: int = 60
-    jumbled: int = 10
-    noise: int = 10
+    vocabularies: int = 12
+    words: tuple[int, int] = (8, 30)
+    other_talk: int = 40
+    jumbled: int = 8
+    noise: int = 8
+    speeds: tuple[float, ...] = (1.0, 1.25)
     seed: int = 0
     settings: DecoderSettings = DecoderSettings(min_confidence=0.0)
     penalty: float = CalibrationConfig.penalty
@@ -80,6 +84,8 @@ class StarterCalibrationConfig:
         if not (isinstance(lo, int) and isinstance(hi, int) and 2 <= lo <= hi):
             raise TrainingError(f"starter calibration: words must be two whole numbers 2 <= low <= high, "
                                 f"got {self.words!r}")
+        if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
+            raise TrainingError(f"starter calibration: speeds must be factors from 0.5 to 2, got {self.speeds!r}")
 
 
 def _load(model, path) -> np.ndarray | None:
@@ -112,6 +118,7 @@ def starter_calibration_examples(model, utterances: Sequence,
     from wordspot.audio.features import compute_features
     from wordspot.audio.jumble import jumbled_speech
     from wordspot.training.backgrounds import background_wave, plan_backgrounds
+    from wordspot.training.data import speed_copy
 
     say = report or (lambda line: None)
     rate = model.features.sample_rate
@@ -162,9 +169,10 @@ def starter_calibration_examples(model, utterances: Sequence,
             if w is None:
                 failed.add(str(u.path))
                 continue
-            segs = heard(w)
-            add(segs, word_hits(u.words, [s.word for s in segs]) if is_command else [False] * len(segs),
-                all_wrong=not is_command)
+            for f in config.speeds if is_command else (1.0,):
+                segs = heard(w if f == 1.0 else speed_copy(w, rate, f))
+                add(segs, word_hits(u.words, [s.word for s in segs]) if is_command else [False] * len(segs),
+                    all_wrong=not is_command)
         clips = []
         if config.jumbled:
             speaker = sorted({str(u.speaker) for u in commands})
