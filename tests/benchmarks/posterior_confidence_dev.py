@@ -12,8 +12,9 @@ voices' other talk, noise-only clips) are recognised once with no threshold; eac
 confidences are then computed from the stored measures. Printed per variant, mean and range
 over seeds:
 
-* EER: the equal error rate of right against wrong words over every word heard in the dev
-  sets (right: a command word the word alignment matches; wrong: every other);
+* EER: where the miss rate of the dev commands equals the share of other-talk and
+  noise-only files with a word kept, as the threshold moves (the project's definition,
+  :mod:`wordspot.evaluation.detection`);
 * at the default threshold: dev command WER, real phrases WER, other-talk files with a
   command, noise-only files with a command.
 
@@ -51,16 +52,30 @@ VARIANTS = {
 SETS = ("words", "real phrases", "other talk", "noise only")
 
 
-def equal_error_rate(scores: np.ndarray, right: np.ndarray) -> float:
-    """The rate at which the share of right words below a threshold equals the share of wrong
-    words at or above it (the threshold swept over every score; common practice, no source)."""
-    order = np.argsort(-scores, kind="stable")
-    r = right[order]
-    n_r, n_w = max(int(r.sum()), 1), max(int((~r).sum()), 1)
-    false_accept = np.cumsum(~r) / n_w  # wrong words accepted with the threshold at each score
-    false_reject = 1.0 - np.cumsum(r) / n_r
-    k = int(np.argmin(np.abs(false_accept - false_reject)))
-    return float((false_accept[k] + false_reject[k]) / 2)
+def operating_eer(commands, non_commands) -> float:
+    """The project's equal error rate (:func:`wordspot.evaluation.detection.equal_error_rate`):
+    miss rate (S + D) / N on the command files against the share of no-command files with a
+    word kept, over 200 thresholds at the quantiles of the confidences.
+
+    ``commands``: (reference, words heard, their confidences) per file; ``non_commands``:
+    (words heard, confidences) per file.
+    """
+    from wordspot.evaluation.detection import equal_error_rate
+    from wordspot.evaluation.scoring import align_words
+
+    every = np.concatenate([c for _, _, c in commands] + [c for _, c in non_commands] + [np.zeros(1)])
+    thresholds = np.unique(np.r_[0.0, np.quantile(every, np.linspace(0, 1, 200)), 1.0 + 1e-9])
+    n_ref = sum(len(ref) for ref, _, _ in commands)
+    miss, fa = [], []
+    for t in thresholds:
+        m = 0
+        for ref, words, conf in commands:
+            a = align_words(ref, [w for w, c in zip(words, conf) if c >= t])
+            m += a.substitutions + a.deletions
+        miss.append(m / n_ref)
+        fa.append(np.mean([bool((c >= t).any()) for _, c in non_commands]))
+    eer = equal_error_rate(miss, fa)
+    return float("nan") if eer is None else eer
 
 
 def main(argv=None) -> int:
@@ -74,7 +89,6 @@ def main(argv=None) -> int:
     from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
     from wordspot.decoding.decoder import DecoderSettings, build_recognizer
     from wordspot.evaluation.calibrate import CalibrationConfig, calibration_examples, fit_calibration, split_held_out
-    from wordspot.evaluation.reliability import word_hits
     from wordspot.evaluation.scoring import align_words
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
@@ -105,23 +119,23 @@ def main(argv=None) -> int:
             for variant, names in VARIANTS.items():
                 cal = fit_calibration(ex, config=config, names=names)
                 cols = [MEASURE_NAMES.index(n) for n in names]
-                scores, labels, row = [], [], []
+                row, commands, non_commands = [], [], []
                 for name, items in heard.items():
                     files_with = errors = n_words = 0
                     for ref, segs in items:
-                        if not segs:
-                            kept = []
-                        else:
-                            conf = cal.predict(np.array([s.measures for s in segs])[:, cols])
-                            scores.extend(conf.tolist())
-                            labels.extend(word_hits(ref, [s.word for s in segs]))
-                            kept = [s.word for s, c in zip(segs, conf) if c >= DEFAULT_MIN_CONFIDENCE]
+                        conf = (cal.predict(np.array([s.measures for s in segs])[:, cols]) if segs
+                                else np.zeros(0))
+                        if name == "words":
+                            commands.append((ref, [s.word for s in segs], conf))
+                        elif not ref:
+                            non_commands.append(([s.word for s in segs], conf))
+                        kept = [s.word for s, c in zip(segs, conf) if c >= DEFAULT_MIN_CONFIDENCE]
                         a = align_words(ref, kept)
                         errors += a.substitutions + a.deletions + a.insertions
                         n_words += len(ref)
                         files_with += bool(kept)
                     row.append(100 * errors / n_words if n_words else 100 * files_with / len(items))
-                row.insert(0, 100 * equal_error_rate(np.array(scores), np.array(labels, dtype=bool)))
+                row.insert(0, 100 * operating_eer(commands, non_commands))
                 table[variant].append(row)
             print(f"seed {seed} done in {time.monotonic() - t0:.0f} s ({ex.right.size} calibration words)",
                   file=sys.stderr, flush=True)
