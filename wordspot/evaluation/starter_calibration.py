@@ -9,8 +9,9 @@ user's words, so it is fitted over many small vocabularies drawn from the corpus
    recordings of the corpus say alone;
 2. for each set, recognise with that set as the lexicon (the filler on, no threshold):
    (a) the recordings saying one of those words (each word heard is labelled right or
-   wrong by the word alignment); (b) a sample of the other recordings (other words and
-   sentences holding none of the set's words): every word heard is wrong; (c) clips of
+   wrong by the word alignment), also played faster; (b) a sample of the other recordings,
+   mostly sentences, some single words, holding none of the set's words: every word heard
+   is wrong; (c) clips of
    jumbled speech of the set's recordings (:mod:`wordspot.audio.jumble`): all wrong;
    (d) background-only clips (noise, hum, babble of the corpus's voices;
    :func:`wordspot.training.backgrounds.background_wave`): all wrong;
@@ -49,7 +50,10 @@ class StarterCalibrationConfig:
     words : tuple of (int, int)
         Each vocabulary holds from ``words[0]`` to ``words[1]`` words (uniform).
     other_talk : int
-        Recordings without the vocabulary's words recognised per vocabulary.
+        Sentences without the vocabulary's words recognised per vocabulary (at most; other
+        talk is mostly sentences).
+    other_words : int
+        One-word recordings of other words recognised per vocabulary.
     jumbled : int
         Clips of jumbled speech per vocabulary.
     noise : int
@@ -66,7 +70,8 @@ class StarterCalibrationConfig:
 
     vocabularies: int = 12
     words: tuple[int, int] = (8, 30)
-    other_talk: int = 40
+    other_talk: int = 50
+    other_words: int = 10
     jumbled: int = 8
     noise: int = 8
     speeds: tuple[float, ...] = (1.0, 1.25)
@@ -75,7 +80,7 @@ class StarterCalibrationConfig:
     penalty: float = CalibrationConfig.penalty
 
     def __post_init__(self) -> None:
-        for name in ("vocabularies", "other_talk", "jumbled", "noise"):
+        for name in ("vocabularies", "other_talk", "other_words", "jumbled", "noise"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < (1 if name == "vocabularies" else 0):
                 raise TrainingError(f"starter calibration: {name} must be a whole number >= "
@@ -157,8 +162,10 @@ def starter_calibration_examples(model, utterances: Sequence,
         rec = build_recognizer(model, settings=settings, lexicon=lexicon)
         chosen = set(vocab)
         commands = [u for u in usable if len(u.words) == 1 and u.words[0] in chosen]
-        others = [u for u in usable if not set(u.words) & chosen]
-        others = [others[i] for i in rng.permutation(len(others))[:config.other_talk]]
+        talk = [u for u in usable if len(u.words) > 1 and not set(u.words) & chosen]
+        words = [u for u in usable if len(u.words) == 1 and u.words[0] not in chosen]
+        others = ([talk[i] for i in rng.permutation(len(talk))[:config.other_talk]]
+                  + [words[i] for i in rng.permutation(len(words))[:config.other_words]])
 
         def heard(w):
             got = rec.decode(compute_features(w, model.features))
