@@ -48,6 +48,8 @@ out of a first training, recognised, and a logistic regression learns from them 
 often a word with given scores is right; the model is then trained again on everything
 (adapting; from scratch the first model is kept unless --refit) and stores the fit, so
 `wordspot recognize` reports each word's confidence as the probability that it is right.
+With too few takes for that (fewer than 20 held out), an adapted model keeps the
+calibration its starting model carries, if any, and the summary says so.
 """
 
 
