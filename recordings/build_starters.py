@@ -62,9 +62,9 @@ NAMES = {16000: "starter", 8000: "starter-8k"}
 #: The state scorer: hidden layers, frames of context on each side, training frames at most
 #: (a seeded subsample), background-only items per recording and the seed; chosen on the
 #: starter corpus's dev split (docs/experiments/2026-12-02-state-scorer.md).
-SCORER_HIDDEN = (512, 512)
+SCORER_HIDDEN = (256, 256)
 SCORER_CONTEXT = 5
-SCORER_MAX_FRAMES = 200_000
+SCORER_MAX_FRAMES = 1_000_000
 SCORER_BACKGROUND_SHARE = 0.1
 SCORER_SEED = 0
 DEV = CORPUS / "dev.csv"

@@ -81,6 +81,39 @@ def test_starter_8k_recognises_telephone_band_copies(tmp_path, capsys):
     assert right >= 14, f"{right} of {len(rows)} right"
 
 
+@pytest.mark.parametrize("name", sorted(STARTER_FILES))
+def test_starter_carries_a_state_scorer(name):
+    # The shipped starters carry the state scorer (recordings/build_starters.py): one output
+    # column per mixture id, reading the model's own frames, a file of at most 10 MB.
+    from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT
+    from wordspot.audio.features import file_features
+
+    assert starter_path(name).stat().st_size <= 10 * 10**6
+    model = load_model(name)
+    scorer = model.scorer
+    assert scorer is not None
+    p = model.mixtures.n_mixtures
+    assert scorer.n_classes == p == scorer.weights[-1].shape[1] == scorer.log_prior.shape[0]
+    assert scorer.frame_dim == model.features.dim
+    assert {"hidden", "context", "dev_frame_accuracy"} <= set(model.info["scorer"])
+    row = _demo_words(1)[0]
+    frames = file_features(RECORDINGS / row["path"], model.features)
+    post = np.exp(scorer.log_posteriors(frames).astype(np.float64))
+    assert post.shape == (frames.shape[0], p)
+    # a softmax output: every frame's posteriors sum to one (definition of a posterior)
+    np.testing.assert_allclose(post.sum(axis=1), 1.0, atol=1e-4)
+    # the room tone before the speech (the manifest's speech_start) is mostly background:
+    # the pause unit's states hold most of the posterior mass there
+    units = model.units
+    pause = sorted({int(m) for u in (PAUSE_UNIT, GAP_UNIT)
+                    for m in units.state_mixture[units.index(u), : units.n_states[units.index(u)]]})
+    lead = int(float(row["speech_start"]) * model.features.frame_rate) - 5
+    assert lead > 5
+    assert post[:lead, pause].sum(axis=1).mean() > 0.5
+    speech = int(float(row["speech_end"]) * model.features.frame_rate)
+    assert post[lead + 10:speech - 5, pause].sum(axis=1).mean() < 0.5
+
+
 NO_STARTER_CALIBRATION_YET = pytest.mark.xfail(
     strict=True, reason="the shipped starter files carry no calibration yet: run "
     "python recordings/build_starters.py --calibration-only once the starters with a state scorer are in, "
