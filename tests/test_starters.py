@@ -114,13 +114,6 @@ def test_starter_carries_a_state_scorer(name):
     assert post[lead + 10:speech - 5, pause].sum(axis=1).mean() < 0.5
 
 
-NO_STARTER_CALIBRATION_YET = pytest.mark.xfail(
-    strict=True, reason="the shipped starter files carry no calibration yet: run "
-    "python recordings/build_starters.py --calibration-only once the starters with a state scorer are in, "
-    "then remove this mark")
-
-
-@NO_STARTER_CALIBRATION_YET
 @pytest.mark.parametrize("name", sorted(STARTER_FILES))
 def test_starter_carries_a_confidence_calibration(name):
     from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES, usable_calibration
@@ -139,9 +132,9 @@ def _distractors(kind, n=10):
     return [RECORDINGS / r["path"] for r in rows[:: len(rows) // n][:n]]
 
 
-@pytest.mark.xfail(strict=True, reason="not reached yet: a starter with a trial state scorer and its calibration "
-                   "still heard a command in 3 of these 10 noise files and 8 of the 10 sentences at the default "
-                   "threshold (docs/experiments/2026-12-02-posterior-confidence.md); without a calibration 4 and 10")
+@pytest.mark.xfail(strict=True, reason="not reached yet: the shipped starter with its calibration still hears a "
+                   "command in 2 of these 10 noise files and 8 of the 10 sentences at the default threshold "
+                   "(docs/experiments/2026-12-02-posterior-confidence.md); without a calibration 4 and 10")
 @pytest.mark.parametrize("kind, at_most", [("noise", 0), ("sentence", 2)])
 def test_starter_says_no_command_on_noise_and_other_talk(kind, at_most):
     # Demo distractor files (recordings/distractors.csv; never used to tune anything): kitchen
