@@ -23,7 +23,15 @@ Steps:
    ``--scorer-only`` runs this step alone on the existing starter files (the shipped ones,
    or those in ``--out``), so the Gaussian mixtures are not trained again; ``--no-scorer``
    leaves it out.
-4. Record in each model file how it was made (corpus, voices, what was left out, date,
+4. Fit the confidence calibration the starter ships with
+   (:mod:`wordspot.evaluation.starter_calibration`): many small vocabularies drawn from the
+   words the dev split's recordings say alone; those recordings, the dev split's other
+   talk, jumbled speech and background-only clips recognised with each; a logistic
+   regression over the word measures (the state scorer's posterior measures among them).
+   A model adapted from the starter keeps it when the user's takes are too few for their
+   own. ``--calibration-only`` runs this step alone on the existing starter files;
+   ``--no-calibration`` leaves it out.
+5. Record in each model file how it was made (corpus, voices, what was left out, date,
    this command, the scorer's settings and dev figures) and write it into
    ``wordspot/starters/`` (atomically).
 """
@@ -207,6 +215,53 @@ def add_scorer(path: Path, jobs: int, quiet: bool, manifests: list[Path], config
     return out
 
 
+def add_calibration(path: Path, quiet: bool, manifest: Path = DEV, seed: int = 0) -> Path:
+    """Fit the starter calibration of the model file ``path`` on ``manifest`` (the dev split:
+    recordings the starter was not trained on) and write the model back with it (atomically)."""
+    from wordspot.corpus import read_manifest
+    from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, fit_starter_calibration
+    from wordspot.model import load_model, save_model
+
+    t0 = time.monotonic()
+    model = load_model(path)
+    name = model.info.get("name", path.stem)
+    config = StarterCalibrationConfig(seed=seed)
+    cal, ex = fit_starter_calibration(model, read_manifest(manifest), config,
+                                      report=None if quiet else (lambda line: print(line, flush=True)))
+    if cal is None:
+        print(f"{name}: no calibration fitted ({int(ex.right.sum())} right, {int((~ex.right).sum())} wrong words)")
+        return path
+    model.calibration = cal
+    model.info["calibration"] = {
+        "starter": True,
+        "made_from": str(manifest.relative_to(REPO)) if manifest.is_relative_to(REPO) else str(manifest),
+        "vocabularies": config.vocabularies, "words_per_vocabulary": list(config.words),
+        "other_talk_per_vocabulary": config.other_talk, "jumbled_per_vocabulary": config.jumbled,
+        "noise_per_vocabulary": config.noise, "seed": seed, "measures": list(cal.names),
+        "right_words": int(ex.right.sum()), "wrong_words": int((~ex.right).sum()),
+        "built": dt.date.today().isoformat(),
+        "command": "python recordings/build_starters.py " + " ".join(sys.argv[1:]),
+        "seconds": round(time.monotonic() - t0, 1),
+    }
+    out = save_model(model, path)
+    print(f"{name}: calibration over {len(cal.names)} measures from {int(ex.right.sum())} right and "
+          f"{int((~ex.right).sum())} wrong words, {time.monotonic() - t0:.0f} s -> {out}", flush=True)
+    return out
+
+
+def calibrate_only(args) -> int:
+    """``--calibration-only``: the calibration step on the existing starter files."""
+    from wordspot.starters import starter_path
+
+    for rate in args.rates:
+        path = (args.out / f"{NAMES[rate]}.model") if args.out else starter_path(NAMES[rate])
+        if not path.exists():
+            print(f"build_starters.py: error: {path} does not exist; build it first", file=sys.stderr)
+            return 2
+        add_calibration(path, args.quiet)
+    return 0
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0],
                                  formatter_class=argparse.RawDescriptionHelpFormatter)
@@ -231,7 +286,14 @@ def main(argv=None) -> int:
     ap.add_argument("--scorer-seed", type=int, default=SCORER_SEED, help=f"(default {SCORER_SEED})")
     ap.add_argument("--align-cache", type=Path, default=None,
                     help="keep the alignments in this folder and reuse them (dev runs)")
+    ap.add_argument("--calibration-only", action="store_true",
+                    help="only fit the confidence calibration of the existing starter files")
+    ap.add_argument("--no-calibration", action="store_true", help="leave out the confidence calibration")
     args = ap.parse_args(argv)
+    if args.calibration_only:
+        if not DEV.exists():
+            build_corpus(args.jobs)
+        return calibrate_only(args)
     if any(m.parent == CORPUS for m in args.manifests):
         build_corpus(args.jobs)
     (args.out or OUT).mkdir(parents=True, exist_ok=True)
@@ -262,6 +324,8 @@ def main(argv=None) -> int:
             path = train_one(rate, args.jobs, args.mixtures, args.quiet, args.manifests, args.out)
         if config is not None:
             add_scorer(path, args.jobs, args.quiet, args.manifests, config, args.align_cache)
+        if not args.no_calibration:
+            add_calibration(path, args.quiet)
     print(f"starters rebuilt in {time.monotonic() - t0:.0f} s")
     return 0
 

@@ -138,3 +138,40 @@ def test_starter_carries_a_state_scorer(name):
     assert post[:lead, pause].sum(axis=1).mean() > 0.5
     speech = int(float(row["speech_end"]) * model.features.frame_rate)
     assert post[lead + 10:speech - 5, pause].sum(axis=1).mean() < 0.5
+
+
+@pytest.mark.parametrize("name", sorted(STARTER_FILES))
+def test_starter_carries_a_confidence_calibration(name):
+    from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES, usable_calibration
+
+    model = load_model(name)
+    cal = model.calibration
+    assert cal is not None and model.info["calibration"]["starter"] is True
+    assert usable_calibration(cal) is cal  # every measure it names is one the decoder computes
+    if model.scorer is not None:
+        assert set(POSTERIOR_MEASURE_NAMES) & set(cal.names)
+
+
+def _distractors(kind, n=10):
+    with open(RECORDINGS / "distractors.csv", newline="", encoding="utf-8") as f:
+        rows = [r for r in csv.DictReader(f) if r["kind"] == kind]
+    return [RECORDINGS / r["path"] for r in rows[:: len(rows) // n][:n]]
+
+
+@pytest.mark.xfail(strict=True, reason="not reached yet: the shipped starter with its calibration still hears a "
+                   "command in 2 of these 10 noise files and 8 of the 10 sentences at the default threshold "
+                   "(docs/experiments/2026-12-02-posterior-confidence.md); without a calibration 4 and 10")
+@pytest.mark.parametrize("kind, at_most", [("noise", 0), ("sentence", 2)])
+def test_starter_says_no_command_on_noise_and_other_talk(kind, at_most):
+    # Demo distractor files (recordings/distractors.csv; never used to tune anything): kitchen
+    # noise alone, and sentences of other talk by the demo's test voices. The shipped starter
+    # with the bakery words and its own calibration at the default threshold must hear no
+    # command in (nearly) all of them; without the calibration it hears one in most.
+    from wordspot.decoding.decoder import recognize_files
+    from wordspot.language.lexicon import read_lexicon
+
+    model = load_model("starter")
+    files = _distractors(kind)
+    got = recognize_files(model, files, lexicon=read_lexicon(LEXICON_DIR / "bakery.txt"))
+    fired = [f"{r.path}: {r.text}" for r in got if r.segments]
+    assert len(fired) <= at_most, fired

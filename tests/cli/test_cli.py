@@ -213,3 +213,32 @@ def test_evaluate_prints_misses_and_false_accepts(setup, capsys):
     assert status == 0
     assert "miss rate" in out and "on 1 recording(s) without a command" in out and "per hour" in out
     assert (folder / "r" / "det.csv").is_file() and (folder / "r" / "det.png").is_file()
+
+
+def test_train_with_few_takes_keeps_the_starting_models_calibration_and_says_so(tmp_path, capsys):
+    # A starting model that carries a calibration (as the shipped starters do), adapted on
+    # six takes: 15% held out is too few for a calibration of the user's own, so the model
+    # keeps the start's and the training summary says so in plain words.
+    from dataclasses import replace as _replace
+    from pathlib import Path
+
+    from wordspot.decoding.confidence import BASE_MEASURE_NAMES
+    from wordspot.model import load_model
+    from wordspot.util.logistic import Calibration
+
+    repo = Path(__file__).resolve().parents[2]
+    k = len(BASE_MEASURE_NAMES)
+    cal = Calibration(BASE_MEASURE_NAMES, np.zeros(k), np.ones(k), np.full(k, 0.2), -0.5)
+    start = save_model(_replace(load_model("starter"), calibration=cal), tmp_path / "start.model")
+    rows = [ln for ln in (repo / "recordings" / "train.csv").read_text(encoding="utf-8").splitlines()[1:]
+            if ln.split(",")[1] in ("oven start", "stop")][:6]
+    manifest = tmp_path / "takes.csv"
+    manifest.write_text("path,transcript,speaker\n" + "".join(
+        f"{repo / 'recordings' / r.split(',')[0]},{r.split(',')[1]},{r.split(',')[2]}\n" for r in rows),
+        encoding="utf-8")
+    status, out, err = _run(capsys, ["train", str(manifest), "--lexicon", str(repo / "lexicon" / "bakery.txt"),
+                                     "--start", str(start), "--out", str(tmp_path / "m.model")])
+    assert status == 0, err
+    assert "keeps the calibration it started with" in out
+    got = load_model(tmp_path / "m.model")
+    assert got.calibration.to_dict() == cal.to_dict() and got.info["calibration"]["kept_from_start"] is True

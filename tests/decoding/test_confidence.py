@@ -10,8 +10,8 @@ import pytest
 from scipy.special import expit
 
 from decoding_helpers import frames_along, gap_mixtures, pause_mixtures, tiny_model, word_mixtures
-from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES,
-                                          heuristic_confidence, split_by_confidence, word_measures)
+from wordspot.decoding.confidence import (BASE_MEASURE_NAMES, CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE,
+                                          MEASURE_NAMES, heuristic_confidence, split_by_confidence, word_measures)
 from wordspot.decoding.decoder import DecoderSettings, build_recognizer, recognize_features
 from wordspot.errors import DecodingError, WordspotWarning
 from wordspot.util.logistic import Calibration
@@ -28,7 +28,7 @@ def _bat_tab(rng):
     return model, frames_along(model, path, rng)
 
 
-def _calibration(names=MEASURE_NAMES, coefficients=(0.5, 2.0, -0.25, 1.0, 0.5, -1.0, 0.3, 1.5)):
+def _calibration(names=BASE_MEASURE_NAMES, coefficients=(0.5, 2.0, -0.25, 1.0, 0.5, -1.0, 0.3, 1.5)):
     k = len(names)
     return Calibration(tuple(names), np.linspace(-40.0, 0.0, k), np.linspace(1.0, 3.0, k),
                        np.array(coefficients[:k], dtype=float), 0.75)
@@ -41,7 +41,8 @@ def test_measures_of_a_worked_example():
     best_free = np.array([0.0, -1.0, -3.0, -6.0, -10.0, -15.0])
     got = word_measures(acoustic=-16.0, best_free=best_free, start=1, phone_end=3, end=4, n_phones=2,
                         filler_margin=-0.25, runner_up_margin=1.5, next_to_filler=1, phone_filler_margin=-0.75)
-    assert got == pytest.approx((-4.0, -0.5, math.log(1.5), -0.25, 1.5, 1.0, 2.0, -0.75), abs=1e-12)
+    assert got[:8] == pytest.approx((-4.0, -0.5, math.log(1.5), -0.25, 1.5, 1.0, 2.0, -0.75), abs=1e-12)
+    assert len(got) == len(MEASURE_NAMES) and np.isnan(got[8:]).all()  # no posteriors given
     # the heuristic of the module docstring: exp(min(d, 0) / 4)
     assert heuristic_confidence(got) == pytest.approx(math.exp(-0.5 / CONFIDENCE_SCALE), rel=1e-12)
     assert heuristic_confidence((0.0, 0.3, 0.0)) == 1.0
@@ -101,14 +102,27 @@ def test_calibration_turns_measures_into_the_logistic_probability(rng):
     got = recognize_features(model, frames, settings=DecoderSettings(min_confidence=0.0))
     for seg in got.segments:
         cal = model.calibration
-        z = (np.array(seg.measures) - cal.means) / cal.scales
+        z = (np.array(seg.measures[:8]) - cal.means) / cal.scales
         assert seg.confidence == pytest.approx(expit(cal.intercept + z @ cal.coefficients), rel=1e-12)  # scipy
+
+
+def test_calibration_over_some_measures_reads_those_columns(rng):
+    # A calibration names the measures it uses, in its own order: the decoder picks them out.
+    model, frames = _bat_tab(rng)
+    names = ("filler_margin", "free_margin")
+    model = replace(model, calibration=_calibration(names=names))
+    got = recognize_features(model, frames, settings=DecoderSettings(min_confidence=0.0))
+    cal = model.calibration
+    for seg in got.segments:
+        x = np.array([seg.measures[MEASURE_NAMES.index(n)] for n in names])
+        assert seg.confidence == pytest.approx(expit(cal.intercept + ((x - cal.means) / cal.scales)
+                                                     @ cal.coefficients), rel=1e-12)  # scipy
 
 
 def test_calibration_over_other_measures_falls_back_with_one_warning(rng):
     model, frames = _bat_tab(rng)
-    model = replace(model, calibration=_calibration(names=("free_margin", "filler_margin")))
-    with pytest.warns(WordspotWarning, match="filler_margin.*uncalibrated heuristic") as caught:
+    model = replace(model, calibration=_calibration(names=("free_margin", "speaking_rate")))
+    with pytest.warns(WordspotWarning, match="speaking_rate.*uncalibrated heuristic") as caught:
         rec = build_recognizer(model)
     assert len(caught) == 1
     got = rec.decode(frames)

@@ -12,11 +12,12 @@ import pytest
 
 from decoding_helpers import tiny_model
 from wordspot.corpus import Utterance
-from wordspot.decoding.confidence import MEASURE_NAMES
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
 from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.evaluation import calibrate
-from wordspot.evaluation.calibrate import (CalibrationConfig, CalibrationExamples, fit_calibration,
-                                           split_held_out, train_calibrated)
+from wordspot.util.logistic import Calibration
+from wordspot.evaluation.calibrate import (CALIBRATION_POSTERIOR_MEASURES, CalibrationConfig, CalibrationExamples,
+                                           fit_calibration, split_held_out, train_calibrated)
 
 WORDS = ("oven", "stop", "start")
 
@@ -60,13 +61,18 @@ def test_split_keeps_one_recording_of_every_transcript_for_training():
         assert all(u.words != ("start",) for u in held)
 
 
-def _examples(right, wrong, recordings=40, rng=None):
+def _examples(right, wrong, recordings=40, rng=None, posteriors=False):
     rng = rng or np.random.default_rng(5)
     # one column per measure of MEASURE_NAMES, in its order
     good = rng.normal([-50.0, -1.0, 2.0, -0.5, 3.0, 0.0, 4.0, -0.3], 1.0, size=(right, 8))
     bad = rng.normal([-60.0, -6.0, 2.5, -3.0, 0.0, 1.0, 3.0, -2.0], 1.0, size=(wrong, 8))
     labels = np.r_[np.ones(right, bool), np.zeros(wrong, bool)]
-    return CalibrationExamples(np.vstack([good, bad]), labels, ~labels, recordings=recordings)
+    if posteriors:  # right words' states are the likelier ones under the network
+        post = np.vstack([rng.normal([-1.0, -1.2, -2.5, 0.0], 0.5, size=(right, 4)),
+                          rng.normal([-3.0, -3.2, -5.0, -2.0], 0.5, size=(wrong, 4))])
+    else:  # a model without a state scorer: NaN
+        post = np.full((right + wrong, 4), np.nan)
+    return CalibrationExamples(np.hstack([np.vstack([good, bad]), post]), labels, ~labels, recordings=recordings)
 
 
 def test_fit_needs_both_kinds_of_word():
@@ -75,8 +81,19 @@ def test_fit_needs_both_kinds_of_word():
     with pytest.warns(TrainingWarning, match="it needs 20 recordings"):
         assert fit_calibration(_examples(30, 30, recordings=12)) is None
     cal = fit_calibration(_examples(30, 30))
-    assert cal.names == MEASURE_NAMES
+    assert cal.names == BASE_MEASURE_NAMES  # no state scorer: the posterior measures are NaN and left out
     assert cal.coefficients[1] > 0  # right words have the larger free margin in these examples
+
+
+def test_fit_uses_the_posterior_measures_when_the_model_has_a_scorer():
+    cal = fit_calibration(_examples(30, 30, posteriors=True))
+    assert cal.names == BASE_MEASURE_NAMES + CALIBRATION_POSTERIOR_MEASURES
+    assert set(cal.names) <= set(MEASURE_NAMES)
+    # a chosen subset is fitted on exactly those columns
+    names = ("posterior_mean", "free_margin")
+    sub = fit_calibration(_examples(30, 30, posteriors=True), names=names)
+    assert sub.names == names
+    assert sub.means[0] == pytest.approx(_examples(30, 30, posteriors=True).measures[:, 8].mean(), rel=1e-12)
 
 
 def test_train_calibrated_trains_on_the_rest_then_on_everything(rng, monkeypatch):
@@ -118,6 +135,44 @@ def test_too_few_recordings_train_once_without_calibration(rng):
     with pytest.warns(TrainingWarning, match=r"calibration skipped: holding out 15% .* gives \d+, fewer than the 20"):
         out, _ = train_calibrated(fake_train, utts)
     assert calls == [len(utts)] and out.calibration is None
+
+
+def _starter_calibration(names):
+    k = len(names)
+    return Calibration(tuple(names), np.zeros(k), np.ones(k), np.full(k, 0.5), -1.0)
+
+
+def test_too_few_takes_keep_the_starting_models_calibration_and_say_so(rng, recwarn):
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    start_cal = _starter_calibration(BASE_MEASURE_NAMES)
+    lines = []
+    out, _ = train_calibrated(lambda part: (model, None), _utterances(speakers=2, takes=3), fallback=start_cal,
+                              report=lines.append)
+    assert out.calibration is start_cal and out.info["calibration"]["kept_from_start"] is True
+    assert not [w for w in recwarn.list if issubclass(w.category, TrainingWarning)]
+    assert any("keeps the calibration it started with" in line and "fewer than the 20 needed" in line
+               for line in lines)
+
+
+def test_enough_takes_but_too_few_words_of_a_kind_also_keep_it(rng, monkeypatch):
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    monkeypatch.setattr(calibrate, "calibration_examples", lambda m, held, **_: _examples(30, 0, recordings=len(held)))
+    start_cal = _starter_calibration(BASE_MEASURE_NAMES)
+    lines = []
+    out, _ = train_calibrated(lambda part: (model, None), _utterances(speakers=5, takes=6), fallback=start_cal,
+                              config=CalibrationConfig(held_out_share=0.3, refit=False), report=lines.append)
+    assert out.calibration is start_cal
+    assert "30 right and 0 wrong words, too few to fit one for your voice" in lines[-1]
+
+
+def test_a_starting_calibration_over_posterior_measures_needs_a_scorer(rng):
+    # without a state scorer the adapted model cannot compute the posterior measures: the
+    # starter's calibration is not kept and training warns as before
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    start_cal = _starter_calibration(BASE_MEASURE_NAMES + CALIBRATION_POSTERIOR_MEASURES)
+    with pytest.warns(TrainingWarning, match="uncalibrated heuristic"):
+        out, _ = train_calibrated(lambda part: (model, None), _utterances(speakers=2, takes=3), fallback=start_cal)
+    assert out.calibration is None
 
 
 def test_refit_default_depends_on_the_kind_of_training():

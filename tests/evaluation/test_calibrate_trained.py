@@ -15,8 +15,9 @@ import pytest
 
 from wordspot.cli import main
 from wordspot.corpus import read_manifest
-from wordspot.decoding.confidence import MEASURE_NAMES
-from wordspot.evaluation.calibrate import CalibrationConfig, held_out_recognitions, train_calibrated
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
+from wordspot.evaluation.calibrate import (CALIBRATION_POSTERIOR_MEASURES, CalibrationConfig, held_out_recognitions,
+                                           train_calibrated)
 from wordspot.evaluation.reliability import expected_calibration_error, reliability_table, word_hits
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import load_model, save_model
@@ -49,7 +50,9 @@ def calibrated(tmp_path_factory):
 def test_calibration_is_stored_with_its_measures(calibrated):
     model, path, _ = calibrated
     assert load_model(path).calibration.to_dict() == model.calibration.to_dict()
-    assert model.calibration.names == MEASURE_NAMES
+    # the base measures, and the posterior ones when the model has a state scorer
+    want = BASE_MEASURE_NAMES + (CALIBRATION_POSTERIOR_MEASURES if model.scorer is not None else ())
+    assert model.calibration.names == want and set(want) <= set(MEASURE_NAMES)
     info = model.info["calibration"]
     assert info["held_out_recordings"] >= 20 and info["right_words"] >= 5 and info["wrong_words"] >= 5
     assert info["refit_on_all"] is True

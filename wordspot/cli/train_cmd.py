@@ -49,6 +49,8 @@ out of a first training, recognised, and a logistic regression learns from them 
 often a word with given scores is right; the model is then trained again on everything
 (adapting; from scratch the first model is kept unless --refit) and stores the fit, so
 `wordspot recognize` reports each word's confidence as the probability that it is right.
+With too few takes for that (fewer than 20 held out), an adapted model keeps the
+calibration its starting model carries, if any, and the summary says so.
 """
 
 
@@ -190,7 +192,8 @@ def _run(args) -> int:
         config = CalibrationConfig(held_out_share=args.calibration_share, refit=args.refit,
                                    jumbled=args.jumbled_clips)
         model, summary = train_calibrated(fit, utterances, config=config.decided(adapting=not args.from_scratch),
-                                          quiet=args.quiet, report=say)
+                                          quiet=args.quiet, report=say,
+                                          fallback=getattr(fit, "start_calibration", None))
     if model.info.get("borrowed_pronunciations"):
         say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
     for line in summary.lines():
@@ -250,4 +253,5 @@ def _adapted(args, lexicon, say):
         return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
                      quiet=args.quiet, report=say)
 
+    fit.start_calibration = getattr(start, "calibration", None)  # kept when the takes are too few for one
     return fit, f"adapted from {name}"

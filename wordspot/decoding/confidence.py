@@ -49,18 +49,32 @@ from wordspot.errors import WordspotWarning
 
 __all__ = [
     "MEASURE_NAMES",
+    "BASE_MEASURE_NAMES",
+    "POSTERIOR_MEASURE_NAMES",
+    "NO_POSTERIORS",
     "CONFIDENCE_SCALE",
     "DEFAULT_MIN_CONFIDENCE",
     "word_measures",
     "heuristic_confidence",
     "usable_calibration",
+    "calibration_columns",
     "word_confidence",
     "split_by_confidence",
 ]
 
-#: The measures :func:`word_measures` returns, in order (stored with every calibration).
-MEASURE_NAMES = ("acoustic_per_frame", "free_margin", "frames_per_phone", "filler_margin", "runner_up_margin",
-                 "next_to_filler", "phones", "phone_filler_margin")
+#: The measures of every word, with or without a state scorer.
+BASE_MEASURE_NAMES = ("acoustic_per_frame", "free_margin", "frames_per_phone", "filler_margin", "runner_up_margin",
+                      "next_to_filler", "phones", "phone_filler_margin")
+
+#: The measures from the state scorer's log posteriors (NaN for a model without a scorer).
+POSTERIOR_MEASURE_NAMES = ("posterior_mean", "posterior_phone_mean", "posterior_worst_phone",
+                           "posterior_filler_margin")
+
+#: The measures :func:`word_measures` returns, in order; a calibration names the ones it uses.
+MEASURE_NAMES = BASE_MEASURE_NAMES + POSTERIOR_MEASURE_NAMES
+
+#: The posterior measures of a word when the model has no state scorer.
+NO_POSTERIORS = (float("nan"),) * len(POSTERIOR_MEASURE_NAMES)
 
 #: Nats per frame by which a word may trail the best free state before its heuristic
 #: confidence falls to 1/e (chosen by us).
@@ -77,7 +91,8 @@ DEFAULT_MIN_CONFIDENCE = 0.005
 
 def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_end: int, end: int,
                   n_phones: int, filler_margin: float = float("nan"), runner_up_margin: float = float("nan"),
-                  next_to_filler: int = 0, phone_filler_margin: float = float("nan")) -> tuple[float, ...]:
+                  next_to_filler: int = 0, phone_filler_margin: float = float("nan"),
+                  posterior: Sequence[float] = NO_POSTERIORS) -> tuple[float, ...]:
     """The measures of one recognised word, in the order of :data:`MEASURE_NAMES`.
 
     Parameters
@@ -96,12 +111,14 @@ def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_e
         Neighbours on the best path that are the filler.
     phone_filler_margin : float
         Mean per-phone margin over the filler (see the module docstring).
+    posterior : sequence of 4 floats
+        The measures of :data:`POSTERIOR_MEASURE_NAMES` (NaN without a state scorer).
     """
     span = end - start + 1
     free_margin = (acoustic - (best_free[end + 1] - best_free[start])) / span
     return (acoustic / span, float(free_margin), math.log((phone_end - start + 1) / n_phones),
             float(filler_margin), float(runner_up_margin), float(next_to_filler), float(n_phones),
-            float(phone_filler_margin))
+            float(phone_filler_margin)) + tuple(float(v) for v in posterior)
 
 
 def heuristic_confidence(measures: Sequence[float]) -> float:
@@ -111,10 +128,10 @@ def heuristic_confidence(measures: Sequence[float]) -> float:
 
 
 def usable_calibration(calibration, names: Sequence[str] = MEASURE_NAMES, *, source: str = "the model"):
-    """``calibration`` if it is over exactly ``names`` (in order), else None with one warning."""
+    """``calibration`` if every measure it uses is one of ``names``, else None with one warning."""
     if calibration is None:
         return None
-    if tuple(calibration.names) == tuple(names):
+    if set(calibration.names) <= set(names):
         return calibration
     warnings.warn(
         f"{source}: the model was made by another version of wordspot, so its word confidences are rough "
@@ -127,11 +144,24 @@ def usable_calibration(calibration, names: Sequence[str] = MEASURE_NAMES, *, sou
     return None
 
 
+def calibration_columns(calibration, names: Sequence[str] = MEASURE_NAMES) -> np.ndarray:
+    """Positions in ``names`` of the measures ``calibration`` uses, in its order."""
+    return np.array([list(names).index(n) for n in calibration.names], dtype=np.int64)
+
+
 def word_confidence(measures: Sequence[float], calibration=None) -> float:
-    """The calibrated probability that the word is right, or the heuristic without a calibration."""
-    if calibration is None or not np.all(np.isfinite(measures)):
+    """The calibrated probability that the word is right, or the heuristic without a calibration.
+
+    ``measures`` are in the order of :data:`MEASURE_NAMES`; the calibration reads the ones
+    it names. The heuristic also applies when one of those is not finite (no filler, one
+    word, or posterior measures without a state scorer).
+    """
+    if calibration is None:
         return heuristic_confidence(measures)
-    return float(calibration.predict(np.asarray(measures, dtype=np.float64)))
+    x = np.asarray(measures, dtype=np.float64)[calibration_columns(calibration)]
+    if not np.all(np.isfinite(x)):
+        return heuristic_confidence(measures)
+    return float(calibration.predict(x))
 
 
 def split_by_confidence(segments: list, threshold: float) -> tuple[list, list]:

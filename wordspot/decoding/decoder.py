@@ -20,8 +20,8 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
-from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, split_by_confidence,
-                                          usable_calibration, word_confidence, word_measures)
+from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, NO_POSTERIORS,
+                                          split_by_confidence, usable_calibration, word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
@@ -258,6 +258,7 @@ class Recognizer:
     hop: float
     calibration: object = None
     scorer: object = None  # the model's StateScorer when the settings give it a weight, else None
+    posterior_scorer: object = None  # the model's StateScorer for the posterior measures (any weight)
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
@@ -296,11 +297,28 @@ class Recognizer:
         r = (acoustic - others.max()) / span if others.size else np.nan
         return float(f), float(r)
 
-    def phone_margin(self, ll: np.ndarray, pron: int, first: int, last: int) -> float:
+    def word_path(self, ll: np.ndarray, pron: int, first: int, last: int
+                  ) -> tuple[Piece, np.ndarray, np.ndarray, float]:
+        """The best path of pronunciation ``pron`` through frames ``first..last``.
+
+        Returns ``(piece, states, phones, score)``: the pronunciation's piece of the
+        network, its local state and phone (0-based within the pronunciation) at each frame
+        (:func:`~wordspot.decoding.spans.piece_path`), and the path's score (-inf where no
+        path fits).
+        """
+        net = self.network
+        item = pron + FIRST_WORD_ITEM
+        if pron not in self._pron_pieces:
+            self._pron_pieces[pron] = (piece_of(net, [item]), net.phone[net.item == item])
+        piece, phone_of = self._pron_pieces[pron]
+        states, score = piece_path(ll, first, last, piece)
+        return piece, states, phone_of[states], score
+
+    def phone_margin(self, ll: np.ndarray, pron: int, first: int, last: int, path=None) -> float:
         """Mean over a command's phones of each phone's per-frame margin over the filler.
 
         The pronunciation ``pron`` is aligned to frames ``first..last`` (its phones; the
-        best path through its item, :func:`~wordspot.decoding.spans.piece_path`); over
+        best path through its item, :meth:`word_path`, or ``path`` when given); over
         each phone's frames, that phone's own model (its filler item, passed once) is
         compared with the best free sequence of phones and pauses. Each phone counts the
         same however long it is, so one phone that fits badly shows even in a long word.
@@ -310,14 +328,9 @@ class Recognizer:
         if filler is None:
             return float("nan")
         net = self.network
-        item = pron + FIRST_WORD_ITEM
-        if pron not in self._pron_pieces:
-            self._pron_pieces[pron] = (piece_of(net, [item]), net.phone[net.item == item])
-        piece, phone_of = self._pron_pieces[pron]
-        states, score = piece_path(ll, first, last, piece)
+        _, states, phones, score = path or self.word_path(ll, pron, first, last)
         if not np.isfinite(score):
             return float("nan")
-        phones = phone_of[states]
         margins = []
         for k, name in enumerate(net.prons[pron]):
             frames = np.flatnonzero(phones == k)
@@ -327,6 +340,38 @@ class Recognizer:
             own = piece_ends(ll, a, b, filler)[self._filler_phones[name]].max()
             margins.append((own - piece_score(ll, a, b, filler, 0.0)) / (b - a + 1))
         return float(np.mean(margins)) if margins else float("nan")
+
+    def posterior_measures(self, lp: np.ndarray, first: int, last: int, path) -> tuple[float, ...]:
+        """The posterior measures of a command (``confidence.POSTERIOR_MEASURE_NAMES``).
+
+        Parameters
+        ----------
+        lp : ndarray, shape (T, P)
+            The state scorer's log posteriors in the network's mixture columns.
+        first, last : int
+            The word's phone frames (inclusive).
+        path : tuple
+            :meth:`word_path` of the word over those frames (on the emissions).
+
+        Returns ``(mean, mean of phone means, worst phone mean, margin over the filler)``
+        over the path's frames in a phone (a trailing pause state of the word left out);
+        NaN where no path fits (and the margin NaN without background words).
+        """
+        piece, states, phones, score = path
+        inside = phones >= 0  # frames in a phone (not in the word's trailing pause)
+        if not np.isfinite(score) or not inside.any():
+            return NO_POSTERIORS
+        t = np.arange(first, last + 1)
+        on_path = lp[t[inside], piece.mixture[states[inside]]]
+        counts = np.bincount(phones[inside])
+        sums = np.bincount(phones[inside], weights=on_path, minlength=counts.size)
+        means = sums[counts > 0] / counts[counts > 0]
+        filler = self.pieces()[0]
+        margin = float("nan")
+        if filler is not None:
+            own = piece_score(lp, first, last, piece)
+            margin = (own - piece_score(lp, first, last, filler, 0.0)) / t.size
+        return float(on_path.mean()), float(means.mean()), float(means.min()), float(margin)
 
     @property
     def min_confidence(self) -> float:
@@ -351,18 +396,38 @@ class Recognizer:
         the same columns (:meth:`wordspot.acoustic.scorer.StateScorer.scaled_log_likelihoods`);
         with w = 1 the mixtures are not computed.
         """
+        return self.emissions_and_posteriors(frames, posteriors=False)[0]
+
+    def emissions_and_posteriors(self, frames: np.ndarray, *, posteriors: bool = True
+                                 ) -> tuple[np.ndarray, np.ndarray | None]:
+        """:meth:`emissions` and the state scorer's log posteriors, with one pass of the network.
+
+        Returns ``(ll, lp)``: ``lp`` (T, P) float64 holds ``log P(state | window)`` in the
+        network's mixture columns, or is None when the model has no state scorer (or
+        ``posteriors`` is False).
+        """
         s = self.settings
         w = float(s.scorer_weight) if self.scorer is not None else 0.0
+        scorer = self.scorer if w > 0.0 else (self.posterior_scorer if posteriors else None)
+        lp = net = None
+        if scorer is not None:
+            cols = self.network.used_mixtures
+            z = scorer.log_posteriors(frames, work=work_array)[:, cols]
+            if posteriors and self.posterior_scorer is not None:
+                lp = z.astype(np.float64)
+            if w > 0.0:
+                # as StateScorer.scaled_log_likelihoods(frames, scale * w, columns=cols)
+                z -= scorer.log_prior[cols]
+                if s.scorer_scale * w != 1.0:
+                    z *= z.dtype.type(s.scorer_scale * w)
+                net = z
+        if w >= 1.0:
+            return net.astype(np.float64), lp
+        gmm = self._mixture_scores(frames)
         if w > 0.0:
-            net = self.scorer.scaled_log_likelihoods(frames, s.scorer_scale * w, columns=self.network.used_mixtures,
-                                                     work=work_array)
-            if w >= 1.0:
-                return net.astype(np.float64)
-            gmm = self._mixture_scores(frames)
             gmm *= 1.0 - w
             gmm += net
-            return gmm
-        return self._mixture_scores(frames)
+        return gmm, lp
 
     def _mixture_scores(self, frames: np.ndarray) -> np.ndarray:
         """The mixtures' log-likelihoods of :meth:`emissions`, (T, P) float64."""
@@ -386,7 +451,8 @@ class Recognizer:
         if n < net.min_frames:
             result.reason = _too_short(n, self.hop, net.min_frames)
             return result
-        return self.search(self.emissions(frames), path=path, kernel=kernel)
+        ll, lp = self.emissions_and_posteriors(frames)
+        return self.search(ll, path=path, kernel=kernel, posteriors=lp)
 
     def kernel_arguments(self, ll: np.ndarray) -> tuple:
         """The arguments of :func:`wordspot.decoding.kernels.decode` for emissions ``ll``."""
@@ -400,7 +466,8 @@ class Recognizer:
             float(s.beam), float(s.word_end_beam), int(min(s.state_limit, np.iinfo(np.int64).max)),
         )
 
-    def search(self, ll: np.ndarray, *, path: str | None = None, kernel=None) -> Recognition:
+    def search(self, ll: np.ndarray, *, path: str | None = None, kernel=None,
+               posteriors: np.ndarray | None = None) -> Recognition:
         """Token passing given emission log-likelihoods.
 
         Parameters
@@ -409,6 +476,9 @@ class Recognizer:
             Column ``j`` scores mixture ``network.used_mixtures[j]`` of the model.
         kernel : callable, optional
             :func:`wordspot.decoding.kernels.decode` (default) or its reference version.
+        posteriors : ndarray, shape (T, P), optional
+            The state scorer's log posteriors in the same columns (see
+            :meth:`emissions_and_posteriors`), for the posterior measures; None: those are NaN.
         """
         net = self.network
         kernel = kernel or decode_kernels.decode
@@ -444,11 +514,14 @@ class Recognizer:
             grammar = float(net.link_row(int(links[prev, 0]))[word])
             acoustic = float(link_scores[k] - link_scores[prev] - grammar)
             filler_margin, runner_up = self.margins(ll, word, start, end, acoustic)
+            route = self.word_path(ll, pron, start, phone_end)
             measures = word_measures(acoustic=acoustic, best_free=best_free, start=start, phone_end=phone_end,
                                      end=end, n_phones=len(net.prons[pron]), filler_margin=filler_margin,
                                      runner_up_margin=runner_up,
                                      next_to_filler=int(is_filler[i - 1]) + int(is_filler[i + 1]),
-                                     phone_filler_margin=self.phone_margin(ll, pron, start, phone_end))
+                                     phone_filler_margin=self.phone_margin(ll, pron, start, phone_end, route),
+                                     posterior=NO_POSTERIORS if posteriors is None else
+                                     self.posterior_measures(posteriors, start, phone_end, route))
             result.segments.append(
                 WordSegment(
                     word=net.words[word - 1],
@@ -569,8 +642,10 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
         raise DecodingError(f"the model's state scorer has {scorer.n_classes} classes over frames of "
                             f"{scorer.frame_dim} values, but the model has {mix.n_mixtures} mixtures and frames "
                             f"of {mix.dim}")
+    own = getattr(model, "scorer", None)
+    fits = own is not None and own.n_classes == mix.n_mixtures and own.frame_dim == mix.dim
     return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
-                      calibration=calibration, scorer=scorer)
+                      calibration=calibration, scorer=scorer, posterior_scorer=own if fits else None)
 
 
 def recognize_features(model, frames, *, settings: DecoderSettings | None = None, lexicon=None,

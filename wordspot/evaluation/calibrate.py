@@ -31,7 +31,7 @@ from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
-from wordspot.decoding.confidence import MEASURE_NAMES
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.errors import TrainingError, TrainingWarning, WordspotError
 from wordspot.evaluation.reliability import word_hits
@@ -49,6 +49,8 @@ __all__ = [
     "DEFAULT_JUMBLED",
     "calibration_examples",
     "fit_calibration",
+    "CALIBRATION_POSTERIOR_MEASURES",
+    "calibration_measures",
     "train_calibrated",
 ]
 
@@ -56,6 +58,23 @@ __all__ = [
 #: Clips of jumbled held-out speech in the calibration (chosen on dev material,
 #: docs/experiments/2026-12-02-per-phone-measures-and-jumbled-speech.md).
 DEFAULT_JUMBLED = 150
+
+#: The posterior measures (``confidence.POSTERIOR_MEASURE_NAMES``) a calibration uses beside
+#: the others when the model has a state scorer; chosen on the dev voices
+#: (docs/experiments/2026-12-02-posterior-confidence.md).
+CALIBRATION_POSTERIOR_MEASURES = ("posterior_mean", "posterior_phone_mean", "posterior_worst_phone",
+                                  "posterior_filler_margin")
+
+
+def calibration_measures(measures: np.ndarray) -> tuple[str, ...]:
+    """The measures a calibration fitted on ``measures`` (rows in the order of
+    ``MEASURE_NAMES``) uses: the base ones, plus :data:`CALIBRATION_POSTERIOR_MEASURES` when
+    those are finite in every row (the model has a state scorer)."""
+    cols = [MEASURE_NAMES.index(n) for n in CALIBRATION_POSTERIOR_MEASURES]
+    m = np.asarray(measures, dtype=np.float64).reshape(-1, len(MEASURE_NAMES))
+    if cols and m.shape[0] and np.isfinite(m[:, cols]).all():
+        return BASE_MEASURE_NAMES + tuple(CALIBRATION_POSTERIOR_MEASURES)
+    return BASE_MEASURE_NAMES
 
 
 @dataclass(frozen=True)
@@ -325,11 +344,20 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
 
 
 def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig = CalibrationConfig(),
-                    names: Sequence[str] = MEASURE_NAMES) -> Calibration | None:
-    """The logistic regression of right / wrong on the measures, or None with one warning."""
+                    names: Sequence[str] | None = None, quiet_skip: bool = False) -> Calibration | None:
+    """The logistic regression of right / wrong on the measures, or None with one warning.
+
+    ``names``: the measures to use (a subset of ``MEASURE_NAMES``, any order); default
+    :func:`calibration_measures` of the examples. ``quiet_skip``: no warning when skipped
+    (the caller says what it does instead).
+    """
+    names = tuple(names) if names is not None else calibration_measures(examples.measures)
+    x = examples.measures[:, [MEASURE_NAMES.index(n) for n in names]]
     n_right = int(examples.right.sum())
     n_wrong = int(examples.right.size - n_right)
     if examples.recordings < config.min_items or min(n_right, n_wrong) < config.min_per_class:
+        if quiet_skip:
+            return None
         warnings.warn(
             f"confidence calibration skipped: {examples.recordings} held-out recording(s) gave {n_right} right "
             f"and {n_wrong} wrong word(s); it needs {config.min_items} recordings and {config.min_per_class} "
@@ -340,39 +368,67 @@ def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig 
         )
         return None
     try:
-        return fit_logistic(examples.measures, examples.right.astype(int), names, penalty=config.penalty)
+        return fit_logistic(x, examples.right.astype(int), names, penalty=config.penalty)
     except ValueError as exc:
-        warnings.warn(f"confidence calibration skipped: {exc}", TrainingWarning, stacklevel=2)
+        if not quiet_skip:
+            warnings.warn(f"confidence calibration skipped: {exc}", TrainingWarning, stacklevel=2)
         return None
 
 
+def _fallback_usable(fallback, model) -> bool:
+    """Whether ``model`` computes every measure the calibration ``fallback`` names."""
+    from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES
+
+    if fallback is None or not set(fallback.names) <= set(MEASURE_NAMES):
+        return False
+    return getattr(model, "scorer", None) is not None or not set(fallback.names) & set(POSTERIOR_MEASURE_NAMES)
+
+
+def _keep_fallback(model, fallback, why: str, say):
+    """``model`` with the starting model's calibration ``fallback`` and the line saying so."""
+    if not _fallback_usable(fallback, model):
+        return model
+    say(f"confidence calibration: {why}, so the model keeps the calibration it started with "
+        "(fitted on many voices when that model was made); train again with more takes to fit your own")
+    return replace(model, calibration=fallback, info={**model.info, "calibration": {
+        "kept_from_start": True, "reason": why}})
+
+
 def train_calibrated(train: Callable, utterances: Sequence, *, config: CalibrationConfig = CalibrationConfig(),
-                     quiet: bool = True, report: Callable[[str], None] | None = None):
+                     quiet: bool = True, report: Callable[[str], None] | None = None, fallback=None):
     """Train with ``train(utterances) -> (model, summary)`` and store a fitted calibration.
 
     ``config.refit`` should be decided (:meth:`CalibrationConfig.decided`; None counts as
     False). Returns what the last
     call of ``train`` returned, its model carrying the calibration (or none, with a warning,
     when there was too little to fit on) and ``info["calibration"]`` describing the fit.
+
+    ``fallback``: the starting model's calibration (a starter's, fitted on many voices), kept
+    instead when the held-out recordings are too few to fit one (said through ``report``,
+    no warning), provided the trained model computes its measures.
     """
     say = report or (lambda line: None)
     utterances = list(utterances)
     rest, held = split_held_out(utterances, config.held_out_share, config.seed)
     if len(held) < config.min_items:
+        why = (f"holding out {config.held_out_share:.0%} of each transcript's recordings gives {len(held)}, "
+               f"fewer than the {config.min_items} needed to fit one for your voice")
+        model, summary = train(utterances)
+        if _fallback_usable(fallback, model):
+            return _keep_fallback(model, fallback, why, say), summary
         warnings.warn(
-            f"confidence calibration skipped: holding out {config.held_out_share:.0%} of each transcript's "
-            f"recordings gives {len(held)}, fewer than the {config.min_items} needed (record more takes, or "
-            "raise the held-out share, --calibration-share); word confidences stay rough scores, not "
-            "probabilities (the uncalibrated heuristic)",
+            f"confidence calibration skipped: {why} (record more takes, or raise the held-out "
+            "share, --calibration-share); word confidences stay rough scores, not probabilities "
+            "(the uncalibrated heuristic)",
             TrainingWarning,
             stacklevel=2,
         )
-        return train(utterances)
+        return model, summary
     say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
     model, summary = train(rest)
     examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
                                     backwards=config.backwards, jumbled=config.jumbled, seed=config.seed)
-    calibration = fit_calibration(examples, config=config)
+    calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))
     n_right = int(examples.right.sum())
     n_jumbled = int(examples.jumbled.sum())
     n_removed = int(examples.own_words_removed.sum()) - n_jumbled
@@ -382,14 +438,18 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     if config.refit:
         say(f"confidence calibration: training again on all {len(utterances)} recordings")
         model, summary = train(utterances)
-    if calibration is not None:
-        model = replace(model, calibration=calibration,
-                        info={**model.info, "calibration": {
-                            "held_out_share": config.held_out_share, "seed": config.seed,
-                            "held_out_recordings": examples.recordings, "right_words": n_right,
-                            "wrong_words": int(examples.right.size - n_right),
-                            "wrong_with_own_words_removed": n_removed,
-                            "wrong_in_jumbled_speech": n_jumbled,
-                            "jumbled_clips": config.jumbled,
-                            "refit_on_all": bool(config.refit)}})
+    if calibration is None:
+        why = (f"the {examples.recordings} held-out recordings gave {n_right} right and "
+               f"{examples.right.size - n_right} wrong words, too few to fit one for your voice")
+        return _keep_fallback(model, fallback, why, say), summary
+    model = replace(model, calibration=calibration,
+                    info={**model.info, "calibration": {
+                        "held_out_share": config.held_out_share, "seed": config.seed,
+                        "held_out_recordings": examples.recordings, "right_words": n_right,
+                        "wrong_words": int(examples.right.size - n_right),
+                        "wrong_with_own_words_removed": n_removed,
+                        "wrong_in_jumbled_speech": n_jumbled,
+                        "jumbled_clips": config.jumbled,
+                        "measures": list(calibration.names),
+                        "refit_on_all": bool(config.refit)}})
     return model, summary

@@ -1,0 +1,139 @@
+"""The confidence measures from the state scorer's log posteriors."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from decoding_helpers import frames_along, pause_mixtures, tiny_model, word_mixtures
+from wordspot.acoustic.scorer import StateScorer
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES, POSTERIOR_MEASURE_NAMES
+from wordspot.decoding.decoder import DecoderSettings, build_recognizer
+from wordspot.decoding.spans import piece_score_reference
+from wordspot.model import load_model, save_model
+from wordspot.util.logistic import Calibration
+
+ENTRIES = {"bat": [["B", "AA", "T"]], "sack": [["S", "AA", "K"]], "tab": [["T", "AA", "B"]]}
+TRANSCRIPTS = [["bat", "tab"], ["sack"], ["tab", "bat"]]
+POST = slice(len(BASE_MEASURE_NAMES), len(MEASURE_NAMES))
+
+
+def random_scorer(rng, n_classes, dim=39, context=1, hidden=(10,)):
+    sizes = [dim * (2 * context + 1), *hidden, n_classes]
+    prior = rng.uniform(0.5, 2.0, n_classes)
+    return StateScorer(context, rng.normal(size=sizes[0]), rng.uniform(0.5, 2.0, sizes[0]),
+                       tuple(rng.normal(size=(a, b)) / np.sqrt(a) for a, b in zip(sizes[:-1], sizes[1:])),
+                       tuple(rng.normal(size=b) for b in sizes[1:]), np.log(prior / prior.sum()))
+
+
+def nearest_mean_scorer(model, sharpness=1.0):
+    """A one-layer network whose logits are ``-sharpness / 2 * ||x - mean_j||^2`` up to a term
+    common to every class (each mixture's first mean): it favours the states the frames were
+    drawn from (a nearest-mean classifier, textbook; no source needed)."""
+    mu = model.mixtures.means[:, 0, :].astype(np.float64)  # (P, D)
+    p, d = mu.shape
+    return StateScorer(0, np.zeros(d), np.ones(d), (sharpness * mu.T,), (-0.5 * sharpness * (mu * mu).sum(axis=1),),
+                       np.full(p, -np.log(p)))
+
+
+@pytest.fixture
+def bat(rng):
+    model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS)
+    frames = frames_along(model, pause_mixtures(model, 6) + word_mixtures(model, ["B", "AA", "T"])
+                          + pause_mixtures(model, 6), rng)
+    return model, frames
+
+
+def test_measures_follow_a_naive_computation_along_the_words_path(bat, rng):
+    model, frames = bat
+    model = replace(model, scorer=random_scorer(rng, model.mixtures.n_mixtures))
+    rec = build_recognizer(model)
+    seg = rec.decode(frames).segments[0]
+    ll, lp = rec.emissions_and_posteriors(frames)
+    np.testing.assert_array_equal(ll, rec.emissions(frames))  # the same emissions as without posteriors
+    # by hand: the log posterior of every mixture id, then the state of the path at each frame
+    full = model.scorer.log_posteriors(frames).astype(np.float64)
+    net = rec.network
+    pron = net.prons.index(tuple(seg.pronunciation)) if isinstance(net.prons[0], tuple) else \
+        [list(p) for p in net.prons].index(list(seg.pronunciation))
+    a, b = seg.first_frame, seg.last_frame
+    piece, states, phones, _ = rec.word_path(ll, pron, a, b)
+    per_frame, per_phone = [], {}
+    for k, t in enumerate(range(a, b + 1)):
+        mixture_id = int(net.used_mixtures[piece.mixture[states[k]]])
+        per_frame.append(float(full[t, mixture_id]))
+        per_phone.setdefault(int(phones[k]), []).append(float(full[t, mixture_id]))
+    phone_means = [sum(v) / len(v) for _, v in sorted(per_phone.items())]
+    assert len(phone_means) == 3
+    filler = rec.pieces()[0]
+    margin = (piece_score_reference(lp, a, b, piece) - piece_score_reference(lp, a, b, filler, 0.0)) / (b - a + 1)
+    want = (sum(per_frame) / len(per_frame), sum(phone_means) / 3, min(phone_means), margin)
+    assert seg.measures[POST] == pytest.approx(want, rel=1e-6, abs=1e-6)
+    assert MEASURE_NAMES[POST] == POSTERIOR_MEASURE_NAMES
+
+
+def test_measures_of_a_path_given_by_hand(bat):
+    # Worked by hand: 5 frames, path states s0 s0 s1 s2 s2 of phones 0 0 0 1 1, log posteriors
+    # on the path -1, -3, -2, -0.5, -1.5: mean -8/5, phone means -2 and -1, so -1.5 and -2.
+    model, _ = bat
+    rec = build_recognizer(model)
+    piece = rec.word_path(np.zeros((20, rec.network.used_mixtures.size)), 0, 0, 8)[0]
+    lp = np.full((7, rec.network.used_mixtures.size), -9.0)
+    states = np.array([0, 0, 1, 2, 2])
+    for t, v in zip(range(2, 7), (-1.0, -3.0, -2.0, -0.5, -1.5)):
+        lp[t, piece.mixture[states[t - 2]]] = v
+    got = rec.posterior_measures(lp, 2, 6, (piece, states, np.array([0, 0, 0, 1, 1]), 0.0))
+    assert got[:3] == pytest.approx((-1.6, -1.5, -2.0), abs=1e-12)
+    # a path that does not fit gives NaN
+    assert np.isnan(rec.posterior_measures(lp, 2, 6, (piece, states - 10, states, -np.inf))).all()
+
+
+def test_no_scorer_no_posterior_measures_and_old_calibrations_give_the_same_confidences(bat, rng, tmp_path):
+    model, frames = bat
+    k = len(BASE_MEASURE_NAMES)
+    # a calibration over the eight measures every model file calibrated before the posterior ones names
+    old = Calibration(BASE_MEASURE_NAMES, np.linspace(-40.0, 0.0, k), np.linspace(1.0, 3.0, k),
+                      np.linspace(-1.0, 1.0, k), 0.5)
+    plain = load_model(save_model(replace(model, calibration=old), tmp_path / "old.model"))
+    got = build_recognizer(plain, settings=DecoderSettings(min_confidence=0.0)).decode(frames)
+    seg = got.segments[0]
+    assert np.isnan(seg.measures[POST]).all()
+    assert seg.confidence == pytest.approx(float(old.predict(np.array(seg.measures[:k]))), rel=1e-12)
+    # the same file with a scorer: posterior measures appear, the old calibration ignores them
+    with_net = replace(plain, scorer=random_scorer(rng, model.mixtures.n_mixtures))
+    again = build_recognizer(with_net, settings=DecoderSettings(min_confidence=0.0)).decode(frames).segments[0]
+    assert np.isfinite(again.measures[POST]).all()
+    assert again.measures[:k] == seg.measures[:k] and again.confidence == seg.confidence
+
+
+def test_a_calibration_over_posterior_measures_without_a_scorer_falls_back_to_the_heuristic(bat):
+    model, frames = bat
+    names = BASE_MEASURE_NAMES + POSTERIOR_MEASURE_NAMES
+    k = len(names)
+    cal = Calibration(names, np.zeros(k), np.ones(k), np.full(k, 0.1), 0.0)
+    seg = build_recognizer(replace(model, calibration=cal),
+                           settings=DecoderSettings(min_confidence=0.0)).decode(frames).segments[0]
+    from wordspot.decoding.confidence import heuristic_confidence
+
+    assert seg.confidence == heuristic_confidence(seg.measures)
+
+
+def test_a_scorer_that_favours_the_right_states_scores_the_right_word_higher(bat):
+    model, frames = bat
+    model = replace(model, scorer=nearest_mean_scorer(model, sharpness=0.5))
+    rec = build_recognizer(model)
+    net = rec.network
+    ll, lp = rec.emissions_and_posteriors(frames)
+    seg = rec.decode(frames).segments[0]
+    assert seg.word == "bat"
+    a, b = seg.first_frame, seg.last_frame
+    prons = {w: int(net.word_pron[net.word_first[net.words.index(w) + 1]]) for w in ENTRIES}
+    right = rec.posterior_measures(lp, a, b, rec.word_path(ll, prons["bat"], a, b))
+    for wrong_word in ("sack", "tab"):
+        wrong = rec.posterior_measures(lp, a, b, rec.word_path(ll, prons[wrong_word], a, b))
+        for name, r, w in zip(POSTERIOR_MEASURE_NAMES, right, wrong):
+            assert r > w + 0.5, (wrong_word, name, r, w)
+    # the right word's own states are almost certain: mean log posterior near 0, margin near 0
+    assert right[0] > -0.5 and right[3] > -0.5

@@ -1,0 +1,71 @@
+"""The starter's calibration: drawn vocabularies, their examples and the fit."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from wordspot.corpus import read_manifest
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
+from wordspot.errors import TrainingError
+from wordspot.evaluation.calibrate import calibration_measures
+from wordspot.evaluation.starter_calibration import (StarterCalibrationConfig, fit_starter_calibration,
+                                                     starter_calibration_examples)
+from wordspot.language.lexicon import read_lexicon
+from wordspot.model import load_model
+
+REPO = Path(__file__).resolve().parents[2]
+
+
+@pytest.fixture(scope="module")
+def starter_and_takes():
+    model = load_model("starter")
+    model.lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")  # words the demo takes say
+    utts = [u for u in read_manifest(REPO / "recordings" / "train.csv") if u.speaker in ("flite-kal16", "flite-slt")]
+    return model, utts
+
+
+def test_examples_label_only_the_vocabularys_own_recordings_right(starter_and_takes):
+    model, utts = starter_and_takes
+    config = StarterCalibrationConfig(vocabularies=2, words=(3, 4), other_talk=0, other_words=4, jumbled=1,
+                                      noise=2, speeds=(1.0,))
+    lines = []
+    ex = starter_calibration_examples(model, utts, config, report=lines.append)
+    assert ex.measures.shape == (ex.right.size, len(MEASURE_NAMES))
+    assert len(lines) == 2 and "vocabulary 2/2" in lines[1]
+    # every right word comes from a recording of the vocabulary; other words, jumbled speech
+    # and noise give wrong words only (marked as such)
+    assert ex.right.sum() >= 4
+    assert not (ex.right & ex.own_words_removed).any()
+    assert not ex.right[ex.jumbled].any()
+    # the posterior measures are NaN without a state scorer in the starter, finite with one
+    post = ex.measures[:, len(BASE_MEASURE_NAMES):]
+    assert np.isnan(post).all() if model.scorer is None else np.isfinite(post).all()
+    # the same seed gives the same examples
+    again = starter_calibration_examples(model, utts, config)
+    np.testing.assert_array_equal(again.measures, ex.measures)
+
+
+def test_fit_gives_a_calibration_over_the_measures_the_starter_computes(starter_and_takes):
+    model, utts = starter_and_takes
+    config = StarterCalibrationConfig(vocabularies=2, words=(4, 5), other_talk=0, other_words=6, jumbled=2,
+                                      noise=3, speeds=(1.0,))
+    cal, ex = fit_starter_calibration(model, utts, config)
+    assert cal is not None and cal.names == calibration_measures(ex.measures)
+    assert (cal.names == BASE_MEASURE_NAMES) == (model.scorer is None)
+    # right words get a higher probability than wrong ones on average
+    cols = [MEASURE_NAMES.index(n) for n in cal.names]
+    p = cal.predict(ex.measures[:, cols])
+    assert p[ex.right].mean() > p[~ex.right].mean()
+
+
+def test_too_few_words_and_bad_settings_are_refused(starter_and_takes):
+    model, utts = starter_and_takes
+    with pytest.raises(TrainingError, match="distinct words alone, fewer than the 30"):
+        starter_calibration_examples(model, utts[:40], StarterCalibrationConfig(words=(8, 30)))
+    with pytest.raises(TrainingError, match="words must be two whole numbers"):
+        StarterCalibrationConfig(words=(5, 3))
+    with pytest.raises(TrainingError, match="vocabularies must be a whole number >= 1"):
+        StarterCalibrationConfig(vocabularies=0)
