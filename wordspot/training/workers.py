@@ -95,9 +95,16 @@ def _remove_own(pid: int, folder: Path) -> None:
 
 
 def _orphaned(parent_pid: int, folder: str | None) -> None:
-    """The parent is gone: remove its work folder and end this process now."""
+    """The parent is gone: remove its work folder and this process's own, and end now.
+
+    ``os._exit`` skips the exit handlers, so this process's own work folder (a training
+    started by the recording page has one, shared with its workers) is removed here.
+    """
     if folder:
         shutil.rmtree(folder, ignore_errors=True)
+    own = _own.get(os.getpid())
+    if own is not None:
+        shutil.rmtree(own, ignore_errors=True)
     os._exit(1)
 
 
