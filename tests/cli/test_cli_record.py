@@ -10,18 +10,24 @@ import urllib.request
 import pytest
 
 
-def test_record_serves_the_page_and_stops_cleanly(tmp_path):
-    folder = tmp_path / "my takes"
+def _start_record(folder, *options):
+    """``wordspot record FOLDER`` on a free port, and the page's state once it answers."""
     proc = subprocess.Popen(
-        [sys.executable, "-m", "wordspot.cli", "record", str(folder), "--port", "0", "--takes", "2"],
+        [sys.executable, "-m", "wordspot.cli", "record", str(folder), "--port", "0", *options],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
     )
+    line = proc.stdout.readline()
+    match = re.search(r"http://127\.0\.0\.1:(\d+)/", line)
+    if not match:
+        proc.kill()
+        raise AssertionError(line + proc.stderr.read())
+    with urllib.request.urlopen(match.group(0) + "api/state", timeout=30) as answer:
+        return proc, json.load(answer)
+
+def test_record_serves_the_page_and_stops_cleanly(tmp_path):
+    folder = tmp_path / "my takes"
+    proc, state = _start_record(folder, "--takes", "2")
     try:
-        line = proc.stdout.readline()
-        match = re.search(r"http://127\.0\.0\.1:(\d+)/", line)
-        assert match, line + proc.stderr.read()
-        with urllib.request.urlopen(match.group(0) + "api/state", timeout=30) as answer:
-            state = json.load(answer)
         assert state["words"] == [] and state["takes_per_word"] == 2
         assert state["lexicon"].endswith("pronunciations.txt") and folder.is_dir()
         assert state["notes"] == []
@@ -37,16 +43,8 @@ def test_record_reads_an_old_folder_lexicon_txt_and_says_so_once(tmp_path):
     folder = tmp_path / "old takes"
     folder.mkdir()
     (folder / "lexicon.txt").write_text("back B AE K\noven AH V AH N\n", encoding="utf-8")
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "wordspot.cli", "record", str(folder), "--port", "0"],
-        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-    )
+    proc, state = _start_record(folder)
     try:
-        line = proc.stdout.readline()
-        match = re.search(r"http://127\.0\.0\.1:(\d+)/", line)
-        assert match, line + proc.stderr.read()
-        with urllib.request.urlopen(match.group(0) + "api/state", timeout=30) as answer:
-            state = json.load(answer)
         assert [w["word"] for w in state["words"]] == ["back", "oven"]
         assert state["lexicon"].endswith("lexicon.txt")
     finally:

@@ -40,7 +40,7 @@ import numpy as np
 
 from wordspot.acoustic.scorer import SCORER_DTYPE, StateScorer
 from wordspot.errors import TrainingError
-from wordspot.training.scorer_fit import UNSEEN_LOGIT, _check, _gather
+from wordspot.training.scorer_fit import UNSEEN_LOGIT, check_labelled_frames, stacked_sample
 
 __all__ = [
     "ScorerAdaptConfig",
@@ -307,7 +307,7 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
     """
     config = config or ScorerAdaptConfig()
     p = scorer.n_classes
-    dim = _check(frames_list, labels_list, p)
+    dim = check_labelled_frames(frames_list, labels_list, p)
     if dim != scorer.frame_dim:
         raise TrainingError(f"frames of {dim} values, but the state scorer reads {scorer.frame_dim}")
     speech = np.ones(p, bool) if speech_classes is None else np.asarray(speech_classes, bool)
@@ -319,11 +319,11 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
     order = rng.permutation(len(frames_list))
     n_held = min(int(round(config.held_out_share * len(order))), len(order) - 1)
     held, train = np.sort(order[:n_held]), np.sort(order[n_held:])
-    x, y = _gather(frames_list, labels_list, train, scorer.context, config.max_frames, rng)
+    x, y = stacked_sample(frames_list, labels_list, train, scorer.context, config.max_frames, rng)
     if y.size == 0:
         raise TrainingError("no labelled frames to tune the state scorer on")
     held_limit = max(1, int(config.max_frames * config.held_out_share))
-    hx, hy = _gather(frames_list, labels_list, held, scorer.context, held_limit, rng) if n_held else (None, None)
+    hx, hy = stacked_sample(frames_list, labels_list, held, scorer.context, held_limit, rng) if n_held else (None, None)
     if hy is not None and hy.size == 0:
         hx = hy = None
     for a in (x, hx):

@@ -21,7 +21,8 @@ import numpy as np
 from wordspot.acoustic.scorer import SCORER_DTYPE, StateScorer, stack_context
 from wordspot.errors import TrainingError
 
-__all__ = ["UNSEEN_LOGIT", "ScorerConfig", "ScorerFit", "fit_scorer", "fit_scorer_with_report", "label_log_prior"]
+__all__ = ["UNSEEN_LOGIT", "ScorerConfig", "ScorerFit", "fit_scorer", "fit_scorer_with_report", "label_log_prior",
+           "check_labelled_frames", "stacked_sample"]
 
 #: Output-layer value of a class no training frame carries (its weights are zero).
 UNSEEN_LOGIT = -1e4
@@ -116,7 +117,8 @@ def label_log_prior(labels_list, n_classes: int, prior_count: float = 1.0) -> np
     return np.log(counts / counts.sum())
 
 
-def _check(frames_list, labels_list, n_classes):
+def check_labelled_frames(frames_list, labels_list, n_classes):
+    """Check frames against labels (shapes, class range) and return the frame dimension."""
     if len(frames_list) != len(labels_list):
         raise TrainingError(f"{len(frames_list)} frame matrices but {len(labels_list)} label vectors")
     if not isinstance(n_classes, (int, np.integer)) or n_classes < 2:
@@ -139,7 +141,7 @@ def _check(frames_list, labels_list, n_classes):
     return dim
 
 
-def _gather(frames_list, labels_list, which, context, limit, rng):
+def stacked_sample(frames_list, labels_list, which, context, limit, rng):
     """Stacked windows and labels of the utterances ``which``, at most ``limit`` frames."""
     sizes = np.array([len(labels_list[i]) for i in which], dtype=np.int64)
     total = int(sizes.sum())
@@ -215,17 +217,17 @@ def fit_scorer_with_report(frames_list, labels_list, n_classes: int,
     from sklearn.neural_network import MLPClassifier
 
     config = config or ScorerConfig()
-    _check(frames_list, labels_list, n_classes)
+    check_labelled_frames(frames_list, labels_list, n_classes)
     rng = np.random.default_rng(config.seed)
     order = rng.permutation(len(frames_list))
     n_held = int(round(config.held_out_share * len(order)))
     n_held = min(n_held, len(order) - 1)
     held, train = np.sort(order[:n_held]), np.sort(order[n_held:])
-    x, y = _gather(frames_list, labels_list, train, config.context, config.max_frames, rng)
+    x, y = stacked_sample(frames_list, labels_list, train, config.context, config.max_frames, rng)
     if y.size == 0:
         raise TrainingError("no labelled frames to fit the scorer on")
     held_limit = max(1, int(config.max_frames * max(config.held_out_share, 0.0)))
-    hx, hy = _gather(frames_list, labels_list, held, config.context, held_limit, rng) if n_held else (None, None)
+    hx, hy = stacked_sample(frames_list, labels_list, held, config.context, held_limit, rng) if n_held else (None, None)
     if hy is not None and hy.size == 0:
         hx = hy = None
 
