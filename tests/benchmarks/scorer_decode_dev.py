@@ -34,6 +34,9 @@ def main(argv=None) -> int:
     ap.add_argument("--model", default="starter")
     ap.add_argument("--weights", type=float, nargs="+", default=[0.0, 0.5, 1.0])
     ap.add_argument("--scales", type=float, nargs="+", default=[0.3, 0.6, 1.0])
+    ap.add_argument("--filler-penalties", type=float, nargs="+", default=[-100.0],
+                    help="filler phone penalties to try with the scorer (log units)")
+    ap.add_argument("--insertion-penalties", type=float, nargs="+", default=[-60.0])
     ap.add_argument("--most-talk", type=int, default=0, help="other-talk files at most (0: all)")
     args = ap.parse_args(argv)
 
@@ -66,27 +69,29 @@ def main(argv=None) -> int:
     feats = {name: [(compute_features(w, model.features), ref) for w, ref in items] for name, items in sets.items()}
     print(f"{args.model}: dev commands {len(words)} files, other talk {len(talk)}, noise only {len(noise)}; "
           f"scorer {'none' if model.scorer is None else model.info.get('scorer', {}).get('hidden')}")
-    print("| scorer weight | scale | dev command WER | other talk: files with a command "
-          "| noise only: files with a command | s |")
-    print("| ---: | ---: | ---: | ---: | ---: | ---: |")
-    for w in args.weights:
-        for s in (args.scales if w > 0 else args.scales[:1]):
-            t0 = time.monotonic()
-            settings = DecoderSettings(min_confidence=0.0, scorer_weight=w, scorer_scale=s)
-            recog = build_recognizer(model, settings=settings, lexicon=bakery)
-            row = []
-            for name, items in feats.items():
-                errors = n_words = with_command = 0
-                for x, ref in items:
-                    hyp = [seg.word for seg in recog.decode(x).segments]
-                    a = align_words(ref, hyp)
-                    errors += a.substitutions + a.deletions + a.insertions
-                    n_words += len(ref)
-                    with_command += bool(hyp)
-                row.append(f"{100 * errors / n_words:.1f}%" if name == "words"
-                           else f"{100 * with_command / len(items):.1f}% ({with_command} of {len(items)})")
-            print(f"| {w:g} | {s if w > 0 else '-'} | " + " | ".join(row) + f" | {time.monotonic() - t0:.0f} |",
-                  flush=True)
+    print("| scorer weight | scale | filler penalty | insertion penalty | dev command WER "
+          "| other talk: files with a command | noise only: files with a command | s |")
+    print("| ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |")
+    grid = [(w, s, f, i) for w in args.weights for s in (args.scales if w > 0 else args.scales[:1])
+            for f in args.filler_penalties for i in args.insertion_penalties]
+    for w, s, fp, ip in grid:
+        t0 = time.monotonic()
+        settings = DecoderSettings(min_confidence=0.0, scorer_weight=w, scorer_scale=s,
+                                   filler_penalty=fp, insertion_penalty=ip)
+        recog = build_recognizer(model, settings=settings, lexicon=bakery)
+        row = []
+        for name, items in feats.items():
+            errors = n_words = with_command = 0
+            for x, ref in items:
+                hyp = [seg.word for seg in recog.decode(x).segments]
+                a = align_words(ref, hyp)
+                errors += a.substitutions + a.deletions + a.insertions
+                n_words += len(ref)
+                with_command += bool(hyp)
+            row.append(f"{100 * errors / n_words:.1f}%" if name == "words"
+                       else f"{100 * with_command / len(items):.1f}% ({with_command} of {len(items)})")
+        print(f"| {w:g} | {s if w > 0 else '-'} | {fp:g} | {ip:g} | " + " | ".join(row) + f" | {time.monotonic() - t0:.0f} |",
+              flush=True)
     return 0
 
 

@@ -29,7 +29,7 @@ sys.path.insert(0, str(HERE))
 
 from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
 
-THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.015, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.5)
+THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.015, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.7)
 
 
 def main(argv=None) -> int:
