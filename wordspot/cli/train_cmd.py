@@ -11,7 +11,7 @@ from wordspot.errors import FeatureError, TrainingError
 from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
-from wordspot.training.adapt import AdaptationConfig, adapt
+from wordspot.training.adapt import AdaptationConfig, adapting
 from wordspot.training.trainer import TrainingConfig, train
 from wordspot.training.workers import end_with_starter
 
@@ -105,6 +105,10 @@ def add_parser(sub, **options):
                        f"(default {AdaptationConfig.prior_weight:g}; larger keeps closer to the start)")
     start.add_argument("--adapt-passes", type=_positive, default=AdaptationConfig.passes, metavar="N",
                        help=f"adaptation passes (default {AdaptationConfig.passes})")
+    start.add_argument("--strength", type=_count, default=None, metavar="N",
+                       help="further passes in which your recordings take over from the starting model "
+                       "(0: the weighted pass only; default: as many as improve the fit of recordings "
+                       f"held out to check, at most {AdaptationConfig.follow_passes})")
     start.add_argument("--no-mean-transform", action="store_true",
                        help="skip the shared transform that first moves every phone towards your voice")
     start.add_argument("--adapt-variances", action="store_true", help="also adapt the variances")
@@ -246,12 +250,9 @@ def _adapted(args, lexicon, say):
         )
     config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
                               mean_transform=not args.no_mean_transform,
-                              update_variances=args.adapt_variances, jobs=args.jobs,
+                              update_variances=args.adapt_variances, jobs=args.jobs, strength=args.strength,
                               **({"scorer": None} if args.keep_starter_scorer else {}), **_share(args))
 
-    def fit(utterances):
-        return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
-                     quiet=args.quiet, report=say)
+    return adapting(start, lexicon, config=config, manifest=args.manifest, quiet=args.quiet, report=say), \
+        f"adapted from {name}"
 
-    fit.start_calibration = getattr(start, "calibration", None)  # kept when the takes are too few for one
-    return fit, f"adapted from {name}"

@@ -425,7 +425,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         )
         return model, summary
     say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
-    model, summary = train(rest)
+    # a training function that can use them (adapting: to choose its strength) gets the held-out part too
+    model, summary = train(rest, held_out=held) if getattr(train, "takes_held_out", False) else train(rest)
     examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
                                     backwards=config.backwards, jumbled=config.jumbled, seed=config.seed)
     calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))

@@ -32,14 +32,15 @@ from __future__ import annotations
 
 import datetime as _dt
 import time
-from dataclasses import dataclass
+import warnings
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from wordspot import __version__
 from wordspot.acoustic.gmm import Mixtures, MixtureStats, scoring_matrix
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
-from wordspot.corpus import check_manifest
+from wordspot.corpus import check_manifest, split_by_recording
 from wordspot.audio.band import check_training_band
 from wordspot.errors import TrainingError
 from wordspot.language.grammar import count_bigrams
@@ -64,7 +65,11 @@ __all__ = [
     "adapt_items",
     "align_for_scorer",
     "tune_scorer",
+    "held_out_fit",
+    "strength_info",
+    "strength_note",
     "adapt",
+    "adapting",
     "ADAPT_LEGEND",
 ]
 
@@ -107,6 +112,23 @@ class AdaptationConfig:
     scorer : ScorerAdaptConfig or None
         How to tune the starting model's state scorer to the recordings (when it has
         one); None keeps the starting model's scorer unchanged.
+    follow_passes : int >= 0
+        Most passes, after MAP, in which the recordings take over: each is a MAP update
+        whose prior is the previous pass's model with weight ``follow_weight``, so the
+        Gaussians with much data move towards the maximum-likelihood estimate pass by pass
+        (means, variances, weights) while those with little keep close to the start.
+        How many of them run is the *strength*, chosen on held-out recordings
+        (:func:`adapt_items`); 0 is the fixed-strength MAP alone.
+    follow_weight : float > 0
+        ``tau`` of each following pass, relative to the previous pass's model.
+    strength : int or None
+        Run exactly this many following passes (at most ``follow_passes``); None: choose
+        them on held-out recordings by their log-likelihood a frame.
+    held_out_share : float in (0, 1)
+        Share of the recordings (by recording, every speaker alike) held out to choose the
+        strength when no held-out recordings are handed in.
+    min_held_out_frames : int >= 0
+        Fewest frames of held-out speech to choose on; with fewer the strength is 0.
     """
 
     prior_weight: float = 300.0
@@ -119,6 +141,11 @@ class AdaptationConfig:
     background_share: float = 0.1
     seed: int = 0
     scorer: ScorerAdaptConfig | None = ScorerAdaptConfig()
+    follow_passes: int = 6
+    follow_weight: float = 10.0
+    strength: int | None = None
+    held_out_share: float = 0.1
+    min_held_out_frames: int = 1000
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -130,6 +157,15 @@ class AdaptationConfig:
         if not self.min_transform_frames > 0 or self.prune < 0:
             raise TrainingError("min_transform_frames must be > 0 and prune >= 0")
         object.__setattr__(self, "background_share", check_share(self.background_share))
+        for name in ("follow_passes", "min_held_out_frames") + (("strength",) if self.strength is not None else ()):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
+                raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
+        if not (np.isfinite(self.follow_weight) and self.follow_weight > 0):
+            raise TrainingError(f"follow_weight must be a number > 0 (the default is 10), got {self.follow_weight!r}")
+        h = self.held_out_share
+        if isinstance(h, bool) or not isinstance(h, (int, float)) or not 0.0 < h < 1.0:
+            raise TrainingError(f"held_out_share must be between 0 and 1 (e.g. 0.1), got {h!r}")
         if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
             raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
 
@@ -264,15 +300,55 @@ def _transformed(mix: Mixtures, stats: MixtureStats, classes: np.ndarray, min_fr
 # ------------------------------------------------------------------ the loop
 
 
+def _map_update(prior: Mixtures, st: MixtureStats, tau: float, update_variances: bool,
+                floor: np.ndarray) -> Mixtures:
+    """One MAP update of ``prior`` from summed statistics (components switched off stay off)."""
+    means = map_means(prior.means, st.occupancy, st.first, tau)
+    weights = map_weights(prior.weights, st.occupancy, tau)
+    variances = prior.variances
+    if update_variances:
+        variances = map_variances(prior.means, prior.variances, means, st.occupancy, st.second, tau, floor)
+    # a component the starting model had switched off (weight 0) stays off
+    seen = st.occupancy.sum(axis=1) > 0
+    off = seen[:, None] & (prior.weights <= 0)
+    if off.any():
+        weights = np.where(off, 0.0, weights)
+        weights[seen] /= weights[seen].sum(axis=1, keepdims=True)
+    return Mixtures(weights, means, variances)
+
+
+def _chunks(items) -> list:
+    return [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
+
+
+def held_out_fit(items, units: UnitSet, mix: Mixtures, *, jobs: int = 1, prune: float = 0.0) -> float:
+    """Log-likelihood a frame of ``items`` (each under its own transcript's chain) with ``mix``;
+    -inf when some item has no path."""
+    res = pass_statistics(_chunks(items), mix, units, jobs=jobs, quiet=True, prune=prune, label="held-out")
+    if not np.isfinite(res.loglik).all():
+        return float("-inf")
+    return float(res.loglik.sum() / sum(it.frames.shape[0] for it in items))
+
+
 def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfig = AdaptationConfig(),
-                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None):
+                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None, held_out=None):
     """Adapt ``mix`` to prepared utterances (units and transitions stay as they are).
+
+    First the shared transform and ``config.passes`` MAP passes with weight
+    ``config.prior_weight``; then up to ``config.follow_passes`` passes in which the data
+    take over (MAP with the previous pass as the prior, weight ``config.follow_weight``).
+    ``config.strength`` fixes their number; when it is None and ``held_out`` (prepared
+    items of recordings left out of ``items``) holds at least ``config.min_held_out_frames``
+    frames, they run while the held-out log-likelihood a frame rises, and the best model on
+    the held-out items is kept; otherwise none runs.
 
     Returns
     -------
     mixtures : Mixtures
     summary : TrainingSummary
-        ``passes`` holds the log-likelihood per frame of each statistics pass.
+        ``passes`` holds the log-likelihood per frame of each statistics pass;
+        ``adaptation`` the strength (following passes kept), how it was chosen and the
+        held-out fit after each pass.
     transform : dict
         Per regression class (0 pause, 1 speech): "full", "bias" or "none".
     """
@@ -284,8 +360,12 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     prior = mix
     transform: dict = {}
     n_frames = sum(it.frames.shape[0] for it in items)
-    chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
-    total_passes = config.passes + int(config.mean_transform)
+    chunks = _chunks(items)
+    held = sorted(held_out or [], key=lambda it: it.words)
+    held_frames = sum(it.frames.shape[0] for it in held)
+    choose = config.strength is None and held_frames >= config.min_held_out_frames and config.follow_passes > 0
+    most = config.strength if config.strength is not None else (config.follow_passes if choose else 0)
+    total_passes = config.passes + int(config.mean_transform) + most
 
     def stats_pass(current, k):
         res = pass_statistics(chunks, current, units, jobs=config.jobs, quiet=quiet, prune=config.prune,
@@ -310,24 +390,37 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     for _ in range(config.passes):
         k += 1
         res = stats_pass(current, k)
-        st = res.stats
-        means = map_means(prior.means, st.occupancy, st.first, config.prior_weight)
-        weights = map_weights(prior.weights, st.occupancy, config.prior_weight)
-        variances = prior.variances
-        if config.update_variances:
-            variances = map_variances(prior.means, prior.variances, means, st.occupancy, st.second,
-                                      config.prior_weight, floor)
-        # a component the starting model had switched off (weight 0) stays off
-        seen = st.occupancy.sum(axis=1) > 0
-        off = seen[:, None] & (prior.weights <= 0)
-        if off.any():
-            weights = np.where(off, 0.0, weights)
-            weights[seen] /= weights[seen].sum(axis=1, keepdims=True)
-        current = Mixtures(weights, means, variances)
+        current = _map_update(prior, res.stats, config.prior_weight, config.update_variances, floor)
+    held_fits: list[float] = []
+    if choose:
+        held_fits.append(held_out_fit(held, units, current, jobs=config.jobs, prune=config.prune))
+        if report is not None:
+            report(f"  held-out fit {held_fits[-1]:.4f} ({len(held)} recordings)")
+    best, strength = current, 0
+    for j in range(1, most + 1):
+        k += 1
+        res = stats_pass(current, k)
+        current = _map_update(current, res.stats, config.follow_weight, True, floor)
+        if not choose:
+            best, strength = current, j
+            continue
+        held_fits.append(held_out_fit(held, units, current, jobs=config.jobs, prune=config.prune))
+        if report is not None:
+            report(f"  held-out fit {held_fits[-1]:.4f}")
+        if held_fits[-1] <= max(held_fits[:-1]):
+            break  # the held-out recordings fit worse: the data have taken over far enough
+        best, strength = current, j
     summary.count(items)
     summary.n_frames = int(n_frames)
     summary.frames_per_unit = {name: float(res.unit_frames[u]) for u, name in enumerate(units.names)}
-    return current, summary, transform
+    summary.adaptation = {
+        "strength": int(strength),
+        "chosen_on": ("held-out" if choose else "given" if config.strength is not None else "too little held out"),
+        "held_out_recordings": len(held) if choose else 0,
+        "held_out_fit": [round(v, 4) for v in held_fits],
+        "speech_frames": int(sum(it.frames.shape[0] for it in items if not it.background)),
+    }
+    return best, summary, transform
 
 
 def align_for_scorer(items, mix: Mixtures) -> tuple[list, list]:
@@ -403,12 +496,19 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 
 
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
-          manifest=None, quiet: bool = True, report=None) -> tuple[AcousticModel, TrainingSummary]:
+          manifest=None, quiet: bool = True, report=None, held_out=None) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
     the starting model stays available for words added later. Transcript words missing
     from ``lexicon`` are taken from ``start``'s lexicon when it has them.
+
+    The strength (how many passes let the recordings take over, see
+    :func:`adapt_items`) is ``config.strength`` when given; else it is chosen on
+    ``held_out`` (utterances left out of ``utterances``, e.g. the calibration's) when
+    given, else on ``config.held_out_share`` of the recordings held out by
+    :func:`wordspot.corpus.split_by_recording`, after which all of them are adapted on
+    with the strength found.
 
     Raises
     ------
@@ -433,8 +533,35 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
                                    quiet=quiet, background_share=config.background_share, seed=config.seed)
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
+    held_items, chosen = [], None
+    if held_out and config.strength is None and config.follow_passes > 0:
+        held_utts = list(held_out)
+        held_lex, _ = vocabulary_for({w for u in held_utts for w in u.words}, lexicon, start.lexicon)
+        with warnings.catch_warnings():  # a held-out file that cannot be used is only not used here
+            warnings.simplefilter("ignore")
+            held_items, _ = prepare_items([u for u in held_utts if set(u.words) <= set(held_lex.words)], held_lex,
+                                          start.units, start.features, jobs=config.jobs, quiet=True)
+    elif held_out is None and config.strength is None and config.follow_passes > 0:
+        used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
+        _, held_utts = split_by_recording(used, config.held_out_share, config.seed)
+        held_paths = {u.path for u in held_utts}
+        held_items = [it for it in items if not it.background and it.path in held_paths]
+        if sum(it.frames.shape[0] for it in held_items) >= config.min_held_out_frames:
+            rest = [it for it in items if it.background or it.path not in held_paths]
+            if report is not None:
+                report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, "
+                       f"{len(held_items)} held out")
+            _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet,
+                                      report=report, held_out=held_items)
+            chosen = first.adaptation
+            config = replace(config, strength=chosen["strength"])
+            if report is not None:
+                report(f"adapting on all {len(used)} recordings with strength {chosen['strength']}")
+        held_items = []
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
-                                          report=report)
+                                          report=report, held_out=held_items)
+    if chosen is not None:
+        summary.adaptation.update({k: chosen[k] for k in ("chosen_on", "held_out_recordings", "held_out_fit")})
     summary.skipped = skipped
     summary.frame_seconds = start.features.hop_ms / 1000
     used = {it.path for it in items if not it.background}
@@ -459,8 +586,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "borrowed_pronunciations": borrowed,
         "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
         "seconds": round(summary.seconds, 2),
+        "strength": strength_info(summary.adaptation, start.features.hop_ms / 1000, config),
     }
     info["audio_band"] = band
+    summary.adapt_note = strength_note(info["strength"])
     scorer = start.scorer
     if scorer is not None and config.scorer is not None:
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
@@ -473,3 +602,68 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info, scorer=scorer)
     return model, summary
+
+
+def strength_info(adaptation: dict, frame_seconds: float, config: AdaptationConfig) -> dict:
+    """The model's ``info["strength"]``: passes kept, how they were chosen, minutes of speech."""
+    return {"follow_passes": int(adaptation.get("strength", 0)),
+            "chosen_on": adaptation.get("chosen_on", "given"),
+            "held_out_recordings": int(adaptation.get("held_out_recordings", 0)),
+            "held_out_fit": list(adaptation.get("held_out_fit", [])),
+            "follow_weight": float(config.follow_weight),
+            "most_passes": int(config.follow_passes),
+            "speech_minutes": round(adaptation.get("speech_frames", 0) * frame_seconds / 60, 2)}
+
+
+def strength_note(info: dict) -> str:
+    """One plain sentence on how strongly the model was adapted and why."""
+    k, minutes = info["follow_passes"], info["speech_minutes"]
+    speech = f"{minutes:.1f} minutes of your recordings"
+    if info["chosen_on"] == "held-out":
+        why = f"chosen on {info['held_out_recordings']} held-out recordings"
+    elif info["chosen_on"] == "given":
+        why = "as asked"
+    else:
+        why = "too few recordings to hold out for choosing more"
+    if k == 0:
+        if info["chosen_on"] == "held-out":
+            why += ", which fit worse after any further pass"
+        return (f"adapted the starting model lightly: {speech}, the shared shift and one weighted pass, "
+                f"no further pass ({why})")
+    how = "strongly" if k >= max(2, info["most_passes"] // 2) else "moderately"
+    return (f"adapted the starting model {how}: {speech}, {k} further pass{'es' if k != 1 else ''} in "
+            f"which your recordings take over ({why})")
+
+
+def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig = AdaptationConfig(),
+             manifest=None, quiet: bool = True, report=None):
+    """The training function ``fit(utterances, held_out=None) -> (model, summary)`` that adapts ``start``.
+
+    Made for :func:`wordspot.evaluation.calibrate.train_calibrated`: its first call, with
+    the calibration's held-out recordings, chooses the strength on them; later calls without
+    held-out recordings (training again on every recording) reuse that strength. Carries
+    ``start_calibration`` (the starting model's calibration, the fallback) and
+    ``takes_held_out``.
+    """
+    chosen: dict = {}
+
+    def fit(utterances, held_out=None):
+        cfg = config
+        if held_out is None and config.strength is None and chosen:
+            cfg = replace(config, strength=chosen["follow_passes"])
+        model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest, quiet=quiet,
+                               report=report, held_out=held_out)
+        if held_out is not None and config.strength is None:
+            chosen.clear()
+            chosen.update(model.info["strength"])
+        elif chosen and cfg is not config:
+            strength = {**model.info["strength"], **{k: chosen[k] for k in
+                                                     ("chosen_on", "held_out_recordings", "held_out_fit")}}
+            model.info["strength"] = strength
+            summary.adaptation.update(chosen_on=strength["chosen_on"])
+            summary.adapt_note = strength_note(strength)
+        return model, summary
+
+    fit.takes_held_out = True
+    fit.start_calibration = getattr(start, "calibration", None)
+    return fit
