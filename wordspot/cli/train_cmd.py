@@ -8,7 +8,7 @@ import os
 from wordspot.corpus import read_manifest
 from wordspot.audio.features import FeatureSettings
 from wordspot.errors import FeatureError, TrainingError
-from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
+from wordspot.evaluation.calibrate import CalibrationConfig, calibration_note, train_calibrated
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
 from wordspot.training.adapt import AdaptationConfig, adapting
@@ -202,6 +202,7 @@ def _run(args) -> int:
         say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
     for line in summary.lines():
         say(line)
+    say(calibration_note(model))
     path = save_model(model, args.out)
     print(f"wrote {os.fspath(path)} ({summary.used} recordings, {what}, {summary.seconds:.1f} s)")
     return 0

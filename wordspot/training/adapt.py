@@ -66,6 +66,7 @@ __all__ = [
     "align_for_scorer",
     "tune_scorer",
     "held_out_fit",
+    "split_by_speaker",
     "strength_info",
     "strength_note",
     "adapt",
@@ -121,6 +122,8 @@ class AdaptationConfig:
         (:func:`adapt_items`); 0 is the fixed-strength MAP alone.
     follow_weight : float > 0
         ``tau`` of each following pass, relative to the previous pass's model.
+    follow_variances : bool
+        The following passes also update the variances (else means and weights only).
     strength : int or None
         Run exactly this many following passes (at most ``follow_passes``); None: choose
         them on held-out recordings by their log-likelihood a frame.
@@ -129,6 +132,15 @@ class AdaptationConfig:
         strength when no held-out recordings are handed in.
     min_held_out_frames : int >= 0
         Fewest frames of held-out speech to choose on; with fewer the strength is 0.
+    speakers_to_hold_out : int >= 2
+        With recordings of at least this many speakers, the strength is chosen on whole
+        speakers held out (``held_out_speaker_share`` of them, at least one): the model is
+        to serve voices like these, and on the dev voices the fit of held-out takes of the
+        same voices kept rising while unheard voices were recognised worse
+        (docs/experiments/2026-12-02-adaptation-strength.md). With fewer speakers (one
+        person's own voice) held-out recordings of the same speakers decide.
+    held_out_speaker_share : float in (0, 1)
+        Share of the speakers held out in that case.
     """
 
     prior_weight: float = 300.0
@@ -143,9 +155,12 @@ class AdaptationConfig:
     scorer: ScorerAdaptConfig | None = ScorerAdaptConfig()
     follow_passes: int = 6
     follow_weight: float = 10.0
+    follow_variances: bool = True
     strength: int | None = None
     held_out_share: float = 0.1
     min_held_out_frames: int = 1000
+    speakers_to_hold_out: int = 3
+    held_out_speaker_share: float = 0.25
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -163,9 +178,13 @@ class AdaptationConfig:
                 raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
         if not (np.isfinite(self.follow_weight) and self.follow_weight > 0):
             raise TrainingError(f"follow_weight must be a number > 0 (the default is 10), got {self.follow_weight!r}")
-        h = self.held_out_share
-        if isinstance(h, bool) or not isinstance(h, (int, float)) or not 0.0 < h < 1.0:
-            raise TrainingError(f"held_out_share must be between 0 and 1 (e.g. 0.1), got {h!r}")
+        for name in ("held_out_share", "held_out_speaker_share"):
+            h = getattr(self, name)
+            if isinstance(h, bool) or not isinstance(h, (int, float)) or not 0.0 < h < 1.0:
+                raise TrainingError(f"{name} must be between 0 and 1 (e.g. 0.1), got {h!r}")
+        v = self.speakers_to_hold_out
+        if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 2:
+            raise TrainingError(f"speakers_to_hold_out must be a whole number >= 2, got {v!r}")
         if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
             raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
 
@@ -400,7 +419,7 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     for j in range(1, most + 1):
         k += 1
         res = stats_pass(current, k)
-        current = _map_update(current, res.stats, config.follow_weight, True, floor)
+        current = _map_update(current, res.stats, config.follow_weight, config.follow_variances, floor)
         if not choose:
             best, strength = current, j
             continue
@@ -534,6 +553,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     held_items, chosen = [], None
+    used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
+    by_speaker = len({u.speaker for u in used}) >= config.speakers_to_hold_out
+    if by_speaker:
+        held_out = None  # chosen on whole speakers held out below, not on takes of the same voices
     if held_out and config.strength is None and config.follow_passes > 0:
         held_utts = list(held_out)
         held_lex, _ = vocabulary_for({w for u in held_utts for w in u.words}, lexicon, start.lexicon)
@@ -542,18 +565,22 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
             held_items, _ = prepare_items([u for u in held_utts if set(u.words) <= set(held_lex.words)], held_lex,
                                           start.units, start.features, jobs=config.jobs, quiet=True)
     elif held_out is None and config.strength is None and config.follow_passes > 0:
-        used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
-        _, held_utts = split_by_recording(used, config.held_out_share, config.seed)
+        if by_speaker:
+            held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
+        else:
+            _, held_utts = split_by_recording(used, config.held_out_share, config.seed)
         held_paths = {u.path for u in held_utts}
         held_items = [it for it in items if not it.background and it.path in held_paths]
         if sum(it.frames.shape[0] for it in held_items) >= config.min_held_out_frames:
             rest = [it for it in items if it.background or it.path not in held_paths]
             if report is not None:
-                report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, "
-                       f"{len(held_items)} held out")
+                what = (f"{len({u.speaker for u in held_utts})} speakers' {len(held_items)} recordings" if by_speaker
+                        else f"{len(held_items)} recordings")
+                report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} "
+                       "held out")
             _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet,
                                       report=report, held_out=held_items)
-            chosen = first.adaptation
+            chosen = dict(first.adaptation, held_out_speakers=len({u.speaker for u in held_utts}) if by_speaker else 0)
             config = replace(config, strength=chosen["strength"])
             if report is not None:
                 report(f"adapting on all {len(used)} recordings with strength {chosen['strength']}")
@@ -561,7 +588,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
                                           report=report, held_out=held_items)
     if chosen is not None:
-        summary.adaptation.update({k: chosen[k] for k in ("chosen_on", "held_out_recordings", "held_out_fit")})
+        summary.adaptation.update({k: chosen[k] for k in ("chosen_on", "held_out_recordings", "held_out_fit",
+                                                          "held_out_speakers")})
     summary.skipped = skipped
     summary.frame_seconds = start.features.hop_ms / 1000
     used = {it.path for it in items if not it.background}
@@ -604,11 +632,21 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     return model, summary
 
 
+def split_by_speaker(utterances, share: float, seed: int) -> list:
+    """The recordings of ``ceil(share * speakers)`` speakers (at least one, never all), drawn with ``seed``."""
+    speakers = sorted({u.speaker for u in utterances})
+    k = min(max(1, int(np.ceil(share * len(speakers)))), len(speakers) - 1)
+    rng = np.random.default_rng([seed, 0x73706B72])
+    held = {speakers[i] for i in rng.choice(len(speakers), size=k, replace=False)}
+    return [u for u in utterances if u.speaker in held]
+
+
 def strength_info(adaptation: dict, frame_seconds: float, config: AdaptationConfig) -> dict:
     """The model's ``info["strength"]``: passes kept, how they were chosen, minutes of speech."""
     return {"follow_passes": int(adaptation.get("strength", 0)),
             "chosen_on": adaptation.get("chosen_on", "given"),
             "held_out_recordings": int(adaptation.get("held_out_recordings", 0)),
+            "held_out_speakers": int(adaptation.get("held_out_speakers", 0)),
             "held_out_fit": list(adaptation.get("held_out_fit", [])),
             "follow_weight": float(config.follow_weight),
             "most_passes": int(config.follow_passes),
@@ -619,7 +657,10 @@ def strength_note(info: dict) -> str:
     """One plain sentence on how strongly the model was adapted and why."""
     k, minutes = info["follow_passes"], info["speech_minutes"]
     speech = f"{minutes:.1f} minutes of your recordings"
-    if info["chosen_on"] == "held-out":
+    if info["chosen_on"] == "held-out" and info.get("held_out_speakers"):
+        why = (f"chosen on {info['held_out_recordings']} recordings of {info['held_out_speakers']} speaker"
+               f"{'s' if info['held_out_speakers'] != 1 else ''} held out, as voices it has not heard")
+    elif info["chosen_on"] == "held-out":
         why = f"chosen on {info['held_out_recordings']} held-out recordings"
     elif info["chosen_on"] == "given":
         why = "as asked"
@@ -658,7 +699,8 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
             chosen.update(model.info["strength"])
         elif chosen and cfg is not config:
             strength = {**model.info["strength"], **{k: chosen[k] for k in
-                                                     ("chosen_on", "held_out_recordings", "held_out_fit")}}
+                                                     ("chosen_on", "held_out_recordings", "held_out_fit",
+                                                      "held_out_speakers")}}
             model.info["strength"] = strength
             summary.adaptation.update(chosen_on=strength["chosen_on"])
             summary.adapt_note = strength_note(strength)
