@@ -350,7 +350,8 @@ def held_out_fit(items, units: UnitSet, mix: Mixtures, *, jobs: int = 1, prune: 
 
 
 def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfig = AdaptationConfig(),
-                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None, held_out=None):
+                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None, held_out=None,
+                copies=None):
     """Adapt ``mix`` to prepared utterances (units and transitions stay as they are).
 
     First the shared transform and ``config.passes`` MAP passes with weight
@@ -359,7 +360,8 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     ``config.strength`` fixes their number; when it is None and ``held_out`` (prepared
     items of recordings left out of ``items``) holds at least ``config.min_held_out_frames``
     frames, they run while the held-out log-likelihood a frame rises, and the best model on
-    the held-out items is kept; otherwise none runs.
+    the held-out items is kept; otherwise none runs. ``copies`` (speed or noisy copies of
+    the recordings among ``items``) take part in the following passes only.
 
     Returns
     -------
@@ -380,17 +382,20 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     transform: dict = {}
     n_frames = sum(it.frames.shape[0] for it in items)
     chunks = _chunks(items)
+    follow = sorted(items + list(copies or []), key=lambda it: it.words)
+    follow_chunks = _chunks(follow) if copies else chunks
+    n_follow = sum(it.frames.shape[0] for it in follow)
     held = sorted(held_out or [], key=lambda it: it.words)
     held_frames = sum(it.frames.shape[0] for it in held)
     choose = config.strength is None and held_frames >= config.min_held_out_frames and config.follow_passes > 0
     most = config.strength if config.strength is not None else (config.follow_passes if choose else 0)
     total_passes = config.passes + int(config.mean_transform) + most
 
-    def stats_pass(current, k):
-        res = pass_statistics(chunks, current, units, jobs=config.jobs, quiet=quiet, prune=config.prune,
-                              label=f"adapt {k}/{total_passes}")
+    def stats_pass(current, k, following=False):
+        res = pass_statistics(follow_chunks if following else chunks, current, units, jobs=config.jobs,
+                              quiet=quiet, prune=config.prune, label=f"adapt {k}/{total_passes}")
         ok = np.isfinite(res.loglik)
-        avg = float(res.loglik[ok].sum() / n_frames) if ok.any() else float("-inf")
+        avg = float(res.loglik[ok].sum() / (n_follow if following else n_frames)) if ok.any() else float("-inf")
         summary.passes.append((int(current.n_components), avg))
         if report is not None:
             if k == 1:
@@ -418,7 +423,7 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     best, strength = current, 0
     for j in range(1, most + 1):
         k += 1
-        res = stats_pass(current, k)
+        res = stats_pass(current, k, following=True)
         current = _map_update(current, res.stats, config.follow_weight, config.follow_variances, floor)
         if not choose:
             best, strength = current, j
