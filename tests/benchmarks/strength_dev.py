@@ -3,9 +3,9 @@
 
 The starter is adapted on the training voices that are not dev voices (``dev_candidate``
 in ``recordings/voices.csv``), with all their takes or only the first take of each word,
-three ways: the fixed-strength MAP of before (``strength`` 0), the strength chosen on
-held-out recordings (the default, three seeds: the seed draws the held-out recordings and
-the background items), and trained from scratch (``TrainingConfig()``). Each model is
+three ways: the fixed-strength MAP of before (``strength`` 0), optionally fixed strengths
+(``--fixed``), the strength chosen on held-out recordings (the default, three seeds: the
+seed draws the held-out recordings and the background items), and trained from scratch (``TrainingConfig()``). Each model is
 scored on the dev voices (WER in the word loop, no confidence threshold): their clean
 commands, the same commands in babble or fan noise at 10 dB SNR, and joined stand-ins of
 phrases (2-4 commands with pauses). A last part leaves the words of one fold out of the
@@ -85,6 +85,7 @@ def main(argv=None) -> int:
     ap.add_argument("--jobs", type=int, default=1)
     ap.add_argument("--amounts", nargs="+", default=["all", "1"], help="takes per word and voice")
     ap.add_argument("--follow-weight", type=float, nargs="+", default=[10.0])
+    ap.add_argument("--fixed", type=int, nargs="*", default=[], help="also these fixed strengths (all takes)")
     args = ap.parse_args(argv)
 
     from wordspot.corpus import read_manifest
@@ -123,6 +124,9 @@ def main(argv=None) -> int:
         tag = f"{amount} takes ({len(data)} recordings)"
         run(f"{tag}: MAP only (strength 0, before)",
             lambda: adapt(data, lexicon, start, config=AdaptationConfig(strength=0, scorer=None, jobs=args.jobs))[0])
+        for k in args.fixed if amount == "all" else ():
+            run(f"{tag}: strength {k}",
+                lambda: adapt(data, lexicon, start, config=AdaptationConfig(strength=k, scorer=None, jobs=args.jobs))[0])
         for fw in args.follow_weight:
             for seed in args.seeds:
                 cfg = AdaptationConfig(seed=seed, follow_weight=fw, scorer=None, jobs=args.jobs)

@@ -14,9 +14,10 @@ from wordspot.training.data import prepare_items
 from wordspot.training.trainer import TrainingConfig, train
 
 SMALL = TrainingConfig(mixtures=(1, 2), first_passes=3, passes_per_split=2, speed_factors=(1.0,), noise_copies=0)
-# the tone corpora have three speakers; most tests choose on held-out takes of the same ones
+# the tone corpora have three speakers; most tests choose on held-out takes of the same ones;
+# no speed copies, as in the from-scratch model they are compared with
 QUICK = dict(scorer=None, background_share=0.0, mean_transform=False, min_held_out_frames=200,
-             speakers_to_hold_out=100)
+             speakers_to_hold_out=100, follow_speeds=())
 
 
 @pytest.fixture(scope="module")
@@ -122,7 +123,19 @@ def test_strength_note_in_plain_words():
                                    "passes in which your recordings take over (chosen on 40 held-out recordings)")
 
 
-@pytest.mark.parametrize("field,value", [("follow_passes", -1), ("follow_weight", 0.0), ("strength", -2),
+def test_speed_copies_take_part_in_the_following_passes_only(shifted):
+    start, lex, many, held = shifted
+    cfg = AdaptationConfig(**{**QUICK, "follow_speeds": (0.9, 1.1)}, strength=2)
+    model, summary = adapt(many[:10], lex, start, config=cfg)
+    plain, plain_summary = adapt(many[:10], lex, start, config=AdaptationConfig(**QUICK, strength=2))
+    assert model.info["follow_copies"]["speeds"] == [0.9, 1.1]
+    # the MAP pass sees the recordings alone, the following ones also their copies: their
+    # statistics differ only from the first following pass on
+    assert summary.passes[0] == plain_summary.passes[0]
+    assert summary.passes[1] != plain_summary.passes[1]
+
+
+@pytest.mark.parametrize("field,value", [("follow_speeds", (1.0,)), ("follow_noise_copies", -1), ("follow_passes", -1), ("follow_weight", 0.0), ("strength", -2),
                                          ("held_out_share", 1.0)])
 def test_strength_settings_are_checked(field, value):
     with pytest.raises(TrainingError, match=field):

@@ -47,7 +47,9 @@ from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
 from wordspot.training.backgrounds import check_share
+from wordspot.audio.augment import NoiseSettings
 from wordspot.training.data import prepare_items
+from wordspot.training.noise import noisy_items
 from wordspot.training.frame_labels import align_one
 from wordspot.training.items import CHUNK_SIZE
 from wordspot.training.scorer_adapt import ScorerAdaptConfig, adapt_scorer
@@ -124,6 +126,12 @@ class AdaptationConfig:
         ``tau`` of each following pass, relative to the previous pass's model.
     follow_variances : bool
         The following passes also update the variances (else means and weights only).
+    follow_speeds : tuple of float
+        Speed copies of every recording (as ``TrainingConfig.speed_factors``, without 1)
+        that take part in the following passes; () none.
+    follow_noise_copies : int >= 0
+        Noisy copies of every recording (as ``TrainingConfig.noise_copies``, 0-25 dB SNR)
+        that take part in the following passes.
     strength : int or None
         Run exactly this many following passes (at most ``follow_passes``); None: choose
         them on held-out recordings by their log-likelihood a frame.
@@ -156,6 +164,8 @@ class AdaptationConfig:
     follow_passes: int = 6
     follow_weight: float = 10.0
     follow_variances: bool = True
+    follow_speeds: tuple[float, ...] = (0.9, 1.1)
+    follow_noise_copies: int = 0
     strength: int | None = None
     held_out_share: float = 0.1
     min_held_out_frames: int = 1000
@@ -172,7 +182,13 @@ class AdaptationConfig:
         if not self.min_transform_frames > 0 or self.prune < 0:
             raise TrainingError("min_transform_frames must be > 0 and prune >= 0")
         object.__setattr__(self, "background_share", check_share(self.background_share))
-        for name in ("follow_passes", "min_held_out_frames") + (("strength",) if self.strength is not None else ()):
+        speeds = tuple(self.follow_speeds)
+        if any(isinstance(f, bool) or not isinstance(f, (int, float)) or not 0.5 <= f <= 2.0 or f == 1.0
+               for f in speeds) or len(set(speeds)) != len(speeds):
+            raise TrainingError(f"follow_speeds must be distinct factors from 0.5 to 2 other than 1 "
+                                f"(e.g. 0.9 1.1), got {self.follow_speeds!r}")
+        object.__setattr__(self, "follow_speeds", tuple(float(f) for f in speeds))
+        for name in ("follow_passes", "min_held_out_frames", "follow_noise_copies") + (("strength",) if self.strength is not None else ()):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
@@ -559,6 +575,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     held_items, chosen = [], None
     used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
+    copies = _copies(used, items, lexicon, start, config, quiet)
     by_speaker = len({u.speaker for u in used}) >= config.speakers_to_hold_out
     if by_speaker:
         held_out = None  # chosen on whole speakers held out below, not on takes of the same voices
@@ -584,14 +601,17 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
                 report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} "
                        "held out")
             _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet,
-                                      report=report, held_out=held_items)
+                                      report=report, held_out=held_items,
+                                      copies=[it for it in copies if it.path not in held_paths])
             chosen = dict(first.adaptation, held_out_speakers=len({u.speaker for u in held_utts}) if by_speaker else 0)
             config = replace(config, strength=chosen["strength"])
             if report is not None:
                 report(f"adapting on all {len(used)} recordings with strength {chosen['strength']}")
         held_items = []
+    if config.strength == 0:
+        copies = []
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
-                                          report=report, held_out=held_items)
+                                          report=report, held_out=held_items, copies=copies)
     if chosen is not None:
         summary.adaptation.update({k: chosen[k] for k in ("chosen_on", "held_out_recordings", "held_out_fit",
                                                           "held_out_speakers")})
@@ -611,6 +631,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "skipped": len(summary.skipped),
         "frames": summary.n_frames,
         "prior_weight": float(config.prior_weight),
+        "follow_copies": {"speeds": list(config.follow_speeds), "noise_copies": int(config.follow_noise_copies)},
         "passes": int(config.passes),
         "mean_transform": {("pause", "speech")[c]: how for c, how in sorted(transform.items())},
         "update_variances": bool(config.update_variances),
@@ -635,6 +656,26 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info, scorer=scorer)
     return model, summary
+
+
+def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool) -> list:
+    """Speed and noisy copies of the usable recordings for the following passes (none when
+    no following pass can run)."""
+    if config.strength == 0 or (config.strength is None and config.follow_passes == 0):
+        return []
+    out = []
+    if config.follow_speeds:
+        with warnings.catch_warnings():  # the recordings themselves were checked already
+            warnings.simplefilter("ignore")
+            out, _ = prepare_items(used, lexicon, start.units, start.features, jobs=config.jobs, quiet=quiet,
+                                   warps=(), speeds=config.follow_speeds)
+    if config.follow_noise_copies:
+        clean = [it for it in items if not it.background]
+        speaker = {u.path: u.speaker for u in used}
+        out += noisy_items(clean, [speaker[it.path] for it in clean],
+                           NoiseSettings(copies=config.follow_noise_copies, snr_db=(0.0, 25.0)), start.features,
+                           seed=config.seed, jobs=config.jobs, quiet=quiet)
+    return out
 
 
 def split_by_speaker(utterances, share: float, seed: int) -> list:
