@@ -116,6 +116,25 @@ def test_the_training_function_reuses_the_strength_chosen_on_held_out_recordings
     assert again.info["strength"]["chosen_on"] == "held-out" and f"{k} further pass" in summary.adapt_note
 
 
+def test_the_training_function_prepares_each_recording_once(shifted, monkeypatch):
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, _ = shifted
+    sizes = []
+    real = adapt_module.prepare_items
+
+    def counting(utterances, *args, **kwargs):
+        sizes.append(len(utterances))
+        return real(utterances, *args, **kwargs)
+
+    monkeypatch.setattr(adapt_module, "prepare_items", counting)
+    fit = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "follow_speeds": (0.9, 1.1)}))
+    fit(many[:40], held_out=many[40:50])
+    fit(many[:50])
+    # features and speed copies of each of the 50 recordings once, over both trainings
+    assert sum(sizes) == 50 + 50
+
+
 def test_strength_note_in_plain_words():
     info = {"follow_passes": 6, "speech_minutes": 17.0, "chosen_on": "held-out", "held_out_recordings": 40,
             "most_passes": 6}

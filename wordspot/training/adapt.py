@@ -46,9 +46,10 @@ from wordspot.errors import TrainingError
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
-from wordspot.training.backgrounds import check_share
 from wordspot.audio.augment import NoiseSettings
-from wordspot.training.data import prepare_items
+from wordspot.acoustic.graph import compose
+from wordspot.training.backgrounds import background_count, background_items, check_share
+from wordspot.training.data import chain_slots, prepare_items
 from wordspot.training.noise import noisy_items
 from wordspot.training.frame_labels import align_one
 from wordspot.training.items import CHUNK_SIZE
@@ -71,6 +72,7 @@ __all__ = [
     "split_by_speaker",
     "strength_info",
     "strength_note",
+    "ItemCache",
     "adapt",
     "adapting",
     "ADAPT_LEGEND",
@@ -536,7 +538,8 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 
 
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
-          manifest=None, quiet: bool = True, report=None, held_out=None) -> tuple[AcousticModel, TrainingSummary]:
+          manifest=None, quiet: bool = True, report=None, held_out=None,
+          cache: ItemCache | None = None) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
@@ -548,7 +551,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     ``held_out`` (utterances left out of ``utterances``, e.g. the calibration's) when
     given, else on ``config.held_out_share`` of the recordings held out by
     :func:`wordspot.corpus.split_by_recording`, after which all of them are adapted on
-    with the strength found.
+    with the strength found. ``cache`` keeps prepared recordings between calls.
 
     Raises
     ------
@@ -569,23 +572,21 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
             f"the lexicon uses unit(s) {', '.join(missing)} that the starting model does not have; "
             "use ARPAbet phones the starting model knows, or train with --from-scratch"
         )
-    items, skipped = prepare_items(utterances, lexicon, start.units, start.features, jobs=config.jobs,
-                                   quiet=quiet, background_share=config.background_share, seed=config.seed)
+    cache = cache if cache is not None else ItemCache()
+    items, skipped = _prepared(utterances, lexicon, start, config, quiet, cache)
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     held_items, chosen = [], None
     used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
-    copies = _copies(used, items, lexicon, start, config, quiet)
+    copies = _copies(used, items, lexicon, start, config, quiet, cache)
     by_speaker = len({u.speaker for u in used}) >= config.speakers_to_hold_out
     if by_speaker:
         held_out = None  # chosen on whole speakers held out below, not on takes of the same voices
     if held_out and config.strength is None and config.follow_passes > 0:
         held_utts = list(held_out)
         held_lex, _ = vocabulary_for({w for u in held_utts for w in u.words}, lexicon, start.lexicon)
-        with warnings.catch_warnings():  # a held-out file that cannot be used is only not used here
-            warnings.simplefilter("ignore")
-            held_items, _ = prepare_items([u for u in held_utts if set(u.words) <= set(held_lex.words)], held_lex,
-                                          start.units, start.features, jobs=config.jobs, quiet=True)
+        held_items, _ = cache.recordings([u for u in held_utts if set(u.words) <= set(held_lex.words)], held_lex,
+                                         start, config, True)
     elif held_out is None and config.strength is None and config.follow_passes > 0:
         if by_speaker:
             held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
@@ -658,17 +659,66 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     return model, summary
 
 
-def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool) -> list:
+class ItemCache:
+    """Prepared items of recordings, kept between the adaptations of one training run (the
+    calibration's first training, the choosing run and the training again on everything
+    share them), so each recording's features and speed copies are computed once."""
+
+    def __init__(self):
+        self.clean: dict = {}
+        self.skipped: dict = {}
+        self.copies: dict = {}
+
+    def recordings(self, utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig,
+                   quiet: bool) -> tuple[list, list]:
+        """(items, skipped) of ``utterances`` in their order, as ``prepare_items`` gives them,
+        without background items."""
+        missing = [u for u in utterances if (u.path, u.words) not in self.clean and u.path not in self.skipped]
+        if missing:
+            got, skipped = prepare_items(missing, lexicon, start.units, start.features, jobs=config.jobs, quiet=quiet)
+            self.clean.update({(it.path, it.words): it for it in got})
+            self.skipped.update({sk.path: sk for sk in skipped})
+        items = [self.clean[(u.path, u.words)] for u in utterances if (u.path, u.words) in self.clean]
+        skipped = [self.skipped[u.path] for u in utterances if u.path in self.skipped]
+        return items, skipped
+
+    def speed_copies(self, used, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig,
+                     quiet: bool) -> list:
+        """Speed copies (``config.follow_speeds``) of the usable recordings ``used``."""
+        missing = [u for u in used if (u.path, u.words) not in self.copies]
+        if missing:
+            with warnings.catch_warnings():  # the recordings themselves were checked already
+                warnings.simplefilter("ignore")
+                got, _ = prepare_items(missing, lexicon, start.units, start.features, jobs=config.jobs, quiet=quiet,
+                                       warps=(), speeds=config.follow_speeds)
+            for u in missing:
+                self.copies[(u.path, u.words)] = []
+            for it in got:
+                self.copies[(it.path, it.words)].append(it)
+        return [it for u in used for it in self.copies[(u.path, u.words)]]
+
+
+def _prepared(utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
+              cache: ItemCache) -> tuple[list, list]:
+    """The recordings' items (through ``cache``) and the background items, as
+    ``prepare_items(..., background_share=config.background_share, seed=config.seed)``."""
+    items, skipped = cache.recordings(utterances, lexicon, start, config, quiet)
+    count = background_count(len(items), config.background_share)
+    if count:
+        speaker = {u.path: u.speaker for u in utterances}
+        graph = compose(chain_slots((), lexicon, start.units), start.units)
+        items = items + background_items(count, [it.path for it in items], [speaker[it.path] for it in items],
+                                         graph, start.features, seed=config.seed, jobs=config.jobs, quiet=quiet)
+    return items, skipped
+
+
+def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
+            cache: ItemCache) -> list:
     """Speed and noisy copies of the usable recordings for the following passes (none when
     no following pass can run)."""
     if config.strength == 0 or (config.strength is None and config.follow_passes == 0):
         return []
-    out = []
-    if config.follow_speeds:
-        with warnings.catch_warnings():  # the recordings themselves were checked already
-            warnings.simplefilter("ignore")
-            out, _ = prepare_items(used, lexicon, start.units, start.features, jobs=config.jobs, quiet=quiet,
-                                   warps=(), speeds=config.follow_speeds)
+    out = cache.speed_copies(used, lexicon, start, config, quiet) if config.follow_speeds else []
     if config.follow_noise_copies:
         clean = [it for it in items if not it.background]
         speaker = {u.path: u.speaker for u in used}
@@ -733,13 +783,14 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
     ``takes_held_out``.
     """
     chosen: dict = {}
+    cache = ItemCache()
 
     def fit(utterances, held_out=None):
         cfg = config
         if held_out is None and config.strength is None and chosen:
             cfg = replace(config, strength=chosen["follow_passes"])
         model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest, quiet=quiet,
-                               report=report, held_out=held_out)
+                               report=report, held_out=held_out, cache=cache)
         if held_out is not None and config.strength is None:
             chosen.clear()
             chosen.update(model.info["strength"])
