@@ -21,6 +21,15 @@ Two steps, both over the same forward-backward statistics that training collects
    data a Gaussian keeps its prior; with much data it tends to the maximum-likelihood
    estimate. The prior is the (transformed) starting model throughout the passes.
 
+3. **Following passes: the strength.** Up to ``follow_passes`` more MAP passes, each with
+   the previous pass's model as its prior and a small weight, so that Gaussians with much
+   data move to what the data alone would give (means, variances, weights) and those with
+   little stay; they also learn from speed copies of the recordings. How many run is
+   decided by recordings held out of them (passes run while their log-likelihood a frame
+   rises): whole speakers when the recordings have three or more, else held-out takes
+   (docs/experiments/2026-12-02-adaptation-strength.md). The choice is then reused to
+   adapt on every recording.
+
 When the starting model has a state scorer (a network giving the posterior of every
 mixture id), the user's recordings are then aligned with the adapted mixtures and the
 network is tuned to those frames, with a penalty towards its own starting outputs
@@ -588,27 +597,9 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         held_items, _ = cache.recordings([u for u in held_utts if set(u.words) <= set(held_lex.words)], held_lex,
                                          start, config, True)
     elif held_out is None and config.strength is None and config.follow_passes > 0:
-        if by_speaker:
-            held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
-        else:
-            _, held_utts = split_by_recording(used, config.held_out_share, config.seed)
-        held_paths = {u.path for u in held_utts}
-        held_items = [it for it in items if not it.background and it.path in held_paths]
-        if sum(it.frames.shape[0] for it in held_items) >= config.min_held_out_frames:
-            rest = [it for it in items if it.background or it.path not in held_paths]
-            if report is not None:
-                what = (f"{len({u.speaker for u in held_utts})} speakers' {len(held_items)} recordings" if by_speaker
-                        else f"{len(held_items)} recordings")
-                report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} "
-                       "held out")
-            _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet,
-                                      report=report, held_out=held_items,
-                                      copies=[it for it in copies if it.path not in held_paths])
-            chosen = dict(first.adaptation, held_out_speakers=len({u.speaker for u in held_utts}) if by_speaker else 0)
+        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report)
+        if chosen is not None:
             config = replace(config, strength=chosen["strength"])
-            if report is not None:
-                report(f"adapting on all {len(used)} recordings with strength {chosen['strength']}")
-        held_items = []
     if config.strength == 0:
         copies = []
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
@@ -726,6 +717,30 @@ def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: Adaptat
                            NoiseSettings(copies=config.follow_noise_copies, snr_db=(0.0, 25.0)), start.features,
                            seed=config.seed, jobs=config.jobs, quiet=quiet)
     return out
+
+
+def _choose_on_split(items, used, copies, start: AcousticModel, config: AdaptationConfig, by_speaker: bool,
+                     quiet: bool, report) -> dict | None:
+    """The strength chosen by adapting on all but a held-out part of the recordings (whole
+    speakers when ``by_speaker``, else takes); None when that part is too short."""
+    if by_speaker:
+        held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
+    else:
+        _, held_utts = split_by_recording(used, config.held_out_share, config.seed)
+    held_paths = {u.path for u in held_utts}
+    held_items = [it for it in items if not it.background and it.path in held_paths]
+    if sum(it.frames.shape[0] for it in held_items) < config.min_held_out_frames:
+        return None
+    speakers = len({u.speaker for u in held_utts}) if by_speaker else 0
+    if report is not None:
+        what = f"{speakers} speakers' {len(held_items)} recordings" if by_speaker else f"{len(held_items)} recordings"
+        report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} held out")
+    rest = [it for it in items if it.background or it.path not in held_paths]
+    _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet, report=report,
+                              held_out=held_items, copies=[it for it in copies if it.path not in held_paths])
+    if report is not None:
+        report(f"adapting on all {len(used)} recordings with strength {first.adaptation['strength']}")
+    return dict(first.adaptation, held_out_speakers=speakers)
 
 
 def split_by_speaker(utterances, share: float, seed: int) -> list:
