@@ -49,8 +49,15 @@ out of a first training, recognised, and a logistic regression learns from them 
 often a word with given scores is right; the model is then trained again on everything
 (adapting; from scratch the first model is kept unless --refit) and stores the fit, so
 `wordspot recognize` reports each word's confidence as the probability that it is right.
-With too few takes for that (fewer than 20 held out), an adapted model keeps the
-calibration its starting model carries, if any, and the summary says so.
+When transcripts rarely repeat (sentences, one take per word), 15% of the whole set is
+held out instead, or, still too few, five parts each held out once. With fewer than 20
+recordings in all, an adapted model keeps the calibration its starting model carries, if
+any. The summary's last line says which calibration the model got.
+
+Adapting runs, after the weighted pass, up to 6 further passes in which your recordings
+(and copies of them played 10% faster and slower) take over, as many as make recordings
+held out of them fit better: whole speakers when there are three or more, else held-out
+takes. The summary says how strongly the model was adapted and why; --strength N fixes it.
 """
 
 
