@@ -89,12 +89,10 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
             return _train(utts, lex, settings=features, config=config or TrainingConfig(), manifest=manifest,
                           quiet=quiet)
     else:
-        from wordspot.training.adapt import AdaptationConfig, adapt
+        from wordspot.training.adapt import AdaptationConfig, adapting
 
         start_model = _model(start)
-
-        def fit(utts):
-            return adapt(utts, lex, start_model, config=config or AdaptationConfig(), manifest=manifest, quiet=quiet)
+        fit = adapting(start_model, lex, config=config or AdaptationConfig(), manifest=manifest, quiet=quiet)
     if calibration is False or calibration is None:
         model, _summary = fit(utterances)
     else:

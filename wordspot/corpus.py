@@ -23,11 +23,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Sequence
 
+import numpy as np
+
 from wordspot.errors import ManifestError
 from wordspot.language.lexicon import invalid_word_character
 from wordspot.util.textfile import csv_with_header, read_user_text
 
-__all__ = ["Utterance", "read_manifest", "check_manifest", "MAX_LISTED_PROBLEMS"]
+__all__ = ["Utterance", "read_manifest", "check_manifest", "split_by_recording", "MAX_LISTED_PROBLEMS"]
 
 #: At most this many problems are spelled out in one error; the rest are counted.
 MAX_LISTED_PROBLEMS = 20
@@ -173,3 +175,32 @@ def check_manifest(utterances: Sequence[Utterance], lexicon, *, manifest=None) -
         words = " ".join(list(unknown)[:10])
         hint = f"\nadd the missing words to the lexicon: `wordspot lexicon suggest {words}` prints lines to paste"
     raise ManifestError(f"{name}: {len(problems)} problem(s):\n  {_limit(problems)}{hint}")
+
+
+def split_by_recording(utterances: Sequence, share: float, seed: int = 0) -> tuple[list, list]:
+    """(kept part, held-out part) of ``utterances``, both in manifest order, by recording.
+
+    About ``share`` of every speaker's recordings are held out (rounded at random so that
+    the expected number is exact), spread evenly over the speaker's recordings in a seeded
+    random order, whatever their transcripts; at least one recording stays in the kept
+    part. For recordings whose transcripts do not repeat (sentences, one take per word),
+    where a split per transcript holds nothing out.
+    """
+    rng = np.random.default_rng([seed, 0x7265636F])
+    by_speaker: dict[str, list[int]] = {}
+    for i, u in enumerate(utterances):
+        by_speaker.setdefault(u.speaker, []).append(i)
+    held: set[int] = set()
+    for speaker in sorted(by_speaker):
+        members = by_speaker[speaker]
+        n = len(members)
+        k = min(int(share * n + rng.random()), n)
+        if k <= 0:
+            continue
+        order = [members[j] for j in rng.permutation(n)]
+        offset = rng.random()
+        held.update(order[int((j + offset) * n / k)] for j in range(k))
+    if held and len(held) == len(utterances):
+        held.discard(max(held))
+    return ([u for i, u in enumerate(utterances) if i not in held],
+            [u for i, u in enumerate(utterances) if i in held])

@@ -197,13 +197,10 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
 
         if system == "adapted":
-            from wordspot.training.adapt import AdaptationConfig, adapt
+            from wordspot.training.adapt import AdaptationConfig, adapting
 
-            starter = load_model("starter")
-
-            def fit(utts):
-                return adapt(utts, lexicon, starter, config=AdaptationConfig(jobs=jobs), manifest=folder / "train.csv",
-                             quiet=quiet, report=None if quiet else say)
+            fit = adapting(load_model("starter"), lexicon, config=AdaptationConfig(jobs=jobs),
+                           manifest=folder / "train.csv", quiet=quiet, report=None if quiet else say)
         else:
             from wordspot.training.trainer import TrainingConfig, train
 
@@ -213,7 +210,8 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         # as `wordspot train` does: calibrated confidences, fitted on held-out recordings
         began = time.perf_counter()
         model, _summary = train_calibrated(fit, train_utts, config=CalibrationConfig().decided(
-            adapting=system == "adapted"), quiet=quiet, report=None if quiet else say)
+            adapting=system == "adapted"), quiet=quiet, report=None if quiet else say,
+            fallback=getattr(fit, "start_calibration", None))
         seconds = time.perf_counter() - began
     model_file = out_dir / f"bakery-{system}.model"
     save_model(model, model_file)

@@ -132,7 +132,7 @@ def test_too_few_recordings_train_once_without_calibration(rng):
         return model, None
 
     utts = _utterances(speakers=2, takes=3)
-    with pytest.warns(TrainingWarning, match=r"calibration skipped: holding out 15% .* gives \d+, fewer than the 20"):
+    with pytest.warns(TrainingWarning, match=r"calibration skipped: 18 recordings are fewer than the 20 needed"):
         out, _ = train_calibrated(fake_train, utts)
     assert calls == [len(utts)] and out.calibration is None
 
@@ -274,3 +274,54 @@ def test_jumbled_speech_adds_only_wrong_words_and_is_seeded():
 def test_bad_number_of_jumbled_clips_is_refused(n):
     with pytest.raises(TrainingError, match="number of jumbled clips"):
         CalibrationConfig(jumbled=n)
+
+
+def _unique_utterances(n=60, speakers=3):
+    """Recordings whose transcripts never repeat (one take of each sentence)."""
+    return [Utterance(Path(f"sentence-{i}.wav"), (WORDS[i % 3],) * (1 + i // 3), f"baker-{i % speakers}", i + 2)
+            for i in range(n)]
+
+
+def test_unique_transcripts_are_held_out_across_the_whole_set():
+    utts = _unique_utterances(150)
+    assert split_held_out(utts, 0.15)[1] == []  # per transcript: nothing to hold out
+    parts, how = calibrate.held_out_parts(utts, CalibrationConfig())
+    assert how == "across the set" and len(parts) == 1
+    rest, held = parts[0]
+    assert sorted(u.row for u in rest + held) == [u.row for u in utts]
+    # 15% of each speaker's 50, rounded at random: 7 or 8 of each
+    assert all(Counter(u.speaker for u in held)[s] in (7, 8) for s in ("baker-0", "baker-1", "baker-2"))
+
+
+def test_too_few_for_a_share_hold_out_every_recording_once_in_folds():
+    utts = _unique_utterances(60)
+    parts, how = calibrate.held_out_parts(utts, CalibrationConfig())
+    assert how == "folds" and len(parts) == calibrate.CALIBRATION_FOLDS
+    held_rows = sorted(u.row for _, held in parts for u in held)
+    assert held_rows == [u.row for u in utts]  # each recording held out exactly once
+    for rest, held in parts:
+        assert not {u.row for u in rest} & {u.row for u in held}
+        assert len(rest) + len(held) == len(utts)
+    assert calibrate.held_out_parts(utts, CalibrationConfig()) == (parts, how)  # seeded
+    assert calibrate.held_out_parts(utts[:19], CalibrationConfig()) == ([], "too few")
+
+
+def test_unique_transcripts_still_give_a_calibration(rng, monkeypatch):
+    utts = _unique_utterances(60)
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    calls = []
+
+    def fake_train(part, held_out=None):
+        calls.append((len(part), None if held_out is None else len(held_out)))
+        return replace(model, info={"call": len(calls)}), None
+
+    fake_train.takes_held_out = True
+    monkeypatch.setattr(calibrate, "calibration_examples", lambda m, held, **_: _examples(4, 5, recordings=len(held)))
+    lines = []
+    out, _ = train_calibrated(fake_train, utts, config=CalibrationConfig(refit=True), report=lines.append)
+    # five folds, each trained with its held-out part handed in, then once on everything
+    assert calls == [(48, 12)] * 5 + [(60, None)]
+    assert out.calibration is not None and out.info["calibration"]["held_out"] == "folds"
+    assert out.info["calibration"]["held_out_recordings"] == 60 and out.info["calibration"]["right_words"] == 20
+    assert "each held out once in 5 folds" in calibrate.calibration_note(out)
+    assert lines[0].startswith("confidence calibration: fold 1 of 5")

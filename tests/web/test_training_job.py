@@ -31,7 +31,8 @@ def _progress(lines):
 
 
 def test_progress_counts_both_trainings_of_a_calibrated_adaptation():
-    passes = AdaptationConfig().passes + int(AdaptationConfig().mean_transform)
+    # the most passes an adaptation may take (the strength is chosen as it goes)
+    passes = AdaptationConfig().passes + int(AdaptationConfig().mean_transform) + AdaptationConfig().follow_passes
     first = ["confidence calibration: training on 80 recordings, 14 held out"]
     first += [ADAPT_LEGEND] + [f"adapt pass {k}  fit -40.0" for k in range(1, passes + 1)]
     # worked by hand: all passes of the first of two trainings are half the run, one more a

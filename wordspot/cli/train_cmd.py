@@ -8,10 +8,10 @@ import os
 from wordspot.corpus import read_manifest
 from wordspot.audio.features import FeatureSettings
 from wordspot.errors import FeatureError, TrainingError
-from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
+from wordspot.evaluation.calibrate import CalibrationConfig, calibration_note, train_calibrated
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
-from wordspot.training.adapt import AdaptationConfig, adapt
+from wordspot.training.adapt import AdaptationConfig, adapting
 from wordspot.training.trainer import TrainingConfig, train
 from wordspot.training.workers import end_with_starter
 
@@ -49,8 +49,15 @@ out of a first training, recognised, and a logistic regression learns from them 
 often a word with given scores is right; the model is then trained again on everything
 (adapting; from scratch the first model is kept unless --refit) and stores the fit, so
 `wordspot recognize` reports each word's confidence as the probability that it is right.
-With too few takes for that (fewer than 20 held out), an adapted model keeps the
-calibration its starting model carries, if any, and the summary says so.
+When transcripts rarely repeat (sentences, one take per word), 15% of the whole set is
+held out instead, or, still too few, five parts each held out once. With fewer than 20
+recordings in all, an adapted model keeps the calibration its starting model carries, if
+any. The summary's last line says which calibration the model got.
+
+Adapting runs, after the weighted pass, up to 6 further passes in which your recordings
+(and copies of them played 10% faster and slower) take over, as many as make recordings
+held out of them fit better: whole speakers when there are three or more, else held-out
+takes. The summary says how strongly the model was adapted and why; --strength N fixes it.
 """
 
 
@@ -105,6 +112,10 @@ def add_parser(sub, **options):
                        f"(default {AdaptationConfig.prior_weight:g}; larger keeps closer to the start)")
     start.add_argument("--adapt-passes", type=_positive, default=AdaptationConfig.passes, metavar="N",
                        help=f"adaptation passes (default {AdaptationConfig.passes})")
+    start.add_argument("--strength", type=_count, default=None, metavar="N",
+                       help="further passes in which your recordings take over from the starting model "
+                       "(0: the weighted pass only; default: as many as improve the fit of recordings "
+                       f"held out to check, at most {AdaptationConfig.follow_passes})")
     start.add_argument("--no-mean-transform", action="store_true",
                        help="skip the shared transform that first moves every phone towards your voice")
     start.add_argument("--adapt-variances", action="store_true", help="also adapt the variances")
@@ -198,6 +209,7 @@ def _run(args) -> int:
         say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
     for line in summary.lines():
         say(line)
+    say(calibration_note(model))
     path = save_model(model, args.out)
     print(f"wrote {os.fspath(path)} ({summary.used} recordings, {what}, {summary.seconds:.1f} s)")
     return 0
@@ -246,12 +258,9 @@ def _adapted(args, lexicon, say):
         )
     config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
                               mean_transform=not args.no_mean_transform,
-                              update_variances=args.adapt_variances, jobs=args.jobs,
+                              update_variances=args.adapt_variances, jobs=args.jobs, strength=args.strength,
                               **({"scorer": None} if args.keep_starter_scorer else {}), **_share(args))
 
-    def fit(utterances):
-        return adapt(utterances, lexicon, start, config=config, manifest=args.manifest,
-                     quiet=args.quiet, report=say)
+    return adapting(start, lexicon, config=config, manifest=args.manifest, quiet=args.quiet, report=say), \
+        f"adapted from {name}"
 
-    fit.start_calibration = getattr(start, "calibration", None)  # kept when the takes are too few for one
-    return fit, f"adapted from {name}"

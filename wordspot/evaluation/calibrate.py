@@ -51,6 +51,9 @@ __all__ = [
     "fit_calibration",
     "CALIBRATION_POSTERIOR_MEASURES",
     "calibration_measures",
+    "held_out_parts",
+    "CALIBRATION_FOLDS",
+    "calibration_note",
     "train_calibrated",
 ]
 
@@ -394,6 +397,63 @@ def _keep_fallback(model, fallback, why: str, say):
         "kept_from_start": True, "reason": why}})
 
 
+#: Folds when even a split across the whole set holds out too few recordings: every
+#: recording is held out once, from a model trained on the other folds.
+CALIBRATION_FOLDS = 5
+
+
+def held_out_parts(utterances: Sequence, config: CalibrationConfig) -> tuple[list[tuple[list, list]], str]:
+    """The (training part, held-out part) pairs to calibrate on, and how they were made.
+
+    In order of preference: ``config.held_out_share`` of each transcript's recordings
+    (:func:`split_held_out`, "per transcript"); when that holds out fewer than
+    ``config.min_items`` (transcripts that rarely repeat: sentences, one take per word),
+    the same share of the whole set by recording, every speaker alike
+    (:func:`wordspot.corpus.split_by_recording`, "across the set"); when that too is short,
+    :data:`CALIBRATION_FOLDS` folds, so that every recording is held out once ("folds");
+    with fewer than ``config.min_items`` recordings in all, none ("too few").
+    """
+    from wordspot.corpus import split_by_recording
+
+    rest, held = split_held_out(utterances, config.held_out_share, config.seed)
+    if len(held) >= config.min_items:
+        return [(rest, held)], "per transcript"
+    rest, held = split_by_recording(utterances, config.held_out_share, config.seed)
+    if len(held) >= config.min_items:
+        return [(rest, held)], "across the set"
+    n = len(utterances)
+    if n < max(config.min_items, CALIBRATION_FOLDS):
+        return [], "too few"
+    # every speaker's recordings dealt round the folds in a seeded order
+    rng = np.random.default_rng([config.seed, 0x666F6C64])
+    fold = np.empty(n, dtype=np.int64)
+    k = 0
+    for speaker in sorted({u.speaker for u in utterances}):
+        members = [i for i, u in enumerate(utterances) if u.speaker == speaker]
+        for i in rng.permutation(members):
+            fold[i] = k % CALIBRATION_FOLDS
+            k += 1
+    return [([u for i, u in enumerate(utterances) if fold[i] != f], [u for i, u in enumerate(utterances) if fold[i] == f])
+            for f in range(CALIBRATION_FOLDS)], "folds"
+
+
+def _merged(parts: list[CalibrationExamples]) -> CalibrationExamples:
+    """The examples of several held-out parts as one set."""
+    if len(parts) == 1:
+        return parts[0]
+    return CalibrationExamples(
+        np.concatenate([p.measures.reshape(-1, len(MEASURE_NAMES)) for p in parts]),
+        np.concatenate([p.right for p in parts]), np.concatenate([p.own_words_removed for p in parts]),
+        np.concatenate([p.jumbled for p in parts]), sum(p.recordings for p in parts),
+        [f for p in parts for f in p.failed])
+
+
+def _trained(train: Callable, rest, held):
+    """``train(rest)``; a training function that can use them (adapting: to choose its
+    strength) gets the held-out part too."""
+    return train(rest, held_out=held) if getattr(train, "takes_held_out", False) else train(rest)
+
+
 def train_calibrated(train: Callable, utterances: Sequence, *, config: CalibrationConfig = CalibrationConfig(),
                      quiet: bool = True, report: Callable[[str], None] | None = None, fallback=None):
     """Train with ``train(utterances) -> (model, summary)`` and store a fitted calibration.
@@ -402,6 +462,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     False). Returns what the last
     call of ``train`` returned, its model carrying the calibration (or none, with a warning,
     when there was too little to fit on) and ``info["calibration"]`` describing the fit.
+    The held-out recordings come from :func:`held_out_parts`; with folds, ``train`` runs
+    once per fold and the calibration is fitted on every fold's examples.
 
     ``fallback``: the starting model's calibration (a starter's, fitted on many voices), kept
     instead when the held-out recordings are too few to fit one (said through ``report``,
@@ -409,25 +471,34 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     """
     say = report or (lambda line: None)
     utterances = list(utterances)
-    rest, held = split_held_out(utterances, config.held_out_share, config.seed)
-    if len(held) < config.min_items:
-        why = (f"holding out {config.held_out_share:.0%} of each transcript's recordings gives {len(held)}, "
-               f"fewer than the {config.min_items} needed to fit one for your voice")
+    parts, how = held_out_parts(utterances, config)
+    if not parts:
+        why = (f"{len(utterances)} recordings are fewer than the {config.min_items} needed to hold out "
+               "enough to fit one for your voice")
         model, summary = train(utterances)
         if _fallback_usable(fallback, model):
             return _keep_fallback(model, fallback, why, say), summary
         warnings.warn(
-            f"confidence calibration skipped: {why} (record more takes, or raise the held-out "
-            "share, --calibration-share); word confidences stay rough scores, not probabilities "
-            "(the uncalibrated heuristic)",
+            f"confidence calibration skipped: {why} (record more takes); word confidences stay rough "
+            "scores, not probabilities (the uncalibrated heuristic)",
             TrainingWarning,
             stacklevel=2,
         )
         return model, summary
-    say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out")
-    model, summary = train(rest)
-    examples = calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
-                                    backwards=config.backwards, jumbled=config.jumbled, seed=config.seed)
+    examples = []
+    jumbled = config.jumbled if len(parts) == 1 else -(-config.jumbled // len(parts))
+    for f, (rest, held) in enumerate(parts):
+        if how == "folds":
+            say(f"confidence calibration: fold {f + 1} of {len(parts)}: training on {len(rest)} recordings, "
+                f"{len(held)} held out (too few recordings to hold out a share once)")
+        else:
+            say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out"
+                + (" across the whole set (transcripts rarely repeat)" if how == "across the set" else ""))
+        model, summary = _trained(train, rest, held)
+        examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,
+                                             speeds=config.speeds, backwards=config.backwards, jumbled=jumbled,
+                                             seed=config.seed + f))
+    examples = _merged(examples)
     calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))
     n_right = int(examples.right.sum())
     n_jumbled = int(examples.jumbled.sum())
@@ -445,11 +516,29 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     model = replace(model, calibration=calibration,
                     info={**model.info, "calibration": {
                         "held_out_share": config.held_out_share, "seed": config.seed,
+                        "held_out": how, "folds": len(parts),
                         "held_out_recordings": examples.recordings, "right_words": n_right,
                         "wrong_words": int(examples.right.size - n_right),
                         "wrong_with_own_words_removed": n_removed,
                         "wrong_in_jumbled_speech": n_jumbled,
-                        "jumbled_clips": config.jumbled,
+                        "jumbled_clips": jumbled * len(parts),
                         "measures": list(calibration.names),
                         "refit_on_all": bool(config.refit)}})
     return model, summary
+
+
+def calibration_note(model) -> str:
+    """Which calibration ``model`` carries, in one plain sentence for the training summary."""
+    info = model.info.get("calibration") or {}
+    if model.calibration is None:
+        return "word confidences: no calibration (rough scores, not probabilities)"
+    if info.get("kept_from_start"):
+        return ("word confidences: the starting model's calibration, fitted on many voices when it was made "
+                f"({info.get('reason', 'too few takes for your own')})")
+    if not info:
+        return "word confidences: the calibration the model already carried"
+    words = int(info.get("right_words", 0)) + int(info.get("wrong_words", 0))
+    how = {"per transcript": "", "across the set": ", chosen across the whole set",
+           "folds": f", each held out once in {info.get('folds')} folds"}.get(info.get("held_out", ""), "")
+    return (f"word confidences: calibrated on your own recordings, {words} words heard in "
+            f"{info.get('held_out_recordings')} held-out recordings{how}")

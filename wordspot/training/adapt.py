@@ -21,6 +21,15 @@ Two steps, both over the same forward-backward statistics that training collects
    data a Gaussian keeps its prior; with much data it tends to the maximum-likelihood
    estimate. The prior is the (transformed) starting model throughout the passes.
 
+3. **Following passes: the strength.** Up to ``follow_passes`` more MAP passes, each with
+   the previous pass's model as its prior and a small weight, so that Gaussians with much
+   data move to what the data alone would give (means, variances, weights) and those with
+   little stay; they also learn from speed copies of the recordings. How many run is
+   decided by recordings held out of them (passes run while their log-likelihood a frame
+   rises): whole speakers when the recordings have three or more, else held-out takes
+   (docs/experiments/2026-12-02-adaptation-strength.md). The choice is then reused to
+   adapt on every recording.
+
 When the starting model has a state scorer (a network giving the posterior of every
 mixture id), the user's recordings are then aligned with the adapted mixtures and the
 network is tuned to those frames, with a penalty towards its own starting outputs
@@ -32,21 +41,25 @@ from __future__ import annotations
 
 import datetime as _dt
 import time
-from dataclasses import dataclass
+import warnings
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from wordspot import __version__
 from wordspot.acoustic.gmm import Mixtures, MixtureStats, scoring_matrix
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
-from wordspot.corpus import check_manifest
+from wordspot.corpus import check_manifest, split_by_recording
 from wordspot.audio.band import check_training_band
 from wordspot.errors import TrainingError
 from wordspot.language.grammar import count_bigrams
 from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
-from wordspot.training.backgrounds import check_share
-from wordspot.training.data import prepare_items
+from wordspot.audio.augment import NoiseSettings
+from wordspot.acoustic.graph import compose
+from wordspot.training.backgrounds import background_count, background_items, check_share
+from wordspot.training.data import chain_slots, prepare_items
+from wordspot.training.noise import noisy_items
 from wordspot.training.frame_labels import align_one
 from wordspot.training.items import CHUNK_SIZE
 from wordspot.training.scorer_adapt import ScorerAdaptConfig, adapt_scorer
@@ -64,7 +77,13 @@ __all__ = [
     "adapt_items",
     "align_for_scorer",
     "tune_scorer",
+    "held_out_fit",
+    "split_by_speaker",
+    "strength_info",
+    "strength_note",
+    "ItemCache",
     "adapt",
+    "adapting",
     "ADAPT_LEGEND",
 ]
 
@@ -107,6 +126,40 @@ class AdaptationConfig:
     scorer : ScorerAdaptConfig or None
         How to tune the starting model's state scorer to the recordings (when it has
         one); None keeps the starting model's scorer unchanged.
+    follow_passes : int >= 0
+        Most passes, after MAP, in which the recordings take over: each is a MAP update
+        whose prior is the previous pass's model with weight ``follow_weight``, so the
+        Gaussians with much data move towards the maximum-likelihood estimate pass by pass
+        (means, variances, weights) while those with little keep close to the start.
+        How many of them run is the *strength*, chosen on held-out recordings
+        (:func:`adapt_items`); 0 is the fixed-strength MAP alone.
+    follow_weight : float > 0
+        ``tau`` of each following pass, relative to the previous pass's model.
+    follow_variances : bool
+        The following passes also update the variances (else means and weights only).
+    follow_speeds : tuple of float
+        Speed copies of every recording (as ``TrainingConfig.speed_factors``, without 1)
+        that take part in the following passes; () none.
+    follow_noise_copies : int >= 0
+        Noisy copies of every recording (as ``TrainingConfig.noise_copies``, 0-25 dB SNR)
+        that take part in the following passes.
+    strength : int or None
+        Run exactly this many following passes (at most ``follow_passes``); None: choose
+        them on held-out recordings by their log-likelihood a frame.
+    held_out_share : float in (0, 1)
+        Share of the recordings (by recording, every speaker alike) held out to choose the
+        strength when no held-out recordings are handed in.
+    min_held_out_frames : int >= 0
+        Fewest frames of held-out speech to choose on; with fewer the strength is 0.
+    speakers_to_hold_out : int >= 2
+        With recordings of at least this many speakers, the strength is chosen on whole
+        speakers held out (``held_out_speaker_share`` of them, at least one): the model is
+        to serve voices like these, and on the dev voices the fit of held-out takes of the
+        same voices kept rising while unheard voices were recognised worse
+        (docs/experiments/2026-12-02-adaptation-strength.md). With fewer speakers (one
+        person's own voice) held-out recordings of the same speakers decide.
+    held_out_speaker_share : float in (0, 1)
+        Share of the speakers held out in that case.
     """
 
     prior_weight: float = 300.0
@@ -119,6 +172,16 @@ class AdaptationConfig:
     background_share: float = 0.1
     seed: int = 0
     scorer: ScorerAdaptConfig | None = ScorerAdaptConfig()
+    follow_passes: int = 6
+    follow_weight: float = 10.0
+    follow_variances: bool = True
+    follow_speeds: tuple[float, ...] = (0.9, 1.1)
+    follow_noise_copies: int = 0
+    strength: int | None = None
+    held_out_share: float = 0.1
+    min_held_out_frames: int = 1000
+    speakers_to_hold_out: int = 3
+    held_out_speaker_share: float = 0.25
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -130,6 +193,25 @@ class AdaptationConfig:
         if not self.min_transform_frames > 0 or self.prune < 0:
             raise TrainingError("min_transform_frames must be > 0 and prune >= 0")
         object.__setattr__(self, "background_share", check_share(self.background_share))
+        speeds = tuple(self.follow_speeds)
+        if any(isinstance(f, bool) or not isinstance(f, (int, float)) or not 0.5 <= f <= 2.0 or f == 1.0
+               for f in speeds) or len(set(speeds)) != len(speeds):
+            raise TrainingError(f"follow_speeds must be distinct factors from 0.5 to 2 other than 1 "
+                                f"(e.g. 0.9 1.1), got {self.follow_speeds!r}")
+        object.__setattr__(self, "follow_speeds", tuple(float(f) for f in speeds))
+        for name in ("follow_passes", "min_held_out_frames", "follow_noise_copies") + (("strength",) if self.strength is not None else ()):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
+                raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
+        if not (np.isfinite(self.follow_weight) and self.follow_weight > 0):
+            raise TrainingError(f"follow_weight must be a number > 0 (the default is 10), got {self.follow_weight!r}")
+        for name in ("held_out_share", "held_out_speaker_share"):
+            h = getattr(self, name)
+            if isinstance(h, bool) or not isinstance(h, (int, float)) or not 0.0 < h < 1.0:
+                raise TrainingError(f"{name} must be between 0 and 1 (e.g. 0.1), got {h!r}")
+        v = self.speakers_to_hold_out
+        if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 2:
+            raise TrainingError(f"speakers_to_hold_out must be a whole number >= 2, got {v!r}")
         if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
             raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
 
@@ -264,15 +346,57 @@ def _transformed(mix: Mixtures, stats: MixtureStats, classes: np.ndarray, min_fr
 # ------------------------------------------------------------------ the loop
 
 
+def _map_update(prior: Mixtures, st: MixtureStats, tau: float, update_variances: bool,
+                floor: np.ndarray) -> Mixtures:
+    """One MAP update of ``prior`` from summed statistics (components switched off stay off)."""
+    means = map_means(prior.means, st.occupancy, st.first, tau)
+    weights = map_weights(prior.weights, st.occupancy, tau)
+    variances = prior.variances
+    if update_variances:
+        variances = map_variances(prior.means, prior.variances, means, st.occupancy, st.second, tau, floor)
+    # a component the starting model had switched off (weight 0) stays off
+    seen = st.occupancy.sum(axis=1) > 0
+    off = seen[:, None] & (prior.weights <= 0)
+    if off.any():
+        weights = np.where(off, 0.0, weights)
+        weights[seen] /= weights[seen].sum(axis=1, keepdims=True)
+    return Mixtures(weights, means, variances)
+
+
+def _chunks(items) -> list:
+    return [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
+
+
+def held_out_fit(items, units: UnitSet, mix: Mixtures, *, jobs: int = 1, prune: float = 0.0) -> float:
+    """Log-likelihood a frame of ``items`` (each under its own transcript's chain) with ``mix``;
+    -inf when some item has no path."""
+    res = pass_statistics(_chunks(items), mix, units, jobs=jobs, quiet=True, prune=prune, label="held-out")
+    if not np.isfinite(res.loglik).all():
+        return float("-inf")
+    return float(res.loglik.sum() / sum(it.frames.shape[0] for it in items))
+
+
 def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfig = AdaptationConfig(),
-                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None):
+                variance_floor: np.ndarray | None = None, quiet: bool = True, report=None, held_out=None,
+                copies=None):
     """Adapt ``mix`` to prepared utterances (units and transitions stay as they are).
+
+    First the shared transform and ``config.passes`` MAP passes with weight
+    ``config.prior_weight``; then up to ``config.follow_passes`` passes in which the data
+    take over (MAP with the previous pass as the prior, weight ``config.follow_weight``).
+    ``config.strength`` fixes their number; when it is None and ``held_out`` (prepared
+    items of recordings left out of ``items``) holds at least ``config.min_held_out_frames``
+    frames, they run while the held-out log-likelihood a frame rises, and the best model on
+    the held-out items is kept; otherwise none runs. ``copies`` (speed or noisy copies of
+    the recordings among ``items``) take part in the following passes only.
 
     Returns
     -------
     mixtures : Mixtures
     summary : TrainingSummary
-        ``passes`` holds the log-likelihood per frame of each statistics pass.
+        ``passes`` holds the log-likelihood per frame of each statistics pass;
+        ``adaptation`` the strength (following passes kept), how it was chosen and the
+        held-out fit after each pass.
     transform : dict
         Per regression class (0 pause, 1 speech): "full", "bias" or "none".
     """
@@ -284,14 +408,21 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     prior = mix
     transform: dict = {}
     n_frames = sum(it.frames.shape[0] for it in items)
-    chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
-    total_passes = config.passes + int(config.mean_transform)
+    chunks = _chunks(items)
+    follow = sorted(items + list(copies or []), key=lambda it: it.words)
+    follow_chunks = _chunks(follow) if copies else chunks
+    n_follow = sum(it.frames.shape[0] for it in follow)
+    held = sorted(held_out or [], key=lambda it: it.words)
+    held_frames = sum(it.frames.shape[0] for it in held)
+    choose = config.strength is None and held_frames >= config.min_held_out_frames and config.follow_passes > 0
+    most = config.strength if config.strength is not None else (config.follow_passes if choose else 0)
+    total_passes = config.passes + int(config.mean_transform) + most
 
-    def stats_pass(current, k):
-        res = pass_statistics(chunks, current, units, jobs=config.jobs, quiet=quiet, prune=config.prune,
-                              label=f"adapt {k}/{total_passes}")
+    def stats_pass(current, k, following=False):
+        res = pass_statistics(follow_chunks if following else chunks, current, units, jobs=config.jobs,
+                              quiet=quiet, prune=config.prune, label=f"adapt {k}/{total_passes}")
         ok = np.isfinite(res.loglik)
-        avg = float(res.loglik[ok].sum() / n_frames) if ok.any() else float("-inf")
+        avg = float(res.loglik[ok].sum() / (n_follow if following else n_frames)) if ok.any() else float("-inf")
         summary.passes.append((int(current.n_components), avg))
         if report is not None:
             if k == 1:
@@ -310,24 +441,37 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     for _ in range(config.passes):
         k += 1
         res = stats_pass(current, k)
-        st = res.stats
-        means = map_means(prior.means, st.occupancy, st.first, config.prior_weight)
-        weights = map_weights(prior.weights, st.occupancy, config.prior_weight)
-        variances = prior.variances
-        if config.update_variances:
-            variances = map_variances(prior.means, prior.variances, means, st.occupancy, st.second,
-                                      config.prior_weight, floor)
-        # a component the starting model had switched off (weight 0) stays off
-        seen = st.occupancy.sum(axis=1) > 0
-        off = seen[:, None] & (prior.weights <= 0)
-        if off.any():
-            weights = np.where(off, 0.0, weights)
-            weights[seen] /= weights[seen].sum(axis=1, keepdims=True)
-        current = Mixtures(weights, means, variances)
+        current = _map_update(prior, res.stats, config.prior_weight, config.update_variances, floor)
+    held_fits: list[float] = []
+    if choose:
+        held_fits.append(held_out_fit(held, units, current, jobs=config.jobs, prune=config.prune))
+        if report is not None:
+            report(f"  held-out fit {held_fits[-1]:.4f} ({len(held)} recordings)")
+    best, strength = current, 0
+    for j in range(1, most + 1):
+        k += 1
+        res = stats_pass(current, k, following=True)
+        current = _map_update(current, res.stats, config.follow_weight, config.follow_variances, floor)
+        if not choose:
+            best, strength = current, j
+            continue
+        held_fits.append(held_out_fit(held, units, current, jobs=config.jobs, prune=config.prune))
+        if report is not None:
+            report(f"  held-out fit {held_fits[-1]:.4f}")
+        if held_fits[-1] <= max(held_fits[:-1]):
+            break  # the held-out recordings fit worse: the data have taken over far enough
+        best, strength = current, j
     summary.count(items)
     summary.n_frames = int(n_frames)
     summary.frames_per_unit = {name: float(res.unit_frames[u]) for u, name in enumerate(units.names)}
-    return current, summary, transform
+    summary.adaptation = {
+        "strength": int(strength),
+        "chosen_on": ("held-out" if choose else "given" if config.strength is not None else "too little held out"),
+        "held_out_recordings": len(held) if choose else 0,
+        "held_out_fit": [round(v, 4) for v in held_fits],
+        "speech_frames": int(sum(it.frames.shape[0] for it in items if not it.background)),
+    }
+    return best, summary, transform
 
 
 def align_for_scorer(items, mix: Mixtures) -> tuple[list, list]:
@@ -403,12 +547,20 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 
 
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
-          manifest=None, quiet: bool = True, report=None) -> tuple[AcousticModel, TrainingSummary]:
+          manifest=None, quiet: bool = True, report=None, held_out=None,
+          cache: ItemCache | None = None) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
     the starting model stays available for words added later. Transcript words missing
     from ``lexicon`` are taken from ``start``'s lexicon when it has them.
+
+    The strength (how many passes let the recordings take over, see
+    :func:`adapt_items`) is ``config.strength`` when given; else it is chosen on
+    ``held_out`` (utterances left out of ``utterances``, e.g. the calibration's) when
+    given, else on ``config.held_out_share`` of the recordings held out by
+    :func:`wordspot.corpus.split_by_recording`, after which all of them are adapted on
+    with the strength found. ``cache`` keeps prepared recordings between calls.
 
     Raises
     ------
@@ -429,12 +581,32 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
             f"the lexicon uses unit(s) {', '.join(missing)} that the starting model does not have; "
             "use ARPAbet phones the starting model knows, or train with --from-scratch"
         )
-    items, skipped = prepare_items(utterances, lexicon, start.units, start.features, jobs=config.jobs,
-                                   quiet=quiet, background_share=config.background_share, seed=config.seed)
+    cache = cache if cache is not None else ItemCache()
+    items, skipped = _prepared(utterances, lexicon, start, config, quiet, cache)
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
+    held_items, chosen = [], None
+    used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
+    copies = _copies(used, items, lexicon, start, config, quiet, cache)
+    by_speaker = len({u.speaker for u in used}) >= config.speakers_to_hold_out
+    if by_speaker:
+        held_out = None  # chosen on whole speakers held out below, not on takes of the same voices
+    if held_out and config.strength is None and config.follow_passes > 0:
+        held_utts = list(held_out)
+        held_lex, _ = vocabulary_for({w for u in held_utts for w in u.words}, lexicon, start.lexicon)
+        held_items, _ = cache.recordings([u for u in held_utts if set(u.words) <= set(held_lex.words)], held_lex,
+                                         start, config, True)
+    elif held_out is None and config.strength is None and config.follow_passes > 0:
+        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report)
+        if chosen is not None:
+            config = replace(config, strength=chosen["strength"])
+    if config.strength == 0:
+        copies = []
     mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
-                                          report=report)
+                                          report=report, held_out=held_items, copies=copies)
+    if chosen is not None:
+        summary.adaptation.update({k: chosen[k] for k in ("chosen_on", "held_out_recordings", "held_out_fit",
+                                                          "held_out_speakers")})
     summary.skipped = skipped
     summary.frame_seconds = start.features.hop_ms / 1000
     used = {it.path for it in items if not it.background}
@@ -451,6 +623,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "skipped": len(summary.skipped),
         "frames": summary.n_frames,
         "prior_weight": float(config.prior_weight),
+        "follow_copies": {"speeds": list(config.follow_speeds), "noise_copies": int(config.follow_noise_copies)},
         "passes": int(config.passes),
         "mean_transform": {("pause", "speech")[c]: how for c, how in sorted(transform.items())},
         "update_variances": bool(config.update_variances),
@@ -459,8 +632,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "borrowed_pronunciations": borrowed,
         "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
         "seconds": round(summary.seconds, 2),
+        "strength": strength_info(summary.adaptation, start.features.hop_ms / 1000, config),
     }
     info["audio_band"] = band
+    summary.adapt_note = strength_note(info["strength"])
     scorer = start.scorer
     if scorer is not None and config.scorer is not None:
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
@@ -473,3 +648,176 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info, scorer=scorer)
     return model, summary
+
+
+class ItemCache:
+    """Prepared items of recordings, kept between the adaptations of one training run (the
+    calibration's first training, the choosing run and the training again on everything
+    share them), so each recording's features and speed copies are computed once."""
+
+    def __init__(self):
+        self.clean: dict = {}
+        self.skipped: dict = {}
+        self.copies: dict = {}
+
+    def recordings(self, utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig,
+                   quiet: bool) -> tuple[list, list]:
+        """(items, skipped) of ``utterances`` in their order, as ``prepare_items`` gives them,
+        without background items."""
+        missing = [u for u in utterances if (u.path, u.words) not in self.clean and u.path not in self.skipped]
+        if missing:
+            got, skipped = prepare_items(missing, lexicon, start.units, start.features, jobs=config.jobs, quiet=quiet)
+            self.clean.update({(it.path, it.words): it for it in got})
+            self.skipped.update({sk.path: sk for sk in skipped})
+        items = [self.clean[(u.path, u.words)] for u in utterances if (u.path, u.words) in self.clean]
+        skipped = [self.skipped[u.path] for u in utterances if u.path in self.skipped]
+        return items, skipped
+
+    def speed_copies(self, used, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig,
+                     quiet: bool) -> list:
+        """Speed copies (``config.follow_speeds``) of the usable recordings ``used``."""
+        missing = [u for u in used if (u.path, u.words) not in self.copies]
+        if missing:
+            with warnings.catch_warnings():  # the recordings themselves were checked already
+                warnings.simplefilter("ignore")
+                got, _ = prepare_items(missing, lexicon, start.units, start.features, jobs=config.jobs, quiet=quiet,
+                                       warps=(), speeds=config.follow_speeds)
+            for u in missing:
+                self.copies[(u.path, u.words)] = []
+            for it in got:
+                self.copies[(it.path, it.words)].append(it)
+        return [it for u in used for it in self.copies[(u.path, u.words)]]
+
+
+def _prepared(utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
+              cache: ItemCache) -> tuple[list, list]:
+    """The recordings' items (through ``cache``) and the background items, as
+    ``prepare_items(..., background_share=config.background_share, seed=config.seed)``."""
+    items, skipped = cache.recordings(utterances, lexicon, start, config, quiet)
+    count = background_count(len(items), config.background_share)
+    if count:
+        speaker = {u.path: u.speaker for u in utterances}
+        graph = compose(chain_slots((), lexicon, start.units), start.units)
+        items = items + background_items(count, [it.path for it in items], [speaker[it.path] for it in items],
+                                         graph, start.features, seed=config.seed, jobs=config.jobs, quiet=quiet)
+    return items, skipped
+
+
+def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
+            cache: ItemCache) -> list:
+    """Speed and noisy copies of the usable recordings for the following passes (none when
+    no following pass can run)."""
+    if config.strength == 0 or (config.strength is None and config.follow_passes == 0):
+        return []
+    out = cache.speed_copies(used, lexicon, start, config, quiet) if config.follow_speeds else []
+    if config.follow_noise_copies:
+        clean = [it for it in items if not it.background]
+        speaker = {u.path: u.speaker for u in used}
+        out += noisy_items(clean, [speaker[it.path] for it in clean],
+                           NoiseSettings(copies=config.follow_noise_copies, snr_db=(0.0, 25.0)), start.features,
+                           seed=config.seed, jobs=config.jobs, quiet=quiet)
+    return out
+
+
+def _choose_on_split(items, used, copies, start: AcousticModel, config: AdaptationConfig, by_speaker: bool,
+                     quiet: bool, report) -> dict | None:
+    """The strength chosen by adapting on all but a held-out part of the recordings (whole
+    speakers when ``by_speaker``, else takes); None when that part is too short."""
+    if by_speaker:
+        held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
+    else:
+        _, held_utts = split_by_recording(used, config.held_out_share, config.seed)
+    held_paths = {u.path for u in held_utts}
+    held_items = [it for it in items if not it.background and it.path in held_paths]
+    if sum(it.frames.shape[0] for it in held_items) < config.min_held_out_frames:
+        return None
+    speakers = len({u.speaker for u in held_utts}) if by_speaker else 0
+    if report is not None:
+        what = f"{speakers} speakers' {len(held_items)} recordings" if by_speaker else f"{len(held_items)} recordings"
+        report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} held out")
+    rest = [it for it in items if it.background or it.path not in held_paths]
+    _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet, report=report,
+                              held_out=held_items, copies=[it for it in copies if it.path not in held_paths])
+    if report is not None:
+        report(f"adapting on all {len(used)} recordings with strength {first.adaptation['strength']}")
+    return dict(first.adaptation, held_out_speakers=speakers)
+
+
+def split_by_speaker(utterances, share: float, seed: int) -> list:
+    """The recordings of ``ceil(share * speakers)`` speakers (at least one, never all), drawn with ``seed``."""
+    speakers = sorted({u.speaker for u in utterances})
+    k = min(max(1, int(np.ceil(share * len(speakers)))), len(speakers) - 1)
+    rng = np.random.default_rng([seed, 0x73706B72])
+    held = {speakers[i] for i in rng.choice(len(speakers), size=k, replace=False)}
+    return [u for u in utterances if u.speaker in held]
+
+
+def strength_info(adaptation: dict, frame_seconds: float, config: AdaptationConfig) -> dict:
+    """The model's ``info["strength"]``: passes kept, how they were chosen, minutes of speech."""
+    return {"follow_passes": int(adaptation.get("strength", 0)),
+            "chosen_on": adaptation.get("chosen_on", "given"),
+            "held_out_recordings": int(adaptation.get("held_out_recordings", 0)),
+            "held_out_speakers": int(adaptation.get("held_out_speakers", 0)),
+            "held_out_fit": list(adaptation.get("held_out_fit", [])),
+            "follow_weight": float(config.follow_weight),
+            "most_passes": int(config.follow_passes),
+            "speech_minutes": round(adaptation.get("speech_frames", 0) * frame_seconds / 60, 2)}
+
+
+def strength_note(info: dict) -> str:
+    """One plain sentence on how strongly the model was adapted and why."""
+    k, minutes = info["follow_passes"], info["speech_minutes"]
+    speech = f"{minutes:.1f} minutes of your recordings"
+    if info["chosen_on"] == "held-out" and info.get("held_out_speakers"):
+        why = (f"chosen on {info['held_out_recordings']} recordings of {info['held_out_speakers']} speaker"
+               f"{'s' if info['held_out_speakers'] != 1 else ''} held out, as voices it has not heard")
+    elif info["chosen_on"] == "held-out":
+        why = f"chosen on {info['held_out_recordings']} held-out recordings"
+    elif info["chosen_on"] == "given":
+        why = "as asked"
+    else:
+        why = "too few recordings to hold out for choosing more"
+    if k == 0:
+        if info["chosen_on"] == "held-out":
+            why += ", which fit worse after any further pass"
+        return (f"adapted the starting model lightly: {speech}, the shared shift and one weighted pass, "
+                f"no further pass ({why})")
+    how = "strongly" if k >= max(2, info["most_passes"] // 2) else "moderately"
+    return (f"adapted the starting model {how}: {speech}, {k} further pass{'es' if k != 1 else ''} in "
+            f"which your recordings take over ({why})")
+
+
+def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig = AdaptationConfig(),
+             manifest=None, quiet: bool = True, report=None):
+    """The training function ``fit(utterances, held_out=None) -> (model, summary)`` that adapts ``start``.
+
+    Made for :func:`wordspot.evaluation.calibrate.train_calibrated`: its first call, with
+    the calibration's held-out recordings, chooses the strength on them; later calls without
+    held-out recordings (training again on every recording) reuse that strength. Carries
+    ``start_calibration`` (the starting model's calibration, the fallback) and
+    ``takes_held_out``.
+    """
+    chosen: dict = {}
+    cache = ItemCache()
+
+    def fit(utterances, held_out=None):
+        cfg = config
+        if held_out is None and config.strength is None and chosen:
+            cfg = replace(config, strength=chosen["follow_passes"])
+        model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest, quiet=quiet,
+                               report=report, held_out=held_out, cache=cache)
+        if held_out is not None and config.strength is None:
+            chosen.clear()
+            chosen.update(model.info["strength"])
+        elif chosen and cfg is not config:
+            strength = {**model.info["strength"], **{k: chosen[k] for k in
+                                                     ("chosen_on", "held_out_recordings", "held_out_fit",
+                                                      "held_out_speakers")}}
+            model.info["strength"] = strength
+            summary.adaptation.update(chosen_on=strength["chosen_on"])
+            summary.adapt_note = strength_note(strength)
+        return model, summary
+
+    fit.takes_held_out = True
+    fit.start_calibration = getattr(start, "calibration", None)
+    return fit

@@ -220,6 +220,10 @@ class TrainingSummary:
     scorer_note : str
         What was done to a starting model's state scorer, in plain words ("" when there
         is none).
+    adaptation : dict
+        When adapting: the strength chosen and how (see ``training.adapt.adapt_items``).
+    adapt_note : str
+        When adapting: what was done and why, in plain words ("" otherwise).
     """
 
     used: int = 0
@@ -232,6 +236,8 @@ class TrainingSummary:
     unseen_units: list = field(default_factory=list)
     seconds: float = 0.0
     scorer_note: str = ""
+    adaptation: dict = field(default_factory=dict)
+    adapt_note: str = ""
 
     def count(self, items) -> None:
         """Set ``used`` (recordings, not augmented copies) and ``backgrounds`` from training items."""
@@ -241,7 +247,8 @@ class TrainingSummary:
     def lines(self) -> list[str]:
         """The summary as short text lines for people."""
         minutes = self.n_frames * self.frame_seconds / 60
-        out = [f"recordings used: {self.used} ({minutes:.1f} min of sound, copies and background sounds included)"]
+        out = [self.adapt_note] if self.adapt_note else []
+        out += [f"recordings used: {self.used} ({minutes:.1f} min of sound, copies and background sounds included)"]
         if self.backgrounds:
             out.append(f"background sounds added (no command): {self.backgrounds}")
         out.append(f"recordings skipped: {len(self.skipped)}")

@@ -46,8 +46,8 @@ def train_command(manifest, lexicon, model, *, jobs: int = 1, sample_rate: int =
 def _total_passes(from_scratch: bool) -> int:
     if from_scratch:
         return TrainingConfig().total_passes
-    config = AdaptationConfig()
-    return config.passes + int(config.mean_transform)
+    config = AdaptationConfig()  # the strength is chosen as it goes: count the most passes it may take
+    return config.passes + int(config.mean_transform) + config.follow_passes
 
 
 class TrainingJob:
