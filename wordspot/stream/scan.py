@@ -23,7 +23,8 @@ from wordspot.stream.blocks import BlockReader
 from wordspot.stream.detector import DetectorSettings, SpeechDetector, Stretch
 from wordspot.util.progress import ProgressBar
 
-__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "scan_file", "scan_files", "group_words"]
+__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "StretchScanner", "scan_file", "scan_files",
+           "group_words", "recognise_stretch"]
 
 
 @dataclass(frozen=True)
@@ -111,8 +112,9 @@ def group_words(path: str, words, split_pause: float) -> list[FoundCommand]:
     ]
 
 
-def _recognise(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
-               path: str) -> list[FoundCommand]:
+def recognise_stretch(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
+                      path: str) -> list[FoundCommand]:
+    """The commands in one stretch's samples, with times from the start of the recording."""
     if wave.shape[0] < recognizer.features.window_length:
         return []
     result = recognizer.decode(compute_features(wave, recognizer.features))
@@ -120,6 +122,61 @@ def _recognise(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settin
     words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
              for s in result.segments if s.confidence >= settings.min_confidence]
     return group_words(path, words, settings.split_pause)
+
+
+class StretchScanner:
+    """Samples in, commands out: the detector and the recognizer over one recording.
+
+    Parameters
+    ----------
+    recognizer : wordspot.decoding.decoder.Recognizer
+    settings : ScanSettings, optional
+    path : str
+        Named in the commands found.
+
+    Feed mono float samples at the recognizer's rate with :meth:`push` (any block size)
+    and call :meth:`finish` at the end; both return the commands of the stretches
+    completed so far. Only the samples a stretch not yet recognised can need are held.
+    ``stretches`` counts the stretches recognised.
+    """
+
+    def __init__(self, recognizer, settings: ScanSettings | None = None, *, path: str = ""):
+        self.recognizer = recognizer
+        self.settings = settings or ScanSettings()
+        self.path = path
+        self.rate = recognizer.features.sample_rate
+        self.detector = SpeechDetector(self.rate, self.settings.detector)
+        self.stretches = 0
+        self._held = np.zeros(0, dtype=np.float32)  # samples [_held_at, _held_at + len(_held))
+        self._held_at = 0
+
+    def push(self, block) -> list[FoundCommand]:
+        """Add the next samples; return the commands of the stretches now complete."""
+        block = np.asarray(block, dtype=np.float32).reshape(-1)
+        self._held = np.concatenate([self._held, block])
+        found = self._handle(self.detector.push(block))
+        drop = self.detector.keep_from - self._held_at
+        if drop > 0:
+            self._held = self._held[drop:]
+            self._held_at += drop
+        return found
+
+    def finish(self) -> list[FoundCommand]:
+        """End of the recording: the commands of the stretch in progress (if any)."""
+        return self._handle(self.detector.finish())
+
+    @property
+    def held_samples(self) -> int:
+        """Samples held for stretches not yet recognised."""
+        return int(self._held.shape[0])
+
+    def _handle(self, stretches) -> list[FoundCommand]:
+        found = []
+        for st in stretches:
+            wave = self._held[st.start - self._held_at : st.end - self._held_at]
+            found.extend(recognise_stretch(self.recognizer, wave, st, self.rate, self.settings, self.path))
+            self.stretches += 1
+        return found
 
 
 def scan_file(recognizer, path, *, settings: ScanSettings | None = None, progress=None) -> ScanResult:
@@ -150,32 +207,19 @@ def scan_file(recognizer, path, *, settings: ScanSettings | None = None, progres
         result.error = str(exc)
         return result
     result.duration = reader.duration
-    detector = SpeechDetector(rate, settings.detector)
-    held = np.zeros(0, dtype=np.float32)  # samples [held_at, held_at + len(held))
-    held_at = 0
+    scanner = StretchScanner(recognizer, settings, path=name)
     read = 0
-
-    def handle(stretches):
-        for st in stretches:
-            wave = held[st.start - held_at : st.end - held_at]
-            result.commands.extend(_recognise(recognizer, wave, st, rate, settings, name))
-            result.stretches += 1
-
     try:
         with reader:
             for block in reader:
-                held = np.concatenate([held, block])
-                handle(detector.push(block))
+                result.commands.extend(scanner.push(block))
                 read += block.shape[0]
-                drop = detector.keep_from - held_at
-                if drop > 0:
-                    held = held[drop:]
-                    held_at += drop
                 if progress is not None:
                     progress(read / rate)
-            handle(detector.finish())
+            result.commands.extend(scanner.finish())
     except AudioError as exc:
         result.error = str(exc)
+    result.stretches = scanner.stretches
     return result
 
 
