@@ -12,7 +12,8 @@ starter, whose corpus holds no demo voice) and scores hits, false accepts per ho
 boundaries for the same settings; ``wordspot scan`` with the same detector settings gives
 the same commands as ``wordspot listen`` (tests/cli/test_cli_listen.py checks it).
 
-    python tests/benchmarks/tune_live_detector.py [--model M] [--lexicon lexicon/bakery.txt]
+    python tests/benchmarks/tune_live_detector.py --lexicon lexicon/bakery.txt
+    python tests/benchmarks/tune_live_detector.py --lexicon lexicon/bakery.txt --seed 7 --hangovers 0.2 0.3 0.6 --paddings 0.25
 """
 
 from __future__ import annotations
@@ -61,9 +62,11 @@ def main() -> int:
     ap.add_argument("--lexicon", help="vocabulary for stage 2 (default: the model's)")
     ap.add_argument("--no-model", action="store_true", help="stage 1 only")
     ap.add_argument("--seed", type=int, default=20261202)
+    ap.add_argument("--hangovers", type=float, nargs="+", default=[0.2, 0.3, 0.4, 0.6])
+    ap.add_argument("--paddings", type=float, nargs="+", default=[0.15, 0.25])
     args = ap.parse_args()
     base = DetectorSettings(floor_ahead=0.0)
-    grid = [replace(base, hangover=h, padding=p) for h in (0.2, 0.3, 0.4, 0.6) for p in (0.15, 0.25)]
+    grid = [replace(base, hangover=h, padding=p) for h in args.hangovers for p in args.paddings]
     with tempfile.TemporaryDirectory() as tmp:
         material = _material(Path(tmp), args.seed)
         waves = {name: sf.read(rec.path, dtype="float32")[0] for name, rec in material.items()}

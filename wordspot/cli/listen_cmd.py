@@ -203,6 +203,9 @@ def _run(args) -> int:
         out.flush()
     problem = ""
     fd, close, name = _open_source(args.source)
+    if args.debug:
+        print(f"wordspot: ready, listening to {'standard input' if args.source == '-' else args.source}",
+              file=sys.stderr, flush=True)
     read = lambda n: os.read(fd, n)  # noqa: E731  (what is there, up to n bytes)
     reader = None
     listener = None

@@ -29,7 +29,7 @@ __all__ = ["LIVE_DETECTOR", "ListenSettings", "LiveListener"]
 
 #: The live detector: the file detector's thresholds, a floor that follows the background
 #: from behind and a shorter hangover (chosen on the demo's dev voices).
-LIVE_DETECTOR = DetectorSettings(floor_ahead=0.0, hangover=0.3, padding=0.25)
+LIVE_DETECTOR = DetectorSettings(floor_ahead=0.0, hangover=0.2, padding=0.25)
 
 
 @dataclass(frozen=True)
