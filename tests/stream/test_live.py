@@ -104,3 +104,36 @@ def test_bad_settings_and_samples(recognizer):
     listener.finish()
     with pytest.raises(AudioError, match="after finish"):
         listener.push(np.zeros(10, np.float32))
+
+
+def test_a_command_followed_by_talk_is_reported_before_the_talk_stops(recognizer):
+    # In this demo recording "pause" (labelled 28.669-29.329 s, recordings/long.csv) is
+    # followed at once by other talk, so its stretch stays open for about 6 s more. The
+    # listener looks at the stretch in progress five times a second and reports the
+    # command once 0.6 s (split_pause + early_hold) without a command word follow it;
+    # waiting for the pause (early_every 0) reports it only when the talk stops.
+    x, rate = sf.read(REPO / "recordings" / "audio" / "long" / "flite-rms" / "long-06.flac", dtype="float32")
+    end = 29.329
+
+    def reported_at(settings):
+        listener = LiveListener(recognizer, input_rate=rate, settings=settings)
+        for i in range(0, x.size, 320):
+            for c in listener.push(x[i : i + 320]):
+                if c.start < end and end - 0.7 < c.end:
+                    return (i + 320) / rate, c
+        raise AssertionError("the command was not found")
+
+    early, command = reported_at(ListenSettings())
+    late, _ = reported_at(ListenSettings(early_every=0.0))
+    assert command.words == ("pause",)
+    assert early - end <= 1.0
+    assert late - end > 3.0
+
+
+def test_early_reports_do_not_depend_on_the_block_size(recognizer):
+    x, rate = sf.read(REPO / "recordings" / "audio" / "long" / "flite-rms" / "long-06.flac", dtype="float32")
+    a = _listen(recognizer, x, rate, [320])
+    b = _listen(recognizer, x, rate, [x.size])
+    assert _key(a) == _key(b) and len(a) >= 8
+    with pytest.raises(DecodingError, match="early_span"):
+        ListenSettings(early_span=-1.0)

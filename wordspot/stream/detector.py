@@ -208,6 +208,26 @@ class SpeechDetector:
         return self._run is not None
 
     @property
+    def open_start(self) -> int | None:
+        """First sample of the open run's stretch (None when no run is open)."""
+        return None if self._run is None else self._run[1]
+
+    def cut(self, sample: int) -> None:
+        """Let the open run's stretch start at ``sample`` from now on.
+
+        For a caller that took the commands of the samples before ``sample`` from the
+        stretch in progress: they are not returned again. ``sample`` lies between the
+        stretch's start and the end of the frames decided.
+        """
+        if self._run is None:
+            raise AudioError("SpeechDetector.cut: no stretch in progress")
+        first, start, last = self._run
+        if not start <= sample <= self._next * self.hop:
+            raise AudioError(f"SpeechDetector.cut: sample {sample} outside the stretch in progress")
+        self._run = (max(first, -(-sample // self.hop)), int(sample), last)
+        self._prev_end = int(sample)
+
+    @property
     def keep_from(self) -> int:
         """The first sample a stretch not yet returned may start at."""
         starts = [s.start for s in self._pending]

@@ -44,11 +44,19 @@ class ListenSettings:
         Words of lower confidence are dropped, on top of the recognizer's own threshold.
     split_pause : float >= 0
         A longer pause between two words of one stretch starts a new command.
+    early_every, early_hold, early_span : float >= 0
+        How often (seconds of audio) the stretch in progress is looked at for commands
+        already complete (followed by ``split_pause + early_hold`` seconds without a
+        command word), so that a command followed at once by other talk is not held back
+        until the talk stops; 0 turns it off (see :class:`~wordspot.stream.scan.ScanSettings`).
     """
 
     detector: DetectorSettings = field(default_factory=lambda: LIVE_DETECTOR)
     min_confidence: float = 0.0
     split_pause: float = 0.5
+    early_every: float = 0.2
+    early_hold: float = 0.1
+    early_span: float = 3.0
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):
@@ -60,7 +68,9 @@ class ListenSettings:
 
     def scan_settings(self) -> ScanSettings:
         """The same settings for ``wordspot scan`` (a file then gives the same commands)."""
-        return ScanSettings(detector=self.detector, min_confidence=self.min_confidence, split_pause=self.split_pause)
+        return ScanSettings(detector=self.detector, min_confidence=self.min_confidence, split_pause=self.split_pause,
+                            early_every=self.early_every, early_hold=self.early_hold,
+                            early_span=self.early_span)
 
 
 class LiveListener:
