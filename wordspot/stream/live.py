@@ -6,12 +6,17 @@ the model's rate with soxr's streaming resampler (the state carried between bloc
 detector (``floor_ahead`` 0: a frame is decided from the audio before it only) and
 recognises each stretch as soon as its last sample (after the hangover and the padding)
 has arrived, with the same recognizer, threshold, filler and calibration as ``wordspot
-scan`` and ``wordspot recognize`` (:class:`wordspot.stream.scan.StretchScanner`). Only the
-stretch in progress is held, so memory stays flat however long it listens.
+scan`` and ``wordspot recognize`` (:class:`wordspot.stream.scan.StretchScanner`). A
+command followed at once by other talk would wait for the end of that talk, so the
+stretch in progress is also recognised every ``early_every`` seconds and a command is
+reported once two looks in a row find it followed by ``split_pause + early_hold`` seconds
+without a command word. Only the stretch in progress is held, so memory stays flat
+however long it listens.
 
-The live detector's hangover and padding were chosen on the demo's dev voices
-(docs/experiments/2026-12-02-live-listening.md): a command is reported about
-``max(hangover, padding)`` plus the time to recognise it after its last word ends.
+The live settings were chosen on the demo's dev voices
+(docs/experiments/2026-12-02-live-listening.md): a command followed by a pause is
+reported about ``max(hangover, padding)`` after its last word ends, one followed by talk
+about 0.6-0.9 s after, plus the time to recognise it.
 """
 
 from __future__ import annotations
