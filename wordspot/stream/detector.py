@@ -17,6 +17,13 @@ earlier than the previous one ends, so no sample is recognised twice. A run that
 ``max_stretch`` seconds is cut at its quietest frame in the second half, so the decoder
 never gets more than that (plus padding) at once; the pieces meet without padding.
 
+Causal when ``floor_ahead`` is 0 (as live listening needs): frame ``t`` is then decided as
+soon as its samples have arrived, from the frames before it only; its floor window is the
+``floor_back`` seconds before the first frame of its group, shorter at the start of the
+stream (it grows from the first frame on rather than waiting for the window to fill). The
+detector then looks at no sample after frame ``t`` to decide it, and appending any audio
+never changes a decision already made (tests/stream/test_detector.py checks both).
+
 Streaming-exact: :class:`SpeechDetector` carries the unfinished frame, the energies still
 needed and the run's state across blocks, and decides a frame only once the whole floor
 window after it has arrived, so any split of the samples into blocks gives the same
@@ -49,7 +56,8 @@ class DetectorSettings:
     """How speech stretches are found (seconds and dB; see the module docstring).
 
     The defaults were chosen on the demo's dev voices
-    (docs/experiments/2026-12-02-long-recordings.md).
+    (docs/experiments/2026-12-02-long-recordings.md). ``floor_ahead = 0`` makes the detector
+    causal (see the module docstring).
     """
 
     frame_seconds: float = 0.025
@@ -131,6 +139,8 @@ class SpeechDetector:
         self._back = frames(s.floor_back)
         self._ahead = frames(s.floor_ahead)
         self._window = self._back + self._ahead + 1
+        self.causal = self._ahead == 0
+        self._last_floor = (-1, 0.0)  # (first frame of a group, its floor): causal pushes of a few frames
         self._min_speech = max(1, frames(s.min_speech))
         self._hangover = frames(s.hangover)
         self._max_run = max(2, frames(s.max_stretch))
@@ -168,8 +178,12 @@ class SpeechDetector:
             self._tail = self._tail[cut:]
             self._tail_at += cut
         n_frames = self._e_at + self._energy.shape[0]
-        # frame t is decided once frames up to max(t, back) + ahead have arrived
-        upto = n_frames - self._ahead if n_frames >= self._window else 0
+        # frame t is decided once frames up to max(t, back) + ahead have arrived (causal:
+        # as soon as it has arrived)
+        if self.causal:
+            upto = n_frames
+        else:
+            upto = n_frames - self._ahead if n_frames >= self._window else 0
         self._decide(upto, n_frames)
         return self._release()
 
@@ -184,6 +198,36 @@ class SpeechDetector:
         return self._release()
 
     @property
+    def decided(self) -> int:
+        """Frames decided so far (frame ``t`` covers samples ``[t*hop, t*hop + frame)``)."""
+        return self._next
+
+    @property
+    def in_speech(self) -> bool:
+        """Whether a run of speech is open after the frames decided so far."""
+        return self._run is not None
+
+    @property
+    def open_start(self) -> int | None:
+        """First sample of the open run's stretch (None when no run is open)."""
+        return None if self._run is None else self._run[1]
+
+    def cut(self, sample: int) -> None:
+        """Let the open run's stretch start at ``sample`` from now on.
+
+        For a caller that took the commands of the samples before ``sample`` from the
+        stretch in progress: they are not returned again. ``sample`` lies between the
+        stretch's start and the end of the frames decided.
+        """
+        if self._run is None:
+            raise AudioError("SpeechDetector.cut: no stretch in progress")
+        first, start, last = self._run
+        if not start <= sample <= self._next * self.hop:
+            raise AudioError(f"SpeechDetector.cut: sample {sample} outside the stretch in progress")
+        self._run = (max(first, -(-sample // self.hop)), int(sample), last)
+        self._prev_end = int(sample)
+
+    @property
     def keep_from(self) -> int:
         """The first sample a stretch not yet returned may start at."""
         starts = [s.start for s in self._pending]
@@ -196,12 +240,32 @@ class SpeechDetector:
 
     def _floors(self, t0: int, t1: int, n_frames: int) -> np.ndarray:
         """Noise floor of frames t0..t1-1 (all energies they need are held)."""
+        if self.causal:
+            return self._causal_floors(t0, t1)
         width = min(self._window, n_frames)
         t = np.arange(t0, t1)
         lo = np.clip(t - t % FLOOR_STEP - self._back, 0, n_frames - width)
         starts, which = np.unique(lo, return_inverse=True)
         windows = np.lib.stride_tricks.sliding_window_view(self._energy, width)[starts - self._e_at]
         return np.quantile(windows, self.settings.floor_quantile, axis=1)[which]
+
+    def _causal_floors(self, t0: int, t1: int) -> np.ndarray:
+        """Floor of frames t0..t1-1 from frames [g - back, g] (g: first frame of t's group)."""
+        first = t0 - t0 % FLOOR_STEP
+        if t1 <= first + FLOOR_STEP and self._last_floor[0] == first:  # live pushes: one group, known
+            return np.full(t1 - t0, self._last_floor[1])
+        t = np.arange(t0, t1)
+        groups, which = np.unique(t - t % FLOOR_STEP, return_inverse=True)
+        q = self.settings.floor_quantile
+        floors = np.empty(groups.shape[0])
+        full = groups >= self._back
+        if np.any(full):
+            view = np.lib.stride_tricks.sliding_window_view(self._energy, self._back + 1)
+            floors[full] = np.quantile(view[groups[full] - self._back - self._e_at], q, axis=1)
+        for i in np.flatnonzero(~full):  # the start of the stream: the window grows
+            floors[i] = np.quantile(self._energy[0 - self._e_at : groups[i] + 1 - self._e_at], q)
+        self._last_floor = (int(groups[-1]), float(floors[-1]))
+        return floors[which]
 
     def _decide(self, upto: int, n_frames: int) -> None:
         for t0 in range(self._next, upto, _CHUNK):

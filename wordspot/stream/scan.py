@@ -23,7 +23,8 @@ from wordspot.stream.blocks import BlockReader
 from wordspot.stream.detector import DetectorSettings, SpeechDetector, Stretch
 from wordspot.util.progress import ProgressBar
 
-__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "scan_file", "scan_files", "group_words"]
+__all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "StretchScanner", "scan_file", "scan_files",
+           "group_words", "recognise_stretch"]
 
 
 @dataclass(frozen=True)
@@ -41,12 +42,25 @@ class ScanSettings:
         recognizer's own threshold (``DecoderSettings.min_confidence``).
     split_pause : float >= 0
         A longer pause between two words of one stretch starts a new command.
+    early_every : float >= 0
+        Every this many seconds of audio, the stretch in progress is recognised so far and
+        the commands followed by more than ``split_pause + early_hold`` seconds without a
+        command word, in two looks in a row, are reported at once; the stretch then goes on
+        after them. 0 (files): only whole stretches are recognised.
+    early_hold : float >= 0
+        See ``early_every``.
+    early_span : float >= 0
+        Audio without a complete command is dropped from the stretch in progress (so that
+        each look recognises a short stretch) only once the stretch so far is this long.
     """
 
     detector: DetectorSettings = field(default_factory=DetectorSettings)
     block_seconds: float = 30.0
     min_confidence: float = 0.0
     split_pause: float = 0.5
+    early_every: float = 0.0
+    early_hold: float = 0.1
+    early_span: float = 0.0
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):
@@ -57,6 +71,9 @@ class ScanSettings:
             raise DecodingError(f"min_confidence must be between 0 and 1, got {self.min_confidence!r}")
         if not (isinstance(self.split_pause, (int, float)) and self.split_pause >= 0):
             raise DecodingError(f"split_pause must be a number of seconds >= 0, got {self.split_pause!r}")
+        for name in ("early_every", "early_hold", "early_span"):
+            if not (isinstance(getattr(self, name), (int, float)) and getattr(self, name) >= 0):
+                raise DecodingError(f"{name} must be a number of seconds >= 0, got {getattr(self, name)!r}")
 
 
 @dataclass(frozen=True)
@@ -111,8 +128,9 @@ def group_words(path: str, words, split_pause: float) -> list[FoundCommand]:
     ]
 
 
-def _recognise(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
-               path: str) -> list[FoundCommand]:
+def recognise_stretch(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
+                      path: str) -> list[FoundCommand]:
+    """The commands in one stretch's samples, with times from the start of the recording."""
     if wave.shape[0] < recognizer.features.window_length:
         return []
     result = recognizer.decode(compute_features(wave, recognizer.features))
@@ -120,6 +138,122 @@ def _recognise(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settin
     words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
              for s in result.segments if s.confidence >= settings.min_confidence]
     return group_words(path, words, settings.split_pause)
+
+
+class StretchScanner:
+    """Samples in, commands out: the detector and the recognizer over one recording.
+
+    Parameters
+    ----------
+    recognizer : wordspot.decoding.decoder.Recognizer
+    settings : ScanSettings, optional
+    path : str
+        Named in the commands found.
+
+    Feed mono float samples at the recognizer's rate with :meth:`push` (any block size)
+    and call :meth:`finish` at the end; both return the commands of the stretches
+    completed so far. Only the samples a stretch not yet recognised can need are held.
+    ``stretches`` counts the stretches recognised.
+    """
+
+    def __init__(self, recognizer, settings: ScanSettings | None = None, *, path: str = ""):
+        self.recognizer = recognizer
+        self.settings = settings or ScanSettings()
+        self.path = path
+        self.rate = recognizer.features.sample_rate
+        self.detector = SpeechDetector(self.rate, self.settings.detector)
+        self.stretches = 0
+        self._held = np.zeros(0, dtype=np.float32)  # samples [_held_at, _held_at + len(_held))
+        self._held_at = 0
+        self._pushed = 0
+        self._seen_final: list[FoundCommand] = []  # the complete commands of the last look
+        self._early_step = int(round(self.settings.early_every * self.rate))
+
+    def push(self, block) -> list[FoundCommand]:
+        """Add the next samples; return the commands of the stretches now complete."""
+        block = np.asarray(block, dtype=np.float32).reshape(-1)
+        step = self._early_step
+        if not step:
+            self._pushed += block.shape[0]
+            return self._push(block)
+        found, i = [], 0
+        while i < block.shape[0]:  # a look at fixed stream positions, whatever the blocks
+            part = block[i : i + step - self._pushed % step]
+            found += self._push(part)
+            self._pushed += part.shape[0]
+            i += part.shape[0]
+            if self._pushed % step == 0:
+                found += self._look()
+        return found
+
+    def _look(self) -> list[FoundCommand]:
+        """The commands already complete in the stretch in progress; the stretch goes on after them."""
+        start, now, s = self.detector.open_start, self._pushed, self.settings
+        hold = int(round((s.split_pause + s.early_hold) * self.rate))
+        if start is None:
+            self._seen_final = []
+        if start is None or now - start < hold + self._early_step:
+            return []
+        wave = self._held[start - self._held_at : now - self._held_at]
+        commands = recognise_stretch(self.recognizer, wave, Stretch(start, now, start, now), self.rate, s, self.path)
+        limit = (now - hold) / self.rate
+        complete = [c for c in commands if c.end <= limit]
+        # reported once two looks in a row agree on it (a word that one look alone finds in
+        # other talk is not reported)
+        final = []
+        for c in complete:
+            if not any(_same_command(c, p) for p in self._seen_final):
+                break
+            final.append(c)
+        self._seen_final = complete
+        later = commands[len(final):]
+        pad = s.detector.padding
+        cut = limit - pad  # no command word before it (none ended, none begun)
+        if later:
+            cut = min(cut, later[0].start - pad)
+        if final:
+            cut = max(cut, final[-1].end + min(pad, (later[0].start - final[-1].end) / 2 if later else pad))
+        sample = min(int(round(cut * self.rate)), now)
+        if not final and (sample - start < self._early_step or now - start < s.early_span * self.rate):
+            return []  # too little to drop, or the stretch so far still short: look again later
+        if sample > start:
+            self.detector.cut(sample)
+            drop = self.detector.keep_from - self._held_at
+            if drop > 0:
+                self._held = self._held[drop:]
+                self._held_at += drop
+        self.stretches += bool(final)
+        return final
+
+    def _push(self, block) -> list[FoundCommand]:
+        self._held = np.concatenate([self._held, block])
+        found = self._handle(self.detector.push(block))
+        drop = self.detector.keep_from - self._held_at
+        if drop > 0:
+            self._held = self._held[drop:]
+            self._held_at += drop
+        return found
+
+    def finish(self) -> list[FoundCommand]:
+        """End of the recording: the commands of the stretch in progress (if any)."""
+        return self._handle(self.detector.finish())
+
+    @property
+    def held_samples(self) -> int:
+        """Samples held for stretches not yet recognised."""
+        return int(self._held.shape[0])
+
+    def _handle(self, stretches) -> list[FoundCommand]:
+        found = []
+        for st in stretches:
+            wave = self._held[st.start - self._held_at : st.end - self._held_at]
+            found.extend(recognise_stretch(self.recognizer, wave, st, self.rate, self.settings, self.path))
+            self.stretches += 1
+        return found
+
+
+def _same_command(a: FoundCommand, b: FoundCommand, within: float = 0.05) -> bool:
+    return a.words == b.words and abs(a.start - b.start) <= within and abs(a.end - b.end) <= within
 
 
 def scan_file(recognizer, path, *, settings: ScanSettings | None = None, progress=None) -> ScanResult:
@@ -150,32 +284,19 @@ def scan_file(recognizer, path, *, settings: ScanSettings | None = None, progres
         result.error = str(exc)
         return result
     result.duration = reader.duration
-    detector = SpeechDetector(rate, settings.detector)
-    held = np.zeros(0, dtype=np.float32)  # samples [held_at, held_at + len(held))
-    held_at = 0
+    scanner = StretchScanner(recognizer, settings, path=name)
     read = 0
-
-    def handle(stretches):
-        for st in stretches:
-            wave = held[st.start - held_at : st.end - held_at]
-            result.commands.extend(_recognise(recognizer, wave, st, rate, settings, name))
-            result.stretches += 1
-
     try:
         with reader:
             for block in reader:
-                held = np.concatenate([held, block])
-                handle(detector.push(block))
+                result.commands.extend(scanner.push(block))
                 read += block.shape[0]
-                drop = detector.keep_from - held_at
-                if drop > 0:
-                    held = held[drop:]
-                    held_at += drop
                 if progress is not None:
                     progress(read / rate)
-            handle(detector.finish())
+            result.commands.extend(scanner.finish())
     except AudioError as exc:
         result.error = str(exc)
+    result.stretches = scanner.stretches
     return result
 
 
