@@ -101,7 +101,8 @@ def test_stretches_never_overlap(rng):
 
 
 @pytest.mark.parametrize("settings", [DetectorSettings(), DetectorSettings(max_stretch=1.0),
-                                      DetectorSettings(hangover=0.1, padding=0.5, lookback=0.0)])
+                                      DetectorSettings(hangover=0.1, padding=0.5, lookback=0.0),
+                                      DetectorSettings(floor_ahead=0.0, hangover=0.3)])
 def test_blocks_give_the_same_stretches_as_the_whole(rng, settings):
     # Streaming-exact by construction (state carried across blocks); checked against one
     # push of everything, for block sizes from one sample up, on bursts of varied length.
@@ -143,3 +144,56 @@ def test_bad_settings_and_use_after_finish():
     d.finish()
     with pytest.raises(AudioError, match="push after finish"):
         d.push(np.zeros(10))
+
+
+CAUSAL = DetectorSettings(floor_ahead=0.0, hangover=0.3)
+
+
+def _trace(x, settings, step=160):
+    """Push ``x`` ``step`` samples at a time: (frames decided, in speech, stretches so far) after each push."""
+    d = SpeechDetector(RATE, settings)
+    out, trace = [], []
+    for i in range(0, x.size, step):
+        out = out + d.push(x[i : i + step])
+        trace.append((d.decided, d.in_speech, tuple(out)))
+    return trace
+
+
+def test_causal_detector_decides_each_frame_as_it_arrives(rng):
+    # floor_ahead 0: after any push, every frame whose samples are all in is decided
+    # (the file detector waits floor_ahead, and floor_back + floor_ahead at the start).
+    x = _with_bursts(rng, 6.0, [(0.5, 1.2), (3.0, 3.4)])
+    d = SpeechDetector(RATE, CAUSAL)
+    pushed = 0
+    for n in [1, 399, 400, 1, 160, 2000, 7, 30000]:
+        d.push(x[pushed : pushed + n])
+        pushed += n
+        assert d.decided == (0 if pushed < d.frame else 1 + (pushed - d.frame) // d.hop)
+    slow = SpeechDetector(RATE, DetectorSettings())
+    slow.push(x[:pushed])
+    assert slow.decided < d.decided
+
+
+def test_causal_decisions_do_not_change_with_the_audio_that_follows(rng):
+    # Frame t is decided from samples up to t only: the decisions made while the first
+    # 4 s arrive are the same whatever comes after them (silence, a loud burst, speech-like
+    # bursts, digital silence), at every 10 ms step.
+    head = _with_bursts(rng, 4.0, [(0.6, 1.0), (1.8, 2.6), (3.5, 4.0)])
+    tails = [np.zeros(3 * RATE, np.float32), _with_bursts(rng, 3.0, [(0.0, 3.0)], level=-6.0),
+             _with_bursts(rng, 3.0, [(0.2, 0.5), (1.0, 2.0)]), _noise(rng, 3.0, -60.0).astype(np.float32)]
+    traces = [_trace(np.concatenate([head, tail]), CAUSAL)[: head.size // 160] for tail in tails]
+    assert all(t == traces[0] for t in traces[1:])
+    assert traces[0][-1][2]  # stretches were reported during the head
+    assert any(in_speech for _, in_speech, _ in traces[0])
+
+
+def test_causal_detector_reports_a_burst_within_hangover_and_padding(rng):
+    # A 0.5 s burst ending at 2.0 s: the stretch is complete once the hangover (0.3 s) has
+    # passed and the padding (0.25 s) has arrived, so at about 2.3 s, not after the file
+    # detector's 1 s look-ahead.
+    x = _with_bursts(rng, 5.0, [(1.5, 2.0)])
+    d = SpeechDetector(RATE, CAUSAL)
+    for i in range(0, x.size, 160):
+        if d.push(x[i : i + 160]):
+            break
+    assert (i + 160) / RATE == pytest.approx(2.0 + 0.3 + 0.025, abs=0.03)

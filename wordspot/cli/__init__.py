@@ -28,6 +28,7 @@ _COMMANDS = {
     "train": "train an acoustic model from recordings and their transcripts",
     "recognize": "recognise the words spoken in audio files",
     "scan": "find the commands said in long recordings, with their times",
+    "listen": "print each command as it is said in live audio from a recorder's pipe",
     "evaluate": "measure word error rate on held-out recordings",
     "lexicon": "check a lexicon file or suggest pronunciations for new words",
 }
@@ -42,6 +43,7 @@ examples (a bakery: bakers with dough on their hands call out commands):
   wordspot train my-takes/train.csv --lexicon bakery.txt --out bakery.model
   wordspot recognize --model bakery.model oven-start.wav
   wordspot scan --model bakery.model morning.flac  commands in a long recording, with times
+  arecord -q -f S16_LE -r 16000 -c 1 -t raw | wordspot listen --model bakery.model --rate 16000 -
   wordspot evaluate --model bakery.model my-takes/held-out.csv
 
 Voice commands are a convenience, never a safety device: keep a physical stop within

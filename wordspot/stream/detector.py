@@ -140,6 +140,7 @@ class SpeechDetector:
         self._ahead = frames(s.floor_ahead)
         self._window = self._back + self._ahead + 1
         self.causal = self._ahead == 0
+        self._last_floor = (-1, 0.0)  # (first frame of a group, its floor): causal pushes of a few frames
         self._min_speech = max(1, frames(s.min_speech))
         self._hangover = frames(s.hangover)
         self._max_run = max(2, frames(s.max_stretch))
@@ -230,6 +231,9 @@ class SpeechDetector:
 
     def _causal_floors(self, t0: int, t1: int) -> np.ndarray:
         """Floor of frames t0..t1-1 from frames [g - back, g] (g: first frame of t's group)."""
+        first = t0 - t0 % FLOOR_STEP
+        if t1 <= first + FLOOR_STEP and self._last_floor[0] == first:  # live pushes: one group, known
+            return np.full(t1 - t0, self._last_floor[1])
         t = np.arange(t0, t1)
         groups, which = np.unique(t - t % FLOOR_STEP, return_inverse=True)
         q = self.settings.floor_quantile
@@ -240,6 +244,7 @@ class SpeechDetector:
             floors[full] = np.quantile(view[groups[full] - self._back - self._e_at], q, axis=1)
         for i in np.flatnonzero(~full):  # the start of the stream: the window grows
             floors[i] = np.quantile(self._energy[0 - self._e_at : groups[i] + 1 - self._e_at], q)
+        self._last_floor = (int(groups[-1]), float(floors[-1]))
         return floors[which]
 
     def _decide(self, upto: int, n_frames: int) -> None:
