@@ -99,3 +99,33 @@ def test_commands_said_to_the_microphone_are_listed(listen_server, tmp_path, tmp
         minutes, seconds = when.split(":")
         assert -1.0 <= 60 * int(minutes) + float(seconds) - s.start <= 0.3, (when, s)
         assert sure.endswith("%") and 0 <= int(sure[:-1]) <= 100
+
+
+def test_listening_ended_by_the_server_is_said_in_plain_words(listen_server, tmp_path):
+    from selenium.webdriver.common.action_chains import ActionChains
+
+    app, url = listen_server
+    mic, _ = fake_microphone_commands(tmp_path / "fake-mic.wav", SAID)
+    driver = start_chromium(tmp_path / "profile", fake_audio=mic)
+    try:
+        driver.get(url)
+        _wait(driver, lambda d: not d.find_element("id", "listen-switch").get_attribute("disabled"), "the Listen switch")
+        driver.execute_script(KEEP_STREAMS)
+        ActionChains(driver).send_keys("s").perform()  # the page's key for Start / Stop listening
+        _wait(driver, lambda d: "Listening" in d.find_element("id", "listen-status").text, "listening to start")
+        _wait(driver, lambda d: len(app.listening) == 1, "the server's session")
+        # what the page meets when its session is freed (idle, or the server stopping)
+        app.listening.stop_all()
+        _wait(driver, lambda d: "stopped" in d.find_element("id", "listen-status").text, "the page to notice")
+        status = driver.find_element("id", "listen-status")
+        said = (status.text, status.get_attribute("class"), driver.find_element("id", "mic-state").text,
+                driver.execute_script(TRACK_STATES),
+                driver.find_element("id", "listen-switch").get_attribute("aria-pressed"))
+        errors = console_errors(driver)
+    finally:
+        driver.quit()
+    assert said == ("Listening stopped: listening has ended (the server stopped); switch Listen on again",
+                    "error", "Microphone off", ["audio ended"], "false")
+    # the only messages logged are the browser's own lines about the refused block and the
+    # page's stop request that follows it (both 404: the session is gone)
+    assert errors and all("/api/listen/" in e and "status of 404" in e for e in errors), errors

@@ -128,7 +128,10 @@ def test_listening_needs_the_session_key_and_the_page_origin(listening):
 @pytest.mark.parametrize(("data", "said"), [({"rate": 1}, "1 Hz"), ({"rate": 300000}, "300000 Hz"),
                                             ({"rate": "48k"}, "whole number of Hz"), ({}, "got nothing"),
                                             ({"rate": 44100.5}, "whole number"), ({"rate": True}, "whole number"),
-                                            ({"rate": 48000, "format": "mp3"}, "float32, int16")])
+                                            ({"rate": float("nan")}, "got nan"), ({"rate": float("inf")}, "got inf"),
+                                            ({"rate": [48000]}, "whole number"),
+                                            ({"rate": 48000, "format": "mp3"}, "float32, int16"),
+                                            ({"rate": 48000, "format": ["float32"]}, "float32, int16")])
 def test_a_bad_rate_or_format_is_refused(listening, data, said):
     app, port = listening()
     status, answer = request(port, "POST", "/api/listen/start", json.dumps(data).encode())

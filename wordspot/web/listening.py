@@ -18,6 +18,7 @@ answer rather than "unknown".
 
 from __future__ import annotations
 
+import math
 import secrets
 import threading
 import time
@@ -51,14 +52,15 @@ def check_listen_request(rate, sample_format) -> tuple[int, str]:
         A rate that is not a whole number of 8-192 kHz, or a format not in
         :data:`SAMPLE_FORMATS`.
     """
-    if isinstance(rate, bool) or not isinstance(rate, (int, float)) or rate != int(rate):
+    if (isinstance(rate, bool) or not isinstance(rate, (int, float)) or not math.isfinite(rate)
+            or rate != int(rate)):
         shown = "nothing" if rate is None else repr(rate)[:40]
         raise WordspotError(f"say the sample rate of the sound as a whole number of Hz (\"rate\"), got {shown}")
     rate = int(rate)
     if not MIN_UPLOAD_RATE <= rate <= MAX_UPLOAD_RATE:
         raise WordspotError(f"a sample rate of {rate} Hz cannot be listened to; only {MIN_UPLOAD_RATE // 1000}-"
                             f"{MAX_UPLOAD_RATE // 1000} kHz is accepted (the page sends the browser's rate)")
-    if sample_format not in SAMPLE_FORMATS:
+    if not isinstance(sample_format, str) or sample_format not in SAMPLE_FORMATS:
         raise WordspotError(f"the sample format must be one of {', '.join(SAMPLE_FORMATS)}, "
                             f"got {str(sample_format)[:40]!r}")
     return rate, sample_format
