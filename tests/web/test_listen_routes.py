@@ -15,7 +15,7 @@ import soxr
 from listen_audio import WORDS, said_commands, train_small_model
 from recording_server import SESSION_HEADER, request, served, session_key  # noqa: F401 - a fixture
 from test_server_guards import answers_in, http_request, raw_exchange
-from wordspot.web.listening import MAX_WAITING, ListenSessions, block_samples, check_listen_request
+from wordspot.web.listening import ListenSessions, block_samples, check_listen_request
 from wordspot.errors import WordspotError
 
 RAW = {"Content-Type": "application/octet-stream"}
@@ -239,26 +239,22 @@ def test_block_samples_reads_both_formats():
         block_samples(b"\x00" * 3, "int16")
 
 
-def test_waiting_commands_are_bounded():
-    class Counter:  # stands in for the recognizer's listener: every block completes one command
-        def __init__(self):
-            self.n = 0
+def test_waiting_commands_are_bounded(model_file, monkeypatch):
+    # three commands completed within one push, with room for two: the oldest is dropped
+    # and counted
+    from wordspot.decoding.decoder import build_recognizer
+    from wordspot.model import load_model
+    from wordspot.stream.live import LiveListener
+    import wordspot.web.listening as listening_module
 
-        def push(self, samples):
-            from wordspot.stream.scan import FoundCommand
-
-            self.n += 1
-            return [FoundCommand("live", self.n, self.n + 0.5, ("oven",), 0.9)]
-
-        def finish(self):
-            return []
-
+    monkeypatch.setattr(listening_module, "MAX_WAITING", 2)
+    rec = build_recognizer(load_model(model_file))
     sessions = ListenSessions(max_open=1, idle_seconds=60)
-    opened = sessions.open(lambda rate: Counter(), 16000, "int16")
+    opened = sessions.open(lambda rate: LiveListener(rec, input_rate=rate), 16000, "int16")
     s = sessions.find(opened["id"])
-    for _ in range(MAX_WAITING + 7):
-        s.hold(s.listener.push(None))
+    samples, said = said_commands(("oven", "stop", "timer"), rate=16000, level=-60.0)
+    s.hold(s.listener.push(samples))
     answer = s.answer()
-    assert len(answer["commands"]) == MAX_WAITING and answer["dropped"] == 7
-    assert answer["commands"][0]["start"] == 8  # the oldest ones were dropped
-    assert s.answer()["commands"] == []
+    assert [c["words"] for c in answer["commands"]] == [["stop"], ["timer"]] and answer["dropped"] == 1
+    assert s.answer() == {"id": opened["id"], "commands": [], "dropped": 0, "heard_seconds": 0.0}
+    assert sessions.open(lambda rate: None, 16000, "int16") is None  # one place, taken
