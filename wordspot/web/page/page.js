@@ -578,7 +578,7 @@ function showHeard(l, answer) {
     words.textContent = c.text;
     const sure = document.createElement("td");
     sure.className = "number";
-    sure.textContent = Math.round(100 * c.confidence) + "%";
+    sure.textContent = Math.floor(100 * c.confidence) + "%";  // 0.996 is not shown as a sure 100%
     row.append(time, words, sure);
     body.prepend(row);
     l.heard += 1;
