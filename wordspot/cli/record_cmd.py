@@ -15,12 +15,13 @@ examples (a bakery: bakers with dough on their hands call out commands):
   wordspot record my-takes/ --speaker baker-b --port 8766
 
 Open the address it prints in a browser on this computer (the server answers only at
-127.0.0.1). Press Space to record and to stop, Enter to keep a take, Backspace to record
-it again, the Up and Down arrows for another word. Each take is trimmed of its quiet ends
+127.0.0.1). Press R to record and to stop, K to keep a take, A to record it again, L to
+listen to it, N and B for the next word and back. Each take is trimmed of its quiet ends
 and saved as a 16-bit WAV file at the model rate in FOLDER/audio/SPEAKER/, and listed in
 FOLDER/train.csv (or FOLDER/held-out.csv when kept for testing). Words typed on the page
 go into FOLDER/pronunciations.txt unless --lexicon names a file. When every word has
-enough takes the page trains a model (FOLDER/words.model) and lets you try it.
+enough takes the page trains a model (FOLDER/words.model), lets you try it, and listens
+for commands while you switch Listen on (S), listing each one heard with its confidence.
 Stop the server with Ctrl+C; nothing half-written is left behind.
 """
 
@@ -31,7 +32,7 @@ def add_parser(sub, **options):
         **options,
         description="Serve a recording page on this computer (127.0.0.1 only): it lists the words, "
         "records takes from the microphone, trims and checks them, keeps the manifests in step, "
-        "and offers training and a try-it box.",
+        "offers training and a try-it box, and listens for commands while you ask it to.",
         epilog=_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )

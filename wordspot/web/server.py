@@ -20,17 +20,22 @@ connections).
 
 Interface (all under the page's own address):
 
-=====================  ==========================================================
-``GET /``               the page (``page/index.html``); ``GET /page/NAME`` its files
-``GET /takes/PATH``     a saved take (only files inside the takes folder)
-``GET /api/state``      words, takes per word (``?speaker=NAME``), notes, training
-``POST /api/word``      ``{"word": W}``: known pronunciations or a suggestion
-``POST /api/word/add``  ``{"word": W, "phones": "P H O N E S"}``: add to the lexicon
-``POST /api/check``     audio body: where the speech is, and what is wrong with it
-``POST /api/take``      audio body, ``?word=W&speaker=S&held_out=0|1``: save a take
-``POST /api/train``     start ``wordspot train``; ``GET /api/train``: its progress
-``POST /api/try``       audio body: the words the trained model recognises
-=====================  ==========================================================
+========================== ======================================================================
+``GET /``                  the page (``page/index.html``); ``GET /page/NAME`` its files
+``GET /takes/PATH``        a saved take (only files inside the takes folder)
+``GET /api/state``         words, takes per word (``?speaker=NAME``), notes, training
+``POST /api/word``         ``{"word": W}``: known pronunciations or a suggestion
+``POST /api/word/add``     ``{"word": W, "phones": "P H O N E S"}``: add to the lexicon
+``POST /api/check``        audio body: where the speech is, and what is wrong with it
+``POST /api/take``         audio body, ``?word=W&speaker=S&held_out=0|1``: save a take
+``POST /api/train``        start ``wordspot train``; ``GET /api/train``: its progress
+``POST /api/try``          audio body: the words the trained model recognises
+``POST /api/listen/start`` ``{"rate": R, "format": "float32"|"int16"}``: start listening, its ``id``
+                           (409 without a trained model, or with too many listening)
+``POST /api/listen/block`` ``?id=ID``, raw samples (at most 1 s): the commands completed since the
+                           last answer (:mod:`wordspot.web.listening`)
+``POST /api/listen/stop``  ``?id=ID``: finish the stretch in progress; its commands
+========================== ======================================================================
 """
 
 from __future__ import annotations
@@ -57,6 +62,7 @@ import soundfile
 from wordspot.audio.decode import check_audio_header, decode_audio_bytes
 from wordspot.audio.trim import check_take
 from wordspot.errors import WordspotError
+from wordspot.web.listening import ListenSessions
 from wordspot.web.takes import HELD_OUT_MANIFEST, TRAIN_MANIFEST, TakeFolder, folder_pronunciations, speaker_slug
 from wordspot.web.training_job import TrainingJob, train_command
 from wordspot.web.words import WordList
@@ -112,6 +118,11 @@ class RecordingSettings:
         A connection that sends nothing for this long is closed.
     max_connections : int
         Connections served at once; more are answered 503 and closed.
+    max_listening : int
+        Listening sessions open at once (Listen switched on in that many tabs); more are
+        refused.
+    listen_idle_seconds : float
+        A listening session that receives no sound for this long is stopped and freed.
     """
 
     folder: Path
@@ -124,6 +135,8 @@ class RecordingSettings:
     max_take_seconds: float = 30.0
     idle_seconds: float = 30.0
     max_connections: int = 32
+    max_listening: int = 2
+    listen_idle_seconds: float = 15.0
 
 
 class HttpProblem(Exception):
@@ -172,6 +185,7 @@ class RecordingApp:
         self._model_lock = threading.Lock()
         self._recognizer = None
         self._model_stamp = None
+        self.listening = ListenSessions(max_open=settings.max_listening, idle_seconds=settings.listen_idle_seconds)
 
     @property
     def model_path(self) -> Path:
@@ -259,8 +273,14 @@ class RecordingApp:
             raise HttpProblem(HTTPStatus.CONFLICT, "training is already running; wait for it to finish")
         return self.training.status()
 
-    def recognise(self, body: bytes) -> dict:
-        from wordspot.audio.features import compute_features
+    def recognizer(self):
+        """The trained model's recognizer, built again when the model file changes.
+
+        Raises
+        ------
+        HttpProblem
+            409 when there is no trained model yet.
+        """
         from wordspot.decoding.decoder import build_recognizer
         from wordspot.model import load_model
 
@@ -271,7 +291,12 @@ class RecordingApp:
             if self._recognizer is None or stamp != self._model_stamp:
                 self._recognizer = build_recognizer(load_model(self.model_path))
                 self._model_stamp = stamp
-            rec = self._recognizer
+            return self._recognizer
+
+    def recognise(self, body: bytes) -> dict:
+        from wordspot.audio.features import compute_features
+
+        rec = self.recognizer()
         wave = self._decode(body, rec.features.sample_rate)
         result = rec.decode(compute_features(wave, rec.features))
         return {
@@ -281,8 +306,24 @@ class RecordingApp:
             "reason": result.reason,
         }
 
+    def start_listening(self, rate, sample_format) -> dict:
+        """A new listening session on the trained model (see :mod:`wordspot.web.listening`)."""
+        from wordspot.stream.live import LiveListener
+
+        rec = self.recognizer()
+        started = self.listening.open(lambda r: LiveListener(rec, input_rate=r, path="page"), rate, sample_format)
+        if started is None:
+            limit = self.listening.max_open
+            raise HttpProblem(HTTPStatus.CONFLICT,
+                              f"already listening in {limit} {'place' if limit == 1 else 'places'} (other tabs or "
+                              "windows of this page); switch Listen off there, or wait "
+                              f"{self.listening.idle_seconds:g} s after closing them")
+        started["words"] = list(rec.network.words)
+        return started
+
     def stop(self) -> None:
         self.training.stop()
+        self.listening.stop_all()
 
 
 class _Handler(BaseHTTPRequestHandler):
@@ -506,9 +547,39 @@ class _Handler(BaseHTTPRequestHandler):
             self._json(200, app.start_training())
         elif url.path == "/api/try":
             self._json(200, app.recognise(self._audio_body()))
+        elif url.path == "/api/listen/start":
+            data = self._json_body()
+            self._json(200, app.start_listening(data.get("rate"), data.get("format", "float32")))
+        elif url.path == "/api/listen/block":
+            session = self._listen_session(query)
+            kind = (self.headers.get("Content-Type") or "").split(";")[0].strip().lower()
+            if kind and kind != "application/octet-stream":
+                raise HttpProblem(HTTPStatus.UNSUPPORTED_MEDIA_TYPE,
+                                  f"expected raw samples (application/octet-stream), got {_shown(kind)}")
+            answer = app.listening.feed(session, self._body(app.listening.block_limit(session), "the block of sound"))
+            if answer is None:
+                raise HttpProblem(HTTPStatus.NOT_FOUND, app.listening.why_not_found(session.id))
+            self._json(200, answer)
+        elif url.path == "/api/listen/stop":
+            session = self._listen_session(query)
+            self._body(_MAX_JSON_BYTES)
+            answer = app.listening.stop(session)
+            if answer is None:
+                raise HttpProblem(HTTPStatus.NOT_FOUND, app.listening.why_not_found(session.id))
+            self._json(200, answer)
         else:
             self._body(MAX_UPLOAD_BYTES)
             raise HttpProblem(HTTPStatus.NOT_FOUND, f"nothing to post to at {_shown(url.path)}")
+
+
+    def _listen_session(self, query: dict):
+        listen_id = query.get("id", "")
+        if not listen_id:
+            raise HttpProblem(HTTPStatus.BAD_REQUEST, "say which listening session this is for (id=...)")
+        session = self.app.listening.find(listen_id)
+        if session is None:
+            raise HttpProblem(HTTPStatus.NOT_FOUND, self.app.listening.why_not_found(listen_id))
+        return session
 
 
 _BUSY = json.dumps({"error": "too many connections to the recording page at once; try again in a moment"}).encode()

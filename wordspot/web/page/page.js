@@ -1,4 +1,4 @@
-// wordspot recording page: record takes from the microphone, keep them, train, try.
+// wordspot recording page: record takes from the microphone, keep them, train, try, listen.
 // Plain JavaScript, no framework; talks only to the server that served it.
 "use strict";
 
@@ -11,12 +11,18 @@ const page = {
   audio: null,        // {stream, context, source, node} only while the microphone is open
   opening: false,     // true while the browser is asked for the microphone
   player: null,       // the audio context playing a take back (no microphone in it)
-  recording: null,    // "take" or "try" while recording
+  recording: null,    // "take" or "try" while recording, "listen" while listening for commands
   chunks: [],
   pending: null,      // {samples, rate, body, check} of the take waiting for keep/redo
   timer: null,
   polling: null,
+  listen: null,       // {id, rate, maxSamples, queue, queued, flight, heard, skipped} while listening
 };
+// Listening sends the microphone's samples in blocks of about this many seconds; if the
+// server falls further behind than LISTEN_MAX_BEHIND, the oldest waiting sound is skipped.
+const LISTEN_BLOCK_SECONDS = 0.25;
+const LISTEN_MAX_BEHIND = 10;
+const HEARD_ROWS = 100;
 
 // ---- talking to the server -------------------------------------------------------------
 // The server writes its session key into the page; every request that changes something
@@ -91,7 +97,6 @@ function render() {
     ? (w.train + w.held_out) + " of " + st.takes_per_word + " takes recorded by " + st.speaker +
       (w.held_out ? " (" + w.held_out + " kept for testing)" : "")
     : "";
-  $("record").disabled = !w;
   renderTraining(st.training);
   const notes = $("notes");
   notes.textContent = "";
@@ -101,7 +106,7 @@ function render() {
 
 function select(i, focus) {
   const n = page.state ? page.state.words.length : 0;
-  if (!n || page.recording) return;
+  if (!n || (page.recording && page.recording !== "listen")) return;
   page.index = (i + n) % n;
   discard(false);
   render();
@@ -172,7 +177,9 @@ function showMicrophone() {
 
 // The browser ended the microphone itself (unplugged, or permission taken back).
 function microphoneLost() {
-  if (page.recording) {
+  if (page.recording === "listen") {
+    stopListening("The microphone stopped, so listening ended; check that it is plugged in and allowed.", true);
+  } else if (page.recording) {
     stopRecording();
     say("The microphone stopped during the take; check that it is plugged in and allowed.", true);
   } else {
@@ -186,7 +193,9 @@ function onBlock(block) {
   for (let i = 0; i < block.length; i++) { const a = Math.abs(block[i]); if (a > peak) peak = a; }
   const db = peak > 0 ? Math.max(-60, 20 * Math.log10(peak)) : -60;
   if (db > loudestSinceDrawn) loudestSinceDrawn = db;
-  if (page.recording && page.audio) {
+  if (page.recording === "listen" && page.listen) {
+    queueListen(page.listen, block);
+  } else if (page.recording && page.audio) {
     page.chunks.push(block);
     const seconds = page.chunks.length * block.length / page.audio.context.sampleRate;
     if (seconds >= MAX_SECONDS) stopRecording();
@@ -241,6 +250,7 @@ async function startRecording(kind) {
   discard(false);
   page.chunks = [];
   page.recording = kind;
+  updateButtons();
   if (kind === "take") {
     $("record").classList.add("on");
     $("record").innerHTML = "Stop recording <kbd>R</kbd>";
@@ -258,6 +268,7 @@ async function stopRecording() {
   const samples = joined();
   const rate = page.audio ? page.audio.context.sampleRate : 48000;
   closeMicrophone();
+  updateButtons();
   if (kind === "try") {
     $("try-record").innerHTML = "Record a test <kbd>T</kbd>";
     return tryModel(samples, rate);
@@ -430,8 +441,13 @@ function renderTraining(t) {
   $("train-log").textContent = t.lines.join("\n");
   $("evaluate-line").hidden = !(st.model && st.evaluate_command);
   $("evaluate-command").textContent = st.evaluate_command || "";
-  $("try-record").disabled = !st.model;
   $("try-state").textContent = st.model ? "Say a command and see what the model hears." : "Train a model first.";
+  if (!page.listen) {
+    $("listen-state").textContent = st.model
+      ? "Switch it on and say your commands: each one heard is listed with its confidence."
+      : "Train a model first.";
+  }
+  updateButtons();
   if (running && !page.polling) page.polling = setInterval(pollTraining, 1000);
 }
 
@@ -468,9 +484,182 @@ async function tryModel(samples, rate) {
   }
 }
 
+// ---- listening for commands --------------------------------------------------------------------
+// While Listen is on, the microphone stays open and its samples go to the server in blocks
+// of about a quarter of a second (32-bit float at the browser's rate; the server converts
+// them to the model rate); each answer brings the commands completed so far. Switching it
+// off (or leaving the page) stops every track and closes the audio graph at once, then
+// sends what was still waiting and asks the server to finish the stretch in progress.
+function updateButtons() {
+  const st = page.state;
+  const listening = page.recording === "listen";
+  const busy = page.recording !== null && !listening;
+  $("record").disabled = !currentWord() || listening;
+  $("try-record").disabled = !(st && st.model) || listening;
+  $("listen-switch").disabled = !listening && (busy || !(st && st.model));
+  $("listen-switch").setAttribute("aria-pressed", listening ? "true" : "false");
+  $("listen-switch").classList.toggle("on", listening);
+  $("listen-switch").innerHTML = (listening ? "Stop listening" : "Start listening") + " <kbd>S</kbd>";
+}
+
+function listenSay(text, isError) {
+  const s = $("listen-status");
+  s.textContent = text;
+  s.className = isError ? "error" : "";
+}
+
+const LITTLE_ENDIAN = new Uint8Array(new Uint16Array([1]).buffer)[0] === 1;
+
+// The samples as raw little-endian 32-bit floats (what the server reads as "float32").
+function rawSamples(samples) {
+  if (LITTLE_ENDIAN) return samples.buffer.slice(samples.byteOffset, samples.byteOffset + samples.byteLength);
+  const buffer = new ArrayBuffer(4 * samples.length);
+  const v = new DataView(buffer);
+  for (let i = 0; i < samples.length; i++) v.setFloat32(4 * i, samples[i], true);
+  return buffer;
+}
+
+function takeQueued(l, most) {
+  const n = Math.min(most, l.queued);
+  const out = new Float32Array(n);
+  let at = 0;
+  while (at < n) {
+    const head = l.queue[0];
+    const k = Math.min(head.length, n - at);
+    out.set(head.subarray(0, k), at);
+    at += k;
+    if (k === head.length) l.queue.shift(); else l.queue[0] = head.subarray(k);
+  }
+  l.queued -= n;
+  return out;
+}
+
+function queueListen(l, block) {
+  l.queue.push(block);
+  l.queued += block.length;
+  const over = l.queued - LISTEN_MAX_BEHIND * l.rate;
+  if (over > 0) { takeQueued(l, over); l.skipped += over; }
+  if (!l.flight && l.queued >= LISTEN_BLOCK_SECONDS * l.rate) l.flight = sendQueued(l);
+}
+
+function postBlock(l, samples) {
+  return api("/api/listen/block?id=" + encodeURIComponent(l.id),
+             {method: "POST", headers: {"Content-Type": "application/octet-stream"}, body: rawSamples(samples)});
+}
+
+// Sends the waiting sound, one request at a time, while this listening goes on.
+async function sendQueued(l) {
+  try {
+    while (page.listen === l && l.queued >= LISTEN_BLOCK_SECONDS * l.rate) {
+      showHeard(l, await postBlock(l, takeQueued(l, l.maxSamples)));
+    }
+  } catch (e) {
+    if (page.listen === l) stopListening("Listening stopped: " + e.message, true);
+  } finally {
+    l.flight = null;
+  }
+}
+
+function clockTime(seconds) {
+  const m = Math.floor(seconds / 60);
+  const s = seconds - 60 * m;
+  return m + ":" + (s < 10 ? "0" : "") + s.toFixed(1);
+}
+
+function showHeard(l, answer) {
+  const body = $("heard");
+  answer.commands.forEach((c) => {
+    const row = document.createElement("tr");
+    const time = document.createElement("td");
+    time.className = "number";
+    time.textContent = clockTime(c.start);
+    const words = document.createElement("td");
+    words.className = "words";
+    words.textContent = c.text;
+    const sure = document.createElement("td");
+    sure.className = "number";
+    sure.textContent = Math.floor(100 * c.confidence) + "%";  // 0.996 is not shown as a sure 100%
+    row.append(time, words, sure);
+    body.prepend(row);
+    l.heard += 1;
+  });
+  while (body.rows.length > HEARD_ROWS) body.deleteRow(body.rows.length - 1);
+  $("heard-table").hidden = body.rows.length === 0;
+  l.lost += answer.dropped || 0;  // commands beyond what the server keeps between two answers
+  if (page.listen === l) {
+    listenSay("Listening… " + heardCount(l) + (l.skipped ? "; some sound was skipped because the computer fell behind" : "") + ".");
+  }
+}
+
+function heardCount(l) {
+  return (l.heard === 1 ? "1 command" : l.heard + " commands") + " heard" +
+    (l.lost ? " (" + l.lost + " more not shown)" : "");
+}
+
+async function startListening() {
+  if (page.recording || page.opening || page.listen) return;
+  page.opening = true;
+  listenSay("Opening the microphone…");
+  let audio;
+  try {
+    audio = await openMicrophone();
+    if (audio.context.state !== "running") await audio.context.resume();
+  } catch (e) {
+    page.opening = false;
+    closeMicrophone();
+    listenSay("The microphone could not be opened: " + e.message, true);
+    return;
+  }
+  try {
+    const started = await postJson("/api/listen/start", {rate: audio.context.sampleRate, format: "float32"});
+    if (page.audio !== audio) {
+      api("/api/listen/stop?id=" + encodeURIComponent(started.id), {method: "POST"}).catch(() => {});
+      throw new Error("the microphone was closed while starting");
+    }
+    page.listen = {id: started.id, rate: started.rate, maxSamples: Math.floor(started.max_block_bytes / 4),
+                   queue: [], queued: 0, flight: null, heard: 0, skipped: 0, lost: 0};
+    page.recording = "listen";
+    $("listen-state").textContent = "Listening for: " + started.words.join(", ") + ".";
+    listenSay("Listening… say a command.");
+  } catch (e) {
+    closeMicrophone();
+    listenSay("Listening could not start: " + e.message, true);
+  } finally {
+    page.opening = false;
+    updateButtons();
+  }
+}
+
+// Switch listening off: the microphone is released at once; then the sound still waiting
+// is sent (unless an error ended listening) and the stretch in progress is finished.
+async function stopListening(message, isError) {
+  const l = page.listen;
+  if (!l) return;
+  page.listen = null;
+  page.recording = null;
+  closeMicrophone();
+  updateButtons();
+  listenSay(message || "Finishing the last words…", isError);
+  const stop = () => api("/api/listen/stop?id=" + encodeURIComponent(l.id), {method: "POST"});
+  if (isError) { stop().catch(() => {}); return; }
+  try {
+    if (l.flight) await l.flight;
+    while (l.queued > 0) showHeard(l, await postBlock(l, takeQueued(l, l.maxSamples)));
+    showHeard(l, await stop());
+    if (!page.listen) listenSay("Stopped listening; " + heardCount(l) + ". The microphone is off.");
+  } catch (e) {
+    if (!page.listen) listenSay("Stopped listening, but the last words could not be recognised: " + e.message, true);
+  }
+}
+
+function toggleListening() {
+  if (page.listen) stopListening(); else startListening();
+}
+
 // ---- keys ----------------------------------------------------------------------------------
 // Each key is the first letter of a word on its button (shown there and in the help text):
-// R record / stop, L listen, K keep, A record again, N next word, B back one word, T test.
+// R record / stop, L listen, K keep, A record again, N next word, B back one word, T test,
+// S start / stop listening for commands.
 // Plain letters only, so no browser shortcut is taken; nothing happens while typing in a box.
 function typing(target) {
   if (!target) return false;
@@ -481,7 +670,7 @@ function typing(target) {
 function onKey(event) {
   if (typing(event.target) || event.altKey || event.ctrlKey || event.metaKey || event.key.length !== 1) return;
   const k = event.key.toLowerCase();
-  if (event.repeat && (k === "r" || k === "t")) { event.preventDefault(); return; }
+  if (event.repeat && (k === "r" || k === "t" || k === "s")) { event.preventDefault(); return; }
   if (k === "r") {
     if (page.recording === "take") stopRecording(); else if (!page.recording && currentWord()) startRecording("take");
   } else if (k === "n" || k === "b") {
@@ -494,6 +683,8 @@ function onKey(event) {
     play();
   } else if (k === "t" && !$("try-record").disabled) {
     if (page.recording === "try") stopRecording(); else if (!page.recording) startRecording("try");
+  } else if (k === "s" && !$("listen-switch").disabled) {
+    toggleListening();
   } else {
     return;
   }
@@ -509,13 +700,23 @@ function start() {
   $("confirm-word").addEventListener("click", confirmWord);
   $("train").addEventListener("click", startTraining);
   $("try-record").addEventListener("click", () => { if (page.recording === "try") stopRecording(); else startRecording("try"); });
+  $("listen-switch").addEventListener("click", toggleListening);
   $("word-next").addEventListener("click", () => select(page.index + 1, false));
   $("word-back").addEventListener("click", () => select(page.index - 1, false));
   $("speaker").addEventListener("change", () => { discard(false); refresh().catch((e) => say(e.message, true)); });
   document.addEventListener("keydown", onKey);
   // leaving or closing the page releases the microphone even in the middle of a take
-  window.addEventListener("pagehide", () => { page.recording = null; page.chunks = []; closeMicrophone(); stopPlaying(); });
+  window.addEventListener("pagehide", () => {
+    const l = page.listen;
+    page.listen = null;
+    page.recording = null; page.chunks = []; closeMicrophone(); stopPlaying();
+    if (l) {  // tell the server at once; it would free the session after its idle time anyway
+      fetch("/api/listen/stop?id=" + encodeURIComponent(l.id),
+            {method: "POST", keepalive: true, headers: {"Wordspot-Session": SESSION}}).catch(() => {});
+    }
+  });
   showMicrophone();
+  updateButtons();
   requestAnimationFrame(drawMeter);
   refresh().catch((e) => say("The page could not reach wordspot: " + e.message, true));
 }
