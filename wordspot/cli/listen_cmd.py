@@ -11,7 +11,7 @@ import signal
 import sys
 
 from wordspot.cli.recognize_cmd import add_decoder_options, scorer_note, settings_from_args
-from wordspot.cli.scan_cmd import format_clock
+from wordspot.cli.scan_cmd import command_record, command_text, format_clock
 from wordspot.stream.live import ListenSettings
 
 __all__ = ["add_parser", "command_line", "COLUMNS"]
@@ -81,9 +81,8 @@ def add_parser(sub, **options):
 def command_line(command, fmt: str) -> str:
     """The output line of one command (no newline)."""
     if fmt == "text":
-        return f"{format_clock(command.start)}  {format_clock(command.end)}  {command.text}  {command.confidence:.2f}"
-    record = {"start": round(command.start, 3), "end": round(command.end, 3), "words": command.text,
-              "confidence": round(command.confidence, 4)}
+        return command_text(command)
+    record = command_record(command)
     if fmt == "jsonl":
         return json.dumps(record, ensure_ascii=False)
     buf = io.StringIO()

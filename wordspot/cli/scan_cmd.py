@@ -11,7 +11,8 @@ import sys
 from wordspot.cli.recognize_cmd import add_decoder_options, scorer_note, settings_from_args
 from wordspot.stream.scan import ScanResult, ScanSettings
 
-__all__ = ["add_parser", "format_clock", "text_lines", "jsonl_lines", "write_csv", "COLUMNS"]
+__all__ = ["add_parser", "format_clock", "command_text", "command_record", "text_lines", "jsonl_lines",
+           "write_csv", "COLUMNS"]
 
 #: Fields of a command in the JSONL and CSV output (the CSV's header).
 COLUMNS = ("path", "start", "end", "words", "confidence")
@@ -78,20 +79,29 @@ def format_clock(seconds: float) -> str:
     return f"{h:02d}:{m:02d}:{rest / 100:05.2f}"
 
 
+def command_text(command) -> str:
+    """One command as text: start, end (``HH:MM:SS.ss``), words, confidence."""
+    return f"{format_clock(command.start)}  {format_clock(command.end)}  {command.text}  {command.confidence:.2f}"
+
+
+def command_record(command) -> dict:
+    """One command's fields for JSON lines and CSV: start, end (s), words, confidence."""
+    return {"start": round(command.start, 3), "end": round(command.end, 3), "words": command.text,
+            "confidence": round(command.confidence, 4)}
+
+
 def text_lines(result: ScanResult) -> list[str]:
     """A heading line for the file, then one indented line per command."""
     n = len(result.commands)
     head = f"{result.path} ({format_clock(result.duration)}, {n} command{'' if n == 1 else 's'})"
-    return [head] + [f"  {format_clock(c.start)}  {format_clock(c.end)}  {c.text}  {c.confidence:.2f}"
-                     for c in result.commands]
+    return [head] + [f"  {command_text(c)}" for c in result.commands]
 
 
 def _records(result: ScanResult):
     if not result.commands:
         yield {"path": result.path, "start": None, "end": None, "words": "", "confidence": None}
     for c in result.commands:
-        yield {"path": result.path, "start": round(c.start, 3), "end": round(c.end, 3), "words": c.text,
-               "confidence": round(c.confidence, 4)}
+        yield {"path": result.path, **command_record(c)}
 
 
 def jsonl_lines(result: ScanResult) -> list[str]:
