@@ -78,6 +78,50 @@ def operating_eer(commands, non_commands) -> float:
     return float("nan") if eer is None else eer
 
 
+def tally(heard, threshold: float):
+    """Per dev set, from ``heard`` = {set name: [(reference, words heard, confidences)]}.
+
+    Returns ``(row, commands, non_commands)``: the row holds, per set, the WER (sets with
+    reference words) or the share of files with a word kept (sets without), in percent,
+    at ``threshold``; ``commands`` and ``non_commands`` are what :func:`operating_eer`
+    takes (the "words" set, and the files with no reference words).
+    """
+    from wordspot.evaluation.scoring import align_words
+
+    row, commands, non_commands = [], [], []
+    for name, items in heard.items():
+        files_with = errors = n_words = 0
+        for ref, words, conf in items:
+            if name == "words":
+                commands.append((ref, words, conf))
+            elif not ref:
+                non_commands.append((words, conf))
+            kept = [w for w, c in zip(words, conf) if c >= threshold]
+            a = align_words(ref, kept)
+            errors += a.substitutions + a.deletions + a.insertions
+            n_words += len(ref)
+            files_with += bool(kept)
+        row.append(100 * errors / n_words if n_words else 100 * files_with / len(items))
+    return row, commands, non_commands
+
+
+def set_columns(names) -> list[str]:
+    """Column headings of :func:`tally`'s row."""
+    return [("command WER" if n == "words" else f"{n} WER" if n == "real phrases" else f"{n}: files with a command")
+            for n in names]
+
+
+def print_spread(label: str, table: dict, cols) -> None:
+    """A markdown table: one row per key of ``table`` (rows of figures, one per seed),
+    each column as mean (min-max) over the seeds."""
+    print(f"| {label} | " + " | ".join(cols) + " |")
+    print("| --- |" + " ---: |" * len(cols))
+    for key, rows in table.items():
+        a = np.array(rows)
+        print(f"| {key} | " + " | ".join(f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
+                                         for j in range(a.shape[1])) + " |")
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--start", required=True, help="a starter model file with a state scorer")
@@ -89,7 +133,6 @@ def main(argv=None) -> int:
     from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
     from wordspot.decoding.decoder import DecoderSettings, build_recognizer
     from wordspot.evaluation.calibrate import CalibrationConfig, calibration_examples, fit_calibration, split_held_out
-    from wordspot.evaluation.scoring import align_words
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
     from wordspot.training.adapt import adapt
@@ -119,35 +162,16 @@ def main(argv=None) -> int:
             for variant, names in VARIANTS.items():
                 cal = fit_calibration(ex, config=config, names=names)
                 cols = [MEASURE_NAMES.index(n) for n in names]
-                row, commands, non_commands = [], [], []
-                for name, items in heard.items():
-                    files_with = errors = n_words = 0
-                    for ref, segs in items:
-                        conf = (cal.predict(np.array([s.measures for s in segs])[:, cols]) if segs
-                                else np.zeros(0))
-                        if name == "words":
-                            commands.append((ref, [s.word for s in segs], conf))
-                        elif not ref:
-                            non_commands.append(([s.word for s in segs], conf))
-                        kept = [s.word for s, c in zip(segs, conf) if c >= DEFAULT_MIN_CONFIDENCE]
-                        a = align_words(ref, kept)
-                        errors += a.substitutions + a.deletions + a.insertions
-                        n_words += len(ref)
-                        files_with += bool(kept)
-                    row.append(100 * errors / n_words if n_words else 100 * files_with / len(items))
+                scored = {name: [(ref, [g.word for g in segs],
+                                  cal.predict(np.array([g.measures for g in segs])[:, cols]) if segs else np.zeros(0))
+                                 for ref, segs in items] for name, items in heard.items()}
+                row, commands, non_commands = tally(scored, DEFAULT_MIN_CONFIDENCE)
                 row.insert(0, 100 * operating_eer(commands, non_commands))
                 table[variant].append(row)
             print(f"seed {seed} done in {time.monotonic() - t0:.0f} s ({ex.right.size} calibration words)",
                   file=sys.stderr, flush=True)
-    cols = ["EER"] + [("command WER" if n == "words" else f"{n} WER" if n == "real phrases"
-                       else f"{n}: files with a command") for n in sets]
     print(f"seeds {args.seeds}, threshold {DEFAULT_MIN_CONFIDENCE}: mean (min-max)")
-    print("| measures | " + " | ".join(cols) + " |")
-    print("| --- |" + " ---: |" * len(cols))
-    for variant, rows in table.items():
-        a = np.array(rows)
-        print(f"| {variant} | " + " | ".join(f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
-                                             for j in range(a.shape[1])) + " |")
+    print_spread("measures", table, ["EER"] + set_columns(sets))
     return 0
 
 

@@ -35,7 +35,7 @@ HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 sys.path.insert(0, str(HERE))
 
-from posterior_confidence_dev import operating_eer  # noqa: E402
+from posterior_confidence_dev import operating_eer, print_spread, set_columns, tally  # noqa: E402
 from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
 
 SETS = ("words", "real phrases", "other talk", "noise only")
@@ -78,7 +78,6 @@ def main(argv=None) -> int:
     from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
     from wordspot.decoding.decoder import DecoderSettings, build_recognizer
     from wordspot.evaluation.calibrate import CalibrationConfig, calibration_examples, fit_calibration, split_held_out
-    from wordspot.evaluation.scoring import align_words
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
     from wordspot.training.adapt import adapt
@@ -108,37 +107,22 @@ def main(argv=None) -> int:
                                           jumbled=config.jumbled, seed=seed)
                 cal = fit_calibration(ex, config=config, names=MEASURE_NAMES)
                 rec = build_recognizer(model, settings=search)
-                row, commands, non_commands = [], [], []
+                heard = {}
                 for name, items in feats.items():
-                    files_with = errors = n_words = 0
+                    heard[name] = []
                     for x, ref in items:
                         segs = rec.decode(x).segments
                         conf = cal.predict(np.array([g.measures for g in segs])) if segs else np.zeros(0)
-                        if name == "words":
-                            commands.append((ref, [g.word for g in segs], conf))
-                        elif not ref:
-                            non_commands.append(([g.word for g in segs], conf))
-                        kept = [g.word for g, c in zip(segs, conf) if c >= DEFAULT_MIN_CONFIDENCE]
-                        a = align_words(ref, kept)
-                        errors += a.substitutions + a.deletions + a.insertions
-                        n_words += len(ref)
-                        files_with += bool(kept)
-                    row.append(100 * errors / n_words if n_words else 100 * files_with / len(items))
+                        heard[name].append((ref, [g.word for g in segs], conf))
+                row, commands, non_commands = tally(heard, DEFAULT_MIN_CONFIDENCE)
                 fa5, _ = false_accepts_at_miss(commands, non_commands)
                 row[:0] = [100 * operating_eer(commands, non_commands), 100 * fa5]
                 table[text].append(row)
                 print(f"seed {seed} {text}: " + " ".join(f"{v:.1f}" for v in row), file=sys.stderr, flush=True)
             print(f"seed {seed} done in {time.monotonic() - t0:.0f} s", file=sys.stderr, flush=True)
-    cols = ["EER", "no-command files with a command at <= 5% miss"] + [
-        ("command WER" if n == "words" else f"{n} WER" if n == "real phrases" else f"{n}: files with a command")
-        for n in sets]
     print(f"seeds {args.seeds}; WER and files with a command at threshold {DEFAULT_MIN_CONFIDENCE}; mean (min-max)")
-    print("| weight, scale, filler, insertion | " + " | ".join(cols) + " |")
-    print("| --- |" + " ---: |" * len(cols))
-    for text, rows in table.items():
-        a = np.array(rows)
-        print(f"| {text} | " + " | ".join(f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
-                                          for j in range(a.shape[1])) + " |")
+    print_spread("weight, scale, filler, insertion", table,
+                 ["EER", "no-command files with a command at <= 5% miss"] + set_columns(sets))
     return 0
 
 
