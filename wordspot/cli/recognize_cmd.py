@@ -89,6 +89,9 @@ def add_decoder_options(p) -> None:
     p.add_argument("--min-confidence", type=_probability, default=None, metavar="P",
                    help="drop words whose confidence is below P (0 keeps every word; default "
                    f"{DEFAULT_MIN_CONFIDENCE:g} for a model with calibrated confidences, else 0)")
+    p.add_argument("--talk-gap", type=_seconds, default=d.talk_gap, metavar="S",
+                   help="drop a command word with other talk closer than S seconds both before and after it "
+                        f"(said inside a sentence); 0 turns this off; needs a threshold above 0 (default {d.talk_gap:g})")
     p.add_argument("--scorer-weight", type=_probability, default=d.scorer_weight, metavar="W",
                    help="share of the model's state scorer (a network over a window of frames) in the state "
                         f"scores, from 0 (mixtures only) to 1 (network only); needs a model that has one "
@@ -105,6 +108,17 @@ def _probability(text: str) -> float:
         raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, got {text!r}") from None
     if not 0.0 <= value <= 1.0:
         raise argparse.ArgumentTypeError(f"must be from 0 to 1, got {text}")
+    return value
+
+
+def _seconds(text: str) -> float:
+    """An argparse type: a finite number of seconds >= 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number of seconds >= 0, got {text!r}") from None
+    if not (0.0 <= value < math.inf):
+        raise argparse.ArgumentTypeError(f"must be a finite number of seconds >= 0, got {text}")
     return value
 
 
@@ -142,6 +156,7 @@ def settings_from_args(args) -> DecoderSettings:
         min_confidence=args.min_confidence,
         scorer_weight=args.scorer_weight,
         scorer_scale=args.scorer_scale,
+        talk_gap=args.talk_gap,
     )
 
 

@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
+from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, inside_talk
 from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, NO_POSTERIORS,
                                           split_by_confidence, usable_calibration, word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
@@ -49,6 +50,7 @@ REASON_SILENCE = "silence or noise only"
 REASON_NO_PATH = "no complete path"
 REASON_NO_COMMAND = "no command"
 REASON_LOW_CONFIDENCE = "below the confidence threshold"
+REASON_INSIDE_TALK = "inside other talk"
 
 
 @dataclass(frozen=True)
@@ -99,6 +101,11 @@ class DecoderSettings:
         then not computed). Ignored for a model without a scorer.
     scorer_scale : float > 0
         Multiplies the scorer's scaled log-likelihoods.
+    talk_gap : float >= 0
+        Seconds: a kept word with other talk (filler phones, or words below the threshold)
+        closer than this both before and after it is dropped as said inside other talk
+        (:mod:`wordspot.decoding.context`); 0 turns this off. Applies only with a threshold
+        above 0.
     """
 
     beam: float = 800.0
@@ -115,6 +122,7 @@ class DecoderSettings:
     min_confidence: float | None = None
     scorer_weight: float = 0.0
     scorer_scale: float = 1.0
+    talk_gap: float = 0.0
 
     def __post_init__(self) -> None:
         m = self.min_confidence
@@ -131,6 +139,9 @@ class DecoderSettings:
             raise DecodingError(f"scorer_weight (--scorer-weight) must be a number from 0 to 1, got {w!r}")
         if not (isinstance(sc, (int, float)) and not isinstance(sc, bool) and 0.0 < sc < np.inf):
             raise DecodingError(f"scorer_scale (--scorer-scale) must be a finite number > 0, got {sc!r}")
+        g = self.talk_gap
+        if not (isinstance(g, (int, float)) and not isinstance(g, bool) and 0.0 <= g < np.inf):
+            raise DecodingError(f"talk_gap (--talk-gap) must be a number of seconds >= 0 (0 turns it off), got {g!r}")
         self.grammar  # validates weight and penalty
         for name, option in (("filler_penalty", " (--filler-penalty)"), ("pause_penalty", " (--pause-penalty)"),
                              ("filler_frame_penalty", "")):
@@ -215,7 +226,12 @@ class Recognition:
         The file carries (next to) nothing above 4 kHz although the model's rate could
         (see :mod:`wordspot.audio.band`): telephone-band audio given to a wideband model.
     dropped : list of WordSegment
-        Words of the best path below the confidence threshold, left out of ``segments``.
+        Words of the best path below the confidence threshold, or said inside other talk
+        (``DecoderSettings.talk_gap``), left out of ``segments``.
+    path_items : list of PathItem
+        The best path's items in time order (:mod:`wordspot.decoding.context`): pauses,
+        filler phones and words, a word's ``segment`` indexing ``segments + dropped``
+        sorted by time as they were before the threshold.
     """
 
     path: str | None = None
@@ -226,6 +242,7 @@ class Recognition:
     duration: float = 0.0
     narrow_band: bool = False
     dropped: list[WordSegment] = field(default_factory=list)
+    path_items: list = field(default_factory=list)
 
     @property
     def words(self) -> list[str]:
@@ -507,10 +524,14 @@ class Recognizer:
         best_free = np.concatenate([[0.0], np.cumsum(ll.max(axis=1))])
         bg = net.background
         is_filler = [bg is not None and int(links[k, 0]) in bg.fillers for k in chain] + [False]
+        w0, _, s0, p0, e0 = (int(x) for x in links[chain[0], :5])
+        items = [PathItem(FILLER if is_filler[0] else PAUSE, s0, p0, e0)]
         for i, (prev, k) in enumerate(zip(chain[:-1], chain[1:]), start=1):
             word, pron, start, phone_end, end = (int(x) for x in links[k, :5])
             if not net.is_command(word):
+                items.append(PathItem(FILLER if is_filler[i] else PAUSE, start, phone_end, end))
                 continue  # filler or pause between commands
+            items.append(PathItem(COMMAND, start, phone_end, end, len(result.segments)))
             grammar = float(net.link_row(int(links[prev, 0]))[word])
             acoustic = float(link_scores[k] - link_scores[prev] - grammar)
             filler_margin, runner_up = self.margins(ll, word, start, end, acoustic)
@@ -536,13 +557,26 @@ class Recognizer:
                     measures=measures,
                 )
             )
-        # confidence threshold (wordspot.decoding.confidence)
-        result.segments, result.dropped = split_by_confidence(result.segments, self.min_confidence)
+        # confidence threshold (wordspot.decoding.confidence), then words said inside other talk
+        # (wordspot.decoding.context)
+        result.path_items = items
+        words, threshold = result.segments, self.min_confidence
+        result.segments, result.dropped = split_by_confidence(words, threshold)
+        inside = np.zeros(len(words), dtype=bool)
+        if self.settings.talk_gap > 0 and threshold > 0 and result.segments:
+            inside = inside_talk(items, [s.confidence for s in words], threshold,
+                                 int(round(self.settings.talk_gap / self.hop)))
+            if inside.any():
+                result.segments = [s for k, s in enumerate(words) if s.confidence >= threshold and not inside[k]]
+                result.dropped = [s for k, s in enumerate(words) if s.confidence < threshold or inside[k]]
         if len(chain) <= 1:
             result.reason = f"{REASON_SILENCE}: the recording sounds more like a pause than like any word"
+        elif result.dropped and not result.segments and inside.any():
+            result.reason = (f"{REASON_INSIDE_TALK}: every word heard ({' '.join(s.word for s in result.dropped)}) "
+                             f"has a confidence below {threshold:g} or was said inside other talk")
         elif result.dropped and not result.segments:
             result.reason = (f"{REASON_LOW_CONFIDENCE}: every word heard ({' '.join(s.word for s in result.dropped)}) "
-                             f"has a confidence below {self.min_confidence:g}")
+                             f"has a confidence below {threshold:g}")
         elif not result.segments:
             result.reason = (f"{REASON_NO_COMMAND}: the recording sounds more like other talk or "
                              "background sound than like any of the command words (filler and pause models)")

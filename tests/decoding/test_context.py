@@ -1,0 +1,109 @@
+"""Words said inside other talk (wordspot.decoding.context) and the decoder's talk_gap.
+
+The paths below are built by hand; each expected mark is worked out in the comment beside
+it from the rule's definition (talk = filler phones or a word below the threshold; the
+pause between counts pause items and the earlier word's trailing pause).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from decoding_helpers import frames_along, pause_mixtures, tiny_model, word_mixtures
+from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, inside_talk
+from wordspot.decoding.decoder import REASON_INSIDE_TALK, DecoderSettings, build_recognizer
+from wordspot.errors import DecodingError
+
+
+def _path(*spec):
+    """Items from (kind, first, phone_end, last[, segment]) tuples."""
+    return [PathItem(*s) for s in spec]
+
+
+# pause 0-9 | filler 10-19 | word 0: 20-29 (phones to 27, 2 frames of trailing pause) | filler 30-39 | pause 40-49
+SENTENCE = _path((PAUSE, 0, 9, 9), (FILLER, 10, 19, 19), (COMMAND, 20, 27, 29, 0), (FILLER, 30, 39, 39),
+                 (PAUSE, 40, 49, 49))
+
+
+def test_a_word_between_filler_phones_is_inside_talk():
+    # talk right before (0 frames of pause) and 2 frames after (its own trailing pause) < 5
+    assert inside_talk(SENTENCE, [0.9], 0.05, 5).tolist() == [True]
+    # a gap of 2 frames is not closer than 2: the after side is no longer talk
+    assert inside_talk(SENTENCE, [0.9], 0.05, 2).tolist() == [False]
+    # ... but one side is enough with sides=1
+    assert inside_talk(SENTENCE, [0.9], 0.05, 2, sides=1).tolist() == [True]
+    # gap 0 turns the rule off; a word below the threshold is never marked (already dropped)
+    assert inside_talk(SENTENCE, [0.9], 0.05, 0).tolist() == [False]
+    assert inside_talk(SENTENCE, [0.01], 0.05, 5).tolist() == [False]
+
+
+def test_a_command_between_pauses_or_kept_commands_is_not_inside_talk():
+    alone = _path((PAUSE, 0, 29, 29), (COMMAND, 30, 39, 39, 0), (PAUSE, 40, 79, 79))
+    assert inside_talk(alone, [0.9], 0.05, 50).tolist() == [False]  # the recording's ends, no talk
+    # "oven three minutes": three kept words next to each other; no talk on any side
+    phrase = _path((PAUSE, 0, 9, 9), (COMMAND, 10, 19, 19, 0), (COMMAND, 20, 29, 29, 1), (COMMAND, 30, 39, 39, 2),
+                   (PAUSE, 40, 49, 49))
+    assert inside_talk(phrase, [0.9, 0.8, 0.7], 0.05, 50).tolist() == [False, False, False]
+
+
+def test_words_below_the_threshold_count_as_talk_with_their_trailing_pause():
+    # word 0 (0.01, dropped) 10-19, phones to 16: 3 frames of trailing pause; pause item 20-21;
+    # word 1 (kept) 22-29; word 2 (0.02, dropped) right after.
+    path = _path((PAUSE, 0, 9, 9), (COMMAND, 10, 16, 19, 0), (PAUSE, 20, 21, 21), (COMMAND, 22, 29, 29, 1),
+                 (COMMAND, 30, 39, 39, 2), (PAUSE, 40, 49, 49))
+    conf = [0.01, 0.9, 0.02]
+    # before: 2 (pause item) + 3 (word 0's trailing pause) = 5 frames; after: 0 frames
+    assert inside_talk(path, conf, 0.05, 6).tolist() == [False, True, False]
+    assert inside_talk(path, conf, 0.05, 5).tolist() == [False, False, False]  # 5 is not closer than 5
+    # with a threshold of 0.005 the neighbours are kept words: nothing is talk
+    assert inside_talk(path, conf, 0.005, 50).tolist() == [False, False, False]
+
+
+def test_sides_must_be_one_or_two():
+    with pytest.raises(ValueError, match="sides"):
+        inside_talk(SENTENCE, [0.9], 0.05, 5, sides=3)
+
+
+def test_talk_gap_setting_is_checked():
+    with pytest.raises(DecodingError, match="talk_gap"):
+        DecoderSettings(talk_gap=-0.1)
+    with pytest.raises(DecodingError, match="talk_gap"):
+        DecoderSettings(talk_gap=float("inf"))
+
+
+ENTRIES = {"bat": [["B", "AA", "T"]], "sack": [["S", "AA", "K"]]}
+
+
+def test_the_decoder_drops_a_word_inside_other_talk_and_says_why():
+    # Frames: pause, non-word phones (T K S) the filler takes, "bat", non-word phones again,
+    # pause. The word is right on the best path; with talk_gap it has filler phones on both
+    # sides with no pause between, so it is dropped, and the reason names other talk.
+    rng = np.random.default_rng(11)
+    model = tiny_model(rng, ENTRIES)
+    mixtures = (pause_mixtures(model, 8) + word_mixtures(model, ["T", "K", "S"]) + word_mixtures(model, ["B", "AA", "T"])
+                + word_mixtures(model, ["K", "T", "S"]) + pause_mixtures(model, 8))
+    frames = frames_along(model, mixtures, rng)
+    base = dict(grammar_weight=0.0, insertion_penalty=-20.0, filler_penalty=-10.0, min_confidence=0.001)
+    plain = build_recognizer(model, settings=DecoderSettings.unpruned(**base)).decode(frames)
+    assert plain.words == ["bat"]
+    kinds = [it.kind for it in plain.path_items]
+    i = kinds.index(COMMAND)
+    assert kinds[i - 1] == FILLER and kinds[i + 1] == FILLER  # the path the rule reads
+    got = build_recognizer(model, settings=DecoderSettings.unpruned(**base, talk_gap=0.1)).decode(frames)
+    assert got.words == [] and [s.word for s in got.dropped] == ["bat"]
+    assert got.reason.startswith(REASON_INSIDE_TALK)
+    # threshold 0 keeps every word: the rule does not apply
+    keep = build_recognizer(model, settings=DecoderSettings.unpruned(**{**base, "min_confidence": 0.0},
+                                                                     talk_gap=0.1)).decode(frames)
+    assert keep.words == ["bat"]
+
+
+def test_the_decoder_keeps_a_word_said_between_pauses():
+    rng = np.random.default_rng(12)
+    model = tiny_model(rng, ENTRIES)
+    frames = frames_along(model, pause_mixtures(model, 8) + word_mixtures(model, ["B", "AA", "T"])
+                          + pause_mixtures(model, 8), rng)
+    settings = DecoderSettings.unpruned(grammar_weight=0.0, insertion_penalty=-20.0, filler_penalty=-10.0,
+                                        min_confidence=0.001, talk_gap=0.5)
+    assert build_recognizer(model, settings=settings).decode(frames).words == ["bat"]
