@@ -12,7 +12,8 @@ dev split also has (flite-awb, espeak-en-gb-x-gbclan-f5) between two of that voi
 sentences from that split (none with a lexicon word), 0.05-1.0 s of the first sentence's
 room tone on each side (uniform, our own assumption of how people pause around a command
 among talk; chosen before any result). WER over the commands: the cost of the rule where
-commands sit among talk, and the words the talk adds.
+commands sit among talk, and the words the talk adds. And ``other sentences``: the
+sentences of ``other talk`` alone (a word said alone is never inside talk).
 
     python tests/benchmarks/talk_gap_dev.py [--seeds 0 1 2]
 """
@@ -34,9 +35,10 @@ sys.path.insert(0, str(HERE))
 from tune_filler import NO_COMMAND, dev_sets, write_dev_train_manifest  # noqa: E402
 from joined_pauses import RATE  # noqa: E402
 
-THRESHOLDS = (0.05, 0.1, 0.2)
-GAPS = (0.0, 0.05, 0.1, 0.2, 0.3, 0.5)
-SIDES = (2, 1)
+THRESHOLDS = (0.05, 0.1)
+GAPS = (0.0, 0.1, 0.2, 0.3, 0.4)
+#: (sides, look past kept commands)
+VARIANTS = ((2, False), (2, True))
 
 
 def among_talk(model, n: int = 120, seed: int = 20261203):
@@ -75,6 +77,19 @@ def among_talk(model, n: int = 120, seed: int = 20261203):
     return out
 
 
+def other_sentences(model):
+    """The sentences among the starter corpus's dev recordings with no lexicon word."""
+    from wordspot.audio.reading import load_audio
+
+    start_dev = REPO / "recordings" / "starter" / "dev.csv"
+    if not start_dev.exists():
+        return []
+    vocab = set(model.lexicon.words)
+    with open(start_dev, newline="", encoding="utf-8") as fh:
+        rows = [r for r in csv.DictReader(fh) if r["kind"] == "sentence" and not (set(r["transcript"].split()) & vocab)]
+    return [(load_audio(start_dev.parent / r["path"], sample_rate=RATE), []) for r in rows]
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
@@ -101,6 +116,9 @@ def main(argv=None) -> int:
                 extra = among_talk(model)
                 if extra:
                     sets["among talk"] = extra
+                sentences = other_sentences(model)
+                if sentences:  # the sentences of "other talk" alone (a word said alone is never inside talk)
+                    sets["other sentences"] = sentences
             rec = build_recognizer(model, settings=settings)
             heard = {}
             for name, items in sets.items():
@@ -113,33 +131,37 @@ def main(argv=None) -> int:
             hop = rec.hop
             for t in THRESHOLDS:
                 for g in GAPS:
-                    for sides in SIDES if g > 0 else (2,):
+                    for sides, through in VARIANTS if g > 0 else ((2, False),):
                         row = []
                         for name, items in heard.items():
                             right = errors = n_words = 0
                             for ref, hyp, conf, path in items:
-                                inside = inside_talk(path, conf, t, int(round(g / hop)), sides)
+                                inside = inside_talk(path, conf, t, int(round(g / hop)), sides, through)
                                 kept = [w for k, w in enumerate(hyp) if conf[k] >= t and not inside[k]]
                                 right += kept == ref
                                 a = align_words(ref, kept)
                                 errors += a.substitutions + a.deletions + a.insertions
                                 n_words += len(ref)
                             row.append(100 * (1 - right / len(items)) if name in NO_COMMAND or name == "joined"
+                                       or name == "other sentences"
                                        or name.startswith("noisy") else 100 * errors / max(n_words, 1))
-                        table.setdefault((t, g, sides), []).append(row)
+                        table.setdefault((t, g, sides, through), []).append(row)
             print(f"seed {seed} done", file=sys.stderr, flush=True)
     label = {"words": "command WER", "joined": "joined: not exactly right", "phrases": "phrase stand-ins WER",
              "real phrases": "real phrases WER", "among talk": "among talk WER"}
-    names = [label.get(n, f"{n}: files with a command" if n in NO_COMMAND else f"{n}: not exactly right")
+    names = [label.get(n, f"{n}: files with a command" if n in NO_COMMAND or n == "other sentences"
+                       else f"{n}: not exactly right")
              for n in sets]
-    print(f"seeds {args.seeds}: mean (min-max); 'sum' adds the columns' means")
-    print("| threshold | gap s | sides | " + " | ".join(names) + " | sum |")
-    print("| ---: | ---: | ---: |" + " ---: |" * (len(names) + 1))
-    for (t, g, sides), rows in table.items():
+    summed = [j for j, n in enumerate(sets) if n != "other sentences"]  # a part of "other talk"
+    print(f"seeds {args.seeds}: mean (min-max); 'sum' adds the columns' means (other sentences, a part of "
+          "other talk, left out)")
+    print("| threshold | gap s | sides | past kept commands | " + " | ".join(names) + " | sum |")
+    print("| ---: | ---: | ---: | --- |" + " ---: |" * (len(names) + 1))
+    for (t, g, sides, through), rows in table.items():
         a = np.array(rows)
-        print(f"| {t:g} | {g:g} | {sides if g > 0 else '-'} | "
+        print(f"| {t:g} | {g:g} | {sides if g > 0 else '-'} | {('yes' if through else 'no') if g > 0 else '-'} | "
               + " | ".join(f"{a[:, j].mean():.1f} ({a[:, j].min():.1f}-{a[:, j].max():.1f})" for j in range(a.shape[1]))
-              + f" | {a.mean(axis=0).sum():.1f} |")
+              + f" | {a.mean(axis=0)[summed].sum():.1f} |")
     return 0
 
 

@@ -60,6 +60,23 @@ def test_words_below_the_threshold_count_as_talk_with_their_trailing_pause():
     assert inside_talk(path, conf, 0.005, 50).tolist() == [False, False, False]
 
 
+def test_looking_past_kept_commands_judges_words_said_together_as_one_group():
+    # filler | A 10-19 (phones to 17) | pause 20-21 | B 22-29 | filler: A and B are kept and
+    # close (2 + 2 = 4 frames apart), said together inside talk
+    inside = _path((FILLER, 0, 9, 9), (COMMAND, 10, 17, 19, 0), (PAUSE, 20, 21, 21), (COMMAND, 22, 29, 29, 1),
+                   (FILLER, 30, 39, 39))
+    # each word stops at its kept neighbour: one side only, not marked
+    assert inside_talk(inside, [0.9, 0.9], 0.05, 10).tolist() == [False, False]
+    # looking past the neighbour (4 frames < 10) finds the filler on both sides of the group
+    assert inside_talk(inside, [0.9, 0.9], 0.05, 10, through=True).tolist() == [True, True]
+    # a gap of 4 frames or less separates them: each word's far side ends at the other word
+    assert inside_talk(inside, [0.9, 0.9], 0.05, 4, through=True).tolist() == [False, False]
+    # the same two words between pauses of 30 frames: no talk within 10 frames of the group
+    between = _path((PAUSE, 0, 29, 29), (COMMAND, 30, 37, 39, 0), (PAUSE, 40, 41, 41), (COMMAND, 42, 49, 49, 1),
+                    (PAUSE, 50, 79, 79))
+    assert inside_talk(between, [0.9, 0.9], 0.05, 10, through=True).tolist() == [False, False]
+
+
 def test_sides_must_be_one_or_two():
     with pytest.raises(ValueError, match="sides"):
         inside_talk(SENTENCE, [0.9], 0.05, 5, sides=3)

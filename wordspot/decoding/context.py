@@ -45,9 +45,11 @@ class PathItem:
 
 
 def _side_is_talk(items: Sequence[PathItem], at: int, step: int, pause: int, confidences, threshold: float,
-                  gap: int) -> bool:
+                  gap: int, through: bool) -> bool:
     """Whether other talk starts within ``gap`` frames of item ``at`` going in direction
-    ``step`` (-1 before, +1 after), ``pause`` frames of pause already counted."""
+    ``step`` (-1 before, +1 after), ``pause`` frames of pause already counted; with
+    ``through``, kept commands closer than ``gap`` are passed over (the words said together
+    are judged as one group)."""
     j = at + step
     while 0 <= j < len(items):
         it = items[j]
@@ -56,11 +58,13 @@ def _side_is_talk(items: Sequence[PathItem], at: int, step: int, pause: int, con
         elif it.kind == FILLER:
             return pause < gap
         else:
-            if confidences[it.segment] >= threshold:
-                return False  # a kept command: commands said together
             if step < 0:
                 pause += it.last - it.phone_end  # its trailing pause lies between
-            return pause < gap
+            if confidences[it.segment] < threshold:
+                return pause < gap  # a dropped word: other talk
+            if not through or pause >= gap:
+                return False  # a kept command: commands said together
+            pause = 0 if step < 0 else it.last - it.phone_end
         if pause >= gap:
             return False
         j += step
@@ -68,7 +72,7 @@ def _side_is_talk(items: Sequence[PathItem], at: int, step: int, pause: int, con
 
 
 def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], threshold: float, gap: int,
-                sides: int = 2) -> np.ndarray:
+                sides: int = 2, through: bool = False) -> np.ndarray:
     """Which words have other talk closer than ``gap`` frames on ``sides`` sides (1 or 2).
 
     Parameters
@@ -82,6 +86,9 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
     gap : int >= 0
         Frames of pause that separate a word from talk; 0 marks nothing.
     sides : {1, 2}
+    through : bool
+        Look past kept commands closer than ``gap`` (judge words said together as one
+        group: a phrase between pauses is kept, a phrase inside a sentence is not).
 
     Returns
     -------
@@ -95,7 +102,7 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
     for k, it in enumerate(items):
         if it.kind != COMMAND or confidences[it.segment] < threshold:
             continue
-        before = _side_is_talk(items, k, -1, 0, confidences, threshold, gap)
-        after = _side_is_talk(items, k, +1, it.last - it.phone_end, confidences, threshold, gap)
+        before = _side_is_talk(items, k, -1, 0, confidences, threshold, gap, through)
+        after = _side_is_talk(items, k, +1, it.last - it.phone_end, confidences, threshold, gap, through)
         marked[it.segment] = (before + after) >= sides
     return marked
