@@ -35,10 +35,10 @@ sys.path.insert(0, str(HERE))
 from tune_filler import NO_COMMAND, dev_sets, write_dev_train_manifest  # noqa: E402
 from joined_pauses import RATE  # noqa: E402
 
-THRESHOLDS = (0.05, 0.1)
-GAPS = (0.0, 0.1, 0.2, 0.3, 0.4)
-#: (sides, look past kept commands)
-VARIANTS = ((2, False), (2, True))
+THRESHOLDS = (0.05,)
+GAPS = (0.0, 0.2, 0.3, 0.4)
+#: (sides, look past kept commands, seconds of talk a side needs)
+VARIANTS = ((2, True, 0.0), (2, True, 0.3), (1, True, 0.3), (1, True, 0.5), (1, True, 0.8))
 
 
 def among_talk(model, n: int = 120, seed: int = 20261203):
@@ -93,6 +93,7 @@ def other_sentences(model):
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
+    ap.add_argument("--gaps", type=float, nargs="+", default=list(GAPS), help="gaps in seconds (0: the rule off)")
     ap.add_argument("--joined", type=int, default=100, help="joined files and phrase stand-ins (default 100)")
     args = ap.parse_args(argv)
 
@@ -130,13 +131,14 @@ def main(argv=None) -> int:
                                         r.path_items))
             hop = rec.hop
             for t in THRESHOLDS:
-                for g in GAPS:
-                    for sides, through in VARIANTS if g > 0 else ((2, False),):
+                for g in args.gaps:
+                    for sides, through, least in VARIANTS if g > 0 else ((2, False, 0.0),):
                         row = []
                         for name, items in heard.items():
                             right = errors = n_words = 0
                             for ref, hyp, conf, path in items:
-                                inside = inside_talk(path, conf, t, int(round(g / hop)), sides, through)
+                                inside = inside_talk(path, conf, t, int(round(g / hop)), sides, through,
+                                                     int(round(least / hop)))
                                 kept = [w for k, w in enumerate(hyp) if conf[k] >= t and not inside[k]]
                                 right += kept == ref
                                 a = align_words(ref, kept)
@@ -145,7 +147,7 @@ def main(argv=None) -> int:
                             row.append(100 * (1 - right / len(items)) if name in NO_COMMAND or name == "joined"
                                        or name == "other sentences"
                                        or name.startswith("noisy") else 100 * errors / max(n_words, 1))
-                        table.setdefault((t, g, sides, through), []).append(row)
+                        table.setdefault((t, g, sides, through, least), []).append(row)
             print(f"seed {seed} done", file=sys.stderr, flush=True)
     label = {"words": "command WER", "joined": "joined: not exactly right", "phrases": "phrase stand-ins WER",
              "real phrases": "real phrases WER", "among talk": "among talk WER"}
@@ -155,11 +157,12 @@ def main(argv=None) -> int:
     summed = [j for j, n in enumerate(sets) if n != "other sentences"]  # a part of "other talk"
     print(f"seeds {args.seeds}: mean (min-max); 'sum' adds the columns' means (other sentences, a part of "
           "other talk, left out)")
-    print("| threshold | gap s | sides | past kept commands | " + " | ".join(names) + " | sum |")
-    print("| ---: | ---: | ---: | --- |" + " ---: |" * (len(names) + 1))
-    for (t, g, sides, through), rows in table.items():
+    print("| threshold | gap s | sides | past kept commands | talk s | " + " | ".join(names) + " | sum |")
+    print("| ---: | ---: | ---: | --- | ---: |" + " ---: |" * (len(names) + 1))
+    for (t, g, sides, through, least), rows in table.items():
         a = np.array(rows)
         print(f"| {t:g} | {g:g} | {sides if g > 0 else '-'} | {('yes' if through else 'no') if g > 0 else '-'} | "
+              f"{least:g} | "
               + " | ".join(f"{a[:, j].mean():.1f} ({a[:, j].min():.1f}-{a[:, j].max():.1f})" for j in range(a.shape[1]))
               + f" | {a.mean(axis=0)[summed].sum():.1f} |")
     return 0

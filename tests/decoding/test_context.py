@@ -1,4 +1,4 @@
-"""Words said inside other talk (wordspot.decoding.context) and the decoder's talk_gap.
+"""Words said amid other talk (wordspot.decoding.context) and the decoder's talk_gap.
 
 The paths below are built by hand; each expected mark is worked out in the comment beside
 it from the rule's definition (talk = filler phones or a word below the threshold; the
@@ -77,6 +77,24 @@ def test_looking_past_kept_commands_judges_words_said_together_as_one_group():
     assert inside_talk(between, [0.9, 0.9], 0.05, 10, through=True).tolist() == [False, False]
 
 
+def test_a_side_needs_enough_talk_when_asked():
+    # pause | filler 10-12 (3 frames: a noise blip) | word 13-22 | pause 23-40 | filler 41-70 (30 frames)
+    path = _path((PAUSE, 0, 9, 9), (FILLER, 10, 12, 12), (COMMAND, 13, 22, 22, 0), (PAUSE, 23, 40, 40),
+                 (FILLER, 41, 70, 70))
+    # one side is enough: the blip before counts as talk without a least amount ...
+    assert inside_talk(path, [0.9], 0.05, 5, sides=1).tolist() == [True]
+    # ... but not with at least 10 frames asked; the long talk after is 18 frames away (>= 5)
+    assert inside_talk(path, [0.9], 0.05, 5, sides=1, min_talk=10).tolist() == [False]
+    # with a gap of 20 the talk after is within reach and is 30 frames long
+    assert inside_talk(path, [0.9], 0.05, 20, sides=1, min_talk=10).tolist() == [True]
+    # going back, talk is summed over filler and dropped words (their trailing pauses do not
+    # end it while shorter than the gap): dropped word 0-7 (phones to 5) | filler 8-12 | word
+    back = _path((COMMAND, 0, 5, 7, 0), (FILLER, 8, 12, 12), (COMMAND, 13, 22, 22, 1), (PAUSE, 23, 60, 60))
+    assert inside_talk(back, [0.01, 0.9], 0.05, 5, sides=1, min_talk=11).tolist() == [False, True]  # 6 + 5 = 11
+    assert inside_talk(back, [0.01, 0.9], 0.05, 5, sides=1, min_talk=12).tolist() == [False, False]
+    assert inside_talk(back, [0.01, 0.9], 0.05, 2, sides=1, min_talk=11).tolist() == [False, False]  # 2 >= 2
+
+
 def test_sides_must_be_one_or_two():
     with pytest.raises(ValueError, match="sides"):
         inside_talk(SENTENCE, [0.9], 0.05, 5, sides=3)
@@ -87,6 +105,8 @@ def test_talk_gap_setting_is_checked():
         DecoderSettings(talk_gap=-0.1)
     with pytest.raises(DecodingError, match="talk_gap"):
         DecoderSettings(talk_gap=float("inf"))
+    with pytest.raises(DecodingError, match="talk_length"):
+        DecoderSettings(talk_length=-1.0)
 
 
 ENTRIES = {"bat": [["B", "AA", "T"]], "sack": [["S", "AA", "K"]]}
@@ -101,15 +121,22 @@ def test_the_decoder_drops_a_word_inside_other_talk_and_says_why():
     mixtures = (pause_mixtures(model, 8) + word_mixtures(model, ["T", "K", "S"]) + word_mixtures(model, ["B", "AA", "T"])
                 + word_mixtures(model, ["K", "T", "S"]) + pause_mixtures(model, 8))
     frames = frames_along(model, mixtures, rng)
-    base = dict(grammar_weight=0.0, insertion_penalty=-20.0, filler_penalty=-10.0, min_confidence=0.001)
-    plain = build_recognizer(model, settings=DecoderSettings.unpruned(**base)).decode(frames)
+    base = dict(grammar_weight=0.0, insertion_penalty=-20.0, filler_penalty=-10.0, min_confidence=0.001,
+                talk_length=0.0)
+    plain = build_recognizer(model, settings=DecoderSettings.unpruned(**base, talk_gap=0.0)).decode(frames)
     assert plain.words == ["bat"]
     kinds = [it.kind for it in plain.path_items]
     i = kinds.index(COMMAND)
     assert kinds[i - 1] == FILLER and kinds[i + 1] == FILLER  # the path the rule reads
     got = build_recognizer(model, settings=DecoderSettings.unpruned(**base, talk_gap=0.1)).decode(frames)
     assert got.words == [] and [s.word for s in got.dropped] == ["bat"]
-    assert got.reason.startswith(REASON_INSIDE_TALK)
+    assert got.reason.startswith(REASON_INSIDE_TALK) and got.dropped[0].amid_talk
+    assert not plain.segments[0].amid_talk
+    # the talk on each side is 3 phones x 3 states x 3 frames = 27 frames (0.27 s at the 10 ms
+    # hop): with at least 0.5 s of talk asked (the default) it is too short to count
+    short = build_recognizer(model, settings=DecoderSettings.unpruned(**{**base, "talk_length": 0.5},
+                                                                      talk_gap=0.1)).decode(frames)
+    assert short.words == ["bat"]
     # threshold 0 keeps every word: the rule does not apply
     keep = build_recognizer(model, settings=DecoderSettings.unpruned(**{**base, "min_confidence": 0.0},
                                                                      talk_gap=0.1)).decode(frames)

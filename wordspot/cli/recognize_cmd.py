@@ -90,8 +90,11 @@ def add_decoder_options(p) -> None:
                    help="drop words whose confidence is below P (0 keeps every word; default "
                    f"{DEFAULT_MIN_CONFIDENCE:g} for a model with calibrated confidences, else 0)")
     p.add_argument("--talk-gap", type=_seconds, default=d.talk_gap, metavar="S",
-                   help="drop a command word with other talk closer than S seconds both before and after it "
-                        f"(said inside a sentence); 0 turns this off; needs a threshold above 0 (default {d.talk_gap:g})")
+                   help="drop a command said with less than S seconds of pause between it and other talk "
+                        f"(said amid a sentence); 0 turns this off; needs a threshold above 0 (default {d.talk_gap:g})")
+    p.add_argument("--talk-length", type=_seconds, default=d.talk_length, metavar="S",
+                   help="how many seconds of other talk count as talk for --talk-gap (shorter sounds next to "
+                        f"a command, a breath or a click, do not; default {d.talk_length:g})")
     p.add_argument("--scorer-weight", type=_probability, default=d.scorer_weight, metavar="W",
                    help="share of the model's state scorer (a network over a window of frames) in the state "
                         f"scores, from 0 (mixtures only) to 1 (network only); needs a model that has one "
@@ -157,6 +160,7 @@ def settings_from_args(args) -> DecoderSettings:
         scorer_weight=args.scorer_weight,
         scorer_scale=args.scorer_scale,
         talk_gap=args.talk_gap,
+        talk_length=args.talk_length,
     )
 
 
@@ -203,7 +207,8 @@ def format_jsonl(r: Recognition) -> str:
     }
     if r.dropped:
         record["below_threshold"] = [{"word": s.word, "start": round(s.start, 3), "end": round(s.end, 3),
-                                      "confidence": round(s.confidence, 4)} for s in r.dropped]
+                                      "confidence": round(s.confidence, 4), **({"amid_talk": True} if s.amid_talk else {})}
+                                     for s in r.dropped]
     if r.reason:
         record["reason"] = r.reason
     if r.error:

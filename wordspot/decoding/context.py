@@ -1,18 +1,25 @@
-"""Commands said inside other talk: talk right before and right after a word.
+"""Commands said amid other talk: talk right before or right after a word.
 
 A person gives a command between pauses, alone or with other commands ("oven three
 minutes"); a command word heard in the middle of a sentence ("when" heard as "one" in
-"wipe the counter when you have a moment") has other talk right before and right after
-it. On the best path, other talk shows as the filler's phones or as command words whose
-confidence is below the threshold (the search, paying a penalty for every filler phone,
-often spells a sentence with poor command words rather than with the filler).
+"wipe the counter when you have a moment") has other talk right next to it. On the best
+path, other talk shows as the filler's phones or as command words whose confidence is
+below the threshold (the search, paying a penalty for every filler phone, often spells a
+sentence with poor command words rather than with the filler).
 
-:func:`inside_talk` marks a kept word as *inside talk* when, on both of its sides (or on
-either, with ``sides=1``), other talk comes closer than ``gap`` frames: the pause between
-them (pause items and the words' own trailing pauses) is shorter than that. A kept
-neighbouring command, the start or the end of the recording ends the search on that side
-with "no talk there". The decoder drops such words like words below the threshold
-(:class:`wordspot.decoding.decoder.DecoderSettings.talk_gap`).
+:func:`inside_talk` marks a kept word when other talk comes closer than ``gap`` frames
+(the pause between them, pause items and words' own trailing pauses, is shorter) on both
+of its sides, or with ``sides=1`` on either. ``min_talk`` asks that the talk found be that
+many frames long (filler phones and dropped words' phones, short pauses inside allowed),
+so that a breath or a click next to a command is not talk. A kept neighbouring command
+ends the search on that side ("commands said together"), or with ``through`` is looked
+past, so that words said together are judged as one group; the start or the end of the
+recording ends it with "no talk there".
+
+The decoder (``DecoderSettings.talk_gap``, ``talk_length``) uses one side, looking past
+kept commands, with a gap of 0.2 s and at least 0.5 s of talk: chosen on the demo's dev
+voices (docs/experiments/2026-12-03-commands-amid-talk.md), and drops the marked words
+like words below the threshold.
 """
 
 from __future__ import annotations
@@ -44,24 +51,50 @@ class PathItem:
     segment: int = -1
 
 
+def _talk_length(items: Sequence[PathItem], j: int, step: int, confidences, threshold: float, gap: int) -> int:
+    """Frames of talk (filler phones, phones of words below the threshold) in the stretch of
+    talk starting at item ``j`` in direction ``step``; pauses shorter than ``gap`` inside it
+    do not end it."""
+    talk = pause = 0
+    first = j
+    while 0 <= j < len(items):
+        it = items[j]
+        if it.kind == PAUSE:
+            pause += it.last - it.first + 1
+            if pause >= gap:
+                break
+        elif it.kind == FILLER or confidences[it.segment] < threshold:
+            trailing = it.last - it.phone_end
+            if step < 0 and j != first:
+                pause += trailing  # going back, a word's trailing pause comes before its phones
+                if pause >= gap:
+                    break
+            talk += it.phone_end - it.first + 1
+            pause = trailing if step > 0 else 0
+        else:
+            break  # a kept command
+        j += step
+    return talk
+
+
 def _side_is_talk(items: Sequence[PathItem], at: int, step: int, pause: int, confidences, threshold: float,
-                  gap: int, through: bool) -> bool:
-    """Whether other talk starts within ``gap`` frames of item ``at`` going in direction
-    ``step`` (-1 before, +1 after), ``pause`` frames of pause already counted; with
-    ``through``, kept commands closer than ``gap`` are passed over (the words said together
-    are judged as one group)."""
+                  gap: int, through: bool, min_talk: int) -> bool:
+    """Whether at least ``min_talk`` frames of other talk start within ``gap`` frames of
+    item ``at`` going in direction ``step`` (-1 before, +1 after), ``pause`` frames of pause
+    already counted; with ``through``, kept commands closer than ``gap`` are passed over
+    (the words said together are judged as one group)."""
     j = at + step
     while 0 <= j < len(items):
         it = items[j]
         if it.kind == PAUSE:
             pause += it.last - it.first + 1
         elif it.kind == FILLER:
-            return pause < gap
+            return pause < gap and _talk_length(items, j, step, confidences, threshold, gap) >= min_talk
         else:
             if step < 0:
                 pause += it.last - it.phone_end  # its trailing pause lies between
-            if confidences[it.segment] < threshold:
-                return pause < gap  # a dropped word: other talk
+            if confidences[it.segment] < threshold:  # a dropped word: other talk
+                return pause < gap and _talk_length(items, j, step, confidences, threshold, gap) >= min_talk
             if not through or pause >= gap:
                 return False  # a kept command: commands said together
             pause = 0 if step < 0 else it.last - it.phone_end
@@ -72,7 +105,7 @@ def _side_is_talk(items: Sequence[PathItem], at: int, step: int, pause: int, con
 
 
 def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], threshold: float, gap: int,
-                sides: int = 2, through: bool = False) -> np.ndarray:
+                sides: int = 2, through: bool = False, min_talk: int = 0) -> np.ndarray:
     """Which words have other talk closer than ``gap`` frames on ``sides`` sides (1 or 2).
 
     Parameters
@@ -89,6 +122,9 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
     through : bool
         Look past kept commands closer than ``gap`` (judge words said together as one
         group: a phrase between pauses is kept, a phrase inside a sentence is not).
+    min_talk : int >= 0
+        Frames of talk a side needs (filler phones and dropped words' phones, pauses
+        shorter than ``gap`` inside it allowed) to count as talk.
 
     Returns
     -------
@@ -102,7 +138,7 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
     for k, it in enumerate(items):
         if it.kind != COMMAND or confidences[it.segment] < threshold:
             continue
-        before = _side_is_talk(items, k, -1, 0, confidences, threshold, gap, through)
-        after = _side_is_talk(items, k, +1, it.last - it.phone_end, confidences, threshold, gap, through)
+        before = _side_is_talk(items, k, -1, 0, confidences, threshold, gap, through, min_talk)
+        after = _side_is_talk(items, k, +1, it.last - it.phone_end, confidences, threshold, gap, through, min_talk)
         marked[it.segment] = (before + after) >= sides
     return marked
