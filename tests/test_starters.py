@@ -158,20 +158,33 @@ def _distractors(kind, n=10):
     return [RECORDINGS / r["path"] for r in rows[:: len(rows) // n][:n]]
 
 
-@pytest.mark.xfail(strict=True, reason="not reached yet: the shipped starter with its calibration still hears a "
-                   "command in 2 of these 10 noise files and 7 of the 10 sentences at the default threshold 0.05 "
-                   "(docs/experiments/2026-12-02-default-threshold.md); without a calibration 4 and 10")
-@pytest.mark.parametrize("kind, at_most", [("noise", 0), ("sentence", 2)])
-def test_starter_says_no_command_on_noise_and_other_talk(kind, at_most):
-    # Demo distractor files (recordings/distractors.csv; never used to tune anything): kitchen
-    # noise alone, and sentences of other talk by the demo's test voices. The shipped starter
-    # with the bakery words and its own calibration at the default threshold must hear no
-    # command in (nearly) all of them; without the calibration it hears one in most.
+def _fired(kind, settings=None):
     from wordspot.decoding.decoder import recognize_files
     from wordspot.language.lexicon import read_lexicon
 
-    model = load_model("starter")
-    files = _distractors(kind)
-    got = recognize_files(model, files, lexicon=read_lexicon(LEXICON_DIR / "bakery.txt"))
-    fired = [f"{r.path}: {r.text}" for r in got if r.segments]
-    assert len(fired) <= at_most, fired
+    got = recognize_files(load_model("starter"), _distractors(kind), lexicon=read_lexicon(LEXICON_DIR / "bakery.txt"),
+                          settings=settings)
+    return [f"{r.path}: {r.text}" for r in got if r.segments]
+
+
+@pytest.mark.xfail(strict=True, reason="not reached yet: the shipped starter with its calibration still hears a "
+                   "command in 2 of these 10 noise files at the default threshold 0.05 "
+                   "(docs/experiments/2026-12-02-default-threshold.md); without a calibration 4")
+def test_starter_says_no_command_on_noise():
+    # Demo distractor files (recordings/distractors.csv; never used to tune anything): kitchen
+    # noise alone. The shipped starter with the bakery words and its own calibration at the
+    # default settings must hear no command in any of them.
+    fired = _fired("noise")
+    assert not fired, fired
+
+
+def test_starter_says_no_command_on_other_talk():
+    # Sentences of other talk by the demo's test voices (recordings/distractors.csv; never used
+    # to tune anything). With the default settings (calibration, threshold 0.05, commands amid
+    # other talk dropped) the shipped starter hears a command in at most 2 of these 10; with
+    # the rule for commands amid talk off it heard one in 7 when this was written (2026-12-03).
+    from wordspot.decoding.decoder import DecoderSettings
+
+    fired = _fired("sentence")
+    assert len(fired) <= 2, fired
+    assert len(_fired("sentence", DecoderSettings(talk_gap=0.0))) > len(fired)  # the rule does the work
