@@ -77,6 +77,12 @@ def main(argv=None) -> int:
         t0 = time.process_time()
         config = StarterCalibrationConfig(seed=seed, noisy=args.noisy, phrases=args.phrases)
         ex = starter_calibration_examples(model, dev, config)
+        finite = np.isfinite(ex.measures).all(axis=1)
+        if not finite.all():  # say where, and leave those words out of every variant
+            where = {str(k): int((~finite & (ex.source == k)).sum()) for k in np.unique(ex.source[~finite])}
+            print(f"seed {seed}: {int((~finite).sum())} words with a measure not finite, left out: {where}",
+                  file=sys.stderr, flush=True)
+            ex = ex.subset(finite)
         fit_config = CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty)
         tables.new_seed()
         for v, kinds in VARIANTS.items():
