@@ -166,3 +166,48 @@ def test_bad_counts_are_refused(field, value):
 def test_bad_snr_range_is_refused(snr):
     with pytest.raises(TrainingError, match="noise SNR range must be two finite numbers"):
         CalibrationConfig(noise_snr_db=snr)
+
+
+def test_training_asks_for_the_new_kinds_only_when_configured(monkeypatch):
+    # The default configuration gathers none of the new kinds, so a model trained with it
+    # gets the calibration of before; asked for, they reach calibration_examples (divided
+    # among folds like the jumbled clips) and the model's info counts them.
+    from dataclasses import replace as _replace
+
+    from decoding_helpers import tiny_model
+    from wordspot.evaluation import calibrate
+    from wordspot.evaluation.calibrate import CalibrationExamples, train_calibrated
+
+    assert (CalibrationConfig().noisy, CalibrationConfig().phrases, CalibrationConfig().noise_clips) == (0, 0, 0)
+    utts = [Utterance(Path(f"{w}-{s}-{t}.wav"), (w,), f"baker-{s}", 2 + 12 * i + 3 * s + t)
+            for i, w in enumerate(("oven", "stop", "start")) for s in range(4) for t in range(3)]
+    model = tiny_model(np.random.default_rng(0), {w: [["AA", "B"]] for w in ("oven", "stop", "start")})
+    seen = []
+
+    def fake_examples(m, held, **kw):
+        seen.append(kw)
+        rng = np.random.default_rng(len(seen))
+        n = 40
+        right = np.arange(n) % 2 == 0
+        source = np.where(right, "noisy", "noise only") if kw["noisy"] else np.where(right, "held-out", "jumbled")
+        x = np.c_[rng.normal(right * 2.0, 1.0, size=(8, n)).T, np.full((n, 4), np.nan)]
+        return CalibrationExamples(x, right, ~right, source == "jumbled", recordings=len(held), source=source)
+
+    monkeypatch.setattr(calibrate, "calibration_examples", fake_examples)
+
+    def train(part):
+        return _replace(model, info={}), None
+
+    out, _ = train_calibrated(train, utts, config=CalibrationConfig(min_items=5, refit=False))
+    assert {k: seen[-1][k] for k in ("noisy", "phrases", "noise_clips")} == {"noisy": 0, "phrases": 0,
+                                                                             "noise_clips": 0}
+    assert "words_in_noisy_copies" not in out.info["calibration"]
+    lines = []
+    out, _ = train_calibrated(train, utts, config=CalibrationConfig(min_items=5, refit=False, noisy=2, phrases=30,
+                                                                    noise_clips=10, noise_snr_db=(10, 20)),
+                              report=lines.append)
+    assert {k: seen[-1][k] for k in ("noisy", "phrases", "noise_clips", "noise_snr_db")} == {
+        "noisy": 2, "phrases": 30, "noise_clips": 10, "noise_snr_db": (10, 20)}
+    info = out.info["calibration"]
+    assert info["words_in_noisy_copies"] == 20 and info["words_in_noise_clips"] == 20
+    assert "20 in noisy copies, 0 in joined phrases, 20 in noise-only clips" in lines[-1]
