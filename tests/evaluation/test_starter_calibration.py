@@ -88,3 +88,12 @@ def test_noisy_copies_and_phrases_add_words_and_leave_the_others_as_they_were(st
     assert more.right[more.source == "noisy"].any() and more.right[more.source == "phrase"].any()
     again = starter_calibration_examples(model, utts, replace(config, noisy=1, phrases=3))
     np.testing.assert_array_equal(again.measures, more.measures)
+
+
+@pytest.mark.parametrize("field, value, match", [("noisy", -1, "noisy must be a whole number"),
+                                                 ("phrases", 2.5, "phrases must be a whole number"),
+                                                 ("noise_snr_db", (20.0, 5.0), "noise_snr_db must be two finite"),
+                                                 ("noise_snr_db", None, "noise_snr_db must be two finite")])
+def test_bad_noisy_and_phrase_settings_are_refused(field, value, match):
+    with pytest.raises(TrainingError, match=match):
+        StarterCalibrationConfig(**{field: value})

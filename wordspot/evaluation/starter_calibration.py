@@ -106,6 +106,13 @@ class StarterCalibrationConfig:
                                 f"got {self.words!r}")
         if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
             raise TrainingError(f"starter calibration: speeds must be factors from 0.5 to 2, got {self.speeds!r}")
+        try:
+            snr_lo, snr_hi = (float(x) for x in self.noise_snr_db)
+        except (TypeError, ValueError):
+            snr_lo = snr_hi = float("nan")
+        if not (np.isfinite(snr_lo) and np.isfinite(snr_hi) and snr_lo <= snr_hi):
+            raise TrainingError(f"starter calibration: noise_snr_db must be two finite numbers low <= high in dB "
+                                f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
 
 
 def _load(model, path) -> np.ndarray | None:
