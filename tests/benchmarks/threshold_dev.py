@@ -147,6 +147,7 @@ class VariantTables:
         self.same_dels = {v: [] for v in variants}
         self.same_t = {v: [] for v in variants}
         self.sums = {(v, t): [] for v in variants for t in THRESHOLDS}
+        self.kinds = {v: [] for v in variants}
         self.names = None
         self.target = None
 
@@ -173,6 +174,13 @@ class VariantTables:
         if self.target is None:
             self.target = rows[DEFAULT_MIN_CONFIDENCE][0][self.names.index("other talk")]
         t_same, (row_same, dels_same) = matched(scored, self.target)
+        by_kind = []  # the noisy sets' babble (even files) and fan (odd files) halves, at the default threshold
+        for name in ("noisy 20 dB", "noisy 10 dB"):
+            for parity in (0, 1):
+                half = {"words": scored[name][parity::2]}
+                by_kind += [variant_rows(half, [DEFAULT_MIN_CONFIDENCE])[DEFAULT_MIN_CONFIDENCE][0][0],
+                            variant_rows(half, [t_same])[t_same][0][0]]
+        self.kinds[v].append(by_kind)
         self.same[v].append(row_same)
         self.same_dels[v].append(dels_same)
         self.same_t[v].append(t_same)
@@ -227,6 +235,17 @@ class VariantTables:
         for v, rows in self.same_dels.items():
             a = np.array(rows, dtype=float)
             print(f"| {v} | " + " | ".join(f"{a[:, j].mean():.1f}" for j in range(a.shape[1])) + " |")
+        print()
+        from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
+
+        heads = [f"{snr} {kind}, {where}" for snr in ("20 dB", "10 dB") for kind in ("babble", "fan")
+                 for where in (f"at {DEFAULT_MIN_CONFIDENCE:g}", "at equal other talk")]
+        print("WER of the commands in noise by kind (babble: even files, fan: odd files)\n")
+        print("| variant | " + " | ".join(heads) + " |")
+        print("| --- |" + " ---: |" * len(heads))
+        for v, rows in self.kinds.items():
+            a = np.array(rows)
+            print(f"| {v} | " + " | ".join(cell(a, j) for j in range(a.shape[1])) + " |")
         print()
         print("the rule's sum of dev error rates (command WER, joined files not exactly right, real phrases "
               "WER, 10 dB files not exactly right, other talk with a command), mean over seeds\n")
