@@ -12,6 +12,20 @@ WER, joined files exactly right, WER of the phrase stand-ins, other-talk files w
 command. The calibration is fitted with the filler penalty it is used with.
 
     python tests/benchmarks/threshold_dev.py [--seeds 0 1 2] [--filler-penalty -80 -100]
+
+``--variants`` compares calibrations fitted on different kinds of example (the held-out
+recordings alone, with their noisy copies, with phrases joined from them, with
+noise-only clips): per seed the starter is adapted once on the training part (as the
+first training of ``wordspot train`` does; not adapted again on every recording), the
+examples of every kind are gathered once (``calibration_examples`` with all of them on)
+and each variant's calibration is fitted on its kinds; the dev sets (with the dev
+commands in babble and fan noise at 20 and 10 dB) are recognised once and each variant's
+confidences computed from the stored measures. Prints per variant and threshold the
+error rates, per variant the EER, the share of no-command files with a command where at
+most 5% of the dev commands are missed, and the threshold with the lowest sum of the dev
+error rates (the rule of docs/experiments/2026-12-02-default-threshold.md)::
+
+    python tests/benchmarks/threshold_dev.py --variants all --seeds 0 1 2 --filler-penalty -100
 """
 
 from __future__ import annotations
@@ -31,6 +45,304 @@ from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
 
 THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.015, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.7)
 
+#: Calibration variants of ``--variants``: the kinds of example (``calibrate.SOURCES``) each is fitted on.
+CLEAN = ("held-out", "held-out, own words removed", "jumbled")
+NOISY = ("noisy", "noisy, own words removed")
+PHRASE = ("phrase", "phrase, own words removed")
+CLIPS = ("noise only",)
+VARIANTS = {
+    "held-out only (before)": CLEAN,
+    "+ noisy copies": CLEAN + NOISY,
+    "+ phrases": CLEAN + PHRASE,
+    "+ noise clips": CLEAN + CLIPS,
+    "+ noisy + phrases": CLEAN + NOISY + PHRASE,
+    "+ noisy + phrases + clips": CLEAN + NOISY + PHRASE + CLIPS,
+    "+ noisy + phrases, whole lexicon only": CLEAN + ("noisy", "phrase"),
+}
+
+#: Thresholds searched for the one matching a given share of other talk with a command.
+FINE = np.unique(np.r_[0.0, np.geomspace(0.001, 0.9, 80)])
+
+
+def matched(scored, target: float):
+    """The row of :func:`variant_rows` (and its deletions) at the lowest threshold of
+    :data:`FINE` that leaves at most ``target`` percent of other-talk files with a command."""
+    talk = scored["other talk"]
+    for t in FINE:
+        if 100 * np.mean([bool((c >= t).any()) for _, _, c in talk]) <= target + 1e-9:
+            return t, variant_rows(scored, [t])[t]
+    t = FINE[-1]
+    return t, variant_rows(scored, [t])[t]
+#: The sets whose WER is reported (the others: files exactly right, or files with a command).
+WER_SETS = ("words", "phrases", "real phrases", "noisy 20 dB", "noisy 10 dB")
+
+
+def fa_at_miss(commands, non_commands, most: float = 0.05) -> float:
+    """The share of no-command files with a word kept at the highest threshold (of the
+    confidences' quantiles) that misses at most ``most`` of the command words."""
+    from wordspot.evaluation.scoring import align_words
+
+    every = np.concatenate([c for _, _, c in commands] + [c for _, c in non_commands] + [np.zeros(1)])
+    n_ref = sum(len(ref) for ref, _, _ in commands)
+    best = 1.0
+    for t in np.unique(np.r_[0.0, np.quantile(every, np.linspace(0, 1, 400))]):
+        m = 0
+        for ref, words, conf in commands:
+            a = align_words(ref, [w for w, c in zip(words, conf) if c >= t])
+            m += a.substitutions + a.deletions
+        if m / n_ref <= most:
+            best = min(best, float(np.mean([bool((c >= t).any()) for _, c in non_commands])))
+    return best
+
+
+def variant_rows(scored, thresholds):
+    """Per threshold, the row of figures of every set (``scored``: {set: [(ref, words, confidences)]}):
+    WER for :data:`WER_SETS`, files exactly right for "joined", files not exactly right for the
+    other sets with commands, files with a command for the sets without; plus the deletions of
+    each WER set."""
+    from wordspot.evaluation.scoring import align_words
+
+    out = {}
+    for t in thresholds:
+        row, dels = [], []
+        for name, items in scored.items():
+            right = errors = words = deletions = 0
+            for ref, hyp, conf in items:
+                kept = [w for w, c in zip(hyp, conf) if c >= t]
+                right += kept == ref
+                a = align_words(ref, kept)
+                errors += a.substitutions + a.deletions + a.insertions
+                deletions += a.deletions
+                words += len(ref)
+            if name in WER_SETS:
+                row.append(100 * errors / words)
+                dels.append(deletions)
+            elif name == "joined":
+                row.append(100 * right / len(items))
+            else:
+                row.append(100 * (1 - right / len(items)))
+        out[t] = (row, dels)
+    return out
+
+
+def rule_sum(names, row, ten_db_not_exact) -> float:
+    """The sum of the dev error rates of the stated rule: dev command WER, joined files not
+    exactly right, real phrases WER, 10 dB commands not exactly right, other talk with a command."""
+    get = dict(zip(names, row))
+    return (get["words"] + (100 - get["joined"]) + get.get("real phrases", 0.0) + ten_db_not_exact
+            + get.get("other talk", 0.0))
+
+
+class VariantTables:
+    """The figures of every calibration variant over the seeds, and their tables."""
+
+    LABEL = {"words": "command WER", "joined": "joined files exactly right", "phrases": "phrase stand-ins WER",
+             "real phrases": "real phrases WER", "noisy 20 dB": "20 dB WER", "noisy 10 dB": "10 dB WER"}
+
+    def __init__(self, variants):
+        self.table = {(v, t): [] for v in variants for t in THRESHOLDS}
+        self.dels = {(v, t): [] for v in variants for t in THRESHOLDS}
+        self.summary = {v: [] for v in variants}
+        self.same = {v: [] for v in variants}
+        self.same_dels = {v: [] for v in variants}
+        self.same_t = {v: [] for v in variants}
+        self.sums = {(v, t): [] for v in variants for t in THRESHOLDS}
+        self.kinds = {v: [] for v in variants}
+        self.names = None
+        self.target = None
+
+    def new_seed(self) -> None:
+        """The next variant added sets the share of other talk the others are matched at."""
+        self.target = None
+
+    def add(self, v, heard, cal, examples) -> None:
+        """Score variant ``v``: ``heard`` = {set: [(reference, segments)]}, its calibration ``cal``
+        fitted on ``examples``."""
+        from posterior_confidence_dev import operating_eer
+
+        from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
+
+        self.names = list(heard)
+        cols = [MEASURE_NAMES.index(n) for n in cal.names]
+        scored = {name: [(ref, [g.word for g in segs],
+                          cal.predict(np.array([g.measures for g in segs])[:, cols]) if segs else np.zeros(0))
+                         for ref, segs in items] for name, items in heard.items()}
+        rows = variant_rows(scored, THRESHOLDS)
+        for t, (row, d) in rows.items():
+            self.table[v, t].append(row)
+            self.dels[v, t].append(d)
+        if self.target is None:
+            self.target = rows[DEFAULT_MIN_CONFIDENCE][0][self.names.index("other talk")]
+        t_same, (row_same, dels_same) = matched(scored, self.target)
+        by_kind = []  # the noisy sets' babble (even files) and fan (odd files) halves, at the default threshold
+        for name in ("noisy 20 dB", "noisy 10 dB"):
+            for parity in (0, 1):
+                half = {"words": scored[name][parity::2]}
+                by_kind += [variant_rows(half, [DEFAULT_MIN_CONFIDENCE])[DEFAULT_MIN_CONFIDENCE][0][0],
+                            variant_rows(half, [t_same])[t_same][0][0]]
+        self.kinds[v].append(by_kind)
+        self.same[v].append(row_same)
+        self.same_dels[v].append(dels_same)
+        self.same_t[v].append(t_same)
+        commands = scored["words"]
+        everywhere = [x for name in ("words", "real phrases", "noisy 20 dB", "noisy 10 dB") for x in scored.get(name, [])]
+        non_commands = [(w, c) for name in ("other talk", "noise only") for _, w, c in scored[name]]
+        sums = []
+        for t in THRESHOLDS:
+            ten = 100 * np.mean([[w for w, c in zip(hyp, conf) if c >= t] != ref
+                                 for ref, hyp, conf in scored["noisy 10 dB"]])
+            sums.append(rule_sum(self.names, rows[t][0], ten))
+            self.sums[v, t].append(sums[-1])
+        self.summary[v].append([100 * operating_eer(commands, non_commands), 100 * operating_eer(everywhere, non_commands),
+                                100 * fa_at_miss(commands, non_commands), THRESHOLDS[int(np.argmin(sums))],
+                                min(sums), int(examples.right.sum()), int(examples.right.size - examples.right.sum())])
+
+    def print(self, show) -> None:
+        names = self.names
+        cols = [self.LABEL.get(n, f"{n}: files with a command") for n in names]
+
+        def cell(a, j):
+            return f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
+
+        print("| variant | EER | EER, commands of every set | no-command files with a command at <= 5% miss | "
+              "lowest-sum threshold | its sum | right / wrong examples |")
+        print("| --- | ---: | ---: | ---: | ---: | ---: | ---: |")
+        for v, rows in self.summary.items():
+            a = np.array(rows, dtype=float)
+            print(f"| {v} | {cell(a, 0)} | {cell(a, 1)} | {cell(a, 2)} | {', '.join(f'{x:g}' for x in a[:, 3])} | "
+                  f"{a[:, 4].mean():.1f} | {a[:, 5].mean():.0f} / {a[:, 6].mean():.0f} |")
+        print()
+        print("| variant | threshold | " + " | ".join(cols) + " |")
+        print("| --- | ---: |" + " ---: |" * len(cols))
+        for (v, t), rows in self.table.items():
+            if t in show:
+                a = np.array(rows)
+                print(f"| {v} | {t:g} | " + " | ".join(cell(a, j) for j in range(a.shape[1])) + " |")
+        print()
+        print("at the same share of other talk with a command as the first variant at the default threshold "
+              "(lowest threshold of a fine grid with at most that share; per seed)\n")
+        print("| variant | thresholds | " + " | ".join(cols) + " |")
+        print("| --- | ---: |" + " ---: |" * len(cols))
+        for v, rows in self.same.items():
+            a = np.array(rows)
+            print(f"| {v} | {', '.join(f'{x:.3g}' for x in self.same_t[v])} | "
+                  + " | ".join(cell(a, j) for j in range(a.shape[1])) + " |")
+        print()
+        wer_names = [self.LABEL[n] for n in names if n in WER_SETS]
+        print("deletions there (mean over seeds)\n")
+        print("| variant | " + " | ".join(wer_names) + " |")
+        print("| --- |" + " ---: |" * len(wer_names))
+        for v, rows in self.same_dels.items():
+            a = np.array(rows, dtype=float)
+            print(f"| {v} | " + " | ".join(f"{a[:, j].mean():.1f}" for j in range(a.shape[1])) + " |")
+        print()
+        from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
+
+        heads = [f"{snr} {kind}, {where}" for snr in ("20 dB", "10 dB") for kind in ("babble", "fan")
+                 for where in (f"at {DEFAULT_MIN_CONFIDENCE:g}", "at equal other talk")]
+        print("WER of the commands in noise by kind (babble: even files, fan: odd files)\n")
+        print("| variant | " + " | ".join(heads) + " |")
+        print("| --- |" + " ---: |" * len(heads))
+        for v, rows in self.kinds.items():
+            a = np.array(rows)
+            print(f"| {v} | " + " | ".join(cell(a, j) for j in range(a.shape[1])) + " |")
+        print()
+        print("the rule's sum of dev error rates (command WER, joined files not exactly right, real phrases "
+              "WER, 10 dB files not exactly right, other talk with a command), mean over seeds\n")
+        print("| variant | " + " | ".join(f"{t:g}" for t in THRESHOLDS) + " |")
+        print("| --- |" + " ---: |" * len(THRESHOLDS))
+        for v in self.summary:
+            print(f"| {v} | " + " | ".join(f"{np.mean(self.sums[v, t]):.1f}" for t in THRESHOLDS) + " |")
+        print()
+        print("deletions (mean over seeds)\n")
+        print("| variant | threshold | " + " | ".join(wer_names) + " |")
+        print("| --- | ---: |" + " ---: |" * len(wer_names))
+        for (v, t), rows in self.dels.items():
+            if t in show:
+                a = np.array(rows, dtype=float)
+                print(f"| {v} | {t:g} | " + " | ".join(f"{a[:, j].mean():.1f}" for j in range(a.shape[1])) + " |")
+
+
+def decode_sets(model, sets, settings, lexicon=None):
+    """{set: [(reference, segments)]}: every dev file recognised once with no threshold."""
+    from wordspot.audio.features import compute_features
+    from wordspot.decoding.decoder import build_recognizer
+
+    rec = build_recognizer(model, settings=settings, lexicon=lexicon)
+    return {name: [(ref, rec.decode(compute_features(w, model.features)).segments) for w, ref in items]
+            for name, items in sets.items()}
+
+
+def run_variants(args) -> int:
+    import time
+
+    from wordspot.corpus import read_manifest
+    from wordspot.decoding.decoder import DecoderSettings
+    from wordspot.evaluation.calibrate import CalibrationConfig, calibration_examples, fit_calibration, held_out_parts
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+    from wordspot.starters import starter_path
+    from wordspot.training.adapt import AdaptationConfig, adapting
+
+    variants = VARIANTS if args.variants == ["all"] else {k: VARIANTS[k] for k in args.variants}
+    fp = args.filler_penalty[0]
+    settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
+    lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
+    start = load_model(starter_path("starter"))
+    tables = VariantTables(variants)
+    sets = None
+    with tempfile.TemporaryDirectory() as tmp:
+        manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
+        utterances = read_manifest(manifest)
+        for seed in args.seeds:
+            t0 = time.process_time()
+            config = CalibrationConfig(seed=seed, settings=settings)
+            saved = args.load / f"seed{seed}.pickle" if args.load else None
+            if saved:  # the recognitions and examples of an earlier run (benchmark scratch files only)
+                import pickle
+
+                with open(saved, "rb") as fh:
+                    heard, ex = pickle.load(fh)
+                tables.new_seed()
+                for v, kinds in variants.items():
+                    sub = ex.subset(np.isin(ex.source, kinds))
+                    tables.add(v, heard, fit_calibration(sub, config=config), sub)
+                continue
+            (rest, held), = held_out_parts(utterances, config)[0]
+            fit = adapting(start, lexicon, config=AdaptationConfig(), manifest=manifest)
+            model, _ = fit(rest, held_out=held)
+            ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
+                                      seed=seed, noisy=args.noisy, noise_snr_db=tuple(args.snr), phrases=args.phrases,
+                                      noise_clips=args.noise_clips)
+            t1 = time.process_time()
+            if sets is None:
+                sets = dev_sets(model, args.joined, snrs=(20.0, 10.0))
+                if args.other_talk_every > 1:
+                    sets["other talk"] = sets["other talk"][::args.other_talk_every]
+                print("dev sets: " + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr)
+            heard = decode_sets(model, sets, settings)
+            t2 = time.process_time()
+            if args.save:
+                import pickle
+                from types import SimpleNamespace
+
+                args.save.mkdir(parents=True, exist_ok=True)
+                light = {name: [(ref, [SimpleNamespace(word=g.word, measures=np.asarray(g.measures)) for g in segs])
+                                for ref, segs in items] for name, items in heard.items()}
+                with open(args.save / f"seed{seed}.pickle", "wb") as fh:
+                    pickle.dump((light, ex), fh)
+            tables.new_seed()
+            for v, kinds in variants.items():
+                sub = ex.subset(np.isin(ex.source, kinds))
+                tables.add(v, heard, fit_calibration(sub, config=config), sub)
+            print(f"seed {seed}: {ex.right.size} calibration words ({int(ex.right.sum())} right); cpu "
+                  f"{t1 - t0:.0f} s adapting and examples, {t2 - t1:.0f} s dev sets, "
+                  f"{time.process_time() - t2:.0f} s variants", file=sys.stderr, flush=True)
+    print(f"filler {fp:g}; calibration examples: {args.noisy} noisy copies ({args.snr[0]:g}-{args.snr[1]:g} dB), "
+          f"{args.phrases} phrases, {args.noise_clips} noise clips; seeds {args.seeds}: mean (min-max)\n")
+    tables.print(args.show)
+    return 0
+
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
@@ -44,7 +356,24 @@ def main(argv=None) -> int:
                     help="clips of jumbled held-out speech in the calibration (default: the configuration's)")
     ap.add_argument("--speeds", type=float, nargs="+", default=None,
                     help="speed factors of the calibration's held-out recordings (default: the configuration's)")
+    ap.add_argument("--variants", nargs="+", default=None, metavar="NAME",
+                    help="compare calibration variants on one model a seed: 'all' or names of VARIANTS")
+    ap.add_argument("--noisy", type=int, default=2, help="with --variants: noisy copies of each held-out recording")
+    ap.add_argument("--snr", type=float, nargs=2, default=[5.0, 25.0], help="with --variants: their SNR range")
+    ap.add_argument("--phrases", type=int, default=100, help="with --variants: joined phrases")
+    ap.add_argument("--noise-clips", type=int, default=50, help="with --variants: noise-only clips")
+    ap.add_argument("--joined", type=int, default=100, help="with --variants: joined dev files and phrase stand-ins")
+    ap.add_argument("--other-talk-every", type=int, default=1,
+                    help="with --variants: keep every N-th other-talk file (time)")
+    ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
+                    help="with --variants: thresholds shown in the tables")
+    ap.add_argument("--save", type=Path, default=None,
+                    help="with --variants: keep each seed's recognitions and examples in this folder")
+    ap.add_argument("--load", type=Path, default=None,
+                    help="with --variants: score the recognitions and examples kept by --save instead")
     args = ap.parse_args(argv)
+    if args.variants:
+        return run_variants(args)
 
     from wordspot import api
     from wordspot.audio.features import compute_features

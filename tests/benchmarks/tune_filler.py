@@ -85,8 +85,11 @@ def make_dev_model(out: Path, background_share: float | None = None, seed: int =
                   config=AdaptationConfig(seed=seed, **share))
 
 
-def dev_sets(model, n_joined: int, seed: int = 20261203):
-    """(name, list of (waveform, reference words)) for the dev sets."""
+def dev_sets(model, n_joined: int, seed: int = 20261203, snrs=(10.0,)):
+    """(name, list of (waveform, reference words)) for the dev sets.
+
+    ``snrs``: the SNRs of the sets of dev commands in noise ("noisy 10 dB", ...), each
+    with the same noise (babble for even, fan for odd recordings)."""
     from wordspot.audio.reading import load_audio
 
     rec = REPO / "recordings"
@@ -139,7 +142,7 @@ def dev_sets(model, n_joined: int, seed: int = 20261203):
     from wordspot.audio.augment import babble, mix_at_snr, speech_span, steady_noise, talker_stream
 
     streams = {v: talker_stream([w for w, _ in by_voice[v]]) for v in voices}
-    noisy = []
+    noisy = {snr: [] for snr in snrs}
     for i, ((wave, ref), r) in enumerate(zip(sets["words"], words)):
         if i % 2:
             noise = steady_noise(len(wave), rng)
@@ -147,8 +150,10 @@ def dev_sets(model, n_joined: int, seed: int = 20261203):
             others = [streams[v] for v in voices if v != r["speaker"]]
             noise = babble(others, len(wave), rng)
         span = speech_span(wave, RATE)
-        noisy.append((mix_at_snr(wave, noise, 10.0, span=span).astype(np.float32), ref))
-    sets["noisy 10 dB"] = noisy
+        for snr in snrs:
+            noisy[snr].append((mix_at_snr(wave, noise, snr, span=span).astype(np.float32), ref))
+    for snr in snrs:
+        sets[f"noisy {snr:g} dB"] = noisy[snr]
 
     vocab = set(model.lexicon.words) | set(_demo_new_words())
     starter_dev = rec / "starter" / "dev.csv"

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -69,3 +70,30 @@ def test_too_few_words_and_bad_settings_are_refused(starter_and_takes):
         StarterCalibrationConfig(words=(5, 3))
     with pytest.raises(TrainingError, match="vocabularies must be a whole number >= 1"):
         StarterCalibrationConfig(vocabularies=0)
+
+
+def test_noisy_copies_and_phrases_add_words_and_leave_the_others_as_they_were(starter_and_takes):
+    # Our own labelling rule, checked by counting: with the two options on, words heard in
+    # noisy copies of the commands and in phrases joined from them come in (some right,
+    # labelled by the alignment); every example of the other kinds stays as it was.
+    model, utts = starter_and_takes
+    config = StarterCalibrationConfig(vocabularies=2, words=(3, 4), other_talk=0, other_words=2, jumbled=1,
+                                      noise=1, speeds=(1.0,))
+    plain = starter_calibration_examples(model, utts, config)
+    assert set(plain.source) <= {"held-out", "held-out, own words removed", "jumbled", "noise only"}
+    more = starter_calibration_examples(model, utts, replace(config, noisy=1, phrases=3))
+    old = ~np.isin(more.source, ("noisy", "phrase"))
+    np.testing.assert_array_equal(more.measures[old], plain.measures)
+    np.testing.assert_array_equal(more.right[old], plain.right)
+    assert more.right[more.source == "noisy"].any() and more.right[more.source == "phrase"].any()
+    again = starter_calibration_examples(model, utts, replace(config, noisy=1, phrases=3))
+    np.testing.assert_array_equal(again.measures, more.measures)
+
+
+@pytest.mark.parametrize("field, value, match", [("noisy", -1, "noisy must be a whole number"),
+                                                 ("phrases", 2.5, "phrases must be a whole number"),
+                                                 ("noise_snr_db", (20.0, 5.0), "noise_snr_db must be two finite"),
+                                                 ("noise_snr_db", None, "noise_snr_db must be two finite")])
+def test_bad_noisy_and_phrase_settings_are_refused(field, value, match):
+    with pytest.raises(TrainingError, match=match):
+        StarterCalibrationConfig(**{field: value})

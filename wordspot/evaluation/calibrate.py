@@ -13,7 +13,12 @@ from scratch; this module does not import training, the caller hands it in):
    word heard then is wrong. (b) gives the wrong words a clean held-out set would lack;
    (c) recognise clips of the held-out recordings cut into short pieces and joined in
    random order (:mod:`wordspot.audio.jumble`): the user's own phones in an order that
-   spells no command, as in other talk; every word heard there is wrong too;
+   spells no command, as in other talk; every word heard there is wrong too; optionally,
+   in the conditions of use: (d) noisy copies of the held-out recordings (babble or
+   steady noise, :func:`wordspot.training.noise.noisy_wave`) recognised as in (a) and (b);
+   (e) held-out takes of one speaker joined into short phrases of 2-3 commands with short
+   pauses, recognised as in (a) and (b); (f) background-only clips (noise, hum, babble;
+   :func:`wordspot.training.backgrounds.background_wave`), every word heard there wrong;
 4. fit the logistic regression of right / wrong on the words' measures
    (:func:`wordspot.util.logistic.fit_logistic`);
 5. train again on every recording (``refit``; else keep the model trained on the rest)
@@ -47,6 +52,10 @@ __all__ = [
     "backwards_recognitions",
     "jumbled_recognitions",
     "DEFAULT_JUMBLED",
+    "SOURCES",
+    "noisy_copies",
+    "joined_phrases",
+    "noise_only_clips",
     "calibration_examples",
     "fit_calibration",
     "CALIBRATION_POSTERIOR_MEASURES",
@@ -61,6 +70,17 @@ __all__ = [
 #: Clips of jumbled held-out speech in the calibration (chosen on dev material,
 #: docs/experiments/2026-12-02-per-phone-measures-and-jumbled-speech.md).
 DEFAULT_JUMBLED = 150
+
+#: Where a calibration word was heard (``CalibrationExamples.source``): the held-out
+#: recordings with the whole lexicon and with their own words removed, played backwards,
+#: jumbled, their noisy copies, phrases joined from them, background-only clips.
+SOURCES = ("held-out", "held-out, own words removed", "backwards", "jumbled", "noisy",
+           "noisy, own words removed", "phrase", "phrase, own words removed", "noise only")
+
+#: Separate the random streams of the calibration's noisy copies, phrases and noise clips.
+_NOISY_STREAM = 0x6E6F6973
+_PHRASE_STREAM = 0x70687261
+_CLIP_STREAM = 0x636C6970
 
 #: The posterior measures (``confidence.POSTERIOR_MEASURE_NAMES``) a calibration uses beside
 #: the others when the model has a state scorer; chosen on the dev voices
@@ -114,6 +134,22 @@ class CalibrationConfig:
         Clips of jumbled speech made from the held-out recordings
         (:func:`wordspot.audio.jumble.jumbled_speech`, seeded by ``seed``) recognised with
         the whole lexicon; every word heard there is wrong. 0: none.
+    noisy : int
+        Noisy copies of each held-out recording (:func:`noisy_copies`: babble of the other
+        held-out speakers two times in three, else steady noise), recognised at speed 1 with
+        the whole lexicon (right and wrong words in noise) and with the recording's own
+        words removed (wrong words in noise). 0: none.
+    noise_snr_db : (float, float)
+        The noisy copies' SNR is drawn uniformly from this range (dB, over the speech part).
+    phrases : int
+        Phrases of 2-3 held-out takes of one speaker, cut to their speech and joined with
+        short pauses of their room tone (:func:`joined_phrases`), each played at one of
+        ``speeds``, recognised with the whole lexicon (words right and wrong in context)
+        and with the phrase's words removed. 0: none.
+    noise_clips : int
+        Background-only clips of 1-4 s (:func:`noise_only_clips`: white, pink, hum, dither,
+        fan, babble of the held-out speakers) recognised with the whole lexicon; every word
+        heard there is wrong. 0: none.
     """
 
     held_out_share: float = 0.15
@@ -126,6 +162,10 @@ class CalibrationConfig:
     speeds: tuple[float, ...] = (0.9, 1.0, 1.1, 1.25, 1.4)
     backwards: bool = False
     jumbled: int = DEFAULT_JUMBLED
+    noisy: int = 0
+    noise_snr_db: tuple[float, float] = (5.0, 25.0)
+    phrases: int = 0
+    noise_clips: int = 0
 
     def __post_init__(self) -> None:
         s = self.held_out_share
@@ -138,6 +178,19 @@ class CalibrationConfig:
         if isinstance(j, bool) or not isinstance(j, (int, np.integer)) or j < 0:
             raise TrainingError(f"the number of jumbled clips for calibration must be a whole number >= 0 "
                                 f"(e.g. {DEFAULT_JUMBLED}), got {j!r}")
+        for name, what in (("noisy", "noisy copies of each held-out recording"),
+                           ("phrases", "joined phrases"), ("noise_clips", "noise-only clips")):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
+                raise TrainingError(f"the number of {what} for calibration ({name}) must be a whole number "
+                                    f">= 0 (0: none), got {v!r}")
+        try:
+            lo, hi = (float(x) for x in self.noise_snr_db)
+        except (TypeError, ValueError):
+            lo, hi = float("nan"), float("nan")
+        if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
+            raise TrainingError(f"the calibration's noise SNR range must be two finite numbers low <= high in dB "
+                                f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
 
     def decided(self, *, adapting: bool) -> "CalibrationConfig":
         """This configuration with ``refit`` settled: as given, else True when adapting."""
@@ -149,8 +202,10 @@ class CalibrationExamples:
     """Measures of the words heard on held-out recordings, and whether each is right.
 
     ``own_words_removed`` marks the words heard with the recording's own words taken out of
-    the lexicon, or in recordings with no command (backwards, jumbled): all wrong by
-    construction; ``jumbled`` marks those heard in jumbled speech.
+    the lexicon, or in recordings with no command (backwards, jumbled, noise only): all
+    wrong by construction; ``jumbled`` marks those heard in jumbled speech; ``source``
+    says where each word was heard (one of :data:`SOURCES`; when not given, "held-out",
+    "held-out, own words removed" or "jumbled" from the two marks).
     """
 
     measures: np.ndarray
@@ -159,6 +214,22 @@ class CalibrationExamples:
     jumbled: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))
     recordings: int = 0
     failed: list[str] = field(default_factory=list)
+    source: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype="<U32"))
+
+    def __post_init__(self) -> None:
+        n = np.asarray(self.right).size
+        if np.asarray(self.jumbled).size != n:
+            self.jumbled = np.zeros(n, dtype=bool)
+        if np.asarray(self.source).size != n:
+            removed = np.asarray(self.own_words_removed, dtype=bool)
+            self.source = np.where(np.asarray(self.jumbled, dtype=bool), "jumbled",
+                                   np.where(removed, "held-out, own words removed", "held-out")).astype("<U32")
+
+    def subset(self, keep: np.ndarray) -> "CalibrationExamples":
+        """The examples whose rows ``keep`` (a boolean mask) marks."""
+        keep = np.asarray(keep, dtype=bool)
+        return CalibrationExamples(self.measures[keep], self.right[keep], self.own_words_removed[keep],
+                                   self.jumbled[keep], self.recordings, list(self.failed), self.source[keep])
 
 
 def split_held_out(utterances: Sequence, share: float, seed: int = 0) -> tuple[list, list]:
@@ -197,6 +268,35 @@ def _prior_without(model, lexicon):
     return estimate_prior(BigramCounts(tuple(lexicon.words), np.asarray(counts.counts)[np.ix_(order, order)]))
 
 
+class _TwoWays:
+    """A recognizer with the whole lexicon and, per set of own words, one without them
+    (built when first needed); no confidence threshold."""
+
+    def __init__(self, model, settings: DecoderSettings | None):
+        self.model = model
+        self.settings = replace(settings or DecoderSettings(), min_confidence=0.0)
+        self.full = build_recognizer(model, settings=self.settings)
+        self._without: dict[frozenset, object] = {}
+
+    def without(self, words):
+        """The recognizer without ``words``; None when there is nothing to remove or nothing would be left."""
+        own = frozenset(words)
+        others = [w for w in self.model.lexicon.words if w not in own]
+        if not own or not others:
+            return None
+        if own not in self._without:
+            lex = self.model.lexicon.restricted_to(others)
+            self._without[own] = build_recognizer(self.model, settings=self.settings, lexicon=lex,
+                                                  prior=_prior_without(self.model, lex))
+        return self._without[own]
+
+    def decode(self, frames, words, path: str) -> tuple[Recognition, Recognition | None]:
+        """``(whole, without_own)`` of one clip that says ``words``."""
+        whole = self.full.decode(frames, path=path)
+        rec = self.without(words)
+        return whole, None if rec is None else rec.decode(frames, path=path)
+
+
 def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
                           quiet: bool = True, speeds=(1.0,)
                           ) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
@@ -210,9 +310,7 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
     from wordspot.audio.features import compute_features
     from wordspot.training.data import speed_copy
 
-    settings = replace(settings or DecoderSettings(), min_confidence=0.0)
-    full = build_recognizer(model, settings=settings)
-    without: dict[frozenset, object] = {}
+    two = _TwoWays(model, settings)
     with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
         for u in utterances:
             bar.update()
@@ -223,22 +321,13 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
             except WordspotError:
                 yield u, None, None
                 continue
-            own = frozenset(u.words)
-            others = [w for w in model.lexicon.words if w not in own]
-            if own and others and own not in without:
-                lex = model.lexicon.restricted_to(others)
-                without[own] = build_recognizer(model, settings=settings, lexicon=lex,
-                                                prior=_prior_without(model, lex))
             for frames in copies:
                 try:
-                    whole = full.decode(frames, path=str(u.path))
+                    whole, without_own = two.decode(frames, u.words, str(u.path))
                 except WordspotError:
                     yield u, None, None
                     continue
-                if not own or not others:
-                    yield u, whole, None
-                else:
-                    yield u, whole, without[own].decode(frames, path=str(u.path))
+                yield u, whole, without_own
 
 
 def _quiet_load(model, path) -> np.ndarray:
@@ -291,9 +380,112 @@ def jumbled_recognitions(model, utterances: Sequence, n: int, *, seed: int = 0,
     return _recognitions(model, (("jumbled held-out speech", c) for c in clips), settings)
 
 
+def _speech_pool(items) -> dict:
+    """Babble talkers: per speaker, (number, speech part) of up to
+    ``training.noise.POOL_PER_SPEAKER`` of the ``(speaker, waveform, rate)`` items, in order."""
+    from wordspot.audio.augment import speech_span
+    from wordspot.training.noise import POOL_PER_SPEAKER
+
+    pool: dict[str, list] = {}
+    for k, (speaker, wave, rate) in enumerate(items):
+        parts = pool.setdefault(str(speaker), [])
+        if len(parts) < POOL_PER_SPEAKER:
+            a, b = speech_span(wave, rate)
+            parts.append((k, wave[a:b].copy()))
+    return pool
+
+
+def noisy_copies(waves: Sequence, speakers: Sequence, copies: int, *, snr_db=(5.0, 25.0), seed: int = 0,
+                 sample_rate: int = 16000) -> list[tuple[int, np.ndarray]]:
+    """``copies`` noisy copies of each waveform, copy-major: ``(number of the waveform, copy)``.
+
+    The recipes are those of the training's noisy copies (:func:`wordspot.training.noise.plan_copies`:
+    babble two times in three, of up to three to six other speakers' speech parts, never
+    the recording itself; else steady noise), drawn from ``seed`` alone at an SNR from
+    ``snr_db`` over the speech part (:func:`wordspot.training.noise.noisy_wave`).
+    """
+    from wordspot.audio.augment import NoiseSettings
+    from wordspot.training.noise import noisy_wave, plan_copies
+
+    if copies <= 0 or not len(waves):
+        return []
+    speakers = [str(s) for s in speakers]
+    pool = _speech_pool([(spk, w, sample_rate) for spk, w in zip(speakers, waves)])
+    recipes = plan_copies(speakers, NoiseSettings(copies=copies, snr_db=tuple(snr_db)), seed=_NOISY_STREAM + seed)
+    return [(r.index, np.asarray(noisy_wave(waves[r.index], r, pool, sample_rate), dtype=np.float32))
+            for r in recipes]
+
+
+def joined_phrases(waves: Sequence, words: Sequence, speakers: Sequence, n: int, *, speeds=(1.0,),
+                   seed: int = 0, sample_rate: int = 16000,
+                   pause=(0.05, 0.3)) -> list[tuple[tuple[str, ...], np.ndarray]]:
+    """``n`` phrases of 2-3 takes of one speaker: ``(words, waveform)``.
+
+    Each take is cut to its speech part (:func:`wordspot.audio.augment.speech_span`, 20 ms
+    kept on either side); the takes are joined by pauses of ``pause`` seconds (uniform)
+    of the first take's room tone (its samples outside the speech part, looped; faint
+    dither when it has none), with 0.2 s of it before and after; the phrase is played
+    at one of ``speeds`` (drawn). Speakers take turns; a speaker with fewer than two
+    takes is passed over. Seeded; [] when no speaker has two takes.
+    """
+    from wordspot.audio.augment import dithered_silence, speech_span
+    from wordspot.training.data import speed_copy
+
+    by_speaker: dict[str, list[int]] = {}
+    for k, (w, spk) in enumerate(zip(words, speakers)):
+        if len(w):
+            by_speaker.setdefault(str(spk), []).append(k)
+    names = [spk for spk in sorted(by_speaker) if len(by_speaker[spk]) >= 2]
+    if n <= 0 or not names:
+        return []
+    rng = np.random.default_rng([seed, _PHRASE_STREAM])
+    margin = int(0.02 * sample_rate)
+    out = []
+    for i in range(n):
+        members = by_speaker[names[i % len(names)]]
+        k = int(rng.integers(2, 4))
+        picks = [members[j] for j in rng.choice(len(members), size=min(k, len(members)), replace=False)]
+        cut = []
+        for j in picks:
+            w = np.asarray(waves[j], dtype=np.float32)
+            a, b = speech_span(w, sample_rate)
+            cut.append((w, max(a - margin, 0), min(b + margin, w.shape[0])))
+        w0, a0, b0 = cut[0]
+        tone = np.concatenate([w0[:a0], w0[b0:]])
+        if tone.shape[0] < margin:
+            tone = dithered_silence(sample_rate, rng).astype(np.float32)
+        lead = int(0.2 * sample_rate)
+        parts = [np.resize(tone, lead)]
+        for m, (w, a, b) in enumerate(cut):
+            parts.append(w[a:b])
+            gap = int(rng.uniform(*pause) * sample_rate) if m < len(cut) - 1 else lead
+            parts.append(np.resize(tone, gap))
+        f = float(speeds[int(rng.integers(len(speeds)))])
+        phrase = speed_copy(np.concatenate(parts).astype(np.float32), sample_rate, f)
+        out.append((tuple(x for j in picks for x in words[j]), phrase))
+    return out
+
+
+def noise_only_clips(waves: Sequence, speakers: Sequence, n: int, *, seed: int = 0,
+                     sample_rate: int = 16000) -> list[np.ndarray]:
+    """``n`` background-only clips of 1-4 s at -60 to -20 dBFS (white, pink, hum, dither,
+    fan, babble of the given speakers' speech parts), from the training's background
+    recipes (:func:`wordspot.training.backgrounds.plan_backgrounds`) drawn from ``seed``."""
+    from wordspot.training.backgrounds import BACKGROUND_KINDS, background_wave, plan_backgrounds
+
+    if n <= 0:
+        return []
+    speakers = [str(s) for s in speakers]
+    pool = _speech_pool([(spk, w, sample_rate) for spk, w in zip(speakers, waves)])
+    recipes = plan_backgrounds(n, sorted(pool), seed=_CLIP_STREAM + seed, seconds=(1.0, 4.0),
+                               levels=(-60.0, -20.0), kinds=BACKGROUND_KINDS + ("babble",))
+    return [background_wave(r, pool, sample_rate) for r in recipes]
+
+
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
                          quiet: bool = True, speeds=(1.0,), backwards: bool = False, jumbled: int = 0,
-                         seed: int = 0) -> CalibrationExamples:
+                         seed: int = 0, noisy: int = 0, noise_snr_db=(5.0, 25.0), phrases: int = 0,
+                         noise_clips: int = 0) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -312,16 +504,31 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
         Add the words heard in this many clips of jumbled speech, all wrong (counted with
         the own-words-removed stand-ins and marked in ``jumbled``).
     seed : int
-        Seed of the jumbled clips.
+        Seed of the jumbled clips, noisy copies, phrases and noise clips.
+    noisy, noise_snr_db, phrases, noise_clips
+        Noisy copies per recording, their SNR range, joined phrases, background-only
+        clips (see :class:`CalibrationConfig`); each 0: none.
     """
-    rows, right, removed, failed = [], [], [], []
+    from wordspot.audio.features import compute_features
 
-    def all_wrong(recognitions):
+    rows, right, removed, source, failed = [], [], [], [], []
+
+    def add(segments, labels, where):
+        rows.extend(s.measures for s in segments)
+        right.extend(labels)
+        removed.extend([where not in ("held-out", "noisy", "phrase")] * len(segments))
+        source.extend([where] * len(segments))
+
+    def all_wrong(recognitions, where="held-out, own words removed"):
         for got in recognitions:
             wrong = got.segments + got.dropped
-            rows.extend(s.measures for s in wrong)
-            right.extend([False] * len(wrong))
-            removed.extend([True] * len(wrong))
+            add(wrong, [False] * len(wrong), where)
+
+    def both(whole, without_own, words, where):
+        heard = whole.segments + whole.dropped
+        add(heard, word_hits(words, [s.word for s in heard]), where)
+        if without_own is not None:
+            all_wrong([without_own], f"{where}, own words removed")
 
     for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
                                                        speeds=speeds):
@@ -329,21 +536,48 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
             if str(u.path) not in failed:
                 failed.append(str(u.path))
             continue
-        heard = whole.segments + whole.dropped
-        rows += [s.measures for s in heard]
-        right += word_hits(u.words, [s.word for s in heard])
-        removed += [False] * len(heard)
-        if without_own is not None:
-            all_wrong([without_own])
+        both(whole, without_own, u.words, "held-out")
     if backwards:
-        all_wrong(backwards_recognitions(model, utterances, settings=settings))
-    before = len(rows)
+        all_wrong(backwards_recognitions(model, utterances, settings=settings), "backwards")
     if jumbled:
-        all_wrong(jumbled_recognitions(model, utterances, jumbled, seed=seed, settings=settings))
+        all_wrong(jumbled_recognitions(model, utterances, jumbled, seed=seed, settings=settings), "jumbled")
+    if noisy or phrases or noise_clips:
+        readable = [(u, w) for u, w in ((u, _load_or_none(model, u.path)) for u in utterances) if w is not None]
+        waves = [w for _, w in readable]
+        speakers = [str(u.speaker) for u, _ in readable]
+        rate = model.features.sample_rate
+        two = _TwoWays(model, settings)
+
+        def decode(wave, words, name):
+            try:
+                return two.decode(compute_features(wave, model.features), words, name)
+            except WordspotError:
+                return None, None
+
+        for k, wave in noisy_copies(waves, speakers, noisy, snr_db=noise_snr_db, seed=seed, sample_rate=rate):
+            u = readable[k][0]
+            whole, without_own = decode(wave, u.words, f"{u.path} (noisy copy)")
+            if whole is not None:
+                both(whole, without_own, u.words, "noisy")
+        for words, wave in joined_phrases(waves, [u.words for u, _ in readable], speakers, phrases,
+                                          speeds=speeds, seed=seed, sample_rate=rate):
+            whole, without_own = decode(wave, words, "joined held-out takes")
+            if whole is not None:
+                both(whole, without_own, words, "phrase")
+        clips = noise_only_clips(waves, speakers, noise_clips, seed=seed, sample_rate=rate)
+        all_wrong(_recognitions(model, (("noise-only clip", c) for c in clips), settings), "noise only")
     measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
+    source = np.array(source, dtype="<U32")
     return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
-                               np.arange(len(rows)) >= before, recordings=len(utterances) - len(failed),
-                               failed=failed)
+                               source == "jumbled", recordings=len(utterances) - len(failed),
+                               failed=failed, source=source)
+
+
+def _load_or_none(model, path) -> np.ndarray | None:
+    try:
+        return _quiet_load(model, path)
+    except WordspotError:
+        return None
 
 
 def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig = CalibrationConfig(),
@@ -445,7 +679,7 @@ def _merged(parts: list[CalibrationExamples]) -> CalibrationExamples:
         np.concatenate([p.measures.reshape(-1, len(MEASURE_NAMES)) for p in parts]),
         np.concatenate([p.right for p in parts]), np.concatenate([p.own_words_removed for p in parts]),
         np.concatenate([p.jumbled for p in parts]), sum(p.recordings for p in parts),
-        [f for p in parts for f in p.failed])
+        [f for p in parts for f in p.failed], np.concatenate([p.source for p in parts]))
 
 
 def _trained(train: Callable, rest, held):
@@ -487,6 +721,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         return model, summary
     examples = []
     jumbled = config.jumbled if len(parts) == 1 else -(-config.jumbled // len(parts))
+    phrases = config.phrases if len(parts) == 1 else -(-config.phrases // len(parts))
+    noise_clips = config.noise_clips if len(parts) == 1 else -(-config.noise_clips // len(parts))
     for f, (rest, held) in enumerate(parts):
         if how == "folds":
             say(f"confidence calibration: fold {f + 1} of {len(parts)}: training on {len(rest)} recordings, "
@@ -497,15 +733,23 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         model, summary = _trained(train, rest, held)
         examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,
                                              speeds=config.speeds, backwards=config.backwards, jumbled=jumbled,
-                                             seed=config.seed + f))
+                                             seed=config.seed + f, noisy=config.noisy,
+                                             noise_snr_db=config.noise_snr_db, phrases=phrases,
+                                             noise_clips=noise_clips))
     examples = _merged(examples)
     calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))
     n_right = int(examples.right.sum())
     n_jumbled = int(examples.jumbled.sum())
-    n_removed = int(examples.own_words_removed.sum()) - n_jumbled
+    n_noisy = int(np.char.startswith(examples.source, "noisy").sum())
+    n_phrase = int(np.char.startswith(examples.source, "phrase").sum())
+    n_clips = int((examples.source == "noise only").sum())
+    n_removed = int(examples.own_words_removed.sum()) - n_jumbled - n_clips
+    conditions = "".join(f", {n} in {what}" for n, what, on in (
+        (n_noisy, "noisy copies", config.noisy), (n_phrase, "joined phrases", config.phrases),
+        (n_clips, "noise-only clips", config.noise_clips)) if on)
     say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
         f"{examples.right.size - n_right} wrong ({n_removed} of them heard with the recording's own words "
-        f"removed, {n_jumbled} in jumbled speech)" + ("" if calibration is not None else "; not fitted"))
+        f"removed, {n_jumbled} in jumbled speech){conditions}" + ("" if calibration is not None else "; not fitted"))
     if config.refit:
         say(f"confidence calibration: training again on all {len(utterances)} recordings")
         model, summary = train(utterances)
@@ -522,6 +766,12 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                         "wrong_with_own_words_removed": n_removed,
                         "wrong_in_jumbled_speech": n_jumbled,
                         "jumbled_clips": jumbled * len(parts),
+                        **({"noisy_copies": config.noisy, "noise_snr_db": list(config.noise_snr_db),
+                            "words_in_noisy_copies": n_noisy} if config.noisy else {}),
+                        **({"joined_phrases": phrases * len(parts), "words_in_phrases": n_phrase}
+                           if config.phrases else {}),
+                        **({"noise_clips": noise_clips * len(parts), "words_in_noise_clips": n_clips}
+                           if config.noise_clips else {}),
                         "measures": list(calibration.names),
                         "refit_on_all": bool(config.refit)}})
     return model, summary

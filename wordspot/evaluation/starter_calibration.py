@@ -14,7 +14,10 @@ user's words, so it is fitted over many small vocabularies drawn from the corpus
    is wrong; (c) clips of
    jumbled speech of the set's recordings (:mod:`wordspot.audio.jumble`): all wrong;
    (d) background-only clips (noise, hum, babble of the corpus's voices;
-   :func:`wordspot.training.backgrounds.background_wave`): all wrong;
+   :func:`wordspot.training.backgrounds.background_wave`): all wrong; optionally (e) noisy
+   copies of the command recordings (:func:`calibrate.noisy_copies`), labelled as in (a),
+   and (f) phrases of 2-3 command recordings of one voice (:func:`calibrate.joined_phrases`),
+   labelled as in (a);
 3. fit the logistic regression on the measures :func:`calibrate.calibration_measures`
    chooses (the posterior measures too when the model has a state scorer).
 
@@ -33,7 +36,8 @@ import numpy as np
 
 from wordspot.decoding.decoder import DecoderSettings, build_recognizer
 from wordspot.errors import TrainingError, WordspotError
-from wordspot.evaluation.calibrate import CalibrationConfig, CalibrationExamples, fit_calibration
+from wordspot.evaluation.calibrate import (CalibrationConfig, CalibrationExamples, fit_calibration, joined_phrases,
+                                           noisy_copies)
 from wordspot.evaluation.reliability import word_hits
 
 __all__ = ["StarterCalibrationConfig", "starter_calibration_examples", "fit_starter_calibration"]
@@ -61,6 +65,14 @@ class StarterCalibrationConfig:
     speeds : tuple of float
         The command recordings are also recognised played this many times faster
         (``training.data.speed_copy``; words inside phrases are quicker than said alone).
+    noisy : int
+        Noisy copies of each command recording (babble of the vocabulary's other voices
+        two times in three, else steady noise), recognised at speed 1. 0: none.
+    noise_snr_db : (float, float)
+        Their SNR range (dB over the speech part).
+    phrases : int
+        Phrases of 2-3 command recordings of one voice joined with short pauses, per
+        vocabulary, each played at one of ``speeds``. 0: none.
     seed : int
     settings : DecoderSettings
         How the recordings are recognised (no threshold in any case).
@@ -75,12 +87,15 @@ class StarterCalibrationConfig:
     jumbled: int = 8
     noise: int = 8
     speeds: tuple[float, ...] = (1.0, 1.25)
+    noisy: int = 0
+    noise_snr_db: tuple[float, float] = (5.0, 25.0)
+    phrases: int = 0
     seed: int = 0
     settings: DecoderSettings = DecoderSettings(min_confidence=0.0)
     penalty: float = CalibrationConfig.penalty
 
     def __post_init__(self) -> None:
-        for name in ("vocabularies", "other_talk", "other_words", "jumbled", "noise"):
+        for name in ("vocabularies", "other_talk", "other_words", "jumbled", "noise", "noisy", "phrases"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < (1 if name == "vocabularies" else 0):
                 raise TrainingError(f"starter calibration: {name} must be a whole number >= "
@@ -91,6 +106,13 @@ class StarterCalibrationConfig:
                                 f"got {self.words!r}")
         if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
             raise TrainingError(f"starter calibration: speeds must be factors from 0.5 to 2, got {self.speeds!r}")
+        try:
+            snr_lo, snr_hi = (float(x) for x in self.noise_snr_db)
+        except (TypeError, ValueError):
+            snr_lo = snr_hi = float("nan")
+        if not (np.isfinite(snr_lo) and np.isfinite(snr_hi) and snr_lo <= snr_hi):
+            raise TrainingError(f"starter calibration: noise_snr_db must be two finite numbers low <= high in dB "
+                                f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
 
 
 def _load(model, path) -> np.ndarray | None:
@@ -145,14 +167,16 @@ def starter_calibration_examples(model, utterances: Sequence,
     by_speaker: dict[str, list] = {}
     for u in usable:
         by_speaker.setdefault(str(u.speaker), []).append(u)
-    rows, right, removed, jumbled = [], [], [], []
+    rows, right, removed, jumbled, source = [], [], [], [], []
     failed: set[str] = set()
 
-    def add(segments, labels, all_wrong=False, in_jumble=False):
+    def add(segments, labels, all_wrong=False, in_jumble=False, where=None):
         rows.extend(s.measures for s in segments)
         right.extend(labels)
         removed.extend([all_wrong] * len(segments))
         jumbled.extend([in_jumble] * len(segments))
+        where = where or ("jumbled" if in_jumble else "held-out, own words removed" if all_wrong else "held-out")
+        source.extend([where] * len(segments))
 
     settings = replace(config.settings, min_confidence=0.0)
     for v in range(config.vocabularies):
@@ -180,6 +204,20 @@ def starter_calibration_examples(model, utterances: Sequence,
                 segs = heard(w if f == 1.0 else speed_copy(w, rate, f))
                 add(segs, word_hits(u.words, [s.word for s in segs]) if is_command else [False] * len(segs),
                     all_wrong=not is_command)
+        extra = np.random.default_rng([config.seed, 0x636F6E64, v])  # apart, so the other draws stay as they were
+        said = [(u, wave(u)) for u in commands]
+        said = [(u, w) for u, w in said if w is not None]
+        if config.noisy:
+            for k, w in noisy_copies([w for _, w in said], [str(u.speaker) for u, _ in said], config.noisy,
+                                     snr_db=config.noise_snr_db, seed=int(extra.integers(2**31)), sample_rate=rate):
+                segs = heard(w)
+                add(segs, word_hits(said[k][0].words, [s.word for s in segs]), where="noisy")
+        if config.phrases:
+            for ws, w in joined_phrases([w for _, w in said], [u.words for u, _ in said],
+                                        [str(u.speaker) for u, _ in said], config.phrases, speeds=config.speeds,
+                                        seed=int(extra.integers(2**31)), sample_rate=rate):
+                segs = heard(w)
+                add(segs, word_hits(ws, [s.word for s in segs]), where="phrase")
         clips = []
         if config.jumbled:
             speaker = sorted({str(u.speaker) for u in commands})
@@ -198,7 +236,7 @@ def starter_calibration_examples(model, utterances: Sequence,
             for r in plan_backgrounds(config.noise, sorted(pool), seed=int(rng.integers(2**31)),
                                       seconds=(1.0, 4.0), levels=(-60.0, -20.0), kinds=kinds):
                 segs = heard(background_wave(r, pool, rate))
-                add(segs, [False] * len(segs), all_wrong=True)
+                add(segs, [False] * len(segs), all_wrong=True, where="noise only")
         say(f"starter calibration: vocabulary {v + 1}/{config.vocabularies} ({k} words): {len(commands)} "
             f"command recordings, {len(others)} other, {len(clips)} jumbled clips, {config.noise} noise clips; "
             f"{sum(right)} right and {len(right) - sum(right)} wrong words so far")
@@ -207,7 +245,7 @@ def starter_calibration_examples(model, utterances: Sequence,
     measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
     return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
                                np.array(jumbled, dtype=bool), recordings=len(usable) - len(failed),
-                               failed=sorted(failed))
+                               failed=sorted(failed), source=np.array(source, dtype="<U32"))
 
 
 def fit_starter_calibration(model, utterances: Sequence,

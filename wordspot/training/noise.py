@@ -29,7 +29,8 @@ from wordspot.util.progress import ProgressBar
 from wordspot.training.cluster import using
 from wordspot.training.items import CHUNK_SIZE, TrainingItem
 
-__all__ = ["POOL_PER_SPEAKER", "CopyRecipe", "babble_pool", "babble_streams", "plan_copies", "noisy_items"]
+__all__ = ["POOL_PER_SPEAKER", "CopyRecipe", "babble_pool", "babble_streams", "plan_copies", "noisy_wave",
+           "noisy_items"]
 
 #: Recordings per speaker whose speech parts make up that speaker's babble stream.
 POOL_PER_SPEAKER = 12
@@ -105,11 +106,13 @@ def babble_streams(pool: dict, recipe: CopyRecipe) -> list[np.ndarray]:
     return streams
 
 
-def _copy_features(wave: np.ndarray, recipe: CopyRecipe, pool: dict, settings: FeatureSettings) -> np.ndarray:
+def noisy_wave(wave: np.ndarray, recipe: CopyRecipe, pool: dict, sample_rate: int) -> np.ndarray:
+    """The noisy copy of ``wave`` that ``recipe`` describes (the recording itself when it
+    is digital silence, which has no SNR to measure against)."""
     rng = np.random.default_rng(recipe.noise_seed)
-    span = speech_span(wave, settings.sample_rate)
-    if mean_power(wave, span) <= 0:  # digital silence: nothing to measure an SNR against
-        return compute_features(wave, settings)
+    span = speech_span(wave, sample_rate)
+    if mean_power(wave, span) <= 0:
+        return wave
     n = wave.shape[0]
     noise = None
     if recipe.kind == "babble":
@@ -117,8 +120,12 @@ def _copy_features(wave: np.ndarray, recipe: CopyRecipe, pool: dict, settings: F
         if streams:
             noise = babble(streams, n, rng)
     if noise is None or mean_power(noise) <= 0:
-        noise = steady_noise(n, rng, sample_rate=settings.sample_rate)
-    return compute_features(mix_at_snr(wave, fit_length(noise, n, rng), recipe.snr_db, span=span), settings)
+        noise = steady_noise(n, rng, sample_rate=sample_rate)
+    return mix_at_snr(wave, fit_length(noise, n, rng), recipe.snr_db, span=span)
+
+
+def _copy_features(wave: np.ndarray, recipe: CopyRecipe, pool: dict, settings: FeatureSettings) -> np.ndarray:
+    return compute_features(noisy_wave(wave, recipe, pool, settings.sample_rate), settings)
 
 
 def _chunk_task(recipes, paths, pool, settings):

@@ -1,0 +1,100 @@
+#!/usr/bin/env python3
+"""The starter's own calibration with noisy copies and joined phrases, on dev material.
+
+Per seed of the starter calibration (``StarterCalibrationConfig.seed``: which vocabularies
+are drawn), the examples of every kind are gathered once on the starter corpus's dev split
+(as ``recordings/build_starters.py`` does, plus ``--noisy`` noisy copies of every command
+recording and ``--phrases`` phrases per vocabulary), and one calibration is fitted per
+variant on its kinds. The shipped starter (not adapted) then recognises the dev sets of
+``tune_filler.py`` with the bakery words once (the demo's dev voices: commands, joined,
+phrase stand-ins, real phrases, commands in babble and fan noise at 20 and 10 dB; the
+starter corpus's dev voices' other talk; noise-only clips), and each variant's confidences
+are computed from the stored measures. The tables are those of ``threshold_dev.py
+--variants``.
+
+Caveat: the starter calibration is fitted on the starter corpus's dev split, whose
+recordings without the bakery words are also the "other talk" dev set, so the other-talk
+figures are not on unseen material (the variants share that bias; compare them with each
+other, not with the adapted model's).
+
+    python tests/benchmarks/starter_calibration_dev.py [--seeds 0 1 2] [--rate 16000]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parents[1]
+sys.path.insert(0, str(HERE))
+
+from threshold_dev import NOISY, PHRASE, VariantTables, decode_sets  # noqa: E402
+from tune_filler import dev_sets  # noqa: E402
+
+BASE = ("held-out", "held-out, own words removed", "jumbled", "noise only")
+VARIANTS = {
+    "as shipped (before)": BASE,
+    "+ noisy copies": BASE + NOISY[:1],
+    "+ phrases": BASE + PHRASE[:1],
+    "+ noisy + phrases": BASE + NOISY[:1] + PHRASE[:1],
+}
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
+    ap.add_argument("--noisy", type=int, default=1, help="noisy copies of every command recording")
+    ap.add_argument("--phrases", type=int, default=20, help="joined phrases per vocabulary")
+    ap.add_argument("--joined", type=int, default=100)
+    ap.add_argument("--show", type=float, nargs="+", default=[0.0, 0.02, 0.05, 0.1, 0.2])
+    args = ap.parse_args(argv)
+
+    from wordspot.corpus import read_manifest
+    from wordspot.decoding.decoder import DecoderSettings
+    from wordspot.evaluation.calibrate import CalibrationConfig, fit_calibration
+    from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, starter_calibration_examples
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+    from wordspot.starters import starter_path
+
+    model = load_model(starter_path("starter"))
+    bakery = replace(model, lexicon=read_lexicon(REPO / "lexicon" / "bakery.txt"))
+    dev = read_manifest(REPO / "recordings" / "starter" / "dev.csv")
+    settings = DecoderSettings(min_confidence=0.0)
+    t0 = time.process_time()
+    sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0))
+    heard = decode_sets(bakery, sets, settings)
+    print(f"dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
+          + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
+    tables = VariantTables(VARIANTS)
+    for seed in args.seeds:
+        t0 = time.process_time()
+        config = StarterCalibrationConfig(seed=seed, noisy=args.noisy, phrases=args.phrases)
+        ex = starter_calibration_examples(model, dev, config)
+        finite = np.isfinite(ex.measures).all(axis=1)
+        if not finite.all():  # say where, and leave those words out of every variant
+            where = {str(k): int((~finite & (ex.source == k)).sum()) for k in np.unique(ex.source[~finite])}
+            print(f"seed {seed}: {int((~finite).sum())} words with a measure not finite, left out: {where}",
+                  file=sys.stderr, flush=True)
+            ex = ex.subset(finite)
+        fit_config = CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty)
+        tables.new_seed()
+        for v, kinds in VARIANTS.items():
+            sub = ex.subset(np.isin(ex.source, kinds))
+            tables.add(v, heard, fit_calibration(sub, config=fit_config), sub)
+        print(f"seed {seed}: {ex.right.size} words ({int(ex.right.sum())} right), cpu "
+              f"{time.process_time() - t0:.0f} s", file=sys.stderr, flush=True)
+    print(f"starter {model.info.get('name', 'starter')}; {args.noisy} noisy copies, {args.phrases} phrases per "
+          f"vocabulary; seeds {args.seeds}: mean (min-max)\n")
+    tables.print(args.show)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
