@@ -141,8 +141,16 @@ class AdaptationConfig:
         Speed copies of every recording (as ``TrainingConfig.speed_factors``, without 1)
         that take part in the following passes; () none.
     follow_noise_copies : int >= 0
-        Noisy copies of every recording (as ``TrainingConfig.noise_copies``, 0-25 dB SNR)
-        that take part in the following passes.
+        Noisy copies of every recording (as ``TrainingConfig.noise_copies``) that take
+        part in the following passes.
+    follow_noise_snr : (float, float)
+        SNR range in dB of those noisy copies.
+    follow_pause : bool
+        The following passes also update the pause states (else those keep the MAP pass's
+        result).
+    follow_variance_share : float in [0, 1]
+        The following passes never bring a variance below this share of the MAP pass's
+        result (0: only the usual floor).
     strength : int or None
         Run exactly this many following passes (at most ``follow_passes``); None: choose
         them on held-out recordings by their log-likelihood a frame.
@@ -177,6 +185,9 @@ class AdaptationConfig:
     follow_variances: bool = True
     follow_speeds: tuple[float, ...] = (0.9, 1.1)
     follow_noise_copies: int = 0
+    follow_noise_snr: tuple[float, float] = (0.0, 25.0)
+    follow_pause: bool = True
+    follow_variance_share: float = 0.0
     strength: int | None = None
     held_out_share: float = 0.1
     min_held_out_frames: int = 1000
@@ -363,6 +374,20 @@ def _map_update(prior: Mixtures, st: MixtureStats, tau: float, update_variances:
     return Mixtures(weights, means, variances)
 
 
+def _held_back(mix: Mixtures, base: Mixtures, pause: np.ndarray, config: AdaptationConfig) -> Mixtures:
+    """A following pass's mixtures with what ``config`` keeps from ``base`` (the MAP
+    pass's result): the pause states (``follow_pause`` False) and a variance floor
+    (``follow_variance_share``)."""
+    if config.follow_pause and config.follow_variance_share <= 0:
+        return mix
+    weights, means, variances = mix.weights.copy(), mix.means.copy(), mix.variances.copy()
+    if config.follow_variance_share > 0:
+        variances = np.maximum(variances, config.follow_variance_share * base.variances)
+    if not config.follow_pause:
+        weights[pause], means[pause], variances[pause] = base.weights[pause], base.means[pause], base.variances[pause]
+    return Mixtures(weights, means, variances)
+
+
 def _chunks(items) -> list:
     return [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
 
@@ -448,10 +473,13 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
         if report is not None:
             report(f"  held-out fit {held_fits[-1]:.4f} ({len(held)} recordings)")
     best, strength = current, 0
+    base = current
+    pause = regression_classes(units) == 0
     for j in range(1, most + 1):
         k += 1
         res = stats_pass(current, k, following=True)
         current = _map_update(current, res.stats, config.follow_weight, config.follow_variances, floor)
+        current = _held_back(current, base, pause, config)
         if not choose:
             best, strength = current, j
             continue
@@ -714,7 +742,7 @@ def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: Adaptat
         clean = [it for it in items if not it.background]
         speaker = {u.path: u.speaker for u in used}
         out += noisy_items(clean, [speaker[it.path] for it in clean],
-                           NoiseSettings(copies=config.follow_noise_copies, snr_db=(0.0, 25.0)), start.features,
+                           NoiseSettings(copies=config.follow_noise_copies, snr_db=config.follow_noise_snr), start.features,
                            seed=config.seed, jobs=config.jobs, quiet=quiet)
     return out
 
