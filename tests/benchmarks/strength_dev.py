@@ -138,7 +138,11 @@ VARIANTS = {
     "pause kept, variance floor 0.5": {"follow_pause": False, "follow_variance_share": 0.5},
     "noisy copy 10-25 dB": {"follow_noise_copies": 1, "follow_noise_snr": (10.0, 25.0)},
     "means + weights": {"follow_variances": False},
+    "noisy copy 0-25 dB": {"follow_noise_copies": 1, "follow_noise_snr": (0.0, 25.0)},
+    "2 noisy copies 10-25 dB": {"follow_noise_copies": 2, "follow_noise_snr": (10.0, 25.0)},
     "no speed copies": {"follow_speeds": ()},
+    "weights kept": {"follow_weights": False},
+    "weights kept, variance floor 1": {"follow_weights": False, "follow_variance_share": 1.0},
     "variance floor 0.8": {"follow_variance_share": 0.8},
     "variance floor 1": {"follow_variance_share": 1.0},
 }

@@ -148,6 +148,9 @@ class AdaptationConfig:
     follow_pause : bool
         The following passes also update the pause states (else those keep the MAP pass's
         result).
+    follow_weights : bool
+        The following passes also update the mixture weights (else those keep the MAP
+        pass's result).
     follow_variance_share : float in [0, 1]
         The following passes never bring a variance below this share of the MAP pass's
         result (0: only the usual floor).
@@ -187,6 +190,7 @@ class AdaptationConfig:
     follow_noise_copies: int = 0
     follow_noise_snr: tuple[float, float] = (0.0, 25.0)
     follow_pause: bool = True
+    follow_weights: bool = True
     follow_variance_share: float = 0.0
     strength: int | None = None
     held_out_share: float = 0.1
@@ -376,11 +380,14 @@ def _map_update(prior: Mixtures, st: MixtureStats, tau: float, update_variances:
 
 def _held_back(mix: Mixtures, base: Mixtures, pause: np.ndarray, config: AdaptationConfig) -> Mixtures:
     """A following pass's mixtures with what ``config`` keeps from ``base`` (the MAP
-    pass's result): the pause states (``follow_pause`` False) and a variance floor
+    pass's result): the pause states (``follow_pause`` False), the weights
+    (``follow_weights`` False) and a variance floor
     (``follow_variance_share``)."""
-    if config.follow_pause and config.follow_variance_share <= 0:
+    if config.follow_pause and config.follow_weights and config.follow_variance_share <= 0:
         return mix
     weights, means, variances = mix.weights.copy(), mix.means.copy(), mix.variances.copy()
+    if not config.follow_weights:
+        weights = base.weights.copy()
     if config.follow_variance_share > 0:
         variances = np.maximum(variances, config.follow_variance_share * base.variances)
     if not config.follow_pause:
