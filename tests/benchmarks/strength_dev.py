@@ -133,6 +133,7 @@ def _cell(t: dict) -> str:
 #: Following-pass variants tried in the 2026-12-03 dev runs (``--variants``): AdaptationConfig fields.
 VARIANTS = {
     "default": {},
+    "before (clean and speed copies)": {"follow_noise_copies": 0},
     "pause kept": {"follow_pause": False},
     "variance floor 0.5": {"follow_variance_share": 0.5},
     "pause kept, variance floor 0.5": {"follow_pause": False, "follow_variance_share": 0.5},

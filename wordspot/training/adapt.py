@@ -187,8 +187,8 @@ class AdaptationConfig:
     follow_weight: float = 10.0
     follow_variances: bool = True
     follow_speeds: tuple[float, ...] = (0.9, 1.1)
-    follow_noise_copies: int = 0
-    follow_noise_snr: tuple[float, float] = (0.0, 25.0)
+    follow_noise_copies: int = 1
+    follow_noise_snr: tuple[float, float] = (10.0, 25.0)
     follow_pause: bool = True
     follow_weights: bool = True
     follow_variance_share: float = 0.0
@@ -218,6 +218,14 @@ class AdaptationConfig:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
+        try:
+            lo, hi = (float(v) for v in self.follow_noise_snr)
+        except (TypeError, ValueError):
+            lo, hi = float("nan"), float("nan")
+        if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
+            raise TrainingError(f"follow_noise_snr must be two numbers low <= high in dB (e.g. 10 25), "
+                                f"got {self.follow_noise_snr!r}")
+        object.__setattr__(self, "follow_noise_snr", (lo, hi))
         if not (np.isfinite(self.follow_weight) and self.follow_weight > 0):
             raise TrainingError(f"follow_weight must be a number > 0 (the default is 10), got {self.follow_weight!r}")
         for name in ("held_out_share", "held_out_speaker_share"):
@@ -658,7 +666,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "skipped": len(summary.skipped),
         "frames": summary.n_frames,
         "prior_weight": float(config.prior_weight),
-        "follow_copies": {"speeds": list(config.follow_speeds), "noise_copies": int(config.follow_noise_copies)},
+        "follow_copies": {"speeds": list(config.follow_speeds), "noise_copies": int(config.follow_noise_copies),
+                         "noise_snr_db": list(config.follow_noise_snr)},
         "passes": int(config.passes),
         "mean_transform": {("pause", "speech")[c]: how for c, how in sorted(transform.items())},
         "update_variances": bool(config.update_variances),
