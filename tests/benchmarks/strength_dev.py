@@ -130,22 +130,16 @@ def _cell(t: dict) -> str:
     return f"{100 * t['wer']:.1f} ({t['sub']}/{t['dele']})"
 
 
-#: Following-pass variants tried in the 2026-12-03 dev runs (``--variants``): AdaptationConfig fields.
+#: Following-pass variants of the 2026-12-03 dev runs (``--variants``, ``--whole``): AdaptationConfig
+#: fields. Those run with options since removed (pause states kept, variance floors, weights kept)
+#: are in docs/experiments/2026-12-03-adaptation-in-noise.md.
 VARIANTS = {
     "default": {},
     "before (clean and speed copies)": {"follow_noise_copies": 0},
-    "pause kept": {"follow_pause": False},
-    "variance floor 0.5": {"follow_variance_share": 0.5},
-    "pause kept, variance floor 0.5": {"follow_pause": False, "follow_variance_share": 0.5},
-    "noisy copy 10-25 dB": {"follow_noise_copies": 1, "follow_noise_snr": (10.0, 25.0)},
-    "means + weights": {"follow_variances": False},
     "noisy copy 0-25 dB": {"follow_noise_copies": 1, "follow_noise_snr": (0.0, 25.0)},
     "2 noisy copies 10-25 dB": {"follow_noise_copies": 2, "follow_noise_snr": (10.0, 25.0)},
+    "means + weights": {"follow_variances": False},
     "no speed copies": {"follow_speeds": ()},
-    "weights kept": {"follow_weights": False},
-    "weights kept, variance floor 1": {"follow_weights": False, "follow_variance_share": 1.0},
-    "variance floor 0.8": {"follow_variance_share": 0.8},
-    "variance floor 1": {"follow_variance_share": 1.0},
 }
 
 
