@@ -4,16 +4,21 @@
 The starter is adapted on the training voices that are not dev voices (``dev_candidate``
 in ``recordings/voices.csv``), with all their takes or only the first take of each word,
 three ways: the fixed-strength MAP of before (``strength`` 0), optionally fixed strengths
-(``--fixed``), the strength chosen on held-out recordings (the default, three seeds: the
-seed draws the held-out recordings and the background items), and trained from scratch (``TrainingConfig()``). Each model is
-scored on the dev voices (WER in the word loop, no confidence threshold): their clean
-commands, the same commands in babble or fan noise at 10 dB SNR, and joined stand-ins of
+(``--fixed``) and variants of the following passes (``--variants``), the strength chosen on
+held-out recordings (the default, three seeds: the seed draws the held-out recordings, the
+background items and the noisy copies), and trained from scratch (``TrainingConfig()``).
+Each model is scored on the dev voices (WER with substitutions / deletions, word loop,
+confidence threshold 0): their clean commands, the same commands in the demo's kind of
+babble or fan noise at 20 dB and at 10 dB SNR (``_dev_sets``), and joined stand-ins of
 phrases (2-4 commands with pauses). A last part leaves the words of one fold out of the
-adaptation data and scores the dev voices saying them ("new words"). The demo's test sets
-are never used here.
+adaptation data and scores the dev voices saying them ("new words"). ``--whole`` instead
+trains through ``api.train`` (calibration, scorer tuning) and also scores at the default
+confidence threshold. The demo's test sets are never used here.
 
     python tests/benchmarks/strength_dev.py                 # everything (about half an hour)
     python tests/benchmarks/strength_dev.py --no-scratch    # without the from-scratch models
+    python tests/benchmarks/strength_dev.py --amounts all --fixed 1 --variants default \
+        "before (clean and speed copies)" --no-chosen --no-scratch --no-new-words
 """
 
 from __future__ import annotations
