@@ -17,7 +17,7 @@ confidence threshold. The demo's test sets are never used here.
 
     python tests/benchmarks/strength_dev.py                 # everything (about half an hour)
     python tests/benchmarks/strength_dev.py --no-scratch    # without the from-scratch models
-    python tests/benchmarks/strength_dev.py --amounts all --fixed 1 --variants default \
+    python tests/benchmarks/strength_dev.py --amounts all --fixed 1 --variants default \\
         "before (clean and speed copies)" --no-chosen --no-scratch --no-new-words
 """
 
