@@ -24,8 +24,8 @@ Two steps, both over the same forward-backward statistics that training collects
 3. **Following passes: the strength.** Up to ``follow_passes`` more MAP passes, each with
    the previous pass's model as its prior and a small weight, so that Gaussians with much
    data move to what the data alone would give (means, variances, weights) and those with
-   little stay; they also learn from speed copies of the recordings and from one noisy copy
-   of each (babble or steady noise at 10-25 dB SNR), without which they taught the search
+   little stay; they also learn from speed copies of the recordings and from two noisy
+   copies of each (babble or steady noise at 10-25 dB SNR), without which they taught the search
    to miss words in noise (docs/experiments/2026-12-03-adaptation-in-noise.md). How many run is
    decided by recordings held out of them (passes run while their log-likelihood a frame
    rises): whole speakers when the recordings have three or more, else held-out takes
@@ -146,8 +146,8 @@ class AdaptationConfig:
         Noisy copies of every recording (as ``TrainingConfig.noise_copies``) that take
         part in the following passes. Without one, the following passes cut the dev
         voices' clean errors but doubled their errors (mostly deleted words) in the demo's
-        kind of noise at 20 dB; with one at 10-25 dB they cut those too
-        (docs/experiments/2026-12-03-adaptation-in-noise.md).
+        kind of noise at 20 dB; with one at 10-25 dB they cut those too, with two also
+        the 10 dB errors (docs/experiments/2026-12-03-adaptation-in-noise.md).
     follow_noise_snr : (float, float)
         SNR range in dB of those noisy copies (0-25 dB, as in training from scratch, cost
         clean and 20 dB dev errors against 10-25).
@@ -184,7 +184,7 @@ class AdaptationConfig:
     follow_weight: float = 10.0
     follow_variances: bool = True
     follow_speeds: tuple[float, ...] = (0.9, 1.1)
-    follow_noise_copies: int = 1
+    follow_noise_copies: int = 2
     follow_noise_snr: tuple[float, float] = (10.0, 25.0)
     strength: int | None = None
     held_out_share: float = 0.1
