@@ -15,9 +15,9 @@ from wordspot.training.trainer import TrainingConfig, train
 
 SMALL = TrainingConfig(mixtures=(1, 2), first_passes=3, passes_per_split=2, speed_factors=(1.0,), noise_copies=0)
 # the tone corpora have three speakers; most tests choose on held-out takes of the same ones;
-# no speed copies, as in the from-scratch model they are compared with
+# no speed or noisy copies, as in the from-scratch model they are compared with
 QUICK = dict(scorer=None, background_share=0.0, mean_transform=False, min_held_out_frames=200,
-             speakers_to_hold_out=100, follow_speeds=())
+             speakers_to_hold_out=100, follow_speeds=(), follow_noise_copies=0)
 
 
 @pytest.fixture(scope="module")
@@ -154,7 +154,54 @@ def test_speed_copies_take_part_in_the_following_passes_only(shifted):
     assert summary.passes[1] != plain_summary.passes[1]
 
 
-@pytest.mark.parametrize("field,value", [("follow_speeds", (1.0,)), ("follow_noise_copies", -1), ("follow_passes", -1), ("follow_weight", 0.0), ("strength", -2),
+def test_noisy_copies_take_part_in_the_following_passes_only(shifted):
+    start, lex, many, _ = shifted
+    noisy, summary = adapt(many[:10], lex, start, config=AdaptationConfig(**{**QUICK, "follow_noise_copies": 1},
+                                                                         strength=2))
+    plain, plain_summary = adapt(many[:10], lex, start, config=AdaptationConfig(**QUICK, strength=2))
+    assert noisy.info["follow_copies"]["noise_copies"] == 1
+    assert noisy.info["follow_copies"]["noise_snr_db"] == [10.0, 25.0]  # the default range
+    assert summary.passes[0] == plain_summary.passes[0]
+    assert summary.passes[1] != plain_summary.passes[1]
+
+
+def test_the_noisy_copies_make_noisy_recordings_fit_better(shifted):
+    from wordspot.audio.augment import NoiseSettings
+    from wordspot.training.noise import noisy_items
+
+    start, lex, many, held = shifted
+    # the same held-out recordings with babble or steady noise at 15 dB, made with another seed
+    clean, _ = prepare_items(held, lex, start.units, start.features)
+    noisy_held = noisy_items(clean, [u.speaker for u in held], NoiseSettings(copies=1, snr_db=(15.0, 15.0)),
+                             start.features, seed=99)
+    fits = {}
+    for copies in (0, 1):
+        model, _ = adapt(many, lex, start, config=AdaptationConfig(**{**QUICK, "follow_noise_copies": copies},
+                                                                   strength=3))
+        fits[copies] = held_out_fit(noisy_held, start.units, model.mixtures)
+    # Passes that learn from clean recordings alone fit noisy speech worse than passes that
+    # also hear a noisy copy of each (multi-condition training, common practice, no source)
+    assert fits[1] > fits[0]
+
+
+def test_strength_zero_makes_no_copies_and_is_the_map_of_before(shifted, monkeypatch):
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, _ = shifted
+    calls = []
+    real = adapt_module.noisy_items
+    monkeypatch.setattr(adapt_module, "noisy_items", lambda *a, **k: calls.append(1) or real(*a, **k))
+    cfg = {**QUICK, "follow_speeds": (0.9, 1.1)}
+    a, _ = adapt(many[:20], lex, start, config=AdaptationConfig(**{**cfg, "follow_noise_copies": 1}, strength=0))
+    b, _ = adapt(many[:20], lex, start, config=AdaptationConfig(**{**cfg, "follow_noise_copies": 0}, strength=0))
+    assert calls == []
+    for x, y in ((a.mixtures.means, b.mixtures.means), (a.mixtures.variances, b.mixtures.variances),
+                 (a.mixtures.weights, b.mixtures.weights)):
+        np.testing.assert_array_equal(x, y)
+
+
+@pytest.mark.parametrize("field,value", [("follow_speeds", (1.0,)), ("follow_noise_copies", -1),
+                                         ("follow_noise_snr", (25.0, 10.0)), ("follow_noise_snr", (5.0,)), ("follow_passes", -1), ("follow_weight", 0.0), ("strength", -2),
                                          ("held_out_share", 1.0)])
 def test_strength_settings_are_checked(field, value):
     with pytest.raises(TrainingError, match=field):

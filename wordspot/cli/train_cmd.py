@@ -55,9 +55,10 @@ recordings in all, an adapted model keeps the calibration its starting model car
 any. The summary's last line says which calibration the model got.
 
 Adapting runs, after the weighted pass, up to 6 further passes in which your recordings
-(and copies of them played 10% faster and slower) take over, as many as make recordings
-held out of them fit better: whole speakers when there are three or more, else held-out
-takes. The summary says how strongly the model was adapted and why; --strength N fixes it.
+(and copies of them played 10% faster and slower, and two with noise added at 10-25 dB)
+take over, as many as make recordings held out of them fit better: whole speakers when
+there are three or more, else held-out takes. The summary says how strongly the model was
+adapted and why; --strength N fixes it.
 """
 
 
