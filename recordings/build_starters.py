@@ -142,11 +142,13 @@ def train_one(rate: int, jobs: int, mixtures: int, quiet: bool, manifests: list[
 @dataclass
 class Aligned:
     """Frames and mixture labels per item, what each item is (``clean``, ``noisy``,
-    ``speed 0.9``..., ``background``) and the number of utterances skipped."""
+    ``speed 0.9``..., ``background``), its recording (copies share it) and the number of
+    utterances skipped."""
 
     frames: list
     labels: list
     kinds: list
+    paths: list
     skipped: int
 
     def only(self, kinds) -> "Aligned":
@@ -154,7 +156,7 @@ class Aligned:
         kinds = set(kinds)
         keep = [i for i, k in enumerate(self.kinds) if k in kinds or k.split()[0] in kinds]
         return Aligned([self.frames[i] for i in keep], [self.labels[i] for i in keep],
-                       [self.kinds[i] for i in keep], self.skipped)
+                       [self.kinds[i] for i in keep], [self.paths[i] for i in keep], self.skipped)
 
 
 def _kind(item) -> str:
@@ -190,7 +192,7 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
         with np.load(path, allow_pickle=False) as z:
             cut = np.cumsum(z["lengths"])[:-1]
             return Aligned(np.split(z["frames"], cut), np.split(z["labels"], cut), z["kinds"].tolist(),
-                           int(z["skipped"]))
+                           z["paths"].tolist(), int(z["skipped"]))
     t0 = time.monotonic()
     utterances = [u for m in manifests for u in read_manifest(m)]
     noise = NoiseSettings(copies=noise_copies, snr_db=tuple(snr_db)) if noise_copies else None
@@ -207,9 +209,10 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
         tmp = path.with_suffix(".part.npz")
         np.savez(tmp, frames=np.concatenate(got.frames), labels=np.concatenate(got.labels),
                  lengths=np.array([len(y) for y in got.labels], dtype=np.int64),
-                 kinds=np.array(kinds), skipped=len(got.skipped))
+                 kinds=np.array(kinds), paths=np.array([str(it.path) for it in got.items]),
+                 skipped=len(got.skipped))
         tmp.replace(path)
-    return Aligned(got.frames, got.labels, kinds, len(got.skipped))
+    return Aligned(got.frames, got.labels, kinds, [str(it.path) for it in got.items], len(got.skipped))
 
 
 def frame_accuracy(scorer, frames_list, labels_list) -> float:
@@ -238,7 +241,9 @@ def add_scorer(path: Path, jobs: int, quiet: bool, manifests: list[Path], config
     train = aligned(model, manifests, jobs=jobs, background_share=SCORER_BACKGROUND_SHARE, seed=config.seed,
                     quiet=quiet, cache=cache, noise_copies=noise_copies, speeds=speeds)
     t_align = time.monotonic() - t0
-    scorer, fit = fit_scorer_with_report(train.frames, train.labels, model.mixtures.n_mixtures, config)
+    # copies of one recording are held out together (early stopping on unseen recordings)
+    scorer, fit = fit_scorer_with_report(train.frames, train.labels, model.mixtures.n_mixtures, config,
+                                         groups=train.paths)
     t_fit = time.monotonic() - t0 - t_align
     dev = dev_noisy = None
     if DEV.exists():

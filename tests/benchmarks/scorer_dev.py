@@ -131,7 +131,7 @@ def main(argv=None) -> int:
             for seed in args.seeds:
                 t0 = time.monotonic()
                 config = ScorerConfig(hidden=hidden, context=context, max_frames=frames, seed=seed)
-                scorer, fit = fit_scorer_with_report(data.frames, data.labels, p, config)
+                scorer, fit = fit_scorer_with_report(data.frames, data.labels, p, config, groups=data.paths)
                 seconds = time.monotonic() - t0
                 n_weights = sum(w.size + b.size for w, b in zip(scorer.weights, scorer.biases))
                 print(f"| {mix} | {'x'.join(map(str, hidden))} | {context} | {fit.train_frames} | {seed} "
