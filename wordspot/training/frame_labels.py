@@ -183,7 +183,13 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
     -------
     FrameLabels
         ``items`` (recordings in manifest order, then speed copies (factor-major), then
-        noisy copies, then background items) and ``skipped`` (path and reason of every utterance left out).
+        noisy copies, then background items) and ``skipped`` (path and reason of every
+        utterance left out).
+
+    Raises
+    ------
+    TrainingError
+        A speed factor that is not a number > 0.
     """
     lexicon, units = model.lexicon, model.units
     utterances = list(utterances)
