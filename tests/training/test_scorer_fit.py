@@ -5,7 +5,7 @@ import pytest
 
 from wordspot.errors import TrainingError
 from wordspot.training.scorer_fit import (UNSEEN_LOGIT, ScorerConfig, fit_scorer, fit_scorer_with_report,
-                                          label_log_prior)
+                                          held_out_split, label_log_prior)
 
 SMALL = dict(hidden=(16,), context=1, max_epochs=6, batch_size=64, learning_rate=0.01)
 
@@ -40,6 +40,27 @@ def test_learns_the_classes_and_keeps_the_best_epoch(rng):
     hits = [np.mean(np.argmax(scorer.log_posteriors(x), axis=1) == y) for x, y in zip(frames[20:], labels[20:])]
     assert np.mean(hits) > 0.9
     assert scorer.context == 1 and scorer.frame_dim == 4 and scorer.hidden_sizes == (16,)
+
+
+def test_copies_of_one_recording_are_held_out_together(rng):
+    # 10 recordings, each with two copies (e.g. noisy, played faster): 30 items in 10 groups
+    groups = [f"rec{k}" for k in range(10)] * 3
+    held, train = held_out_split(30, 0.2, np.random.default_rng(5), groups)
+    assert held.size == 6 and train.size == 24 and np.intersect1d(held, train).size == 0
+    assert {groups[i] for i in held}.isdisjoint(groups[i] for i in train)
+    assert len({groups[i] for i in held}) == 2
+    # without groups: the split of the items themselves, as before
+    held, _ = held_out_split(30, 0.2, np.random.default_rng(5))
+    np.testing.assert_array_equal(held, np.sort(np.random.default_rng(5).permutation(30)[:6]))
+    frames, labels = labelled(rng, n_utts=12)
+    a = fit_scorer(frames * 2, labels * 2, 5, ScorerConfig(**SMALL, seed=1), groups=list(range(12)) * 2)
+    b = fit_scorer(frames * 2, labels * 2, 5, ScorerConfig(**SMALL, seed=1), groups=list(range(12)) * 2)
+    assert a.same_as(b)
+    _, report = fit_scorer_with_report(frames * 2, labels * 2, 5, ScorerConfig(**SMALL, held_out_share=0.25),
+                                       groups=list(range(12)) * 2)
+    assert report.held_out_frames == 6 * 40  # 3 recordings, both copies
+    with pytest.raises(TrainingError, match="groups"):
+        fit_scorer(frames, labels, 5, ScorerConfig(**SMALL), groups=[0, 1])
 
 
 def test_every_class_gets_a_column(rng):

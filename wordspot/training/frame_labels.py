@@ -13,7 +13,10 @@ Background-only items (:mod:`wordspot.training.backgrounds`; empty transcript, o
 unit) are aligned the same way, so every one of their frames gets a pause mixture. Noisy
 copies (:mod:`wordspot.training.noise`) can be added too; each takes the labels of its
 clean recording (same audio length, so the same frames), which is where the clean
-alignment is the better guess.
+alignment is the better guess. Speed copies (:func:`wordspot.training.data.speed_copy`,
+played faster or slower) have other frames, so each is aligned through its own chain; a
+copy too short for its chain or with no path is left out silently (the recording itself
+is kept).
 
 Utterances that cannot be aligned are skipped and listed, never raised: files that do not
 load, words missing from the model's lexicon (or phones missing from its units), audio too
@@ -34,10 +37,10 @@ import numpy as np
 from wordspot.acoustic import kernels
 from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.acoustic.hmm import graph_arrays
-from wordspot.errors import TrainingWarning
+from wordspot.errors import TrainingError, TrainingWarning
 from wordspot.training.cluster import using
-from wordspot.training.data import prepare_items
-from wordspot.training.items import CHUNK_SIZE, Skipped
+from wordspot.training.data import extract_features, prepare_items
+from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.util.progress import ProgressBar
 
 __all__ = ["AlignedItem", "FrameLabels", "align_frames", "align_one", "unusable_words"]
@@ -60,6 +63,8 @@ class AlignedItem:
         A generated background-only item.
     noisy : bool
         A noisy copy of a recording (labels of its clean recording).
+    speed : float
+        Speed factor of a speed copy (its own alignment); 1 for the recording itself.
     """
 
     path: Path
@@ -68,6 +73,7 @@ class AlignedItem:
     labels: np.ndarray
     background: bool = False
     noisy: bool = False
+    speed: float = 1.0
 
 
 @dataclass
@@ -149,7 +155,7 @@ def _chunk_task(chunk, mix: Mixtures):
 
 
 def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 0.0, noise=None,
-                 seed: int = 0, quiet: bool = True, executor=None) -> FrameLabels:
+                 speeds=(), seed: int = 0, quiet: bool = True, executor=None) -> FrameLabels:
     """Frames and per-frame mixture ids of every utterance, by forced alignment with ``model``.
 
     Parameters
@@ -165,6 +171,9 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
     noise : wordspot.audio.augment.NoiseSettings, optional
         Noisy copies of every usable recording, drawn with ``seed``; they take the labels
         of their clean recording.
+    speeds : sequence of float
+        Speed factors (> 0; 1 is skipped); every usable recording gets one copy per
+        factor, played that many times faster and aligned through its own chain.
     seed : int
     quiet : bool
         No progress bars.
@@ -173,11 +182,21 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
     Returns
     -------
     FrameLabels
-        ``items`` (recordings in manifest order, then noisy copies, then background
-        items) and ``skipped`` (path and reason of every utterance left out).
+        ``items`` (recordings in manifest order, then speed copies (factor-major), then
+        noisy copies, then background items) and ``skipped`` (path and reason of every
+        utterance left out).
+
+    Raises
+    ------
+    TrainingError
+        A speed factor that is not a number > 0.
     """
     lexicon, units = model.lexicon, model.units
     utterances = list(utterances)
+    speeds = [float(s) for s in speeds if float(s) != 1.0]
+    bad = [s for s in speeds if not (np.isfinite(s) and s > 0)]
+    if bad:
+        raise TrainingError(f"speed factors must be numbers > 0 (e.g. 0.9 1.1), got {bad[0]!r}")
     skipped: list[Skipped] = []
     usable = []
     for utt in utterances:
@@ -200,7 +219,8 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
         # recordings first, then their noisy copies (copy-major), then background items
         copies = noise.copies if noise is not None else 0
         n_plain = (len(items) - sum(it.background for it in items)) // (1 + copies)
-        to_align = items[:n_plain] + [it for it in items[n_plain:] if it.background]
+        fast = _speed_items(items[:n_plain], speeds, model.features, jobs, quiet, ex)
+        to_align = items[:n_plain] + [it for _, it in fast] + [it for it in items[n_plain:] if it.background]
         frames = ex.keep_on_disk([it.frames for it in to_align])
         chunks = [[(f, it.graph) for f, it in zip(frames[i:i + CHUNK_SIZE], to_align[i:i + CHUNK_SIZE])]
                   for i in range(0, len(to_align), CHUNK_SIZE)]
@@ -211,11 +231,15 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
             bar.update(len(part))
         bar.close()
     aligned = {}
+    n_fast = len(fast)
     for k, (it, (score, labels)) in enumerate(zip(to_align, results)):
+        speed = fast[k - n_plain][0] if n_plain <= k < n_plain + n_fast else 1.0
         if not np.isfinite(score):
-            skipped.append(Skipped(it.path, "no path through its chain fits the audio (likelihood zero)"))
+            if speed == 1.0:
+                skipped.append(Skipped(it.path, "no path through its chain fits the audio (likelihood zero)"))
             continue
-        aligned[k] = AlignedItem(Path(it.path), tuple(it.words), _plain(it.frames), labels, it.background)
+        aligned[k] = AlignedItem(Path(it.path), tuple(it.words), _plain(it.frames), labels, it.background,
+                                 speed=speed)
     clean = {str(aligned[k].path): aligned[k] for k in range(n_plain) if k in aligned}
     noisy = []
     for it in items[n_plain:]:
@@ -224,8 +248,22 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
         base = clean.get(str(it.path))
         if base is not None and base.labels.shape[0] == it.frames.shape[0]:
             noisy.append(AlignedItem(Path(it.path), tuple(it.words), _plain(it.frames), base.labels, noisy=True))
-    out.items = [aligned[k] for k in range(n_plain) if k in aligned] + noisy \
-        + [aligned[k] for k in range(n_plain, len(to_align)) if k in aligned]
+    out.items = [aligned[k] for k in range(n_plain) if k in aligned] \
+        + [aligned[k] for k in range(n_plain, n_plain + n_fast) if k in aligned] + noisy \
+        + [aligned[k] for k in range(n_plain + n_fast, len(to_align)) if k in aligned]
+    return out
+
+
+def _speed_items(plain, speeds, settings, jobs, quiet, executor) -> list:
+    """(factor, TrainingItem) of every recording in ``plain`` played at each factor, with
+    the recording's own chain; copies too short for it are left out."""
+    out = []
+    for s in speeds:
+        got = extract_features([it.path for it in plain], settings, jobs=jobs, quiet=quiet, speed=s,
+                               executor=executor)
+        for it, (feats, _) in zip(plain, got):
+            if feats is not None and feats.shape[0] >= it.graph.min_frames():
+                out.append((s, TrainingItem(it.path, it.words, feats, it.graph)))
     return out
 
 

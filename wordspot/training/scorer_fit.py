@@ -21,8 +21,8 @@ import numpy as np
 from wordspot.acoustic.scorer import SCORER_DTYPE, StateScorer, stack_context
 from wordspot.errors import TrainingError
 
-__all__ = ["UNSEEN_LOGIT", "ScorerConfig", "ScorerFit", "fit_scorer", "fit_scorer_with_report", "label_log_prior",
-           "check_labelled_frames", "stacked_sample"]
+__all__ = ["UNSEEN_LOGIT", "ScorerConfig", "ScorerFit", "fit_scorer", "fit_scorer_with_report", "held_out_split",
+           "label_log_prior", "check_labelled_frames", "stacked_sample"]
 
 #: Output-layer value of a class no training frame carries (its weights are zero).
 UNSEEN_LOGIT = -1e4
@@ -182,13 +182,31 @@ def _mean_loss(clf, x, y, classes) -> tuple[float, float]:
     return float(-np.mean(np.log(np.maximum(picked, 1e-30)))), float(np.mean(np.argmax(p, axis=1) == col))
 
 
-def fit_scorer(frames_list, labels_list, n_classes: int, config: ScorerConfig | None = None) -> StateScorer:
+def fit_scorer(frames_list, labels_list, n_classes: int, config: ScorerConfig | None = None,
+               groups=None) -> StateScorer:
     """Fit a state scorer; see :func:`fit_scorer_with_report`."""
-    return fit_scorer_with_report(frames_list, labels_list, n_classes, config)[0]
+    return fit_scorer_with_report(frames_list, labels_list, n_classes, config, groups)[0]
 
 
-def fit_scorer_with_report(frames_list, labels_list, n_classes: int,
-                           config: ScorerConfig | None = None) -> tuple[StateScorer, ScorerFit]:
+def held_out_split(n_items: int, share: float, rng, groups=None) -> tuple[np.ndarray, np.ndarray]:
+    """Item indices held out and trained on (each sorted): ``share`` of the items, or of
+    the ``groups`` when given (all items of a group fall on one side), at least one left
+    to train on."""
+    if groups is None:
+        order = rng.permutation(n_items)
+        n_held = min(int(round(share * n_items)), n_items - 1)
+        return np.sort(order[:n_held]), np.sort(order[n_held:])
+    if len(groups) != n_items:
+        raise TrainingError(f"{len(groups)} groups for {n_items} utterances")
+    names, which = np.unique(np.asarray([str(g) for g in groups]), return_inverse=True)
+    order = rng.permutation(names.size)
+    n_held = min(int(round(share * names.size)), names.size - 1)
+    held = np.isin(which, order[:n_held])
+    return np.flatnonzero(held), np.flatnonzero(~held)
+
+
+def fit_scorer_with_report(frames_list, labels_list, n_classes: int, config: ScorerConfig | None = None,
+                           groups=None) -> tuple[StateScorer, ScorerFit]:
     """Fit a state scorer on labelled frames.
 
     Parameters
@@ -200,6 +218,10 @@ def fit_scorer_with_report(frames_list, labels_list, n_classes: int,
     n_classes : int
         The model's mixture count; the output always has this many columns.
     config : ScorerConfig, optional
+    groups : sequence, optional
+        One key per utterance (e.g. its recording's path): copies of one recording (noisy,
+        played faster) share a key and are held out together, so early stopping is not
+        judged on copies of training recordings. None: every utterance is its own group.
 
     Returns
     -------
@@ -219,10 +241,8 @@ def fit_scorer_with_report(frames_list, labels_list, n_classes: int,
     config = config or ScorerConfig()
     check_labelled_frames(frames_list, labels_list, n_classes)
     rng = np.random.default_rng(config.seed)
-    order = rng.permutation(len(frames_list))
-    n_held = int(round(config.held_out_share * len(order)))
-    n_held = min(n_held, len(order) - 1)
-    held, train = np.sort(order[:n_held]), np.sort(order[n_held:])
+    held, train = held_out_split(len(frames_list), config.held_out_share, rng, groups)
+    n_held = held.size
     x, y = stacked_sample(frames_list, labels_list, train, config.context, config.max_frames, rng)
     if y.size == 0:
         raise TrainingError("no labelled frames to fit the scorer on")
