@@ -12,7 +12,7 @@ import pytest
 
 from decoding_helpers import frames_along, pause_mixtures, tiny_model, word_mixtures
 from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, inside_talk
-from wordspot.decoding.decoder import REASON_INSIDE_TALK, DecoderSettings, build_recognizer
+from wordspot.decoding.decoder import REASON_AMID_TALK, DecoderSettings, build_recognizer
 from wordspot.errors import DecodingError
 
 
@@ -130,7 +130,7 @@ def test_the_decoder_drops_a_word_inside_other_talk_and_says_why():
     assert kinds[i - 1] == FILLER and kinds[i + 1] == FILLER  # the path the rule reads
     got = build_recognizer(model, settings=DecoderSettings.unpruned(**base, talk_gap=0.1)).decode(frames)
     assert got.words == [] and [s.word for s in got.dropped] == ["bat"]
-    assert got.reason.startswith(REASON_INSIDE_TALK) and got.dropped[0].amid_talk
+    assert got.reason.startswith(REASON_AMID_TALK) and got.dropped[0].amid_talk
     assert not plain.segments[0].amid_talk
     # the talk on each side is 3 phones x 3 states x 3 frames = 27 frames (0.27 s at the 10 ms
     # hop): with at least 0.5 s of talk asked (the default) it is too short to count

@@ -50,7 +50,7 @@ REASON_SILENCE = "silence or noise only"
 REASON_NO_PATH = "no complete path"
 REASON_NO_COMMAND = "no command"
 REASON_LOW_CONFIDENCE = "below the confidence threshold"
-REASON_INSIDE_TALK = "amid other talk"
+REASON_AMID_TALK = "amid other talk"
 
 
 @dataclass(frozen=True)
@@ -238,8 +238,8 @@ class Recognition:
         (``DecoderSettings.talk_gap``), left out of ``segments``.
     path_items : list of PathItem
         The best path's items in time order (:mod:`wordspot.decoding.context`): pauses,
-        filler phones and words, a word's ``segment`` indexing ``segments + dropped``
-        sorted by time as they were before the threshold.
+        filler phones and words; a word's ``segment`` is its place among all the words
+        heard, in time order (kept and dropped together).
     """
 
     path: str | None = None
@@ -532,7 +532,7 @@ class Recognizer:
         best_free = np.concatenate([[0.0], np.cumsum(ll.max(axis=1))])
         bg = net.background
         is_filler = [bg is not None and int(links[k, 0]) in bg.fillers for k in chain] + [False]
-        w0, _, s0, p0, e0 = (int(x) for x in links[chain[0], :5])
+        _, _, s0, p0, e0 = (int(x) for x in links[chain[0], :5])
         items = [PathItem(FILLER if is_filler[0] else PAUSE, s0, p0, e0)]
         for i, (prev, k) in enumerate(zip(chain[:-1], chain[1:]), start=1):
             word, pron, start, phone_end, end = (int(x) for x in links[k, :5])
@@ -565,7 +565,7 @@ class Recognizer:
                     measures=measures,
                 )
             )
-        # confidence threshold (wordspot.decoding.confidence), then words said inside other talk
+        # confidence threshold (wordspot.decoding.confidence), then words said amid other talk
         # (wordspot.decoding.context)
         result.path_items = items
         words, threshold = result.segments, self.min_confidence
@@ -583,7 +583,7 @@ class Recognizer:
         if len(chain) <= 1:
             result.reason = f"{REASON_SILENCE}: the recording sounds more like a pause than like any word"
         elif result.dropped and not result.segments and inside.any():
-            result.reason = (f"{REASON_INSIDE_TALK}: every word heard ({' '.join(s.word for s in result.dropped)}) "
+            result.reason = (f"{REASON_AMID_TALK}: every word heard ({' '.join(s.word for s in result.dropped)}) "
                              f"has a confidence below {threshold:g} or was said amid other talk")
         elif result.dropped and not result.segments:
             result.reason = (f"{REASON_LOW_CONFIDENCE}: every word heard ({' '.join(s.word for s in result.dropped)}) "
