@@ -32,6 +32,7 @@ from wordspot.errors import AugmentError
 
 __all__ = [
     "NOISE_KINDS",
+    "snr_range",
     "NoiseSettings",
     "mean_power",
     "measured_snr",
@@ -146,6 +147,15 @@ def speech_span(wave, sample_rate: int, *, below_peak_db: float = 35.0) -> tuple
         return 0, x.shape[0]
     loud = np.flatnonzero(power >= peak * 10.0 ** (-below_peak_db / 10.0))
     return int(loud[0] * hop), int(min(x.shape[0], (loud[-1] + 1) * hop))
+
+
+def snr_range(value) -> tuple[float, float] | None:
+    """``(low, high)`` in dB from a pair of numbers, or None unless both are finite and low <= high."""
+    try:
+        lo, hi = (float(x) for x in value)
+    except (TypeError, ValueError):
+        return None
+    return (lo, hi) if np.isfinite(lo) and np.isfinite(hi) and lo <= hi else None
 
 
 def mix_at_snr(speech, noise, snr_db: float, *, span: tuple[int, int] | None = None) -> np.ndarray:

@@ -36,6 +36,7 @@ from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
+from wordspot.audio.augment import snr_range
 from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.errors import TrainingError, TrainingWarning, WordspotError
@@ -184,11 +185,7 @@ class CalibrationConfig:
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"the number of {what} for calibration ({name}) must be a whole number "
                                     f">= 0 (0: none), got {v!r}")
-        try:
-            lo, hi = (float(x) for x in self.noise_snr_db)
-        except (TypeError, ValueError):
-            lo, hi = float("nan"), float("nan")
-        if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
+        if snr_range(self.noise_snr_db) is None:
             raise TrainingError(f"the calibration's noise SNR range must be two finite numbers low <= high in dB "
                                 f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
 

@@ -34,6 +34,7 @@ from typing import Sequence
 
 import numpy as np
 
+from wordspot.audio.augment import snr_range
 from wordspot.decoding.decoder import DecoderSettings, build_recognizer
 from wordspot.errors import TrainingError, WordspotError
 from wordspot.evaluation.calibrate import (CalibrationConfig, CalibrationExamples, fit_calibration, joined_phrases,
@@ -106,11 +107,7 @@ class StarterCalibrationConfig:
                                 f"got {self.words!r}")
         if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
             raise TrainingError(f"starter calibration: speeds must be factors from 0.5 to 2, got {self.speeds!r}")
-        try:
-            snr_lo, snr_hi = (float(x) for x in self.noise_snr_db)
-        except (TypeError, ValueError):
-            snr_lo = snr_hi = float("nan")
-        if not (np.isfinite(snr_lo) and np.isfinite(snr_hi) and snr_lo <= snr_hi):
+        if snr_range(self.noise_snr_db) is None:
             raise TrainingError(f"starter calibration: noise_snr_db must be two finite numbers low <= high in dB "
                                 f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
 

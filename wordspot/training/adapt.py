@@ -49,6 +49,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from wordspot import __version__
+from wordspot.audio.augment import snr_range
 from wordspot.acoustic.gmm import Mixtures, MixtureStats, scoring_matrix
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet
 from wordspot.corpus import check_manifest, split_by_recording
@@ -212,14 +213,11 @@ class AdaptationConfig:
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
-        try:
-            lo, hi = (float(v) for v in self.follow_noise_snr)
-        except (TypeError, ValueError):
-            lo, hi = float("nan"), float("nan")
-        if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
+        snr = snr_range(self.follow_noise_snr)
+        if snr is None:
             raise TrainingError(f"follow_noise_snr must be two numbers low <= high in dB (e.g. 10 25), "
                                 f"got {self.follow_noise_snr!r}")
-        object.__setattr__(self, "follow_noise_snr", (lo, hi))
+        object.__setattr__(self, "follow_noise_snr", snr)
         if not (np.isfinite(self.follow_weight) and self.follow_weight > 0):
             raise TrainingError(f"follow_weight must be a number > 0 (the default is 10), got {self.follow_weight!r}")
         for name in ("held_out_share", "held_out_speaker_share"):
