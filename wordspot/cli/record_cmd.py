@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 from pathlib import Path
 
@@ -22,7 +23,8 @@ FOLDER/train.csv (or FOLDER/held-out.csv when kept for testing). Words typed on 
 go into FOLDER/pronunciations.txt unless --lexicon names a file. When every word has
 enough takes the page trains a model (FOLDER/words.model), lets you try it, and listens
 for commands while you switch Listen on (S), listing each one heard with its confidence.
-Stop the server with Ctrl+C; nothing half-written is left behind.
+Stop the server with Ctrl+C (or a TERM signal, as service managers send); nothing
+half-written is left behind.
 """
 
 
@@ -79,8 +81,21 @@ def _run(args) -> int:
 
             webbrowser.open(url)
 
+    old_term = signal.signal(signal.SIGTERM, _stop_on_terminate)
     try:
         serve(app, port=args.port, verbose=not args.quiet and args.debug, ready=ready)
     except KeyboardInterrupt:
         print("recording page stopped", file=sys.stderr)
+    finally:
+        signal.signal(signal.SIGTERM, old_term)
     return 0
+
+
+def _stop_on_terminate(signum, frame):
+    """A TERM signal stops the page the way Ctrl+C does (the server closes, then the message).
+
+    Ctrl+C itself is left as the shell set it up: a page started as a background command by
+    a shell without job control (a script, some CI runners) inherits SIGINT ignored (POSIX
+    shell rules for asynchronous lists), so stop that one with ``kill PID``.
+    """
+    raise KeyboardInterrupt
