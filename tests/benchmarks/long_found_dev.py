@@ -57,7 +57,7 @@ def scan_one(recognizer, path, settings):
     stretches = find_stretches(wave, rate, settings.detector)
     commands, heard = [], []
     for st in stretches:
-        r = decode_stretch(recognizer, wave[st.start:st.end])
+        r = decode_stretch(recognizer, wave[st.start:st.end], settings.normalise_seconds)
         if r is None:
             continue
         off = st.start / rate
@@ -163,6 +163,8 @@ def main(argv=None) -> int:
     ap.add_argument("--split-pause", type=float, nargs="+", default=[None])
     ap.add_argument("--padding", type=float, nargs="+", default=[None])
     ap.add_argument("--hangover", type=float, nargs="+", default=[None])
+    ap.add_argument("--normalise", type=float, nargs="+", default=[None], help="ScanSettings.normalise_seconds values")
+    ap.add_argument("--max-stretch", type=float, nargs="+", default=[None])
     ap.add_argument("--command-rule", nargs="+", default=[None], help="ScanSettings.command_rule values")
     args = ap.parse_args(argv)
 
@@ -175,8 +177,9 @@ def main(argv=None) -> int:
 
     model = load_model(args.model)
     print(header())
-    for gap, conf, split, pad, hang, rule in itertools.product(args.talk_gap, args.min_confidence, args.split_pause,
-                                                               args.padding, args.hangover, args.command_rule):
+    for gap, conf, split, pad, hang, rule, norm, longest in itertools.product(
+            args.talk_gap, args.min_confidence, args.split_pause, args.padding, args.hangover, args.command_rule,
+            args.normalise, args.max_stretch):
         dec = {}
         if gap is not None:
             dec["talk_gap"] = gap
@@ -189,11 +192,15 @@ def main(argv=None) -> int:
             det = replace(det, padding=pad)
         if hang is not None:
             det = replace(det, hangover=hang)
+        if longest is not None:
+            det = replace(det, max_stretch=longest)
         s = replace(s, detector=det, **({} if split is None else {"split_pause": split}),
-                    **({} if rule is None else {"command_rule": rule}))
+                    **({} if rule is None else {"command_rule": rule}),
+                    **({} if norm is None else {"normalise_seconds": norm}))
         rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show)
         name = (f"gap {gap if gap is not None else 'def'}, thr {conf if conf is not None else 'def'}, "
-                f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, rule {s.command_rule}")
+                f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, "
+                f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}")
         print(report(name, rows), flush=True)
     return 0
 

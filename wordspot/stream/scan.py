@@ -17,10 +17,10 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from wordspot.audio.features import compute_features
 from wordspot.errors import AudioError, DecodingError
 from wordspot.stream.blocks import BlockReader
 from wordspot.stream.detector import DetectorSettings, SpeechDetector, Stretch
+from wordspot.stream.normalise import stretch_features
 from wordspot.util.progress import ProgressBar
 
 __all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "StretchScanner", "scan_file", "scan_files",
@@ -62,6 +62,9 @@ class ScanSettings:
         other talk) are grouped first, and a command is kept or dropped whole, by its best
         word's confidence or its words' mean (see :func:`whole_commands`); the threshold is
         the recognizer's or ``min_confidence``, whichever is higher.
+    normalise_seconds : float >= 0
+        Features are normalised over this many seconds around each frame
+        (:mod:`wordspot.stream.normalise`); 0: over the whole stretch.
     """
 
     detector: DetectorSettings = field(default_factory=DetectorSettings)
@@ -72,6 +75,7 @@ class ScanSettings:
     early_hold: float = 0.1
     early_span: float = 0.0
     command_rule: str = "word"
+    normalise_seconds: float = 0.0
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):
@@ -84,7 +88,7 @@ class ScanSettings:
             raise DecodingError(f"split_pause must be a number of seconds >= 0, got {self.split_pause!r}")
         if self.command_rule not in COMMAND_RULES:
             raise DecodingError(f"command_rule must be one of {', '.join(COMMAND_RULES)}, got {self.command_rule!r}")
-        for name in ("early_every", "early_hold", "early_span"):
+        for name in ("early_every", "early_hold", "early_span", "normalise_seconds"):
             if not (isinstance(getattr(self, name), (int, float)) and getattr(self, name) >= 0):
                 raise DecodingError(f"{name} must be a number of seconds >= 0, got {getattr(self, name)!r}")
 
@@ -141,17 +145,21 @@ def group_words(path: str, words, split_pause: float) -> list[FoundCommand]:
     ]
 
 
-def decode_stretch(recognizer, wave: np.ndarray):
-    """The recognition of one stretch's samples (times from the stretch's start), or None if too short."""
+def decode_stretch(recognizer, wave: np.ndarray, normalise_seconds: float = 0.0):
+    """The recognition of one stretch's samples (times from the stretch's start), or None if too short.
+
+    ``normalise_seconds`` > 0: features normalised over a window of that many seconds
+    around each frame (:mod:`wordspot.stream.normalise`) instead of the whole stretch.
+    """
     if wave.shape[0] < recognizer.features.window_length:
         return None
-    return recognizer.decode(compute_features(wave, recognizer.features))
+    return recognizer.decode(stretch_features(wave, recognizer.features, normalise_seconds))
 
 
 def recognise_stretch(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
                       path: str) -> list[FoundCommand]:
     """The commands in one stretch's samples, with times from the start of the recording."""
-    result = decode_stretch(recognizer, wave)
+    result = decode_stretch(recognizer, wave, settings.normalise_seconds)
     if result is None:
         return []
     return stretch_commands(result, stretch.start / rate, float(recognizer.min_confidence), settings, path)
