@@ -11,10 +11,11 @@ that applies:
 - ``no stretch``: no speech stretch overlaps it;
 - ``cut by detector``: its speech is not wholly inside one stretch;
 - ``no word heard``: no word (kept or dropped) overlaps it;
-- ``threshold``: the words heard over it are its words but one or more fell below the
-  confidence threshold;
-- ``amid-talk rule``: ... or were dropped as said amid other talk (none for confidence);
-- ``grouping``: its words were all kept but grouped with other words (or split);
+- ``threshold``: with no confidence threshold (words said amid other talk still dropped)
+  a command with its words would have been found over it;
+- ``amid-talk rule``: the words heard over it are its words, some dropped as said amid
+  other talk;
+- ``grouping``: the words heard over it are its words, grouped with other words (or split);
 - ``wrong words``: the words heard over it are not its words (``+talk``: its stretch also
   holds talk; ``alone``: it does not).
 
@@ -47,7 +48,10 @@ def _overlap(a0, a1, b0, b1) -> float:
 
 
 def scan_one(recognizer, path, settings):
-    """(duration s, stretches in s, final commands, every word heard as (word, start, end, kept, why))."""
+    """(duration s, stretches in s, final commands, every word heard as (word, start, end, kept, why),
+    the commands with no threshold)."""
+    from dataclasses import replace
+
     from wordspot.audio.reading import load_audio
     from wordspot.stream.detector import find_stretches
     from wordspot.stream.scan import decode_stretch, stretch_commands
@@ -55,23 +59,25 @@ def scan_one(recognizer, path, settings):
     rate = recognizer.features.sample_rate
     wave = load_audio(path, sample_rate=rate)
     stretches = find_stretches(wave, rate, settings.detector)
-    commands, heard = [], []
+    commands, heard, candidates = [], [], []
+    everything = replace(settings, min_confidence=0.0, command_rule="mean")
     for st in stretches:
         r = decode_stretch(recognizer, wave[st.start:st.end], settings.normalise_seconds)
         if r is None:
             continue
         off = st.start / rate
         commands += stretch_commands(r, off, float(recognizer.min_confidence), settings, str(path))
+        candidates += stretch_commands(r, off, 0.0, everything, str(path))  # every group of words heard
         for s in r.segments:
             heard.append((s.word, off + s.start, off + s.end, True, ""))
         for s in r.dropped:
             heard.append((s.word, off + s.start, off + s.end, False, "talk" if s.amid_talk else "confidence"))
     heard.sort(key=lambda h: h[1])
     spans = [(st.start / rate, st.end / rate) for st in stretches]
-    return wave.shape[0] / rate, spans, commands, heard
+    return wave.shape[0] / rate, spans, commands, heard, candidates
 
 
-def classify(label, spans, found, heard, talk) -> str:
+def classify(label, spans, found, heard, candidates, talk) -> str:
     """The cause of one missed label (see the module docstring)."""
     a, b, words = label.start, label.end, tuple(label.words)
     if not any(_overlap(a, b, s0, s1) > 0 for s0, s1 in spans):
@@ -85,12 +91,10 @@ def classify(label, spans, found, heard, talk) -> str:
     over = [h for h in heard if _overlap(a, b, h[1], h[2]) > 0]
     if not over:
         return "no word heard"
+    if any(tuple(c.words) == words and _overlap(a, b, c.start, c.end) > 0 for c in candidates):
+        return "threshold"
     if tuple(h[0] for h in over) == words:
-        if all(h[3] for h in over):
-            return "grouping"
-        if any(h[4] == "confidence" for h in over):
-            return "threshold"
-        return "amid-talk rule"
+        return "amid-talk rule" if any(h[4] == "talk" for h in over) else "grouping"
     s0, s1 = inside[0]
     with_talk = any(_overlap(s0, s1, t.start, t.end) > 0 for t in talk)
     return "wrong words +talk" if with_talk else "wrong words alone"
@@ -107,17 +111,17 @@ def evaluate(recognizer, folder: Path, seeds, settings, show: bool = False):
         talk = {str(r.path): r.commands for r in read_time_labels(folder / f"seed-{seed}" / "talk.csv")}
         found, durations, detail = {}, {}, {}
         for rec in recs:
-            d, spans, commands, heard = scan_one(recognizer, rec.path, settings)
+            d, spans, commands, heard, candidates = scan_one(recognizer, rec.path, settings)
             key = str(rec.path)
             found[key] = [TimedCommand(c.start, c.end, c.words) for c in commands]
             durations[key] = d
-            detail[key] = (spans, heard)
+            detail[key] = (spans, heard, candidates)
         score = score_timed(recs, found, durations)
         causes = Counter()
         for rs in score.recordings:
-            spans, heard = detail[rs.path]
+            spans, heard, candidates = detail[rs.path]
             for lab in rs.misses:
-                cause = classify(lab, spans, rs.found, heard, talk[rs.path])
+                cause = classify(lab, spans, rs.found, heard, candidates, talk[rs.path])
                 causes[cause] += 1
                 if show:
                     near = [f"{h[0]}{'' if h[3] else '(' + h[4] + ')'}" for h in heard
@@ -164,6 +168,8 @@ def main(argv=None) -> int:
     ap.add_argument("--padding", type=float, nargs="+", default=[None])
     ap.add_argument("--hangover", type=float, nargs="+", default=[None])
     ap.add_argument("--normalise", type=float, nargs="+", default=[None], help="ScanSettings.normalise_seconds values")
+    ap.add_argument("--scan-confidence", type=float, nargs="+", default=[None],
+                    help="ScanSettings.min_confidence values (the decoder's threshold is --min-confidence)")
     ap.add_argument("--max-stretch", type=float, nargs="+", default=[None])
     ap.add_argument("--command-rule", nargs="+", default=[None], help="ScanSettings.command_rule values")
     args = ap.parse_args(argv)
@@ -177,9 +183,9 @@ def main(argv=None) -> int:
 
     model = load_model(args.model)
     print(header())
-    for gap, conf, split, pad, hang, rule, norm, longest in itertools.product(
+    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf in itertools.product(
             args.talk_gap, args.min_confidence, args.split_pause, args.padding, args.hangover, args.command_rule,
-            args.normalise, args.max_stretch):
+            args.normalise, args.max_stretch, args.scan_confidence):
         dec = {}
         if gap is not None:
             dec["talk_gap"] = gap
@@ -196,11 +202,13 @@ def main(argv=None) -> int:
             det = replace(det, max_stretch=longest)
         s = replace(s, detector=det, **({} if split is None else {"split_pause": split}),
                     **({} if rule is None else {"command_rule": rule}),
-                    **({} if norm is None else {"normalise_seconds": norm}))
+                    **({} if norm is None else {"normalise_seconds": norm}),
+                    **({} if scan_conf is None else {"min_confidence": scan_conf}))
         rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show)
         name = (f"gap {gap if gap is not None else 'def'}, thr {conf if conf is not None else 'def'}, "
                 f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, "
-                f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}")
+                f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}, "
+                f"scan threshold {s.min_confidence:g}")
         print(report(name, rows), flush=True)
     return 0
 
