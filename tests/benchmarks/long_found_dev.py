@@ -60,7 +60,7 @@ def scan_one(recognizer, path, settings):
     wave = load_audio(path, sample_rate=rate)
     stretches = find_stretches(wave, rate, settings.detector)
     commands, heard, candidates = [], [], []
-    everything = replace(settings, min_confidence=0.0, command_rule="mean")
+    everything = replace(settings, min_confidence=0.0, command_rule="mean", command_confidence=0.0)
     for st in stretches:
         r = decode_stretch(recognizer, wave[st.start:st.end], settings.normalise_seconds)
         if r is None:

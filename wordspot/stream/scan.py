@@ -58,13 +58,17 @@ class ScanSettings:
         each look recognises a short stretch) only once the stretch so far is this long.
     command_rule : {"word", "best", "mean"}
         "word": each word is kept or dropped by its own confidence, and the words kept are
-        grouped into commands. "best" and "mean": the words heard (all but those said amid
-        other talk) are grouped first, and a command is kept or dropped whole, by its best
-        word's confidence or its words' mean (see :func:`whole_commands`); the threshold is
-        the recognizer's or ``min_confidence``, whichever is higher.
+        grouped into commands. "best" and "mean" (default): the words heard (all but those
+        said amid other talk) are grouped first, and a command is kept or dropped whole, by
+        its best word's confidence or its words' mean (see :func:`whole_commands`).
     normalise_seconds : float >= 0
         Features are normalised over this many seconds around each frame
         (:mod:`wordspot.stream.normalise`); 0: over the whole stretch.
+    command_confidence : float in [0, 1] or None
+        With the "best" and "mean" rules, a command is kept when its confidence reaches
+        this (or ``min_confidence``, whichever is higher); None: the recognizer's own
+        threshold (``DecoderSettings.min_confidence``). The defaults of the last three
+        were chosen on dev long recordings (docs/experiments/2026-12-03-long-recordings-found.md).
     """
 
     detector: DetectorSettings = field(default_factory=DetectorSettings)
@@ -74,8 +78,9 @@ class ScanSettings:
     early_every: float = 0.0
     early_hold: float = 0.1
     early_span: float = 0.0
-    command_rule: str = "word"
-    normalise_seconds: float = 0.0
+    command_rule: str = "mean"
+    normalise_seconds: float = 2.0
+    command_confidence: float | None = 0.35
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):
@@ -88,6 +93,9 @@ class ScanSettings:
             raise DecodingError(f"split_pause must be a number of seconds >= 0, got {self.split_pause!r}")
         if self.command_rule not in COMMAND_RULES:
             raise DecodingError(f"command_rule must be one of {', '.join(COMMAND_RULES)}, got {self.command_rule!r}")
+        c = self.command_confidence
+        if c is not None and not (isinstance(c, (int, float)) and not isinstance(c, bool) and 0 <= c <= 1):
+            raise DecodingError(f"command_confidence must be between 0 and 1 (or None), got {c!r}")
         for name in ("early_every", "early_hold", "early_span", "normalise_seconds"):
             if not (isinstance(getattr(self, name), (int, float)) and getattr(self, name) >= 0):
                 raise DecodingError(f"{name} must be a number of seconds >= 0, got {getattr(self, name)!r}")
@@ -105,7 +113,7 @@ class FoundWord:
 
 @dataclass(frozen=True)
 class FoundCommand:
-    """Words said together: times from the start of the file, the lowest word confidence."""
+    """Words said together: times from the start of the file, a confidence (see ``ScanSettings.command_rule``)."""
 
     path: str
     start: float
@@ -166,7 +174,11 @@ def recognise_stretch(recognizer, wave: np.ndarray, stretch: Stretch, rate: int,
 
 
 def stretch_commands(result, offset: float, threshold: float, settings: ScanSettings, path: str) -> list[FoundCommand]:
-    """The commands of one stretch's recognition (``threshold``: the recognizer's), moved by ``offset`` s."""
+    """The commands of one stretch's recognition, with times moved by ``offset`` seconds.
+
+    ``threshold`` is the recognizer's (``Recognizer.min_confidence``); it judges whole
+    commands unless ``settings.command_confidence`` is set.
+    """
     if settings.command_rule == "word":
         words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
                  for s in result.segments if s.confidence >= settings.min_confidence]
@@ -174,6 +186,8 @@ def stretch_commands(result, offset: float, threshold: float, settings: ScanSett
     # every word heard but those said amid other talk; the threshold judges whole commands
     heard = sorted(list(result.segments) + [s for s in result.dropped if not s.amid_talk], key=lambda s: s.start)
     words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence) for s in heard]
+    if settings.command_confidence is not None:
+        threshold = float(settings.command_confidence)
     threshold = max(threshold, float(settings.min_confidence))
     return whole_commands(path, words, threshold, settings.split_pause, settings.command_rule)
 
