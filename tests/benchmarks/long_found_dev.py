@@ -170,6 +170,8 @@ def main(argv=None) -> int:
     ap.add_argument("--normalise", type=float, nargs="+", default=[None], help="ScanSettings.normalise_seconds values")
     ap.add_argument("--scan-confidence", type=float, nargs="+", default=[None],
                     help="ScanSettings.min_confidence values (the decoder's threshold is --min-confidence)")
+    ap.add_argument("--command-confidence", nargs="+", default=[None],
+                    help="ScanSettings.command_confidence values ('none': the recognizer's threshold)")
     ap.add_argument("--max-stretch", type=float, nargs="+", default=[None])
     ap.add_argument("--command-rule", nargs="+", default=[None], help="ScanSettings.command_rule values")
     args = ap.parse_args(argv)
@@ -183,9 +185,9 @@ def main(argv=None) -> int:
 
     model = load_model(args.model)
     print(header())
-    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf in itertools.product(
+    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf, whole in itertools.product(
             args.talk_gap, args.min_confidence, args.split_pause, args.padding, args.hangover, args.command_rule,
-            args.normalise, args.max_stretch, args.scan_confidence):
+            args.normalise, args.max_stretch, args.scan_confidence, args.command_confidence):
         dec = {}
         if gap is not None:
             dec["talk_gap"] = gap
@@ -203,12 +205,13 @@ def main(argv=None) -> int:
         s = replace(s, detector=det, **({} if split is None else {"split_pause": split}),
                     **({} if rule is None else {"command_rule": rule}),
                     **({} if norm is None else {"normalise_seconds": norm}),
-                    **({} if scan_conf is None else {"min_confidence": scan_conf}))
+                    **({} if scan_conf is None else {"min_confidence": scan_conf}),
+                    **({} if whole is None else {"command_confidence": None if whole == "none" else float(whole)}))
         rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show)
         name = (f"gap {gap if gap is not None else 'def'}, thr {conf if conf is not None else 'def'}, "
                 f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, "
                 f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}, "
-                f"scan threshold {s.min_confidence:g}")
+                f"scan threshold {s.min_confidence:g}, command threshold {s.command_confidence}")
         print(report(name, rows), flush=True)
     return 0
 
