@@ -142,3 +142,12 @@ def test_unreadable_files_are_results_with_an_error(recognizer, tmp_path):
     assert "gone.flac" in result.error and "not found" in result.error and result.commands == []
     with pytest.raises(DecodingError, match="min_confidence"):
         ScanSettings(min_confidence=1.5)
+
+
+def test_api_min_confidence_judges_whole_commands(long_file):
+    from wordspot import api
+
+    results = api.scan("starter", long_file.path, lexicon=LEXICON_DIR / "bakery.txt", min_confidence=0.9)
+    assert results[0].commands and all(c.confidence >= 0.9 for c in results[0].commands)
+    low = api.scan("starter", long_file.path, lexicon=LEXICON_DIR / "bakery.txt", min_confidence=0.0)
+    assert len(low[0].commands) > len(results[0].commands)
