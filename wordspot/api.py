@@ -148,7 +148,10 @@ def _scan_settings(scan_settings, min_confidence):
     from wordspot.stream.scan import ScanSettings
 
     scan_settings = scan_settings or ScanSettings()
-    return scan_settings if min_confidence is None else replace(scan_settings, min_confidence=min_confidence)
+    if min_confidence is None:
+        return scan_settings
+    # the threshold given judges whole commands too (with the "best" and "mean" rules)
+    return replace(scan_settings, min_confidence=min_confidence, command_confidence=min_confidence)
 
 
 def scan(model, paths, *, lexicon=None, prior=None, settings=None, scan_settings=None, min_confidence=None,
@@ -164,7 +167,8 @@ def scan(model, paths, *, lexicon=None, prior=None, settings=None, scan_settings
     scan_settings : wordspot.stream.scan.ScanSettings, optional
         Speech detection, block size, confidence threshold, pause that splits commands.
     min_confidence : float, optional
-        Overrides ``scan_settings.min_confidence``: words below it are dropped.
+        Overrides ``scan_settings.min_confidence`` and ``command_confidence``: commands
+        below it are dropped (words below it, with ``command_rule="word"``).
 
     Returns
     -------

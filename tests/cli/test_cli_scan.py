@@ -112,3 +112,20 @@ def test_bad_input_gives_one_message(recording, capsys, tmp_path):
     assert status == 2 and "no audio files given" in err
     status, _, err = _run(capsys, BASE + ["--reference", str(tmp_path / "none.csv")])
     assert status == 2 and "none.csv" in err and "not found" in err
+
+
+def test_min_confidence_judges_whole_commands(recording, capsys):
+    # Without --min-confidence a command is kept from a mean confidence of 0.35 (the scan's
+    # default); with --min-confidence P from P: a lower P keeps as many commands or more,
+    # every one at or above P.
+    rec, _ = recording
+    status, out, _ = _run(capsys, BASE + ["-q", "--format", "jsonl", str(rec.path)])
+    assert status == 0
+    default = [json.loads(line) for line in out.splitlines() if json.loads(line)["start"] is not None]
+    assert all(r["confidence"] >= 0.35 for r in default)
+    status, out, _ = _run(capsys, BASE + ["-q", "--format", "jsonl", "--min-confidence", "0.01", str(rec.path)])
+    low = [json.loads(line) for line in out.splitlines() if json.loads(line)["start"] is not None]
+    assert len(low) >= len(default) and all(r["confidence"] >= 0.01 for r in low)
+    status, out, _ = _run(capsys, BASE + ["-q", "--format", "jsonl", "--min-confidence", "0.99", str(rec.path)])
+    high = [json.loads(line) for line in out.splitlines() if json.loads(line)["start"] is not None]
+    assert len(high) <= len(default) and all(r["confidence"] >= 0.99 for r in high)

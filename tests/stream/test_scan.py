@@ -13,7 +13,7 @@ from wordspot.errors import DecodingError
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import load_model
 from wordspot.stream.detector import DetectorSettings
-from wordspot.stream.scan import FoundWord, ScanSettings, group_words, scan_file
+from wordspot.stream.scan import FoundWord, ScanSettings, group_words, scan_file, whole_commands
 
 TEST_VOICES = ("flite-rms", "festival-ked", "espeak-en-029-m4")
 
@@ -76,13 +76,50 @@ def test_noise_only_gives_nothing(recognizer, tmp_path, rng):
 
 
 def test_min_confidence_drops_words(recognizer, long_file):
-    every = scan_file(recognizer, long_file.path)
+    # the rule that judges each word by itself
+    every = scan_file(recognizer, long_file.path, settings=ScanSettings(command_rule="word"))
     confidences = sorted(w.confidence for c in every.commands for w in c.parts)
     threshold = confidences[len(confidences) // 2]
-    kept = scan_file(recognizer, long_file.path, settings=ScanSettings(min_confidence=threshold))
+    kept = scan_file(recognizer, long_file.path, settings=ScanSettings(min_confidence=threshold, command_rule="word"))
     kept_words = [w for c in kept.commands for w in c.parts]
     assert kept_words == [w for c in every.commands for w in c.parts if w.confidence >= threshold]
     assert all(c.confidence == min(w.confidence for w in c.parts) for c in kept.commands)
+
+
+def test_commands_are_kept_or_dropped_whole(recognizer, long_file):
+    # Default rule: a command's confidence is the mean of its words' and reaches the threshold.
+    every = scan_file(recognizer, long_file.path, settings=ScanSettings(command_confidence=0.0))
+    means = sorted(c.confidence for c in every.commands)
+    assert all(c.confidence == pytest.approx(np.mean([w.confidence for w in c.parts])) for c in every.commands)
+    threshold = means[len(means) // 2]
+    kept = scan_file(recognizer, long_file.path, settings=ScanSettings(command_confidence=threshold))
+    assert [(c.words, c.start, c.end) for c in kept.commands] == [
+        (c.words, c.start, c.end) for c in every.commands if c.confidence >= threshold]
+    # a word below the threshold stays inside a kept command
+    assert len(kept.commands) < len(every.commands)
+
+
+def test_whole_commands_worked_by_hand():
+    # worked by hand: "oven four minutes" (0.9, 0.01, 0.8; mean 0.57, best 0.9) and "yes" (0.1)
+    words = [FoundWord("oven", 1.0, 1.4, 0.9), FoundWord("four", 1.5, 1.8, 0.01), FoundWord("minutes", 1.9, 2.4, 0.8),
+             FoundWord("yes", 3.5, 3.8, 0.1)]
+    (mean,) = whole_commands("f.wav", words, 0.35, 0.5, "mean")
+    assert mean.words == ("oven", "four", "minutes") and mean.confidence == pytest.approx(0.57)
+    assert (mean.start, mean.end) == (1.0, 2.4)
+    (best,) = whole_commands("f.wav", words, 0.35, 0.5, "best")
+    assert best.words == ("oven", "four", "minutes") and best.confidence == pytest.approx(0.9)
+    assert whole_commands("f.wav", words, 0.6, 0.5, "mean") == []
+    assert [c.words for c in whole_commands("f.wav", words, 0.1, 0.5, "mean")] == [("oven", "four", "minutes"),
+                                                                                  ("yes",)]
+    with pytest.raises(DecodingError, match="rule"):
+        whole_commands("f.wav", words, 0.35, 0.5, "lowest")
+
+
+@pytest.mark.parametrize("bad", [{"command_rule": "lowest"}, {"command_confidence": 1.5},
+                                 {"command_confidence": True}, {"normalise_seconds": -1.0}])
+def test_scan_settings_refuse_bad_values(bad):
+    with pytest.raises(DecodingError, match=next(iter(bad))):
+        ScanSettings(**bad)
 
 
 def test_long_stretches_are_capped(recognizer, long_file):
@@ -105,3 +142,12 @@ def test_unreadable_files_are_results_with_an_error(recognizer, tmp_path):
     assert "gone.flac" in result.error and "not found" in result.error and result.commands == []
     with pytest.raises(DecodingError, match="min_confidence"):
         ScanSettings(min_confidence=1.5)
+
+
+def test_api_min_confidence_judges_whole_commands(long_file):
+    from wordspot import api
+
+    results = api.scan("starter", long_file.path, lexicon=LEXICON_DIR / "bakery.txt", min_confidence=0.9)
+    assert results[0].commands and all(c.confidence >= 0.9 for c in results[0].commands)
+    low = api.scan("starter", long_file.path, lexicon=LEXICON_DIR / "bakery.txt", min_confidence=0.0)
+    assert len(low[0].commands) > len(results[0].commands)

@@ -28,8 +28,11 @@ examples (a bakery: a microphone above the counter records the whole morning):
   wordspot scan --model bakery.model --reference long.csv       scan the labelled recordings, score
 
 csv and jsonl: one record per command (path, start and end in seconds, words separated by
-spaces, confidence = the lowest of its words); a file in which nothing was found gets one
-record with empty times and words, so a csv output is itself a time-label file.
+spaces, confidence = the mean of its words' confidences); a file in which nothing was found
+gets one record with empty times and words, so a csv output is itself a time-label file.
+
+A command is kept or dropped whole: kept when the mean confidence of its words reaches
+0.35, or the --min-confidence given.
 
 time-label file (--reference): CSV with the header `path,start,end,words`, one row per
 command said (seconds from the start of the file); a recording without commands has one
@@ -144,7 +147,9 @@ def _run(args) -> int:
     files = [str(r.path) for r in labels] if labels is not None else args.files
     if not files:
         raise DecodingError("no audio files given; name one or more, or a time-label file with --reference")
-    settings = ScanSettings(split_pause=args.split_pause)  # the decoder options carry --min-confidence
+    # the decoder options carry --min-confidence; given, it judges whole commands too
+    given = {} if getattr(args, "min_confidence", None) is None else {"command_confidence": None}
+    settings = ScanSettings(split_pause=args.split_pause, **given)
     model = load_model(args.model)
     decoder_settings = settings_from_args(args)
     if scorer_note(model, decoder_settings):

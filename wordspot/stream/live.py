@@ -72,10 +72,15 @@ class ListenSettings:
         self.scan_settings()  # checks min_confidence and split_pause
 
     def scan_settings(self) -> ScanSettings:
-        """The same settings for ``wordspot scan`` (a file then gives the same commands)."""
+        """The same settings for ``wordspot scan`` (a file then gives the same commands).
+
+        The listener keeps judging each word by its own confidence, with features
+        normalised over the whole stretch (the scan's whole-command rule and windowed
+        normalisation have not been measured on live listening).
+        """
         return ScanSettings(detector=self.detector, min_confidence=self.min_confidence, split_pause=self.split_pause,
                             early_every=self.early_every, early_hold=self.early_hold,
-                            early_span=self.early_span)
+                            early_span=self.early_span, command_rule="word", normalise_seconds=0.0)
 
 
 class LiveListener:

@@ -13,18 +13,22 @@ the recording.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from wordspot.audio.features import compute_features
 from wordspot.errors import AudioError, DecodingError
 from wordspot.stream.blocks import BlockReader
 from wordspot.stream.detector import DetectorSettings, SpeechDetector, Stretch
+from wordspot.stream.normalise import stretch_features
 from wordspot.util.progress import ProgressBar
 
 __all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "StretchScanner", "scan_file", "scan_files",
-           "group_words", "recognise_stretch"]
+           "group_words", "whole_commands", "decode_stretch", "stretch_commands",
+           "recognise_stretch", "COMMAND_RULES"]
+
+#: How the confidence threshold judges the words of one command (``ScanSettings.command_rule``).
+COMMAND_RULES = ("word", "best", "mean")
 
 
 @dataclass(frozen=True)
@@ -52,6 +56,19 @@ class ScanSettings:
     early_span : float >= 0
         Audio without a complete command is dropped from the stretch in progress (so that
         each look recognises a short stretch) only once the stretch so far is this long.
+    command_rule : {"word", "best", "mean"}
+        "word": each word is kept or dropped by its own confidence, and the words kept are
+        grouped into commands. "best" and "mean" (default): the words heard (all but those
+        said amid other talk) are grouped first, and a command is kept or dropped whole, by
+        its best word's confidence or its words' mean (see :func:`whole_commands`).
+    normalise_seconds : float >= 0
+        Features are normalised over this many seconds around each frame
+        (:mod:`wordspot.stream.normalise`); 0: over the whole stretch.
+    command_confidence : float in [0, 1] or None
+        With the "best" and "mean" rules, a command is kept when its confidence reaches
+        this (or ``min_confidence``, whichever is higher); None: the recognizer's own
+        threshold (``DecoderSettings.min_confidence``). The defaults of the last three
+        were chosen on dev long recordings (docs/experiments/2026-12-03-long-recordings-found.md).
     """
 
     detector: DetectorSettings = field(default_factory=DetectorSettings)
@@ -61,6 +78,9 @@ class ScanSettings:
     early_every: float = 0.0
     early_hold: float = 0.1
     early_span: float = 0.0
+    command_rule: str = "mean"
+    normalise_seconds: float = 2.0
+    command_confidence: float | None = 0.35
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):
@@ -71,7 +91,12 @@ class ScanSettings:
             raise DecodingError(f"min_confidence must be between 0 and 1, got {self.min_confidence!r}")
         if not (isinstance(self.split_pause, (int, float)) and self.split_pause >= 0):
             raise DecodingError(f"split_pause must be a number of seconds >= 0, got {self.split_pause!r}")
-        for name in ("early_every", "early_hold", "early_span"):
+        if self.command_rule not in COMMAND_RULES:
+            raise DecodingError(f"command_rule must be one of {', '.join(COMMAND_RULES)}, got {self.command_rule!r}")
+        c = self.command_confidence
+        if c is not None and not (isinstance(c, (int, float)) and not isinstance(c, bool) and 0 <= c <= 1):
+            raise DecodingError(f"command_confidence must be between 0 and 1 (or None), got {c!r}")
+        for name in ("early_every", "early_hold", "early_span", "normalise_seconds"):
             if not (isinstance(getattr(self, name), (int, float)) and getattr(self, name) >= 0):
                 raise DecodingError(f"{name} must be a number of seconds >= 0, got {getattr(self, name)!r}")
 
@@ -88,7 +113,7 @@ class FoundWord:
 
 @dataclass(frozen=True)
 class FoundCommand:
-    """Words said together: times from the start of the file, the lowest word confidence."""
+    """Words said together: times from the start of the file, a confidence (see ``ScanSettings.command_rule``)."""
 
     path: str
     start: float
@@ -128,16 +153,67 @@ def group_words(path: str, words, split_pause: float) -> list[FoundCommand]:
     ]
 
 
+def decode_stretch(recognizer, wave: np.ndarray, normalise_seconds: float = 0.0):
+    """The recognition of one stretch's samples (times from the stretch's start), or None if too short.
+
+    ``normalise_seconds`` > 0: features normalised over a window of that many seconds
+    around each frame (:mod:`wordspot.stream.normalise`) instead of the whole stretch.
+    """
+    if wave.shape[0] < recognizer.features.window_length:
+        return None
+    return recognizer.decode(stretch_features(wave, recognizer.features, normalise_seconds))
+
+
 def recognise_stretch(recognizer, wave: np.ndarray, stretch: Stretch, rate: int, settings: ScanSettings,
                       path: str) -> list[FoundCommand]:
     """The commands in one stretch's samples, with times from the start of the recording."""
-    if wave.shape[0] < recognizer.features.window_length:
+    result = decode_stretch(recognizer, wave, settings.normalise_seconds)
+    if result is None:
         return []
-    result = recognizer.decode(compute_features(wave, recognizer.features))
-    offset = stretch.start / rate
-    words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
-             for s in result.segments if s.confidence >= settings.min_confidence]
-    return group_words(path, words, settings.split_pause)
+    return stretch_commands(result, stretch.start / rate, float(recognizer.min_confidence), settings, path)
+
+
+def stretch_commands(result, offset: float, threshold: float, settings: ScanSettings, path: str) -> list[FoundCommand]:
+    """The commands of one stretch's recognition, with times moved by ``offset`` seconds.
+
+    ``threshold`` is the recognizer's (``Recognizer.min_confidence``); it judges whole
+    commands unless ``settings.command_confidence`` is set.
+    """
+    if settings.command_rule == "word":
+        words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
+                 for s in result.segments if s.confidence >= settings.min_confidence]
+        return group_words(path, words, settings.split_pause)
+    # every word heard but those said amid other talk; the threshold judges whole commands
+    heard = sorted(list(result.segments) + [s for s in result.dropped if not s.amid_talk], key=lambda s: s.start)
+    words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence) for s in heard]
+    if settings.command_confidence is not None:
+        threshold = float(settings.command_confidence)
+    threshold = max(threshold, float(settings.min_confidence))
+    return whole_commands(path, words, threshold, settings.split_pause, settings.command_rule)
+
+
+def whole_commands(path: str, words, threshold: float, split_pause: float, rule: str = "best") -> list[FoundCommand]:
+    """Group time-ordered words into commands and keep or drop each command as a whole.
+
+    Parameters
+    ----------
+    words : sequence of FoundWord
+        Every word heard, whatever its confidence.
+    threshold : float
+        A command is kept when its confidence reaches it.
+    rule : {"best", "mean"}
+        A command's confidence: its best word's ("best") or its words' mean ("mean").
+        It becomes the command's ``confidence``.
+    """
+    if rule not in ("best", "mean"):
+        raise DecodingError(f"rule must be 'best' or 'mean', got {rule!r}")
+    out = []
+    for c in group_words(path, words, split_pause):
+        values = [w.confidence for w in c.parts]
+        confidence = float(max(values) if rule == "best" else np.mean(values))
+        if confidence >= threshold:
+            out.append(replace(c, confidence=confidence))
+    return out
 
 
 class StretchScanner:

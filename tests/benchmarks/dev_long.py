@@ -1,0 +1,129 @@
+#!/usr/bin/env python3
+"""Dev long recordings built like the demo's long recordings, with dev voices only.
+
+The demo's long recordings (``recordings/long.csv``, a TEST set) are planned by the demo
+generator (``recordings/synthesize.py``, ``plan_long``): talk sentences with commands (single
+words and phrases) in the pauses between them, quiet and kitchen noise alone between two
+sentences, kitchen noise under some of the speech, room tone everywhere. This module runs
+the same plan and assembly with:
+
+- the dev voices (``dev_candidate`` in ``recordings/voices.csv``: training voices, never a
+  test voice) instead of the test voices;
+- another seed than the demo's (the seed argument: 1, 2, 3, ... give different recordings);
+- other talk text: the generator's babble sentences and the sentences of the starter
+  corpus's dev split that hold no command or new word (the generator's own check) instead
+  of its long-recording talk, so no sentence of the test set's talk is heard.
+
+Six recordings of 1-2 minutes per seed, written as FLAC with a time-label file
+(``labels.csv``; the talk sentences' times in ``talk.csv``, same columns) into a folder (kept as a cache: a folder that already has its label file
+is reused). Needs the text-to-speech engines (espeak-ng, flite, festival, sox).
+
+    python tests/benchmarks/dev_long.py /tmp/dev-long --seeds 1 2 3
+"""
+
+from __future__ import annotations
+
+import argparse
+import shutil
+import sys
+import tempfile
+from dataclasses import replace
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+REPO = HERE.parents[1]
+
+#: The demo generator's own seed makes the test set; never use it here.
+TEST_SEED = 3141
+
+
+def _talk(demo) -> tuple[str, ...]:
+    """Talk text: the generator's babble sentences and the starter corpus's dev sentences
+    that hold no command or new word."""
+    import csv
+
+    with open(REPO / "recordings" / "starter" / "dev.csv", newline="", encoding="utf-8") as fh:
+        starter = [r["transcript"] for r in csv.DictReader(fh) if r["kind"] == "sentence"]
+    keep = []
+    for text in dict.fromkeys(list(demo.BABBLE_TEXT) + starter):
+        try:
+            demo.check_not_commands([text], "talk sentence")
+        except demo.CorpusError:
+            continue
+        keep.append(text)
+    return tuple(keep)
+
+
+def make_dev_long(folder: Path, seed: int, jobs: int = 1):
+    """Write one seed's dev long recordings into ``folder``; return their labels."""
+    from wordspot.evaluation.time_labels import (LabelledRecording, TimedCommand, read_time_labels,
+                                                 write_time_labels)
+
+    if seed == TEST_SEED:
+        raise SystemExit(f"seed {seed} is the demo generator's own (the test set); choose another")
+    folder = Path(folder)
+    labels_path = folder / "labels.csv"
+    if labels_path.is_file():
+        return read_time_labels(labels_path)
+    if not all(shutil.which(p) for p in ("espeak-ng", "flite", "festival", "sox")):
+        raise SystemExit("the text-to-speech engines are missing (see recordings/README.md)")
+    sys.path.insert(0, str(REPO / "recordings"))
+    import synthesize as demo
+
+    voices, talk = demo.VOICES, demo.LONG_TALK
+    dev = [replace(v, split="test") for v in voices if v.dev_candidate]
+    assert dev and all(v.split == "train" for v in voices if v.dev_candidate)
+    try:  # the generator's plan, with the dev voices standing in for the test voices
+        demo.VOICES, demo.LONG_TALK = dev, _talk(demo)
+        plans = demo.plan_long(seed)
+    finally:
+        demo.VOICES, demo.LONG_TALK = voices, talk
+    folder.mkdir(parents=True, exist_ok=True)
+    parts = [t for lp in plans for t in lp.takes]
+    records, talk_records = [], []
+    with tempfile.TemporaryDirectory(prefix="wordspot-dev-long-") as tmp:
+        work = Path(tmp)
+        raw = {t.rel_path: work / f"raw-{i:05d}.wav" for i, t in enumerate(parts)}
+        demo.synthesize_raw([(t.voice, t.text, demo.draw_for(seed, t.rel_path), raw[t.rel_path]) for t in parts],
+                            jobs)
+        speech = {t.rel_path: demo.levelled_speech(t, raw[t.rel_path], seed) for t in parts}
+        streams = demo.babble_streams(seed, work, jobs) if any(
+            e.noise == "babble" for lp in plans for e in lp.events) or any(
+            b.noise == "babble" for lp in plans for b in lp.beds) else []
+        for k, lp in enumerate(plans):
+            try:
+                data, labels = demo.assemble_long(lp, [speech[t.rel_path] for t in lp.takes], seed, streams)
+            except demo.CorpusError as exc:  # longer or shorter than the generator allows
+                print(f"note: dev long recording {k + 1} left out: {exc}", file=sys.stderr)
+                continue
+            path = folder / f"long-{k + 1:02d}-{lp.voice.voice_id}.flac"
+            path.write_bytes(data)
+            records.append(LabelledRecording(path, tuple(TimedCommand(round(a, 3), round(b, 3), tuple(w.split()))
+                                                         for a, b, w in labels)))
+            lengths = [len(speech[t.rel_path]) for t in lp.takes]
+            _, starts, _ = demo.long_layout(lp, lengths)
+            said = [e for e in lp.events if e.take is not None]
+            talk_records.append(LabelledRecording(path, tuple(
+                TimedCommand(round(a / demo.SAMPLE_RATE, 3), round((a + n) / demo.SAMPLE_RATE, 3),
+                             tuple(e.take.text.split()))
+                for e, a, n in zip(said, starts, lengths) if e.kind == "talk")))
+    write_time_labels(folder / "talk.csv", talk_records)
+    write_time_labels(labels_path, records)
+    return read_time_labels(labels_path)
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("folder", type=Path)
+    ap.add_argument("--seeds", type=int, nargs="+", default=[1, 2, 3])
+    ap.add_argument("--jobs", type=int, default=1)
+    args = ap.parse_args(argv)
+    for seed in args.seeds:
+        recs = make_dev_long(args.folder / f"seed-{seed}", seed, args.jobs)
+        n = sum(len(r.commands) for r in recs)
+        print(f"seed {seed}: {len(recs)} recordings, {n} commands in {args.folder / f'seed-{seed}'}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
