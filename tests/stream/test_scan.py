@@ -87,12 +87,12 @@ def test_min_confidence_drops_words(recognizer, long_file):
 
 
 def test_commands_are_kept_or_dropped_whole(recognizer, long_file):
-    # Default rule: a command's confidence is the mean of its words' and reaches the threshold.
-    every = scan_file(recognizer, long_file.path, settings=ScanSettings(command_confidence=0.0))
+    # The "mean" rule: a command's confidence is the mean of its words' and reaches the threshold.
+    every = scan_file(recognizer, long_file.path, settings=ScanSettings(command_rule="mean", command_confidence=0.0))
     means = sorted(c.confidence for c in every.commands)
     assert all(c.confidence == pytest.approx(np.mean([w.confidence for w in c.parts])) for c in every.commands)
     threshold = means[len(means) // 2]
-    kept = scan_file(recognizer, long_file.path, settings=ScanSettings(command_confidence=threshold))
+    kept = scan_file(recognizer, long_file.path, settings=ScanSettings(command_rule="mean", command_confidence=threshold))
     assert [(c.words, c.start, c.end) for c in kept.commands] == [
         (c.words, c.start, c.end) for c in every.commands if c.confidence >= threshold]
     # a word below the threshold stays inside a kept command
