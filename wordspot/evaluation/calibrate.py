@@ -4,7 +4,10 @@
 from scratch; this module does not import training, the caller hands it in):
 
 1. hold out a share of the recordings (:func:`split_held_out`: per transcript, spread over
-   the speakers, seeded; every transcript keeps at least one recording for training);
+   the speakers, seeded; every transcript keeps at least one recording for training), or
+   the whole speakers the training function names (its ``speakers_apart``, when adapting
+   to recordings of several speakers), of whom about the same share is recognised
+   (:func:`recognised_share`);
 2. train on the rest;
 3. recognise each held-out recording (:func:`calibration_examples`) (a) with the whole
    lexicon, labelling every word heard right or wrong by the word alignment
@@ -62,6 +65,7 @@ __all__ = [
     "CALIBRATION_POSTERIOR_MEASURES",
     "calibration_measures",
     "held_out_parts",
+    "recognised_share",
     "CALIBRATION_FOLDS",
     "calibration_note",
     "train_calibrated",
@@ -668,6 +672,19 @@ def held_out_parts(utterances: Sequence, config: CalibrationConfig) -> tuple[lis
             for f in range(CALIBRATION_FOLDS)], "folds"
 
 
+def recognised_share(held: Sequence, total: int, config: CalibrationConfig) -> list:
+    """The held-out recordings to recognise for the calibration: all of ``held`` when they
+    are at most ``config.held_out_share`` of ``total`` recordings (or ``config.min_items``),
+    else about that many, the same share of every transcript (:func:`split_held_out`), so
+    that holding out whole speakers costs no more decoding than holding out takes."""
+    held = list(held)
+    want = max(config.min_items, int(round(config.held_out_share * total)))
+    if len(held) <= want:
+        return held
+    _, part = split_held_out(held, want / len(held), config.seed)
+    return part if len(part) >= config.min_items else held
+
+
 def _merged(parts: list[CalibrationExamples]) -> CalibrationExamples:
     """The examples of several held-out parts as one set."""
     if len(parts) == 1:
@@ -693,7 +710,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     False). Returns what the last
     call of ``train`` returned, its model carrying the calibration (or none, with a warning,
     when there was too little to fit on) and ``info["calibration"]`` describing the fit.
-    The held-out recordings come from :func:`held_out_parts`; with folds, ``train`` runs
+    The held-out recordings are ``train.speakers_apart(utterances)`` when ``train`` has
+    that and it gives a split, else they come from :func:`held_out_parts`; with folds, ``train`` runs
     once per fold and the calibration is fitted on every fold's examples.
 
     ``fallback``: the starting model's calibration (a starter's, fitted on many voices), kept
@@ -702,7 +720,12 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     """
     say = report or (lambda line: None)
     utterances = list(utterances)
-    parts, how = held_out_parts(utterances, config)
+    apart = getattr(train, "speakers_apart", None)
+    apart = apart(utterances) if apart is not None else None
+    if apart is not None:
+        parts, how = [apart], "whole speakers"
+    else:
+        parts, how = held_out_parts(utterances, config)
     if not parts:
         why = (f"{len(utterances)} recordings are fewer than the {config.min_items} needed to hold out "
                "enough to fit one for your voice")
@@ -724,10 +747,15 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         if how == "folds":
             say(f"confidence calibration: fold {f + 1} of {len(parts)}: training on {len(rest)} recordings, "
                 f"{len(held)} held out (too few recordings to hold out a share once)")
+        elif how == "whole speakers":
+            say(f"confidence calibration: training on {len(rest)} recordings, {len({u.speaker for u in held})} "
+                f"speakers' {len(held)} recordings held out, as voices it has not heard")
         else:
             say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out"
                 + (" across the whole set (transcripts rarely repeat)" if how == "across the set" else ""))
         model, summary = _trained(train, rest, held)
+        if how == "whole speakers":
+            held = recognised_share(held, len(utterances), config)
         examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,
                                              speeds=config.speeds, backwards=config.backwards, jumbled=jumbled,
                                              seed=config.seed + f, noisy=config.noisy,
@@ -758,6 +786,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                     info={**model.info, "calibration": {
                         "held_out_share": config.held_out_share, "seed": config.seed,
                         "held_out": how, "folds": len(parts),
+                        **({"held_out_speakers": len({u.speaker for _, h in parts for u in h})}
+                           if how == "whole speakers" else {}),
                         "held_out_recordings": examples.recordings, "right_words": n_right,
                         "wrong_words": int(examples.right.size - n_right),
                         "wrong_with_own_words_removed": n_removed,
@@ -786,6 +816,7 @@ def calibration_note(model) -> str:
         return "word confidences: the calibration the model already carried"
     words = int(info.get("right_words", 0)) + int(info.get("wrong_words", 0))
     how = {"per transcript": "", "across the set": ", chosen across the whole set",
+           "whole speakers": f", of {info.get('held_out_speakers')} speakers held out whole",
            "folds": f", each held out once in {info.get('folds')} folds"}.get(info.get("held_out", ""), "")
     return (f"word confidences: calibrated on your own recordings, {words} words heard in "
             f"{info.get('held_out_recordings')} held-out recordings{how}")
