@@ -381,3 +381,28 @@ def test_the_recognised_share_keeps_few_held_out_recordings_whole():
     # round(0.15 * 150) = 22 wanted: a share 22/30 of each transcript's 10, rounded at random (7 or 8)
     assert 21 <= len(part) <= 24 and set(part) <= set(utts)
     assert set(Counter(u.words for u in part).values()) <= {7, 8}
+
+
+def test_recognising_the_held_out_recordings_in_threads_changes_nothing(tmp_path):
+    from wordspot.corpus import read_manifest
+    from wordspot.evaluation.calibrate import held_out_recognitions
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    repo = Path(__file__).resolve().parents[2]
+    model = load_model("starter")
+    model.lexicon = read_lexicon(repo / "lexicon" / "bakery.txt")
+    utts = read_manifest(repo / "recordings" / "train.csv")[:600:100]
+    broken = tmp_path / "broken.wav"
+    broken.write_bytes(b"not audio")
+    utts = utts[:3] + [Utterance(broken, ("oven",), "x", 99)] + utts[3:]
+    one = list(held_out_recognitions(model, utts, speeds=(1.0, 1.25)))
+    two = list(held_out_recognitions(model, utts, speeds=(1.0, 1.25), jobs=2))
+    assert len(one) == len(two) == 2 * 6 + 1 and one[6][1] is None and two[6][1] is None
+    for (ua, wa, xa), (ub, wb, xb) in zip(one, two):
+        assert ua is ub
+        if wa is None:
+            continue
+        assert [(s.word, s.start, s.end) for s in wa.segments] == [(s.word, s.start, s.end) for s in wb.segments]
+        assert [s.measures for s in wa.segments + wa.dropped] == [s.measures for s in wb.segments + wb.dropped]
+        assert [s.word for s in xa.segments] == [s.word for s in xb.segments]

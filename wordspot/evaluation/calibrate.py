@@ -299,7 +299,7 @@ class _TwoWays:
 
 
 def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                          quiet: bool = True, speeds=(1.0,)
+                          quiet: bool = True, speeds=(1.0,), jobs: int = 1
                           ) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
     """Recognise each recording with the whole lexicon and with its own words removed.
 
@@ -307,28 +307,48 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
     ``speeds`` (the recording played that many times faster): ``whole`` is None when the
     file cannot be read; ``without_own`` is None when there is nothing to remove (no
     command) or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
+    With ``jobs`` > 1 the recordings are shared among that many threads (as
+    ``decoder.recognize_files``: the search releases the interpreter lock); the results
+    are the same, in the same order.
     """
+    two = _TwoWays(model, settings)
+    utterances = list(utterances)
+    with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
+        if jobs <= 1 or len(utterances) <= 1:
+            for u in utterances:
+                bar.update()
+                yield from _recognise_one(two, model, u, speeds)
+            return
+        from joblib import Parallel, delayed
+
+        for u in utterances:  # every recognizer built once, before the threads share them
+            two.without(u.words)
+        for got in Parallel(n_jobs=jobs, prefer="threads", return_as="generator")(
+                delayed(_recognise_one)(two, model, u, speeds) for u in utterances):
+            bar.update()
+            yield from got
+
+
+def _recognise_one(two: "_TwoWays", model, u, speeds) -> list:
+    """``[(u, whole, without_own)]`` per speed of one recording (``[(u, None, None)]`` when unreadable)."""
     from wordspot.audio.features import compute_features
     from wordspot.training.data import speed_copy
 
-    two = _TwoWays(model, settings)
-    with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
-        for u in utterances:
-            bar.update()
-            rate = model.features.sample_rate
-            try:
-                wave = _quiet_load(model, u.path)
-                copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
-            except WordspotError:
-                yield u, None, None
-                continue
-            for frames in copies:
-                try:
-                    whole, without_own = two.decode(frames, u.words, str(u.path))
-                except WordspotError:
-                    yield u, None, None
-                    continue
-                yield u, whole, without_own
+    rate = model.features.sample_rate
+    try:
+        wave = _quiet_load(model, u.path)
+        copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
+    except WordspotError:
+        return [(u, None, None)]
+    out = []
+    for frames in copies:
+        try:
+            whole, without_own = two.decode(frames, u.words, str(u.path))
+        except WordspotError:
+            out.append((u, None, None))
+            continue
+        out.append((u, whole, without_own))
+    return out
 
 
 def _quiet_load(model, path) -> np.ndarray:
@@ -486,7 +506,7 @@ def noise_only_clips(waves: Sequence, speakers: Sequence, n: int, *, seed: int =
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
                          quiet: bool = True, speeds=(1.0,), backwards: bool = False, jumbled: int = 0,
                          seed: int = 0, noisy: int = 0, noise_snr_db=(5.0, 25.0), phrases: int = 0,
-                         noise_clips: int = 0) -> CalibrationExamples:
+                         noise_clips: int = 0, jobs: int = 1) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -509,6 +529,8 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
     noisy, noise_snr_db, phrases, noise_clips
         Noisy copies per recording, their SNR range, joined phrases, background-only
         clips (see :class:`CalibrationConfig`); each 0: none.
+    jobs : int >= 1
+        Threads recognising the held-out recordings (the same examples for any number).
     """
     from wordspot.audio.features import compute_features
 
@@ -532,7 +554,7 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
             all_wrong([without_own], f"{where}, own words removed")
 
     for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
-                                                       speeds=speeds):
+                                                       speeds=speeds, jobs=jobs):
         if whole is None:
             if str(u.path) not in failed:
                 failed.append(str(u.path))
@@ -703,7 +725,8 @@ def _trained(train: Callable, rest, held):
 
 
 def train_calibrated(train: Callable, utterances: Sequence, *, config: CalibrationConfig = CalibrationConfig(),
-                     quiet: bool = True, report: Callable[[str], None] | None = None, fallback=None):
+                     quiet: bool = True, report: Callable[[str], None] | None = None, fallback=None,
+                     jobs: int = 1):
     """Train with ``train(utterances) -> (model, summary)`` and store a fitted calibration.
 
     ``config.refit`` should be decided (:meth:`CalibrationConfig.decided`; None counts as
@@ -713,6 +736,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     The held-out recordings are ``train.speakers_apart(utterances)`` when ``train`` has
     that and it gives a split, else they come from :func:`held_out_parts`; with folds, ``train`` runs
     once per fold and the calibration is fitted on every fold's examples.
+
+    ``jobs``: threads recognising the held-out recordings (the same calibration for any number).
 
     ``fallback``: the starting model's calibration (a starter's, fitted on many voices), kept
     instead when the held-out recordings are too few to fit one (said through ``report``,
@@ -760,7 +785,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                                              speeds=config.speeds, backwards=config.backwards, jumbled=jumbled,
                                              seed=config.seed + f, noisy=config.noisy,
                                              noise_snr_db=config.noise_snr_db, phrases=phrases,
-                                             noise_clips=noise_clips))
+                                             noise_clips=noise_clips, jobs=jobs))
     examples = _merged(examples)
     calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))
     n_right = int(examples.right.sum())
