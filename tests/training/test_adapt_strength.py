@@ -177,14 +177,14 @@ def test_whole_speakers_handed_in_as_held_out_choose_the_strength(shifted):
 
 def test_the_training_function_names_whole_speakers_for_the_calibration(shifted):
     start, lex, many, _ = shifted
-    fit = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 3}))
+    fit = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 3,
+                                                          "unheard_calibration": True}))
     rest, held = fit.speakers_apart(many)
     assert {u.speaker for u in rest} & {u.speaker for u in held} == set()
     assert len(rest) + len(held) == len(many) and len({u.speaker for u in held}) == 1
     assert held == split_by_speaker(many, 0.25, 0)  # the speakers the strength is chosen on without it
-    off = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 3,
-                                                          "unheard_calibration": False}))
-    assert off.speakers_apart(many) is None
+    off = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 3}))
+    assert off.speakers_apart(many) is None  # off by default
     assert fit.speakers_apart(many[:1]) is None  # one speaker: takes of the same voice
 
 

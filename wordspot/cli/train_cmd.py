@@ -49,11 +49,8 @@ out of a first training, recognised, and a logistic regression learns from them 
 often a word with given scores is right; the model is then trained again on everything
 (adapting; from scratch the first model is kept unless --refit) and stores the fit, so
 `wordspot recognize` reports each word's confidence as the probability that it is right.
-When adapting to recordings of three or more speakers, a quarter of the speakers are
-held out whole instead (the same ones the strength below is chosen on; about 15% of all
-recordings, taken from theirs, are recognised), so the calibration learns from voices the
-model has not heard. When transcripts rarely repeat (sentences, one take per word), 15% of
-the whole set is held out instead, or, still too few, five parts each held out once. With fewer than 20
+When transcripts rarely repeat (sentences, one take per word), 15% of the whole set is
+held out instead, or, still too few, five parts each held out once. With fewer than 20
 recordings in all, an adapted model keeps the calibration its starting model carries, if
 any. The summary's last line says which calibration the model got.
 
