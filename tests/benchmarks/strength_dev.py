@@ -146,7 +146,7 @@ VARIANTS = {
     "2 noisy copies 10-25 dB": {"follow_noise_copies": 2, "follow_noise_snr": (10.0, 25.0)},
     "means + weights": {"follow_variances": False},
     "no speed copies": {"follow_speeds": ()},
-    "calibrated on takes (before)": {"unheard_calibration": False},
+    "calibrated on whole speakers": {"unheard_calibration": True},
 }
 
 
