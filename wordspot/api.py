@@ -99,7 +99,8 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
         cal = calibration if isinstance(calibration, CalibrationConfig) else CalibrationConfig()
         model, _summary = train_calibrated(fit, utterances, config=cal.decided(adapting=start is not None),
                                            quiet=quiet, fallback=None if start is None else
-                                           getattr(start_model, "calibration", None))
+                                           getattr(start_model, "calibration", None),
+                                           jobs=getattr(config, "jobs", 1))
     if out is not None:
         save_model(model, Path(out))
     return model

@@ -211,7 +211,7 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         began = time.perf_counter()
         model, _summary = train_calibrated(fit, train_utts, config=CalibrationConfig().decided(
             adapting=system == "adapted"), quiet=quiet, report=None if quiet else say,
-            fallback=getattr(fit, "start_calibration", None))
+            fallback=getattr(fit, "start_calibration", None), jobs=jobs)
         seconds = time.perf_counter() - began
     model_file = out_dir / f"bakery-{system}.model"
     save_model(model, model_file)

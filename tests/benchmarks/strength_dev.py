@@ -13,7 +13,8 @@ babble or fan noise at 20 dB and at 10 dB SNR (``_dev_sets``), and joined stand-
 phrases (2-4 commands with pauses). A last part leaves the words of one fold out of the
 adaptation data and scores the dev voices saying them ("new words"). ``--whole`` instead
 trains through ``api.train`` (calibration, scorer tuning) and also scores at the default
-confidence threshold. The demo's test sets are never used here.
+confidence threshold (the strength chosen, or ``--strength``; ``--whole-new-words`` also
+without the first fold's words). The demo's test sets are never used here.
 
     python tests/benchmarks/strength_dev.py                 # everything (about half an hour)
     python tests/benchmarks/strength_dev.py --no-scratch    # without the from-scratch models
@@ -145,6 +146,7 @@ VARIANTS = {
     "2 noisy copies 10-25 dB": {"follow_noise_copies": 2, "follow_noise_snr": (10.0, 25.0)},
     "means + weights": {"follow_variances": False},
     "no speed copies": {"follow_speeds": ()},
+    "calibrated on whole speakers": {"unheard_calibration": True},
 }
 
 
@@ -161,8 +163,13 @@ def main(argv=None) -> int:
                     help="following-pass variants, at the --fixed strengths per seed and chosen per seed (all takes)")
     ap.add_argument("--no-chosen", action="store_true", help="skip the chosen-strength runs")
     ap.add_argument("--whole", nargs="*", default=None, choices=sorted(VARIANTS),
-                    help="instead: these variants at strength 1 through api.train (calibration, scorer tuned), "
+                    help="instead: these variants through api.train (calibration, scorer tuned), "
                          "scored at the default confidence threshold and at 0 (all takes)")
+    ap.add_argument("--strength", type=int, default=None,
+                    help="with --whole: fix the strength (default: chosen, as wordspot train does)")
+    ap.add_argument("--whole-new-words", action="store_true",
+                    help="with --whole: also adapt without the words of the first fold and score the dev "
+                         "voices saying them")
     args = ap.parse_args(argv)
     if args.whole is not None:
         return whole(args)
@@ -235,7 +242,8 @@ def main(argv=None) -> int:
 
 
 def whole(args) -> int:
-    """The dev split through ``api.train`` as ``wordspot train`` runs it, strength 1."""
+    """The dev split through ``api.train`` as ``wordspot train`` runs it (strength chosen
+    unless ``--strength``); with ``--whole-new-words`` also without the first fold's words."""
     import csv
     import tempfile
 
@@ -246,28 +254,39 @@ def whole(args) -> int:
     rec = REPO / "recordings"
     held = set(dev_voices(rec / "voices.csv"))
     sets = _dev_sets(rec, held)
+    if args.whole_new_words:
+        sets["new words"] = [(w, r) for w, r in sets["clean"] if set(r) & set(FOLD)]
     with open(rec / "train.csv", newline="", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
     print("| system | " + " | ".join(f"{k} WER (sub/del)" for k in sets) + " | "
-          + " | ".join(f"{k}, threshold 0" for k in sets) + " | CPU s |", flush=True)
+          + " | ".join(f"{k}, threshold 0" for k in sets) + " | strength | CPU s |", flush=True)
     with tempfile.TemporaryDirectory() as tmp:
-        manifest = Path(tmp) / "dev-train.csv"
-        with open(manifest, "w", newline="", encoding="utf-8") as fh:
-            w = csv.writer(fh)
-            w.writerow(["path", "transcript", "speaker"])
-            for r in rows:
-                if r["speaker"] not in held:
-                    w.writerow([str(rec / r["path"]), r["transcript"], r["speaker"]])
-        assert len(read_manifest(manifest)) == 950
-        for name in args.whole:
-            for seed in args.seeds:
-                t0 = time.process_time()
-                model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
-                                  config=AdaptationConfig(jobs=args.jobs, strength=1, seed=seed, **VARIANTS[name]))
-                secs = time.process_time() - t0
-                cells = [_cell(_tally(model, v, None)) for v in sets.values()]
-                cells += [_cell(_tally(model, v, 0.0)) for v in sets.values()]
-                print(f"| {name}, strength 1, seed {seed} | " + " | ".join(cells) + f" | {secs:.0f} |", flush=True)
+        manifests = {}
+        for name, keep in (("all", lambda r: True), ("new words", lambda r: not set(r["transcript"].split()) & set(FOLD))):
+            if name == "new words" and not args.whole_new_words:
+                continue
+            manifests[name] = Path(tmp) / f"dev-train-{len(manifests)}.csv"
+            with open(manifests[name], "w", newline="", encoding="utf-8") as fh:
+                w = csv.writer(fh)
+                w.writerow(["path", "transcript", "speaker"])
+                for r in rows:
+                    if r["speaker"] not in held and keep(r):
+                        w.writerow([str(rec / r["path"]), r["transcript"], r["speaker"]])
+        assert len(read_manifest(manifests["all"])) == 950
+        for seed in args.seeds:
+            for name in args.whole:
+                for data, manifest in manifests.items():
+                    clips = sets if data == "all" else {"new words": sets["new words"]}
+                    t0 = time.process_time()
+                    model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
+                                      config=AdaptationConfig(jobs=args.jobs, strength=args.strength, seed=seed,
+                                                              **VARIANTS[name]))
+                    secs = time.process_time() - t0
+                    cells = {k: _cell(_tally(model, clips[k], None)) if k in clips else "" for k in sets}
+                    zero = {k: _cell(_tally(model, clips[k], 0.0)) if k in clips else "" for k in sets}
+                    label = f"{name}, seed {seed}" + (", new words left out" if data != "all" else "")
+                    print(f"| {label} | " + " | ".join(cells.values()) + " | " + " | ".join(zero.values())
+                          + f" | {model.info['strength']['follow_passes']} | {secs:.0f} |", flush=True)
     return 0
 
 

@@ -325,3 +325,84 @@ def test_unique_transcripts_still_give_a_calibration(rng, monkeypatch):
     assert out.info["calibration"]["held_out_recordings"] == 60 and out.info["calibration"]["right_words"] == 20
     assert "each held out once in 5 folds" in calibrate.calibration_note(out)
     assert lines[0].startswith("confidence calibration: fold 1 of 5")
+
+
+def test_whole_speakers_named_by_the_training_function_are_held_out(rng, monkeypatch):
+    utts = _utterances(speakers=8, takes=5)  # 120 recordings, 40 a transcript
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
+    calls, recognised = [], []
+
+    def fake_train(part, held_out=None):
+        calls.append((list(part), None if held_out is None else list(held_out)))
+        return replace(model, info={"call": len(calls)}), None
+
+    def apart(utterances):
+        return ([u for u in utterances if u.speaker not in ("baker-1", "baker-6")],
+                [u for u in utterances if u.speaker in ("baker-1", "baker-6")])
+
+    fake_train.takes_held_out = True
+    fake_train.speakers_apart = apart
+
+    def fake_examples(m, held, **_):
+        assert m.info == {"call": 1}
+        recognised.extend(held)
+        return _examples(20, 25, recordings=len(held))
+
+    monkeypatch.setattr(calibrate, "calibration_examples", fake_examples)
+    lines = []
+    config = CalibrationConfig(held_out_share=0.15, min_items=5, refit=True)
+    out, _ = train_calibrated(fake_train, utts, config=config, report=lines.append)
+    (rest, held), (everything, none) = calls
+    # the first training leaves the two speakers out and is handed all their 30 recordings
+    assert len(rest) == 90 and {u.speaker for u in held} == {"baker-1", "baker-6"} and len(held) == 30
+    assert len(everything) == 120 and none is None
+    # about the calibration's share of all recordings is recognised (18 of 120), from those
+    # speakers only, every transcript alike (6 of each)
+    assert len(recognised) == 18 and {u.speaker for u in recognised} <= {"baker-1", "baker-6"}
+    assert Counter(u.words for u in recognised) == {w: 6 for w in {u.words for u in utts}}
+    assert out.info["calibration"]["held_out"] == "whole speakers"
+    assert out.info["calibration"]["held_out_speakers"] == 2
+    assert lines[0] == "confidence calibration: training on 90 recordings, 2 speakers' 30 recordings held out, " \
+                       "as voices it has not heard"
+    assert "of 2 speakers held out whole" in calibrate.calibration_note(out)
+    # a training function that names none: takes of every voice, as before
+    fake_train.speakers_apart = lambda utterances: None
+    calls.clear()
+    out, _ = train_calibrated(fake_train, utts, config=config)
+    assert out.info["calibration"]["held_out"] == "per transcript" and len(calls[0][1]) == 18
+
+
+def test_the_recognised_share_keeps_few_held_out_recordings_whole():
+    utts = _utterances(speakers=2, takes=5)  # 30
+    config = CalibrationConfig(held_out_share=0.15, min_items=40)
+    assert calibrate.recognised_share(utts, 100, config) == utts  # 15 of 100 wanted, but at least 40
+    assert calibrate.recognised_share(utts, 200, CalibrationConfig(held_out_share=0.15)) == utts  # 30 wanted
+    part = calibrate.recognised_share(utts, 150, CalibrationConfig(held_out_share=0.15, min_items=5))
+    # round(0.15 * 150) = 22 wanted: a share 22/30 of each transcript's 10, rounded at random (7 or 8)
+    assert 21 <= len(part) <= 24 and set(part) <= set(utts)
+    assert set(Counter(u.words for u in part).values()) <= {7, 8}
+
+
+def test_recognising_the_held_out_recordings_in_threads_changes_nothing(tmp_path):
+    from wordspot.corpus import read_manifest
+    from wordspot.evaluation.calibrate import held_out_recognitions
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.model import load_model
+
+    repo = Path(__file__).resolve().parents[2]
+    model = load_model("starter")
+    model.lexicon = read_lexicon(repo / "lexicon" / "bakery.txt")
+    utts = read_manifest(repo / "recordings" / "train.csv")[:600:100]
+    broken = tmp_path / "broken.wav"
+    broken.write_bytes(b"not audio")
+    utts = utts[:3] + [Utterance(broken, ("oven",), "x", 99)] + utts[3:]
+    one = list(held_out_recognitions(model, utts, speeds=(1.0, 1.25)))
+    two = list(held_out_recognitions(model, utts, speeds=(1.0, 1.25), jobs=2))
+    assert len(one) == len(two) == 2 * 6 + 1 and one[6][1] is None and two[6][1] is None
+    for (ua, wa, xa), (ub, wb, xb) in zip(one, two):
+        assert ua is ub
+        if wa is None:
+            continue
+        assert [(s.word, s.start, s.end) for s in wa.segments] == [(s.word, s.start, s.end) for s in wb.segments]
+        assert [s.measures for s in wa.segments + wa.dropped] == [s.measures for s in wb.segments + wb.dropped]
+        assert [s.word for s in xa.segments] == [s.word for s in xb.segments]

@@ -135,6 +135,59 @@ def test_the_training_function_prepares_each_recording_once(shifted, monkeypatch
     assert sum(sizes) == 50 + 50
 
 
+def test_the_training_function_makes_each_recordings_noisy_copies_once(shifted, monkeypatch):
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, _ = shifted
+    made = []
+    real = adapt_module.noisy_items
+
+    def counting(items, *args, **kwargs):
+        made.extend(it.path for it in items)
+        return real(items, *args, **kwargs)
+
+    monkeypatch.setattr(adapt_module, "noisy_items", counting)
+    cfg = AdaptationConfig(**{**QUICK, "follow_noise_copies": 2}, strength=1)
+    fit = adapting(start, lex, config=cfg)
+    fit(many[:40], held_out=many[40:50])
+    cached, _ = fit(many[:50])
+    # every one of the 50 recordings is noised once over both trainings (the held-out ten
+    # with the first), and the second training equals one that makes its copies afresh
+    assert sorted(made) == sorted(u.path for u in many[:50])
+    fresh, _ = adapt(many[:50], lex, start, config=cfg)
+    np.testing.assert_array_equal(cached.mixtures.means, fresh.mixtures.means)
+    np.testing.assert_array_equal(cached.mixtures.variances, fresh.mixtures.variances)
+
+
+def test_whole_speakers_handed_in_as_held_out_choose_the_strength(shifted):
+    start, lex, many, _ = shifted
+    cfg = AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 2})
+    speakers = sorted({u.speaker for u in many})
+    rest = [u for u in many if u.speaker != speakers[0]]
+    held = [u for u in many if u.speaker == speakers[0]]
+    model, summary = adapt(rest, lex, start, config=cfg, held_out=held)
+    st = model.info["strength"]
+    assert st["chosen_on"] == "held-out" and st["held_out_recordings"] == len(held)
+    assert st["held_out_speakers"] == 1 and "1 speaker held out" in summary.adapt_note
+    # the same as choosing on them by hand: adapt_items with those held-out items
+    fits = st["held_out_fit"]
+    assert len(fits) >= 2 and (st["follow_passes"] == len(fits) - 1 or fits[st["follow_passes"] + 1]
+                               <= max(fits[:st["follow_passes"] + 1]))
+
+
+def test_the_training_function_names_whole_speakers_for_the_calibration(shifted):
+    start, lex, many, _ = shifted
+    fit = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 3,
+                                                          "unheard_calibration": True}))
+    rest, held = fit.speakers_apart(many)
+    assert {u.speaker for u in rest} & {u.speaker for u in held} == set()
+    assert len(rest) + len(held) == len(many) and len({u.speaker for u in held}) == 1
+    assert held == split_by_speaker(many, 0.25, 0)  # the speakers the strength is chosen on without it
+    off = adapting(start, lex, config=AdaptationConfig(**{**QUICK, "speakers_to_hold_out": 3}))
+    assert off.speakers_apart(many) is None  # off by default
+    assert fit.speakers_apart(many[:1]) is None  # one speaker: takes of the same voice
+
+
 def test_strength_note_in_plain_words():
     info = {"follow_passes": 6, "speech_minutes": 17.0, "chosen_on": "held-out", "held_out_recordings": 40,
             "most_passes": 6}

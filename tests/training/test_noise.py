@@ -9,7 +9,7 @@ from wordspot.errors import AugmentError
 from wordspot.audio.features import FeatureSettings
 from wordspot.training.trainer import TrainingConfig
 from wordspot.training.data import prepare_items
-from wordspot.training.noise import CopyRecipe, babble_streams, plan_copies
+from wordspot.training.noise import CopyRecipe, babble_streams, plan_copies, recording_key
 
 BABBLE = NoiseSettings(copies=3, kinds=("babble",), talkers=(2, 4))
 
@@ -42,6 +42,25 @@ def test_plans_depend_only_on_the_seed():
     assert plan_copies(speakers, noise, seed=7) != plan_copies(speakers, noise, seed=8)
     snrs = [p.snr_db for p in plan_copies(speakers, noise, seed=7)]
     assert all(0.0 <= v <= 25.0 for v in snrs)
+
+
+def test_a_keyed_recording_gets_the_same_recipe_in_any_list():
+    speakers = ["a", "b", "c", "a", "b", "c"]
+    keys = [recording_key(f"r{k}.wav", ("oven", "on")) for k in range(6)]
+    noise = NoiseSettings(copies=2)
+    whole = plan_copies(speakers, noise, seed=3, keys=keys)
+    order = [4, 1, 5, 0]  # a shorter list in another order, the same three speakers
+    part = plan_copies([speakers[k] for k in order], noise, seed=3, keys=[keys[k] for k in order])
+    def strip(r):
+        return (r.kind, r.snr_db, r.talkers, r.noise_seed)
+    for c in range(2):
+        for j, k in enumerate(order):
+            assert strip(part[c * len(order) + j]) == strip(whole[c * 6 + k])
+            assert part[c * len(order) + j].index == j  # the index still points into its own list
+    # without keys the recipe follows the place in the list
+    plain = plan_copies([speakers[k] for k in order], noise, seed=3)
+    assert [strip(r) for r in plain] != [strip(r) for r in part]
+    assert recording_key("r0.wav", ("oven", "on")) != recording_key("r0.wav", ("oven", "off"))
 
 
 def test_default_kinds_draw_babble_two_times_in_three():

@@ -205,7 +205,7 @@ def _run(args) -> int:
                                    jumbled=args.jumbled_clips)
         model, summary = train_calibrated(fit, utterances, config=config.decided(adapting=not args.from_scratch),
                                           quiet=args.quiet, report=say,
-                                          fallback=getattr(fit, "start_calibration", None))
+                                          fallback=getattr(fit, "start_calibration", None), jobs=args.jobs)
     if model.info.get("borrowed_pronunciations"):
         say("pronunciations taken from the starting model: " + ", ".join(model.info["borrowed_pronunciations"]))
     for line in summary.lines():

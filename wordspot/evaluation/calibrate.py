@@ -4,7 +4,10 @@
 from scratch; this module does not import training, the caller hands it in):
 
 1. hold out a share of the recordings (:func:`split_held_out`: per transcript, spread over
-   the speakers, seeded; every transcript keeps at least one recording for training);
+   the speakers, seeded; every transcript keeps at least one recording for training), or
+   the whole speakers the training function names (its ``speakers_apart``, when adapting
+   to recordings of several speakers), of whom about the same share is recognised
+   (:func:`recognised_share`);
 2. train on the rest;
 3. recognise each held-out recording (:func:`calibration_examples`) (a) with the whole
    lexicon, labelling every word heard right or wrong by the word alignment
@@ -62,6 +65,7 @@ __all__ = [
     "CALIBRATION_POSTERIOR_MEASURES",
     "calibration_measures",
     "held_out_parts",
+    "recognised_share",
     "CALIBRATION_FOLDS",
     "calibration_note",
     "train_calibrated",
@@ -295,7 +299,7 @@ class _TwoWays:
 
 
 def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
-                          quiet: bool = True, speeds=(1.0,)
+                          quiet: bool = True, speeds=(1.0,), jobs: int = 1
                           ) -> Iterator[tuple[object, Recognition | None, Recognition | None]]:
     """Recognise each recording with the whole lexicon and with its own words removed.
 
@@ -303,28 +307,48 @@ def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSetti
     ``speeds`` (the recording played that many times faster): ``whole`` is None when the
     file cannot be read; ``without_own`` is None when there is nothing to remove (no
     command) or nothing would be left. No confidence threshold applies (``min_confidence`` 0).
+    With ``jobs`` > 1 the recordings are shared among that many threads (as
+    ``decoder.recognize_files``: the search releases the interpreter lock); the results
+    are the same, in the same order.
     """
+    two = _TwoWays(model, settings)
+    utterances = list(utterances)
+    with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
+        if jobs <= 1 or len(utterances) <= 1:
+            for u in utterances:
+                bar.update()
+                yield from _recognise_one(two, model, u, speeds)
+            return
+        from joblib import Parallel, delayed
+
+        for u in utterances:  # every recognizer built once, before the threads share them
+            two.without(u.words)
+        for got in Parallel(n_jobs=jobs, prefer="threads", return_as="generator")(
+                delayed(_recognise_one)(two, model, u, speeds) for u in utterances):
+            bar.update()
+            yield from got
+
+
+def _recognise_one(two: "_TwoWays", model, u, speeds) -> list:
+    """``[(u, whole, without_own)]`` per speed of one recording (``[(u, None, None)]`` when unreadable)."""
     from wordspot.audio.features import compute_features
     from wordspot.training.data import speed_copy
 
-    two = _TwoWays(model, settings)
-    with ProgressBar(len(utterances), "recognising held-out recordings", quiet=quiet) as bar:
-        for u in utterances:
-            bar.update()
-            rate = model.features.sample_rate
-            try:
-                wave = _quiet_load(model, u.path)
-                copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
-            except WordspotError:
-                yield u, None, None
-                continue
-            for frames in copies:
-                try:
-                    whole, without_own = two.decode(frames, u.words, str(u.path))
-                except WordspotError:
-                    yield u, None, None
-                    continue
-                yield u, whole, without_own
+    rate = model.features.sample_rate
+    try:
+        wave = _quiet_load(model, u.path)
+        copies = [compute_features(speed_copy(wave, rate, f), model.features) for f in speeds]
+    except WordspotError:
+        return [(u, None, None)]
+    out = []
+    for frames in copies:
+        try:
+            whole, without_own = two.decode(frames, u.words, str(u.path))
+        except WordspotError:
+            out.append((u, None, None))
+            continue
+        out.append((u, whole, without_own))
+    return out
 
 
 def _quiet_load(model, path) -> np.ndarray:
@@ -482,7 +506,7 @@ def noise_only_clips(waves: Sequence, speakers: Sequence, n: int, *, seed: int =
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
                          quiet: bool = True, speeds=(1.0,), backwards: bool = False, jumbled: int = 0,
                          seed: int = 0, noisy: int = 0, noise_snr_db=(5.0, 25.0), phrases: int = 0,
-                         noise_clips: int = 0) -> CalibrationExamples:
+                         noise_clips: int = 0, jobs: int = 1) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -505,6 +529,8 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
     noisy, noise_snr_db, phrases, noise_clips
         Noisy copies per recording, their SNR range, joined phrases, background-only
         clips (see :class:`CalibrationConfig`); each 0: none.
+    jobs : int >= 1
+        Threads recognising the held-out recordings (the same examples for any number).
     """
     from wordspot.audio.features import compute_features
 
@@ -528,7 +554,7 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
             all_wrong([without_own], f"{where}, own words removed")
 
     for u, whole, without_own in held_out_recognitions(model, utterances, settings=settings, quiet=quiet,
-                                                       speeds=speeds):
+                                                       speeds=speeds, jobs=jobs):
         if whole is None:
             if str(u.path) not in failed:
                 failed.append(str(u.path))
@@ -668,6 +694,19 @@ def held_out_parts(utterances: Sequence, config: CalibrationConfig) -> tuple[lis
             for f in range(CALIBRATION_FOLDS)], "folds"
 
 
+def recognised_share(held: Sequence, total: int, config: CalibrationConfig) -> list:
+    """The held-out recordings to recognise for the calibration: all of ``held`` when they
+    are at most ``config.held_out_share`` of ``total`` recordings (or ``config.min_items``),
+    else about that many, the same share of every transcript (:func:`split_held_out`), so
+    that holding out whole speakers costs no more decoding than holding out takes."""
+    held = list(held)
+    want = max(config.min_items, int(round(config.held_out_share * total)))
+    if len(held) <= want:
+        return held
+    _, part = split_held_out(held, want / len(held), config.seed)
+    return part if len(part) >= config.min_items else held
+
+
 def _merged(parts: list[CalibrationExamples]) -> CalibrationExamples:
     """The examples of several held-out parts as one set."""
     if len(parts) == 1:
@@ -686,15 +725,19 @@ def _trained(train: Callable, rest, held):
 
 
 def train_calibrated(train: Callable, utterances: Sequence, *, config: CalibrationConfig = CalibrationConfig(),
-                     quiet: bool = True, report: Callable[[str], None] | None = None, fallback=None):
+                     quiet: bool = True, report: Callable[[str], None] | None = None, fallback=None,
+                     jobs: int = 1):
     """Train with ``train(utterances) -> (model, summary)`` and store a fitted calibration.
 
     ``config.refit`` should be decided (:meth:`CalibrationConfig.decided`; None counts as
     False). Returns what the last
     call of ``train`` returned, its model carrying the calibration (or none, with a warning,
     when there was too little to fit on) and ``info["calibration"]`` describing the fit.
-    The held-out recordings come from :func:`held_out_parts`; with folds, ``train`` runs
+    The held-out recordings are ``train.speakers_apart(utterances)`` when ``train`` has
+    that and it gives a split, else they come from :func:`held_out_parts`; with folds, ``train`` runs
     once per fold and the calibration is fitted on every fold's examples.
+
+    ``jobs``: threads recognising the held-out recordings (the same calibration for any number).
 
     ``fallback``: the starting model's calibration (a starter's, fitted on many voices), kept
     instead when the held-out recordings are too few to fit one (said through ``report``,
@@ -702,7 +745,12 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     """
     say = report or (lambda line: None)
     utterances = list(utterances)
-    parts, how = held_out_parts(utterances, config)
+    apart = getattr(train, "speakers_apart", None)
+    apart = apart(utterances) if apart is not None else None
+    if apart is not None:
+        parts, how = [apart], "whole speakers"
+    else:
+        parts, how = held_out_parts(utterances, config)
     if not parts:
         why = (f"{len(utterances)} recordings are fewer than the {config.min_items} needed to hold out "
                "enough to fit one for your voice")
@@ -724,15 +772,20 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         if how == "folds":
             say(f"confidence calibration: fold {f + 1} of {len(parts)}: training on {len(rest)} recordings, "
                 f"{len(held)} held out (too few recordings to hold out a share once)")
+        elif how == "whole speakers":
+            say(f"confidence calibration: training on {len(rest)} recordings, {len({u.speaker for u in held})} "
+                f"speakers' {len(held)} recordings held out, as voices it has not heard")
         else:
             say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out"
                 + (" across the whole set (transcripts rarely repeat)" if how == "across the set" else ""))
         model, summary = _trained(train, rest, held)
+        if how == "whole speakers":
+            held = recognised_share(held, len(utterances), config)
         examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,
                                              speeds=config.speeds, backwards=config.backwards, jumbled=jumbled,
                                              seed=config.seed + f, noisy=config.noisy,
                                              noise_snr_db=config.noise_snr_db, phrases=phrases,
-                                             noise_clips=noise_clips))
+                                             noise_clips=noise_clips, jobs=jobs))
     examples = _merged(examples)
     calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))
     n_right = int(examples.right.sum())
@@ -758,6 +811,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                     info={**model.info, "calibration": {
                         "held_out_share": config.held_out_share, "seed": config.seed,
                         "held_out": how, "folds": len(parts),
+                        **({"held_out_speakers": len({u.speaker for _, h in parts for u in h})}
+                           if how == "whole speakers" else {}),
                         "held_out_recordings": examples.recordings, "right_words": n_right,
                         "wrong_words": int(examples.right.size - n_right),
                         "wrong_with_own_words_removed": n_removed,
@@ -786,6 +841,7 @@ def calibration_note(model) -> str:
         return "word confidences: the calibration the model already carried"
     words = int(info.get("right_words", 0)) + int(info.get("wrong_words", 0))
     how = {"per transcript": "", "across the set": ", chosen across the whole set",
+           "whole speakers": f", of {info.get('held_out_speakers')} speakers held out whole",
            "folds": f", each held out once in {info.get('folds')} folds"}.get(info.get("held_out", ""), "")
     return (f"word confidences: calibrated on your own recordings, {words} words heard in "
             f"{info.get('held_out_recordings')} held-out recordings{how}")

@@ -6,8 +6,11 @@ transcript and chain, whose audio is the recording plus babble or steady noise (
 recording's speech part (estimated with :func:`wordspot.audio.augment.speech_span`).
 
 Reproducible for any number of processes: each copy's recipe (kind, SNR, babble talkers,
-noise seed) is drawn in the calling process from ``(seed, recording number, copy
-number)``, and the work is split into fixed chunks whose results come back in order.
+noise seed) is drawn in the calling process from ``(seed, recording key, copy number)``,
+and the work is split into fixed chunks whose results come back in order. The key is the
+recording's number in the list unless the caller hands in keys of its own
+(:func:`recording_key`: the same recipe for a recording in any list, so a caller can make
+a recording's copies once and reuse them for several sets).
 
 Babble talkers come from a pool: the speech parts of up to :data:`POOL_PER_SPEAKER`
 recordings of every speaker, one stream per speaker. A copy's babble uses the streams of
@@ -18,6 +21,7 @@ hears itself in its babble.
 
 from __future__ import annotations
 
+import zlib
 from dataclasses import dataclass
 
 import numpy as np
@@ -30,7 +34,7 @@ from wordspot.training.cluster import using
 from wordspot.training.items import CHUNK_SIZE, TrainingItem
 
 __all__ = ["POOL_PER_SPEAKER", "CopyRecipe", "babble_pool", "babble_streams", "plan_copies", "noisy_wave",
-           "noisy_items"]
+           "noisy_items", "recording_key"]
 
 #: Recordings per speaker whose speech parts make up that speaker's babble stream.
 POOL_PER_SPEAKER = 12
@@ -75,13 +79,23 @@ def babble_pool(paths, speakers, *, seed: int, sample_rate: int) -> dict:
     return pool
 
 
-def plan_copies(speakers, noise: NoiseSettings, *, seed: int) -> list[CopyRecipe]:
-    """Recipes of every noisy copy, copy-major (all first copies, then all second ones)."""
+def recording_key(path, words) -> int:
+    """A number for a recording that depends on its path and transcript alone (CRC-32 of both)."""
+    return zlib.crc32(f"{path}\n{' '.join(words)}".encode("utf-8"))
+
+
+def plan_copies(speakers, noise: NoiseSettings, *, seed: int, keys=None) -> list[CopyRecipe]:
+    """Recipes of every noisy copy, copy-major (all first copies, then all second ones).
+
+    ``keys`` (whole numbers >= 0, one per recording; default the recording numbers) seed
+    each recording's recipes, so a recording with the same key gets the same recipe in
+    any list of the same speakers (babble talkers are drawn from the list's speakers)."""
     names = sorted(set(speakers))
+    keys = range(len(speakers)) if keys is None else [int(k) for k in keys]
     plans = []
     for c in range(noise.copies):
-        for k, spk in enumerate(speakers):
-            rng = np.random.default_rng([seed, _STREAM, k, c])
+        for k, (key, spk) in enumerate(zip(keys, speakers)):
+            rng = np.random.default_rng([seed, _STREAM, key, c])
             kind = noise.kinds[int(rng.integers(len(noise.kinds)))]
             snr = float(rng.uniform(*noise.snr_db))
             talkers: tuple = ()
@@ -140,7 +154,7 @@ def _chunk_task(recipes, paths, pool, settings):
 
 
 def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, settings: FeatureSettings, *,
-                seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None) -> list[TrainingItem]:
+                seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None, keys=None) -> list[TrainingItem]:
     """Noisy copies of prepared training items.
 
     Parameters
@@ -156,6 +170,9 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     jobs : int >= 1
     executor : wordspot.training.cluster.Executor, optional
         Where the work runs (default: one for ``jobs`` local processes).
+    keys : sequence of int, optional
+        Per item, the number that seeds its recipes (:func:`plan_copies`); default the
+        item's place in ``items``.
 
     Returns
     -------
@@ -168,7 +185,7 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     paths = [it.path for it in items]
     pool = babble_pool(paths, speakers, seed=seed, sample_rate=settings.sample_rate) \
         if "babble" in noise.kinds else {}
-    plans = plan_copies(speakers, noise, seed=seed)
+    plans = plan_copies(speakers, noise, seed=seed, keys=keys)
     chunks = [plans[i:i + CHUNK_SIZE] for i in range(0, len(plans), CHUNK_SIZE)]
     bar = ProgressBar(len(plans), "noisy copies", quiet=quiet)
     feats = []
