@@ -111,8 +111,8 @@ class DecoderSettings:
         command 23.9% -> 12.1% of files, real phrases WER 8.8% -> 9.7%.
     """
 
-    beam: float = 800.0
-    word_end_beam: float = 600.0
+    beam: float = 250.0
+    word_end_beam: float = 200.0
     state_limit: int = 2000
     grammar_weight: float = 3.0
     insertion_penalty: float = -60.0
