@@ -79,13 +79,16 @@ def background_count(n_recordings: int, share: float) -> int:
 
 
 def plan_backgrounds(count: int, speakers, *, seed: int, levels=(-70.0, -30.0), seconds=(1.0, 3.0),
-                     kinds=BACKGROUND_KINDS) -> list[BackgroundRecipe]:
+                     kinds=None) -> list[BackgroundRecipe]:
     """Recipes of ``count`` background items, from ``seed`` alone.
 
+    ``kinds``: the kinds drawn, each with equal chance (default :data:`BACKGROUND_KINDS`,
+    read when called).
     ``speakers``: the names babble may draw its 3-6 talkers from (with repeats when there
     are fewer).
     """
     names = sorted({str(s) for s in speakers})
+    kinds = BACKGROUND_KINDS if kinds is None else tuple(kinds)
     plans = []
     for k in range(count):
         rng = np.random.default_rng([seed, _STREAM, k])
