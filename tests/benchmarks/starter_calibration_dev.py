@@ -18,6 +18,12 @@ figures are not on unseen material (the variants share that bias; compare them w
 other, not with the adapted model's).
 
     python tests/benchmarks/starter_calibration_dev.py [--seeds 0 1 2] [--rate 16000]
+
+``--no-command`` compares instead clips of impacts (``--impacts`` per vocabulary) and more
+one-word recordings of other words (``--more-words``) among the wrong examples, and adds the
+dev sets "everyday words" and "impacts" (``dev_no_command.py``)::
+
+    python tests/benchmarks/starter_calibration_dev.py --no-command --seeds 0 1 2
 """
 
 from __future__ import annotations

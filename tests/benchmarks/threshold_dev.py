@@ -356,7 +356,8 @@ def run_variants(args) -> int:
             (rest, held), = held_out_parts(utterances, config)[0]
             # the adaptation's background items and the calibration's noise clips read the kinds when called
             backgrounds.BACKGROUND_KINDS = tuple(args.background_kinds) if args.background_kinds else default_kinds
-            fit = adapting(start, lexicon, config=AdaptationConfig(), manifest=manifest)
+            share = {} if args.background_share is None else {"background_share": args.background_share}
+            fit = adapting(start, lexicon, config=AdaptationConfig(**share), manifest=manifest)
             model, _ = fit(rest, held_out=held)
             backgrounds.BACKGROUND_KINDS = tuple(args.clip_kinds) if args.clip_kinds else default_kinds
             ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
@@ -386,7 +387,8 @@ def run_variants(args) -> int:
             print(f"seed {seed}: {ex.right.size} calibration words ({int(ex.right.sum())} right); cpu "
                   f"{t1 - t0:.0f} s adapting and examples, {t2 - t1:.0f} s dev sets, "
                   f"{time.process_time() - t2:.0f} s variants", file=sys.stderr, flush=True)
-    print(f"background items: {', '.join(args.background_kinds or default_kinds)}; calibration noise clips: "
+    print(f"background items (share {args.background_share or 'default'}): "
+          f"{', '.join(args.background_kinds or default_kinds)}; calibration noise clips: "
           f"{', '.join(args.clip_kinds or default_kinds)}, babble")
     print(f"filler {fp:g}; calibration examples: {args.noisy} noisy copies ({args.snr[0]:g}-{args.snr[1]:g} dB), "
           f"{args.phrases} phrases, {args.noise_clips} noise clips; seeds {args.seeds}: mean (min-max)\n")
@@ -419,6 +421,8 @@ def main(argv=None) -> int:
                     help="with --variants: also the dev sets 'everyday words' and 'impacts' (dev_no_command.py)")
     ap.add_argument("--background-kinds", nargs="+", default=None,
                     help="with --variants: the kinds of the adaptation's background items (default: the package's)")
+    ap.add_argument("--background-share", type=float, default=None,
+                    help="with --variants: the adaptation's background share (default: its default)")
     ap.add_argument("--clip-kinds", nargs="+", default=None,
                     help="with --variants: the kinds of the calibration's noise clips, babble added "
                          "(default: the package's background kinds)")
