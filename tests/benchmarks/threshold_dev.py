@@ -363,6 +363,7 @@ def run_variants(args) -> int:
             ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
                                       seed=seed, noisy=args.noisy, noise_snr_db=tuple(args.snr), phrases=args.phrases,
                                       noise_clips=args.noise_clips)
+            backgrounds.BACKGROUND_KINDS = default_kinds  # the dev sets' noise-only clips: always the package's kinds
             t1 = time.process_time()
             if sets is None:
                 sets = dev_sets(model, args.joined, snrs=(20.0, 10.0), no_command=args.no_command_sets)
