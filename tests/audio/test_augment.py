@@ -124,7 +124,7 @@ def test_noise_settings_reject_bad_values(kwargs, message):
         NoiseSettings(**kwargs)
 
 
-@pytest.mark.parametrize("kind", ["white", "pink", "hum", "fan", "babble"])
+@pytest.mark.parametrize("kind", ["white", "pink", "hum", "fan", "babble", "impacts"])
 @pytest.mark.parametrize("dbfs", [-70.0, -45.0, -30.0])
 def test_background_level_is_the_requested_dbfs(rng, kind, dbfs):
     # dBFS of float audio: 20 log10(RMS), full scale 1 (common practice), computed here by hand

@@ -18,6 +18,12 @@ figures are not on unseen material (the variants share that bias; compare them w
 other, not with the adapted model's).
 
     python tests/benchmarks/starter_calibration_dev.py [--seeds 0 1 2] [--rate 16000]
+
+``--no-command`` compares instead clips of impacts (``--impacts`` per vocabulary) and more
+one-word recordings of other words (``--more-words``) among the wrong examples, and adds the
+dev sets "everyday words" and "impacts" (``dev_no_command.py``)::
+
+    python tests/benchmarks/starter_calibration_dev.py --no-command --seeds 0 1 2
 """
 
 from __future__ import annotations
@@ -45,6 +51,14 @@ VARIANTS = {
     "+ noisy + phrases": BASE + NOISY[:1] + PHRASE[:1],
 }
 
+#: With ``--no-command``: impacts and more one-word recordings of other words (no noisy copies or phrases).
+NO_COMMAND_VARIANTS = {
+    "as shipped (before)": BASE,
+    "+ impacts": BASE + ("impacts",),
+    "+ more words alone": BASE + ("other word alone",),
+    "+ impacts + more words alone": BASE + ("impacts", "other word alone"),
+}
+
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
@@ -53,7 +67,14 @@ def main(argv=None) -> int:
     ap.add_argument("--phrases", type=int, default=20, help="joined phrases per vocabulary")
     ap.add_argument("--joined", type=int, default=100)
     ap.add_argument("--show", type=float, nargs="+", default=[0.0, 0.02, 0.05, 0.1, 0.2])
+    ap.add_argument("--no-command", action="store_true",
+                    help="compare impacts and more words alone in the calibration (--impacts, --more-words; no "
+                         "noisy copies or phrases), with the dev sets 'everyday words' and 'impacts' too")
+    ap.add_argument("--impacts", type=int, default=8, help="with --no-command: impact clips per vocabulary")
+    ap.add_argument("--more-words", type=int, default=20,
+                    help="with --no-command: more one-word recordings of other words per vocabulary")
     args = ap.parse_args(argv)
+    variants = NO_COMMAND_VARIANTS if args.no_command else VARIANTS
 
     from wordspot.corpus import read_manifest
     from wordspot.decoding.decoder import DecoderSettings
@@ -68,14 +89,15 @@ def main(argv=None) -> int:
     dev = read_manifest(REPO / "recordings" / "starter" / "dev.csv")
     settings = DecoderSettings(min_confidence=0.0)
     t0 = time.process_time()
-    sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0))
+    sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0), no_command=args.no_command)
     heard = decode_sets(bakery, sets, settings)
     print(f"dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
           + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
-    tables = VariantTables(VARIANTS)
+    tables = VariantTables(variants)
     for seed in args.seeds:
         t0 = time.process_time()
-        config = StarterCalibrationConfig(seed=seed, noisy=args.noisy, phrases=args.phrases)
+        config = (StarterCalibrationConfig(seed=seed, impacts=args.impacts, more_words=args.more_words)
+                  if args.no_command else StarterCalibrationConfig(seed=seed, noisy=args.noisy, phrases=args.phrases))
         ex = starter_calibration_examples(model, dev, config)
         finite = np.isfinite(ex.measures).all(axis=1)
         if not finite.all():  # say where, and leave those words out of every variant
@@ -85,7 +107,7 @@ def main(argv=None) -> int:
             ex = ex.subset(finite)
         fit_config = CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty)
         tables.new_seed()
-        for v, kinds in VARIANTS.items():
+        for v, kinds in variants.items():
             sub = ex.subset(np.isin(ex.source, kinds))
             tables.add(v, heard, fit_calibration(sub, config=fit_config), sub)
         print(f"seed {seed}: {ex.right.size} words ({int(ex.right.sum())} right), cpu "

@@ -41,7 +41,7 @@ HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 sys.path.insert(0, str(HERE))
 
-from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
+from tune_filler import NO_COMMAND, dev_sets, write_dev_train_manifest  # noqa: E402
 
 THRESHOLDS = (0.0, 0.002, 0.005, 0.01, 0.015, 0.02, 0.03, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.7)
 
@@ -93,6 +93,29 @@ def fa_at_miss(commands, non_commands, most: float = 0.05) -> float:
         if m / n_ref <= most:
             best = min(best, float(np.mean([bool((c >= t).any()) for _, c in non_commands])))
     return best
+
+
+def threshold_at_miss(commands, most: float) -> float:
+    """The highest threshold (of the confidences' quantiles) that misses at most ``most``
+    of the command words (0 when none does)."""
+    from wordspot.evaluation.scoring import align_words
+
+    every = np.concatenate([c for _, _, c in commands] + [np.zeros(1)])
+    n_ref = sum(len(ref) for ref, _, _ in commands)
+    best = 0.0
+    for t in np.unique(np.r_[0.0, np.quantile(every, np.linspace(0, 1, 400))]):
+        m = 0
+        for ref, words, conf in commands:
+            a = align_words(ref, [w for w, c in zip(words, conf) if c >= t])
+            m += a.substitutions + a.deletions
+        if m / n_ref <= most:
+            best = max(best, float(t))
+    return best
+
+
+def firing(items, t: float) -> float:
+    """Percent of ``(ref, words, confidences)`` no-command files with a word at ``t`` or above."""
+    return 100 * float(np.mean([bool((c >= t).any()) for _, _, c in items])) if items else float("nan")
 
 
 def variant_rows(scored, thresholds):
@@ -148,6 +171,7 @@ class VariantTables:
         self.same_t = {v: [] for v in variants}
         self.sums = {(v, t): [] for v in variants for t in THRESHOLDS}
         self.kinds = {v: [] for v in variants}
+        self.firing = {v: [] for v in variants}  # no-command files with a command by set, at 5% and 20% miss
         self.names = None
         self.target = None
 
@@ -186,7 +210,13 @@ class VariantTables:
         self.same_t[v].append(t_same)
         commands = scored["words"]
         everywhere = [x for name in ("words", "real phrases", "noisy 20 dB", "noisy 10 dB") for x in scored.get(name, [])]
-        non_commands = [(w, c) for name in ("other talk", "noise only") for _, w, c in scored[name]]
+        non_commands = [(w, c) for name in NO_COMMAND for _, w, c in scored.get(name, [])]
+        row = []
+        for most in (0.05, 0.2):
+            t = threshold_at_miss(commands, most)
+            row += [firing([x for name in NO_COMMAND for x in scored.get(name, [])], t)]
+            row += [firing(scored.get(name, []), t) for name in NO_COMMAND]
+        self.firing[v].append(row)
         sums = []
         for t in THRESHOLDS:
             ten = 100 * np.mean([[w for w, c in zip(hyp, conf) if c >= t] != ref
@@ -204,6 +234,18 @@ class VariantTables:
         def cell(a, j):
             return f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
 
+        sets = [n for n in NO_COMMAND if n in names]
+        print("no-command files with a command at the highest threshold missing at most 5% / 20% of the dev "
+              "commands (every no-command set, then by set)\n")
+        heads = [f"{what} at {m}" for m in ("5%", "20%") for what in ["all"] + sets]
+        print("| variant | " + " | ".join(heads) + " |")
+        print("| --- |" + " ---: |" * len(heads))
+        for v, rows in self.firing.items():
+            a = np.array(rows, dtype=float)
+            keep = [j for j, n in enumerate(["all"] + list(NO_COMMAND)) if n == "all" or n in names]
+            keep = keep + [j + 1 + len(NO_COMMAND) for j in keep]
+            print(f"| {v} | " + " | ".join(cell(a, j) for j in keep) + " |")
+        print()
         print("| variant | EER | EER, commands of every set | no-command files with a command at <= 5% miss | "
               "lowest-sum threshold | its sum | right / wrong examples |")
         print("| --- | ---: | ---: | ---: | ---: | ---: | ---: |")
@@ -284,7 +326,10 @@ def run_variants(args) -> int:
     from wordspot.starters import starter_path
     from wordspot.training.adapt import AdaptationConfig, adapting
 
+    import wordspot.training.backgrounds as backgrounds
+
     variants = VARIANTS if args.variants == ["all"] else {k: VARIANTS[k] for k in args.variants}
+    default_kinds = backgrounds.BACKGROUND_KINDS
     fp = args.filler_penalty[0]
     settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
     lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
@@ -309,14 +354,19 @@ def run_variants(args) -> int:
                     tables.add(v, heard, fit_calibration(sub, config=config), sub)
                 continue
             (rest, held), = held_out_parts(utterances, config)[0]
-            fit = adapting(start, lexicon, config=AdaptationConfig(), manifest=manifest)
+            # the adaptation's background items and the calibration's noise clips read the kinds when called
+            backgrounds.BACKGROUND_KINDS = tuple(args.background_kinds) if args.background_kinds else default_kinds
+            share = {} if args.background_share is None else {"background_share": args.background_share}
+            fit = adapting(start, lexicon, config=AdaptationConfig(**share), manifest=manifest)
             model, _ = fit(rest, held_out=held)
+            backgrounds.BACKGROUND_KINDS = tuple(args.clip_kinds) if args.clip_kinds else default_kinds
             ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
                                       seed=seed, noisy=args.noisy, noise_snr_db=tuple(args.snr), phrases=args.phrases,
                                       noise_clips=args.noise_clips)
+            backgrounds.BACKGROUND_KINDS = default_kinds  # the dev sets' noise-only clips: always the package's kinds
             t1 = time.process_time()
             if sets is None:
-                sets = dev_sets(model, args.joined, snrs=(20.0, 10.0))
+                sets = dev_sets(model, args.joined, snrs=(20.0, 10.0), no_command=args.no_command_sets)
                 if args.other_talk_every > 1:
                     sets["other talk"] = sets["other talk"][::args.other_talk_every]
                 print("dev sets: " + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr)
@@ -338,6 +388,9 @@ def run_variants(args) -> int:
             print(f"seed {seed}: {ex.right.size} calibration words ({int(ex.right.sum())} right); cpu "
                   f"{t1 - t0:.0f} s adapting and examples, {t2 - t1:.0f} s dev sets, "
                   f"{time.process_time() - t2:.0f} s variants", file=sys.stderr, flush=True)
+    print(f"background items (share {args.background_share or 'default'}): "
+          f"{', '.join(args.background_kinds or default_kinds)}; calibration noise clips: "
+          f"{', '.join(args.clip_kinds or default_kinds)}, babble")
     print(f"filler {fp:g}; calibration examples: {args.noisy} noisy copies ({args.snr[0]:g}-{args.snr[1]:g} dB), "
           f"{args.phrases} phrases, {args.noise_clips} noise clips; seeds {args.seeds}: mean (min-max)\n")
     tables.print(args.show)
@@ -365,6 +418,15 @@ def main(argv=None) -> int:
     ap.add_argument("--joined", type=int, default=100, help="with --variants: joined dev files and phrase stand-ins")
     ap.add_argument("--other-talk-every", type=int, default=1,
                     help="with --variants: keep every N-th other-talk file (time)")
+    ap.add_argument("--no-command-sets", action="store_true",
+                    help="with --variants: also the dev sets 'everyday words' and 'impacts' (dev_no_command.py)")
+    ap.add_argument("--background-kinds", nargs="+", default=None,
+                    help="with --variants: the kinds of the adaptation's background items (default: the package's)")
+    ap.add_argument("--background-share", type=float, default=None,
+                    help="with --variants: the adaptation's background share (default: its default)")
+    ap.add_argument("--clip-kinds", nargs="+", default=None,
+                    help="with --variants: the kinds of the calibration's noise clips, babble added "
+                         "(default: the package's background kinds)")
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
                     help="with --variants: thresholds shown in the tables")
     ap.add_argument("--save", type=Path, default=None,

@@ -97,3 +97,25 @@ def test_noisy_copies_and_phrases_add_words_and_leave_the_others_as_they_were(st
 def test_bad_noisy_and_phrase_settings_are_refused(field, value, match):
     with pytest.raises(TrainingError, match=match):
         StarterCalibrationConfig(**{field: value})
+
+
+def test_impacts_and_more_words_alone_add_wrong_words_and_leave_the_others_as_they_were(starter_and_takes):
+    # Our own labelling rule: every word heard in a clip of impacts or in a one-word recording
+    # of a word outside the vocabulary is wrong; the examples of the other kinds stay as they were.
+    model, utts = starter_and_takes
+    config = StarterCalibrationConfig(vocabularies=2, words=(3, 4), other_talk=0, other_words=2, jumbled=1,
+                                      noise=1, speeds=(1.0,))
+    plain = starter_calibration_examples(model, utts, config)
+    more = starter_calibration_examples(model, utts, replace(config, impacts=4, more_words=8))
+    old = ~np.isin(more.source, ("impacts", "other word alone"))
+    np.testing.assert_array_equal(more.measures[old], plain.measures)
+    np.testing.assert_array_equal(more.right[old], plain.right)
+    new = ~old
+    assert (more.source == "other word alone").sum() >= 4  # 16 recordings of other words: most give a word
+    assert not more.right[new].any() and more.own_words_removed[new].all()
+    again = starter_calibration_examples(model, utts, replace(config, impacts=4, more_words=8))
+    np.testing.assert_array_equal(again.measures, more.measures)
+    with pytest.raises(TrainingError, match="impacts must be a whole number"):
+        StarterCalibrationConfig(impacts=-2)
+    with pytest.raises(TrainingError, match="more_words must be a whole number"):
+        StarterCalibrationConfig(more_words=1.5)

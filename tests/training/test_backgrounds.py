@@ -123,3 +123,19 @@ def test_adaptation_statistics_see_them_in_the_pause(tiny):
     pause_mixtures = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
     pause_mixtures = pause_mixtures[pause_mixtures >= 0]
     assert not np.array_equal(more.mixtures.means[pause_mixtures], plain.mixtures.means[pause_mixtures])
+
+
+def test_kinds_are_the_ones_asked_for_and_impacts_have_their_level(rng, monkeypatch):
+    # our own rule: the kinds given are the only ones drawn; without them the module's
+    # BACKGROUND_KINDS as it is when called
+    import wordspot.training.backgrounds as backgrounds
+
+    only = plan_backgrounds(50, "ab", seed=2, kinds=("impacts", "hum"))
+    assert {p.kind for p in only} == {"impacts", "hum"}
+    monkeypatch.setattr(backgrounds, "BACKGROUND_KINDS", ("impacts",))
+    assert {p.kind for p in plan_backgrounds(20, "ab", seed=2)} == {"impacts"}
+    for recipe in only[:10]:
+        x = background_wave(recipe, {}, RATE)
+        # uncorrelated signals add in power (textbook arithmetic)
+        expected = 10 * np.log10(10 ** (recipe.dbfs / 10) + 10 ** (recipe.floor_dbfs / 10))
+        assert rms_dbfs(x) == pytest.approx(expected, abs=0.5)

@@ -17,7 +17,8 @@ needed.
   square wave, i.e. 0 dBFS is RMS 1; common practice for float audio in [-1, 1]): white
   noise, pink noise (power falling as 1/f, -3 dB per octave), mains hum (odd and even
   harmonics falling as 1/h), and digital silence with dither of one least significant
-  bit of 16-bit audio (samples -1, 0 or +1 times 2^-15).
+  bit of 16-bit audio (samples -1, 0 or +1 times 2^-15), and impacts (knocks, clinks,
+  taps and scrapes at random times; :mod:`wordspot.audio.impacts`).
 """
 
 from __future__ import annotations
@@ -28,6 +29,7 @@ import numpy as np
 import scipy.fft
 from scipy import signal
 
+from wordspot.audio.impacts import impact_noise
 from wordspot.errors import AugmentError
 
 __all__ = [
@@ -333,7 +335,8 @@ def background(kind: str, length: int, dbfs: float, rng: np.random.Generator, *,
     """``length`` samples of one background at ``dbfs`` RMS.
 
     ``kind``: "white", "pink", "hum" (``mains`` Hz), "fan" (:func:`steady_noise`),
-    "babble" (of ``streams``, see :func:`babble`) or "dither" (:func:`dithered_silence`,
+    "babble" (of ``streams``, see :func:`babble`), "impacts" (knocks, clinks, taps, scrapes:
+    :func:`wordspot.audio.impacts.impact_noise`) or "dither" (:func:`dithered_silence`,
     whose level is fixed by its one LSB, so ``dbfs`` is ignored).
     """
     if kind == "dither":
@@ -348,6 +351,8 @@ def background(kind: str, length: int, dbfs: float, rng: np.random.Generator, *,
         x = steady_noise(length, rng, sample_rate=sample_rate)
     elif kind == "babble":
         x = babble(streams, length, rng)
+    elif kind == "impacts":
+        x = impact_noise(length, rng, sample_rate=sample_rate)
     else:
-        raise AugmentError(f"unknown background kind {kind!r}: use white, pink, hum, fan, babble or dither")
+        raise AugmentError(f"unknown background kind {kind!r}: use white, pink, hum, fan, babble, impacts or dither")
     return at_dbfs(x, dbfs)

@@ -78,9 +78,11 @@ DEFAULT_JUMBLED = 150
 
 #: Where a calibration word was heard (``CalibrationExamples.source``): the held-out
 #: recordings with the whole lexicon and with their own words removed, played backwards,
-#: jumbled, their noisy copies, phrases joined from them, background-only clips.
+#: jumbled, their noisy copies, phrases joined from them, background-only clips; a
+#: starter's calibration also clips of impacts and more one-word recordings of other words.
 SOURCES = ("held-out", "held-out, own words removed", "backwards", "jumbled", "noisy",
-           "noisy, own words removed", "phrase", "phrase, own words removed", "noise only")
+           "noisy, own words removed", "phrase", "phrase, own words removed", "noise only", "impacts",
+           "other word alone")
 
 #: Separate the random streams of the calibration's noisy copies, phrases and noise clips.
 _NOISY_STREAM = 0x6E6F6973

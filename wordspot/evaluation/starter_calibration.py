@@ -16,8 +16,10 @@ user's words, so it is fitted over many small vocabularies drawn from the corpus
    (d) background-only clips (noise, hum, babble of the corpus's voices;
    :func:`wordspot.training.backgrounds.background_wave`): all wrong; optionally (e) noisy
    copies of the command recordings (:func:`calibrate.noisy_copies`), labelled as in (a),
-   and (f) phrases of 2-3 command recordings of one voice (:func:`calibrate.joined_phrases`),
-   labelled as in (a);
+   (f) phrases of 2-3 command recordings of one voice (:func:`calibrate.joined_phrases`),
+   labelled as in (a), (g) clips of impacts (knocks, clinks, taps, scrapes;
+   :mod:`wordspot.audio.impacts`) over a faint floor, all wrong, and (h) more one-word
+   recordings of other words, all wrong;
 3. fit the logistic regression on the measures :func:`calibrate.calibration_measures`
    chooses (the posterior measures too when the model has a state scorer).
 
@@ -74,6 +76,12 @@ class StarterCalibrationConfig:
     phrases : int
         Phrases of 2-3 command recordings of one voice joined with short pauses, per
         vocabulary, each played at one of ``speeds``. 0: none.
+    impacts : int
+        Clips of 1-4 s of impacts at -60 to -20 dBFS over a faint floor, per vocabulary
+        (source "impacts"). 0: none.
+    more_words : int
+        One-word recordings of other words per vocabulary beyond ``other_words``, drawn
+        apart so that every other example stays as it was (source "other word alone"). 0: none.
     seed : int
     settings : DecoderSettings
         How the recordings are recognised (no threshold in any case).
@@ -91,12 +99,15 @@ class StarterCalibrationConfig:
     noisy: int = 0
     noise_snr_db: tuple[float, float] = (5.0, 25.0)
     phrases: int = 0
+    impacts: int = 0
+    more_words: int = 0
     seed: int = 0
     settings: DecoderSettings = DecoderSettings(min_confidence=0.0)
     penalty: float = CalibrationConfig.penalty
 
     def __post_init__(self) -> None:
-        for name in ("vocabularies", "other_talk", "other_words", "jumbled", "noise", "noisy", "phrases"):
+        for name in ("vocabularies", "other_talk", "other_words", "jumbled", "noise", "noisy", "phrases", "impacts",
+                     "more_words"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < (1 if name == "vocabularies" else 0):
                 raise TrainingError(f"starter calibration: {name} must be a whole number >= "
@@ -215,6 +226,21 @@ def starter_calibration_examples(model, utterances: Sequence,
                                         seed=int(extra.integers(2**31)), sample_rate=rate):
                 segs = heard(w)
                 add(segs, word_hits(ws, [s.word for s in segs]), where="phrase")
+        if config.impacts:
+            for r in plan_backgrounds(config.impacts, [], seed=int(extra.integers(2**31)), seconds=(1.0, 4.0),
+                                      levels=(-60.0, -20.0), kinds=("impacts",)):
+                segs = heard(background_wave(r, {}, rate))
+                add(segs, [False] * len(segs), all_wrong=True, where="impacts")
+        if config.more_words:
+            taken = {str(u.path) for u in others}
+            spare = [u for u in words if str(u.path) not in taken]
+            for i in extra.permutation(len(spare))[:config.more_words]:
+                w = wave(spare[i])
+                if w is None:
+                    failed.add(str(spare[i].path))
+                    continue
+                segs = heard(w)
+                add(segs, [False] * len(segs), all_wrong=True, where="other word alone")
         clips = []
         if config.jumbled:
             speaker = sorted({str(u.speaker) for u in commands})

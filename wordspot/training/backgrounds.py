@@ -7,7 +7,11 @@ over a faint room-tone floor, each with an empty transcript (one ``quiet`` chain
 command here" recording), teach it the rest. Babble can be asked for (``kinds``) but is not
 among the defaults: a pause that has learnt speech takes speech in babble for pause (on the
 dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands
-in noise at 10 dB alike; see docs/experiments/2026-12-02-background-items.md).
+in noise at 10 dB alike; see docs/experiments/2026-12-02-background-items.md). Impacts
+(knocks, clinks, taps, scrapes; :mod:`wordspot.audio.impacts`) can be asked for too; as
+one kind in six they changed nothing on dev, as half of the items at share 0.25 they cut
+the dev impact clips with a command at the default threshold from 23% to 14%: a candidate,
+not yet a default (docs/experiments/2026-12-03-no-command-noise-and-words.md).
 
 Reproducible for any number of processes: the recipes (kind, length, level, mains
 frequency, floor, babble talkers, noise seed) are drawn up front from the training seed
@@ -79,13 +83,16 @@ def background_count(n_recordings: int, share: float) -> int:
 
 
 def plan_backgrounds(count: int, speakers, *, seed: int, levels=(-70.0, -30.0), seconds=(1.0, 3.0),
-                     kinds=BACKGROUND_KINDS) -> list[BackgroundRecipe]:
+                     kinds=None) -> list[BackgroundRecipe]:
     """Recipes of ``count`` background items, from ``seed`` alone.
 
+    ``kinds``: the kinds drawn, each with equal chance (default :data:`BACKGROUND_KINDS`,
+    read when called).
     ``speakers``: the names babble may draw its 3-6 talkers from (with repeats when there
     are fewer).
     """
     names = sorted({str(s) for s in speakers})
+    kinds = BACKGROUND_KINDS if kinds is None else tuple(kinds)
     plans = []
     for k in range(count):
         rng = np.random.default_rng([seed, _STREAM, k])
