@@ -36,8 +36,8 @@ HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 sys.path.insert(0, str(HERE))
 
-from talk_gap_dev import among_talk, other_sentences  # noqa: E402
-from tune_filler import NO_COMMAND, dev_sets, write_dev_train_manifest  # noqa: E402
+from talk_gap_dev import dev_sets_with_talk  # noqa: E402
+from tune_filler import NO_COMMAND, write_dev_train_manifest  # noqa: E402
 
 #: (beam, word-end beam, state limit); the first is the default, inf = no pruning
 SETTINGS = ((800.0, 600.0, 2000), (400.0, 300.0, 2000), (300.0, 250.0, 2000), (250.0, 200.0, 2000),
@@ -74,10 +74,7 @@ def main(argv=None) -> int:
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
                               calibration=CalibrationConfig(seed=seed))
             if sets is None:
-                sets = dev_sets(model, args.joined)
-                for name, extra in (("among talk", among_talk(model)), ("other sentences", other_sentences(model))):
-                    if extra:
-                        sets[name] = extra
+                sets = dev_sets_with_talk(model, args.joined)
             recs = [build_recognizer(model, settings=DecoderSettings(beam=b, word_end_beam=w, state_limit=int(k)))
                     for b, w, k in settings]
             scored = {name: [(ref, recs[0].emissions_and_posteriors(compute_features(wave, model.features)))

@@ -90,6 +90,17 @@ def other_sentences(model):
     return [(load_audio(start_dev.parent / r["path"], sample_rate=RATE), []) for r in rows]
 
 
+def dev_sets_with_talk(model, n_joined: int) -> dict:
+    """``tune_filler.dev_sets`` plus "among talk" and "other sentences" (where the starter
+    corpus is there): the sentences of "other talk" alone, since a word said alone is never
+    inside talk."""
+    sets = dev_sets(model, n_joined)
+    for name, extra in (("among talk", among_talk(model)), ("other sentences", other_sentences(model))):
+        if extra:
+            sets[name] = extra
+    return sets
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
@@ -113,13 +124,7 @@ def main(argv=None) -> int:
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
                               calibration=CalibrationConfig(seed=seed))
             if sets is None:
-                sets = dev_sets(model, args.joined)
-                extra = among_talk(model)
-                if extra:
-                    sets["among talk"] = extra
-                sentences = other_sentences(model)
-                if sentences:  # the sentences of "other talk" alone (a word said alone is never inside talk)
-                    sets["other sentences"] = sentences
+                sets = dev_sets_with_talk(model, args.joined)
             rec = build_recognizer(model, settings=settings)
             heard = {}
             for name, items in sets.items():

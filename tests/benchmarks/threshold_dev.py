@@ -77,20 +77,29 @@ def matched(scored, target: float):
 WER_SETS = ("words", "phrases", "real phrases", "noisy 20 dB", "noisy 10 dB")
 
 
+def _candidates(confidences) -> np.ndarray:
+    """Thresholds to try: 0 and 400 quantiles of the confidences."""
+    every = np.concatenate(list(confidences) + [np.zeros(1)])
+    return np.unique(np.r_[0.0, np.quantile(every, np.linspace(0, 1, 400))])
+
+
+def _missed(commands, t: float) -> float:
+    """The share of the command words lost (substituted or deleted) at threshold ``t``."""
+    from wordspot.evaluation.scoring import align_words
+
+    m = 0
+    for ref, words, conf in commands:
+        a = align_words(ref, [w for w, c in zip(words, conf) if c >= t])
+        m += a.substitutions + a.deletions
+    return m / sum(len(ref) for ref, _, _ in commands)
+
+
 def fa_at_miss(commands, non_commands, most: float = 0.05) -> float:
     """The share of no-command files with a word kept at the highest threshold (of the
     confidences' quantiles) that misses at most ``most`` of the command words."""
-    from wordspot.evaluation.scoring import align_words
-
-    every = np.concatenate([c for _, _, c in commands] + [c for _, c in non_commands] + [np.zeros(1)])
-    n_ref = sum(len(ref) for ref, _, _ in commands)
     best = 1.0
-    for t in np.unique(np.r_[0.0, np.quantile(every, np.linspace(0, 1, 400))]):
-        m = 0
-        for ref, words, conf in commands:
-            a = align_words(ref, [w for w, c in zip(words, conf) if c >= t])
-            m += a.substitutions + a.deletions
-        if m / n_ref <= most:
+    for t in _candidates([c for _, _, c in commands] + [c for _, c in non_commands]):
+        if _missed(commands, t) <= most:
             best = min(best, float(np.mean([bool((c >= t).any()) for _, c in non_commands])))
     return best
 
@@ -98,17 +107,9 @@ def fa_at_miss(commands, non_commands, most: float = 0.05) -> float:
 def threshold_at_miss(commands, most: float) -> float:
     """The highest threshold (of the confidences' quantiles) that misses at most ``most``
     of the command words (0 when none does)."""
-    from wordspot.evaluation.scoring import align_words
-
-    every = np.concatenate([c for _, _, c in commands] + [np.zeros(1)])
-    n_ref = sum(len(ref) for ref, _, _ in commands)
     best = 0.0
-    for t in np.unique(np.r_[0.0, np.quantile(every, np.linspace(0, 1, 400))]):
-        m = 0
-        for ref, words, conf in commands:
-            a = align_words(ref, [w for w, c in zip(words, conf) if c >= t])
-            m += a.substitutions + a.deletions
-        if m / n_ref <= most:
+    for t in _candidates([c for _, _, c in commands]):
+        if _missed(commands, t) <= most:
             best = max(best, float(t))
     return best
 
