@@ -24,15 +24,14 @@ Every command word recognised in either set is a false accept.
 
 from __future__ import annotations
 
-import shutil
 import sys
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
+sys.path.insert(0, str(HERE))
 RATE = 16000
 
 #: Seeds of the two sets (not the demo generator's, not the training's).
@@ -74,25 +73,13 @@ def everyday_words(n: int = 150, seed: int = WORDS_SEED) -> list[str]:
 
 def everyday_word_set(n: int = 150, seed: int = WORDS_SEED) -> list[tuple[np.ndarray, list[str]]]:
     """``n`` (waveform at 16 kHz, []) pairs of everyday words said alone, or [] without the engines."""
-    if not all(shutil.which(p) for p in ("espeak-ng", "flite", "festival", "sox")):
-        print("note: text-to-speech engines missing (see recordings/README.md); no everyday words")
-        return []
-    sys.path.insert(0, str(REPO / "recordings"))
-    import synthesize as demo
+    from dev_phrases import demo_generator, said_by_dev_voices
 
-    voices = [v for v in demo.VOICES if v.dev_candidate]
-    assert voices and all(v.split == "train" for v in voices)
+    demo = demo_generator("everyday words")
+    if demo is None:
+        return []
     words = everyday_words(n, seed)
-    takes = [demo.Take("dev-everyday", voices[i % len(voices)], w, 1,
-                       f"dev-everyday/{voices[i % len(voices)].voice_id}/w-{w}.flac") for i, w in enumerate(words)]
-    with tempfile.TemporaryDirectory(prefix="wordspot-dev-everyday-") as tmp:
-        raw = {t.rel_path: Path(tmp) / f"raw-{i:04d}.wav" for i, t in enumerate(takes)}
-        demo.synthesize_raw([(t.voice, t.text, demo.draw_for(seed, t.rel_path), raw[t.rel_path]) for t in takes], 2)
-        out = []
-        for t in takes:
-            _, q, _, _ = demo.finish_take(t, raw[t.rel_path], seed)
-            out.append(((q / 32768.0).astype(np.float32), []))
-    return out
+    return [(w, []) for w in said_by_dev_voices(demo, "dev-everyday", words, lambda i, w: f"w-{w}.flac", seed)]
 
 
 def impact_set(n: int = 60, seed: int = IMPACTS_SEED) -> list[tuple[np.ndarray, list[str]]]:
