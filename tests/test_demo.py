@@ -198,3 +198,15 @@ def test_side_by_side_det_draws_one_curve_per_system_from_their_own_tables(two_s
 def test_side_by_side_det_needs_a_set_with_both_kinds(two_systems, tmp_path):
     assert side_by_side_det(two_systems, tmp_path, set_name="no such set") is None
     assert not (tmp_path / "det.png").exists()
+
+
+def test_starter_no_scorer_without_the_dev_split_is_left_out_saying_why(tmp_path):
+    from wordspot.demo import run_demo
+    from wordspot.errors import WordspotWarning
+
+    missing = tmp_path / "no-corpus" / "dev.csv"
+    with pytest.warns(WordspotWarning, match=r"starter-no-scorer left out: .*no-corpus/dev\.csv is not there"):
+        with pytest.raises(WordspotError, match="no demo system left to run"):
+            run_demo(RECORDINGS, tmp_path / "out", systems=("starter-no-scorer",), starter_dev=missing, say=lambda _: None)
+    with pytest.raises(WordspotError, match="unknown demo system"):
+        run_demo(RECORDINGS, tmp_path / "out", systems=("starter-mixtures",), say=lambda _: None)

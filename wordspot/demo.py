@@ -23,10 +23,11 @@ from __future__ import annotations
 
 import csv
 import time
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
-from wordspot.errors import WordspotError
+from wordspot.errors import WordspotError, WordspotWarning
 
 __all__ = ["DemoSet", "DemoRow", "SYSTEMS", "DEFAULT_SYSTEMS", "WITH_SCORER", "find_recordings", "demo_sets",
            "demo_row", "starter_dev_manifest", "long_row", "side_by_side_det", "run_demo", "render_table"]
@@ -308,7 +309,8 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
     """Build each system's model (or load ``model_path``) and evaluate it on every demo set.
 
     ``starter_dev``: the starter corpus's dev manifest for ``starter-no-scorer`` (default
-    ``folder/starter/dev.csv``); when it is missing that system is left out, saying why.
+    :func:`starter_dev_manifest`); when it is missing that system is left out with a
+    :class:`WordspotWarning` saying why.
     The trade-offs of every system on ``test+distractors`` go to ``out_dir/report/det.png``
     and ``det.csv`` (:func:`side_by_side_det`).
 
@@ -337,10 +339,14 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
             raise WordspotError(f"unknown demo system(s) {', '.join(unknown)}; choose from {', '.join(SYSTEMS)}")
         systems = [s for s in SYSTEMS if s in systems]  # table order
         if "starter-no-scorer" in systems and not dev_manifest.is_file():
-            say(f"starter-no-scorer: left out: its calibration is fitted on the starter corpus's dev split, "
-                f"and {dev_manifest} is not there (build the corpus with `python recordings/starter.py build`, "
-                "or name its dev manifest with --starter-dev)")
+            warnings.warn(f"demo system starter-no-scorer left out: its calibration is fitted on the starter "
+                          f"corpus's dev split, and {dev_manifest} is not there (build the corpus with `python "
+                          "recordings/starter.py build`, or name its dev manifest with --starter-dev)",
+                          WordspotWarning, stacklevel=2)
             systems.remove("starter-no-scorer")
+            if not systems:
+                raise WordspotError("no demo system left to run: starter-no-scorer needs the starter corpus's dev "
+                                    f"split ({dev_manifest}); choose other systems with --systems")
         plan = [(s, s) for s in systems]
     start_without_scorer = None
     for name, system in plan:
