@@ -121,3 +121,22 @@ def test_the_demo_fits_it_where_the_shipped_calibration_was_fitted():
 
     made_from = load_model("starter").info["calibration"]["made_from"]
     assert starter_dev_manifest(REPO / "recordings") == REPO / made_from
+
+
+@pytest.mark.slow
+def test_adapting_the_starter_without_its_scorer_fits_a_calibration_on_the_base_measures():
+    # As the demo's adapted-no-scorer: the starter without its scorer (and its calibration
+    # over the base measures as the fallback), adapted and calibrated as `wordspot train` does,
+    # here on two demo voices.
+    from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.training.adapt import AdaptationConfig, adapting
+
+    utts = [u for u in read_manifest(REPO / "recordings" / "train.csv") if u.speaker in ("flite-slt", "festival-kal")]
+    start = without_scorer(load_model("starter"))
+    fit = adapting(start, read_lexicon(REPO / "lexicon" / "bakery.txt"), config=AdaptationConfig(follow_passes=1))
+    model, _ = train_calibrated(fit, utts, config=CalibrationConfig().decided(adapting=True),
+                                fallback=fit.start_calibration)
+    assert model.scorer is None and "scorer_adaptation" not in model.info
+    assert model.calibration is not None and model.calibration.names == BASE_MEASURE_NAMES
+    assert model.info["calibration"]["measures"] == list(BASE_MEASURE_NAMES)

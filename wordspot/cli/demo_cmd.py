@@ -21,8 +21,8 @@ should train on for real use (see README: "Quick tour: train on your own recordi
 examples:
   wordspot demo                              three systems side by side (about 6 minutes)
   wordspot demo --side-by-side               also the starter and the adapted model without
-                                             their sound scorer (the mixtures alone; about
-                                             4 minutes more)
+                                             their sound scorer (the mixtures alone; 3 to 5
+                                             minutes more)
   wordspot demo --systems starter adapted    skip training from scratch
   wordspot demo --json                       the results as JSON keyed by system and set name
   wordspot demo --model wordspot-demo/bakery-adapted.model   evaluate a model made earlier
@@ -64,8 +64,8 @@ def add_parser(sub, **options):
                    "adapted and scratch, all five with --side-by-side")
     p.add_argument("--side-by-side", action="store_true",
                    help="add the starter and the adapted model without their sound scorer (starter-no-scorer: "
-                   "its calibration fitted again on the starter corpus's dev split, about a minute, kept in --out "
-                   "for the next run; adapted-no-scorer: adapted again, about 2 minutes)")
+                   "its calibration fitted again on the starter corpus's dev split, under a minute, kept in --out "
+                   "for the next run; adapted-no-scorer: adapted again, 2-3 minutes)")
     p.add_argument("--starter-dev", metavar="MANIFEST",
                    help="the starter corpus's dev manifest for starter-no-scorer (default: starter/dev.csv in "
                    "the recordings folder, made by `python recordings/starter.py build`)")
