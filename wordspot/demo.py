@@ -1,27 +1,36 @@
 """The demo: the starter alone, adapted, and trained from scratch, measured on every demo test set.
 
+Each system with a state scorer (the starter, the adapted model) can be shown beside its
+"mixtures alone" counterpart, the same recipe with no scorer anywhere
+(:mod:`wordspot.evaluation.mixtures_only`): ``starter-no-scorer`` (the starter with its
+scorer taken out, its calibration fitted again on the starter corpus's dev split as the
+shipped one was) and ``adapted-no-scorer`` (that starter adapted as ``adapted`` is, so its
+calibration fits on the base measures). A model trained from scratch has no scorer.
+
 The demo corpus (``recordings/`` in a checkout) is synthetic speech from several
 text-to-speech engines and voices; its test sets use voices that training never heard.
 Real users train on their own voice (README: "Quick tour: train on your own recordings").
 
 Three kinds of row: word sets (the WER table); the test commands among the distractors,
 files with no command (miss rate, share of those files with a recognised word, false
-accepts per hour); and the long recordings with embedded commands (``long.csv``), scanned
-as ``wordspot scan`` does and scored against their time labels (hits, false accepts per
-hour, boundaries).
+accepts per hour, equal error rate); and the long recordings with embedded commands
+(``long.csv``), scanned as ``wordspot scan`` does and scored against their time labels
+(hits, false accepts per hour, boundaries). The detection set's trade-offs of every system
+are drawn together in ``report/det.png`` (:func:`side_by_side_det`).
 """
 
 from __future__ import annotations
 
 import csv
 import time
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
-from wordspot.errors import WordspotError
+from wordspot.errors import WordspotError, WordspotWarning
 
-__all__ = ["DemoSet", "DemoRow", "SYSTEMS", "find_recordings", "demo_sets", "demo_row", "long_row", "run_demo",
-           "render_table"]
+__all__ = ["DemoSet", "DemoRow", "SYSTEMS", "DEFAULT_SYSTEMS", "WITH_SCORER", "find_recordings", "demo_sets",
+           "demo_row", "starter_dev_manifest", "long_row", "side_by_side_det", "run_demo", "render_table"]
 
 _NOISY_LEVELS = (20, 10, 5)
 
@@ -31,7 +40,7 @@ class DemoSet:
     """One row of the demo tables: a name, the utterances, and a note on what it shows.
 
     ``kind`` is "words" (a row of the WER table) or "detection" (command recordings among
-    recordings with no command: miss rate and false accepts).
+    recordings with no command: miss rate, false accepts, equal error rate).
     """
 
     name: str
@@ -45,7 +54,8 @@ class DemoRow:
     """Measured figures of one demo set.
 
     ``kind`` "words" and "detection" rows come from the ordinary evaluation; the detection
-    figures are filled for "detection" rows. A "long" row holds the scan of the long
+    figures (with ``equal_error_rate``, None when the rates never meet or a confidence is
+    missing) are filled for "detection" rows. A "long" row holds the scan of the long
     recordings: ``utterances`` files, ``words`` embedded commands, ``seconds`` of audio,
     ``hits``, ``false_accepts`` (and per hour), ``on_time`` (share of hits with both ends
     within 0.3 s) and ``scan_seconds``; no WER.
@@ -70,6 +80,7 @@ class DemoRow:
     false_accepts: int = 0
     on_time: float | None = None
     scan_seconds: float = 0.0
+    equal_error_rate: float | None = None
 
     @property
     def false_accept_share(self) -> float | None:
@@ -96,7 +107,8 @@ class DemoRow:
         if self.kind == "detection":
             out.update(kind="detection", miss_rate=self.miss_rate, non_command_files=self.non_command_files,
                        false_accept_files=self.false_accept_files, false_accept_share=self.false_accept_share,
-                       false_accepts_per_hour=self.false_accepts_per_hour)
+                       false_accepts_per_hour=self.false_accepts_per_hour,
+                       equal_error_rate=self.equal_error_rate)
         return out
 
 
@@ -150,11 +162,14 @@ def demo_sets(folder: Path) -> list[DemoSet]:
 
 def demo_row(ds: DemoSet, result) -> DemoRow:
     """The table row of a set from its :class:`wordspot.evaluation.scoring.EvaluationResult`."""
+    from wordspot.evaluation.detection import equal_error_rate_of
+
     false_accept_files = sum(1 for s in result.scores if not s.utterance.reference and s.utterance.recognised)
     return DemoRow(ds.name, result.utterances, result.reference_words, result.wer, tuple(result.wer_ci95),
                    result.substitutions, result.deletions, result.insertions, ds.note, kind=ds.kind,
                    miss_rate=result.miss_rate, non_command_files=result.non_command_utterances,
-                   false_accept_files=false_accept_files, false_accepts_per_hour=result.false_accepts_per_hour)
+                   false_accept_files=false_accept_files, false_accepts_per_hour=result.false_accepts_per_hour,
+                   equal_error_rate=equal_error_rate_of(result) if ds.kind == "detection" else None)
 
 
 def long_row(model, labels: Path, *, jobs: int = 1) -> DemoRow:
@@ -174,13 +189,47 @@ def long_row(model, labels: Path, *, jobs: int = 1) -> DemoRow:
 #: The demo's systems, in table order: name -> what it is.
 SYSTEMS = {
     "starter": "the shipped starter model alone (no bakery recordings)",
+    "starter-no-scorer": "the starter with its sound scorer taken out: the mixtures alone, its calibration "
+                         "fitted again on the starter corpus's dev split as the shipped one was",
     "adapted": "the starter adapted on the bakery training set (wordspot train's default)",
-    "scratch": "trained from scratch on the bakery training set (wordspot train --from-scratch)",
+    "adapted-no-scorer": "the starter without its sound scorer, adapted as 'adapted' is: the mixtures alone, "
+                         "its calibration fitted on their measures",
+    "scratch": "trained from scratch on the bakery training set (wordspot train --from-scratch; no sound scorer)",
 }
+#: The systems whose word confidence reads the sound scorer (the others use the mixtures alone).
+WITH_SCORER = ("starter", "adapted")
+#: The systems ``wordspot demo`` builds unless asked otherwise.
+DEFAULT_SYSTEMS = ("starter", "adapted", "scratch")
 
 
-def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, say):
-    """The model of one system, written to ``out_dir/bakery-<system>.model``."""
+def starter_dev_manifest(folder: Path) -> Path:
+    """The starter corpus's dev manifest in the demo recordings ``folder`` (``starter/dev.csv``,
+    where ``recordings/starter.py build`` writes it): the split the shipped starter's
+    calibration was fitted on, and so the one ``starter-no-scorer``'s is fitted on."""
+    return Path(folder) / "starter" / "dev.csv"
+
+
+def _starter_no_scorer(out_dir: Path, dev_manifest: Path, say):
+    """The starter without its scorer (bakery lexicon set by the caller), kept in ``out_dir``."""
+    from wordspot.evaluation.mixtures_only import cached_starter_mixtures_only
+
+    cache = out_dir / "starter-no-scorer.model"
+    model, reused, seconds = cached_starter_mixtures_only(cache, dev_manifest, report=say)
+    if reused:
+        say(f"starter-no-scorer: reused {cache} (made earlier from the same starter, dev manifest and settings)")
+    else:
+        say(f"starter-no-scorer: calibration fitted on the mixtures' measures in {seconds:.0f} s, kept in {cache}")
+    return model, seconds
+
+
+def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, say, dev_manifest: Path,
+           start_without_scorer=None):
+    """The model of one system, written to ``out_dir/bakery-<system>.model``.
+
+    ``start_without_scorer``: the starter without its scorer made earlier in the run (its
+    calibration then is the fallback of ``adapted-no-scorer``); else the starter's scorer
+    and calibration are taken out here.
+    """
     from wordspot.corpus import read_manifest
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model, save_model
@@ -190,16 +239,24 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         model = load_model("starter")
         model.lexicon = lexicon  # recognise the bakery words; no word-pair counts for them (uniform prior)
         seconds = 0.0
+    elif system == "starter-no-scorer":
+        model, seconds = _starter_no_scorer(out_dir, dev_manifest, say)
+        model.lexicon = lexicon
     else:
         train_utts = read_manifest(folder / "train.csv")
         say(f"{system}: {len(train_utts)} recordings of {len({u.speaker for u in train_utts})} voices "
             f"({folder / 'train.csv'}) ...")
         from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
 
-        if system == "adapted":
+        if system in ("adapted", "adapted-no-scorer"):
             from wordspot.training.adapt import AdaptationConfig, adapting
 
-            fit = adapting(load_model("starter"), lexicon, config=AdaptationConfig(jobs=jobs),
+            start = load_model("starter")
+            if system == "adapted-no-scorer":
+                from wordspot.evaluation.mixtures_only import without_scorer
+
+                start = without_scorer(start) if start_without_scorer is None else start_without_scorer
+            fit = adapting(start, lexicon, config=AdaptationConfig(jobs=jobs),
                            manifest=folder / "train.csv", quiet=quiet, report=None if quiet else say)
         else:
             from wordspot.training.trainer import TrainingConfig, train
@@ -210,7 +267,7 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         # as `wordspot train` does: calibrated confidences, fitted on held-out recordings
         began = time.perf_counter()
         model, _summary = train_calibrated(fit, train_utts, config=CalibrationConfig().decided(
-            adapting=system == "adapted"), quiet=quiet, report=None if quiet else say,
+            adapting=system != "scratch"), quiet=quiet, report=None if quiet else say,
             fallback=getattr(fit, "start_calibration", None), jobs=jobs)
         seconds = time.perf_counter() - began
     model_file = out_dir / f"bakery-{system}.model"
@@ -220,9 +277,42 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
     return model, model_file, seconds
 
 
-def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, systems=tuple(SYSTEMS),
-             jobs: int = 2, quiet: bool = False, say=print):
+def side_by_side_det(evaluations: dict, folder: Path, set_name: str = "test+distractors"):
+    """Every system's trade-off on ``set_name`` in one picture: ``folder/det.png`` and ``det.csv``.
+
+    Parameters
+    ----------
+    evaluations : dict of system name -> list of ManifestEvaluation
+        As :func:`run_demo` returns them.
+
+    Returns
+    -------
+    (Path, Path or None) or None
+        The table and the picture (None without matplotlib); None when no system's
+        ``set_name`` has both kinds of recording with every confidence known.
+    """
+    from wordspot.evaluation.detection import measurable, trade_off
+    from wordspot.evaluation.report import write_trade_offs
+
+    curves = {}
+    for name, evs in evaluations.items():
+        for ev in evs:
+            if ev.name == set_name and measurable(ev.result):
+                curves[name] = trade_off([s.utterance for s in ev.result.scores])
+    if not curves:
+        return None
+    return write_trade_offs(curves, folder, title=f"Detection error trade-off, {set_name}: one curve per system")
+
+
+def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, systems=DEFAULT_SYSTEMS,
+             jobs: int = 2, quiet: bool = False, say=print, starter_dev: Path | None = None):
     """Build each system's model (or load ``model_path``) and evaluate it on every demo set.
+
+    ``starter_dev``: the starter corpus's dev manifest for ``starter-no-scorer`` (default
+    :func:`starter_dev_manifest`); when it is missing that system is left out with a
+    :class:`WordspotWarning` saying why.
+    The trade-offs of every system on ``test+distractors`` go to ``out_dir/report/det.png``
+    and ``det.csv`` (:func:`side_by_side_det`).
 
     Returns
     -------
@@ -230,7 +320,8 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
     model_files : dict of system name -> Path
     evaluations : dict of system name -> list of ManifestEvaluation
     seconds : dict of system name -> float
-        Training or adaptation time (0 for the starter alone and a given model).
+        Training, adaptation or calibration time (0 for the starter alone, a reused
+        ``starter-no-scorer`` and a given model).
     """
     from wordspot.evaluation.html_report import write_html_report
     from wordspot.evaluation.report import write_report
@@ -238,6 +329,7 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
     from wordspot.model import load_model
 
     out_dir.mkdir(parents=True, exist_ok=True)
+    dev_manifest = Path(starter_dev) if starter_dev is not None else starter_dev_manifest(folder)
     results, files, evaluations, seconds = {}, {}, {}, {}
     if model_path is not None:
         plan = [("model", None)]
@@ -245,12 +337,28 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
         unknown = [s for s in systems if s not in SYSTEMS]
         if unknown:
             raise WordspotError(f"unknown demo system(s) {', '.join(unknown)}; choose from {', '.join(SYSTEMS)}")
+        systems = [s for s in SYSTEMS if s in systems]  # table order
+        if "starter-no-scorer" in systems and not dev_manifest.is_file():
+            warnings.warn(f"demo system starter-no-scorer left out: its calibration is fitted on the starter "
+                          f"corpus's dev split, and {dev_manifest} is not there (build the corpus with `python "
+                          "recordings/starter.py build`, or name its dev manifest with --starter-dev)",
+                          WordspotWarning, stacklevel=2)
+            systems.remove("starter-no-scorer")
+            if not systems:
+                raise WordspotError("no demo system left to run: starter-no-scorer needs the starter corpus's dev "
+                                    f"split ({dev_manifest}); choose other systems with --systems")
         plan = [(s, s) for s in systems]
+    start_without_scorer = None
     for name, system in plan:
+        began = time.perf_counter()
         if system is None:
             model, files[name], seconds[name] = load_model(model_path), Path(model_path), 0.0
         else:
-            model, files[name], seconds[name] = _build(system, folder, out_dir, jobs=jobs, quiet=quiet, say=say)
+            model, files[name], seconds[name] = _build(system, folder, out_dir, jobs=jobs, quiet=quiet, say=say,
+                                                       dev_manifest=dev_manifest,
+                                                       start_without_scorer=start_without_scorer)
+            if system == "starter-no-scorer":
+                start_without_scorer = load_model(out_dir / "starter-no-scorer.model")  # its own lexicon
         rows, evs = [], []
         for ds in demo_sets(folder):
             if not ds.utterances:
@@ -265,6 +373,8 @@ def run_demo(folder: Path, out_dir: Path, *, model_path: Path | None = None, sys
             say(f"{name}: scanning the long recordings (long.csv) ...")
             rows.append(long_row(model, folder / "long.csv", jobs=jobs))
         results[name], evaluations[name] = rows, evs
+        say(f"{name}: built and evaluated in {time.perf_counter() - began:.0f} s")
+    side_by_side_det(evaluations, out_dir / "report")
     return results, files, evaluations, seconds
 
 
@@ -290,8 +400,8 @@ def render_table(results: dict) -> str:
 
     The WER table (one row per word set, a column per system); then, when the sets hold
     them, the commands among files with no command (a row per system: miss rate on the
-    commands, share of the other files with any recognised word, false accepts per hour)
-    and a line on the long recordings.
+    commands, share of the other files with any recognised word, false accepts per hour,
+    equal error rate as the confidence threshold moves) and the long recordings.
     """
     names = list(results)
     first = results[names[0]]
@@ -317,9 +427,9 @@ def render_table(results: dict) -> str:
                 share = "-" if r.false_accept_share is None else (
                     f"{_pct(r.false_accept_share)} ({r.false_accept_files} of {r.non_command_files})")
                 per_hour = "-" if r.false_accepts_per_hour is None else f"{r.false_accepts_per_hour:.1f}"
-                body.append([n, _optional_pct(r.miss_rate), share, per_hour])
-            out += _columns(["system", "miss rate", "files with no command that got a word", "false accepts/hour"],
-                            body, {1, 2, 3})
+                body.append([n, _optional_pct(r.miss_rate), share, per_hour, _optional_pct(r.equal_error_rate)])
+            out += _columns(["system", "miss rate", "files with no command that got a word", "false accepts/hour",
+                             "EER"], body, {1, 2, 3, 4})
         elif row.kind == "long":
             out += ["", f"long recordings (wordspot scan): {row.utterances} files, {row.seconds / 60:.1f} min, "
                         f"{row.words} embedded commands (long.csv)"]

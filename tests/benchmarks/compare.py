@@ -2,8 +2,10 @@
 
 One run, on the demo corpus (``recordings/``): for 1, 3 and all training takes per word per
 voice, train wordspot, a whole-word hmmlearn recogniser and a nearest-template DTW
-recogniser (``baselines.py``); measure WER on ``test``, ``test-noisy`` (10 dB) and
-``new-words``; training time; recognition speed on one core; how wordspot's cost grows
+recogniser (``baselines.py``), and adapt the starter with and without its state scorer
+(the mixtures alone: the scorer taken out before adapting); measure WER on ``test``,
+``test-noisy`` (10 dB) and ``new-words``; the starter alone with and without its scorer on
+one person's recordings; training time; recognition speed on one core; how wordspot's cost grows
 with the vocabulary; Gaussian scoring throughput against numpy's matrix product; and a
 profile of wordspot's recognition. Writes a Markdown table to stdout and ``results.md``.
 
@@ -219,6 +221,7 @@ def run(args) -> str:
     rows = []  # (takes, system, n_train, train_s, {set: (err, n)})
     dev_lines = []
     models = {}
+    same_mixtures = {}  # takes label -> whether the two adapted models' mixtures are identical
     for takes in amounts:
         label = "all" if takes is None else str(takes)
         train = takes_subset(train_all, takes)
@@ -247,6 +250,13 @@ def run(args) -> str:
         adapted = ws.adapt_wordspot([it.utterance for it in train], lexicon_path, jobs=n_jobs)
         systems[ADAPTED] = (time.perf_counter() - t0, ws.recognizer(adapted, single_word=True))
         log(f"[{label}] wordspot adapted from the starter in {systems[ADAPTED][0]:.1f} s")
+        t0 = time.perf_counter()
+        bare = ws.adapt_wordspot([it.utterance for it in train], lexicon_path, jobs=n_jobs,
+                                 start=ws.starter_without_scorer()[0])
+        systems[ADAPTED_BARE] = (time.perf_counter() - t0, ws.recognizer(bare, single_word=True))
+        same_mixtures[label] = ws.same_mixtures(adapted, bare)
+        log(f"[{label}] wordspot adapted from the starter without its scorer in {systems[ADAPTED_BARE][0]:.1f} s "
+            f"(mixtures {'identical to' if same_mixtures[label] else 'not the same as'} the adapted model's)")
         # ---- baselines (words trained in parallel with joblib, n_jobs processes)
         t0 = time.perf_counter()
         hmm = WholeWordHMM(n_states=hmm_cfg[0], n_mix=hmm_cfg[1], n_jobs=n_jobs).fit(examples)
@@ -265,7 +275,7 @@ def run(args) -> str:
             for set_name, items in sets.items():
                 refs = [it.words for it in items]
                 xs = [feats[it.path] for it in items]
-                if name in ("wordspot", ADAPTED):
+                if name in ("wordspot", ADAPTED, ADAPTED_BARE):
                     hyps = _ws_parallel(rec, xs, n_jobs)
                 elif set_name == "new-words":
                     hyps = [("<unknown>",)] * len(items)  # no recordings of these words: errors
@@ -280,13 +290,14 @@ def run(args) -> str:
     # ---- one person's recordings: adapt or train on one voice, test on its other takes
     one_person = []
     try:
-        one_person = _one_person(train_all, test, lexicon_path, feats, n_jobs, devs)
+        one_person = _one_person(train_all, test, lexicon_path, feats, n_jobs, devs, args.starter_cache,
+                                 args.starter_dev)
     except Exception as exc:  # a late failure must not lose the WER tables
         log(f"one-person section failed: {exc!r}")
         failures.append(f"one person: {exc!r}")
     # ---- recognition speed, one core, same files, from audio file to word
     train, systems, model = last
-    systems = {k: v for k, v in systems.items() if k != ADAPTED}  # the same recognizer, other means
+    systems = {k: v for k, v in systems.items() if k not in (ADAPTED, ADAPTED_BARE)}  # the same recognizer
     speed_items = test[:: max(1, len(test) // (20 if args.quick else 60))]
     speed_paths = [it.path for it in speed_items]
     audio_s = durations(speed_paths)
@@ -366,19 +377,23 @@ def run(args) -> str:
 
     total = time.perf_counter() - t_start
     text = render(args, info, rows, dev_lines, speed, len(speed_paths), audio_s, growth,
-                  len(grow_paths), gauss, prof, total, one_person)
+                  len(grow_paths), gauss, prof, total, one_person, same_mixtures)
     if failures:
         text += "\n## Sections that failed\n\n" + "\n".join(f"- {f}" for f in failures) + "\n"
     return text
 
 
 ADAPTED = "wordspot adapted"
+ADAPTED_BARE = "wordspot adapted, no scorer"
 ONE_PERSON_TAKES = 3  # takes per word the person records; the voice's other takes are its test
 
 
-def _one_person(train_all, test, lexicon_path, feats, n_jobs, devs):
+def _one_person(train_all, test, lexicon_path, feats, n_jobs, devs, starter_cache=None, starter_dev=None):
     """WER on one voice's held-back takes and on the unseen test voices, for the starter alone,
-    the starter adapted on the voice's first takes, and training from scratch on them."""
+    the starter adapted on the voice's first takes, and training from scratch on them; the
+    first two also without the starter's state scorer (the starter alone then with its
+    calibration fitted again without it on ``starter_dev``, kept in ``starter_cache``;
+    left out, with a line saying why, when ``starter_dev`` is missing)."""
     from wordspot.model import load_model
     from wordspot.language.lexicon import read_lexicon
 
@@ -397,11 +412,26 @@ def _one_person(train_all, test, lexicon_path, feats, n_jobs, devs):
     lexicon = read_lexicon(lexicon_path)
     starter.lexicon = lexicon
     out = []
-    for name, make in (("starter alone", lambda: starter),
-                       ("adapted on one voice", lambda: ws.adapt_wordspot([it.utterance for it in first],
-                                                                          lexicon_path, jobs=n_jobs)),
-                       ("from scratch on one voice", lambda: ws.train_wordspot([it.utterance for it in first],
-                                                                               lexicon_path, jobs=n_jobs))):
+
+    def starter_bare():
+        model, how = ws.starter_without_scorer(starter_cache, starter_dev)
+        log(f"one person: starter alone, no scorer: {how}")
+        model.lexicon = lexicon
+        return model
+
+    plan = [("starter alone", lambda: starter)]
+    if starter_dev is not None and Path(starter_dev).is_file():
+        plan.append(("starter alone, no scorer", starter_bare))
+    else:
+        log(f"one person: starter alone, no scorer: left out ({starter_dev} is not there: its calibration is "
+            "fitted on the starter corpus's dev split; python recordings/starter.py build)")
+    plan += [("adapted on one voice", lambda: ws.adapt_wordspot([it.utterance for it in first],
+                                                                 lexicon_path, jobs=n_jobs)),
+             ("adapted on one voice, no scorer", lambda: ws.adapt_wordspot(
+                 [it.utterance for it in first], lexicon_path, jobs=n_jobs, start=ws.starter_without_scorer()[0])),
+             ("from scratch on one voice", lambda: ws.train_wordspot([it.utterance for it in first],
+                                                                      lexicon_path, jobs=n_jobs))]
+    for name, make in plan:
         t0 = time.perf_counter()
         model = make()
         secs = time.perf_counter() - t0
@@ -427,7 +457,7 @@ def _pct(e, n):
 
 
 def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow, gauss, prof, total,
-           one_person=()) -> str:
+           one_person=(), same_mixtures=None) -> str:
     L = []
     L.append(f"# wordspot vs. do-it-yourself baselines{' (quick run)' if args.quick else ''}")
     L.append("")
@@ -451,8 +481,19 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
              f"{args.jobs} processes (its `jobs`), the hmmlearn baseline with one word per joblib worker "
              f"({args.jobs} workers), DTW only stores (or picks) templates. `wordspot` is trained from "
              f"scratch (`--from-scratch`); `{ADAPTED}` adapts the shipped starter model to the same "
-             "recordings (`wordspot train`'s default); its train time is the adaptation's.")
+             "recordings (`wordspot train`'s default) without the confidence calibration `wordspot train` "
+             f"adds; its train time is the adaptation's. `{ADAPTED_BARE}` adapts the starter with its state "
+             "scorer taken out (the mixtures alone), the same recipe with no scorer anywhere.")
     L.append("")
+    if same_mixtures:
+        L.append("Side by side with and without the scorer: the search uses the mixtures alone in both (scorer "
+                 "weight 0, the default) and these adapted models carry no calibration, so the scorer can change "
+                 "no word here; the two adapted models' mixtures are "
+                 + ", ".join(f"{'identical' if v else '**not identical**'} with {k} take(s)"
+                             for k, v in same_mixtures.items())
+                 + ". The scorer enters the calibrated word confidence only: see the starter alone with and "
+                 "without it below, and `wordspot demo --side-by-side`.")
+        L.append("")
     if one_person:
         name0, voice, n_first, _, res0 = one_person[0]
         L.append(f"## One person's recordings ({voice}: {n_first} recordings, the first "
@@ -463,6 +504,12 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
         L.append("| --- | ---: |" + " ---: |" * len(keys))
         for name, _, _, secs, res in one_person:
             L.append(f"| {name} | {secs:.1f} | " + " | ".join(_pct(*res[k]) for k in keys) + " |")
+        L.append("")
+        L.append("The starter alone carries the calibration it ships with (its four posterior measures read the "
+                 "state scorer) and drops words below the default confidence threshold; \"no scorer\" is the "
+                 "starter with its scorer taken out and its calibration fitted again on the starter corpus's dev "
+                 "split as the shipped one was (the mixtures' measures alone; its time is that fit, or reading "
+                 "it back when kept from an earlier run). The adapted models carry no calibration here.")
         L.append("")
     # goals
     goals = []
@@ -575,6 +622,11 @@ def main(argv=None) -> int:
                    help="also try band 0.25 for DTW on the dev split")
     p.add_argument("--recordings", default=str(REPO / "recordings"))
     p.add_argument("--lexicon", default=str(REPO / "lexicon" / "bakery.txt"))
+    p.add_argument("--starter-dev", default=str(REPO / "recordings" / "starter" / "dev.csv"),
+                   help="the starter corpus's dev manifest, for the starter without its scorer")
+    p.add_argument("--starter-cache", default=str(REPO / "wordspot-demo" / "starter-no-scorer.model"),
+                   help="model file keeping the starter without its scorer between runs (default: the one "
+                   "`wordspot demo --side-by-side` keeps in wordspot-demo/)")
     p.add_argument("--out", default=None, help="Markdown file (default results.md, "
                    "results-quick.md with --quick)")
     args = p.parse_args(argv)

@@ -8,7 +8,8 @@ from typing import Sequence
 
 import numpy as np
 
-__all__ = ["train_wordspot", "adapt_wordspot", "recognizer", "growth_lexicons", "gaussian_scorer"]
+__all__ = ["train_wordspot", "adapt_wordspot", "starter_without_scorer", "same_mixtures", "recognizer",
+           "growth_lexicons", "gaussian_scorer"]
 
 
 def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
@@ -26,8 +27,9 @@ def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
     return model
 
 
-def adapt_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, start: str = "starter"):
-    """Adapt the shipped starter model with wordspot's default settings (``AdaptationConfig``).
+def adapt_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, start="starter"):
+    """Adapt the shipped starter model (``start``: a starter's name or a model) with wordspot's
+    default settings (``AdaptationConfig``).
 
     Returns
     -------
@@ -37,9 +39,41 @@ def adapt_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, start
     from wordspot.model import load_model
     from wordspot.training.adapt import AdaptationConfig, adapt
 
-    model, _summary = adapt(list(utterances), read_lexicon(lexicon_path), load_model(start),
+    start = load_model(start) if isinstance(start, str) else start
+    model, _summary = adapt(list(utterances), read_lexicon(lexicon_path), start,
                             config=AdaptationConfig(jobs=jobs), quiet=True)
     return model
+
+
+def starter_without_scorer(cache: Path | None = None, dev_manifest: Path | None = None):
+    """The shipped starter with its state scorer taken out (the mixtures alone).
+
+    With ``cache`` and ``dev_manifest``: its calibration fitted again on the manifest (the
+    starter corpus's dev split) as the shipped one was, kept in the model file ``cache``
+    (``wordspot.evaluation.mixtures_only.cached_starter_mixtures_only``; the demo keeps the
+    same file). Without them: no calibration (enough to adapt from).
+
+    Returns
+    -------
+    model : wordspot.model.AcousticModel
+    how : str
+        How it was made, for the results.
+    """
+    from wordspot.evaluation.mixtures_only import cached_starter_mixtures_only, without_scorer
+    from wordspot.model import load_model
+
+    if cache is None or dev_manifest is None:
+        return without_scorer(load_model("starter")), "scorer taken out"
+    model, reused, seconds = cached_starter_mixtures_only(Path(cache), Path(dev_manifest))
+    how = (f"scorer taken out, calibration fitted again on {Path(dev_manifest).name} of the starter corpus as the "
+           "shipped one was" + (f" (reused from {cache})" if reused else f" ({seconds:.0f} s)"))
+    return model, how
+
+
+def same_mixtures(a, b) -> bool:
+    """Whether two models have identical Gaussian mixtures (means, variances, weights)."""
+    ma, mb = a.mixtures, b.mixtures
+    return all(np.array_equal(getattr(ma, k), getattr(mb, k)) for k in ("means", "variances", "weights"))
 
 
 def recognizer(model, *, single_word: bool, lexicon=None):

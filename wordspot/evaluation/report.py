@@ -34,7 +34,9 @@ __all__ = [
     "render_speaker_table",
     "render_reliability",
     "render_result",
+    "CURVE_COLOURS",
     "write_report",
+    "write_trade_offs",
 ]
 
 #: How a deletion (nothing recognised) is shown in tables and the picture.
@@ -249,6 +251,23 @@ def _figure_class(name: str):
     return make
 
 
+def _det_axes(ax, title: str) -> None:
+    """Normal-deviate axes of a DET picture: ticks in percent, the diagonal, labels, legend."""
+    edge = normal_deviate([0.0, 1.0])
+    ax.plot(edge, edge, ":", color="grey", linewidth=0.8)
+    ticks = normal_deviate(DET_TICKS)
+    labels = [f"{100 * t:g}" for t in DET_TICKS]
+    ax.set_xticks(ticks, labels=labels, rotation=60)
+    ax.set_yticks(ticks, labels=labels)
+    ax.set_xlim(edge)
+    ax.set_ylim(edge)
+    ax.grid(True, linewidth=0.4)
+    ax.set_xlabel("false-accept rate (% of recordings without a command that get a word)")
+    ax.set_ylabel("miss rate (% of command words deleted or substituted)")
+    ax.set_title(title)
+    ax.legend(loc="upper right", fontsize=8)
+
+
 def _draw_trade_off(points: TradeOff, path: Path) -> bool:
     """The DET picture: miss rate against false-accept rate on normal-deviate axes."""
     make = _figure_class(path.name)
@@ -263,22 +282,72 @@ def _draw_trade_off(points: TradeOff, path: Path) -> bool:
     if eer is not None:
         ax.plot([normal_deviate(eer)], [normal_deviate(eer)], "o", color="tab:red",
                 label=f"equal error rate {_pct(eer)}")
-    edge = normal_deviate([0.0, 1.0])
-    ax.plot(edge, edge, ":", color="grey", linewidth=0.8)
-    ticks = normal_deviate(DET_TICKS)
-    labels = [f"{100 * t:g}" for t in DET_TICKS]
-    ax.set_xticks(ticks, labels=labels, rotation=60)
-    ax.set_yticks(ticks, labels=labels)
-    ax.set_xlim(edge)
-    ax.set_ylim(edge)
-    ax.grid(True, linewidth=0.4)
-    ax.set_xlabel("false-accept rate (% of recordings without a command that get a word)")
-    ax.set_ylabel("miss rate (% of command words deleted or substituted)")
-    ax.set_title("Detection error trade-off")
-    ax.legend(loc="upper right", fontsize=8)
+    _det_axes(ax, "Detection error trade-off")
     fig.tight_layout()
     fig.savefig(path)
     return True
+
+
+#: Colours of the systems' curves in the picture of several trade-offs, in order (then again).
+CURVE_COLOURS = ("tab:blue", "tab:orange", "tab:green", "tab:red", "tab:purple", "tab:brown", "tab:pink",
+                 "tab:grey", "tab:olive", "tab:cyan")
+
+
+def _trade_offs_figure(curves: dict, make, title: str):
+    """One DET curve per system (line ``gid`` = the system's name), each with its EER marked."""
+    fig = make(figsize=(7.0, 7.0), dpi=100)
+    ax = fig.add_subplot()
+    for k, (name, points) in enumerate(curves.items()):
+        colour = CURVE_COLOURS[k % len(CURVE_COLOURS)]
+        eer = points.equal_error_rate
+        label = f"{name} (equal error rate {'-' if eer is None else _pct(eer)})"
+        ax.plot(normal_deviate(points.false_accept_rate), normal_deviate(points.miss_rate), marker=".",
+                markersize=3, color=colour, label=label, gid=name)
+        if eer is not None:
+            ax.plot([normal_deviate(eer)], [normal_deviate(eer)], "o", color=colour, gid=f"{name}: equal error rate")
+    _det_axes(ax, title)
+    fig.tight_layout()
+    return fig
+
+
+def write_trade_offs(curves: dict, folder, *, title: str = "Detection error trade-off", picture: bool = True,
+                     stem: str = "det") -> tuple[Path, Path | None]:
+    """Several systems' trade-offs on one set: ``<stem>.csv`` and ``<stem>.png`` in ``folder``.
+
+    Parameters
+    ----------
+    curves : dict of system name -> TradeOff
+        In legend order.
+    folder : str or path
+        Created if missing.
+    title : str
+        The picture's title.
+    picture : bool
+        Draw ``<stem>.png`` (needs matplotlib; a warning without it).
+
+    Returns
+    -------
+    table : Path
+        Columns ``system`` then those of a report's ``det.csv``, each system's rows in
+        threshold order.
+    picture : Path or None
+        One curve per system on normal-deviate axes, its equal error rate marked, a legend.
+    """
+    folder = Path(folder)
+    table, image = folder / f"{stem}.csv", folder / f"{stem}.png"
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        _write_csv(table, ["system"] + _TRADE_OFF_COLUMNS,
+                   ([name] + row for name, points in curves.items() for row in _trade_off_rows(points)))
+        if not picture:
+            return table, None
+        make = _figure_class(image.name)
+        if make is None:
+            return table, None
+        _trade_offs_figure(curves, make, title).savefig(image)
+    except OSError as exc:
+        raise WordspotError(f"cannot write the trade-off picture in {folder}: {exc.strerror or exc}") from None
+    return table, image
 
 
 def _draw_confusions(result: EvaluationResult, path: Path) -> bool:
@@ -411,15 +480,18 @@ def write_report(result: EvaluationResult, folder, *, picture: bool = True) -> R
     return paths
 
 
-def _write_trade_off_table(points: TradeOff, path: Path) -> None:
+_TRADE_OFF_COLUMNS = ["threshold", "misses", "miss_rate", "false_accepts", "false_accepts_per_hour",
+                      "false_accept_rate"]
+
+
+def _trade_off_rows(points: TradeOff) -> list[list]:
     per_hour = points.false_accepts_per_hour
-    _write_csv(
-        path,
-        ["threshold", "misses", "miss_rate", "false_accepts", "false_accepts_per_hour", "false_accept_rate"],
-        (
-            [f"{t:.6g}", int(m), f"{mr:.6f}", int(fa), "" if per_hour is None else f"{per_hour[k]:.3f}",
-             f"{far:.6f}"]
-            for k, (t, m, mr, fa, far) in enumerate(zip(points.thresholds, points.misses, points.miss_rate,
-                                                         points.false_accepts, points.false_accept_rate))
-        ),
-    )
+    return [
+        [f"{t:.6g}", int(m), f"{mr:.6f}", int(fa), "" if per_hour is None else f"{per_hour[k]:.3f}", f"{far:.6f}"]
+        for k, (t, m, mr, fa, far) in enumerate(zip(points.thresholds, points.misses, points.miss_rate,
+                                                     points.false_accepts, points.false_accept_rate))
+    ]
+
+
+def _write_trade_off_table(points: TradeOff, path: Path) -> None:
+    _write_csv(path, _TRADE_OFF_COLUMNS, _trade_off_rows(points))
