@@ -221,6 +221,103 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
     return Aligned(got.frames, got.labels, kinds, [str(it.path) for it in got.items], len(got.skipped))
 
 
+def input_frames(model, got: Aligned, manifests: list[Path], kind: str, *, background_share: float, seed: int,
+                 noise_copies: int = 0, snr_db: tuple = SCORER_SNR_DB, cache: Path | None = None,
+                 tag: str = "train", check_every: int = 97) -> list:
+    """The scorer inputs ``kind`` (:mod:`wordspot.audio.scorer_inputs`) of every item of
+    ``got`` (an :func:`aligned` result made with the same arguments), one array per item.
+
+    ``"cepstra"`` are ``got.frames`` themselves. Other kinds need the waveforms, which are
+    made again from the recordings and the same seeded recipes (speed copies, noisy
+    copies, background items); every ``check_every``-th item's cepstra are computed from
+    the remade waveform and must equal the aligned frames, so a copy that came out
+    otherwise stops the run. The log-mel part is kept in ``cache`` when given (the same
+    name as the alignment's, with ``-logmel<bands>``)."""
+    import numpy as np
+
+    from wordspot.audio.augment import NoiseSettings
+    from wordspot.audio.features import compute_features
+    from wordspot.audio.reading import load_audio
+    from wordspot.audio.scorer_inputs import LOG_MEL_BANDS, scorer_inputs
+    from wordspot.corpus import read_manifest
+    from wordspot.training.backgrounds import background_count, background_wave, plan_backgrounds
+    from wordspot.training.data import speed_copy
+    from wordspot.training.noise import babble_pool, noisy_wave, plan_copies
+
+    if kind == "cepstra":
+        return list(got.frames)
+    settings = model.features
+    rate = settings.sample_rate
+    speeds = sorted({float(k.split()[1]) for k in got.kinds if k.startswith("speed")}, key=lambda f: f)
+    name = tag
+    if noise_copies:
+        name += f"-noise{noise_copies}x{snr_db[0]:g}-{snr_db[1]:g}dB"
+    if speeds:
+        name += "-speed" + ",".join(f"{f:g}" for f in speeds)
+    path = cache / f"{name}-logmel{LOG_MEL_BANDS}-{rate}.npz" if cache else None
+    if path is not None and path.exists():
+        with np.load(path, allow_pickle=False) as z:
+            mel = np.split(z["frames"], np.cumsum(z["lengths"])[:-1])
+    else:
+        t0 = time.monotonic()
+        utterances = [u for m in manifests for u in read_manifest(m)]
+        plain = [i for i, k in enumerate(got.kinds) if k == "clean"]
+        if got.skipped or len(plain) != len(utterances):
+            raise SystemExit(f"{len(utterances)} recordings but {len(plain)} aligned ({got.skipped} skipped): "
+                             "the remade copies would not line up; align again")
+        for i, u in zip(plain, utterances):
+            if Path(got.paths[i]).name != Path(u.path).name:
+                raise SystemExit(f"item {i} is {got.paths[i]}, the manifest says {u.path}")
+        paths = [u.path for u in utterances]
+        speakers = [str(u.speaker) for u in utterances]
+        pool = babble_pool(paths, speakers, seed=seed, sample_rate=rate)
+        recipes = plan_copies(speakers, NoiseSettings(copies=noise_copies, snr_db=tuple(snr_db)), seed=seed) \
+            if noise_copies else []
+        backgrounds = plan_backgrounds(background_count(len(paths), background_share), speakers, seed=seed)
+        counters = {"noisy": 0, "background": 0}
+        by_path = {got.paths[i]: k for k, i in enumerate(plain)}  # the aligned paths, copies share them
+        mel = []
+        loaded: dict = {}
+
+        def wave_of(k: int):
+            if k not in loaded:
+                loaded.clear()
+                loaded[k] = load_audio(paths[k], sample_rate=rate)
+            return loaded[k]
+
+        for i, (k_ind, p) in enumerate(zip(got.kinds, got.paths)):
+            if k_ind == "background":
+                wave = background_wave(backgrounds[counters["background"]], pool, rate)
+                counters["background"] += 1
+            elif k_ind == "noisy":
+                r = recipes[counters["noisy"]]
+                counters["noisy"] += 1
+                wave = noisy_wave(wave_of(r.index), r, pool, rate)
+            else:
+                k = by_path[p]
+                wave = wave_of(k)
+                if k_ind != "clean":
+                    wave = speed_copy(wave, rate, float(k_ind.split()[1]))
+            x = scorer_inputs(wave, settings, "log-mel")
+            if x.shape[0] != got.labels[i].shape[0]:
+                raise SystemExit(f"item {i} ({k_ind}, {p}): {x.shape[0]} frames remade, {got.labels[i].shape[0]} aligned")
+            if i % check_every == 0:
+                c = compute_features(wave, settings)
+                if not np.allclose(c, got.frames[i], atol=1e-3):
+                    raise SystemExit(f"item {i} ({k_ind}, {p}): the remade waveform's cepstra differ from the aligned ones")
+            mel.append(x)
+            if i % 2000 == 0 and i:
+                print(f"  log-mel inputs: {i} of {len(got.kinds)} items, {time.monotonic() - t0:.0f} s", flush=True)
+        print(f"{NAMES[rate]} {name}: log-mel inputs of {len(mel)} items, {time.monotonic() - t0:.0f} s", flush=True)
+        if path is not None:
+            tmp = path.with_suffix(".part.npz")
+            np.savez(tmp, frames=np.concatenate(mel), lengths=np.array([len(x) for x in mel], dtype=np.int64))
+            tmp.replace(path)
+    if kind == "log-mel":
+        return mel
+    return [np.ascontiguousarray(np.concatenate([c, m], axis=1)) for c, m in zip(got.frames, mel)]
+
+
 def frame_accuracy(scorer, frames_list, labels_list) -> float:
     """Share of frames whose most probable mixture id is their label."""
     right = total = 0

@@ -368,6 +368,51 @@ def test_scorer_round_trip_is_bit_exact_without_pickle(model, rng, tmp_path):
     assert load_model(plain).scorer is None
 
 
+def _with_input_kind(model, rng, kind, context=1):
+    from wordspot.audio.scorer_inputs import input_dim
+
+    p, d = model.units.n_mixtures, input_dim(kind, model.features.dim)
+    sizes = [d * (2 * context + 1), 4, p]
+    prior = rng.uniform(0.5, 2.0, p)
+    scorer = StateScorer(context, rng.normal(size=sizes[0]), rng.uniform(0.5, 2.0, sizes[0]),
+                         tuple(rng.normal(size=(a, b)) for a, b in zip(sizes[:-1], sizes[1:])),
+                         tuple(rng.normal(size=b) for b in sizes[1:]), np.log(prior / prior.sum()), inputs=kind)
+    return replace(model, scorer=scorer)
+
+
+@pytest.mark.parametrize("kind", ["log-mel", "cepstra+log-mel"])
+def test_scorer_input_kind_round_trips(model, rng, tmp_path, kind):
+    net = _with_input_kind(model, rng, kind)
+    path = save_model(net, tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        assert json.loads(data["header"].tobytes().decode())["scorer"]["inputs"] == kind
+    back = load_model(path)
+    assert back.scorer.inputs == kind and back.scorer.same_as(net.scorer)
+    frames = rng.normal(size=(9, net.scorer.frame_dim))
+    np.testing.assert_array_equal(back.scorer.log_posteriors(frames), net.scorer.log_posteriors(frames))
+
+
+def test_cepstra_scorer_writes_no_input_kind_and_an_absent_one_reads_as_cepstra(model, rng, tmp_path):
+    # A scorer reading the model's features is stored as before the kinds existed (no header
+    # key), and a file without the key (every one written before) loads as "cepstra".
+    path = save_model(_with_scorer(model, rng), tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        assert set(json.loads(data["header"].tobytes().decode())["scorer"]) == {"context", "layers", "hidden"}
+    assert load_model(path).scorer.inputs == "cepstra"
+
+
+def test_unknown_or_mismatched_input_kind_is_refused(model, rng, tmp_path):
+    path = save_model(_with_scorer(model, rng), tmp_path / "m.model")
+    _rewrite_checked(path, lambda a, h: h["scorer"].update(inputs="spectrogram"))
+    with pytest.raises(ModelFileError, match=r"m\.model: .*state scorer entry this wordspot cannot use.*wordspot train"):
+        load_model(path)
+    path = save_model(_with_scorer(model, rng), tmp_path / "n.model")  # cepstra-sized tables called log-mel
+    _rewrite_checked(path, lambda a, h: h["scorer"].update(inputs="log-mel"))
+    with pytest.raises(ModelFileError, match=r"n\.model: the state scorer has .* over frames of 39 values, but .* "
+                                             r"its log-mel inputs have 40; .*wordspot train"):
+        load_model(path)
+
+
 def test_scorer_tables_are_under_the_checksum(model, rng, tmp_path):
     path = save_model(_with_scorer(model, rng), tmp_path / "m.model")
 

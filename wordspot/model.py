@@ -16,8 +16,9 @@ checksum over every array and the rest of the header.
 The optional state scorer (:class:`wordspot.acoustic.scorer.StateScorer`) is stored as
 float32 arrays ``scorer_input_mean``, ``scorer_input_scale``, ``scorer_log_prior`` and
 ``scorer_weight_<k>`` / ``scorer_bias_<k>`` for each layer ``k``, with header key
-``scorer`` (``context``, ``layers``, ``hidden``: the activation); absent = no scorer, so
-files without one load unchanged. The checksum covers these arrays as any other. The file is written to a
+``scorer`` (``context``, ``layers``, ``hidden``: the activation; ``inputs`` when the
+network reads other frames than the model's features, e.g. ``log-mel``, absent =
+``cepstra``); absent = no scorer, so files without one load unchanged. The checksum covers these arrays as any other. The file is written to a
 temporary name in the same folder, flushed to disk and renamed over the target, so a
 crash never leaves a half-written model.
 
@@ -41,6 +42,7 @@ from wordspot.errors import FeatureError, LexiconError, ModelFileError
 from wordspot.audio.features import FeatureSettings
 from wordspot.acoustic.gmm import Mixtures
 from wordspot.acoustic.scorer import StateScorer
+from wordspot.audio.scorer_inputs import INPUT_KINDS, input_dim
 from wordspot.language.grammar import BigramCounts
 from wordspot.language.lexicon import Lexicon, parse_lexicon
 from wordspot.acoustic.units import UnitSet
@@ -182,6 +184,8 @@ def save_model(model: AcousticModel, path) -> Path:
     if getattr(model, "scorer", None) is not None:
         header["scorer"] = {"context": int(model.scorer.context), "layers": len(model.scorer.weights),
                             "hidden": _SCORER_HIDDEN}
+        if model.scorer.inputs != INPUT_KINDS[0]:  # absent = cepstra, so such files stay as before
+            header["scorer"]["inputs"] = model.scorer.inputs
     try:
         json.dumps(header)
     except (TypeError, ValueError) as exc:
@@ -274,7 +278,8 @@ def _scorer_layers(p: Path, settings) -> int:
 
 def _build_scorer(p: Path, settings: dict, a: dict, n_mixtures: int, dim: int) -> StateScorer:
     context = settings.get("context")
-    if type(context) is not int or settings.get("hidden") != _SCORER_HIDDEN:
+    inputs = settings.get("inputs", INPUT_KINDS[0])
+    if type(context) is not int or settings.get("hidden") != _SCORER_HIDDEN or inputs not in INPUT_KINDS:
         raise _damaged(p, f"has a state scorer entry this wordspot cannot use ({settings})")
     layers = _scorer_layers(p, settings)
     arrays = [a["scorer_input_mean"], a["scorer_input_scale"], a["scorer_log_prior"]]
@@ -283,13 +288,13 @@ def _build_scorer(p: Path, settings: dict, a: dict, n_mixtures: int, dim: int) -
     if any(x.dtype != np.float32 for x in arrays + weights + biases):
         raise _damaged(p, "holds state scorer tables that are not float32")
     try:
-        scorer = StateScorer(context, arrays[0], arrays[1], tuple(weights), tuple(biases), arrays[2])
+        scorer = StateScorer(context, arrays[0], arrays[1], tuple(weights), tuple(biases), arrays[2], inputs)
     except ValueError as exc:
         raise ModelFileError(f"{p}: the state scorer is malformed ({exc}); {_RETRAIN}") from None
-    if scorer.n_classes != n_mixtures or scorer.frame_dim != dim:
+    if scorer.n_classes != n_mixtures or scorer.frame_dim != input_dim(inputs, dim):
         raise ModelFileError(
             f"{p}: the state scorer has {scorer.n_classes} classes over frames of {scorer.frame_dim} values, but "
-            f"the model has {n_mixtures} mixtures and frames of {dim}; {_RETRAIN}")
+            f"the model has {n_mixtures} mixtures and its {inputs} inputs have {input_dim(inputs, dim)}; {_RETRAIN}")
     return scorer
 
 

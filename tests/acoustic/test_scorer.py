@@ -118,3 +118,45 @@ def test_parameters_are_checked(rng):
     with pytest.raises(ValueError, match="add up to more than one"):
         StateScorer(**{**kw, "log_prior": np.zeros(6)})
     assert StateScorer(**kw).same_as(good)
+
+
+def test_forward_pass_on_log_mel_inputs_equals_scikit_learn(rng):
+    # Reference library: scikit-learn's MLPClassifier.predict_proba with the same weights, on
+    # the stacked and standardised log-mel inputs of a waveform (wordspot.audio.scorer_inputs).
+    from sklearn.exceptions import ConvergenceWarning
+    from sklearn.neural_network import MLPClassifier
+
+    from wordspot.audio.features import FeatureSettings
+    from wordspot.audio.scorer_inputs import scorer_inputs
+
+    settings = FeatureSettings()
+    t = np.arange(8000) / 16000
+    wave = np.sin(2 * np.pi * 300 * t) * np.linspace(0, 1, t.size) + 0.05 * rng.standard_normal(t.size)
+    for kind in ("log-mel", "cepstra+log-mel"):
+        frames = scorer_inputs(wave, settings, kind)
+        c, p = 2, 6
+        x = rng.normal(size=(40, frames.shape[1] * (2 * c + 1)))
+        clf = MLPClassifier(hidden_layer_sizes=(9,), activation="relu", max_iter=2, random_state=0)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            clf.fit(x, np.arange(40) % p)
+        clf.coefs_ = [rng.normal(size=w.shape) / np.sqrt(w.shape[0]) for w in clf.coefs_]
+        clf.intercepts_ = [rng.normal(size=b.shape) for b in clf.intercepts_]
+        mean, scale = rng.normal(size=x.shape[1]) * 0.1, rng.uniform(0.5, 2.0, x.shape[1])
+        scorer = StateScorer(c, mean, scale, tuple(clf.coefs_), tuple(clf.intercepts_), np.full(p, -np.log(p)),
+                             inputs=kind)
+        assert scorer.inputs == kind and scorer.frame_dim == frames.shape[1]
+        stacked = (stack_context(frames, c).astype(np.float64) - mean.astype(np.float32)) / scale.astype(np.float32)
+        expected = clf.predict_proba(stacked)
+        np.testing.assert_allclose(np.exp(scorer.log_posteriors(frames).astype(np.float64)), expected,
+                                   rtol=2e-4, atol=1e-6)
+        assert not np.allclose(expected, expected.mean(axis=0))
+
+
+def test_inputs_default_to_cepstra_and_count_in_sameness(rng):
+    a = random_scorer(rng)
+    assert a.inputs == "cepstra"
+    b = StateScorer(a.context, a.input_mean, a.input_scale, a.weights, a.biases, a.log_prior, inputs="log-mel")
+    assert a.same_as(a) and not a.same_as(b) and not b.same_as(a)
+    with pytest.raises(ValueError, match="inputs must name what the network reads"):
+        StateScorer(a.context, a.input_mean, a.input_scale, a.weights, a.biases, a.log_prior, inputs="")

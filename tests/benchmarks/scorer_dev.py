@@ -10,6 +10,11 @@ puts in a pause state and in a phone state apart). Nothing of the demo's test se
     python tests/benchmarks/scorer_dev.py --model starter --try 512x512:5 256x256:5 512x512:8 \\
         --seeds 0 1 --align-cache /tmp/align
 
+``--inputs`` fits each candidate once per kind of scorer input
+(:data:`wordspot.audio.scorer_inputs.INPUT_KINDS`: ``cepstra``, ``log-mel``,
+``cepstra+log-mel``); the log-mel inputs are computed from the recordings and copies made
+again (``build_starters.input_frames``) and kept in ``--align-cache``.
+
 A candidate is ``HIDDENxHIDDEN...:CONTEXT`` (``:CONTEXT`` may be left out: 5), optionally
 ``@FRAMES`` for the training frames at most (default: the build's).
 
@@ -62,6 +67,8 @@ def main(argv=None) -> int:
     ap.add_argument("--noise-copies", type=int, default=0, help="noisy copies of the train split (default 0)")
     ap.add_argument("--speeds", type=float, nargs="*", default=[], help="speed copies of the train split")
     ap.add_argument("--mixes", nargs="+", default=["all"], choices=sorted(MIXES))
+    ap.add_argument("--inputs", nargs="+", default=["cepstra"],
+                    help="what the networks read (wordspot.audio.scorer_inputs.INPUT_KINDS; default cepstra)")
     ap.add_argument("--align-cache", type=Path, default=None, help="keep / reuse the alignments here")
     ap.add_argument("--save", type=Path, default=None,
                     help="write the model with each fitted scorer into this folder (trial starters)")
@@ -82,6 +89,15 @@ def main(argv=None) -> int:
     dev_all = build.aligned(model, [build.DEV], jobs=args.jobs, background_share=0.0, seed=0, quiet=True,
                             cache=args.align_cache, tag="dev", noise_copies=1)
     dev, dev_noisy = dev_all.only(["clean"]), dev_all.only(["noisy"])
+    dev_inputs, train_inputs = {}, {}
+    for kind in args.inputs:
+        x = build.input_frames(model, dev_all, [build.DEV], kind, background_share=0.0, seed=0, noise_copies=1,
+                               cache=args.align_cache, tag="dev")
+        dev_inputs[kind] = ([a for a, k in zip(x, dev_all.kinds) if k == "clean"],
+                            [a for a, k in zip(x, dev_all.kinds) if k == "noisy"])
+        train_inputs[kind] = build.input_frames(model, full, [build.CORPUS / "train.csv"], kind,
+                                                background_share=build.SCORER_BACKGROUND_SHARE, seed=0,
+                                                noise_copies=args.noise_copies, cache=args.align_cache)
     units = model.units
     pause = set()
     for name in (PAUSE_UNIT, GAP_UNIT):
@@ -95,14 +111,16 @@ def main(argv=None) -> int:
     print(f"{args.model}: train {sum(kinds.values())} frames in {len(full.labels)} items "
           f"({', '.join(f'{k} {n}' for k, n in kinds.items())}), dev {dev_y.size} frames "
           f"({100 * is_pause.mean():.0f}% pause) and a noisy copy ({noisy_y.size} frames), {p} mixtures")
-    print("| data | hidden | context | frames | seed | epochs | held-out acc | dev acc | dev phone acc | dev pause acc "
+    print("| inputs | data | hidden | context | frames | seed | epochs | held-out acc | dev acc | dev phone acc | dev pause acc "
           "| noisy dev acc | weights | fit s |")
-    print("| --- | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |")
+    print("| --- | --- | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |")
 
     def row(scorer):
-        guess = np.concatenate([scorer.log_posteriors(x).argmax(axis=1) for x in dev.frames])
+        clean_x, noisy_x = dev_inputs[scorer.inputs] if scorer.inputs in dev_inputs \
+            else (dev.frames, dev_noisy.frames)
+        guess = np.concatenate([scorer.log_posteriors(x).argmax(axis=1) for x in clean_x])
         right = guess == dev_y
-        noisy = np.concatenate([scorer.log_posteriors(x).argmax(axis=1) for x in dev_noisy.frames]) == noisy_y
+        noisy = np.concatenate([scorer.log_posteriors(x).argmax(axis=1) for x in noisy_x]) == noisy_y
         return (f"{100 * right.mean():.1f}% | {100 * right[~is_pause].mean():.1f}% | "
                 f"{100 * right[is_pause].mean():.1f}% | {100 * noisy.mean():.1f}%")
 
@@ -116,32 +134,36 @@ def main(argv=None) -> int:
     right = guess == dev_y
     noisy = np.concatenate([(log_likelihoods(x, model.mixtures) + prior).argmax(axis=1)
                             for x in dev_noisy.frames]) == noisy_y
-    print(f"| (mixtures + prior) | | 0 | | | | | {100 * right.mean():.1f}% | {100 * right[~is_pause].mean():.1f}% "
+    print(f"| cepstra | (mixtures + prior) | | 0 | | | | | {100 * right.mean():.1f}% | {100 * right[~is_pause].mean():.1f}% "
           f"| {100 * right[is_pause].mean():.1f}% | {100 * noisy.mean():.1f}% | | |", flush=True)
     if model.scorer is not None:
         info = model.info.get("scorer", {})
-        print(f"| (the model's own scorer) | {'x'.join(map(str, info.get('hidden', [])))} | {model.scorer.context} "
+        print(f"| {model.scorer.inputs} | (the model's own scorer) | {'x'.join(map(str, info.get('hidden', [])))} | {model.scorer.context} "
               f"| {info.get('train_frames', '')} | {info.get('seed', '')} | {info.get('epochs', '')} "
               f"| {100 * info.get('held_out_frame_accuracy', float('nan')):.1f}% | {row(model.scorer)} | | |",
               flush=True)
     for mix in args.mixes:
+        keep = [i for i, k in enumerate(full.kinds) if k in MIXES[mix] or k.split()[0] in MIXES[mix]]
         data = full.only(MIXES[mix])
         for text in args.candidates:
             hidden, context, frames = parse_candidate(text)
             for seed in args.seeds:
-                t0 = time.monotonic()
-                config = ScorerConfig(hidden=hidden, context=context, max_frames=frames, seed=seed)
-                scorer, fit = fit_scorer_with_report(data.frames, data.labels, p, config, groups=data.paths)
-                seconds = time.monotonic() - t0
-                n_weights = sum(w.size + b.size for w, b in zip(scorer.weights, scorer.biases))
-                print(f"| {mix} | {'x'.join(map(str, hidden))} | {context} | {fit.train_frames} | {seed} "
-                      f"| {fit.best_epoch + 1} | {100 * fit.held_out_accuracy:.1f}% | {row(scorer)} "
-                      f"| {n_weights / 1e6:.2f} M | {seconds:.0f} |", flush=True)
-                if args.save:
-                    args.save.mkdir(parents=True, exist_ok=True)
-                    model.scorer = scorer
-                    out = save_model(model, args.save / f"{mix}-{'x'.join(map(str, hidden))}-{frames}-s{seed}.model")
-                    print(f"  saved {out}", flush=True)
+                for kind in args.inputs:
+                    x_list = [train_inputs[kind][i] for i in keep]
+                    t0, c0 = time.monotonic(), time.process_time()
+                    config = ScorerConfig(hidden=hidden, context=context, max_frames=frames, seed=seed, inputs=kind)
+                    scorer, fit = fit_scorer_with_report(x_list, data.labels, p, config, groups=data.paths)
+                    seconds, cpu = time.monotonic() - t0, time.process_time() - c0
+                    n_weights = sum(w.size + b.size for w, b in zip(scorer.weights, scorer.biases))
+                    print(f"| {kind} | {mix} | {'x'.join(map(str, hidden))} | {context} | {fit.train_frames} | {seed} "
+                          f"| {fit.best_epoch + 1} | {100 * fit.held_out_accuracy:.1f}% | {row(scorer)} "
+                          f"| {n_weights / 1e6:.2f} M | {seconds:.0f} (CPU {cpu:.0f}) |", flush=True)
+                    if args.save:
+                        args.save.mkdir(parents=True, exist_ok=True)
+                        model.scorer = scorer
+                        out = save_model(model, args.save / f"{kind}-{mix}-{'x'.join(map(str, hidden))}-{frames}"
+                                                            f"-s{seed}.model")
+                        print(f"  saved {out}", flush=True)
     return 0
 
 

@@ -328,3 +328,24 @@ def test_command_line_tunes_or_keeps_the_scorer(tone_start, tmp_path, capsys):
     printed = capsys.readouterr().out
     assert "kept the starting model's sound scorer as it is" in printed
     assert load_model(kept).scorer.same_as(start.scorer)
+
+
+def test_a_scorer_reading_other_inputs_is_kept_as_it_is_when_adapting():
+    # Tuning reads the aligned feature frames (cepstra); a starter whose scorer reads log-mel
+    # inputs keeps it untouched, and the summary says why.
+    from dataclasses import replace
+
+    from wordspot.acoustic.scorer import StateScorer
+    from wordspot.model import load_model
+    from wordspot.training.adapt import tune_scorer
+    from wordspot.training.scorer_adapt import ScorerAdaptConfig
+
+    model = load_model("starter")
+    s = model.scorer
+    n_in = 40 * (2 * s.context + 1)
+    w0 = np.random.default_rng(0).normal(size=(n_in, s.weights[0].shape[1]))
+    mel = StateScorer(s.context, np.zeros(n_in), np.ones(n_in), (w0,) + s.weights[1:], s.biases, s.log_prior,
+                      inputs="log-mel")
+    got, info, note = tune_scorer(replace(model, scorer=mel), [], model.mixtures, ScorerAdaptConfig())
+    assert got is mel and info["tuned"] is False
+    assert "not supported yet" in note and "log-mel" in note

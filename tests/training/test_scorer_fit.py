@@ -110,3 +110,14 @@ def test_bad_input_is_named(rng):
         ScorerConfig(hidden=(0,))
     with pytest.raises(TrainingError, match="held_out_share"):
         ScorerConfig(held_out_share=0.9)
+
+
+def test_the_scorer_records_its_inputs(rng):
+    frames, labels = labelled(rng, n_utts=6)
+    quick = {**SMALL, "max_epochs": 1}
+    assert fit_scorer(frames, labels, 5, ScorerConfig(**quick)).inputs == "cepstra"
+    a = fit_scorer(frames, labels, 5, ScorerConfig(**quick, inputs="log-mel"))
+    b = fit_scorer(frames, labels, 5, ScorerConfig(**quick))
+    assert a.inputs == "log-mel" and not a.same_as(b)  # the same weights, another kind of input
+    with pytest.raises(TrainingError, match="scorer inputs must be one of cepstra, log-mel, cepstra\\+log-mel; got 'mfcc'"):
+        ScorerConfig(inputs="mfcc")

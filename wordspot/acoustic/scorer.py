@@ -8,6 +8,11 @@ has one; the pause unit's states are the background). The search wants likelihoo
 the posterior is divided by the state's prior (its share of the training frames): a
 *scaled likelihood*, ``scale * (log P(state | window) - log P(state))``.
 
+What the network reads is named by its ``inputs``: ``"cepstra"``, the model's own feature
+frames (the default, and that of every model file written before the choice existed), or
+another kind that :mod:`wordspot.audio.scorer_inputs` lists and computes from a waveform
+(log mel-band energies, alone or beside the cepstra).
+
 Run time needs numpy alone: input standardisation, ReLU hidden layers and a softmax
 output, in single precision. Fitting lives in :mod:`wordspot.training.scorer_fit`.
 """
@@ -22,7 +27,6 @@ __all__ = ["StateScorer", "stack_context", "SCORER_DTYPE"]
 
 #: Precision of the network's arrays and arithmetic.
 SCORER_DTYPE = np.float32
-
 
 def stack_context(frames: np.ndarray, context: int) -> np.ndarray:
     """Each frame with its ``context`` neighbours on either side, side by side.
@@ -80,6 +84,9 @@ class StateScorer:
         Shapes ``(out,)``, float32.
     log_prior : ndarray, shape (P,), float32
         Log share of each mixture id among the training frames (floored, never -inf).
+    inputs : str
+        What the frames handed to it are (default ``"cepstra"``: the model's features;
+        the kinds: :data:`wordspot.audio.scorer_inputs.INPUT_KINDS`).
     """
 
     context: int
@@ -88,6 +95,7 @@ class StateScorer:
     weights: tuple
     biases: tuple
     log_prior: np.ndarray
+    inputs: str = "cepstra"
 
     def __post_init__(self) -> None:
         cast = lambda a: np.ascontiguousarray(a, dtype=SCORER_DTYPE)  # noqa: E731
@@ -107,6 +115,8 @@ class StateScorer:
             Naming what is wrong.
         """
         c = self.context
+        if not (isinstance(self.inputs, str) and self.inputs):
+            raise ValueError(f"inputs must name what the network reads (e.g. 'cepstra'), got {self.inputs!r}")
         if not (isinstance(c, (int, np.integer)) and not isinstance(c, bool) and c >= 0):
             raise ValueError(f"context must be a whole number >= 0, got {c!r}")
         if not self.weights or len(self.weights) != len(self.biases):
@@ -203,7 +213,7 @@ class StateScorer:
 
     def same_as(self, other: "StateScorer") -> bool:
         """Bit-for-bit equality of every parameter."""
-        if not isinstance(other, StateScorer) or self.context != other.context:
+        if not isinstance(other, StateScorer) or self.context != other.context or self.inputs != other.inputs:
             return False
         pairs = [(self.input_mean, other.input_mean), (self.input_scale, other.input_scale),
                  (self.log_prior, other.log_prior)]

@@ -54,6 +54,7 @@ __all__ = [
     "dct_matrix",
     "LOG_FLOOR",
     "warp_frequencies",
+    "log_mel_bands",
 ]
 
 #: Floor under the mel energies before the log, so silence gives a finite value.
@@ -465,19 +466,7 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
     if not (_is_real(warp) and warp > 0):
         raise FeatureError(f"warp factor must be a number > 0 (1 = no warp), got {warp!r}")
     warp = float(warp)
-    if s.preemphasis > 0:
-        y = np.concatenate([y[:1], y[1:] - s.preemphasis * y[:-1]])
-    # Windowed frames written straight into the zero-padded FFT input; the large
-    # intermediates live in per-thread work arrays (see wordspot.audio.workspace).
-    view = _frames(y, s.window_length, s.hop_length)
-    n_frames, n_bins = view.shape[0], s.n_fft // 2 + 1
-    frames = work_array("fft_input", (n_frames, s.n_fft), np.float64)
-    frames[:, s.window_length :] = 0.0
-    np.multiply(view, _hamming(s.window_length), out=frames[:, : s.window_length])
-    spectrum = np.fft.rfft(frames, axis=1, out=work_array("spectrum", (n_frames, n_bins), np.complex128))
-    power = np.square(spectrum.real, out=work_array("power", (n_frames, n_bins), np.float64))
-    power += np.square(spectrum.imag, out=work_array("power_imag", (n_frames, n_bins), np.float64))
-    mel = power @ _cached_filterbank(s, warp)
+    mel = _power_spectrum(y, s) @ _cached_filterbank(s, warp)
     logmel = np.log(np.maximum(mel, LOG_FLOOR))
     ceps = logmel @ _cached_dct(s.n_mels, s.n_cepstra)
     ceps *= lifter_weights(s.n_cepstra, s.lifter)
@@ -494,6 +483,44 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
         # a constant column (digital silence) stays zero instead of dividing by zero
         feats = feats / np.where(sd > _CVN_MIN_SD, sd, 1.0)
     return np.ascontiguousarray(feats, dtype=np.float32)
+
+
+def _power_spectrum(y: np.ndarray, s: FeatureSettings) -> np.ndarray:
+    """Power spectrum (T, n_fft // 2 + 1) of checked samples ``y`` after pre-emphasis, in a
+    per-thread work array (valid until the next call)."""
+    if s.preemphasis > 0:
+        y = np.concatenate([y[:1], y[1:] - s.preemphasis * y[:-1]])
+    # Windowed frames written straight into the zero-padded FFT input; the large
+    # intermediates live in per-thread work arrays (see wordspot.audio.workspace).
+    view = _frames(y, s.window_length, s.hop_length)
+    n_frames, n_bins = view.shape[0], s.n_fft // 2 + 1
+    frames = work_array("fft_input", (n_frames, s.n_fft), np.float64)
+    frames[:, s.window_length :] = 0.0
+    np.multiply(view, _hamming(s.window_length), out=frames[:, : s.window_length])
+    spectrum = np.fft.rfft(frames, axis=1, out=work_array("spectrum", (n_frames, n_bins), np.complex128))
+    power = np.square(spectrum.real, out=work_array("power", (n_frames, n_bins), np.float64))
+    power += np.square(spectrum.imag, out=work_array("power_imag", (n_frames, n_bins), np.float64))
+    return power
+
+
+def log_mel_bands(wave, settings: FeatureSettings, n_bands: int) -> np.ndarray:
+    """Natural log of ``n_bands`` mel-band energies per frame, (T, n_bands) float64.
+
+    The same pre-emphasis, window, hop, FFT size, band limits and mel scale as
+    :func:`compute_features` (so row ``t`` is the same stretch of sound as its frame
+    ``t``), with ``n_bands`` filters instead of ``settings.n_mels``; energies floored at
+    :data:`LOG_FLOOR`, no normalisation.
+
+    Raises
+    ------
+    FeatureError
+        As :func:`compute_features`, or ``n_bands`` not a whole number >= 1.
+    """
+    if not (_is_int(n_bands) and n_bands >= 1):
+        raise FeatureError(f"n_bands must be a whole number >= 1, got {n_bands!r}")
+    y = _check_wave(wave, settings)
+    bank = _cached_filterbank(dataclasses.replace(settings, n_mels=int(n_bands)))
+    return np.log(np.maximum(_power_spectrum(y, settings) @ bank, LOG_FLOOR))
 
 
 _HAMMING: dict[int, np.ndarray] = {}

@@ -688,6 +688,12 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
                             f"{scorer.frame_dim} values, but the model has {mix.n_mixtures} mixtures and frames "
                             f"of {mix.dim}")
     own = getattr(model, "scorer", None)
+    if own is not None and own.inputs != "cepstra":
+        # the decoder hands the scorer the model's features; other inputs are measured on
+        # dev frames only so far (docs/experiments/2026-12-03-scorer-inputs.md)
+        raise DecodingError(f"the model's state scorer reads {own.inputs} frames, which recognition does not "
+                            "compute yet (only the cepstra the model's features are); use a model whose scorer "
+                            "reads cepstra, such as the shipped starters")
     fits = own is not None and own.n_classes == mix.n_mixtures and own.frame_dim == mix.dim
     return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
                       calibration=calibration, scorer=scorer, posterior_scorer=own if fits else None)

@@ -528,6 +528,11 @@ def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptC
         One plain sentence for the training summary.
     """
     t0 = time.monotonic()
+    if start.scorer.inputs != "cepstra":
+        # tuning reads the aligned feature frames; other inputs are not computed here yet
+        return start.scorer, {"tuned": False, "reason": f"its inputs ({start.scorer.inputs}) are not tuned yet"}, \
+            f"kept the starting model's sound scorer as it is (tuning a scorer on {start.scorer.inputs} " \
+            "inputs is not supported yet)"
     frames, labels = align_for_scorer(items, mix)
     if not labels:
         return start.scorer, {"tuned": False, "reason": "no recording could be aligned"}, \

@@ -390,5 +390,6 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
         counts = t.sum(axis=0, dtype=np.float64) + config.prior_count
         log_prior = np.log(counts / counts.sum())
     tuned = StateScorer(context=scorer.context, input_mean=scorer.input_mean, input_scale=scorer.input_scale,
-                        weights=new_w, biases=new_b, log_prior=np.asarray(log_prior, dtype=SCORER_DTYPE))
+                        weights=new_w, biases=new_b, log_prior=np.asarray(log_prior, dtype=SCORER_DTYPE),
+                        inputs=scorer.inputs)
     return tuned, report

@@ -19,6 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from wordspot.acoustic.scorer import SCORER_DTYPE, StateScorer, stack_context
+from wordspot.audio.scorer_inputs import INPUT_KINDS
 from wordspot.errors import TrainingError
 
 __all__ = ["UNSEEN_LOGIT", "ScorerConfig", "ScorerFit", "fit_scorer", "fit_scorer_with_report", "held_out_split",
@@ -59,6 +60,10 @@ class ScorerConfig:
     prior_count : float > 0
         Added to every class's frame count before the log prior is taken, so a class no
         frame carries still has a finite prior.
+    inputs : str
+        What the frames handed to the fit are (one of
+        :data:`wordspot.audio.scorer_inputs.INPUT_KINDS`; :mod:`wordspot.audio.scorer_inputs`
+        computes them); the scorer records it. Default ``"cepstra"``, the model's features.
     """
 
     hidden: tuple[int, ...] = (512, 512)
@@ -72,6 +77,7 @@ class ScorerConfig:
     held_out_share: float = 0.1
     max_frames: int = 200_000
     prior_count: float = 1.0
+    inputs: str = "cepstra"
 
     def __post_init__(self) -> None:
         def whole(name, low):
@@ -89,6 +95,8 @@ class ScorerConfig:
             v = getattr(self, name)
             if not (isinstance(v, (int, float)) and np.isfinite(v) and v > 0):
                 raise TrainingError(f"scorer {name} must be a number > 0, got {v!r}")
+        if self.inputs not in INPUT_KINDS:
+            raise TrainingError(f"scorer inputs must be one of {', '.join(INPUT_KINDS)}; got {self.inputs!r}")
         if not (isinstance(self.l2, (int, float)) and np.isfinite(self.l2) and self.l2 >= 0):
             raise TrainingError(f"scorer l2 must be a number >= 0, got {self.l2!r}")
         if not (isinstance(self.held_out_share, (int, float)) and 0.0 <= self.held_out_share <= 0.5):
@@ -212,7 +220,8 @@ def fit_scorer_with_report(frames_list, labels_list, n_classes: int, config: Sco
     Parameters
     ----------
     frames_list : list of ndarray, shape (T_i, D)
-        The model's feature frames of each utterance.
+        The scorer's input frames of each utterance (``config.inputs``: by default the
+        model's features).
     labels_list : list of ndarray of int, shape (T_i,)
         The mixture id of every frame (0 .. n_classes - 1).
     n_classes : int
@@ -298,6 +307,7 @@ def fit_scorer_with_report(frames_list, labels_list, n_classes: int, config: Sco
         weights=tuple(coefs),
         biases=tuple(intercepts),
         log_prior=label_log_prior(labels_list, n_classes, config.prior_count).astype(SCORER_DTYPE),
+        inputs=config.inputs,
     )
     report = ScorerFit(train_losses, held_losses, epoch, int(y.size), 0 if hy is None else int(hy.size), acc)
     return scorer, report
