@@ -295,9 +295,11 @@ class _TwoWays:
 
     def decode(self, frames, words, path: str) -> tuple[Recognition, Recognition | None]:
         """``(whole, without_own)`` of one clip that says ``words``."""
-        whole = self.full.decode(frames, path=path)
         rec = self.without(words)
-        return whole, None if rec is None else rec.decode(frames, path=path)
+        if rec is None:
+            return self.full.decode(frames, path=path), None
+        whole, without_own = self.full.decode_with(frames, [rec], path=path)  # state scores computed once
+        return whole, without_own
 
 
 def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,

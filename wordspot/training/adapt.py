@@ -612,7 +612,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     chosen = None
-    used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
+    usable = {it.path for it in items if not it.background}  # made once, not once per recording
+    used = [u for u in utterances if u.path in usable]
     by_speaker = len({u.speaker for u in used}) >= config.speakers_to_hold_out
     choose = config.strength is None and config.follow_passes > 0
     held_utts = list(held_out or [])
