@@ -148,6 +148,7 @@ VARIANTS = {
     "no speed copies": {"follow_speeds": ()},
     "calibrated on whole speakers": {"unheard_calibration": True},
     "calibration's model kept (no training again)": {},
+    "calibration on the choosing model": {"calibrate_choosing_model": True},
 }
 
 #: ``CalibrationConfig`` fields of the ``--whole`` variants that change the calibration

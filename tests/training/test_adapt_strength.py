@@ -259,3 +259,36 @@ def test_strength_zero_makes_no_copies_and_is_the_map_of_before(shifted, monkeyp
 def test_strength_settings_are_checked(field, value):
     with pytest.raises(TrainingError, match=field):
         AdaptationConfig(**{field: value})
+
+
+def test_the_choosing_model_can_be_the_calibrations(shifted, monkeypatch):
+    # With calibrate_choosing_model the calibration's first training returns the model the
+    # strength was chosen with (adapted on the speakers not held out) instead of adapting
+    # all its recordings again: two adaptations there instead of one, the strength the same.
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, held = shifted
+    runs = []
+    real = adapt_module.adapt_items
+
+    def counting(items, *args, **kwargs):
+        runs.append(len([it for it in items if not it.background]))
+        return real(items, *args, **kwargs)
+
+    monkeypatch.setattr(adapt_module, "adapt_items", counting)
+    base = {**QUICK, "speakers_to_hold_out": 3}
+    plain, _ = adapt(many, lex, start, config=AdaptationConfig(**base), held_out=held)
+    assert runs == [len(many) - len(split_by_speaker(many, 0.25, 0)), len(many)]
+    runs.clear()
+    kept, summary = adapt(many, lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True),
+                          held_out=held)
+    voices = split_by_speaker(many, 0.25, 0)
+    assert runs == [len(many) - len(voices)]  # the choosing adaptation only
+    assert kept.info["utterances"] == len(many) - len(voices)
+    assert kept.info["strength"]["follow_passes"] == plain.info["strength"]["follow_passes"]
+    assert kept.info["strength"]["held_out_speakers"] == 1 and "held out" in summary.adapt_note
+    assert not np.array_equal(kept.mixtures.means, plain.mixtures.means)
+    runs.clear()
+    again, _ = adapt(many, lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True))
+    assert runs == [len(many) - len(voices), len(many)]  # no calibration: the model on everything as before
+    np.testing.assert_array_equal(again.mixtures.means, plain.mixtures.means)

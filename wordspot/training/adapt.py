@@ -179,6 +179,12 @@ class AdaptationConfig:
         the demo set against 0.86). Off by default: on the dev voices over three seeds
         the threshold then dropped more words, in noise many more (20 dB deletions 37-50
         against 17-45; docs/experiments/2026-12-03-adaptation-goals.md).
+    calibrate_choosing_model : bool
+        When the strength is chosen on whole speakers held out within the calibration's
+        first training, that training returns the model adapted on the rest with the
+        strength chosen (the one the choice was made with) instead of adapting every
+        recording of it again: one adaptation fewer, the calibration's words recognised
+        by a model that heard fewer of the voices (docs/experiments/2026-12-03-training-time.md).
     """
 
     prior_weight: float = 300.0
@@ -203,6 +209,7 @@ class AdaptationConfig:
     speakers_to_hold_out: int = 3
     held_out_speaker_share: float = 0.25
     unheard_calibration: bool = False
+    calibrate_choosing_model: bool = False
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -633,15 +640,19 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     if held_items and choose:
         chosen_speakers = len({u.speaker for u in held_utts}) if whole else 0
     elif choose and not held_items and (held_out is None or by_speaker):
-        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report)
+        keep = held_out is not None and by_speaker and config.calibrate_choosing_model
+        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report, keep=keep)
         if chosen is not None:
             config = replace(config, strength=chosen["strength"])
     if not choose:
         held_items = []
     if config.strength == 0:
         copies = []
-    mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
-                                          report=report, held_out=held_items, copies=copies)
+    if chosen is not None and "kept" in chosen:  # the choosing adaptation's model is the calibration's
+        mix, summary, transform, items = chosen.pop("kept")
+    else:
+        mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
+                                              report=report, held_out=held_items, copies=copies)
     if held_items and summary.adaptation.get("chosen_on") == "held-out":
         summary.adaptation["held_out_speakers"] = chosen_speakers
     if chosen is not None:
@@ -786,9 +797,10 @@ def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: Adaptat
 
 
 def _choose_on_split(items, used, copies, start: AcousticModel, config: AdaptationConfig, by_speaker: bool,
-                     quiet: bool, report) -> dict | None:
+                     quiet: bool, report, keep: bool = False) -> dict | None:
     """The strength chosen by adapting on all but a held-out part of the recordings (whole
-    speakers when ``by_speaker``, else takes); None when that part is too short."""
+    speakers when ``by_speaker``, else takes); None when that part is too short. With
+    ``keep`` its ``"kept"`` holds that adaptation's (mixtures, summary, transform, items)."""
     if by_speaker:
         held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
     else:
@@ -802,8 +814,14 @@ def _choose_on_split(items, used, copies, start: AcousticModel, config: Adaptati
         what = f"{speakers} speakers' {len(held_items)} recordings" if by_speaker else f"{len(held_items)} recordings"
         report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} held out")
     rest = [it for it in items if it.background or it.path not in held_paths]
-    _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet, report=report,
-                              held_out=held_items, copies=[it for it in copies if it.path not in held_paths])
+    mix, first, transform = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet,
+                                        report=report, held_out=held_items,
+                                        copies=[it for it in copies if it.path not in held_paths])
+    if keep:
+        if report is not None:
+            report(f"strength {first.adaptation['strength']}: this model, adapted on {len(used) - len(held_items)} "
+                   "recordings, is the one the calibration uses")
+        return dict(first.adaptation, held_out_speakers=speakers, kept=(mix, first, transform, rest))
     if report is not None:
         report(f"adapting on all {len(used)} recordings with strength {first.adaptation['strength']}")
     return dict(first.adaptation, held_out_speakers=speakers)
