@@ -292,3 +292,36 @@ def test_the_choosing_model_can_be_the_calibrations(shifted, monkeypatch):
     again, _ = adapt(many, lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True))
     assert runs == [len(many) - len(voices), len(many)]  # no calibration: the model on everything as before
     np.testing.assert_array_equal(again.mixtures.means, plain.mixtures.means)
+
+
+def test_with_no_training_again_the_held_out_copies_are_not_made_and_the_rest_are_the_same(shifted, monkeypatch):
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, _ = shifted
+    made, copies_seen = [], []
+    real_noisy, real_items = adapt_module.noisy_items, adapt_module.adapt_items
+
+    def counting(items, *args, only=None, **kwargs):
+        got = real_noisy(items, *args, only=only, **kwargs)
+        made.extend(it.path for it in got)
+        return got
+
+    def seeing(items, *args, copies=None, **kwargs):
+        copies_seen.append([(it.path, it.frames.copy()) for it in copies or []])
+        return real_items(items, *args, copies=copies, **kwargs)
+
+    monkeypatch.setattr(adapt_module, "noisy_items", counting)
+    monkeypatch.setattr(adapt_module, "adapt_items", seeing)
+    cfg = AdaptationConfig(**{**QUICK, "follow_noise_copies": 2, "follow_speeds": (0.9,)}, strength=1)
+    both, _ = adapting(start, lex, config=cfg)(many[:40], held_out=many[40:50])
+    assert sorted(set(made)) == sorted(u.path for u in many[:50])  # the held-out ten's too, for the next training
+    with_held = copies_seen.pop()
+    made.clear()
+    alone, _ = adapting(start, lex, config=cfg)(many[:40], held_out=many[40:50], again=False)
+    assert sorted(set(made)) == sorted(u.path for u in many[:40]) and len(made) == 80  # two copies each, no more
+    without = copies_seen.pop()
+    # the copies of the forty are those made together with the held-out ten (same babble pool, same recipes)
+    assert [p for p, _ in without] == [p for p, _ in with_held] and len(without) == 40 * 3
+    for (_, a), (_, b) in zip(without, with_held):
+        np.testing.assert_array_equal(a, b)
+    np.testing.assert_array_equal(alone.mixtures.means, both.mixtures.means)

@@ -581,7 +581,7 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
           manifest=None, quiet: bool = True, report=None, held_out=None,
-          cache: ItemCache | None = None) -> tuple[AcousticModel, TrainingSummary]:
+          cache: ItemCache | None = None, held_out_copies: bool = True) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
@@ -593,7 +593,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     ``held_out`` (utterances left out of ``utterances``, e.g. the calibration's) when
     given, else on ``config.held_out_share`` of the recordings held out by
     :func:`wordspot.corpus.split_by_recording`, after which all of them are adapted on
-    with the strength found. ``cache`` keeps prepared recordings between calls.
+    with the strength found. ``cache`` keeps prepared recordings between calls;
+    ``held_out_copies`` (with ``held_out``): also make the held-out recordings' speed and
+    noisy copies in the same go, for a training on everything that follows (False when
+    none does).
 
     Raises
     ------
@@ -632,7 +635,9 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         held_utts = [u for u in held_utts if set(u.words) <= set(held_lex.words)]
         held_items, _ = cache.recordings(held_utts, held_lex, start, config, True)
     # the held-out recordings' copies are made with these in one go, for the training on everything
-    copies = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache)
+    # (when none follows, only drawn with them: the same copies of these, none of theirs)
+    copies = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache,
+                     count=None if held_out_copies else sum(not it.background for it in items))
     held_paths = {it.path for it in held_items} - {u.path for u in used}
     copies = [it for it in copies if it.path not in held_paths]
     if by_speaker and not whole:
@@ -741,24 +746,29 @@ class ItemCache:
                 self.copies[(it.path, it.words)].append(it)
         return [it for u in used for it in self.copies[(u.path, u.words)]]
 
-    def noisy_copies(self, items, speakers, start: AcousticModel, config: AdaptationConfig, quiet: bool) -> list:
+    def noisy_copies(self, items, speakers, start: AcousticModel, config: AdaptationConfig, quiet: bool,
+                     count: int | None = None) -> list:
         """The noisy copies (``config.follow_noise_copies`` at ``config.follow_noise_snr``)
         of the recordings' ``items``, copy-major. Those not made yet are made in one go,
         each recording's recipe (kind, SNR, talkers, noise seed) seeded by ``config.seed``
         and the recording itself (:func:`wordspot.training.noise.recording_key`) rather than
         its place in the list, and kept: each recording is noised once however many
         adaptations use it (the babble's talker streams come from the recordings made in
-        the same go)."""
+        the same go). With ``count``, only the first ``count`` items' copies are made and
+        returned (the rest still make up the go: the same copies as making them all)."""
         noise = NoiseSettings(copies=config.follow_noise_copies, snr_db=config.follow_noise_snr)
         store = self.noisy.setdefault((config.seed, noise.copies, noise.snr_db), {})
+        count = len(items) if count is None else count
         missing = [k for k, it in enumerate(items) if (it.path, it.words) not in store]
-        if missing:
+        if any(k < count for k in missing):
             todo = [items[k] for k in missing]
+            only = [j for j, k in enumerate(missing) if k < count]
             got = noisy_items(todo, [speakers[k] for k in missing], noise, start.features, seed=config.seed,
-                              jobs=config.jobs, quiet=quiet, keys=[recording_key(it.path, it.words) for it in todo])
-            for j, it in enumerate(todo):
-                store[(it.path, it.words)] = got[j::len(todo)]
-        return [store[(it.path, it.words)][c] for c in range(noise.copies) for it in items]
+                              jobs=config.jobs, quiet=quiet, keys=[recording_key(it.path, it.words) for it in todo],
+                              only=None if len(only) == len(todo) else only)
+            for j, it in enumerate([todo[j] for j in only]):
+                store[(it.path, it.words)] = got[j::len(only)]
+        return [store[(it.path, it.words)][c] for c in range(noise.copies) for it in items[:count]]
 
 
 def _prepared(utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
@@ -781,18 +791,21 @@ def _follows(config: AdaptationConfig) -> bool:
 
 
 def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
-            cache: ItemCache) -> list:
+            cache: ItemCache, count: int | None = None) -> list:
     """Speed and noisy copies of the usable recordings for the following passes (none when
-    no following pass can run); each recording's copies are made once (``cache``)."""
+    no following pass can run); each recording's copies are made once (``cache``). With
+    ``count``, those of the first ``count`` recordings among ``items`` only (the noisy
+    copies drawn as for all of them)."""
     if not _follows(config):
         return []
     clean = [it for it in items if not it.background]
-    paths = {it.path for it in clean}
+    count = len(clean) if count is None else count
+    paths = {it.path for it in clean[:count]}
     out = cache.speed_copies([u for u in used if u.path in paths], lexicon, start, config, quiet) \
         if config.follow_speeds else []
     if config.follow_noise_copies:
         speaker = {u.path: u.speaker for u in used}
-        out += cache.noisy_copies(clean, [speaker[it.path] for it in clean], start, config, quiet)
+        out += cache.noisy_copies(clean, [speaker[it.path] for it in clean], start, config, quiet, count=count)
     return out
 
 
@@ -877,19 +890,21 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
 
     Made for :func:`wordspot.evaluation.calibrate.train_calibrated`: its first call, with
     the calibration's held-out recordings, chooses the strength on them; later calls without
-    held-out recordings (training again on every recording) reuse that strength. Carries
+    held-out recordings (training again on every recording) reuse that strength. ``again``
+    False says no training on every recording follows (the held-out recordings' copies are
+    then not made). Carries
     ``start_calibration`` (the starting model's calibration, the fallback) and
     ``takes_held_out``.
     """
     chosen: dict = {}
     cache = ItemCache()
 
-    def fit(utterances, held_out=None):
+    def fit(utterances, held_out=None, again=True):
         cfg = config
         if held_out is None and config.strength is None and chosen:
             cfg = replace(config, strength=chosen["follow_passes"])
         model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest, quiet=quiet,
-                               report=report, held_out=held_out, cache=cache)
+                               report=report, held_out=held_out, cache=cache, held_out_copies=again)
         if held_out is not None and config.strength is None:
             chosen.clear()
             chosen.update(model.info["strength"])
