@@ -183,8 +183,10 @@ class AdaptationConfig:
         When the strength is chosen on whole speakers held out within the calibration's
         first training, that training returns the model adapted on the rest with the
         strength chosen (the one the choice was made with) instead of adapting every
-        recording of it again: one adaptation fewer, the calibration's words recognised
-        by a model that heard fewer of the voices (docs/experiments/2026-12-03-training-time.md).
+        recording of it, when a training on every recording follows (``--refit``): one
+        adaptation fewer, the calibration's words recognised by a model that heard fewer
+        of the voices. Off: a few more words dropped at the threshold on dev
+        (docs/experiments/2026-12-03-training-time.md).
     """
 
     prior_weight: float = 300.0
@@ -645,7 +647,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     if held_items and choose:
         chosen_speakers = len({u.speaker for u in held_utts}) if whole else 0
     elif choose and not held_items and (held_out is None or by_speaker):
-        keep = held_out is not None and by_speaker and config.calibrate_choosing_model
+        # (only when a training on everything follows: else this model would be the one written)
+        keep = held_out is not None and by_speaker and config.calibrate_choosing_model and held_out_copies
         chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report, keep=keep)
         if chosen is not None:
             config = replace(config, strength=chosen["strength"])
