@@ -65,8 +65,9 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
     calibration : bool or CalibrationConfig
         Fit the word-confidence calibration on recordings held out of a first training
         (:mod:`wordspot.evaluation.calibrate`); False: none (heuristic confidences). Unless
-        the configuration says ``refit``, the model is the one trained without the held-out
-        share (an adapted one is adapted again on every recording only after folds).
+        the configuration says ``refit``, an adapted model is adapted again on every
+        recording, while a model trained from scratch is the one trained without the
+        held-out share (training twice takes twice as long).
     quiet : bool
         No progress bars.
 

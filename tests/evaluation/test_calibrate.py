@@ -176,33 +176,9 @@ def test_a_starting_calibration_over_posterior_measures_needs_a_scorer(rng):
 
 
 def test_refit_default_depends_on_the_kind_of_training():
-    assert CalibrationConfig().decided(adapting=True).refit is None  # settled by the split (below)
+    assert CalibrationConfig().decided(adapting=True).refit is True
     assert CalibrationConfig().decided(adapting=False).refit is False
     assert CalibrationConfig(refit=True).decided(adapting=False).refit is True
-    assert CalibrationConfig(refit=False).decided(adapting=True).refit is False
-
-
-def test_adapting_trains_again_by_default_only_after_folds(rng, monkeypatch):
-    # One held-out share: the model the calibration was fitted with is kept (one training);
-    # folds: each fold's model lacks a fifth of the recordings, so it trains again on all.
-    model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
-    calls = []
-
-    def fake_train(part, held_out=None, again=True):
-        calls.append((len(part), again))
-        return replace(model, info={"call": len(calls)}), None
-
-    fake_train.takes_held_out = True
-    monkeypatch.setattr(calibrate, "calibration_examples", lambda m, held, **_: _examples(20, 25, recordings=len(held)))
-    cfg = CalibrationConfig().decided(adapting=True)
-    utts = _utterances(speakers=10, takes=5)  # 150 recordings, 50 a transcript
-    (rest, _), = calibrate.held_out_parts(utts, cfg)[0]
-    out, _ = train_calibrated(fake_train, utts, config=cfg)
-    assert calls == [(len(rest), False)] and out.info["call"] == 1
-    assert out.info["calibration"]["refit_on_all"] is False
-    calls.clear()
-    out, _ = train_calibrated(fake_train, _unique_utterances(60), config=cfg)
-    assert calls == [(48, True)] * 5 + [(60, True)] and out.info["calibration"]["refit_on_all"] is True
 
 
 @pytest.mark.parametrize("share", [0.0, 1.0, -0.2, True])

@@ -55,7 +55,7 @@ def test_calibration_is_stored_with_its_measures(calibrated):
     assert model.calibration.names == want and set(want) <= set(MEASURE_NAMES)
     info = model.info["calibration"]
     assert info["held_out_recordings"] >= 20 and info["right_words"] >= 5 and info["wrong_words"] >= 5
-    assert info["refit_on_all"] is False  # the model the calibration was fitted with is kept
+    assert info["refit_on_all"] is True
 
 
 def test_confidences_on_an_unheard_voice_rank_and_match_the_share_right(calibrated):

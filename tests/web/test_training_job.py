@@ -30,15 +30,14 @@ def _progress(lines):
     return job.status()["progress"]
 
 
-def test_progress_counts_the_trainings_of_a_calibrated_adaptation():
+def test_progress_counts_both_trainings_of_a_calibrated_adaptation():
     # the most passes an adaptation may take (the strength is chosen as it goes)
     passes = AdaptationConfig().passes + int(AdaptationConfig().mean_transform) + AdaptationConfig().follow_passes
     first = ["confidence calibration: training on 80 recordings, 14 held out"]
     first += [ADAPT_LEGEND] + [f"adapt pass {k}  fit -40.0" for k in range(1, passes + 1)]
-    # by default the calibration's training is the only one: all its passes are the whole run
-    assert _progress(first) == pytest.approx(1.0)
-    # worked by hand: when a training on every take follows (--refit), the first one was half
-    # the run, one pass of the second a further 1 / (2 x passes)
+    # worked by hand: all passes of the first of two trainings are half the run, one more a
+    # further 1 / (2 x passes)
+    assert _progress(first) == pytest.approx(0.5)
     again = first + ["confidence calibration: training again on all 94 recordings", "adapt pass 1  ..."]
     assert _progress(again) == pytest.approx(0.5 + 0.5 / passes)
     # calibration skipped (too few takes): one training, the passes over its own count

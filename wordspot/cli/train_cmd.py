@@ -46,8 +46,8 @@ rise from pass to pass; the summary lists skipped recordings and units without d
 
 Word confidences are calibrated by default: 15% of each transcript's recordings are held
 out of a first training, recognised, and a logistic regression learns from them how
-often a word with given scores is right; the model trained without them is kept (unless
---refit, or folds were needed) and stores the fit, so
+often a word with given scores is right; the model is then trained again on everything
+(adapting; from scratch the first model is kept unless --refit) and stores the fit, so
 `wordspot recognize` reports each word's confidence as the probability that it is right.
 When transcripts rarely repeat (sentences, one take per word), 15% of the whole set is
 held out instead, or, still too few, five parts each held out once. With fewer than 20
@@ -170,9 +170,9 @@ def add_parser(sub, **options):
                      "order, whose words count as wrong when fitting the calibration: your own voice "
                      f"saying no command (default {CalibrationConfig.jumbled}; 0: none)")
     cal.add_argument("--refit", action=argparse.BooleanOptionalAction, default=None,
-                     help="after calibrating, train again on every recording (default: no, the model "
-                     "trained without the held-out share is kept, the one the calibration was fitted with; "
-                     "yes when adapting on so few recordings that the calibration holds out folds)")
+                     help="after calibrating, train again on every recording (default: yes when adapting, "
+                     "no with --from-scratch, which keeps the model trained without the held-out share "
+                     "rather than take twice as long)")
     p.add_argument("--sample-rate", type=int, default=None, metavar="HZ",
                    help="model sample rate: 16000 (default) or 8000 for telephone recordings; when "
                    "adapting it must match the starting model's")

@@ -24,8 +24,8 @@ from scratch; this module does not import training, the caller hands it in):
    :func:`wordspot.training.backgrounds.background_wave`), every word heard there wrong;
 4. fit the logistic regression of right / wrong on the words' measures
    (:func:`wordspot.util.logistic.fit_logistic`);
-5. train again on every recording (``refit``; else keep the model trained on the rest,
-   the one the calibration was fitted with) and store the calibration in that model.
+5. train again on every recording (``refit``; else keep the model trained on the rest)
+   and store the calibration in that model.
 
 Too few held-out recordings, or too few words of one kind, skip the calibration with one
 warning; the model then keeps the heuristic confidence.
@@ -118,14 +118,9 @@ class CalibrationConfig:
     seed : int
         Seed of the choice of held-out recordings.
     refit : bool or None
-        Train again on every recording once the calibration is fitted. None: only when
-        adapting and the held-out recordings are folds (too few recordings to hold out a
-        share once: every fold's model lacks a fifth of them); else the model trained
-        without the held-out share is kept, the one the calibration was fitted with. On
-        the dev voices over three seeds keeping it was as good as adapting again, at two
-        thirds of the adaptations (docs/experiments/2026-12-03-training-time.md); from
-        scratch training again takes minutes. :meth:`decided` settles it for training from
-        scratch (no), :func:`train_calibrated` for adapting.
+        Train again on every recording once the calibration is fitted. None: yes when
+        adapting (seconds), no when training from scratch (minutes; the model trained
+        without the held-out share is kept). Decided by the caller of :func:`train_calibrated`.
     min_items : int
         Fewest held-out recordings to fit on.
     min_per_class : int
@@ -201,9 +196,8 @@ class CalibrationConfig:
                                 f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
 
     def decided(self, *, adapting: bool) -> "CalibrationConfig":
-        """This configuration with ``refit`` settled for training from scratch (as given, else
-        False); when adapting, None is left for :func:`train_calibrated` (yes after folds only)."""
-        return self if self.refit is not None or adapting else replace(self, refit=False)
+        """This configuration with ``refit`` settled: as given, else True when adapting."""
+        return self if self.refit is not None else replace(self, refit=adapting)
 
 
 @dataclass
@@ -740,8 +734,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                      jobs: int = 1):
     """Train with ``train(utterances) -> (model, summary)`` and store a fitted calibration.
 
-    ``config.refit`` should be decided (:meth:`CalibrationConfig.decided`; None trains
-    again after folds only). Returns what the last
+    ``config.refit`` should be decided (:meth:`CalibrationConfig.decided`; None counts as
+    False). Returns what the last
     call of ``train`` returned, its model carrying the calibration (or none, with a warning,
     when there was too little to fit on) and ``info["calibration"]`` describing the fit.
     The held-out recordings are ``train.speakers_apart(utterances)`` when ``train`` has
@@ -779,7 +773,6 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     jumbled = config.jumbled if len(parts) == 1 else -(-config.jumbled // len(parts))
     phrases = config.phrases if len(parts) == 1 else -(-config.phrases // len(parts))
     noise_clips = config.noise_clips if len(parts) == 1 else -(-config.noise_clips // len(parts))
-    again = bool(config.refit) if config.refit is not None else how == "folds"
     for f, (rest, held) in enumerate(parts):
         if how == "folds":
             say(f"confidence calibration: fold {f + 1} of {len(parts)}: training on {len(rest)} recordings, "
@@ -790,7 +783,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         else:
             say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out"
                 + (" across the whole set (transcripts rarely repeat)" if how == "across the set" else ""))
-        model, summary = _trained(train, rest, held, again=again)
+        model, summary = _trained(train, rest, held, again=bool(config.refit))
         if how == "whole speakers":
             held = recognised_share(held, len(utterances), config)
         examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,
@@ -812,7 +805,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
         f"{examples.right.size - n_right} wrong ({n_removed} of them heard with the recording's own words "
         f"removed, {n_jumbled} in jumbled speech){conditions}" + ("" if calibration is not None else "; not fitted"))
-    if again:
+    if config.refit:
         say(f"confidence calibration: training again on all {len(utterances)} recordings")
         model, summary = train(utterances)
     if calibration is None:
@@ -837,7 +830,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                         **({"noise_clips": noise_clips * len(parts), "words_in_noise_clips": n_clips}
                            if config.noise_clips else {}),
                         "measures": list(calibration.names),
-                        "refit_on_all": again}})
+                        "refit_on_all": bool(config.refit)}})
     return model, summary
 
 

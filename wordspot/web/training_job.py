@@ -23,7 +23,8 @@ from wordspot.training.workers import PARENT_VARIABLE
 __all__ = ["TrainingJob", "train_command"]
 
 _PASS_RE = re.compile(r"^\s*(?:adapt\s+)?pass\s+(\d+)\b")
-# what wordspot.evaluation.calibrate reports before a second training
+# what wordspot.evaluation.calibrate reports before its first and its second training
+_FIRST_OF_TWO = "confidence calibration: training on "
 _SECOND = "confidence calibration: training again"
 _KEEP_LINES = 200
 
@@ -95,9 +96,10 @@ class TrainingJob:
                     m = _PASS_RE.match(line)
                     if m:
                         self._pass = int(m.group(1))
-                    elif line.startswith(_SECOND):  # a training on every take follows (--refit, folds)
+                    elif line.startswith(_FIRST_OF_TWO) and not self._from_scratch:
+                        self._rounds = 2  # adapting trains again on every take (--refit)
+                    elif line.startswith(_SECOND):
                         self._round, self._pass = self._round + 1, 0
-                        self._rounds = max(self._rounds, self._round + 1)
         process.wait()
 
     def status(self) -> dict:
