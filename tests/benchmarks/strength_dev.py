@@ -147,16 +147,14 @@ VARIANTS = {
     "means + weights": {"follow_variances": False},
     "no speed copies": {"follow_speeds": ()},
     "calibrated on whole speakers": {"unheard_calibration": True},
-    "adapted again on every recording (before)": {},
+    "calibration's model kept (--no-refit)": {},
     "calibration on the choosing model": {"calibrate_choosing_model": True},
 }
 
 #: ``CalibrationConfig`` fields of the ``--whole`` variants that change the calibration
-#: (the others use ``api.train``'s default calibration: since 2026-12-03 the calibration's
-#: model is kept, docs/experiments/2026-12-03-training-time.md).
+#: (the others use ``api.train``'s default calibration, docs/experiments/2026-12-03-training-time.md).
 CALIBRATION_VARIANTS = {
-    "adapted again on every recording (before)": {"refit": True},
-    "calibration on the choosing model": {"refit": True},
+    "calibration's model kept (--no-refit)": {"refit": False},
 }
 
 

@@ -428,11 +428,10 @@ def main(argv=None) -> int:
     ap.add_argument("--clip-kinds", nargs="+", default=None,
                     help="with --variants: the kinds of the calibration's noise clips, babble added "
                          "(default: the package's background kinds)")
-    ap.add_argument("--refit", action="store_true",
-                    help="train again on every recording after calibrating (the default before 2026-12-03)")
+    ap.add_argument("--no-refit", action="store_true",
+                    help="keep the calibration's model (no adapting again on every recording)")
     ap.add_argument("--choosing-model", action="store_true",
-                    help="train again on every recording, the calibration on the model the strength was chosen "
-                    "with (calibrate_choosing_model)")
+                    help="the calibration on the model the strength was chosen with (calibrate_choosing_model)")
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
                     help="with --variants: thresholds shown in the tables")
     ap.add_argument("--save", type=Path, default=None,
@@ -463,7 +462,7 @@ def main(argv=None) -> int:
                               config=None if args.from_scratch else AdaptationConfig(
                                   calibrate_choosing_model=args.choosing_model, jobs=2),
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
-                                                            **({"refit": True} if args.refit or args.choosing_model else {}),
+                                                            **({"refit": False} if args.no_refit else {}),
                                                             **({"speeds": tuple(args.speeds)} if args.speeds else {}),
                                                             **({} if args.jumbled is None else {"jumbled": args.jumbled})))
             if sets is None:
