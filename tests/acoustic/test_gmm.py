@@ -135,3 +135,40 @@ def test_split_heaviest(rng):
     assert np.count_nonzero(sel.weights[0]) == 4 and np.count_nonzero(sel.weights[1]) == 1
     np.testing.assert_allclose(sel.weights.sum(axis=1), 1.0)
     assert np.all(np.isfinite(sel.means)) and np.all(sel.variances > 0)
+
+
+def test_posteriors_formed_where_used_give_the_same_statistics_bit_for_bit(rng):
+    # The statistics pass forms component posteriors only where a mixture is used
+    # (mixture_log_likelihoods + accumulate_from_scores); the sums must be exactly those of
+    # mixture_posteriors + accumulate_moments, including an impossible mixture (all -inf),
+    # a switched-off component (weight 0) and pruned frames.
+    mix = random_mixtures(rng, p=6, m=4, d=7)
+    x = rng.normal(0, 2, (40, 7))
+    w, c = scoring_matrix(mix)
+    comp = kernels.score_components(x, w, c).reshape(40, 6, 4)
+    comp[5:9, 2, :] = -np.inf
+    ll, post = kernels.mixture_posteriors(comp)
+    got_ll, top, total = kernels.mixture_log_likelihoods(comp)
+    np.testing.assert_array_equal(got_ll, ll)
+    assert np.all(np.isneginf(top[5:9, 2])) and np.all(total[5:9, 2] == 0)
+    gamma = rng.uniform(0, 1, (40, 6)) ** 4
+    gamma[gamma < 1e-2] = 0.0
+    gamma[:, 1] = 0.0
+    for a, b in zip(kernels.accumulate_from_scores(x, comp, top, total, gamma),
+                    kernels.accumulate_moments(x, post, gamma)):
+        np.testing.assert_array_equal(a, b)
+    # and not trivially: the sums are not zero
+    assert kernels.accumulate_from_scores(x, comp, top, total, gamma)[0].sum() > 1
+
+
+def test_mixture_occupancy_sums_states_as_add_at(rng):
+    gamma = rng.uniform(0, 1, (25, 9))
+    local = np.array([0, 1, 1, 2, 0, 3, 2, 2, 1], dtype=np.int64)
+    want = np.zeros((25, 4))
+    np.add.at(want.T, local, gamma.T)
+    np.testing.assert_array_equal(kernels.mixture_occupancy(gamma, local, 4, 0.0), want)
+    pruned = want.copy()
+    pruned[pruned < 0.9] = 0.0
+    got = kernels.mixture_occupancy(gamma, local, 4, 0.9)
+    np.testing.assert_array_equal(got, pruned)
+    assert (got == 0).any() and (got > 0).any()

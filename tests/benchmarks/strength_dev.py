@@ -147,6 +147,14 @@ VARIANTS = {
     "means + weights": {"follow_variances": False},
     "no speed copies": {"follow_speeds": ()},
     "calibrated on whole speakers": {"unheard_calibration": True},
+    "calibration's model kept (--no-refit)": {},
+    "calibration on the choosing model": {"calibrate_choosing_model": True},
+}
+
+#: ``CalibrationConfig`` fields of the ``--whole`` variants that change the calibration
+#: (the others use ``api.train``'s default calibration, docs/experiments/2026-12-03-training-time.md).
+CALIBRATION_VARIANTS = {
+    "calibration's model kept (--no-refit)": {"refit": False},
 }
 
 
@@ -249,6 +257,7 @@ def whole(args) -> int:
 
     from wordspot import api
     from wordspot.corpus import read_manifest
+    from wordspot.evaluation.calibrate import CalibrationConfig
     from wordspot.training.adapt import AdaptationConfig
 
     rec = REPO / "recordings"
@@ -278,9 +287,10 @@ def whole(args) -> int:
                 for data, manifest in manifests.items():
                     clips = sets if data == "all" else {"new words": sets["new words"]}
                     t0 = time.process_time()
+                    cal = CalibrationConfig(**CALIBRATION_VARIANTS[name]) if name in CALIBRATION_VARIANTS else True
                     model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start="starter",
                                       config=AdaptationConfig(jobs=args.jobs, strength=args.strength, seed=seed,
-                                                              **VARIANTS[name]))
+                                                              **VARIANTS[name]), calibration=cal)
                     secs = time.process_time() - t0
                     cells = {k: _cell(_tally(model, clips[k], None)) if k in clips else "" for k in sets}
                     zero = {k: _cell(_tally(model, clips[k], 0.0)) if k in clips else "" for k in sets}

@@ -428,6 +428,10 @@ def main(argv=None) -> int:
     ap.add_argument("--clip-kinds", nargs="+", default=None,
                     help="with --variants: the kinds of the calibration's noise clips, babble added "
                          "(default: the package's background kinds)")
+    ap.add_argument("--no-refit", action="store_true",
+                    help="keep the calibration's model (no adapting again on every recording)")
+    ap.add_argument("--choosing-model", action="store_true",
+                    help="the calibration on the model the strength was chosen with (calibrate_choosing_model)")
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
                     help="with --variants: thresholds shown in the tables")
     ap.add_argument("--save", type=Path, default=None,
@@ -444,14 +448,21 @@ def main(argv=None) -> int:
     from wordspot.evaluation.calibrate import CalibrationConfig
     from wordspot.evaluation.scoring import align_words
 
+    from posterior_confidence_dev import operating_eer
+    from wordspot.training.adapt import AdaptationConfig
+
     table = {(f, t): [] for f in args.filler_penalty for t in THRESHOLDS}
+    eers = {f: [] for f in args.filler_penalty}
     sets = None
     with tempfile.TemporaryDirectory() as tmp:
         manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
         for seed, fp in [(seed, fp) for fp in args.filler_penalty for seed in args.seeds]:
             settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start=None if args.from_scratch else "starter",
+                              config=None if args.from_scratch else AdaptationConfig(
+                                  calibrate_choosing_model=args.choosing_model, jobs=2),
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
+                                                            **({"refit": False} if args.no_refit else {}),
                                                             **({"speeds": tuple(args.speeds)} if args.speeds else {}),
                                                             **({} if args.jumbled is None else {"jumbled": args.jumbled})))
             if sets is None:
@@ -460,6 +471,11 @@ def main(argv=None) -> int:
             heard = {name: [(ref, [(s.word, s.confidence) for s in rec.decode(
                 compute_features(wave, model.features)).segments]) for wave, ref in items]
                 for name, items in sets.items()}
+            # the EER of the dev commands against the files with no command (posterior_confidence_dev's rule)
+            eers[fp].append(100 * operating_eer(
+                [(ref, [w for w, _ in hyp], np.array([c for _, c in hyp])) for ref, hyp in heard["words"]],
+                [([w for w, _ in hyp], np.array([c for _, c in hyp])) for name in ("other talk", "noise only")
+                 for _, hyp in heard.get(name, [])]))
             for t in THRESHOLDS:
                 row = []
                 for name, items in heard.items():
@@ -478,6 +494,9 @@ def main(argv=None) -> int:
              "real phrases": "real phrases WER"}
     names = [label.get(name, f"{name}: files not exactly right" if name not in ("other talk", "noise only")
                        else f"{name}: files with a command") for name in sets]
+    for fp, e in eers.items():
+        print(f"filler {fp:g}: EER of the dev commands against the no-command files {np.mean(e):.1f}% "
+              f"({min(e):.1f}-{max(e):.1f}); per seed " + ", ".join(f"{v:.1f}" for v in e))
     print(f"seeds {args.seeds}: mean (min-max)")
     print("| filler penalty | threshold | " + " | ".join(names) + " |")
     print("| ---: | ---: |" + " ---: |" * len(names))

@@ -320,3 +320,29 @@ def test_single_precision_exp_over_its_whole_range():
     tiny = np.array([-100.0, -np.inf], dtype=np.float32)
     decode_kernels._exp_nonpositive(tiny, out[:2], np.empty(2, dtype=np.int32))
     assert np.all(out[:2] >= 0) and np.all(out[:2] < 2e-38)
+
+def test_decoding_with_fewer_words_shares_the_state_scores_and_finds_the_same(rng):
+    # The calibration recognises each held-out clip with the whole lexicon and without its
+    # own words: the same model, so the state scores are computed once (decode_with); the
+    # recognitions must be those of decoding twice.
+    model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS, n_components=2)
+    settings = DecoderSettings(min_confidence=0.0)
+    full = build_recognizer(model, settings=settings)
+    fewer = build_recognizer(model, settings=settings, lexicon=model.lexicon.restricted_to(["bat", "tab"]))
+    assert full.shares_scores_with(fewer)  # with the background words every phone is scored in both
+    other = build_recognizer(model, settings=DecoderSettings(min_confidence=0.0, beam=50.0))
+    assert not full.shares_scores_with(other)
+    x = frames_along(model, pause_mixtures(model, 10) + word_mixtures(model, ["S", "AA", "K"])
+                     + pause_mixtures(model, 10), rng)
+    for others in ([fewer], [fewer, other], []):
+        got = full.decode_with(x, others, path="clip.wav")
+        want = [r.decode(x, path="clip.wav") for r in [full] + others]
+        assert len(got) == len(want)
+        for a, b in zip(got, want):
+            assert [s.word for s in a.segments] == [s.word for s in b.segments]
+            assert a.score == b.score and a.reason == b.reason
+            np.testing.assert_array_equal([s.measures for s in a.segments + a.dropped],
+                                          [s.measures for s in b.segments + b.dropped])
+    assert [s.word for s in full.decode_with(x, [fewer])[0].segments] == ["sack"]
+    short = x[:2]  # too short for the network: both say why, as decode does
+    assert [r.reason for r in full.decode_with(short, [fewer])] == [full.decode(short).reason, fewer.decode(short).reason]

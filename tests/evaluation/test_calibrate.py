@@ -309,10 +309,11 @@ def test_too_few_for_a_share_hold_out_every_recording_once_in_folds():
 def test_unique_transcripts_still_give_a_calibration(rng, monkeypatch):
     utts = _unique_utterances(60)
     model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
-    calls = []
+    calls, agains = [], []
 
-    def fake_train(part, held_out=None):
+    def fake_train(part, held_out=None, again=True):
         calls.append((len(part), None if held_out is None else len(held_out)))
+        agains.append(again)
         return replace(model, info={"call": len(calls)}), None
 
     fake_train.takes_held_out = True
@@ -321,6 +322,10 @@ def test_unique_transcripts_still_give_a_calibration(rng, monkeypatch):
     out, _ = train_calibrated(fake_train, utts, config=CalibrationConfig(refit=True), report=lines.append)
     # five folds, each trained with its held-out part handed in, then once on everything
     assert calls == [(48, 12)] * 5 + [(60, None)]
+    assert agains == [True] * 6  # each fold's training is told that a training on everything follows
+    calls.clear(), agains.clear()
+    train_calibrated(fake_train, utts, config=CalibrationConfig(refit=False))
+    assert calls == [(48, 12)] * 5 and agains == [False] * 5
     assert out.calibration is not None and out.info["calibration"]["held_out"] == "folds"
     assert out.info["calibration"]["held_out_recordings"] == 60 and out.info["calibration"]["right_words"] == 20
     assert "each held out once in 5 folds" in calibrate.calibration_note(out)
@@ -332,7 +337,7 @@ def test_whole_speakers_named_by_the_training_function_are_held_out(rng, monkeyp
     model = tiny_model(rng, {w: [["AA", "B"]] for w in WORDS})
     calls, recognised = [], []
 
-    def fake_train(part, held_out=None):
+    def fake_train(part, held_out=None, again=True):
         calls.append((list(part), None if held_out is None else list(held_out)))
         return replace(model, info={"call": len(calls)}), None
 

@@ -259,3 +259,69 @@ def test_strength_zero_makes_no_copies_and_is_the_map_of_before(shifted, monkeyp
 def test_strength_settings_are_checked(field, value):
     with pytest.raises(TrainingError, match=field):
         AdaptationConfig(**{field: value})
+
+
+def test_the_choosing_model_can_be_the_calibrations(shifted, monkeypatch):
+    # With calibrate_choosing_model the calibration's first training returns the model the
+    # strength was chosen with (adapted on the speakers not held out) instead of adapting
+    # all its recordings again: two adaptations there instead of one, the strength the same.
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, held = shifted
+    runs = []
+    real = adapt_module.adapt_items
+
+    def counting(items, *args, **kwargs):
+        runs.append(len([it for it in items if not it.background]))
+        return real(items, *args, **kwargs)
+
+    monkeypatch.setattr(adapt_module, "adapt_items", counting)
+    base = {**QUICK, "speakers_to_hold_out": 3}
+    plain, _ = adapt(many, lex, start, config=AdaptationConfig(**base), held_out=held)
+    assert runs == [len(many) - len(split_by_speaker(many, 0.25, 0)), len(many)]
+    runs.clear()
+    kept, summary = adapt(many, lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True),
+                          held_out=held)
+    voices = split_by_speaker(many, 0.25, 0)
+    assert runs == [len(many) - len(voices)]  # the choosing adaptation only
+    assert kept.info["utterances"] == len(many) - len(voices)
+    assert kept.info["strength"]["follow_passes"] == plain.info["strength"]["follow_passes"]
+    assert kept.info["strength"]["held_out_speakers"] == 1 and "held out" in summary.adapt_note
+    assert not np.array_equal(kept.mixtures.means, plain.mixtures.means)
+    runs.clear()
+    again, _ = adapt(many, lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True))
+    assert runs == [len(many) - len(voices), len(many)]  # no calibration: the model on everything as before
+    np.testing.assert_array_equal(again.mixtures.means, plain.mixtures.means)
+
+
+def test_with_no_training_again_the_held_out_copies_are_not_made_and_the_rest_are_the_same(shifted, monkeypatch):
+    from wordspot.training import adapt as adapt_module
+
+    start, lex, many, _ = shifted
+    made, copies_seen = [], []
+    real_noisy, real_items = adapt_module.noisy_items, adapt_module.adapt_items
+
+    def counting(items, *args, only=None, **kwargs):
+        got = real_noisy(items, *args, only=only, **kwargs)
+        made.extend(it.path for it in got)
+        return got
+
+    def seeing(items, *args, copies=None, **kwargs):
+        copies_seen.append([(it.path, it.frames.copy()) for it in copies or []])
+        return real_items(items, *args, copies=copies, **kwargs)
+
+    monkeypatch.setattr(adapt_module, "noisy_items", counting)
+    monkeypatch.setattr(adapt_module, "adapt_items", seeing)
+    cfg = AdaptationConfig(**{**QUICK, "follow_noise_copies": 2, "follow_speeds": (0.9,)}, strength=1)
+    both, _ = adapting(start, lex, config=cfg)(many[:40], held_out=many[40:50])
+    assert sorted(set(made)) == sorted(u.path for u in many[:50])  # the held-out ten's too, for the next training
+    with_held = copies_seen.pop()
+    made.clear()
+    alone, _ = adapting(start, lex, config=cfg)(many[:40], held_out=many[40:50], again=False)
+    assert sorted(set(made)) == sorted(u.path for u in many[:40]) and len(made) == 80  # two copies each, no more
+    without = copies_seen.pop()
+    # the copies of the forty are those made together with the held-out ten (same babble pool, same recipes)
+    assert [p for p, _ in without] == [p for p, _ in with_held] and len(without) == 40 * 3
+    for (_, a), (_, b) in zip(without, with_held):
+        np.testing.assert_array_equal(a, b)
+    np.testing.assert_array_equal(alone.mixtures.means, both.mixtures.means)

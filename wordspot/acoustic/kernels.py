@@ -38,6 +38,9 @@ __all__ = [
     "score_components",
     "mixture_posteriors",
     "accumulate_moments",
+    "mixture_log_likelihoods",
+    "accumulate_from_scores",
+    "mixture_occupancy",
     "reference_score_components",
     "reference_mixture_posteriors",
     "reference_accumulate_moments",
@@ -306,6 +309,124 @@ def accumulate_moments(frames, post, mixture_gamma):
                 continue
             for m in range(n_comp):
                 r = g * post[t, k, m]
+                if r == 0.0:
+                    continue
+                occ[k, m] += r
+                for d in range(dim):
+                    first[k, m, d] += r * frames[t, d]
+                    second[k, m, d] += r * sq[d]
+    return occ, first, second
+
+
+@njit(cache=True)
+def mixture_log_likelihoods(comp):
+    """Mixture log-likelihoods and the two numbers each is made of, without the posteriors.
+
+    The first half of :func:`mixture_posteriors`: ``loglik = top + log(total)`` with
+    ``top`` the largest component score and ``total = sum_m exp(comp - top)``.
+    :func:`accumulate_from_scores` forms a component's posterior from ``top`` and
+    ``total`` only where its mixture is used, with the same operations, so the statistics
+    are bit for bit those of :func:`mixture_posteriors` and :func:`accumulate_moments`.
+
+    Parameters
+    ----------
+    comp : ndarray, shape (T, K, M)
+
+    Returns
+    -------
+    loglik, top, total : ndarray, shape (T, K)
+        ``top`` is -inf and ``total`` 0 where the mixture is impossible.
+    """
+    n_frames, n_mix, n_comp = comp.shape
+    loglik = np.empty((n_frames, n_mix))
+    top_out = np.empty((n_frames, n_mix))
+    total_out = np.zeros((n_frames, n_mix))
+    for t in range(n_frames):
+        for k in range(n_mix):
+            top = _NEG_INF
+            for m in range(n_comp):
+                if comp[t, k, m] > top:
+                    top = comp[t, k, m]
+            top_out[t, k] = top
+            if top == _NEG_INF:
+                loglik[t, k] = _NEG_INF
+                continue
+            total = 0.0
+            for m in range(n_comp):
+                total += np.exp(comp[t, k, m] - top)
+            total_out[t, k] = total
+            loglik[t, k] = top + np.log(total)
+    return loglik, top_out, total_out
+
+
+@njit(cache=True)
+def mixture_occupancy(gamma, local, n_mix, prune):
+    """Posterior of every mixture at every frame: the states' posteriors summed per mixture.
+
+    Parameters
+    ----------
+    gamma : ndarray, shape (T, S)
+        State posteriors.
+    local : ndarray of int, shape (S,)
+        The mixture (column) of every state.
+    n_mix : int
+    prune : float >= 0
+        Sums below this are set to 0 (the moment sums then skip them).
+
+    Returns
+    -------
+    ndarray, shape (T, n_mix)
+        Each sum adds the states in state order (as ``np.add.at``).
+    """
+    n_frames, n_states = gamma.shape
+    out = np.zeros((n_frames, n_mix))
+    for t in range(n_frames):
+        for s in range(n_states):
+            out[t, local[s]] += gamma[t, s]
+        if prune > 0.0:
+            for k in range(n_mix):
+                if out[t, k] < prune:
+                    out[t, k] = 0.0
+    return out
+
+
+@njit(cache=True)
+def accumulate_from_scores(frames, comp, top, total, mixture_gamma):
+    """:func:`accumulate_moments` with the component posteriors formed on the way.
+
+    ``post[t, k, m] = exp(comp[t, k, m] - top[t, k]) / total[t, k]`` (as
+    :func:`mixture_posteriors` computes it) only where ``mixture_gamma[t, k]`` is not 0,
+    so frames far from a mixture cost no exponential. Same results, bit for bit, as
+    ``accumulate_moments(frames, mixture_posteriors(comp)[1], mixture_gamma)``.
+
+    Parameters
+    ----------
+    frames : ndarray, shape (T, D)
+    comp : ndarray, shape (T, K, M)
+    top, total : ndarray, shape (T, K)
+        From :func:`mixture_log_likelihoods`.
+    mixture_gamma : ndarray, shape (T, K)
+
+    Returns
+    -------
+    occupancy : ndarray, shape (K, M)
+    first, second : ndarray, shape (K, M, D)
+    """
+    n_frames, dim = frames.shape
+    _, n_mix, n_comp = comp.shape
+    occ = np.zeros((n_mix, n_comp))
+    first = np.zeros((n_mix, n_comp, dim))
+    second = np.zeros((n_mix, n_comp, dim))
+    sq = np.empty(dim)
+    for t in range(n_frames):
+        for d in range(dim):
+            sq[d] = frames[t, d] * frames[t, d]
+        for k in range(n_mix):
+            g = mixture_gamma[t, k]
+            if g == 0.0 or top[t, k] == _NEG_INF:
+                continue
+            for m in range(n_comp):
+                r = g * (np.exp(comp[t, k, m] - top[t, k]) / total[t, k])
                 if r == 0.0:
                     continue
                 occ[k, m] += r

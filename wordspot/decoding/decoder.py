@@ -479,6 +479,29 @@ class Recognizer:
         ll, lp = self.emissions_and_posteriors(frames)
         return self.search(ll, path=path, kernel=kernel, posteriors=lp)
 
+    def shares_scores_with(self, other: "Recognizer") -> bool:
+        """Whether ``other`` computes the same state scores from the same frames (same
+        mixtures, columns, scorers and settings: e.g. the same model with fewer words)."""
+        mine, theirs = self.mixtures, other.mixtures
+        return (self.settings == other.settings and self.scorer is other.scorer
+                and self.posterior_scorer is other.posterior_scorer
+                and np.array_equal(self.network.used_mixtures, other.network.used_mixtures)
+                and all(np.array_equal(a, b) for a, b in ((mine.weights, theirs.weights), (mine.means, theirs.means),
+                                                          (mine.variances, theirs.variances))))
+
+    def decode_with(self, frames: np.ndarray, others, *, path: str | None = None) -> list[Recognition]:
+        """``[self.decode(frames)] + [o.decode(frames) for o in others]``, the state scores
+        computed once when every one of ``others`` :meth:`shares_scores_with` this one
+        (the same recognitions: the search gets the same numbers)."""
+        others = list(others)
+        if not all(self.shares_scores_with(o) for o in others):
+            return [self.decode(frames, path=path)] + [o.decode(frames, path=path) for o in others]
+        frames = _check_frames(frames, self.mixtures.dim)
+        if frames.shape[0] < min([self.network.min_frames] + [o.network.min_frames for o in others]):
+            return [self.decode(frames, path=path)] + [o.decode(frames, path=path) for o in others]
+        ll, lp = self.emissions_and_posteriors(frames)
+        return [r.search(ll, path=path, posteriors=lp) for r in [self] + others]
+
     def kernel_arguments(self, ll: np.ndarray) -> tuple:
         """The arguments of :func:`wordspot.decoding.kernels.decode` for emissions ``ll``."""
         net, s = self.network, self.settings

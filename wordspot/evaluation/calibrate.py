@@ -295,9 +295,11 @@ class _TwoWays:
 
     def decode(self, frames, words, path: str) -> tuple[Recognition, Recognition | None]:
         """``(whole, without_own)`` of one clip that says ``words``."""
-        whole = self.full.decode(frames, path=path)
         rec = self.without(words)
-        return whole, None if rec is None else rec.decode(frames, path=path)
+        if rec is None:
+            return self.full.decode(frames, path=path), None
+        whole, without_own = self.full.decode_with(frames, [rec], path=path)  # state scores computed once
+        return whole, without_own
 
 
 def held_out_recognitions(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
@@ -720,10 +722,11 @@ def _merged(parts: list[CalibrationExamples]) -> CalibrationExamples:
         [f for p in parts for f in p.failed], np.concatenate([p.source for p in parts]))
 
 
-def _trained(train: Callable, rest, held):
+def _trained(train: Callable, rest, held, again: bool = True):
     """``train(rest)``; a training function that can use them (adapting: to choose its
-    strength) gets the held-out part too."""
-    return train(rest, held_out=held) if getattr(train, "takes_held_out", False) else train(rest)
+    strength) gets the held-out part too, and whether it will be called again on every
+    recording (``again``)."""
+    return train(rest, held_out=held, again=again) if getattr(train, "takes_held_out", False) else train(rest)
 
 
 def train_calibrated(train: Callable, utterances: Sequence, *, config: CalibrationConfig = CalibrationConfig(),
@@ -780,7 +783,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         else:
             say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out"
                 + (" across the whole set (transcripts rarely repeat)" if how == "across the set" else ""))
-        model, summary = _trained(train, rest, held)
+        model, summary = _trained(train, rest, held, again=bool(config.refit))
         if how == "whole speakers":
             held = recognised_share(held, len(utterances), config)
         examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,

@@ -179,6 +179,14 @@ class AdaptationConfig:
         the demo set against 0.86). Off by default: on the dev voices over three seeds
         the threshold then dropped more words, in noise many more (20 dB deletions 37-50
         against 17-45; docs/experiments/2026-12-03-adaptation-goals.md).
+    calibrate_choosing_model : bool
+        When the strength is chosen on whole speakers held out within the calibration's
+        first training, that training returns the model adapted on the rest with the
+        strength chosen (the one the choice was made with) instead of adapting every
+        recording of it, when a training on every recording follows (``--refit``): one
+        adaptation fewer, the calibration's words recognised by a model that heard fewer
+        of the voices. Off: a few more words dropped at the threshold on dev
+        (docs/experiments/2026-12-03-training-time.md).
     """
 
     prior_weight: float = 300.0
@@ -203,6 +211,7 @@ class AdaptationConfig:
     speakers_to_hold_out: int = 3
     held_out_speaker_share: float = 0.25
     unheard_calibration: bool = False
+    calibrate_choosing_model: bool = False
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -579,7 +588,7 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
           manifest=None, quiet: bool = True, report=None, held_out=None,
-          cache: ItemCache | None = None) -> tuple[AcousticModel, TrainingSummary]:
+          cache: ItemCache | None = None, held_out_copies: bool = True) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
@@ -591,7 +600,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     ``held_out`` (utterances left out of ``utterances``, e.g. the calibration's) when
     given, else on ``config.held_out_share`` of the recordings held out by
     :func:`wordspot.corpus.split_by_recording`, after which all of them are adapted on
-    with the strength found. ``cache`` keeps prepared recordings between calls.
+    with the strength found. ``cache`` keeps prepared recordings between calls;
+    ``held_out_copies`` (with ``held_out``): also make the held-out recordings' speed and
+    noisy copies in the same go, for a training on everything that follows (False when
+    none does).
 
     Raises
     ------
@@ -617,7 +629,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     chosen = None
-    used = [u for u in utterances if u.path in {it.path for it in items if not it.background}]
+    usable = {it.path for it in items if not it.background}  # made once, not once per recording
+    used = [u for u in utterances if u.path in usable]
     by_speaker = len({u.speaker for u in used}) >= config.speakers_to_hold_out
     choose = config.strength is None and config.follow_passes > 0
     held_utts = list(held_out or [])
@@ -629,7 +642,9 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         held_utts = [u for u in held_utts if set(u.words) <= set(held_lex.words)]
         held_items, _ = cache.recordings(held_utts, held_lex, start, config, True)
     # the held-out recordings' copies are made with these in one go, for the training on everything
-    copies = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache)
+    # (when none follows, only drawn with them: the same copies of these, none of theirs)
+    copies = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache,
+                     count=None if held_out_copies else sum(not it.background for it in items))
     held_paths = {it.path for it in held_items} - {u.path for u in used}
     copies = [it for it in copies if it.path not in held_paths]
     if by_speaker and not whole:
@@ -637,15 +652,20 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     if held_items and choose:
         chosen_speakers = len({u.speaker for u in held_utts}) if whole else 0
     elif choose and not held_items and (held_out is None or by_speaker):
-        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report)
+        # (only when a training on everything follows: else this model would be the one written)
+        keep = held_out is not None and by_speaker and config.calibrate_choosing_model and held_out_copies
+        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report, keep=keep)
         if chosen is not None:
             config = replace(config, strength=chosen["strength"])
     if not choose:
         held_items = []
     if config.strength == 0:
         copies = []
-    mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
-                                          report=report, held_out=held_items, copies=copies)
+    if chosen is not None and "kept" in chosen:  # the choosing adaptation's model is the calibration's
+        mix, summary, transform, items = chosen.pop("kept")
+    else:
+        mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
+                                              report=report, held_out=held_items, copies=copies)
     if held_items and summary.adaptation.get("chosen_on") == "held-out":
         summary.adaptation["held_out_speakers"] = chosen_speakers
     if chosen is not None:
@@ -734,24 +754,29 @@ class ItemCache:
                 self.copies[(it.path, it.words)].append(it)
         return [it for u in used for it in self.copies[(u.path, u.words)]]
 
-    def noisy_copies(self, items, speakers, start: AcousticModel, config: AdaptationConfig, quiet: bool) -> list:
+    def noisy_copies(self, items, speakers, start: AcousticModel, config: AdaptationConfig, quiet: bool,
+                     count: int | None = None) -> list:
         """The noisy copies (``config.follow_noise_copies`` at ``config.follow_noise_snr``)
         of the recordings' ``items``, copy-major. Those not made yet are made in one go,
         each recording's recipe (kind, SNR, talkers, noise seed) seeded by ``config.seed``
         and the recording itself (:func:`wordspot.training.noise.recording_key`) rather than
         its place in the list, and kept: each recording is noised once however many
         adaptations use it (the babble's talker streams come from the recordings made in
-        the same go)."""
+        the same go). With ``count``, only the first ``count`` items' copies are made and
+        returned (the rest still make up the go: the same copies as making them all)."""
         noise = NoiseSettings(copies=config.follow_noise_copies, snr_db=config.follow_noise_snr)
         store = self.noisy.setdefault((config.seed, noise.copies, noise.snr_db), {})
+        count = len(items) if count is None else count
         missing = [k for k, it in enumerate(items) if (it.path, it.words) not in store]
-        if missing:
+        if any(k < count for k in missing):
             todo = [items[k] for k in missing]
+            only = [j for j, k in enumerate(missing) if k < count]
             got = noisy_items(todo, [speakers[k] for k in missing], noise, start.features, seed=config.seed,
-                              jobs=config.jobs, quiet=quiet, keys=[recording_key(it.path, it.words) for it in todo])
-            for j, it in enumerate(todo):
-                store[(it.path, it.words)] = got[j::len(todo)]
-        return [store[(it.path, it.words)][c] for c in range(noise.copies) for it in items]
+                              jobs=config.jobs, quiet=quiet, keys=[recording_key(it.path, it.words) for it in todo],
+                              only=None if len(only) == len(todo) else only)
+            for j, it in enumerate([todo[j] for j in only]):
+                store[(it.path, it.words)] = got[j::len(only)]
+        return [store[(it.path, it.words)][c] for c in range(noise.copies) for it in items[:count]]
 
 
 def _prepared(utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
@@ -774,25 +799,29 @@ def _follows(config: AdaptationConfig) -> bool:
 
 
 def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
-            cache: ItemCache) -> list:
+            cache: ItemCache, count: int | None = None) -> list:
     """Speed and noisy copies of the usable recordings for the following passes (none when
-    no following pass can run); each recording's copies are made once (``cache``)."""
+    no following pass can run); each recording's copies are made once (``cache``). With
+    ``count``, those of the first ``count`` recordings among ``items`` only (the noisy
+    copies drawn as for all of them)."""
     if not _follows(config):
         return []
     clean = [it for it in items if not it.background]
-    paths = {it.path for it in clean}
+    count = len(clean) if count is None else count
+    paths = {it.path for it in clean[:count]}
     out = cache.speed_copies([u for u in used if u.path in paths], lexicon, start, config, quiet) \
         if config.follow_speeds else []
     if config.follow_noise_copies:
         speaker = {u.path: u.speaker for u in used}
-        out += cache.noisy_copies(clean, [speaker[it.path] for it in clean], start, config, quiet)
+        out += cache.noisy_copies(clean, [speaker[it.path] for it in clean], start, config, quiet, count=count)
     return out
 
 
 def _choose_on_split(items, used, copies, start: AcousticModel, config: AdaptationConfig, by_speaker: bool,
-                     quiet: bool, report) -> dict | None:
+                     quiet: bool, report, keep: bool = False) -> dict | None:
     """The strength chosen by adapting on all but a held-out part of the recordings (whole
-    speakers when ``by_speaker``, else takes); None when that part is too short."""
+    speakers when ``by_speaker``, else takes); None when that part is too short. With
+    ``keep`` its ``"kept"`` holds that adaptation's (mixtures, summary, transform, items)."""
     if by_speaker:
         held_utts = split_by_speaker(used, config.held_out_speaker_share, config.seed)
     else:
@@ -806,8 +835,14 @@ def _choose_on_split(items, used, copies, start: AcousticModel, config: Adaptati
         what = f"{speakers} speakers' {len(held_items)} recordings" if by_speaker else f"{len(held_items)} recordings"
         report(f"choosing the strength: adapting on {len(used) - len(held_items)} recordings, {what} held out")
     rest = [it for it in items if it.background or it.path not in held_paths]
-    _, first, _ = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet, report=report,
-                              held_out=held_items, copies=[it for it in copies if it.path not in held_paths])
+    mix, first, transform = adapt_items(rest, start.units, start.mixtures, config=config, quiet=quiet,
+                                        report=report, held_out=held_items,
+                                        copies=[it for it in copies if it.path not in held_paths])
+    if keep:
+        if report is not None:
+            report(f"strength {first.adaptation['strength']}: this model, adapted on {len(used) - len(held_items)} "
+                   "recordings, is the one the calibration uses")
+        return dict(first.adaptation, held_out_speakers=speakers, kept=(mix, first, transform, rest))
     if report is not None:
         report(f"adapting on all {len(used)} recordings with strength {first.adaptation['strength']}")
     return dict(first.adaptation, held_out_speakers=speakers)
@@ -863,19 +898,21 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
 
     Made for :func:`wordspot.evaluation.calibrate.train_calibrated`: its first call, with
     the calibration's held-out recordings, chooses the strength on them; later calls without
-    held-out recordings (training again on every recording) reuse that strength. Carries
+    held-out recordings (training again on every recording) reuse that strength. ``again``
+    False says no training on every recording follows (the held-out recordings' copies are
+    then not made). Carries
     ``start_calibration`` (the starting model's calibration, the fallback) and
     ``takes_held_out``.
     """
     chosen: dict = {}
     cache = ItemCache()
 
-    def fit(utterances, held_out=None):
+    def fit(utterances, held_out=None, again=True):
         cfg = config
         if held_out is None and config.strength is None and chosen:
             cfg = replace(config, strength=chosen["follow_passes"])
         model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest, quiet=quiet,
-                               report=report, held_out=held_out, cache=cache)
+                               report=report, held_out=held_out, cache=cache, held_out_copies=again)
         if held_out is not None and config.strength is None:
             chosen.clear()
             chosen.update(model.info["strength"])

@@ -154,7 +154,8 @@ def _chunk_task(recipes, paths, pool, settings):
 
 
 def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, settings: FeatureSettings, *,
-                seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None, keys=None) -> list[TrainingItem]:
+                seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None, keys=None,
+                only=None) -> list[TrainingItem]:
     """Noisy copies of prepared training items.
 
     Parameters
@@ -173,11 +174,16 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     keys : sequence of int, optional
         Per item, the number that seeds its recipes (:func:`plan_copies`); default the
         item's place in ``items``.
+    only : sequence of int, optional
+        Make the copies of these items alone (their places in ``items``); the babble pool
+        and the recipes are still drawn from the whole list, so each copy is the one the
+        whole list would give.
 
     Returns
     -------
     list of TrainingItem
-        ``noise.copies * len(items)`` items (copy-major), sharing the clean items' chains.
+        ``noise.copies * len(items)`` items (copy-major; with ``only``, ``noise.copies *
+        len(only)``), sharing the clean items' chains.
     """
     if noise.copies == 0 or not items:
         return []
@@ -186,6 +192,9 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     pool = babble_pool(paths, speakers, seed=seed, sample_rate=settings.sample_rate) \
         if "babble" in noise.kinds else {}
     plans = plan_copies(speakers, noise, seed=seed, keys=keys)
+    if only is not None:
+        wanted = {int(k) for k in only}
+        plans = [p for p in plans if p.index in wanted]
     chunks = [plans[i:i + CHUNK_SIZE] for i in range(0, len(plans), CHUNK_SIZE)]
     bar = ProgressBar(len(plans), "noisy copies", quiet=quiet)
     feats = []

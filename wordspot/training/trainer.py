@@ -277,12 +277,17 @@ class _PassResult:
 
 
 class _GraphCache:
-    """Per-chunk work that depends only on a graph (utterances with the same words share it)."""
+    """Per-chunk work that depends only on a graph (utterances with the same words share it):
+    its arrays and the columns of the scoring matrix its mixtures use."""
 
-    def __init__(self, graph, units: UnitSet, n_comp: int):
+    def __init__(self, graph, units: UnitSet, n_comp: int, scoring):
         self.graph = refresh_graph(graph, units)
         self.mixture_ids, self.local = np.unique(graph.mixture, return_inverse=True)
         self.cols = (self.mixture_ids[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
+        w, c = scoring
+        self.w = np.ascontiguousarray(w[:, self.cols])
+        self.c = np.ascontiguousarray(c[self.cols])
+        self.local = np.ascontiguousarray(self.local, dtype=np.int64)
         self.arrays = graph_arrays(self.graph)
         g = self.graph
         self.self_count = np.zeros(g.n_states)
@@ -291,13 +296,45 @@ class _GraphCache:
         self.final_count = np.zeros(g.n_states)
 
 
-def _utterance_pass(item_frames, cache: _GraphCache, scoring, n_comp: int, result: _PassResult,
-                    k: int, prune: float):
-    """Add one utterance's statistics into ``result`` (its log-likelihood into slot k)."""
+def _utterance_pass(item_frames, cache: _GraphCache, n_comp: int, result: _PassResult, k: int, prune: float):
+    """Add one utterance's statistics into ``result`` (its log-likelihood into slot k).
+
+    The component posteriors are formed only where a mixture's frame posterior reaches
+    ``prune`` (:func:`wordspot.acoustic.kernels.accumulate_from_scores`); the sums are bit
+    for bit those of :func:`_reference_utterance_pass`.
+    """
     x = np.ascontiguousarray(item_frames, dtype=np.float64)
-    w, c = scoring
     mixture_ids, local = cache.mixture_ids, cache.local
-    comp = kernels.score_components(x, np.ascontiguousarray(w[:, cache.cols]), np.ascontiguousarray(c[cache.cols]))
+    comp = kernels.score_components(x, cache.w, cache.c).reshape(x.shape[0], mixture_ids.size, n_comp)
+    mixture_ll, top, total_c = kernels.mixture_log_likelihoods(comp)
+    state_ll = np.ascontiguousarray(mixture_ll[:, local])
+    self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
+    total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
+    result.loglik[k] = total
+    if not np.isfinite(total):
+        return
+    beta = kernels.backward(state_ll, self_logp, src, dst, arc_logp, final_logp)
+    gamma = np.exp(alpha + beta - total)
+    counts = kernels.transition_counts(state_ll, alpha, beta, total, self_logp, src, dst, arc_logp,
+                                       init_logp, final_logp)
+    cache.self_count += counts[0]
+    cache.arc_count += counts[1]
+    cache.init_count += counts[2]
+    cache.final_count += counts[3]
+    mixture_gamma = kernels.mixture_occupancy(gamma, local, mixture_ids.size, float(prune))
+    occ, first, second = kernels.accumulate_from_scores(x, comp, top, total_c, mixture_gamma)
+    result.stats.occupancy[mixture_ids] += occ
+    result.stats.first[mixture_ids] += first
+    result.stats.second[mixture_ids] += second
+    np.add.at(result.unit_frames, cache.graph.unit, gamma.sum(axis=0))
+
+
+def _reference_utterance_pass(item_frames, cache: _GraphCache, n_comp: int, result: _PassResult, k: int,
+                              prune: float):
+    """:func:`_utterance_pass` the plain way (every component posterior, ``np.add.at``), for the tests."""
+    x = np.ascontiguousarray(item_frames, dtype=np.float64)
+    mixture_ids, local = cache.mixture_ids, cache.local
+    comp = kernels.score_components(x, cache.w, cache.c)
     mixture_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], mixture_ids.size, n_comp))
     state_ll = np.ascontiguousarray(mixture_ll[:, local])
     self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
@@ -324,22 +361,28 @@ def _utterance_pass(item_frames, cache: _GraphCache, scoring, n_comp: int, resul
     np.add.at(result.unit_frames, cache.graph.unit, gamma.sum(axis=0))
 
 
-def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _PassResult:
-    """Summed statistics of a chunk of (frames, graph) pairs, in order."""
+def _chunk_pass(chunk, scoring, shape, units: UnitSet, prune: float = 0.0, reference: bool = False) -> _PassResult:
+    """Summed statistics of a chunk of (frames, graph) pairs, in order.
+
+    ``scoring`` is :func:`wordspot.acoustic.gmm.scoring_matrix` of the mixtures (made once
+    a pass, not once a chunk), ``shape`` their ``(n_mixtures, n_components, dim)``;
+    ``reference`` uses :func:`_reference_utterance_pass`.
+    """
+    n_mix, n_comp, dim = shape
     n_params = n_transition_params(units.n_units)
     result = _PassResult(
-        MixtureStats.zeros(mix.n_mixtures, mix.n_components, mix.dim),
+        MixtureStats.zeros(n_mix, n_comp, dim),
         np.zeros(n_params),
         np.full(len(chunk), -np.inf),
         np.zeros(units.n_units),
     )
-    scoring = scoring_matrix(mix)
+    one = _reference_utterance_pass if reference else _utterance_pass
     caches: dict[int, _GraphCache] = {}
     for k, (frames, graph) in enumerate(chunk):
         cache = caches.get(id(graph))
         if cache is None:
-            cache = caches[id(graph)] = _GraphCache(graph, units, mix.n_components)
-        _utterance_pass(frames, cache, scoring, mix.n_components, result, k, prune)
+            cache = caches[id(graph)] = _GraphCache(graph, units, n_comp, scoring)
+        one(frames, cache, n_comp, result, k, prune)
     for cache in caches.values():  # insertion order: the same in every process
         post = Posteriors(0.0, np.zeros((0, 0)), cache.self_count, cache.arc_count,
                           cache.init_count, cache.final_count)
@@ -352,9 +395,11 @@ def _chunk_pass(chunk, mix: Mixtures, units: UnitSet, prune: float = 0.0) -> _Pa
     return result
 
 
-def _run_pass(chunks, mix, units, executor, label, quiet, prune) -> _PassResult:
+def _run_pass(chunks, mix, units, executor, label, quiet, prune, reference=False) -> _PassResult:
     bar = ProgressBar(sum(len(c) for c in chunks), label, quiet=quiet)
-    gen = executor.map(_chunk_pass, [(c,) for c in chunks], common=(mix, units, prune), label=label)
+    shape = (mix.n_mixtures, mix.n_components, mix.dim)
+    gen = executor.map(_chunk_pass, [(c,) for c in chunks], common=(scoring_matrix(mix), shape, units, prune, reference),
+                       label=label)
     total = None
     lls = []
     for part in gen:  # in chunk order, whatever the number of processes
@@ -373,14 +418,15 @@ def _run_pass(chunks, mix, units, executor, label, quiet, prune) -> _PassResult:
 
 
 def pass_statistics(chunks, mix: Mixtures, units: UnitSet, *, jobs: int = 1, quiet: bool = True,
-                    prune: float = 0.0, label: str = "statistics", executor=None):
+                    prune: float = 0.0, label: str = "statistics", executor=None, reference: bool = False):
     """One forward-backward pass over chunks of ``(frames, graph)`` pairs, summed in chunk order.
 
     Returns an object with ``stats`` (MixtureStats), ``trans_counts``, ``loglik`` (per
     utterance) and ``unit_frames``; the same for any ``jobs`` (or ``executor``).
+    ``reference``: each utterance the plain way (the tests compare, bit for bit).
     """
     with using(executor, jobs) as ex:
-        return _run_pass(chunks, mix, units, ex, label, quiet, prune)
+        return _run_pass(chunks, mix, units, ex, label, quiet, prune, reference)
 
 
 # ------------------------------------------------------------------ flat start
