@@ -16,6 +16,8 @@ from __future__ import annotations
 from dataclasses import replace
 from pathlib import Path
 
+from wordspot.util.threads import with_one_blas_thread
+
 __all__ = ["train", "load", "recognize", "evaluate", "scan", "evaluate_scan"]
 
 
@@ -42,6 +44,7 @@ def _settings(settings, single_word, min_confidence):
     return replace(settings, single_word=True) if single_word else settings
 
 
+@with_one_blas_thread
 def train(manifest, lexicon, *, out=None, start=None, config=None, features=None, calibration=True,
           quiet: bool = True):
     """Train a model from a manifest of recordings and a lexicon (``wordspot train``).
@@ -113,6 +116,7 @@ def load(path):
     return load_model(path)
 
 
+@with_one_blas_thread
 def recognize(model, paths, *, lexicon=None, prior=None, single_word: bool = False, settings=None,
               jobs: int = 1, min_confidence: float | None = None):
     """Recognise audio files (``wordspot recognize``); one Recognition per file, in order.
@@ -130,6 +134,7 @@ def recognize(model, paths, *, lexicon=None, prior=None, single_word: bool = Fal
                            lexicon=_lexicon(lexicon), prior=prior, jobs=jobs)
 
 
+@with_one_blas_thread
 def evaluate(model, manifest, *, lexicon=None, prior=None, single_word: bool = False, settings=None,
              jobs: int = 1, n_bootstrap: int = 1000, min_confidence: float | None = None):
     """Word error rate of a model on a manifest (``wordspot evaluate``); ``min_confidence`` as for `recognize`.
@@ -155,6 +160,7 @@ def _scan_settings(scan_settings, min_confidence):
     return replace(scan_settings, min_confidence=min_confidence, command_confidence=min_confidence)
 
 
+@with_one_blas_thread
 def scan(model, paths, *, lexicon=None, prior=None, settings=None, scan_settings=None, min_confidence=None,
          jobs: int = 1, quiet: bool = True):
     """Find the commands in recordings of any length (``wordspot scan``).
@@ -187,6 +193,7 @@ def scan(model, paths, *, lexicon=None, prior=None, settings=None, scan_settings
                       quiet=quiet)
 
 
+@with_one_blas_thread
 def evaluate_scan(model, labels, *, lexicon=None, prior=None, settings=None, scan_settings=None,
                   min_confidence=None, jobs: int = 1, quiet: bool = True):
     """Scan the recordings of a time-label file and score the commands found.

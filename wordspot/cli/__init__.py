@@ -106,8 +106,11 @@ def main(argv: list[str] | None = None) -> int:
         return 2
     if not args.debug:
         warnings.showwarning = _show_warning
+    from wordspot.util.threads import one_blas_thread  # after parsing: --help loads nothing more
+
     try:
-        status = args.func(args)
+        with one_blas_thread():
+            status = args.func(args)
     except WordspotError as exc:
         if args.debug:
             raise
