@@ -6,7 +6,8 @@ the new model (:func:`wordspot.training.frame_labels.align_frames`; noisy copies
 clean recording's labels) and a state scorer is fitted on those frame labels
 (:func:`wordspot.training.scorer_fit.fit_scorer_with_report`; copies of one recording are
 held out together for early stopping). Fitting needs scikit-learn, as building the
-starters does.
+starters does; without it, or with no frame aligned, the model stays without a scorer
+and the note says why.
 
 Whether a model trained from scratch gains from it is measured on dev material in
 docs/experiments/2026-12-03-scratch-scorer.md.
@@ -14,6 +15,7 @@ docs/experiments/2026-12-03-scratch-scorer.md.
 
 from __future__ import annotations
 
+import importlib.util
 import time
 
 from wordspot.training.frame_labels import align_frames
@@ -50,19 +52,27 @@ def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share
 
     Returns
     -------
-    scorer : StateScorer
+    scorer : StateScorer or None
+        None when scikit-learn is missing or no frame could be aligned.
     info : dict
-        Frames, items, epochs, held-out accuracy and seconds, for the model's info.
+        Frames, items, epochs, held-out accuracy and seconds, for the model's info (or
+        the reason there is no scorer).
     note : str
         One plain line for the training summary.
     """
+    if importlib.util.find_spec("sklearn") is None:
+        why = "scikit-learn is not installed (pip install scikit-learn)"
+        return None, {"fitted": False, "reason": why}, f"sound scorer: not fitted, {why}"
     t0 = time.process_time()
     got = align_frames(model, utterances, jobs=jobs, background_share=background_share, noise=noise,
                        speeds=speeds, seed=seed, quiet=quiet, executor=executor)
     t_align = time.process_time() - t0
+    if got.n_frames == 0:
+        why = "no recording could be aligned"
+        return None, {"fitted": False, "reason": why}, f"sound scorer: not fitted, {why}"
     net, fit = fit_scorer_with_report(got.frames, got.labels, model.mixtures.n_mixtures, scorer,
                                       groups=[str(it.path) for it in got.items])
-    info = {"hidden": list(scorer.hidden), "context": scorer.context, "seed": scorer.seed,
+    info = {"fitted": True, "hidden": list(scorer.hidden), "context": scorer.context, "seed": scorer.seed,
             "items": len(got.items), "frames": got.n_frames, "train_frames": fit.train_frames,
             "epochs": len(fit.train_loss), "best_epoch": fit.best_epoch,
             "held_out_accuracy": round(float(fit.held_out_accuracy), 4),
