@@ -16,7 +16,6 @@ docs/experiments/2026-12-03-scratch-scorer.md.
 from __future__ import annotations
 
 import importlib.util
-import time
 
 from wordspot.training.frame_labels import align_frames
 from wordspot.training.scorer_fit import ScorerConfig, fit_scorer_with_report
@@ -55,7 +54,8 @@ def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share
     scorer : StateScorer or None
         None when scikit-learn is missing or no frame could be aligned.
     info : dict
-        Frames, items, epochs, held-out accuracy and seconds, for the model's info (or
+        Frames, items, epochs and held-out accuracy, for the model's info (the same for
+        the same data and seed; or
         the reason there is no scorer).
     note : str
         One plain line for the training summary.
@@ -63,10 +63,8 @@ def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share
     if importlib.util.find_spec("sklearn") is None:
         why = "scikit-learn is not installed (pip install scikit-learn)"
         return None, {"fitted": False, "reason": why}, f"sound scorer: not fitted, {why}"
-    t0 = time.process_time()
     got = align_frames(model, utterances, jobs=jobs, background_share=background_share, noise=noise,
                        speeds=speeds, seed=seed, quiet=quiet, executor=executor)
-    t_align = time.process_time() - t0
     if got.n_frames == 0:
         why = "no recording could be aligned"
         return None, {"fitted": False, "reason": why}, f"sound scorer: not fitted, {why}"
@@ -75,9 +73,7 @@ def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share
     info = {"fitted": True, "hidden": list(scorer.hidden), "context": scorer.context, "seed": scorer.seed,
             "items": len(got.items), "frames": got.n_frames, "train_frames": fit.train_frames,
             "epochs": len(fit.train_loss), "best_epoch": fit.best_epoch,
-            "held_out_accuracy": round(float(fit.held_out_accuracy), 4),
-            "cpu_seconds_aligning": round(t_align, 1),
-            "cpu_seconds_fitting": round(time.process_time() - t0 - t_align, 1)}
+            "held_out_accuracy": round(float(fit.held_out_accuracy), 4)}
     note = (f"sound scorer: fitted on {got.n_frames} frames of your recordings and their copies "
             f"({fit.train_frames} used), {len(fit.train_loss)} passes")
     return net, info, note
