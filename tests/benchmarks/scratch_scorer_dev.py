@@ -7,8 +7,10 @@ scorer fit): a model is trained from scratch with calibration as ``wordspot trai
 from-scratch training; no refit) on the demo training voices that are not dev voices
 (``tune_filler.write_dev_train_manifest``). Two variants of the training function:
 
-* "mixtures only": today's from-scratch training;
-* "+ own scorer": the same training, then, inside the training function (so the
+* "mixtures only": the from-scratch training with ``TrainingConfig(scorer=None)`` (the
+  default before this comparison);
+* "+ own scorer": the same training, then (as ``TrainingConfig.scorer`` now does by
+  default, with the training's seed), inside the training function (so the
   calibration sees the scorer and uses its posterior measures), the recordings, their
   speed and noisy copies and background-only items are aligned with the new model and a
   state scorer is fitted on them (:func:`wordspot.training.own_scorer.fit_own_scorer`).
@@ -67,7 +69,7 @@ def main(argv=None) -> int:
     from wordspot.training.trainer import TrainingConfig, train
 
     lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
-    config = TrainingConfig()
+    config = TrainingConfig(scorer=None)  # the mixtures alone; the "+ own scorer" variant adds it below
     table = {v: [] for v in VARIANTS}
     cpu = {"mixtures": [], "scorer": [], "scorer fits": []}
     sets = None
