@@ -112,7 +112,8 @@ def train_one(rate: int, jobs: int, mixtures: int, quiet: bool, manifests: list[
     while steps[-1] * 2 <= mixtures:
         steps.append(steps[-1] * 2)
     config = TrainingConfig(mixtures=tuple(steps), first_passes=FIRST_PASSES, passes_per_split=PASSES_PER_SPLIT,
-                            jobs=jobs, noise_copies=NOISE_COPIES, speed_factors=SPEED_FACTORS)
+                            jobs=jobs, noise_copies=NOISE_COPIES, speed_factors=SPEED_FACTORS,
+                            scorer=None)  # its scorer is fitted below, on more frames (add_scorer)
     t0 = time.monotonic()
     utterances = [u for m in manifests for u in read_manifest(m)]
     model, summary = train(utterances, read_lexicon(LEXICON),

@@ -5,7 +5,8 @@ Each system with a state scorer (the starter, the adapted model) can be shown be
 (:mod:`wordspot.evaluation.mixtures_only`): ``starter-no-scorer`` (the starter with its
 scorer taken out, its calibration fitted again on the starter corpus's dev split as the
 shipped one was) and ``adapted-no-scorer`` (that starter adapted as ``adapted`` is, so its
-calibration fits on the base measures). A model trained from scratch has no scorer.
+calibration fits on the base measures). A model trained from scratch fits its own scorer
+on the demo's training recordings, as ``wordspot train --from-scratch`` does.
 
 The demo corpus (``recordings/`` in a checkout) is synthetic speech from several
 text-to-speech engines and voices; its test sets use voices that training never heard.
@@ -194,7 +195,7 @@ SYSTEMS = {
     "adapted": "the starter adapted on the bakery training set (wordspot train's default)",
     "adapted-no-scorer": "the starter without its sound scorer, adapted as 'adapted' is: the mixtures alone, "
                          "its calibration fitted on their measures",
-    "scratch": "trained from scratch on the bakery training set (wordspot train --from-scratch; no sound scorer)",
+    "scratch": "trained from scratch on the bakery training set (wordspot train --from-scratch, with a sound scorer fitted on those recordings)",
 }
 #: The systems whose word confidence reads the sound scorer (the others use the mixtures alone).
 WITH_SCORER = ("starter", "adapted")

@@ -239,3 +239,53 @@ def test_recording_with_no_command_trains_the_pause(tmp_path, rng):
     assert summary.used == 13 and not summary.skipped
     assert model.bigrams.counts[0].sum() == 12 and model.bigrams.counts[0, 0] == 0
     check_probabilities(model)
+
+
+def _tiny_scorer():
+    from dataclasses import replace
+
+    from wordspot.training.own_scorer import SCRATCH_SCORER
+
+    return replace(SCRATCH_SCORER, hidden=(16,), context=2, max_epochs=4, learning_rate=0.01)
+
+
+def test_from_scratch_model_carries_its_own_scorer(tmp_path, rng):
+    from wordspot.model import save_model
+
+    manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=12)
+    utts, lexicon = read_manifest(manifest), read_lexicon(lex_path)
+    cfg = dict(SMALL, seed=5, noise_copies=1, background_share=0.0)
+    a, summary = train(utts, lexicon, config=TrainingConfig(**cfg, scorer=_tiny_scorer()))
+    assert a.scorer is not None and a.scorer.n_classes == a.mixtures.n_mixtures
+    assert a.scorer.frame_dim == a.features.dim and a.scorer.context == 2
+    assert a.info["scorer"]["fitted"] and a.info["scorer"]["seed"] == 5  # the training's seed
+    assert a.info["scorer"]["items"] == 2 * len(utts)  # each recording and its noisy copy
+    assert summary.scorer_note in summary.lines() and "fitted on" in summary.scorer_note
+    assert load_model(save_model(a, tmp_path / "a.model")).scorer.same_as(a.scorer)
+    # deterministic for a seed
+    b, _ = train(utts, lexicon, config=TrainingConfig(**cfg, scorer=_tiny_scorer()))
+    assert b.scorer.same_as(a.scorer)
+    # turned off: no scorer, and the rest of the model as it was
+    c, summary_c = train(utts, lexicon, config=TrainingConfig(**cfg, scorer=None))
+    assert c.scorer is None and "scorer" not in c.info and summary_c.scorer_note == ""
+    for name in ("weights", "means", "variances"):
+        np.testing.assert_array_equal(getattr(a.mixtures, name), getattr(c.mixtures, name))
+    np.testing.assert_array_equal(a.units.trans, c.units.trans)
+    assert a.info["loglik_per_pass"] == c.info["loglik_per_pass"]
+
+
+def test_scorer_setting_is_checked():
+    with pytest.raises(TrainingError, match="scorer must be a ScorerConfig or None"):
+        TrainingConfig(scorer="yes")
+
+
+def test_train_command_no_scorer(tmp_path, rng, capsys):
+    manifest, lex_path = make_corpus(tmp_path / "c", rng, n_utterances=12)
+    out = tmp_path / "m.model"
+    assert main(["--quiet", "train", str(manifest), "--lexicon", str(lex_path), "--out", str(out),
+                 "--from-scratch", "--no-scorer", "--mixtures", "1", "--passes", "1", "--speed", "1.0",
+                 "--noise-copies", "0", "--background-share", "0", "--no-calibration"]) == 0
+    assert load_model(out).scorer is None
+    assert main(["--quiet", "train", str(manifest), "--lexicon", str(lex_path), "--out", str(out),
+                 "--no-scorer"]) != 0
+    assert "--no-scorer only apply with --from-scratch" in capsys.readouterr().err

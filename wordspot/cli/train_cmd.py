@@ -146,6 +146,11 @@ def add_parser(sub, **options):
                       help="speed perturbation: also train on copies of every recording played F times "
                       "faster (e.g. --speed 0.9 1.0 1.1 triples the data; helps with new voices) "
                       f"(default {' '.join(f'{f:g}' for f in TrainingConfig.speed_factors)})")
+    full.add_argument("--no-scorer", action="store_true", default=None,
+                      help="skip the sound scorer (a network that rates every sound from a short window of "
+                      "audio) otherwise fitted on these recordings after the phones are learnt; it helps the "
+                      "word confidences tell commands from other talk and adds about 0.8 times the training "
+                      "time")
     p.add_argument("--background-share", type=float, default=None, metavar="F",
                    help="add background-only training items (noise, hum, dithered silence, babble, fan; "
                    "no command) as this share of the recordings, at least 20 (0: none; default "
@@ -180,7 +185,8 @@ def add_parser(sub, **options):
     return p
 
 
-_SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "speed", "cluster", "shared_dir")
+_SCRATCH_ONLY = ("mixtures", "passes", "seed", "noise_copies", "noise_snr", "speed", "cluster", "shared_dir",
+                 "no_scorer")
 
 
 def _run(args) -> int:
@@ -232,7 +238,8 @@ def _scratch(args, lexicon, say):
         noise_copies=args.noise_copies if args.noise_copies is not None else defaults.noise_copies,
         noise_snr_db=tuple(args.noise_snr) if args.noise_snr else defaults.noise_snr_db,
         speed_factors=tuple(args.speed) if args.speed else defaults.speed_factors,
-        cluster=args.cluster, shared_dir=args.shared_dir, **_share(args), **extra)
+        cluster=args.cluster, shared_dir=args.shared_dir, **({"scorer": None} if args.no_scorer else {}),
+        **_share(args), **extra)
 
     def fit(utterances):
         return train(utterances, lexicon, settings=settings, config=config,
