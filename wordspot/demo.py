@@ -6,7 +6,8 @@ Each system with a state scorer (the starter, the adapted model) can be shown be
 scorer taken out, its calibration fitted again on the starter corpus's dev split as the
 shipped one was) and ``adapted-no-scorer`` (that starter adapted as ``adapted`` is, so its
 calibration fits on the base measures). A model trained from scratch fits its own scorer
-on the demo's training recordings, as ``wordspot train --from-scratch`` does.
+on the demo's training recordings, as ``wordspot train --from-scratch`` does;
+``scratch-no-scorer`` is the same training without it (``--no-scorer``).
 
 The demo corpus (``recordings/`` in a checkout) is synthetic speech from several
 text-to-speech engines and voices; its test sets use voices that training never heard.
@@ -196,9 +197,11 @@ SYSTEMS = {
     "adapted-no-scorer": "the starter without its sound scorer, adapted as 'adapted' is: the mixtures alone, "
                          "its calibration fitted on their measures",
     "scratch": "trained from scratch on the bakery training set (wordspot train --from-scratch, with a sound scorer fitted on those recordings)",
+    "scratch-no-scorer": "trained from scratch as 'scratch' is, without the sound scorer (wordspot train --from-scratch "
+                         "--no-scorer): the mixtures alone, its calibration fitted on their measures",
 }
 #: The systems whose word confidence reads the sound scorer (the others use the mixtures alone).
-WITH_SCORER = ("starter", "adapted")
+WITH_SCORER = ("starter", "adapted", "scratch")
 #: The systems ``wordspot demo`` builds unless asked otherwise.
 DEFAULT_SYSTEMS = ("starter", "adapted", "scratch")
 
@@ -262,13 +265,15 @@ def _build(system: str, folder: Path, out_dir: Path, *, jobs: int, quiet: bool, 
         else:
             from wordspot.training.trainer import TrainingConfig, train
 
+            config = TrainingConfig(jobs=jobs) if system == "scratch" else TrainingConfig(jobs=jobs, scorer=None)
+
             def fit(utts):
-                return train(utts, lexicon, config=TrainingConfig(jobs=jobs), manifest=folder / "train.csv",
+                return train(utts, lexicon, config=config, manifest=folder / "train.csv",
                              quiet=quiet, report=None if quiet else say)
         # as `wordspot train` does: calibrated confidences, fitted on held-out recordings
         began = time.perf_counter()
         model, _summary = train_calibrated(fit, train_utts, config=CalibrationConfig().decided(
-            adapting=system != "scratch"), quiet=quiet, report=None if quiet else say,
+            adapting=not system.startswith("scratch")), quiet=quiet, report=None if quiet else say,
             fallback=getattr(fit, "start_calibration", None), jobs=jobs)
         seconds = time.perf_counter() - began
     model_file = out_dir / f"bakery-{system}.model"

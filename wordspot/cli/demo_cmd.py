@@ -10,7 +10,7 @@ from pathlib import Path
 __all__ = ["add_parser"]
 
 #: The demo's systems (``wordspot.demo.SYSTEMS``, not imported here so that the parser stays light).
-SYSTEM_NAMES = ("starter", "starter-no-scorer", "adapted", "adapted-no-scorer", "scratch")
+SYSTEM_NAMES = ("starter", "starter-no-scorer", "adapted", "adapted-no-scorer", "scratch", "scratch-no-scorer")
 
 _EPILOG = """\
 The demo recordings are synthetic speech from text-to-speech voices, set in a bakery
@@ -20,9 +20,8 @@ should train on for real use (see README: "Quick tour: train on your own recordi
 
 examples:
   wordspot demo                              three systems side by side (about 6 minutes)
-  wordspot demo --side-by-side               also the starter and the adapted model without
-                                             their sound scorer (the mixtures alone; 3 to 5
-                                             minutes more)
+  wordspot demo --side-by-side               also each system without its sound scorer
+                                             (the mixtures alone; 4 to 7 minutes more)
   wordspot demo --systems starter adapted    skip training from scratch
   wordspot demo --json                       the results as JSON keyed by system and set name
   wordspot demo --model wordspot-demo/bakery-adapted.model   evaluate a model made earlier
@@ -59,13 +58,14 @@ def add_parser(sub, **options):
     p.add_argument("--systems", nargs="+", default=None, choices=list(SYSTEM_NAMES), metavar="NAME",
                    help="which systems to build and compare: starter (the shipped starter alone), "
                    "adapted (starter adapted on the bakery recordings), scratch (trained from scratch, "
-                   "about 2 minutes), starter-no-scorer and adapted-no-scorer (the same without the sound "
-                   "scorer: the mixtures alone, each with its calibration fitted without it); default starter, "
-                   "adapted and scratch, all five with --side-by-side")
+                   "about 2 minutes), starter-no-scorer, adapted-no-scorer and scratch-no-scorer (the same "
+                   "without the sound scorer: the mixtures alone, each with its calibration fitted without it); "
+                   "default starter, adapted and scratch, all six with --side-by-side")
     p.add_argument("--side-by-side", action="store_true",
-                   help="add the starter and the adapted model without their sound scorer (starter-no-scorer: "
-                   "its calibration fitted again on the starter corpus's dev split, under a minute, kept in --out "
-                   "for the next run; adapted-no-scorer: adapted again, 2-3 minutes)")
+                   help="add every system without its sound scorer (starter-no-scorer: its calibration fitted "
+                   "again on the starter corpus's dev split, under a minute, kept in --out for the next run; "
+                   "adapted-no-scorer: adapted again, 2-3 minutes; scratch-no-scorer: trained again, about 2 "
+                   "minutes)")
     p.add_argument("--starter-dev", metavar="MANIFEST",
                    help="the starter corpus's dev manifest for starter-no-scorer (default: starter/dev.csv in "
                    "the recordings folder, made by `python recordings/starter.py build`)")
@@ -84,7 +84,7 @@ def _run(args) -> int:
     say = (lambda line: print(line, file=sys.stderr, flush=True)) if chatty else (lambda line: None)
     systems = tuple(args.systems) if args.systems else DEFAULT_SYSTEMS
     if args.side_by_side:
-        systems = tuple(dict.fromkeys(systems + ("starter-no-scorer", "adapted-no-scorer")))
+        systems = tuple(dict.fromkeys(systems + ("starter-no-scorer", "adapted-no-scorer", "scratch-no-scorer")))
     results, files, _, seconds = run_demo(folder, out_dir, model_path=args.model, systems=systems,
                                           jobs=args.jobs, quiet=not chatty, say=say,
                                           starter_dev=Path(args.starter_dev) if args.starter_dev else None)
