@@ -308,6 +308,25 @@ class _GraphCache:
         self.final_count = np.zeros(g.n_states)
 
 
+def _state_occupancy(state_ll, cache: _GraphCache, result: _PassResult, k: int):
+    """Forward-backward over one utterance's chain: its log-likelihood into ``result`` (slot
+    k), its transition counts into ``cache``; the state occupancies (T, S), or None when
+    the chain cannot explain the frames."""
+    self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
+    total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
+    result.loglik[k] = total
+    if not np.isfinite(total):
+        return None
+    beta = kernels.backward(state_ll, self_logp, src, dst, arc_logp, final_logp)
+    counts = kernels.transition_counts(state_ll, alpha, beta, total, self_logp, src, dst, arc_logp,
+                                       init_logp, final_logp)
+    cache.self_count += counts[0]
+    cache.arc_count += counts[1]
+    cache.init_count += counts[2]
+    cache.final_count += counts[3]
+    return np.exp(alpha + beta - total)
+
+
 def _utterance_pass(item_frames, cache: _GraphCache, n_comp: int, result: _PassResult, k: int, prune: float):
     """Add one utterance's statistics into ``result`` (its log-likelihood into slot k).
 
@@ -320,19 +339,9 @@ def _utterance_pass(item_frames, cache: _GraphCache, n_comp: int, result: _PassR
     comp = kernels.score_components(x, cache.w, cache.c).reshape(x.shape[0], mixture_ids.size, n_comp)
     mixture_ll, top, total_c = kernels.mixture_log_likelihoods(comp)
     state_ll = np.ascontiguousarray(mixture_ll[:, local])
-    self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
-    total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
-    result.loglik[k] = total
-    if not np.isfinite(total):
+    gamma = _state_occupancy(state_ll, cache, result, k)
+    if gamma is None:
         return
-    beta = kernels.backward(state_ll, self_logp, src, dst, arc_logp, final_logp)
-    gamma = np.exp(alpha + beta - total)
-    counts = kernels.transition_counts(state_ll, alpha, beta, total, self_logp, src, dst, arc_logp,
-                                       init_logp, final_logp)
-    cache.self_count += counts[0]
-    cache.arc_count += counts[1]
-    cache.init_count += counts[2]
-    cache.final_count += counts[3]
     mixture_gamma = kernels.mixture_occupancy(gamma, local, mixture_ids.size, float(prune))
     occ, first, second = kernels.accumulate_from_scores(x, comp, top, total_c, mixture_gamma)
     result.stats.occupancy[mixture_ids] += occ
@@ -349,19 +358,9 @@ def _reference_utterance_pass(item_frames, cache: _GraphCache, n_comp: int, resu
     comp = kernels.score_components(x, cache.w, cache.c)
     mixture_ll, comp_post = kernels.mixture_posteriors(comp.reshape(x.shape[0], mixture_ids.size, n_comp))
     state_ll = np.ascontiguousarray(mixture_ll[:, local])
-    self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
-    total, alpha = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)
-    result.loglik[k] = total
-    if not np.isfinite(total):
+    gamma = _state_occupancy(state_ll, cache, result, k)
+    if gamma is None:
         return
-    beta = kernels.backward(state_ll, self_logp, src, dst, arc_logp, final_logp)
-    gamma = np.exp(alpha + beta - total)
-    counts = kernels.transition_counts(state_ll, alpha, beta, total, self_logp, src, dst, arc_logp,
-                                       init_logp, final_logp)
-    cache.self_count += counts[0]
-    cache.arc_count += counts[1]
-    cache.init_count += counts[2]
-    cache.final_count += counts[3]
     mixture_gamma = np.zeros((x.shape[0], mixture_ids.size))
     np.add.at(mixture_gamma.T, local, gamma.T)
     if prune > 0:
