@@ -31,7 +31,10 @@ def model():
         pytest.skip("demo recordings not generated")
     utts = read_manifest(RECORDINGS / "train.csv")[::3]
     trained, _ = train(utts, read_lexicon(LEXICON_DIR / "bakery.txt"),
-                       config=TrainingConfig(mixtures=(1, 2, 4), jobs=2), quiet=True)
+                       # The mixtures alone: these tests are about the search over the phone
+                       # models; decoding with a state scorer has its own tests
+                       # (test_scorer_decoding.py), and fitting one would double the time here.
+                       config=TrainingConfig(mixtures=(1, 2, 4), jobs=2, scorer=None), quiet=True)
     return trained
 
 
