@@ -481,14 +481,17 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
              f"{args.jobs} processes (its `jobs`), the hmmlearn baseline with one word per joblib worker "
              f"({args.jobs} workers), DTW only stores (or picks) templates. `wordspot` is trained from "
              f"scratch (`--from-scratch`); `{ADAPTED}` adapts the shipped starter model to the same "
-             "recordings (`wordspot train`'s default) without the confidence calibration `wordspot train` "
-             f"adds; its train time is the adaptation's. `{ADAPTED_BARE}` adapts the starter with its state "
-             "scorer taken out (the mixtures alone), the same recipe with no scorer anywhere.")
+             "recordings (`wordspot train`'s default). Both are trained as `wordspot train` does it, the "
+             "confidence calibration included (fitted on held-out recordings, or for an adapted model the "
+             "starter's own where too few are held out), so words below the default confidence threshold "
+             f"are dropped and count as deletions; train times include the calibration. `{ADAPTED_BARE}` "
+             "adapts the starter with its state scorer taken out (the mixtures alone), the same recipe with "
+             "no scorer anywhere.")
     L.append("")
     if same_mixtures:
         L.append("Side by side with and without the scorer: the search uses the mixtures alone in both (scorer "
-                 "weight 0, the default) and these adapted models carry no calibration, so the scorer can change "
-                 "no word here; the two adapted models' mixtures are "
+                 "weight 0, the default), so the scorer changes words only through the calibrated confidence "
+                 "(which words are dropped); the two adapted models' mixtures are "
                  + ", ".join(f"{'identical' if v else '**not identical**'} with {k} take(s)"
                              for k, v in same_mixtures.items())
                  + ". The scorer enters the calibrated word confidence only: see the starter alone with and "
@@ -509,7 +512,8 @@ def render(args, info, rows, dev_lines, speed, n_speed, audio_s, growth, n_grow,
                  "state scorer) and drops words below the default confidence threshold; \"no scorer\" is the "
                  "starter with its scorer taken out and its calibration fitted again on the starter corpus's dev "
                  "split as the shipped one was (the mixtures' measures alone; its time is that fit, or reading "
-                 "it back when kept from an earlier run). The adapted models carry no calibration here.")
+                 "it back when kept from an earlier run). The adapted and from-scratch models carry the "
+                 "calibration `wordspot train` fits.")
         L.append("")
     # goals
     goals = []

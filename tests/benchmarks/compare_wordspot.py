@@ -12,37 +12,61 @@ __all__ = ["train_wordspot", "adapt_wordspot", "starter_without_scorer", "same_m
            "growth_lexicons", "gaussian_scorer"]
 
 
-def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int):
-    """Train with wordspot's default configuration (``TrainingConfig``), ``jobs`` processes.
+def _manifest(utterances: Sequence, folder: Path) -> Path:
+    """``utterances`` as a manifest file in ``folder`` (absolute paths), for ``wordspot.api.train``."""
+    import csv
+
+    path = Path(folder) / "train.csv"
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        out = csv.writer(fh)
+        out.writerow(["path", "transcript", "speaker"])
+        for u in utterances:
+            out.writerow([str(Path(u.path).resolve()), " ".join(u.words), u.speaker])
+    return path
+
+
+def _train_as_the_command_does(utterances: Sequence, lexicon_path: Path, *, start, config, calibration: bool):
+    import tempfile
+
+    from wordspot import api
+
+    with tempfile.TemporaryDirectory(prefix="wordspot-compare-") as folder:
+        return api.train(_manifest(utterances, Path(folder)), lexicon_path, start=start, config=config,
+                         calibration=calibration)
+
+
+def train_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, calibration: bool = True):
+    """Train from scratch as ``wordspot train --from-scratch --jobs`` does: the default
+    ``TrainingConfig`` and, unless ``calibration`` is False, the word-confidence calibration
+    fitted on held-out recordings (``wordspot.api.train``).
 
     Returns
     -------
     model : wordspot.model.AcousticModel
     """
-    from wordspot.language.lexicon import read_lexicon
-    from wordspot.training.trainer import TrainingConfig, train
+    from wordspot.training.trainer import TrainingConfig
 
-    model, _summary = train(list(utterances), read_lexicon(lexicon_path),
-                            config=TrainingConfig(jobs=jobs), quiet=True)
-    return model
+    return _train_as_the_command_does(utterances, lexicon_path, start=None, config=TrainingConfig(jobs=jobs),
+                                      calibration=calibration)
 
 
-def adapt_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, start="starter"):
-    """Adapt the shipped starter model (``start``: a starter's name or a model) with wordspot's
-    default settings (``AdaptationConfig``).
+def adapt_wordspot(utterances: Sequence, lexicon_path: Path, *, jobs: int, start="starter",
+                   calibration: bool = True):
+    """Adapt the shipped starter model (``start``: a starter's name or a model) as
+    ``wordspot train --jobs`` does by default: ``AdaptationConfig`` and, unless
+    ``calibration`` is False, the word-confidence calibration (held-out recordings, or the
+    starter's own where there are too few; ``wordspot.api.train``).
 
     Returns
     -------
     model : wordspot.model.AcousticModel
     """
-    from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
-    from wordspot.training.adapt import AdaptationConfig, adapt
+    from wordspot.training.adapt import AdaptationConfig
 
     start = load_model(start) if isinstance(start, str) else start
-    model, _summary = adapt(list(utterances), read_lexicon(lexicon_path), start,
-                            config=AdaptationConfig(jobs=jobs), quiet=True)
-    return model
+    return _train_as_the_command_does(utterances, lexicon_path, start=start, config=AdaptationConfig(jobs=jobs),
+                                      calibration=calibration)
 
 
 def starter_without_scorer(cache: Path | None = None, dev_manifest: Path | None = None):
