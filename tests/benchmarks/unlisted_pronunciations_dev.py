@@ -197,10 +197,13 @@ def score(heard, ex, names, floor, config):
     from wordspot.evaluation.calibrate import fit_calibration
 
     names = BASE_MEASURE_NAMES + tuple(names)
-    fitted = type(ex)(floored(ex.measures, floor), ex.right, ex.own_words_removed, ex.jumbled, ex.recordings,
-                      [], ex.source)
-    cal = fit_calibration(fitted, config=config, names=names)
     cols = [MEASURE_NAMES.index(n) for n in names]
+    # an example with a measure that is not finite is left out (as starter_calibration_dev.py;
+    # the starter's seed 1 draws one with an infinite runner-up margin)
+    ok = np.isfinite(ex.measures[:, cols]).all(axis=1)
+    fitted = type(ex)(floored(ex.measures[ok], floor), ex.right[ok], ex.own_words_removed[ok], ex.jumbled[ok],
+                      ex.recordings, [], ex.source[ok])
+    cal = fit_calibration(fitted, config=config, names=names)
     conf = {k: [cal.predict(floored(m, floor)[:, cols]) if m.shape[0] else np.zeros(0) for _, _, m in v]
             for k, v in heard.items()}
     t = DEFAULT_MIN_CONFIDENCE
@@ -293,7 +296,7 @@ def main(argv=None) -> int:
     settings = DecoderSettings(min_confidence=0.0)
     starter_config = CalibrationConfig(min_items=1, min_per_class=5, penalty=StarterCalibrationConfig.penalty)
     results = {s: {c: [] for c in CANDIDATES} for s in args.systems}
-    sets = None
+    sets = starter_heard = None
     start = load_model(starter_path("starter"))
     for system in args.systems:
         for seed in args.seeds:
@@ -302,17 +305,19 @@ def main(argv=None) -> int:
             ex_file = folder / f"{system}-seed{seed}-examples.npz" if folder else None
             if system == "starter" and folder and seed != args.seeds[0]:
                 heard_file = folder / f"starter-seed{args.seeds[0]}.json"  # the starter hears the dev sets once
-            if args.load:
+            if args.load or (args.save and heard_file.exists() and ex_file.exists()):  # kept by an earlier run
                 heard, ex = load_heard(heard_file), load_examples(ex_file)
             else:
                 if sets is None:
                     sets = build_sets(lexicon, args.save)
                     print("dev sets: " + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr)
                 if system == "starter":
-                    ex = starter_calibration_examples(start, read_manifest(REPO / "recordings" / "starter" / "dev.csv"),
-                                                      StarterCalibrationConfig(seed=seed))
-                    if seed == args.seeds[0]:
-                        starter_heard = decode_measures(start, sets, lexicon)
+                    ex = (load_examples(ex_file) if ex_file is not None and ex_file.exists() else
+                          starter_calibration_examples(start, read_manifest(REPO / "recordings" / "starter" / "dev.csv"),
+                                                       StarterCalibrationConfig(seed=seed)))
+                    if starter_heard is None:
+                        starter_heard = (load_heard(heard_file) if heard_file is not None and heard_file.exists()
+                                         else decode_measures(start, sets, lexicon))
                     heard = starter_heard
                 else:
                     config = CalibrationConfig(seed=seed, settings=settings)
