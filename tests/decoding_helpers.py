@@ -40,16 +40,17 @@ class TableHMM(BaseHMM):
         return {}
 
 
-def tiny_model(rng, entries, *, dim=39, separation=5.0, transcripts=(), n_components=1):
+def tiny_model(rng, entries, *, dim=39, separation=5.0, transcripts=(), n_components=1, phones=PHONES):
     """A model whose mixture means are far apart (one direction per mixture) with unit variances.
 
     Parameters
     ----------
     entries : dict word -> list of phone lists
     transcripts : word sequences for the bigram counts
+    phones : the model's phones
     """
     lex = Lexicon(entries)
-    units = default_unit_set(PHONES)
+    units = default_unit_set(phones)
     p = units.n_mixtures
     means = np.zeros((p, n_components, dim))
     for k in range(p):

@@ -7,9 +7,10 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from decoding_helpers import frames_along, pause_mixtures, tiny_model, word_mixtures
+from decoding_helpers import PHONES, frames_along, pause_mixtures, tiny_model, word_mixtures
 from wordspot.acoustic.scorer import StateScorer
-from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES, POSTERIOR_MEASURE_NAMES
+from wordspot.decoding.confidence import (BASE_MEASURE_NAMES, MEASURE_NAMES, POSTERIOR_MEASURE_NAMES, VOWEL_CLASSES,
+                                          WORST_PHONE_FLOOR, path_posterior_measures)
 from wordspot.decoding.decoder import DecoderSettings, build_recognizer
 from wordspot.decoding.spans import piece_score_reference
 from wordspot.model import load_model, save_model
@@ -70,7 +71,25 @@ def test_measures_follow_a_naive_computation_along_the_words_path(bat, rng):
     filler = rec.pieces()[0]
     margin = (piece_score_reference(lp, a, b, piece) - piece_score_reference(lp, a, b, filler, 0.0)) / (b - a + 1)
     want = (sum(per_frame) / len(per_frame), sum(phone_means) / 3, min(phone_means), margin)
-    assert seg.measures[POST] == pytest.approx(want, rel=1e-6, abs=1e-6)
+    assert seg.measures[POST][:4] == pytest.approx(want, rel=1e-6, abs=1e-6)
+    # AA is the only vowel of these words, but the filler brings every phone: the best
+    # vowel on the AA frames is the largest posterior of any vowel's state in that position
+    units = model.units
+    vowels = [v for members in VOWEL_CLASSES.values() for v in members if v in units]
+    any_vowel = {}
+    for k, t in enumerate(range(a, b + 1)):
+        column = piece.mixture[states[k]]
+        mixture_id = int(net.used_mixtures[column])
+        unit, position = map(int, np.argwhere(units.state_mixture == mixture_id)[0])
+        value = float(full[t, mixture_id])
+        if units.names[unit] == "AA":
+            value = max(float(full[t, units.state_mixture[units.index(v), position]]) for v in vowels)
+        any_vowel.setdefault(int(phones[k]), []).append(value)
+    worst_any = min(sum(v) / len(v) for v in any_vowel.values())
+    ordered = sorted(phone_means)
+    assert seg.measures[len(BASE_MEASURE_NAMES) + 4] == pytest.approx(worst_any, rel=1e-6, abs=1e-6)
+    assert seg.measures[len(BASE_MEASURE_NAMES) + 6:] == pytest.approx(
+        (ordered[1], (ordered[0] + ordered[1]) / 2, max(ordered[0], WORST_PHONE_FLOOR)), rel=1e-6, abs=1e-6)
     assert MEASURE_NAMES[POST] == POSTERIOR_MEASURE_NAMES
 
 
@@ -88,6 +107,68 @@ def test_measures_of_a_path_given_by_hand(bat):
     assert got[:3] == pytest.approx((-1.6, -1.5, -2.0), abs=1e-12)
     # a path that does not fit gives NaN
     assert np.isnan(rec.posterior_measures(lp, 2, 6, (piece, states - 10, states, -np.inf))).all()
+
+
+def test_vowel_stand_ins_second_worst_and_floor_on_a_path_given_by_hand(rng):
+    # Worked by hand. "bat" is B AA T, three states a phone; the path spends one frame in each
+    # of its nine states (frames 1..9). Log posteriors on the path: B -0.1, AA -10 -8 -9,
+    # T -0.2, so the phone means are -0.1, -9 and -0.2: worst -9, second-worst -0.2, the two
+    # worst -4.6. Every other column is -20, but on the AA frames AO (a back vowel as AA) has
+    # -0.5, -1, -1.5 in the same state positions and IY (a front vowel) -0.2 in the middle one.
+    model = tiny_model(rng, ENTRIES, transcripts=TRANSCRIPTS, phones=PHONES + ("AO", "IY", "UW", "UH", "OW", "OY"))
+    rec = build_recognizer(model)
+    net = rec.network
+    piece = rec.word_path(np.zeros((20, net.used_mixtures.size)), 0, 0, 8)[0]
+    lp = np.full((11, net.used_mixtures.size), -20.0)
+    states = np.arange(9)
+    phones = np.repeat([0, 1, 2], 3)
+    for t, v in zip(range(1, 10), (-0.1, -0.1, -0.1, -10.0, -8.0, -9.0, -0.2, -0.2, -0.2)):
+        lp[t, piece.mixture[states[t - 1]]] = v
+
+    def column(unit, position):
+        return int(np.searchsorted(net.used_mixtures, model.units.state_mixture[model.units.index(unit), position]))
+
+    for position, v in enumerate((-0.5, -1.0, -1.5)):
+        lp[4 + position, column("AO", position)] = v
+    lp[5, column("IY", 1)] = -0.2
+    got = rec.posterior_measures(lp, 1, 9, (piece, states, phones, 0.0))
+    named = dict(zip(POSTERIOR_MEASURE_NAMES, got))
+    assert named["posterior_worst_phone"] == pytest.approx(-9.0, abs=1e-12)
+    # best vowel on the AA frames: -0.5, -0.2 (IY), -1.5; mean -2.2 / 3 is the worst phone now
+    assert named["posterior_worst_phone_any_vowel"] == pytest.approx(-2.2 / 3, abs=1e-12)
+    # the back vowels' summed posterior: AA's own, AO's and 4 others (UW UH OW OY, all in this model) at -20
+    back = [np.log(np.exp(own) + np.exp(ao) + 4 * np.exp(-20.0)) for own, ao in ((-10, -0.5), (-8, -1), (-9, -1.5))]
+    assert named["posterior_worst_phone_vowel_class"] == pytest.approx(np.mean(back), abs=1e-12)
+    assert -1.0 < named["posterior_worst_phone_vowel_class"] < -0.99  # about AO's mean alone
+    assert named["posterior_second_worst_phone"] == pytest.approx(-0.2, abs=1e-12)
+    assert named["posterior_two_worst_phones"] == pytest.approx(-4.6, abs=1e-12)
+    assert named["posterior_worst_phone_floored"] == pytest.approx(max(-9.0, WORST_PHONE_FLOOR), abs=1e-12)
+    assert WORST_PHONE_FLOOR > -9.0
+    # the measures older than these are as before: mean -27.9 / 9, mean of phone means -9.3 / 3
+    assert got[:3] == pytest.approx((-27.9 / 9, -9.3 / 3, -9.0), abs=1e-12)
+
+
+def test_second_worst_of_one_phone_is_that_phone():
+    # one phone of two frames (-1, -3): every phone measure is its mean -2; no vowel stand-in moves it
+    x = np.array([-1.0, -3.0])
+    got = path_posterior_measures(x, np.zeros(2, dtype=np.int64), x, x)
+    assert got == pytest.approx((-2.0, -2.0, -2.0, -2.0, -2.0, -2.0, -2.0, max(-2.0, WORST_PHONE_FLOOR)), abs=1e-12)
+
+
+def test_a_calibration_over_the_older_posterior_measures_reads_the_same_values(bat, rng, tmp_path):
+    # a model file calibrated over the twelve measures of before (the starters' shipped files)
+    older = ("acoustic_per_frame", "free_margin", "frames_per_phone", "filler_margin", "runner_up_margin",
+             "next_to_filler", "phones", "phone_filler_margin", "posterior_mean", "posterior_phone_mean",
+             "posterior_worst_phone", "posterior_filler_margin")
+    assert MEASURE_NAMES[:12] == older  # the older measures keep their places
+    model, frames = bat
+    cal = Calibration(older, np.linspace(-40.0, 0.0, 12), np.linspace(1.0, 3.0, 12), np.linspace(-1.0, 1.0, 12), 0.5)
+    saved = load_model(save_model(replace(model, calibration=cal, scorer=random_scorer(rng, model.mixtures.n_mixtures)),
+                                  tmp_path / "older.model"))
+    assert saved.calibration.names == older
+    seg = build_recognizer(saved, settings=DecoderSettings(min_confidence=0.0)).decode(frames).segments[0]
+    assert len(seg.measures) == len(MEASURE_NAMES) and np.isfinite(seg.measures).all()
+    assert seg.confidence == pytest.approx(float(cal.predict(np.array(seg.measures[:12]))), rel=1e-12)
 
 
 def test_no_scorer_no_posterior_measures_and_old_calibrations_give_the_same_confidences(bat, rng, tmp_path):

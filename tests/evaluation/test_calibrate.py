@@ -67,11 +67,11 @@ def _examples(right, wrong, recordings=40, rng=None, posteriors=False):
     good = rng.normal([-50.0, -1.0, 2.0, -0.5, 3.0, 0.0, 4.0, -0.3], 1.0, size=(right, 8))
     bad = rng.normal([-60.0, -6.0, 2.5, -3.0, 0.0, 1.0, 3.0, -2.0], 1.0, size=(wrong, 8))
     labels = np.r_[np.ones(right, bool), np.zeros(wrong, bool)]
-    if posteriors:  # right words' states are the likelier ones under the network
-        post = np.vstack([rng.normal([-1.0, -1.2, -2.5, 0.0], 0.5, size=(right, 4)),
-                          rng.normal([-3.0, -3.2, -5.0, -2.0], 0.5, size=(wrong, 4))])
+    if posteriors:  # right words' states are the likelier ones under the network (POSTERIOR_MEASURE_NAMES' order)
+        post = np.vstack([rng.normal([-1.0, -1.2, -2.5, 0.0, -2.0, -2.2, -1.5, -2.0, -2.5], 0.5, size=(right, 9)),
+                          rng.normal([-3.0, -3.2, -5.0, -2.0, -4.5, -4.8, -3.5, -4.2, -4.0], 0.5, size=(wrong, 9))])
     else:  # a model without a state scorer: NaN
-        post = np.full((right + wrong, 4), np.nan)
+        post = np.full((right + wrong, 9), np.nan)
     return CalibrationExamples(np.hstack([np.vstack([good, bad]), post]), labels, ~labels, recordings=recordings)
 
 

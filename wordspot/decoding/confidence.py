@@ -29,6 +29,14 @@ Measures (over the word's frames, its trailing pause included, unless said other
   that phone's frames (``Recognizer.phone_margin``): every phone counts the same, so one
   phone that fits badly shows even in a long word.
 
+With a state scorer, the measures of :data:`POSTERIOR_MEASURE_NAMES` read its log
+posteriors along the word's best path (:func:`path_posterior_measures`; the margin over the
+filler is the decoder's). Four of them soften the worst phone for speakers whose vowels are
+not the lexicon's (an accent moves a vowel to a neighbouring one): on a vowel's frames the
+best vowel's posterior, or the summed posterior of the vowels of its broad class
+(:data:`VOWEL_CLASSES`), stands in for the listed vowel's; the second-worst phone; the mean
+of the two worst; the worst clipped at :data:`WORST_PHONE_FLOOR`.
+
 Without the filler (``--no-filler``) or with a one-word vocabulary the margins are
 undefined (NaN) and the confidence is the heuristic.
 
@@ -54,7 +62,10 @@ __all__ = [
     "NO_POSTERIORS",
     "CONFIDENCE_SCALE",
     "DEFAULT_MIN_CONFIDENCE",
+    "VOWEL_CLASSES",
+    "WORST_PHONE_FLOOR",
     "word_measures",
+    "path_posterior_measures",
     "heuristic_confidence",
     "usable_calibration",
     "calibration_columns",
@@ -67,8 +78,26 @@ BASE_MEASURE_NAMES = ("acoustic_per_frame", "free_margin", "frames_per_phone", "
                       "next_to_filler", "phones", "phone_filler_margin")
 
 #: The measures from the state scorer's log posteriors (NaN for a model without a scorer).
+#: The first four are older than the others; new names are added at the end, so that a
+#: calibration stored with the older names reads the same values.
 POSTERIOR_MEASURE_NAMES = ("posterior_mean", "posterior_phone_mean", "posterior_worst_phone",
-                           "posterior_filler_margin")
+                           "posterior_filler_margin", "posterior_worst_phone_any_vowel",
+                           "posterior_worst_phone_vowel_class", "posterior_second_worst_phone",
+                           "posterior_two_worst_phones", "posterior_worst_phone_floored")
+
+#: ARPAbet vowels by broad class, front / central / back by where the vowel starts (the usual
+#: vowel chart of American English; from memory). A diphthong goes with its first part.
+VOWEL_CLASSES = {
+    "front": ("IY", "IH", "EY", "EH", "AE"),
+    "central": ("AH", "ER", "AY", "AW"),
+    "back": ("UW", "UH", "OW", "AO", "AA", "OY"),
+}
+
+#: The floor of ``posterior_worst_phone_floored`` (mean log posterior of the worst phone):
+#: below it a phone counts as simply unlike the lexicon, however far below. The best of
+#: -4, -5, -6, -8 on dev commands with unlisted vowels; the measure is an option, in no
+#: default calibration (docs/experiments/2026-12-03-unlisted-pronunciations.md).
+WORST_PHONE_FLOOR = -4.0
 
 #: The measures :func:`word_measures` returns, in order; a calibration names the ones it uses.
 MEASURE_NAMES = BASE_MEASURE_NAMES + POSTERIOR_MEASURE_NAMES
@@ -113,7 +142,7 @@ def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_e
         Neighbours on the best path that are the filler.
     phone_filler_margin : float
         Mean per-phone margin over the filler (see the module docstring).
-    posterior : sequence of 4 floats
+    posterior : sequence of floats
         The measures of :data:`POSTERIOR_MEASURE_NAMES` (NaN without a state scorer).
     """
     span = end - start + 1
@@ -121,6 +150,42 @@ def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_e
     return (acoustic / span, float(free_margin), math.log((phone_end - start + 1) / n_phones),
             float(filler_margin), float(runner_up_margin), float(next_to_filler), float(n_phones),
             float(phone_filler_margin)) + tuple(float(v) for v in posterior)
+
+
+def path_posterior_measures(on_path: np.ndarray, phones: np.ndarray, any_vowel: np.ndarray,
+                            vowel_class: np.ndarray) -> tuple[float, ...]:
+    """The posterior measures of a word's path but the margin over the filler.
+
+    Parameters
+    ----------
+    on_path : ndarray, shape (F,)
+        The log posterior of the path's state at each of the word's frames in a phone.
+    phones : ndarray of int, shape (F,)
+        The phone (0-based within the pronunciation) of each of those frames.
+    any_vowel, vowel_class : ndarray, shape (F,)
+        ``on_path`` with a vowel's frames given the log posterior of the best vowel, and the
+        log of the summed posteriors of the vowels of the listed vowel's class, in the
+        path's state position (the others as in ``on_path``).
+
+    Returns
+    -------
+    tuple of 8 floats
+        In the order of :data:`POSTERIOR_MEASURE_NAMES` without ``posterior_filler_margin``:
+        the mean, the mean of the phone means, the worst phone mean, the worst phone mean
+        with each of the two stand-ins, the second-worst phone mean (the worst with one
+        phone), the mean of the two worst and the worst clipped at :data:`WORST_PHONE_FLOOR`.
+    """
+    counts = np.bincount(phones)
+    seen = counts > 0
+
+    def phone_means(values):
+        return np.bincount(phones, weights=values, minlength=counts.size)[seen] / counts[seen]
+
+    means = phone_means(on_path)
+    two = np.sort(means)[:2]
+    return (float(on_path.mean()), float(means.mean()), float(means.min()),
+            float(phone_means(any_vowel).min()), float(phone_means(vowel_class).min()), float(two[-1]),
+            float(two.mean()), float(max(means.min(), WORST_PHONE_FLOOR)))
 
 
 def heuristic_confidence(measures: Sequence[float]) -> float:

@@ -21,8 +21,9 @@ import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
 from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, inside_talk
-from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, NO_POSTERIORS,
-                                          split_by_confidence, usable_calibration, word_confidence, word_measures)
+from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, NO_POSTERIORS, VOWEL_CLASSES,
+                                          path_posterior_measures, split_by_confidence, usable_calibration,
+                                          word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
@@ -288,6 +289,8 @@ class Recognizer:
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
     _filler_phones: dict | None = field(default=None, repr=False)  # set with the filler piece
+    _vowel_tables: dict = field(default_factory=dict, repr=False)
+    _units: dict | None = field(default=None, repr=False)
 
     def pieces(self) -> tuple[Piece | None, Piece, np.ndarray]:
         """The filler loop (phones and the pause; None without background words), all
@@ -378,9 +381,10 @@ class Recognizer:
         path : tuple
             :meth:`word_path` of the word over those frames (on the emissions).
 
-        Returns ``(mean, mean of phone means, worst phone mean, margin over the filler)``
-        over the path's frames in a phone (a trailing pause state of the word left out);
-        NaN where no path fits (and the margin NaN without background words).
+        Returns the measures of :func:`~wordspot.decoding.confidence.path_posterior_measures`
+        (mean, mean of phone means, worst phone mean, ...) with the margin over the filler
+        fourth, over the path's frames in a phone (a trailing pause state of the word left
+        out); NaN where no path fits (and the margin NaN without background words).
         """
         piece, states, phones, score = path
         inside = phones >= 0  # frames in a phone (not in the word's trailing pause)
@@ -388,15 +392,72 @@ class Recognizer:
             return NO_POSTERIORS
         t = np.arange(first, last + 1)
         on_path = lp[t[inside], piece.mixture[states[inside]]]
-        counts = np.bincount(phones[inside])
-        sums = np.bincount(phones[inside], weights=on_path, minlength=counts.size)
-        means = sums[counts > 0] / counts[counts > 0]
+        any_vowel, vowel_class = self._vowel_stand_ins(lp, t[inside], piece, states[inside], phones[inside])
+        measures = path_posterior_measures(on_path, phones[inside], any_vowel, vowel_class)
         filler = self.pieces()[0]
         margin = float("nan")
         if filler is not None:
             own = piece_score(lp, first, last, piece)
             margin = (own - piece_score(lp, first, last, filler, 0.0)) / t.size
-        return float(on_path.mean()), float(means.mean()), float(means.min()), float(margin)
+        return measures[:3] + (float(margin),) + measures[3:]
+
+    def _vowel_stand_ins(self, lp: np.ndarray, t: np.ndarray, piece: Piece, states: np.ndarray,
+                         phones: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Per frame ``t`` of the path (local ``states`` of ``piece``, a pronunciation's item):
+        the log posterior of the best vowel and the log of the summed posteriors of the vowels
+        of the listed vowel's class, in the state's position (the state's own elsewhere)."""
+        best, group = self._vowel_columns(piece)
+        own = lp[t, piece.mixture[states]]
+        any_vowel = np.maximum(own, lp[t[:, None], best[states]].max(axis=1))
+        cols = group[states]
+        vowel_class = own.copy()
+        rows = np.flatnonzero(cols[:, 0] >= 0)
+        if rows.size:
+            x = np.where(cols[rows] >= 0, lp[t[rows, None], np.maximum(cols[rows], 0)], -np.inf)
+            top = x.max(axis=1)
+            vowel_class[rows] = top + np.log(np.exp(x - top[:, None]).sum(axis=1))
+        return any_vowel, vowel_class
+
+    def _vowel_columns(self, piece: Piece) -> tuple[np.ndarray, np.ndarray]:
+        """For each state of ``piece`` (one pronunciation, as :meth:`word_path` makes it): the
+        network columns of every vowel in the same state position (the state's own column
+        where it is no vowel), and those of the vowels of its class (-1 where none)."""
+        pron = next(p for p, (pc, _) in self._pron_pieces.items() if pc is piece)
+        if pron not in self._vowel_tables:
+            net = self.network
+            units = self._unit_columns()
+            item = pron + FIRST_WORD_ITEM
+            names = net.prons[pron]
+            phone_of = net.phone[net.item == item]
+            class_of = {v: members for members in VOWEL_CLASSES.values() for v in members}
+            vowels = [v for v in class_of if v in units]
+            width = max(len(vowels), 1)
+            best = np.repeat(piece.mixture[:, None], width, axis=1)
+            group = np.full((piece.n_states, width), -1, dtype=np.int64)
+            for s, k in enumerate(phone_of):
+                if k < 0 or names[k] not in class_of:
+                    continue
+                position = s - int(np.flatnonzero(phone_of == k)[0])
+                here = [units[v][position] for v in vowels if position < len(units[v])]
+                best[s, :len(here)] = here
+                mates = [units[v][position] for v in class_of[names[k]] if v in units and position < len(units[v])]
+                group[s, :len(mates)] = mates
+            self._vowel_tables[pron] = (best, group)
+        return self._vowel_tables[pron]
+
+    def _unit_columns(self) -> dict[str, np.ndarray]:
+        """Each unit the network uses: the columns of its states, in order."""
+        if self._units is None:
+            net = self.network
+            units: dict[str, np.ndarray] = {}
+            for item in range(FIRST_WORD_ITEM, FIRST_WORD_ITEM + len(net.prons)):
+                here = net.item == item
+                phone_of, mixture = net.phone[here], net.mixture[here]
+                for k, name in enumerate(net.prons[item - FIRST_WORD_ITEM]):
+                    if name not in units:
+                        units[name] = mixture[phone_of == k]
+            self._units = units
+        return self._units
 
     @property
     def min_confidence(self) -> float:
