@@ -287,7 +287,7 @@ class Recognizer:
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
-    _filler_phones: dict | None = field(default=None, repr=False)  # set with the filler piece
+    _filler_phones: dict | None = field(default=None, repr=False)  # phone -> its filler items' piece
 
     def pieces(self) -> tuple[Piece | None, Piece, np.ndarray]:
         """The filler loop (phones and the pause; None without background words), all
@@ -299,9 +299,10 @@ class Recognizer:
             if net.background is not None:
                 items = _background_items(net)
                 filler = piece_of(net, items)
-                # the filler piece's states in order, each named by its item's single unit
-                names = [net.prons[int(i) - FIRST_WORD_ITEM][0] for i in net.item[np.isin(net.item, items)]]
-                self._filler_phones = {n: np.array([k for k, m in enumerate(names) if m == n]) for n in set(names)}
+                # each unit's own items of the filler (one single-unit item per phone and pause)
+                names = {i: net.prons[i - FIRST_WORD_ITEM][0] for i in items}
+                self._filler_phones = {n: piece_of(net, [i for i in items if names[i] == n])
+                                       for n in set(names.values())}
             items = net.word_pron[net.word_first[1]:net.word_first[net.n_words + 1]] + FIRST_WORD_ITEM
             commands = piece_of(net, items)
             state_word = net.pron_word[net.item[np.isin(net.item, items)] - FIRST_WORD_ITEM]
@@ -362,7 +363,9 @@ class Recognizer:
             if frames.size == 0:
                 continue
             a, b = first + int(frames[0]), first + int(frames[-1])
-            own = piece_ends(ll, a, b, filler)[self._filler_phones[name]].max()
+            # the phone's own filler items alone: with no re-entry the filler's items do not
+            # meet, so these are the numbers its states have in the whole filler piece
+            own = piece_ends(ll, a, b, self._filler_phones[name]).max()
             margins.append((own - piece_score(ll, a, b, filler, 0.0)) / (b - a + 1))
         return float(np.mean(margins)) if margins else float("nan")
 
@@ -437,15 +440,17 @@ class Recognizer:
         lp = net = None
         if scorer is not None:
             cols = self.network.used_mixtures
-            z = scorer.log_posteriors(frames, work=work_array)[:, cols]
+            # log_posteriors(frames)[:, cols] in float64, bit for bit (C order, so the
+            # measures' compiled loops read it without a copy)
+            z = scorer.column_log_posteriors(frames, cols, work=work_array)
             if posteriors and self.posterior_scorer is not None:
-                lp = z.astype(np.float64)
+                lp = z
             if w > 0.0:
-                # as StateScorer.scaled_log_likelihoods(frames, scale * w, columns=cols)
-                z -= scorer.log_prior[cols]
+                # as StateScorer.scaled_log_likelihoods(frames, scale * w, columns=cols), in float32
+                net = z.astype(np.float32)  # exactly the float32 numbers
+                net -= scorer.log_prior[cols]
                 if s.scorer_scale * w != 1.0:
-                    z *= z.dtype.type(s.scorer_scale * w)
-                net = z
+                    net *= net.dtype.type(s.scorer_scale * w)
         if w >= 1.0:
             return net.astype(np.float64), lp
         gmm = self._mixture_scores(frames)

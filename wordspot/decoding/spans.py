@@ -11,7 +11,7 @@ leaves one item enter any item of the piece again (``reenter_logp`` added) or, w
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numba
 import numpy as np
@@ -34,10 +34,38 @@ class Piece:
     end_logp: np.ndarray
     start_state: np.ndarray
     start_logp: np.ndarray
+    prev_logp: np.ndarray = field(default=None, repr=False)
+    in_first: np.ndarray = field(default=None, repr=False)
+    in_src: np.ndarray = field(default=None, repr=False)
+    in_logp: np.ndarray = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        if self.in_first is None:  # the arcs by destination, for the compiled score (_score)
+            tables = _incoming(self.arc_first, self.arc_dst, self.arc_logp, self.mixture.shape[0])
+            for name, value in zip(("prev_logp", "in_first", "in_src", "in_logp"), tables):
+                object.__setattr__(self, name, value)
 
     @property
     def n_states(self) -> int:
         return int(self.mixture.shape[0])
+
+
+def _incoming(arc_first: np.ndarray, arc_dst: np.ndarray, arc_logp: np.ndarray, n: int):
+    """The arcs by destination: ``prev_logp`` (n,), the log probability of the arc from the
+    state before (-inf where none; the best of several), and the other arcs as a table
+    (``in_first`` (n + 1,), ``in_src``, ``in_logp``; within a destination in the order the
+    arcs are listed by source)."""
+    src = np.repeat(np.arange(n, dtype=np.int64), np.diff(arc_first))
+    dst = np.asarray(arc_dst, dtype=np.int64)
+    logp = np.asarray(arc_logp, dtype=np.float64)
+    chain = src == dst - 1
+    prev_logp = np.full(n, -np.inf)
+    np.maximum.at(prev_logp, dst[chain], logp[chain])
+    src, dst, logp = src[~chain], dst[~chain], logp[~chain]
+    order = np.argsort(dst, kind="stable")
+    first = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(np.bincount(dst, minlength=n)[:n], out=first[1:])
+    return prev_logp, first, np.ascontiguousarray(src[order]), np.ascontiguousarray(logp[order])
 
 
 def piece_of(net, items) -> Piece:
@@ -78,36 +106,44 @@ def _entered(ll, first, mixture, start_state, start_logp):
 
 
 @numba.njit(cache=True, nogil=True)
-def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp,
+def _score(ll, first, last, mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
            start_state, start_logp, reenter_logp):
+    """The recursion of :func:`piece_score_reference`, each state pulling its best
+    predecessor: its self-loop and the arc from the state before in one vectorised pass
+    (``Piece.prev_logp``), then any other arcs by destination (``Piece.in_*``). No
+    scattered writes, and a state no path reaches stays -inf without a test. Every state
+    takes the maximum of the same sums as the dense recursion, so the scores are the same
+    numbers."""
     n = mixture.shape[0]
     cur = _entered(ll, first, mixture, start_state, start_logp)
-    nxt = np.full(n, _NEG)
+    nxt = np.empty(n)
     for t in range(first + 1, last + 1):
-        for s in range(n):
-            nxt[s] = _NEG
         ended = _NEG
-        for s in range(n):
-            sc = cur[s]
-            if sc == _NEG:
-                continue
-            if self_logp[s] + sc > nxt[s]:
-                nxt[s] = self_logp[s] + sc
-            for e in range(arc_first[s], arc_first[s + 1]):
-                d = arc_dst[e]
-                if sc + arc_logp[e] > nxt[d]:
-                    nxt[d] = sc + arc_logp[e]
-            if sc + end_logp[s] > ended:
-                ended = sc + end_logp[s]
-        if reenter_logp > _NEG and ended > _NEG:
+        if reenter_logp > _NEG:
+            for s in range(n):
+                v = cur[s] + end_logp[s]
+                if v > ended:
+                    ended = v
+        if n > 0:
+            nxt[0] = cur[0] + self_logp[0]
+        for s in range(1, n):  # the self-loop and the arc from the state before (vectorised)
+            stay = cur[s] + self_logp[s]
+            come = cur[s - 1] + prev_logp[s]
+            nxt[s] = come if come > stay else stay
+        for s in range(n):  # the other arcs (the filler's pauses, skips)
+            for e in range(in_first[s], in_first[s + 1]):
+                v = cur[in_src[e]] + in_logp[e]
+                if v > nxt[s]:
+                    nxt[s] = v
+        if ended > _NEG:
             for k in range(start_state.shape[0]):
                 s = start_state[k]
                 v = ended + reenter_logp + start_logp[k]
                 if v > nxt[s]:
                     nxt[s] = v
+        row = ll[t]
         for s in range(n):
-            if nxt[s] > _NEG:
-                nxt[s] += ll[t, mixture[s]]
+            nxt[s] += row[mixture[s]]
         cur, nxt = nxt, cur
     out = np.empty(n)
     for s in range(n):
@@ -117,7 +153,7 @@ def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, en
 
 def _ends(ll, first, last, piece, reenter_logp):
     return _score(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
-                  piece.self_logp, piece.arc_first, piece.arc_dst, piece.arc_logp, piece.end_logp,
+                  piece.self_logp, piece.prev_logp, piece.in_first, piece.in_src, piece.in_logp, piece.end_logp,
                   piece.start_state, piece.start_logp, float(reenter_logp))
 
 
