@@ -62,6 +62,22 @@ def _stack_into(x: np.ndarray, c: int, out: np.ndarray) -> np.ndarray:
     return out
 
 
+def _windows(x: np.ndarray, c: int, work) -> np.ndarray:
+    """:func:`stack_context` of float32 ``x`` (T >= 1) as a read-only view: row ``t`` of the
+    frames padded with ``c`` copies of the edge frames on each side, read ``2 c + 1``
+    frames long (the rows overlap in memory)."""
+    n, d = x.shape
+    if c == 0:
+        return x
+    padded = work("scorer_padded", (n + 2 * c, d), SCORER_DTYPE)
+    padded[:c] = x[0]
+    padded[c:c + n] = x
+    padded[c + n:] = x[n - 1]
+    step = padded.strides[1]
+    return np.lib.stride_tricks.as_strided(padded, shape=(n, d * (2 * c + 1)), strides=(d * step, step),
+                                           writeable=False)
+
+
 def _fresh(name: str, shape: tuple, dtype) -> np.ndarray:
     return np.empty(shape, dtype=dtype)
 
@@ -176,9 +192,10 @@ class StateScorer:
     def _logits(self, x: np.ndarray, work, *, fresh: bool) -> np.ndarray:
         """:meth:`logits` of checked float32 frames (T >= 1); the output layer in a work
         array unless ``fresh``."""
-        h = _stack_into(x, self.context, work("scorer_input", (x.shape[0], self.input_mean.shape[0]),
-                                                    SCORER_DTYPE))
-        h -= self.input_mean
+        h = work("scorer_input", (x.shape[0], self.input_mean.shape[0]), SCORER_DTYPE)
+        # stacking and centring in one pass: the windows are overlapping rows of the
+        # edge-padded frames (the numbers of stack_context, then the same subtraction)
+        np.subtract(_windows(x, self.context, work), self.input_mean, out=h)
         h /= self.input_scale
         last = len(self.weights) - 1
         for k, (w, b) in enumerate(zip(self.weights, self.biases)):

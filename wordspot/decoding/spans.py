@@ -16,8 +16,8 @@ from dataclasses import dataclass, field
 import numba
 import numpy as np
 
-__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "piece_score_reference", "piece_path",
-           "piece_path_reference"]
+__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "span_scores", "piece_score_reference",
+           "piece_ends_reference", "piece_path", "piece_path_reference"]
 
 _NEG = -np.inf
 
@@ -107,15 +107,20 @@ def _entered(ll, first, mixture, start_state, start_logp):
 
 @numba.njit(cache=True, nogil=True)
 def _score(ll, first, last, mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
-           start_state, start_logp, reenter_logp):
+           start_state, start_logp, reenter_logp, state_group, group):
     """The recursion of :func:`piece_score_reference`, each state pulling its best
     predecessor: its self-loop and the arc from the state before in one vectorised pass
     (``Piece.prev_logp``), then any other arcs by destination (``Piece.in_*``). No
     scattered writes, and a state no path reaches stays -inf without a test. Every state
     takes the maximum of the same sums as the dense recursion, so the scores are the same
-    numbers."""
+    numbers. ``group`` >= 0 keeps only the states with that ``state_group`` (the others
+    start at -inf; without re-entry they stay there)."""
     n = mixture.shape[0]
     cur = _entered(ll, first, mixture, start_state, start_logp)
+    if group >= 0:
+        for s in range(n):
+            if state_group[s] != group:
+                cur[s] = _NEG
     nxt = np.empty(n)
     for t in range(first + 1, last + 1):
         ended = _NEG
@@ -151,10 +156,47 @@ def _score(ll, first, last, mixture, self_logp, prev_logp, in_first, in_src, in_
     return out
 
 
+_NO_GROUPS = np.zeros(0, dtype=np.int64)
+
+
 def _ends(ll, first, last, piece, reenter_logp):
     return _score(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
                   piece.self_logp, piece.prev_logp, piece.in_first, piece.in_src, piece.in_logp, piece.end_logp,
-                  piece.start_state, piece.start_logp, float(reenter_logp))
+                  piece.start_state, piece.start_logp, float(reenter_logp), _NO_GROUPS, -1)
+
+
+@numba.njit(cache=True, nogil=True)
+def _spans(ll, firsts, lasts, mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
+           start_state, start_logp, reenter_logp, state_group, groups):
+    out = np.empty(firsts.shape[0])
+    for k in range(firsts.shape[0]):
+        ends = _score(ll, firsts[k], lasts[k], mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
+                      start_state, start_logp, reenter_logp, state_group, groups[k])
+        best = _NEG
+        for s in range(ends.shape[0]):
+            if ends[s] > best:
+                best = ends[s]
+        out[k] = best
+    return out
+
+
+def span_scores(ll: np.ndarray, firsts, lasts, piece: Piece, reenter_logp: float = _NEG, *,
+                state_group=None, groups=None) -> np.ndarray:
+    """:func:`piece_score` over several stretches ``firsts[k]..lasts[k]`` in one call.
+
+    With ``state_group`` (one whole number per state of ``piece``) and ``groups`` (one per
+    stretch), stretch ``k`` counts only the states of group ``groups[k]``: with no
+    re-entry, the best path through one item of that group (the states of the other
+    groups start at -inf), the numbers :func:`piece_ends` gives those states.
+    """
+    firsts = np.asarray(firsts, dtype=np.int64)
+    lasts = np.asarray(lasts, dtype=np.int64)
+    if state_group is None:
+        state_group, groups = _NO_GROUPS, np.full(firsts.shape[0], -1, dtype=np.int64)
+    return _spans(np.ascontiguousarray(ll, dtype=np.float64), firsts, lasts, piece.mixture, piece.self_logp,
+                  piece.prev_logp, piece.in_first, piece.in_src, piece.in_logp, piece.end_logp, piece.start_state,
+                  piece.start_logp, float(reenter_logp), np.asarray(state_group, dtype=np.int64),
+                  np.asarray(groups, dtype=np.int64))
 
 
 def piece_ends(ll: np.ndarray, first: int, last: int, piece: Piece) -> np.ndarray:
@@ -197,8 +239,9 @@ def _dense(piece: Piece) -> tuple[np.ndarray, np.ndarray]:
     return trans, enter
 
 
-def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
-    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+def piece_ends_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> np.ndarray:
+    """Plain-numpy version of the per-state scores behind :func:`piece_ends` and
+    :func:`piece_score`: the recursion over a dense matrix."""
     trans, enter = _dense(piece)
     delta = enter + ll[first, piece.mixture]
     for t in range(first + 1, last + 1):
@@ -206,7 +249,12 @@ def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _
         ended = np.max(delta + piece.end_logp)
         moved = np.maximum(moved, ended + reenter_logp + enter)
         delta = moved + ll[t, piece.mixture]
-    return float(np.max(delta + piece.end_logp))
+    return delta + piece.end_logp
+
+
+def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
+    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+    return float(np.max(piece_ends_reference(ll, first, last, piece, reenter_logp)))
 
 
 @numba.njit(cache=True, nogil=True)
