@@ -5,8 +5,8 @@ without changing what it hears, this runs ``Recognizer.decode_file`` over the sa
 with the code of this tree and with the code of ``--rev`` (read with ``git archive`` into
 a temporary folder), each in its own worker process with one thread, and
 
-- compares the results file by file: the words kept and dropped, each word's confidence
-  and its measures (largest differences printed; the words must be identical and the
+- compares the results file by file: the words kept and dropped, their frames, the
+  reason of an empty result, the narrowband flag, each word's confidence and its measures (largest differences printed; the words must be identical and the
   confidences within ``--tolerance``, default 1e-4);
 - times the two alternately, whole passes over the files in several rounds (CPU time of
   each worker, ``time.process_time``; the order swapped every other round), and prints
@@ -73,7 +73,8 @@ def _worker(model_path: str, list_path: str, word_loop: bool) -> int:
                 r = rec.decode_file(p)
                 words = [[s.word, s.confidence, [None if math.isnan(m) else m for m in s.measures], s.first_frame,
                           s.last_frame] for s in r.segments + r.dropped]
-                out.append({"kept": r.words, "words": words, "error": r.error, "reason": r.reason})
+                out.append({"kept": r.words, "words": words, "error": r.error, "reason": r.reason,
+                            "narrow_band": r.narrow_band})
             print(json.dumps({"results": out}), flush=True)
         else:
             break
@@ -127,7 +128,8 @@ def compare_results(a: list, b: list, tolerance: float) -> tuple[list[str], floa
     bad, conf_diff, measure_diff, n_words = [], 0.0, 0.0, 0
     for i, (x, y) in enumerate(zip(a, b)):
         same_words = (x["kept"] == y["kept"] and [w[0] for w in x["words"]] == [w[0] for w in y["words"]]
-                      and [w[3:] for w in x["words"]] == [w[3:] for w in y["words"]] and x["error"] == y["error"])
+                      and [w[3:] for w in x["words"]] == [w[3:] for w in y["words"]] and x["error"] == y["error"]
+                      and x["reason"] == y["reason"] and x.get("narrow_band") == y.get("narrow_band"))
         worst = 0.0
         for wx, wy in zip(x["words"], y["words"]):
             n_words += 1
