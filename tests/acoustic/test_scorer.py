@@ -160,3 +160,59 @@ def test_inputs_default_to_cepstra_and_count_in_sameness(rng):
     assert a.same_as(a) and not a.same_as(b) and not b.same_as(a)
     with pytest.raises(ValueError, match="inputs must name what the network reads"):
         StateScorer(a.context, a.input_mean, a.input_scale, a.weights, a.biases, a.log_prior, inputs="")
+
+
+@pytest.mark.parametrize("columns", [None, [4, 0, 2], [5, 4, 3, 2, 1, 0], [0, 1, 2, 3, 4, 5], [3]])
+def test_column_log_posteriors_are_the_reference_numbers_bit_for_bit(rng, columns):
+    # The fast path against the readable one it shortens: log_posteriors, the columns
+    # taken, widened to float64 (same float32 operations, so equal to the last bit).
+    scorer = random_scorer(rng)
+    for n in (30, 7, 30):  # reuse, shrink and grow the work arrays
+        frames = (rng.normal(size=(n, 3)) * 4).astype(np.float32)
+        want = scorer.log_posteriors(frames)
+        want = (want if columns is None else want[:, columns]).astype(np.float64)
+        for work in (None, work_array):
+            got = scorer.column_log_posteriors(frames, columns, work=work)
+            assert got.dtype == np.float64 and got.flags.c_contiguous
+            np.testing.assert_array_equal(got, want)
+
+
+def test_column_log_posteriors_equal_scikit_learn(rng):
+    # Reference library: scikit-learn's MLPClassifier.predict_proba with the same weights
+    # (as test_forward_pass_equals_scikit_learn), its log in the chosen columns.
+    from sklearn.exceptions import ConvergenceWarning
+    from sklearn.neural_network import MLPClassifier
+
+    d, c, p = 3, 2, 5
+    x = rng.normal(size=(40, d * (2 * c + 1)))
+    clf = MLPClassifier(hidden_layer_sizes=(8, 6), activation="relu", max_iter=3, random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        clf.fit(x, np.arange(40) % p)
+    clf.coefs_ = [rng.normal(size=w.shape) for w in clf.coefs_]
+    clf.intercepts_ = [rng.normal(size=b.shape) for b in clf.intercepts_]
+    mean, scale = rng.normal(size=x.shape[1]), rng.uniform(0.5, 2.0, x.shape[1])
+    scorer = StateScorer(c, mean, scale, tuple(clf.coefs_), tuple(clf.intercepts_), np.full(p, -np.log(p)))
+    frames = rng.normal(size=(30, d)).astype(np.float32)
+    stacked = (stack_context(frames, c).astype(np.float64) - mean.astype(np.float32)) / scale.astype(np.float32)
+    cols = [3, 1, 4]
+    expected = clf.predict_proba(stacked)[:, cols]
+    got = np.exp(scorer.column_log_posteriors(frames, cols))
+    # float32 arithmetic against scikit-learn's float64: the tolerance of the forward-pass test
+    np.testing.assert_allclose(got, expected, rtol=2e-4, atol=1e-6)
+
+
+def test_column_log_posteriors_of_no_frames_and_wrong_frames(rng):
+    scorer = random_scorer(rng, c=5)
+    assert scorer.column_log_posteriors(np.zeros((0, 3)), [1, 2]).shape == (0, 2)
+    assert scorer.column_log_posteriors(np.zeros((0, 3))).shape == (0, 6)
+    with pytest.raises(ValueError, match=r"frames must have shape \(T, 3\)"):
+        scorer.column_log_posteriors(np.zeros((4, 5)))
+
+
+@pytest.mark.parametrize("n, c", [(20, 0), (20, 5), (3, 5), (1, 2)])
+def test_windows_view_is_the_stacked_input(rng, n, c):
+    from wordspot.acoustic.scorer import _windows
+
+    frames = rng.normal(size=(n, 4)).astype(np.float32)
+    np.testing.assert_array_equal(_windows(frames, c, work_array), naive_stack(frames, c))

@@ -309,6 +309,23 @@ def test_emissions_equal_mixture_scoring(rng):
     np.testing.assert_allclose(decode_kernels.mixture_logsumexp(comp.astype(np.float32)), ref, rtol=0, atol=2e-5)
 
 
+@pytest.mark.parametrize("shape", [(7, 5, 4), (40, 30, 8), (3, 700, 16), (5, 4, 1)])
+def test_log_sum_exp_by_component_is_the_same_numbers(rng, shape):
+    # The component-major loop the emissions use against the mixture-major one (the same
+    # terms summed in the same order: equal to the last bit), float32 as the emissions
+    # give it, with -inf components and whole -inf mixtures; and against scipy's logsumexp
+    # (reference library) within the tolerance above.
+    comp = (rng.normal(size=shape) * 30.0).astype(np.float32)
+    comp[rng.random(shape) < 0.1] = -np.inf
+    comp[0, 1, :] = -np.inf
+    by_component = np.ascontiguousarray(comp.transpose(0, 2, 1))
+    got = decode_kernels.mixture_logsumexp_by_component(by_component)
+    np.testing.assert_array_equal(got, decode_kernels.mixture_logsumexp(comp))
+    assert got[0, 1] == -np.inf
+    ref = decode_kernels.mixture_logsumexp_reference(comp.astype(np.float64))
+    np.testing.assert_allclose(got, ref, rtol=0, atol=2e-5)
+
+
 def test_single_precision_exp_over_its_whole_range():
     # exp of values <= 0 against numpy's double-precision exp (reference: numpy), relative error
     # within a few float32 roundoffs (2^-24 = 6e-8, IEEE 754), down to exp(-87) ~ 1.6e-38

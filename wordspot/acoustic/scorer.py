@@ -62,6 +62,22 @@ def _stack_into(x: np.ndarray, c: int, out: np.ndarray) -> np.ndarray:
     return out
 
 
+def _windows(x: np.ndarray, c: int, work) -> np.ndarray:
+    """:func:`stack_context` of float32 ``x`` (T >= 1) as a read-only view: row ``t`` of the
+    frames padded with ``c`` copies of the edge frames on each side, read ``2 c + 1``
+    frames long (the rows overlap in memory)."""
+    n, d = x.shape
+    if c == 0:
+        return x
+    padded = work("scorer_padded", (n + 2 * c, d), SCORER_DTYPE)
+    padded[:c] = x[0]
+    padded[c:c + n] = x
+    padded[c + n:] = x[n - 1]
+    step = padded.strides[1]
+    return np.lib.stride_tricks.as_strided(padded, shape=(n, d * (2 * c + 1)), strides=(d * step, step),
+                                           writeable=False)
+
+
 def _fresh(name: str, shape: tuple, dtype) -> np.ndarray:
     return np.empty(shape, dtype=dtype)
 
@@ -171,14 +187,21 @@ class StateScorer:
             raise ValueError(f"frames must have shape (T, {self.frame_dim}), got {x.shape}")
         if x.shape[0] == 0:
             return np.zeros((0, self.n_classes), SCORER_DTYPE)
-        h = _stack_into(x, self.context, work("scorer_input", (x.shape[0], self.input_mean.shape[0]),
-                                                    SCORER_DTYPE))
-        h -= self.input_mean
+        return self._logits(x, work, fresh=True)
+
+    def _logits(self, x: np.ndarray, work, *, fresh: bool) -> np.ndarray:
+        """:meth:`logits` of checked float32 frames (T >= 1); the output layer in a work
+        array unless ``fresh``."""
+        h = work("scorer_input", (x.shape[0], self.input_mean.shape[0]), SCORER_DTYPE)
+        # stacking and centring in one pass: the windows are overlapping rows of the
+        # edge-padded frames (the numbers of stack_context, then the same subtraction)
+        np.subtract(_windows(x, self.context, work), self.input_mean, out=h)
         h /= self.input_scale
         last = len(self.weights) - 1
         for k, (w, b) in enumerate(zip(self.weights, self.biases)):
-            out = (np.empty((x.shape[0], w.shape[1]), SCORER_DTYPE) if k == last
-                   else work(f"scorer_hidden_{k % 2}", (x.shape[0], w.shape[1]), SCORER_DTYPE))
+            out = (np.empty((x.shape[0], w.shape[1]), SCORER_DTYPE) if k == last and fresh
+                   else work("scorer_output" if k == last else f"scorer_hidden_{k % 2}", (x.shape[0], w.shape[1]),
+                             SCORER_DTYPE))
             np.matmul(h, w, out=out)
             out += b
             if k < last:
@@ -193,6 +216,35 @@ class StateScorer:
         z -= z.max(axis=1, keepdims=True)
         z -= np.log(np.exp(z).sum(axis=1, keepdims=True))
         return z
+
+    def column_log_posteriors(self, frames: np.ndarray, columns=None, work=None) -> np.ndarray:
+        """:meth:`log_posteriors` in ``columns`` (mixture ids, in that order; all by default),
+        as a new C-contiguous float64 array (T, len(columns)).
+
+        The same numbers as ``log_posteriors(frames)[:, columns].astype(np.float64)`` (the
+        readable reference; tests compare them bit for bit), with less work: the output
+        layer and the softmax's work in reused arrays (``work`` as in :meth:`logits`), each
+        frame's normaliser (its largest logit and the log of its sum of exponentials, in
+        float32 as there) computed once over every class, and only ``columns`` normalised
+        and widened to float64.
+        """
+        work = work or _fresh
+        x = np.asarray(frames, dtype=SCORER_DTYPE)
+        if x.ndim != 2 or x.shape[1] != self.frame_dim:
+            raise ValueError(f"frames must have shape (T, {self.frame_dim}), got {x.shape}")
+        cols = None if columns is None else np.asarray(columns, dtype=np.int64)
+        if cols is not None and np.array_equal(cols, np.arange(self.n_classes)):
+            cols = None  # every class in its own order: no selection
+        n_out = self.n_classes if cols is None else cols.shape[0]
+        if x.shape[0] == 0:
+            return np.zeros((0, n_out))
+        z = self._logits(x, work, fresh=False)
+        z -= z.max(axis=1, keepdims=True)
+        lse = np.log(np.exp(z, out=work("scorer_exp", z.shape, SCORER_DTYPE)).sum(axis=1, keepdims=True))
+        if cols is not None:
+            z = np.take(z, cols, axis=1, out=work("scorer_columns", (z.shape[0], n_out), SCORER_DTYPE), mode="clip")
+        z -= lse
+        return z.astype(np.float64)
 
     def scaled_log_likelihoods(self, frames: np.ndarray, scale: float = 1.0, columns=None,
                                work=None) -> np.ndarray:

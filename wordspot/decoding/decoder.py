@@ -31,7 +31,7 @@ from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.language.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
 from wordspot.decoding.filler import FillerSettings, check_penalty
 from wordspot.decoding.network import FIRST_WORD_ITEM, Network, compile_network
-from wordspot.decoding.spans import Piece, piece_ends, piece_of, piece_path, piece_score
+from wordspot.decoding.spans import Piece, piece_ends, piece_of, piece_path, piece_score, span_scores
 from wordspot.audio.workspace import work_array
 
 __all__ = [
@@ -288,7 +288,7 @@ class Recognizer:
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
-    _filler_phones: dict | None = field(default=None, repr=False)  # set with the filler piece
+    _filler_phones: tuple | None = field(default=None, repr=False)  # (unit -> number, number of each filler state)
     _vowel_tables: dict = field(default_factory=dict, repr=False)
     _units: dict | None = field(default=None, repr=False)
 
@@ -302,9 +302,10 @@ class Recognizer:
             if net.background is not None:
                 items = _background_items(net)
                 filler = piece_of(net, items)
-                # the filler piece's states in order, each named by its item's single unit
+                # each filler state's unit (its item's single unit), numbered, for phone_margin
                 names = [net.prons[int(i) - FIRST_WORD_ITEM][0] for i in net.item[np.isin(net.item, items)]]
-                self._filler_phones = {n: np.array([k for k, m in enumerate(names) if m == n]) for n in set(names)}
+                number = {n: k for k, n in enumerate(sorted(set(names)))}
+                self._filler_phones = (number, np.array([number[n] for n in names], dtype=np.int64))
             items = net.word_pron[net.word_first[1]:net.word_first[net.n_words + 1]] + FIRST_WORD_ITEM
             commands = piece_of(net, items)
             state_word = net.pron_word[net.item[np.isin(net.item, items)] - FIRST_WORD_ITEM]
@@ -359,15 +360,23 @@ class Recognizer:
         _, states, phones, score = path or self.word_path(ll, pron, first, last)
         if not np.isfinite(score):
             return float("nan")
-        margins = []
-        for k, name in enumerate(net.prons[pron]):
-            frames = np.flatnonzero(phones == k)
-            if frames.size == 0:
-                continue
-            a, b = first + int(frames[0]), first + int(frames[-1])
-            own = piece_ends(ll, a, b, filler)[self._filler_phones[name]].max()
-            margins.append((own - piece_score(ll, a, b, filler, 0.0)) / (b - a + 1))
-        return float(np.mean(margins)) if margins else float("nan")
+        number, state_unit = self._filler_phones
+        frames = np.flatnonzero(phones >= 0)
+        k = phones[frames]
+        present = np.unique(k)  # the phones the path passes through, in order
+        if present.size == 0:
+            return float("nan")
+        a = np.full(len(net.prons[pron]), phones.size, dtype=np.int64)
+        b = np.full(len(net.prons[pron]), -1, dtype=np.int64)
+        np.minimum.at(a, k, frames)
+        np.maximum.at(b, k, frames)
+        a, b = first + a[present], first + b[present]
+        units = np.array([number[net.prons[pron][j]] for j in present], dtype=np.int64)
+        # each phone's own filler items (the filler's states of its unit; with no re-entry
+        # the filler's items do not meet) against the free filler loop, over its frames
+        own = span_scores(ll, a, b, filler, state_group=state_unit, groups=units)
+        free = span_scores(ll, a, b, filler, 0.0)
+        return float(np.mean((own - free) / (b - a + 1)))
 
     def posterior_measures(self, lp: np.ndarray, first: int, last: int, path) -> tuple[float, ...]:
         """The posterior measures of a command (``confidence.POSTERIOR_MEASURE_NAMES``).
@@ -472,7 +481,7 @@ class Recognizer:
         The numbers of :func:`wordspot.acoustic.gmm.log_likelihoods` (one matrix product for all
         frames and components), computed in single precision: the product's weights are
         rounded to float32 once, and the sum over components is a compiled loop
-        (:func:`wordspot.decoding.kernels.mixture_logsumexp`). Against the double-precision
+        (:func:`wordspot.decoding.kernels.mixture_logsumexp_by_component`). Against the double-precision
         scores the difference is a few 1e-4 at most on the demo files, far below the
         score gaps the search decides on (same words on every demo test file, checked
         when this was introduced). Training keeps double precision.
@@ -498,15 +507,17 @@ class Recognizer:
         lp = net = None
         if scorer is not None:
             cols = self.network.used_mixtures
-            z = scorer.log_posteriors(frames, work=work_array)[:, cols]
+            # log_posteriors(frames)[:, cols] in float64, bit for bit (C order, so the
+            # measures' compiled loops read it without a copy)
+            z = scorer.column_log_posteriors(frames, cols, work=work_array)
             if posteriors and self.posterior_scorer is not None:
-                lp = z.astype(np.float64)
+                lp = z
             if w > 0.0:
-                # as StateScorer.scaled_log_likelihoods(frames, scale * w, columns=cols)
-                z -= scorer.log_prior[cols]
+                # as StateScorer.scaled_log_likelihoods(frames, scale * w, columns=cols), in float32
+                net = z.astype(np.float32)  # exactly the float32 numbers
+                net -= scorer.log_prior[cols]
                 if s.scorer_scale * w != 1.0:
-                    z *= z.dtype.type(s.scorer_scale * w)
-                net = z
+                    net *= net.dtype.type(s.scorer_scale * w)
         if w >= 1.0:
             return net.astype(np.float64), lp
         gmm = self._mixture_scores(frames)
@@ -517,16 +528,22 @@ class Recognizer:
 
     def _mixture_scores(self, frames: np.ndarray) -> np.ndarray:
         """The mixtures' log-likelihoods of :meth:`emissions`, (T, P) float64."""
+        p, m = self.mixtures.n_mixtures, self.mixtures.n_components
         if self._scoring is None:
             w, c = scoring_matrix(self.mixtures)
-            self._scoring = (w.astype(EMISSION_DTYPE), c.astype(EMISSION_DTYPE))
+            # columns component-major (component k of every mixture side by side), for
+            # mixture_logsumexp_by_component: the same sums as mixture_logsumexp over (P, M)
+            order = np.arange(p * m).reshape(p, m).T.ravel()
+            self._scoring = (np.ascontiguousarray(w[:, order], dtype=EMISSION_DTYPE), c[order].astype(EMISSION_DTYPE))
         w, c = self._scoring
         x = np.asarray(frames, dtype=EMISSION_DTYPE)
+        both = work_array("squares_and_frames", (x.shape[0], 2 * x.shape[1]), EMISSION_DTYPE)
+        np.multiply(x, x, out=both[:, :x.shape[1]])
+        both[:, x.shape[1]:] = x
         comp = work_array("component_scores", (x.shape[0], w.shape[1]), EMISSION_DTYPE)
-        np.matmul(np.concatenate([x * x, x], axis=1), w, out=comp)
+        np.matmul(both, w, out=comp)
         comp += c
-        comp = comp.reshape(x.shape[0], self.mixtures.n_mixtures, self.mixtures.n_components)
-        return decode_kernels.mixture_logsumexp(comp)
+        return decode_kernels.mixture_logsumexp_by_component(comp.reshape(x.shape[0], m, p))
 
     def decode(self, frames: np.ndarray, *, path: str | None = None, kernel=None) -> Recognition:
         """Recognise one utterance given its features, shape (T, D)."""

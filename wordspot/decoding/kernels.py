@@ -42,6 +42,7 @@ __all__ = [
     "decode",
     "decode_reference",
     "mixture_logsumexp",
+    "mixture_logsumexp_by_component",
     "mixture_logsumexp_reference",
     "OK",
     "NO_TOKENS",
@@ -134,6 +135,46 @@ def mixture_logsumexp(comp):
                 acc += e[i * n_comp + m]
             out[b0 + i] = top[i] + np.log(acc)
     return out.reshape(n_frames, n_mixtures)
+
+
+@numba.njit(cache=True, nogil=True)
+def mixture_logsumexp_by_component(comp):
+    """:func:`mixture_logsumexp` of ``comp.transpose(0, 2, 1)``: component scores laid out
+    (T, M, P), component-major, result (T, P) float64.
+
+    The same numbers to the last bit (each mixture's maximum, the same ``exp`` of the same
+    differences, summed over the components in the same order), computed for all P
+    mixtures of a frame side by side, so every step runs along contiguous memory and
+    vectorises: the maximum and the sums too, not only the exponentials.
+    """
+    n_frames, n_comp, n_mixtures = comp.shape
+    out = np.empty((n_frames, n_mixtures))
+    x = np.empty(n_comp * n_mixtures, dtype=np.float32)
+    e = np.empty(n_comp * n_mixtures, dtype=np.float32)
+    bits = np.empty(n_comp * n_mixtures, dtype=np.int32)
+    top = np.empty(n_mixtures, dtype=comp.dtype)
+    acc = np.empty(n_mixtures)
+    for t in range(n_frames):
+        for p in range(n_mixtures):
+            top[p] = comp[t, 0, p]
+        for m in range(1, n_comp):
+            for p in range(n_mixtures):
+                v = comp[t, m, p]
+                top[p] = v if v > top[p] else top[p]
+        for m in range(n_comp):
+            for p in range(n_mixtures):
+                # -inf - t is -inf (clamped to ~0 below); a mixture whose top is -inf is
+                # set after the sum
+                x[m * n_mixtures + p] = comp[t, m, p] - top[p] if top[p] > -np.inf else _EXP_LOW
+        _exp_nonpositive(x, e, bits)
+        for p in range(n_mixtures):
+            acc[p] = 0.0
+        for m in range(n_comp):
+            for p in range(n_mixtures):
+                acc[p] += e[m * n_mixtures + p]
+        for p in range(n_mixtures):
+            out[t, p] = top[p] + np.log(acc[p]) if top[p] > -np.inf else _NEG
+    return out
 
 
 def mixture_logsumexp_reference(comp):

@@ -11,13 +11,13 @@ leaves one item enter any item of the piece again (``reenter_logp`` added) or, w
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numba
 import numpy as np
 
-__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "piece_score_reference", "piece_path",
-           "piece_path_reference"]
+__all__ = ["Piece", "piece_of", "piece_score", "piece_ends", "span_scores", "piece_score_reference",
+           "piece_ends_reference", "piece_path", "piece_path_reference"]
 
 _NEG = -np.inf
 
@@ -34,10 +34,38 @@ class Piece:
     end_logp: np.ndarray
     start_state: np.ndarray
     start_logp: np.ndarray
+    prev_logp: np.ndarray = field(default=None, repr=False)
+    in_first: np.ndarray = field(default=None, repr=False)
+    in_src: np.ndarray = field(default=None, repr=False)
+    in_logp: np.ndarray = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        if self.in_first is None:  # the arcs by destination, for the compiled score (_score)
+            tables = _incoming(self.arc_first, self.arc_dst, self.arc_logp, self.mixture.shape[0])
+            for name, value in zip(("prev_logp", "in_first", "in_src", "in_logp"), tables):
+                object.__setattr__(self, name, value)
 
     @property
     def n_states(self) -> int:
         return int(self.mixture.shape[0])
+
+
+def _incoming(arc_first: np.ndarray, arc_dst: np.ndarray, arc_logp: np.ndarray, n: int):
+    """The arcs by destination: ``prev_logp`` (n,), the log probability of the arc from the
+    state before (-inf where none; the best of several), and the other arcs as a table
+    (``in_first`` (n + 1,), ``in_src``, ``in_logp``; within a destination in the order the
+    arcs are listed by source)."""
+    src = np.repeat(np.arange(n, dtype=np.int64), np.diff(arc_first))
+    dst = np.asarray(arc_dst, dtype=np.int64)
+    logp = np.asarray(arc_logp, dtype=np.float64)
+    chain = src == dst - 1
+    prev_logp = np.full(n, -np.inf)
+    np.maximum.at(prev_logp, dst[chain], logp[chain])
+    src, dst, logp = src[~chain], dst[~chain], logp[~chain]
+    order = np.argsort(dst, kind="stable")
+    first = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(np.bincount(dst, minlength=n)[:n], out=first[1:])
+    return prev_logp, first, np.ascontiguousarray(src[order]), np.ascontiguousarray(logp[order])
 
 
 def piece_of(net, items) -> Piece:
@@ -78,36 +106,49 @@ def _entered(ll, first, mixture, start_state, start_logp):
 
 
 @numba.njit(cache=True, nogil=True)
-def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, end_logp,
-           start_state, start_logp, reenter_logp):
+def _score(ll, first, last, mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
+           start_state, start_logp, reenter_logp, state_group, group):
+    """The recursion of :func:`piece_score_reference`, each state pulling its best
+    predecessor: its self-loop and the arc from the state before in one vectorised pass
+    (``Piece.prev_logp``), then any other arcs by destination (``Piece.in_*``). No
+    scattered writes, and a state no path reaches stays -inf without a test. Every state
+    takes the maximum of the same sums as the dense recursion, so the scores are the same
+    numbers. ``group`` >= 0 keeps only the states with that ``state_group`` (the others
+    start at -inf; without re-entry they stay there)."""
     n = mixture.shape[0]
     cur = _entered(ll, first, mixture, start_state, start_logp)
-    nxt = np.full(n, _NEG)
+    if group >= 0:
+        for s in range(n):
+            if state_group[s] != group:
+                cur[s] = _NEG
+    nxt = np.empty(n)
     for t in range(first + 1, last + 1):
-        for s in range(n):
-            nxt[s] = _NEG
         ended = _NEG
-        for s in range(n):
-            sc = cur[s]
-            if sc == _NEG:
-                continue
-            if self_logp[s] + sc > nxt[s]:
-                nxt[s] = self_logp[s] + sc
-            for e in range(arc_first[s], arc_first[s + 1]):
-                d = arc_dst[e]
-                if sc + arc_logp[e] > nxt[d]:
-                    nxt[d] = sc + arc_logp[e]
-            if sc + end_logp[s] > ended:
-                ended = sc + end_logp[s]
-        if reenter_logp > _NEG and ended > _NEG:
+        if reenter_logp > _NEG:
+            for s in range(n):
+                v = cur[s] + end_logp[s]
+                if v > ended:
+                    ended = v
+        if n > 0:
+            nxt[0] = cur[0] + self_logp[0]
+        for s in range(1, n):  # the self-loop and the arc from the state before (vectorised)
+            stay = cur[s] + self_logp[s]
+            come = cur[s - 1] + prev_logp[s]
+            nxt[s] = come if come > stay else stay
+        for s in range(n):  # the other arcs (the filler's pauses, skips)
+            for e in range(in_first[s], in_first[s + 1]):
+                v = cur[in_src[e]] + in_logp[e]
+                if v > nxt[s]:
+                    nxt[s] = v
+        if ended > _NEG:
             for k in range(start_state.shape[0]):
                 s = start_state[k]
                 v = ended + reenter_logp + start_logp[k]
                 if v > nxt[s]:
                     nxt[s] = v
+        row = ll[t]
         for s in range(n):
-            if nxt[s] > _NEG:
-                nxt[s] += ll[t, mixture[s]]
+            nxt[s] += row[mixture[s]]
         cur, nxt = nxt, cur
     out = np.empty(n)
     for s in range(n):
@@ -115,10 +156,47 @@ def _score(ll, first, last, mixture, self_logp, arc_first, arc_dst, arc_logp, en
     return out
 
 
+_NO_GROUPS = np.zeros(0, dtype=np.int64)
+
+
 def _ends(ll, first, last, piece, reenter_logp):
     return _score(np.ascontiguousarray(ll, dtype=np.float64), int(first), int(last), piece.mixture,
-                  piece.self_logp, piece.arc_first, piece.arc_dst, piece.arc_logp, piece.end_logp,
-                  piece.start_state, piece.start_logp, float(reenter_logp))
+                  piece.self_logp, piece.prev_logp, piece.in_first, piece.in_src, piece.in_logp, piece.end_logp,
+                  piece.start_state, piece.start_logp, float(reenter_logp), _NO_GROUPS, -1)
+
+
+@numba.njit(cache=True, nogil=True)
+def _spans(ll, firsts, lasts, mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
+           start_state, start_logp, reenter_logp, state_group, groups):
+    out = np.empty(firsts.shape[0])
+    for k in range(firsts.shape[0]):
+        ends = _score(ll, firsts[k], lasts[k], mixture, self_logp, prev_logp, in_first, in_src, in_logp, end_logp,
+                      start_state, start_logp, reenter_logp, state_group, groups[k])
+        best = _NEG
+        for s in range(ends.shape[0]):
+            if ends[s] > best:
+                best = ends[s]
+        out[k] = best
+    return out
+
+
+def span_scores(ll: np.ndarray, firsts, lasts, piece: Piece, reenter_logp: float = _NEG, *,
+                state_group=None, groups=None) -> np.ndarray:
+    """:func:`piece_score` over several stretches ``firsts[k]..lasts[k]`` in one call.
+
+    With ``state_group`` (one whole number per state of ``piece``) and ``groups`` (one per
+    stretch), stretch ``k`` counts only the states of group ``groups[k]``: with no
+    re-entry, the best path through one item of that group (the states of the other
+    groups start at -inf), the numbers :func:`piece_ends` gives those states.
+    """
+    firsts = np.asarray(firsts, dtype=np.int64)
+    lasts = np.asarray(lasts, dtype=np.int64)
+    if state_group is None:
+        state_group, groups = _NO_GROUPS, np.full(firsts.shape[0], -1, dtype=np.int64)
+    return _spans(np.ascontiguousarray(ll, dtype=np.float64), firsts, lasts, piece.mixture, piece.self_logp,
+                  piece.prev_logp, piece.in_first, piece.in_src, piece.in_logp, piece.end_logp, piece.start_state,
+                  piece.start_logp, float(reenter_logp), np.asarray(state_group, dtype=np.int64),
+                  np.asarray(groups, dtype=np.int64))
 
 
 def piece_ends(ll: np.ndarray, first: int, last: int, piece: Piece) -> np.ndarray:
@@ -161,8 +239,9 @@ def _dense(piece: Piece) -> tuple[np.ndarray, np.ndarray]:
     return trans, enter
 
 
-def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
-    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+def piece_ends_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> np.ndarray:
+    """Plain-numpy version of the per-state scores behind :func:`piece_ends` and
+    :func:`piece_score`: the recursion over a dense matrix."""
     trans, enter = _dense(piece)
     delta = enter + ll[first, piece.mixture]
     for t in range(first + 1, last + 1):
@@ -170,7 +249,12 @@ def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _
         ended = np.max(delta + piece.end_logp)
         moved = np.maximum(moved, ended + reenter_logp + enter)
         delta = moved + ll[t, piece.mixture]
-    return float(np.max(delta + piece.end_logp))
+    return delta + piece.end_logp
+
+
+def piece_score_reference(ll, first, last, piece: Piece, reenter_logp: float = _NEG) -> float:
+    """Plain-numpy version of :func:`piece_score`: the same recursion over a dense matrix."""
+    return float(np.max(piece_ends_reference(ll, first, last, piece, reenter_logp)))
 
 
 @numba.njit(cache=True, nogil=True)
