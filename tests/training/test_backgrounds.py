@@ -8,6 +8,7 @@ from wordspot.acoustic.units import PAUSE_UNIT
 from wordspot.audio.augment import rms_dbfs
 from wordspot.audio.features import FeatureSettings
 from wordspot.errors import TrainingError
+import wordspot.training.backgrounds as backgrounds
 from wordspot.training.adapt import AdaptationConfig, adapt
 from wordspot.training.backgrounds import (
     BACKGROUND_KINDS,
@@ -132,8 +133,6 @@ def test_adaptation_statistics_see_them_in_the_pause(tiny):
 def test_kinds_are_the_ones_asked_for_and_impacts_have_their_level(rng, monkeypatch):
     # our own rule: the kinds given are the only ones drawn; without them the module's
     # BACKGROUND_KINDS as it is when called
-    import wordspot.training.backgrounds as backgrounds
-
     only = plan_backgrounds(50, "ab", seed=2, kinds=("impacts", "hum"))
     assert {p.kind for p in only} == {"impacts", "hum"}
     monkeypatch.setattr(backgrounds, "BACKGROUND_KINDS", ("impacts",))
@@ -217,16 +216,34 @@ def test_the_default_configs_train_on_the_items_of_before(tiny):
     assert [it.path for it in impacts if not it.background] == [it.path for it in old if not it.background]
 
 
-def test_the_adaptation_draws_its_items_from_its_mix(tiny):
+def test_the_adaptation_draws_its_items_from_its_mix(tiny, monkeypatch):
+    import wordspot.training.adapt as adapt_module
+
     utts, lex, units = tiny
     start, _ = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.0, scorer=None))
-    cfg = dict(passes=1, mean_transform=False, prior_weight=10.0, background_share=0.5, seed=1, scorer=None,
-               follow_passes=0)
-    steady, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg))
-    again, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=STEADY_MIX))
-    knocks, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=(("impacts", 1),)))
-    np.testing.assert_array_equal(again.mixtures.means, steady.mixtures.means)
+    made = []
+
+    def recording(*args, **kwargs):  # the real items, their paths noted
+        items = backgrounds.background_items(*args, **kwargs)
+        made.append([str(it.path) for it in items])
+        return items
+
+    monkeypatch.setattr(adapt_module, "background_items", recording)
+    cfg = dict(passes=1, mean_transform=False, prior_weight=10.0, seed=1, scorer=None, follow_passes=0)
+    default, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg))
+    # the default: share 0.25 (so the minimum of 20 items here), half of the draws impacts
+    assert AdaptationConfig().background_share == 0.25
+    assert mix_draws(AdaptationConfig().background_kinds).count("impacts") * 2 == len(mix_draws(IMPACTS_HALF_MIX))
+    expected = plan_backgrounds(MIN_BACKGROUNDS, [u.speaker for u in utts], seed=1, kinds=IMPACTS_HALF_MIX)
+    assert made[-1] == [f"background-{p.number:03d}-{p.kind}" for p in expected]
+    kinds = [p.kind for p in expected]
+    assert "impacts" in kinds and set(kinds) - {"impacts"} <= set(BACKGROUND_KINDS) and len(set(kinds)) > 1
+    assert default.info["background_kinds"] == [list(p) for p in IMPACTS_HALF_MIX]
+    steady, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=STEADY_MIX))
+    assert all(not path.endswith("-impacts") for path in made[-1]) and len(made[-1]) == MIN_BACKGROUNDS
+    again, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=IMPACTS_HALF_MIX))
+    np.testing.assert_array_equal(again.mixtures.means, default.mixtures.means)
     pause = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
     pause = pause[pause >= 0]
-    assert not np.allclose(knocks.mixtures.means[pause], steady.mixtures.means[pause])
-    assert knocks.info["background_kinds"] == [["impacts", 1]]
+    assert not np.allclose(steady.mixtures.means[pause], default.mixtures.means[pause])
+    assert steady.info["background_kinds"] == [list(p) for p in STEADY_MIX]

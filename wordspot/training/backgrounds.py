@@ -8,10 +8,11 @@ command here" recording), teach it the rest. Babble can be asked for (``kinds``)
 among the defaults: a pause that has learnt speech takes speech in babble for pause (on the
 dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands
 in noise at 10 dB alike; see docs/experiments/2026-12-02-background-items.md). Impacts
-(knocks, clinks, taps, scrapes; :mod:`wordspot.audio.impacts`) can be asked for too; as
-one kind in six they changed nothing on dev, as half of the items at share 0.25 they cut
-the dev impact clips with a command at the default threshold from 23% to 14%: a candidate,
-not yet a default (docs/experiments/2026-12-03-no-command-noise-and-words.md).
+(knocks, clinks, taps, scrapes; :mod:`wordspot.audio.impacts`) are a kind too; a *mix*
+gives each kind its parts (:func:`check_mix`). Training from scratch draws the steady kinds
+alone (:data:`STEADY_MIX`); adapting a starter draws impacts as half of its items at share
+0.25 (:data:`IMPACTS_HALF_MIX`), which cut the dev impact clips with a command at the
+default threshold from 23% to 14% (docs/experiments/2026-12-03-impacts-in-training.md).
 
 Reproducible for any number of processes: the recipes (kind, length, level, mains
 frequency, floor, babble talkers, noise seed) are drawn up front from the training seed
