@@ -229,21 +229,25 @@ def test_the_adaptation_draws_its_items_from_its_mix(tiny, monkeypatch):
         return items
 
     monkeypatch.setattr(adapt_module, "background_items", recording)
-    cfg = dict(passes=1, mean_transform=False, prior_weight=10.0, seed=1, scorer=None, follow_passes=0)
-    default, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg))
-    # the default: share 0.25 (so the minimum of 20 items here), half of the draws impacts
-    assert AdaptationConfig().background_share == 0.25
-    assert mix_draws(AdaptationConfig().background_kinds).count("impacts") * 2 == len(mix_draws(IMPACTS_HALF_MIX))
+    cfg = dict(passes=1, mean_transform=False, prior_weight=10.0, seed=1, scorer=None, follow_passes=0,
+               background_share=0.25)
+    # the defaults: the steady kinds at share 0.1, the items of before
+    assert AdaptationConfig().background_kinds == TrainingConfig().background_kinds == STEADY_MIX
+    assert AdaptationConfig().background_share == TrainingConfig().background_share == 0.1
+    steady, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg))
+    old = plan_backgrounds(MIN_BACKGROUNDS, [u.speaker for u in utts], seed=1)  # the module's kinds
+    assert made[-1] == [f"background-{p.number:03d}-{p.kind}" for p in old]
+    assert steady.info["background_kinds"] == [list(p) for p in STEADY_MIX]
+    # impacts as half of the draws: these recipes, impacts among them
+    knocks, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=IMPACTS_HALF_MIX))
+    assert mix_draws(IMPACTS_HALF_MIX).count("impacts") * 2 == len(mix_draws(IMPACTS_HALF_MIX))
     expected = plan_backgrounds(MIN_BACKGROUNDS, [u.speaker for u in utts], seed=1, kinds=IMPACTS_HALF_MIX)
     assert made[-1] == [f"background-{p.number:03d}-{p.kind}" for p in expected]
     kinds = [p.kind for p in expected]
     assert "impacts" in kinds and set(kinds) - {"impacts"} <= set(BACKGROUND_KINDS) and len(set(kinds)) > 1
-    assert default.info["background_kinds"] == [list(p) for p in IMPACTS_HALF_MIX]
-    steady, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=STEADY_MIX))
-    assert all(not path.endswith("-impacts") for path in made[-1]) and len(made[-1]) == MIN_BACKGROUNDS
+    assert knocks.info["background_kinds"] == [list(p) for p in IMPACTS_HALF_MIX]
     again, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=IMPACTS_HALF_MIX))
-    np.testing.assert_array_equal(again.mixtures.means, default.mixtures.means)
+    np.testing.assert_array_equal(again.mixtures.means, knocks.mixtures.means)
     pause = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
     pause = pause[pause >= 0]
-    assert not np.allclose(steady.mixtures.means[pause], default.mixtures.means[pause])
-    assert steady.info["background_kinds"] == [list(p) for p in STEADY_MIX]
+    assert not np.allclose(steady.mixtures.means[pause], knocks.mixtures.means[pause])

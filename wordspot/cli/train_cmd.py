@@ -152,11 +152,9 @@ def add_parser(sub, **options):
                       "word confidences tell commands from other talk and adds about 0.8 times the training "
                       "time")
     p.add_argument("--background-share", type=float, default=None, metavar="F",
-                   help="add background-only training items (noise, hum, dithered silence, fan and, when "
-                   "adapting, knocks and clinks; no command) as this share of the recordings, at least 20 "
-                   f"(0: none; default {AdaptationConfig.background_share:g} when adapting, "
-                   f"{TrainingConfig.background_share:g} from scratch), so that pauses over other backgrounds "
-                   "stay pauses")
+                   help="add background-only training items (noise, hum, dithered silence, babble, fan; "
+                   "no command) as this share of the recordings, at least 20 (0: none; default "
+                   f"{TrainingConfig.background_share:g}), so that pauses over other backgrounds stay pauses")
     p.add_argument("--jobs", type=_positive, default=1, metavar="N",
                    help="processes to use (default 1; the model is the same for any number)")
     full.add_argument("--cluster", metavar="ADDRESS", default=None,

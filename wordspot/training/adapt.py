@@ -60,7 +60,7 @@ from wordspot.language.lexicon import Lexicon
 from wordspot.model import AcousticModel
 from wordspot.audio.augment import NoiseSettings
 from wordspot.acoustic.graph import compose
-from wordspot.training.backgrounds import IMPACTS_HALF_MIX, background_count, background_items, check_mix, check_share
+from wordspot.training.backgrounds import STEADY_MIX, background_count, background_items, check_mix, check_share
 from wordspot.training.data import chain_slots, prepare_items
 from wordspot.training.noise import noisy_items, recording_key
 from wordspot.training.frame_labels import align_one
@@ -125,12 +125,12 @@ class AdaptationConfig:
         ``TrainingConfig.background_share``), so that the pause class's transform and MAP
         update see more than the user's room tone; 0 adds none.
     background_kinds : tuple of (str, int)
-        Their kinds and parts (as ``TrainingConfig.background_kinds``). The default, the
-        five steady kinds one part each and impacts (knocks, clinks) five parts, at share
-        0.25, took the dev impact clips given a command at the default threshold from 23%
-        to 14% (three seeds, ranges apart), the other dev sets within the seeds' spread
-        (docs/experiments/2026-12-03-impacts-in-training.md); ``STEADY_MIX`` at share 0.1
-        makes the items of before.
+        Their kinds and parts (as ``TrainingConfig.background_kinds``); the default, the
+        five steady kinds one part each, makes the items of before. ``IMPACTS_HALF_MIX``
+        (impacts, knocks and clinks, as half of the items) at share 0.25 took the dev
+        impact clips given a command at the default threshold from 23% to 14%, the other
+        dev sets within the seeds' spread, for 1.14 times the training's CPU time: not the
+        default (docs/experiments/2026-12-03-impacts-in-training.md).
     seed : int
         Seeds the background items.
     scorer : ScorerAdaptConfig or None
@@ -203,8 +203,8 @@ class AdaptationConfig:
     update_variances: bool = False
     jobs: int = 1
     prune: float = 1e-4
-    background_share: float = 0.25
-    background_kinds: tuple[tuple[str, int], ...] = IMPACTS_HALF_MIX
+    background_share: float = 0.1
+    background_kinds: tuple[tuple[str, int], ...] = STEADY_MIX
     seed: int = 0
     scorer: ScorerAdaptConfig | None = ScorerAdaptConfig()
     follow_passes: int = 6

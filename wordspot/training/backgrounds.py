@@ -9,10 +9,12 @@ among the defaults: a pause that has learnt speech takes speech in babble for pa
 dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands
 in noise at 10 dB alike; see docs/experiments/2026-12-02-background-items.md). Impacts
 (knocks, clinks, taps, scrapes; :mod:`wordspot.audio.impacts`) are a kind too; a *mix*
-gives each kind its parts (:func:`check_mix`). Training from scratch draws the steady kinds
-alone (:data:`STEADY_MIX`); adapting a starter draws impacts as half of its items at share
-0.25 (:data:`IMPACTS_HALF_MIX`), which cut the dev impact clips with a command at the
-default threshold from 23% to 14% (docs/experiments/2026-12-03-impacts-in-training.md).
+gives each kind its parts (:func:`check_mix`). The defaults draw the steady kinds alone
+(:data:`STEADY_MIX`). Impacts as half of the adaptation's items at share 0.25
+(:data:`IMPACTS_HALF_MIX`) cut the dev impact clips with a command at the default
+threshold from 23% to 14% but cost 1.14 times the training's CPU time, and from scratch
+moved firing to everyday words: an option, off
+(docs/experiments/2026-12-03-impacts-in-training.md).
 
 Reproducible for any number of processes: the recipes (kind, length, level, mains
 frequency, floor, babble talkers, noise seed) are drawn up front from the training seed
