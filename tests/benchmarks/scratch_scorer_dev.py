@@ -24,6 +24,14 @@ default threshold the dev command WER, the real phrases WER, other-talk and nois
 files with a command; then the CPU seconds of the mixture training and the scorer's extra.
 
     OPENBLAS_NUM_THREADS=1 python tests/benchmarks/scratch_scorer_dev.py [--seeds 0 1 2]
+
+``--mix KIND:PARTS ... [--share S]`` compares instead two from-scratch trainings with the
+default scorer: "items as configured" (``TrainingConfig()``) and "mix" (the training's
+background items drawn from that mix of kinds, ``TrainingConfig.background_kinds``, at
+share S); each trains its own mixtures, and the dev sets include "everyday words" and
+"impacts" (``dev_no_command.py``)::
+
+    OPENBLAS_NUM_THREADS=1 python tests/benchmarks/scratch_scorer_dev.py --mix white pink hum dither fan impacts:5 --share 0.25
 """
 
 from __future__ import annotations
@@ -57,7 +65,12 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
     ap.add_argument("--hidden", type=int, nargs="+", default=None, help="the scorer's hidden sizes")
+    ap.add_argument("--mix", nargs="+", default=None, metavar="KIND[:PARTS]",
+                    help="compare the configured background items with this mix of kinds (both with the scorer)")
+    ap.add_argument("--share", type=float, default=None, help="with --mix: its background share")
     args = ap.parse_args(argv)
+    if args.mix:
+        return compare_mix(args)
 
     from wordspot.audio.features import compute_features
     from wordspot.corpus import read_manifest
@@ -137,6 +150,76 @@ def main(argv=None) -> int:
           f"(alignment + fit) {s.mean():.0f} ({s.min():.0f}-{s.max():.0f}), {np.mean(s / m):.2f}x the training")
     for seed, info in zip(args.seeds, cpu["scorer fits"]):
         print(f"seed {seed}: {info}")
+    return 0
+
+
+def compare_mix(args) -> int:
+    """Two from-scratch trainings per seed, the configured background items against ``args.mix``."""
+    from threshold_dev import mix_arg
+
+    from wordspot.audio.features import compute_features
+    from wordspot.corpus import read_manifest
+    from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
+    from wordspot.decoding.decoder import DecoderSettings, build_recognizer
+    from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
+    from wordspot.language.lexicon import read_lexicon
+    from wordspot.training.trainer import TrainingConfig, train
+
+    lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
+    share = {} if args.share is None else {"background_share": args.share}
+    configs = {"items as configured": TrainingConfig(),
+               "mix": TrainingConfig(background_kinds=mix_arg(args.mix), **share)}
+    table = {v: [] for v in configs}
+    cpu = {v: [] for v in configs}
+    sets = None
+    with tempfile.TemporaryDirectory() as tmp:
+        manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
+        utterances = read_manifest(manifest)
+        for seed in args.seeds:
+            for variant, base in configs.items():
+                config = replace(base, seed=seed)
+
+                def fit(utts, config=config, variant=variant):
+                    t0 = time.process_time()
+                    got = train(utts, lexicon, config=config, manifest=manifest)
+                    cpu[variant].append(time.process_time() - t0)
+                    return got
+
+                cal = CalibrationConfig(seed=seed).decided(adapting=False)
+                model, _ = train_calibrated(fit, utterances, config=cal)
+                if sets is None:
+                    sets = {k: v for k, v in dev_sets(model, 0, no_command=True).items()
+                            if k in SETS + ("noisy 10 dB", "everyday words", "impacts")}
+                rec = build_recognizer(model, settings=DecoderSettings(min_confidence=0.0))
+                scored = {}
+                for name, items in sets.items():
+                    scored[name] = []
+                    for wave, ref in items:
+                        segs = rec.decode(compute_features(wave, model.features)).segments
+                        scored[name].append((ref, [g.word for g in segs], np.array([g.confidence for g in segs])))
+                row, commands, non_commands = tally(scored, DEFAULT_MIN_CONFIDENCE)
+                no_threshold, _, _ = tally(scored, 0.0)
+                row = [100 * operating_eer(commands, non_commands)] + row + no_threshold[-2:]
+                table[variant].append(row)
+                print(f"seed {seed} {variant}: " + ", ".join(f"{x:.1f}" for x in row)
+                      + f"; training cpu {cpu[variant][-1]:.0f} s (background items "
+                      f"{model.info.get('background_items')})", file=sys.stderr, flush=True)
+    cols = (["EER"] + [("10 dB WER" if n == "noisy 10 dB" else c) for n, c in zip(sets, set_columns(sets))]
+            + [f"{n}: files with a command, no threshold" for n in list(sets)[-2:]])
+    print(f"seeds {args.seeds}, threshold {DEFAULT_MIN_CONFIDENCE}; mix {' '.join(args.mix)}, share "
+          f"{args.share if args.share is not None else 'default'}: mean (min-max)\n")
+    print("| variant | " + " | ".join(cols) + " |")
+    print("| --- |" + " ---: |" * len(cols))
+    for v, rows in table.items():
+        a = np.array(rows)
+        print(f"| {v} | " + " | ".join(f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
+                                         for j in range(a.shape[1])) + " |")
+    base = np.array(cpu["items as configured"])
+    for v, secs in cpu.items():
+        s = np.array(secs)
+        print(f"\nCPU seconds of the training (mixtures and scorer; calibration's one training a seed), {v}: "
+              f"{s.mean():.0f} ({s.min():.0f}-{s.max():.0f}); ratio to the configured items "
+              f"{np.mean(s / base):.2f} ({np.min(s / base):.2f}-{np.max(s / base):.2f})")
     return 0
 
 

@@ -355,11 +355,14 @@ def run_variants(args) -> int:
                     tables.add(v, heard, fit_calibration(sub, config=config), sub)
                 continue
             (rest, held), = held_out_parts(utterances, config)[0]
-            # the adaptation's background items and the calibration's noise clips read the kinds when called
-            backgrounds.BACKGROUND_KINDS = tuple(args.background_kinds) if args.background_kinds else default_kinds
+            # the adaptation's background items: AdaptationConfig.background_kinds; the calibration's
+            # noise clips read the module's kinds when called
             share = {} if args.background_share is None else {"background_share": args.background_share}
+            if args.background_kinds:
+                share["background_kinds"] = mix_arg(args.background_kinds)
             fit = adapting(start, lexicon, config=AdaptationConfig(**share), manifest=manifest)
             model, _ = fit(rest, held_out=held)
+            t_adapt = time.process_time() - t0
             backgrounds.BACKGROUND_KINDS = tuple(args.clip_kinds) if args.clip_kinds else default_kinds
             ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
                                       seed=seed, noisy=args.noisy, noise_snr_db=tuple(args.snr), phrases=args.phrases,
@@ -387,15 +390,24 @@ def run_variants(args) -> int:
                 sub = ex.subset(np.isin(ex.source, kinds))
                 tables.add(v, heard, fit_calibration(sub, config=config), sub)
             print(f"seed {seed}: {ex.right.size} calibration words ({int(ex.right.sum())} right); cpu "
-                  f"{t1 - t0:.0f} s adapting and examples, {t2 - t1:.0f} s dev sets, "
+                  f"{t_adapt:.1f} s adapting, {t1 - t0 - t_adapt:.0f} s examples, {t2 - t1:.0f} s dev sets, "
                   f"{time.process_time() - t2:.0f} s variants", file=sys.stderr, flush=True)
     print(f"background items (share {args.background_share or 'default'}): "
-          f"{', '.join(args.background_kinds or default_kinds)}; calibration noise clips: "
+          f"{', '.join(args.background_kinds or ['default'])}; calibration noise clips: "
           f"{', '.join(args.clip_kinds or default_kinds)}, babble")
     print(f"filler {fp:g}; calibration examples: {args.noisy} noisy copies ({args.snr[0]:g}-{args.snr[1]:g} dB), "
           f"{args.phrases} phrases, {args.noise_clips} noise clips; seeds {args.seeds}: mean (min-max)\n")
     tables.print(args.show)
     return 0
+
+
+def mix_arg(words) -> tuple:
+    """``KIND`` or ``KIND:PARTS`` words as a mix of ``(kind, parts)`` pairs (``AdaptationConfig.background_kinds``)."""
+    pairs = []
+    for w in words:
+        kind, _, parts = w.partition(":")
+        pairs.append((kind, int(parts) if parts else 1))
+    return tuple(pairs)
 
 
 def main(argv=None) -> int:
@@ -422,7 +434,8 @@ def main(argv=None) -> int:
     ap.add_argument("--no-command-sets", action="store_true",
                     help="with --variants: also the dev sets 'everyday words' and 'impacts' (dev_no_command.py)")
     ap.add_argument("--background-kinds", nargs="+", default=None,
-                    help="with --variants: the kinds of the adaptation's background items (default: the package's)")
+                    help="with --variants: the kinds of the adaptation's background items, KIND or KIND:PARTS "
+                         "(e.g. white pink hum dither fan impacts:5; default: the configuration's)")
     ap.add_argument("--background-share", type=float, default=None,
                     help="with --variants: the adaptation's background share (default: its default)")
     ap.add_argument("--clip-kinds", nargs="+", default=None,

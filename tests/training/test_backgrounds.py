@@ -8,12 +8,17 @@ from wordspot.acoustic.units import PAUSE_UNIT
 from wordspot.audio.augment import rms_dbfs
 from wordspot.audio.features import FeatureSettings
 from wordspot.errors import TrainingError
+import wordspot.training.backgrounds as backgrounds
 from wordspot.training.adapt import AdaptationConfig, adapt
 from wordspot.training.backgrounds import (
     BACKGROUND_KINDS,
+    IMPACTS_HALF_MIX,
     MIN_BACKGROUNDS,
+    STEADY_MIX,
     background_count,
     background_wave,
+    check_mix,
+    mix_draws,
     plan_backgrounds,
 )
 from wordspot.training.data import prepare_items
@@ -128,8 +133,6 @@ def test_adaptation_statistics_see_them_in_the_pause(tiny):
 def test_kinds_are_the_ones_asked_for_and_impacts_have_their_level(rng, monkeypatch):
     # our own rule: the kinds given are the only ones drawn; without them the module's
     # BACKGROUND_KINDS as it is when called
-    import wordspot.training.backgrounds as backgrounds
-
     only = plan_backgrounds(50, "ab", seed=2, kinds=("impacts", "hum"))
     assert {p.kind for p in only} == {"impacts", "hum"}
     monkeypatch.setattr(backgrounds, "BACKGROUND_KINDS", ("impacts",))
@@ -139,3 +142,112 @@ def test_kinds_are_the_ones_asked_for_and_impacts_have_their_level(rng, monkeypa
         # uncorrelated signals add in power (textbook arithmetic)
         expected = 10 * np.log10(10 ** (recipe.dbfs / 10) + 10 ** (recipe.floor_dbfs / 10))
         assert rms_dbfs(x) == pytest.approx(expected, abs=0.5)
+
+
+def _plans_as_before(count, speakers, seed, kinds):
+    """The recipes as plan_backgrounds drew them before mixes existed (its loop, copied)."""
+    from wordspot.training.backgrounds import BackgroundRecipe
+
+    names = sorted({str(s) for s in speakers})
+    plans = []
+    for k in range(count):
+        rng = np.random.default_rng([seed, 7349, k])
+        kind = kinds[int(rng.integers(len(kinds)))]
+        length = float(rng.uniform(1.0, 3.0))
+        level = float(rng.uniform(-70.0, -30.0))
+        mains = 50.0 if rng.random() < 0.5 else 60.0
+        floor = float(rng.uniform(-85.0, -75.0)) if kind != "dither" else float("-inf")
+        talkers = ()
+        if kind == "babble" and names:
+            n = int(rng.integers(3, 7))
+            talkers = tuple(str(s) for s in rng.choice(names, size=n, replace=len(names) < n))
+        plans.append(BackgroundRecipe(k, kind, length, level, mains, floor, talkers, int(rng.integers(2**31))))
+    return plans
+
+
+def test_the_steady_mix_draws_the_recipes_of_before():
+    # our own rule: one part each of the five steady kinds is the recipe list of before,
+    # and a mix with parts is the list of its kinds repeated (the form earlier dev runs used)
+    before = _plans_as_before(300, "abc", 6, ("white", "pink", "hum", "dither", "fan"))
+    assert plan_backgrounds(300, "abc", seed=6, kinds=STEADY_MIX) == before
+    assert plan_backgrounds(300, "abc", seed=6) == before
+    assert mix_draws(STEADY_MIX) == BACKGROUND_KINDS
+    bag = BACKGROUND_KINDS + ("impacts",) * 5
+    assert plan_backgrounds(300, "abc", seed=6, kinds=IMPACTS_HALF_MIX) == _plans_as_before(300, "abc", 6, bag)
+
+
+def test_a_mix_is_deterministic_for_a_seed_and_keeps_its_proportions():
+    plans = plan_backgrounds(2000, "ab", seed=9, kinds=IMPACTS_HALF_MIX)
+    assert plans == plan_backgrounds(2000, "ab", seed=9, kinds=IMPACTS_HALF_MIX)
+    assert plans != plan_backgrounds(2000, "ab", seed=10, kinds=IMPACTS_HALF_MIX)
+    kinds = [p.kind for p in plans]
+    # 5 parts in 10: binomial(2000, 0.5) has a standard deviation of 22 items (textbook arithmetic);
+    # 4.5 of them either side
+    assert 900 <= kinds.count("impacts") <= 1100
+    for steady in BACKGROUND_KINDS:  # one part in 10 each: sd 13 items
+        assert 140 <= kinds.count(steady) <= 260
+    third = plan_backgrounds(1500, "ab", seed=9, kinds=tuple((k, 2) for k in BACKGROUND_KINDS) + (("impacts", 5),))
+    assert 440 <= [p.kind for p in third].count("impacts") <= 560  # 1 in 3: mean 500, sd 18
+
+
+def test_bad_mixes_are_refused_with_the_field_named():
+    assert check_mix(["fan", ("impacts", 3)]) == (("fan", 1), ("impacts", 3))
+    for bad in ((), (("fan", 0),), (("fan", 1.5),), (("fan", True),), (("clatter", 1),), ("fan", "fan"), 5,
+                (("fan", 1, 2),)):
+        with pytest.raises(TrainingError, match="background_kinds"):
+            TrainingConfig(background_kinds=bad)
+        with pytest.raises(TrainingError, match="background_kinds"):
+            AdaptationConfig(background_kinds=bad)
+
+
+def test_the_default_configs_train_on_the_items_of_before(tiny):
+    utts, lex, units = tiny
+    # before the mix existed the items came from the module's kinds (no mix handed in)
+    old, _ = prepare_items(utts, lex, units, FeatureSettings(), background_share=0.5, seed=2)
+    _, old_mix, _, _ = train_items(old, units, frame_rate=100.0,
+                                   config=TrainingConfig(**SMALL, background_share=0.5, seed=2))
+    model, _ = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.5, seed=2, scorer=None))
+    np.testing.assert_array_equal(model.mixtures.means, old_mix.means)
+    np.testing.assert_array_equal(model.mixtures.variances, old_mix.variances)
+    assert model.info["background_kinds"] == [list(p) for p in TrainingConfig().background_kinds]
+    impacts, _ = prepare_items(utts, lex, units, FeatureSettings(), background_share=0.5, seed=2,
+                               background_kinds=(("impacts", 1),))
+    assert all(str(it.path).endswith("-impacts") for it in impacts if it.background)
+    assert [it.path for it in impacts if not it.background] == [it.path for it in old if not it.background]
+
+
+def test_the_adaptation_draws_its_items_from_its_mix(tiny, monkeypatch):
+    import wordspot.training.adapt as adapt_module
+
+    utts, lex, units = tiny
+    start, _ = train(utts, lex, config=TrainingConfig(**SMALL, background_share=0.0, scorer=None))
+    made = []
+
+    def recording(*args, **kwargs):  # the real items, their paths noted
+        items = backgrounds.background_items(*args, **kwargs)
+        made.append([str(it.path) for it in items])
+        return items
+
+    monkeypatch.setattr(adapt_module, "background_items", recording)
+    cfg = dict(passes=1, mean_transform=False, prior_weight=10.0, seed=1, scorer=None, follow_passes=0,
+               background_share=0.25)
+    # the defaults: the steady kinds at share 0.1, the items of before
+    assert AdaptationConfig().background_kinds == TrainingConfig().background_kinds == STEADY_MIX
+    assert AdaptationConfig().background_share == TrainingConfig().background_share == 0.1
+    steady, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg))
+    old = plan_backgrounds(MIN_BACKGROUNDS, [u.speaker for u in utts], seed=1)  # the module's kinds
+    assert made[-1] == [f"background-{p.number:03d}-{p.kind}" for p in old]
+    assert steady.info["background_kinds"] == [list(p) for p in STEADY_MIX]
+    # impacts as half of the draws: these recipes, impacts among them
+    knocks, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=IMPACTS_HALF_MIX))
+    assert mix_draws(IMPACTS_HALF_MIX).count("impacts") * 2 == len(mix_draws(IMPACTS_HALF_MIX))
+    expected = plan_backgrounds(MIN_BACKGROUNDS, [u.speaker for u in utts], seed=1, kinds=IMPACTS_HALF_MIX)
+    assert made[-1] == [f"background-{p.number:03d}-{p.kind}" for p in expected]
+    kinds = [p.kind for p in expected]
+    assert "impacts" in kinds and set(kinds) - {"impacts"} <= set(BACKGROUND_KINDS) and len(set(kinds)) > 1
+    assert knocks.info["background_kinds"] == [list(p) for p in IMPACTS_HALF_MIX]
+    again, _ = adapt(utts, lex, start, config=AdaptationConfig(**cfg, background_kinds=IMPACTS_HALF_MIX))
+    np.testing.assert_array_equal(again.mixtures.means, knocks.mixtures.means)
+    pause = start.units.state_mixture[start.units.index(PAUSE_UNIT)]
+    pause = pause[pause >= 0]
+    assert not np.allclose(steady.mixtures.means[pause], knocks.mixtures.means[pause])

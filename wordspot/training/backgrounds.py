@@ -8,10 +8,13 @@ command here" recording), teach it the rest. Babble can be asked for (``kinds``)
 among the defaults: a pause that has learnt speech takes speech in babble for pause (on the
 dev voices: noise-only clips with a command 5 of 60 with babble items, 0 without; commands
 in noise at 10 dB alike; see docs/experiments/2026-12-02-background-items.md). Impacts
-(knocks, clinks, taps, scrapes; :mod:`wordspot.audio.impacts`) can be asked for too; as
-one kind in six they changed nothing on dev, as half of the items at share 0.25 they cut
-the dev impact clips with a command at the default threshold from 23% to 14%: a candidate,
-not yet a default (docs/experiments/2026-12-03-no-command-noise-and-words.md).
+(knocks, clinks, taps, scrapes; :mod:`wordspot.audio.impacts`) are a kind too; a *mix*
+gives each kind its parts (:func:`check_mix`). The defaults draw the steady kinds alone
+(:data:`STEADY_MIX`). Impacts as half of the adaptation's items at share 0.25
+(:data:`IMPACTS_HALF_MIX`) cut the dev impact clips with a command at the default
+threshold from 23% to 14% but cost 1.14 times the training's CPU time, and from scratch
+moved firing to everyday words: an option, off
+(docs/experiments/2026-12-03-impacts-in-training.md).
 
 Reproducible for any number of processes: the recipes (kind, length, level, mains
 frequency, floor, babble talkers, noise seed) are drawn up front from the training seed
@@ -33,12 +36,23 @@ from wordspot.training.items import CHUNK_SIZE, TrainingItem
 from wordspot.training.noise import babble_pool
 from wordspot.util.progress import ProgressBar
 
-__all__ = ["BACKGROUND_KINDS", "MIN_BACKGROUNDS", "BackgroundRecipe", "check_share", "background_count",
+__all__ = ["BACKGROUND_KINDS", "STEADY_MIX", "IMPACTS_HALF_MIX", "KNOWN_KINDS", "MIN_BACKGROUNDS",
+           "BackgroundRecipe", "check_share", "check_mix", "mix_draws", "background_count",
            "plan_backgrounds", "background_wave", "background_items"]
 
-#: The kinds drawn, each with equal chance.
+#: The kinds drawn, each with equal chance, when no mix is handed in.
 #: The default kinds of background item (babble, which the plan also knows, is left out).
 BACKGROUND_KINDS = ("white", "pink", "hum", "dither", "fan")
+
+#: Every kind a background item can be (:func:`wordspot.audio.augment.background`).
+KNOWN_KINDS = ("white", "pink", "hum", "dither", "fan", "babble", "impacts")
+
+#: A mix of kinds: ``(kind, parts)`` pairs, each kind drawn with chance parts / total.
+#: The steady kinds, one part each: the same items as :data:`BACKGROUND_KINDS`.
+STEADY_MIX = tuple((kind, 1) for kind in BACKGROUND_KINDS)
+
+#: The steady kinds one part each and impacts five parts: half of the items are impacts.
+IMPACTS_HALF_MIX = STEADY_MIX + (("impacts", 5),)
 
 #: Fewest background items when the share is above zero (a few recordings still get a
 #: few of every kind).
@@ -74,6 +88,35 @@ def check_share(share) -> float:
     return value
 
 
+def check_mix(mix, name: str = "background_kinds") -> tuple[tuple[str, int], ...]:
+    """``mix`` as ``((kind, parts), ...)``, else a TrainingError naming ``name``.
+
+    Each kind one of :data:`KNOWN_KINDS`, at most once; ``parts`` a whole number >= 1
+    (a plain kind name counts as one part).
+    """
+    pairs = []
+    try:
+        for entry in mix:
+            kind, parts = (entry, 1) if isinstance(entry, str) else tuple(entry)
+            pairs.append((kind, parts))
+    except (TypeError, ValueError):
+        pairs = None
+    ok = bool(pairs) and all(
+        isinstance(k, str) and k in KNOWN_KINDS and isinstance(p, (int, np.integer)) and not isinstance(p, bool)
+        and p >= 1 for k, p in pairs) and len({k for k, _ in pairs}) == len(pairs)
+    if not ok:
+        raise TrainingError(f"{name} must be (kind, parts) pairs, each kind one of {', '.join(KNOWN_KINDS)} "
+                            f"at most once with a whole number of parts >= 1 (e.g. (('fan', 1), ('impacts', 1))), "
+                            f"got {mix!r}")
+    return tuple((str(k), int(p)) for k, p in pairs)
+
+
+def mix_draws(mix) -> tuple[str, ...]:
+    """The kinds a plan draws from with equal chance: each kind of ``mix`` repeated
+    ``parts`` times, in order (so :data:`STEADY_MIX` gives :data:`BACKGROUND_KINDS`)."""
+    return tuple(kind for kind, parts in check_mix(mix) for _ in range(parts))
+
+
 def background_count(n_recordings: int, share: float) -> int:
     """Items for ``n_recordings`` usable recordings: ``round(share * n)``, at least
     :data:`MIN_BACKGROUNDS` (0 when the share is 0 or there are no recordings)."""
@@ -87,12 +130,15 @@ def plan_backgrounds(count: int, speakers, *, seed: int, levels=(-70.0, -30.0), 
     """Recipes of ``count`` background items, from ``seed`` alone.
 
     ``kinds``: the kinds drawn, each with equal chance (default :data:`BACKGROUND_KINDS`,
-    read when called).
+    read when called), or a mix of ``(kind, parts)`` pairs (:func:`check_mix`; drawn as
+    :func:`mix_draws`, so one part each gives the plain kinds' recipes).
     ``speakers``: the names babble may draw its 3-6 talkers from (with repeats when there
     are fewer).
     """
     names = sorted({str(s) for s in speakers})
     kinds = BACKGROUND_KINDS if kinds is None else tuple(kinds)
+    if any(not isinstance(k, str) for k in kinds):
+        kinds = mix_draws(kinds)
     plans = []
     for k in range(count):
         rng = np.random.default_rng([seed, _STREAM, k])
@@ -128,7 +174,8 @@ def _chunk_task(recipes, pool, settings):
 
 
 def background_items(count: int, paths, speakers, graph, settings: FeatureSettings, *,
-                     seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None) -> list[TrainingItem]:
+                     seed: int = 0, jobs: int = 1, quiet: bool = True, executor=None,
+                     kinds=None) -> list[TrainingItem]:
     """``count`` background-only training items (empty transcript, one pause unit).
 
     Parameters
@@ -145,6 +192,9 @@ def background_items(count: int, paths, speakers, graph, settings: FeatureSettin
         The training seed; the items depend only on it and the recordings, not on ``jobs``.
     jobs : int >= 1
     executor : wordspot.training.cluster.Executor, optional
+    kinds : mix of ``(kind, parts)`` pairs, optional
+        The kinds drawn (see :func:`plan_backgrounds`; ``TrainingConfig.background_kinds``);
+        default :data:`BACKGROUND_KINDS`.
 
     Returns
     -------
@@ -154,7 +204,7 @@ def background_items(count: int, paths, speakers, graph, settings: FeatureSettin
     if count <= 0:
         return []
     speakers = [str(s) for s in speakers]
-    plans = plan_backgrounds(count, speakers, seed=seed)
+    plans = plan_backgrounds(count, speakers, seed=seed, kinds=kinds)
     pool = babble_pool(list(paths), speakers, seed=seed, sample_rate=settings.sample_rate) \
         if any(p.talkers for p in plans) else {}
     chunks = [plans[i:i + CHUNK_SIZE] for i in range(0, len(plans), CHUNK_SIZE)]

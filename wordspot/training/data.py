@@ -121,7 +121,7 @@ def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: 
 def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings, *,
                   jobs: int = 1, quiet: bool = True,
                   warps=(1.0,), speeds=(1.0,), noise=None, background_share: float = 0.0,
-                  seed: int = 0, executor=None) -> tuple[list[TrainingItem], list[Skipped]]:
+                  seed: int = 0, executor=None, background_kinds=None) -> tuple[list[TrainingItem], list[Skipped]]:
     """Load features and build chains; skip (with a warning) what cannot be used.
 
     ``warps``: frequency warp factors; each utterance gives one item per factor (the
@@ -138,7 +138,9 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
 
     ``background_share``: background-only items (no command, one pause unit; see
     :mod:`wordspot.training.backgrounds`), ``background_count(usable recordings, share)``
-    of them, drawn with ``seed``, come last; 0 adds none.
+    of them, drawn with ``seed`` from ``background_kinds`` (a mix of ``(kind, parts)``
+    pairs, :func:`wordspot.training.backgrounds.check_mix`; default the steady kinds),
+    come last; 0 adds none.
 
     ``executor``: where the work runs (see :func:`extract_features`).
 
@@ -174,7 +176,8 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
         graph = graphs.get(()) or compose(chain_slots((), lexicon, units), units)
         items += background_items(count, [it.path for it in items[:n_plain]],
                                   [speaker[it.path] for it in items[:n_plain]], graph, settings,
-                                  seed=seed, jobs=jobs, quiet=quiet, executor=executor)
+                                  seed=seed, jobs=jobs, quiet=quiet, executor=executor,
+                                  kinds=background_kinds)
     return items, skipped
 
 

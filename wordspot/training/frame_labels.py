@@ -155,7 +155,8 @@ def _chunk_task(chunk, mix: Mixtures):
 
 
 def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 0.0, noise=None,
-                 speeds=(), seed: int = 0, quiet: bool = True, executor=None) -> FrameLabels:
+                 speeds=(), seed: int = 0, quiet: bool = True, executor=None,
+                 background_kinds=None) -> FrameLabels:
     """Frames and per-frame mixture ids of every utterance, by forced alignment with ``model``.
 
     Parameters
@@ -168,6 +169,8 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
     background_share : float in [0, 1]
         Background-only items, ``background_count(usable recordings, share)`` of them
         (:mod:`wordspot.training.backgrounds`), drawn with ``seed``; 0 adds none.
+    background_kinds : mix of ``(kind, parts)`` pairs, optional
+        Their kinds (default the steady kinds; ``TrainingConfig.background_kinds``).
     noise : wordspot.audio.augment.NoiseSettings, optional
         Noisy copies of every usable recording, drawn with ``seed``; they take the labels
         of their clean recording.
@@ -214,6 +217,7 @@ def align_frames(model, utterances, *, jobs: int = 1, background_share: float = 
             warnings.simplefilter("ignore", TrainingWarning)
             items, left_out = prepare_items(usable, lexicon, units, model.features, jobs=jobs, quiet=quiet,
                                             noise=noise, background_share=background_share, seed=seed,
+                                            background_kinds=background_kinds,
                                             executor=ex)
         skipped += left_out
         # recordings first, then their noisy copies (copy-major), then background items

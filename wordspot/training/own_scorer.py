@@ -28,7 +28,8 @@ SCRATCH_SCORER = ScorerConfig(hidden=(256, 256), context=5, max_frames=200_000)
 
 
 def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share: float = 0.0, seed: int = 0,
-                   scorer: ScorerConfig = SCRATCH_SCORER, jobs: int = 1, quiet: bool = True, executor=None):
+                   scorer: ScorerConfig = SCRATCH_SCORER, jobs: int = 1, quiet: bool = True, executor=None,
+                   background_kinds=None):
     """A state scorer for ``model`` fitted on ``utterances`` aligned with it.
 
     Parameters
@@ -42,6 +43,8 @@ def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share
         Speed copies, each aligned through its own chain.
     background_share : float
         Background-only items as a share of the recordings.
+    background_kinds : mix of ``(kind, parts)`` pairs, optional
+        Their kinds (the training's, so the items are the ones it made).
     seed : int
         Seeds the copies and background items; the scorer's own seed is ``scorer.seed``.
     scorer : ScorerConfig
@@ -64,7 +67,7 @@ def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share
         why = "scikit-learn is not installed (pip install scikit-learn)"
         return None, {"fitted": False, "reason": why}, f"sound scorer: not fitted, {why}"
     got = align_frames(model, utterances, jobs=jobs, background_share=background_share, noise=noise,
-                       speeds=speeds, seed=seed, quiet=quiet, executor=executor)
+                       speeds=speeds, seed=seed, quiet=quiet, executor=executor, background_kinds=background_kinds)
     if got.n_frames == 0:
         why = "no recording could be aligned"
         return None, {"fitted": False, "reason": why}, f"sound scorer: not fitted, {why}"

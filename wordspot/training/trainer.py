@@ -53,7 +53,7 @@ from wordspot.language.grammar import count_bigrams
 from wordspot.acoustic.hmm import Posteriors, graph_arrays
 from wordspot.model import AcousticModel
 from wordspot.util.progress import ProgressBar
-from wordspot.training.backgrounds import check_share
+from wordspot.training.backgrounds import STEADY_MIX, check_mix, check_share
 from wordspot.training.cluster import open_executor, using
 from wordspot.training.data import prepare_items
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
@@ -141,6 +141,10 @@ class TrainingConfig:
         Background-only items (no command: noise, hum, dithered silence, babble, fan at -70
         to -30 dBFS; :mod:`wordspot.training.backgrounds`) as a share of the recordings,
         at least 20 when above 0; 0 adds none.
+    background_kinds : tuple of (str, int)
+        Their kinds and parts: each item is a kind drawn with chance parts / total
+        (:func:`wordspot.training.backgrounds.check_mix`; "impacts" are knocks and clinks).
+        The default, the five steady kinds one part each, makes the items of before.
     scorer : ScorerConfig or None
         After the mixtures, fit a state scorer on these recordings, their speed and noisy
         copies and the background items, aligned with the new model
@@ -167,6 +171,7 @@ class TrainingConfig:
     noise_copies: int = 2
     noise_snr_db: tuple[float, float] = (0.0, 25.0)
     background_share: float = 0.1
+    background_kinds: tuple[tuple[str, int], ...] = STEADY_MIX
     scorer: ScorerConfig | None = SCRATCH_SCORER
 
     def __post_init__(self) -> None:
@@ -187,6 +192,7 @@ class TrainingConfig:
             raise TrainingError("min_occupancy, transition_floor, pause_seconds and prune must be >= 0")
         self.noise  # validates noise_copies and noise_snr_db
         object.__setattr__(self, "background_share", check_share(self.background_share))
+        object.__setattr__(self, "background_kinds", check_mix(self.background_kinds))
         if self.cluster is not None and not str(self.cluster).strip():
             raise TrainingError("cluster (--cluster) must be a Dask scheduler address (tcp://host:8786) "
                                 "or scheduler file")
@@ -639,7 +645,8 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
         items, skipped = prepare_items(utterances, lexicon, units, settings, jobs=config.jobs, quiet=quiet,
                                        warps=config.warp_factors, speeds=config.speed_factors,
                                        noise=config.noise, background_share=config.background_share,
-                                       seed=config.seed, executor=executor)
+                                       seed=config.seed, executor=executor,
+                                       background_kinds=config.background_kinds)
         if not items:
             raise TrainingError(
                 f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable "
@@ -652,7 +659,7 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
             net, scorer_info, summary.scorer_note = fit_own_scorer(
                 model, utterances, noise=config.noise, speeds=config.speed_factors,
                 background_share=config.background_share, seed=config.seed,
-                scorer=replace(config.scorer, seed=config.seed), jobs=config.jobs, quiet=quiet, executor=executor)
+                background_kinds=config.background_kinds, scorer=replace(config.scorer, seed=config.seed), jobs=config.jobs, quiet=quiet, executor=executor)
             if net is None:
                 warnings.warn(summary.scorer_note + "; word confidences use the mixtures' measures alone",
                               TrainingWarning, stacklevel=2)
@@ -697,6 +704,7 @@ def _model(utterances, lexicon, settings, config, items, units, mix, summary, dr
         "noise_kinds": list(config.noise.kinds),
         "background_share": float(config.background_share),
         "background_items": int(summary.backgrounds),
+        "background_kinds": [[k, p] for k, p in config.background_kinds],
         "unseen_units": list(summary.unseen_units),
         "audio_band": band,
     }
