@@ -37,9 +37,9 @@ def random_scorer(rng, d=3, c=2, hidden=(7, 5), p=6):
                        np.log(prior / prior.sum()))
 
 
-def test_forward_pass_equals_scikit_learn(rng):
-    # Reference library: scikit-learn's MLPClassifier.predict_proba with the same weights
-    # (ReLU hidden layers, softmax output), on the stacked and standardised input.
+def _scikit_learn_pair(rng):
+    """A fitted scikit-learn MLPClassifier with random weights, our StateScorer with the same
+    weights, 30 frames and their stacked, standardised input: ``(clf, scorer, frames, stacked)``."""
     from sklearn.exceptions import ConvergenceWarning
     from sklearn.neural_network import MLPClassifier
 
@@ -56,6 +56,13 @@ def test_forward_pass_equals_scikit_learn(rng):
     scorer = StateScorer(c, mean, scale, tuple(clf.coefs_), tuple(clf.intercepts_), np.full(p, -np.log(p)))
     frames = rng.normal(size=(30, d)).astype(np.float32)
     stacked = (stack_context(frames, c).astype(np.float64) - mean.astype(np.float32)) / scale.astype(np.float32)
+    return clf, scorer, frames, stacked
+
+
+def test_forward_pass_equals_scikit_learn(rng):
+    # Reference library: scikit-learn's MLPClassifier.predict_proba with the same weights
+    # (ReLU hidden layers, softmax output), on the stacked and standardised input.
+    clf, scorer, frames, stacked = _scikit_learn_pair(rng)
     expected = clf.predict_proba(stacked)
     got = np.exp(scorer.log_posteriors(frames).astype(np.float64))
     np.testing.assert_allclose(got, expected, rtol=2e-4, atol=1e-6)
@@ -180,21 +187,7 @@ def test_column_log_posteriors_are_the_reference_numbers_bit_for_bit(rng, column
 def test_column_log_posteriors_equal_scikit_learn(rng):
     # Reference library: scikit-learn's MLPClassifier.predict_proba with the same weights
     # (as test_forward_pass_equals_scikit_learn), its log in the chosen columns.
-    from sklearn.exceptions import ConvergenceWarning
-    from sklearn.neural_network import MLPClassifier
-
-    d, c, p = 3, 2, 5
-    x = rng.normal(size=(40, d * (2 * c + 1)))
-    clf = MLPClassifier(hidden_layer_sizes=(8, 6), activation="relu", max_iter=3, random_state=0)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        clf.fit(x, np.arange(40) % p)
-    clf.coefs_ = [rng.normal(size=w.shape) for w in clf.coefs_]
-    clf.intercepts_ = [rng.normal(size=b.shape) for b in clf.intercepts_]
-    mean, scale = rng.normal(size=x.shape[1]), rng.uniform(0.5, 2.0, x.shape[1])
-    scorer = StateScorer(c, mean, scale, tuple(clf.coefs_), tuple(clf.intercepts_), np.full(p, -np.log(p)))
-    frames = rng.normal(size=(30, d)).astype(np.float32)
-    stacked = (stack_context(frames, c).astype(np.float64) - mean.astype(np.float32)) / scale.astype(np.float32)
+    clf, scorer, frames, stacked = _scikit_learn_pair(rng)
     cols = [3, 1, 4]
     expected = clf.predict_proba(stacked)[:, cols]
     got = np.exp(scorer.column_log_posteriors(frames, cols))
