@@ -61,6 +61,21 @@ SETS = ("words", "real phrases", "other talk", "noise only")
 VARIANTS = ("mixtures only", "+ own scorer")
 
 
+def scored_sets(model, sets):
+    """Every dev set recognised with no threshold: ``{name: [(reference, words, confidences)]}``."""
+    from wordspot.audio.features import compute_features
+    from wordspot.decoding.decoder import DecoderSettings, build_recognizer
+
+    rec = build_recognizer(model, settings=DecoderSettings(min_confidence=0.0))
+    scored = {}
+    for name, items in sets.items():
+        scored[name] = []
+        for wave, ref in items:
+            segs = rec.decode(compute_features(wave, model.features)).segments
+            scored[name].append((ref, [g.word for g in segs], np.array([g.confidence for g in segs])))
+    return scored
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
@@ -72,10 +87,8 @@ def main(argv=None) -> int:
     if args.mix:
         return compare_mix(args)
 
-    from wordspot.audio.features import compute_features
     from wordspot.corpus import read_manifest
     from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
-    from wordspot.decoding.decoder import DecoderSettings, build_recognizer
     from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
     from wordspot.language.lexicon import read_lexicon
     from wordspot.training.own_scorer import SCRATCH_SCORER, fit_own_scorer
@@ -120,13 +133,7 @@ def main(argv=None) -> int:
                 model, _ = train_calibrated(fit, utterances, config=cal)
                 if sets is None:
                     sets = {k: v for k, v in dev_sets(model, 0).items() if k in SETS}
-                rec = build_recognizer(model, settings=DecoderSettings(min_confidence=0.0))
-                scored = {}
-                for name, items in sets.items():
-                    scored[name] = []
-                    for wave, ref in items:
-                        segs = rec.decode(compute_features(wave, model.features)).segments
-                        scored[name].append((ref, [g.word for g in segs], np.array([g.confidence for g in segs])))
+                scored = scored_sets(model, sets)
                 row, commands, non_commands = tally(scored, DEFAULT_MIN_CONFIDENCE)
                 row.insert(0, 100 * operating_eer(commands, non_commands))
                 table[variant].append(row)
@@ -157,10 +164,8 @@ def compare_mix(args) -> int:
     """Two from-scratch trainings per seed, the configured background items against ``args.mix``."""
     from threshold_dev import mix_arg
 
-    from wordspot.audio.features import compute_features
     from wordspot.corpus import read_manifest
     from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
-    from wordspot.decoding.decoder import DecoderSettings, build_recognizer
     from wordspot.evaluation.calibrate import CalibrationConfig, train_calibrated
     from wordspot.language.lexicon import read_lexicon
     from wordspot.training.trainer import TrainingConfig, train
@@ -190,13 +195,7 @@ def compare_mix(args) -> int:
                 if sets is None:
                     sets = {k: v for k, v in dev_sets(model, 0, no_command=True).items()
                             if k in SETS + ("noisy 10 dB", "everyday words", "impacts")}
-                rec = build_recognizer(model, settings=DecoderSettings(min_confidence=0.0))
-                scored = {}
-                for name, items in sets.items():
-                    scored[name] = []
-                    for wave, ref in items:
-                        segs = rec.decode(compute_features(wave, model.features)).segments
-                        scored[name].append((ref, [g.word for g in segs], np.array([g.confidence for g in segs])))
+                scored = scored_sets(model, sets)
                 row, commands, non_commands = tally(scored, DEFAULT_MIN_CONFIDENCE)
                 no_threshold, _, _ = tally(scored, 0.0)
                 row = [100 * operating_eer(commands, non_commands)] + row + no_threshold[-2:]
