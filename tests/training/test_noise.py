@@ -102,3 +102,27 @@ def test_training_config_checks_the_noise_settings():
         TrainingConfig(noise_copies=-1)
     with pytest.raises(AugmentError, match="low <= high"):
         TrainingConfig(noise_snr_db=(30.0, 0.0))
+
+
+def test_each_recording_is_read_once_and_its_copies_are_those_of_the_plans(tiny, monkeypatch):
+    # the work goes recording by recording; every copy is still its plan's, in plan order
+    from wordspot.audio.reading import load_audio
+    from wordspot.training import noise as noise_module
+
+    utts, lex, units = tiny
+    s = FeatureSettings()
+    clean, _ = prepare_items(utts, lex, units, s)
+    speakers = [f"v{k % 3}" for k in range(len(clean))]
+    settings = NoiseSettings(copies=2, snr_db=(5.0, 15.0))
+    pool = noise_module.babble_pool([it.path for it in clean], speakers, seed=4, sample_rate=s.sample_rate)
+    expected = [noise_module._copy_features(load_audio(clean[r.index].path, sample_rate=s.sample_rate), r, pool, s)
+                for r in plan_copies(speakers, settings, seed=4)]
+    reads = []
+    monkeypatch.setattr(noise_module, "load_audio", lambda path, **kw: reads.append(path) or load_audio(path, **kw))
+    got = noise_module.noisy_items(clean, speakers, settings, s, seed=4)
+    pool_reads = sum(len(v) for v in pool.values())
+    assert len(reads) == pool_reads + len(clean)  # the pool's, then each recording once
+    assert len(got) == len(expected) == 2 * len(clean)
+    for it, e, r in zip(got, expected, plan_copies(speakers, settings, seed=4)):
+        assert it.path == clean[r.index].path
+        np.testing.assert_array_equal(it.frames, e)

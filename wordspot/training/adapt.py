@@ -63,10 +63,11 @@ from wordspot.acoustic.graph import compose
 from wordspot.training.backgrounds import STEADY_MIX, background_count, background_items, check_mix, check_share
 from wordspot.training.data import chain_slots, prepare_items
 from wordspot.training.noise import noisy_items, recording_key
-from wordspot.training.frame_labels import align_one
+from wordspot.training.frame_labels import align_chunk
+from wordspot.training.cluster import using
 from wordspot.training.items import CHUNK_SIZE
 from wordspot.training.scorer_adapt import ScorerAdaptConfig, adapt_scorer
-from wordspot.training.trainer import TrainingSummary, pass_statistics
+from wordspot.training.trainer import TrainingSummary, pass_loglik, pass_statistics
 
 __all__ = [
     "AdaptationConfig",
@@ -414,10 +415,10 @@ def _chunks(items) -> list:
 def held_out_fit(items, units: UnitSet, mix: Mixtures, *, jobs: int = 1, prune: float = 0.0) -> float:
     """Log-likelihood a frame of ``items`` (each under its own transcript's chain) with ``mix``;
     -inf when some item has no path."""
-    res = pass_statistics(_chunks(items), mix, units, jobs=jobs, quiet=True, prune=prune, label="held-out")
-    if not np.isfinite(res.loglik).all():
+    loglik = pass_loglik(_chunks(items), mix, units, jobs=jobs)  # what pass_statistics gives, forward only
+    if not np.isfinite(loglik).all():
         return float("-inf")
-    return float(res.loglik.sum() / sum(it.frames.shape[0] for it in items))
+    return float(loglik.sum() / sum(it.frames.shape[0] for it in items))
 
 
 def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfig = AdaptationConfig(),
@@ -518,24 +519,29 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     return best, summary, transform
 
 
-def align_for_scorer(items, mix: Mixtures) -> tuple[list, list]:
+def align_for_scorer(items, mix: Mixtures, *, jobs: int = 1) -> tuple[list, list]:
     """Frames and per-frame mixture ids of the recordings among ``items`` (background-only
     items left out), by forced alignment of each one's chain with ``mix``
-    (:func:`wordspot.training.frame_labels.align_one`); items no path fits are left out."""
-    scoring = scoring_matrix(mix)
+    (:func:`wordspot.training.frame_labels.align_one`); items no path fits are left out.
+    With ``jobs`` > 1 the recordings are shared among that many processes (the same
+    result, in the same order)."""
+    used = [it for it in items if not it.background]
+    chunks = [[(it.frames, it.graph) for it in used[i:i + CHUNK_SIZE]] for i in range(0, len(used), CHUNK_SIZE)]
+    with using(None, jobs if len(chunks) > 1 else 1) as ex:
+        got = [one for part in ex.map(align_chunk, [(c,) for c in chunks],
+                                      common=(scoring_matrix(mix), mix.n_components), label="alignment")
+               for one in part]
     frames, labels = [], []
-    for it in items:
-        if it.background:
-            continue
-        score, y = align_one(it.frames, it.graph, scoring, mix.n_components)
+    for it, (score, y) in zip(used, got):
         if np.isfinite(score):
             frames.append(np.asarray(it.frames, dtype=np.float32))
             labels.append(y)
     return frames, labels
 
 
-def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptConfig, report=None):
-    """The starting model's scorer tuned to ``items`` aligned with ``mix``.
+def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptConfig, report=None, jobs: int = 1):
+    """The starting model's scorer tuned to ``items`` aligned with ``mix`` (aligned in
+    ``jobs`` processes).
 
     Returns
     -------
@@ -551,7 +557,7 @@ def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptC
         return start.scorer, {"tuned": False, "reason": f"its inputs ({start.scorer.inputs}) are not tuned yet"}, \
             f"kept the starting model's sound scorer as it is (tuning a scorer on {start.scorer.inputs} " \
             "inputs is not supported yet)"
-    frames, labels = align_for_scorer(items, mix)
+    frames, labels = align_for_scorer(items, mix, jobs=jobs)
     if not labels:
         return start.scorer, {"tuned": False, "reason": "no recording could be aligned"}, \
             "kept the starting model's sound scorer as it is (no recording could be aligned)"
@@ -714,7 +720,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     scorer = start.scorer
     if scorer is not None and config.scorer is not None:
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
-                                                                             report=report)
+                                                                             report=report, jobs=config.jobs)
     elif scorer is not None:
         info["scorer_adaptation"] = {"tuned": False, "reason": "kept by request"}
         summary.scorer_note = "kept the starting model's sound scorer as it is (as asked)"
@@ -911,19 +917,23 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
     the calibration's held-out recordings, chooses the strength on them; later calls without
     held-out recordings (training again on every recording) reuse that strength. ``again``
     False says no training on every recording follows (the held-out recordings' copies are
-    then not made). Carries
+    then not made); ``say``, when given, takes the report lines instead of ``report`` and
+    the progress bars are left out (a training run beside other work). Carries
+    ``runs_beside`` (True: the training on everything may run while the calibration
+    recognises, it reads only the strength the first call chose),
     ``start_calibration`` (the starting model's calibration, the fallback) and
     ``takes_held_out``.
     """
     chosen: dict = {}
     cache = ItemCache()
 
-    def fit(utterances, held_out=None, again=True):
+    def fit(utterances, held_out=None, again=True, say=None):
         cfg = config
         if held_out is None and config.strength is None and chosen:
             cfg = replace(config, strength=chosen["follow_passes"])
-        model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest, quiet=quiet,
-                               report=report, held_out=held_out, cache=cache, held_out_copies=again)
+        model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest,
+                               quiet=quiet if say is None else True, report=report if say is None else say,
+                               held_out=held_out, cache=cache, held_out_copies=again)
         if held_out is not None and config.strength is None:
             chosen.clear()
             chosen.update(model.info["strength"])
@@ -947,6 +957,7 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
         return [u for u in utterances if u.speaker not in speakers], held
 
     fit.takes_held_out = True
+    fit.runs_beside = True
     fit.speakers_apart = speakers_apart
     fit.start_calibration = getattr(start, "calibration", None)
     return fit

@@ -35,7 +35,7 @@ from wordspot.training.backgrounds import background_count, background_items
 from wordspot.training.noise import noisy_items
 from wordspot.acoustic.units import GAP_UNIT, PAUSE_UNIT, UnitSet
 
-__all__ = ["chain_slots", "extract_features", "prepare_items", "speed_copy"]
+__all__ = ["chain_slots", "extract_features", "extract_speed_features", "prepare_items", "speed_copy"]
 
 def chain_slots(words, lexicon, units: UnitSet) -> list:
     """Slots of the training chain of a transcript (see :func:`wordspot.acoustic.graph.compose`).
@@ -85,6 +85,63 @@ def _features_task(paths, settings, warp=1.0, speed=1.0):
         notes = [(w.category, str(w.message)) for w in caught]
         out.append((feats, error, notes))
     return out
+
+
+def _speeds_task(paths, settings, speeds):
+    """Features of several files at each speed factor (none of them 1), each file read
+    once: per path, per speed ``(features, error, warnings)`` as :func:`_features_task`
+    gives them (the reading's warnings repeated for every speed, as reading it again would)."""
+    out = []
+    for path in paths:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            try:
+                wave, error = load_audio(path, sample_rate=settings.sample_rate), None
+            except (AudioError, FeatureError) as exc:
+                wave, error = None, str(exc)
+        read_notes = [(w.category, str(w.message)) for w in caught]
+        per_speed = []
+        for speed in speeds:
+            if wave is None:
+                per_speed.append((None, error, read_notes))
+                continue
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                try:
+                    feats, err = compute_features(speed_copy(wave, settings.sample_rate, speed), settings), None
+                except (AudioError, FeatureError) as exc:
+                    feats, err = None, str(exc)
+            per_speed.append((feats, err, read_notes + [(w.category, str(w.message)) for w in caught]))
+        out.append(per_speed)
+    return out
+
+
+def extract_speed_features(paths, settings: FeatureSettings, speeds, *, jobs: int = 1, quiet: bool = True,
+                           executor=None) -> list:
+    """:func:`extract_features` at every factor of ``speeds`` (none of them 1), each file read
+    once: a list per speed, in the order of ``speeds``, of ``(features, None)`` or ``(None,
+    message)`` per path; the same arrays, messages and warnings as one call per speed."""
+    paths = list(paths)
+    speeds = [float(f) for f in speeds]
+    chunks = [paths[i:i + CHUNK_SIZE] for i in range(0, len(paths), CHUNK_SIZE)]
+    bar = ProgressBar(len(paths), "features", quiet=quiet)
+    got = []
+    with using(executor, jobs) as ex:
+        for part in ex.map(_speeds_task, [(c,) for c in chunks], common=(settings, speeds),
+                           frames=True, label="features"):
+            got += part
+            bar.update(len(part))
+        bar.close()
+        results = []
+        for k in range(len(speeds)):
+            for per_speed in got:
+                feats, error, notes = per_speed[k]
+                for category, message in notes:
+                    warnings.warn(message, category, stacklevel=2)
+                results.append((feats, error))
+        results = ex.settle(results)
+    n = len(paths)
+    return [results[k * n:(k + 1) * n] for k in range(len(speeds))]
 
 
 def extract_features(paths, settings: FeatureSettings, *, jobs: int = 1, quiet: bool = True,
@@ -153,9 +210,17 @@ def prepare_items(utterances, lexicon, units: UnitSet, settings: FeatureSettings
     skipped: list[Skipped] = []
     graphs: dict[tuple[str, ...], StateGraph] = {}
     variants = [(float(w), 1.0) for w in warps] + [(1.0, float(s)) for s in speeds if float(s) != 1.0]
+    sped = [s for w, s in variants if s != 1.0]
+    by_speed: dict = {}
     for k, (warp, speed) in enumerate(variants):
-        features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
-                                    warp=warp, speed=speed, executor=executor)
+        if speed != 1.0 and len(sped) > 1:  # every speed copy of a recording from one reading of it
+            if not by_speed:
+                by_speed = dict(zip(sped, extract_speed_features([u.path for u in utterances], settings, sped,
+                                                                 jobs=jobs, quiet=quiet, executor=executor)))
+            features = by_speed[speed]
+        else:
+            features = extract_features([u.path for u in utterances], settings, jobs=jobs, quiet=quiet,
+                                        warp=warp, speed=speed, executor=executor)
         if k == 0:
             _collect(utterances, features, lexicon, units, graphs, items, skipped, settings.hop_ms / 1000)
         else:

@@ -43,7 +43,7 @@ from wordspot.training.data import extract_features, prepare_items
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.util.progress import ProgressBar
 
-__all__ = ["AlignedItem", "FrameLabels", "align_frames", "align_one", "unusable_words"]
+__all__ = ["AlignedItem", "FrameLabels", "align_frames", "align_one", "align_chunk", "unusable_words"]
 
 
 @dataclass
@@ -147,6 +147,33 @@ def align_one(frames: np.ndarray, graph, scoring, n_comp: int) -> tuple[float, n
     if not np.isfinite(score):
         return float(score), np.full(x.shape[0], -1, dtype=np.int32)
     return float(score), graph.mixture[states].astype(np.int32)
+
+
+def align_chunk(chunk, scoring, n_comp: int) -> list[tuple[float, np.ndarray]]:
+    """:func:`align_one` of every ``(frames, graph)`` pair of ``chunk``, in order, bit for bit
+    the same: each graph's columns and arrays are made once for the pairs that share it,
+    and the mixture log-likelihoods are computed without the component posteriors (which
+    the best path does not read)."""
+    w, c = scoring
+    graphs: dict[int, tuple] = {}
+    out = []
+    for frames, graph in chunk:
+        got = graphs.get(id(graph))
+        if got is None:
+            ids, local = np.unique(graph.mixture, return_inverse=True)
+            cols = (ids[:, None] * n_comp + np.arange(n_comp)[None, :]).reshape(-1)
+            got = graphs[id(graph)] = (ids.size, np.ascontiguousarray(local), np.ascontiguousarray(w[:, cols]),
+                                       np.ascontiguousarray(c[cols]), graph_arrays(graph))
+        n_ids, local, wg, cg, arrays = got
+        x = np.ascontiguousarray(frames, dtype=np.float64)
+        comp = kernels.score_components(x, wg, cg)
+        mixture_ll = kernels.mixture_log_likelihoods(comp.reshape(x.shape[0], n_ids, n_comp))[0]
+        score, states = kernels.viterbi(np.ascontiguousarray(mixture_ll[:, local]), *arrays)
+        if not np.isfinite(score):
+            out.append((float(score), np.full(x.shape[0], -1, dtype=np.int32)))
+        else:
+            out.append((float(score), graph.mixture[states].astype(np.int32)))
+    return out
 
 
 def _chunk_task(chunk, mix: Mixtures):

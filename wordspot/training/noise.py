@@ -195,16 +195,22 @@ def noisy_items(items: list[TrainingItem], speakers, noise: NoiseSettings, setti
     if only is not None:
         wanted = {int(k) for k in only}
         plans = [p for p in plans if p.index in wanted]
-    chunks = [plans[i:i + CHUNK_SIZE] for i in range(0, len(plans), CHUNK_SIZE)]
+    # the work goes recording by recording (all copies of one recording in a row), so each
+    # recording is read once; the copies come back in the plans' order
+    order = sorted(range(len(plans)), key=lambda i: (plans[i].index, i))
+    chunks = [[plans[i] for i in order[j:j + CHUNK_SIZE]] for j in range(0, len(order), CHUNK_SIZE)]
     bar = ProgressBar(len(plans), "noisy copies", quiet=quiet)
-    feats = []
+    made = []
     with using(executor, jobs) as ex:
         for part in ex.map(_chunk_task, [(c,) for c in chunks], common=(paths, pool, settings),
                            frames=True, label="noisy copies"):
-            feats += part
+            made += part
             bar.update(len(part))
         bar.close()
-        feats = ex.settle(feats)
+        made = ex.settle(made)
+    feats = [None] * len(plans)
+    for i, f in zip(order, made):
+        feats[i] = f
     out: list[TrainingItem] = []
     for recipe, f in zip(plans, feats):
         it = items[recipe.index]

@@ -62,7 +62,8 @@ from wordspot.training.scorer_fit import ScorerConfig
 from wordspot.acoustic.transitions import parameter_counts, refresh_graph, update_transitions
 from wordspot.acoustic.units import PAUSE_UNIT, UnitSet, default_unit_set, n_transition_params
 
-__all__ = ["TrainingConfig", "TrainingSummary", "PASS_LEGEND", "train", "train_items", "flat_start", "pass_statistics"]
+__all__ = ["TrainingConfig", "TrainingSummary", "PASS_LEGEND", "train", "train_items", "flat_start", "pass_statistics",
+           "pass_loglik"]
 
 #: Said once before the pass lines: what their figures mean.
 PASS_LEGEND = ("each pass: detail = Gaussians a state (more after each doubling); fit = log-likelihood a "
@@ -432,6 +433,37 @@ def _run_pass(chunks, mix, units, executor, label, quiet, prune, reference=False
     bar.close()
     total.loglik = np.concatenate(lls)
     return total
+
+
+def _chunk_loglik(chunk, scoring, n_comp: int, units: UnitSet) -> np.ndarray:
+    """Log-likelihood of each (frames, graph) pair of a chunk under its chain: the forward
+    pass of :func:`_utterance_pass` alone (the same kernels on the same numbers, so the
+    same values bit for bit), without the backward pass and the sums."""
+    out = np.full(len(chunk), -np.inf)
+    caches: dict[int, _GraphCache] = {}
+    for k, (frames, graph) in enumerate(chunk):
+        cache = caches.get(id(graph))
+        if cache is None:
+            cache = caches[id(graph)] = _GraphCache(graph, units, n_comp, scoring)
+        x = np.ascontiguousarray(frames, dtype=np.float64)
+        comp = kernels.score_components(x, cache.w, cache.c).reshape(x.shape[0], cache.mixture_ids.size, n_comp)
+        mixture_ll = kernels.mixture_log_likelihoods(comp)[0]
+        state_ll = np.ascontiguousarray(mixture_ll[:, cache.local])
+        self_logp, src, dst, arc_logp, init_logp, final_logp = cache.arrays
+        out[k] = kernels.forward(state_ll, self_logp, src, dst, arc_logp, init_logp, final_logp)[0]
+    return out
+
+
+def pass_loglik(chunks, mix: Mixtures, units: UnitSet, *, jobs: int = 1, executor=None) -> np.ndarray:
+    """Log-likelihood of every utterance of ``chunks`` (in order) under its chain with
+    ``mix``: the ``loglik`` of :func:`pass_statistics`, bit for bit, from the forward pass
+    alone (about half the work: no backward pass, no statistics)."""
+    if not chunks:
+        return np.zeros(0)
+    with using(executor, jobs) as ex:
+        parts = list(ex.map(_chunk_loglik, [(c,) for c in chunks],
+                            common=(scoring_matrix(mix), mix.n_components, units), label="fit"))
+    return np.concatenate(parts)
 
 
 def pass_statistics(chunks, mix: Mixtures, units: UnitSet, *, jobs: int = 1, quiet: bool = True,
