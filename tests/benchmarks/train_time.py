@@ -3,14 +3,15 @@
 
 Runs, round after round, ``/usr/bin/time python -m wordspot.cli train recordings/train.csv
 --lexicon lexicon/bakery.txt --out M --jobs 2 -q`` with ``PYTHONPATH`` naming each tree:
-the ``--before`` tree, then this tree with ``--no-refit`` (the calibration's model kept),
-then this tree as it is; prints wall and user CPU seconds (user CPU includes the worker
-processes) and the ratios to the before run of the same round, then whether the default
-models of the two trees are the same array by array (mixtures, transitions, word-pair
-counts, the sound scorer's weights, the calibration). The machine is usually shared:
-the CPU ratios measured in one round are the figure to trust, not the wall times.
+the ``--before`` tree and this tree as it is (``--with-no-refit``: also this tree with
+``--no-refit``, the calibration's model kept), the order turned round every other round;
+prints wall and user CPU seconds (user CPU includes the worker processes) and the ratios
+to the before run of the same round, whether the default models of the two trees are the
+same array by array (mixtures, transitions, word-pair counts, the sound scorer's weights,
+the calibration), and the median ratios. The machine is usually shared: the CPU ratios
+measured in one round are the figure to trust, not the wall times.
 
-    git worktree add --detach ../before a933ca4
+    git archive COMMIT | tar -x -C ../before    # the code to compare with
     python tests/benchmarks/train_time.py --before ../before --rounds 2
 """
 
@@ -34,7 +35,10 @@ def run(tree: Path, out: Path, extra: list[str]) -> tuple[float, float]:
     env = dict(os.environ, PYTHONPATH=str(tree), OPENBLAS_NUM_THREADS="1")
     cmd = ["/usr/bin/time", "-f", "%e %U", "-o", str(timing), sys.executable, "-m", "wordspot.cli", "train",
            "recordings/train.csv", "--lexicon", "lexicon/bakery.txt", "--out", str(out), "--jobs", "2", "-q"] + extra
-    subprocess.run(cmd, cwd=tree, env=env, check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    done = subprocess.run(cmd, cwd=tree, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    if done.returncode != 0:
+        raise SystemExit(f"the training with the code of {tree} failed (exit status {done.returncode}):\n"
+                         f"{done.stderr[-3000:]}")
     wall, user = timing.read_text().split()[-2:]
     return float(wall), float(user)
 
@@ -59,20 +63,36 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--before", type=Path, required=True, help="a tree with the code to compare with")
     ap.add_argument("--rounds", type=int, default=2)
+    ap.add_argument("--with-no-refit", action="store_true",
+                    help="also time this tree with --no-refit (the calibration's model kept)")
     args = ap.parse_args(argv)
-    runs = (("before", args.before.resolve(), []), ("now, --no-refit", REPO, ["--no-refit"]), ("now, default", REPO, []))
+    runs = [("before", args.before.resolve(), []), ("now, default", REPO, [])]
+    if args.with_no_refit:
+        runs.append(("now, --no-refit", REPO, ["--no-refit"]))
     print("| round | code | wall s | user CPU s | CPU ratio | wall ratio |\n| ---: | --- | ---: | ---: | ---: | ---: |")
+    ratios: dict[str, list] = {}
     with tempfile.TemporaryDirectory() as tmp:
         for r in range(1, args.rounds + 1):
-            base = None
-            for k, (name, tree, extra) in enumerate(runs):
-                wall, user = run(tree, Path(tmp) / f"{k}-{r}.model", extra)
-                base = base or (wall, user)
+            # alternate which code runs first, so neither always meets the same moment of the load
+            order = list(range(len(runs))) if r % 2 else list(range(len(runs)))[::-1]
+            got = {}
+            for k in order:
+                name, tree, extra = runs[k]
+                got[k] = run(tree, Path(tmp) / f"{k}-{r}.model", extra)
+            base = got[0]
+            for k in order:
+                wall, user = got[k]
+                name = runs[k][0]
+                ratios.setdefault(name, []).append((user / base[1], wall / base[0]))
                 print(f"| {r} | {name} | {wall:.1f} | {user:.1f} | {user / base[1]:.2f} | {wall / base[0]:.2f} |",
                       flush=True)
-            differ = same_model(Path(tmp) / f"0-{r}.model", Path(tmp) / f"2-{r}.model")
+            differ = same_model(Path(tmp) / f"0-{r}.model", Path(tmp) / f"1-{r}.model")
             print(f"round {r}: the default models are " + ("the same" if not differ else
                                                           "different in " + ", ".join(differ)), flush=True)
+    for name, got in ratios.items():
+        if name != "before":
+            cpu, wall = np.median([c for c, _ in got]), np.median([w for _, w in got])
+            print(f"{name}: median ratio to before over {len(got)} rounds: CPU {cpu:.2f}, wall {wall:.2f}")
     return 0
 
 

@@ -46,23 +46,32 @@ def test_training_again_beside_the_recognition_changes_nothing(monkeypatch):
     config = CalibrationConfig(speeds=(1.0,), jumbled=10).decided(adapting=True)
     adapt_config = AdaptationConfig(jobs=2, follow_noise_copies=1, follow_speeds=(0.9,))
 
-    overlapping = []
+    in_main = []
     real_examples = calibrate.calibration_examples
 
     def watching(*args, **kwargs):
-        overlapping.append(any(t.name == "wordspot-training-again" and t.is_alive() for t in threading.enumerate()))
+        in_main.append(threading.current_thread() is threading.main_thread())
         return real_examples(*args, **kwargs)
 
     monkeypatch.setattr(calibrate, "calibration_examples", watching)
-    runs = {}
+    runs, overlapping = {}, []
     for name, beside in (("after", False), ("beside", True)):
         lines: list[str] = []
         fit = adapting(start, lexicon, config=adapt_config, report=lines.append)
         assert fit.runs_beside
-        model, summary = train_calibrated(fit if beside else _one_after_the_other(fit), utts, config=config,
+
+        def seeing(utterances, held_out=None, again=True, say=None, fit=fit):
+            if held_out is None:  # the training on everything: is the recognition running meanwhile?
+                overlapping.append(any(t.name == "wordspot-calibration" and t.is_alive()
+                                       for t in threading.enumerate()))
+            return fit(utterances, held_out=held_out, again=again, say=say)
+
+        seeing.takes_held_out, seeing.runs_beside, seeing.start_calibration = True, True, fit.start_calibration
+        model, summary = train_calibrated(seeing if beside else _one_after_the_other(fit), utts, config=config,
                                           report=lines.append, jobs=2)
         runs[name] = (model, summary, lines)
-    assert overlapping == [False, True]  # the second run trained again while it recognised
+    assert in_main == [True, False]  # recognised in a thread the second time
+    assert overlapping == [True]  # while the training on everything ran
     (a, sa, la), (b, sb, lb) = runs["after"], runs["beside"]
     assert a.info["utterances"] == b.info["utterances"] == len(utts)
     for part in ("weights", "means", "variances"):

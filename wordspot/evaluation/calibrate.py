@@ -735,29 +735,24 @@ def _trained(train: Callable, rest, held, again: bool = True):
     return train(rest, held_out=held, again=again) if getattr(train, "takes_held_out", False) else train(rest)
 
 
-class _Beside:
-    """``train(utterances)`` run in a thread while this one does other work: its report
-    lines kept (no progress bars) and said, in order, when its result is taken."""
+class _InThread:
+    """``work()`` run in a thread while the calling thread does other work; :meth:`result`
+    waits for it and raises what it raised."""
 
-    def __init__(self, train: Callable, utterances: Sequence):
-        self.lines: list[str] = []
+    def __init__(self, work: Callable, name: str):
         self.got = None
         self.error: BaseException | None = None
-        self.thread = threading.Thread(target=self._run, args=(train, utterances), daemon=True,
-                                       name="wordspot-training-again")
+        self.thread = threading.Thread(target=self._run, args=(work,), daemon=True, name=name)
         self.thread.start()
 
-    def _run(self, train, utterances):
+    def _run(self, work):
         try:
-            self.got = train(utterances, say=self.lines.append)
+            self.got = work()
         except BaseException as exc:  # handed to the thread that takes the result
             self.error = exc
 
-    def result(self, say: Callable[[str], None]):
-        """What ``train`` returned (its exception raised here), after its lines went to ``say``."""
+    def result(self):
         self.thread.join()
-        for line in self.lines:
-            say(line)
         if self.error is not None:
             raise self.error
         return self.got
@@ -779,10 +774,10 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     ``jobs``: threads recognising the held-out recordings (the same calibration for any number).
 
     When ``train`` has ``runs_beside`` set, the training on every recording (``config.refit``)
-    starts in a thread as soon as the held-out part's model is there, called as
-    ``train(utterances, say=...)`` (its report lines kept and said afterwards, no progress
-    bars), and runs while the held-out recordings are recognised: the same result, less
-    waiting where the recognition leaves a core idle.
+    runs as soon as the held-out part's model is there, called as ``train(utterances,
+    say=...)`` (its report lines kept and said afterwards, no progress bars), while the
+    held-out recordings are recognised in a thread: the same result, less waiting where
+    the recognition leaves a core idle.
 
     ``fallback``: the starting model's calibration (a starter's, fitted on many voices), kept
     instead when the held-out recordings are too few to fit one (said through ``report``,
@@ -810,7 +805,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         )
         return model, summary
     examples = []
-    beside = None
+    final = None
     jumbled = config.jumbled if len(parts) == 1 else -(-config.jumbled // len(parts))
     phrases = config.phrases if len(parts) == 1 else -(-config.phrases // len(parts))
     noise_clips = config.noise_clips if len(parts) == 1 else -(-config.noise_clips // len(parts))
@@ -825,17 +820,25 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
             say(f"confidence calibration: training on {len(rest)} recordings, {len(held)} held out"
                 + (" across the whole set (transcripts rarely repeat)" if how == "across the set" else ""))
         model, summary = _trained(train, rest, held, again=bool(config.refit))
-        if config.refit and f == len(parts) - 1 and getattr(train, "runs_beside", False):
-            # the training on every recording needs nothing of the calibration's: it runs
-            # while the held-out recordings are recognised (the same model as after them)
-            beside = _Beside(train, utterances)
         if how == "whole speakers":
             held = recognised_share(held, len(utterances), config)
-        examples.append(calibration_examples(model, held, settings=config.settings, quiet=quiet,
-                                             speeds=config.speeds, backwards=config.backwards, jumbled=jumbled,
-                                             seed=config.seed + f, noisy=config.noisy,
-                                             noise_snr_db=config.noise_snr_db, phrases=phrases,
-                                             noise_clips=noise_clips, jobs=jobs))
+
+        def recognise(model=model, held=held, f=f):
+            return calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
+                                        backwards=config.backwards, jumbled=jumbled, seed=config.seed + f,
+                                        noisy=config.noisy, noise_snr_db=config.noise_snr_db, phrases=phrases,
+                                        noise_clips=noise_clips, jobs=jobs)
+
+        if config.refit and f == len(parts) - 1 and getattr(train, "runs_beside", False):
+            # the training on every recording needs nothing of the calibration's: the
+            # held-out recordings are recognised in a thread meanwhile (threads only, so
+            # worker processes are started by this thread alone); the same model as after
+            recognising = _InThread(recognise, "wordspot-calibration")
+            final_lines: list[str] = []
+            final = train(utterances, say=final_lines.append)
+            examples.append(recognising.result())
+        else:
+            examples.append(recognise())
     examples = _merged(examples)
     calibration = fit_calibration(examples, config=config, quiet_skip=_fallback_usable(fallback, model))
     n_right = int(examples.right.sum())
@@ -852,7 +855,12 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
         f"removed, {n_jumbled} in jumbled speech){conditions}" + ("" if calibration is not None else "; not fitted"))
     if config.refit:
         say(f"confidence calibration: training again on all {len(utterances)} recordings")
-        model, summary = beside.result(say) if beside is not None else train(utterances)
+        if final is None:
+            model, summary = train(utterances)
+        else:
+            for line in final_lines:
+                say(line)
+            model, summary = final
     if calibration is None:
         why = (f"the {examples.recordings} held-out recordings gave {n_right} right and "
                f"{examples.right.size - n_right} wrong words, too few to fit one for your voice")
