@@ -139,3 +139,45 @@ def test_learned_pronunciations_survive_the_model_file(starter, tmp_path):
     assert back.lexicon.pronunciations("timer") == (("T", "AY", "M", "ER"), ("T", "AY", "M", "AH"))
     assert back.info["learned_pronunciations"] == {"timer": ["T AY M AH"]}
     assert back.lexicon == model.lexicon
+
+
+def _espeak_takes(folder, said, rates=(140, 165, 190)):
+    """WAV takes of (word, espeak-ng phoneme input) pairs by espeak-ng's en+m3 voice (a demo
+    dev voice, recordings/voices.csv) at several rates; None without espeak-ng."""
+    import shutil
+    import subprocess
+
+    if shutil.which("espeak-ng") is None:
+        return None
+    rows = []
+    for word, phonemes in said:
+        for rate in rates:
+            path = folder / f"{word}-{rate}.wav"
+            subprocess.run(["espeak-ng", "-v", "en+m3", "-s", str(rate), "-w", str(path), phonemes], check=True)
+            rows.append((path, word))
+    return rows
+
+
+@pytest.mark.slow
+def test_adapting_learns_how_the_takes_say_a_word(starter, tmp_path):
+    from wordspot.corpus import Utterance
+    from wordspot.training.adapt import AdaptationConfig, adapt
+
+    # "five" said F EY V ("eI" in espeak-ng's phoneme input), "stop" as listed (S T AA P)
+    rows = _espeak_takes(tmp_path, [("five", "[[f'eIv]]"), ("stop", "[[st'A:p]]")])
+    if rows is None:
+        pytest.skip("espeak-ng is not installed (Debian package espeak-ng)")
+    utts = [Utterance(path, (word,), "ann", k + 2) for k, (path, word) in enumerate(rows)]
+    lexicon = parse_lexicon("five F AY V\nstop S T AA P\n")
+    config = AdaptationConfig(strength=0, scorer=None, pronunciations=LearningConfig(enabled=True))
+    model, summary = adapt(utts, lexicon, starter, config=config)
+    assert model.lexicon.pronunciations("five") == (("F", "AY", "V"), ("F", "EY", "V"))
+    assert model.lexicon.pronunciations("stop") == (("S", "T", "AA", "P"),)
+    assert model.info["learned_pronunciations"] == {"five": ["F EY V"]}
+    assert "pronunciations learned from your recordings: 'five' as you say it: F EY V" in summary.lines()
+    back = load_model(save_model(model, tmp_path / "m.model"))
+    assert back.lexicon == model.lexicon
+    # off (the default): the lexicon as given, nothing recorded
+    plain, summary = adapt(utts, lexicon, starter, config=AdaptationConfig(strength=0, scorer=None))
+    assert plain.lexicon == lexicon and "learned_pronunciations" not in plain.info
+    assert not any("learned" in line for line in summary.lines())
