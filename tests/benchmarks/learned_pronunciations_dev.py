@@ -195,6 +195,8 @@ def main(argv=None) -> int:
     ap.add_argument("--cases", nargs="+", default=["alone", "with dev voices"], choices=["alone", "with dev voices"])
     ap.add_argument("--min-gain", type=float, nargs="+", default=None,
                     help="learning settings to try beside off (default: the LearningConfig default)")
+    ap.add_argument("--min-share", type=float, default=None, help="the share of a speaker's takes to win "
+                    "(default: the LearningConfig default)")
     args = ap.parse_args(argv)
 
     from tune_filler import dev_sets, write_dev_train_manifest
@@ -210,7 +212,8 @@ def main(argv=None) -> int:
     print("dev sets: " + ", ".join(f"{k} {len(v)}" for k, v in common.items()), flush=True)
     systems = {"off": LearningConfig(enabled=False)}
     for g in args.min_gain or [LearningConfig.min_gain]:
-        systems[f"on (gain {g:g})"] = LearningConfig(enabled=True, min_gain=g)
+        share = LearningConfig.min_share if args.min_share is None else args.min_share
+        systems[f"on (gain {g:g}, share {share:g})"] = LearningConfig(enabled=True, min_gain=g, min_share=share)
     results: dict = {}
     for seed in args.seeds:
         with tempfile.TemporaryDirectory(prefix="wordspot-accent-") as tmp:
@@ -244,6 +247,7 @@ def main(argv=None) -> int:
                     row["words learned"] = len(learned)
                     right = sum(any(p == said[w] for p in ps) for w, ps in learned.items())
                     row["learned as said"] = right
+                    row["learning CPU s (the run)"] = model.info.get("learning_cpu_seconds", 0.0)
                     results.setdefault((case, name), []).append(row)
                     print(f"  {case} / {name}: " + ", ".join(f"{k} {v:.3g}" for k, v in row.items()), flush=True)
                     if learned:

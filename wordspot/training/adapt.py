@@ -32,6 +32,11 @@ Two steps, both over the same forward-backward statistics that training collects
    (docs/experiments/2026-12-02-adaptation-strength.md). The choice is then reused to
    adapt on every recording.
 
+Optionally (``AdaptationConfig.pronunciations``, off by default), pronunciations learned from
+the recordings (a word's vowels moved to neighbouring vowels where its takes fit that clearly
+better with the starting model; :mod:`wordspot.training.pronunciations`) join the lexicon
+first, so every pass and the saved model use them.
+
 When the starting model has a state scorer (a network giving the posterior of every
 mixture id), the user's recordings are then aligned with the adapted mixtures and the
 network is tuned to those frames, with a penalty towards its own starting outputs
@@ -647,8 +652,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     speaker_of = {u.path: u.speaker for u in utterances}
     clean = [it for it in items if not it.background]
+    c0 = time.process_time()
     learned = learn(clean, [speaker_of[it.path] for it in clean], lexicon, start.units, start.mixtures,
                     config.pronunciations, store=cache.gains)
+    cache.learning_cpu += time.process_time() - c0
     lexicon = with_learned(lexicon, learned)
     items = regraphed(items, lexicon, start.units, config.pronunciations.enabled)
     chosen = None
@@ -721,8 +728,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "background_items": int(summary.backgrounds),
         "background_kinds": [[k, p] for k, p in config.background_kinds],
         "borrowed_pronunciations": borrowed,
-        **({"learned_pronunciations": {w: [" ".join(p) for p in prons] for w, prons in learned.items()}}
-           if config.pronunciations.enabled else {}),
+        **({"learned_pronunciations": {w: [" ".join(p) for p in prons] for w, prons in learned.items()},
+            "learning_cpu_seconds": round(cache.learning_cpu, 3)} if config.pronunciations.enabled else {}),
         "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
         "seconds": round(summary.seconds, 2),
         "strength": strength_info(summary.adaptation, start.features.hop_ms / 1000, config),
@@ -755,6 +762,7 @@ class ItemCache:
         self.copies: dict = {}
         self.noisy: dict = {}
         self.gains: dict = {}  # (path, words) -> gains of candidate pronunciations (the starting model's)
+        self.learning_cpu = 0.0  # CPU seconds spent learning pronunciations in all the run's adaptations
 
     def recordings(self, utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig,
                    quiet: bool) -> tuple[list, list]:
