@@ -5,7 +5,7 @@ import pytest
 
 from wordspot.acoustic.units import PAUSE_UNIT
 from wordspot.errors import TrainingError
-from wordspot.language.lexicon import Lexicon, parse_lexicon
+from wordspot.language.lexicon import parse_lexicon
 from wordspot.model import load_model, save_model
 from wordspot.training.items import TrainingItem
 from wordspot.training.pronunciations import (
@@ -181,3 +181,12 @@ def test_adapting_learns_how_the_takes_say_a_word(starter, tmp_path):
     plain, summary = adapt(utts, lexicon, starter, config=AdaptationConfig(strength=0, scorer=None))
     assert plain.lexicon == lexicon and "learned_pronunciations" not in plain.info
     assert not any("learned" in line for line in summary.lines())
+
+
+def test_model_files_written_before_load_as_they_were(starter, tmp_path):
+    # the shipped starter was written before pronunciations were learned (format version 2):
+    # its lexicon has one line a pronunciation as before, no learned entries, and it is
+    # written back with the same lexicon text and no new info keys
+    assert "learned_pronunciations" not in starter.info and "learning_cpu_seconds" not in starter.info
+    back = load_model(save_model(starter, tmp_path / "again.model"))
+    assert back.lexicon.to_text() == starter.lexicon.to_text() and back.info == starter.info
