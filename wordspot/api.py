@@ -63,6 +63,8 @@ def train(manifest, lexicon, *, out=None, start=None, config=None, features=None
         How to train from scratch (``TrainingConfig``) or adapt (``AdaptationConfig``).
         Adapting also tunes the starting model's state scorer to the recordings when it
         has one; ``AdaptationConfig(scorer=None)`` keeps it as it is.
+        ``AdaptationConfig(pronunciations=LearningConfig(enabled=True))`` adds pronunciations
+        learned from the recordings (:mod:`wordspot.training.pronunciations`; off by default).
     features : wordspot.audio.features.FeatureSettings, optional
         From scratch only: the feature settings (an adapted model keeps its start's).
     calibration : bool or CalibrationConfig

@@ -156,6 +156,25 @@ def test_train_jumbled_clips_reach_the_calibration_and_bad_counts_are_named(setu
     assert status == 2 and _one_line_error(err) and "number of jumbled clips" in err
 
 
+def test_train_learn_pronunciations_reaches_the_adaptation_and_needs_adapting(setup, capsys, monkeypatch):
+    import wordspot.cli.train_cmd as train_cmd
+
+    seen = []
+
+    def fake(start, lexicon, *, config, **_):
+        seen.append(config)
+        raise TrainingError("stopped here by the test")
+
+    monkeypatch.setattr(train_cmd, "adapting", fake)
+    status, _, err = _train(setup, capsys, ["oven"], "--learn-pronunciations")
+    assert status == 2 and "stopped here by the test" in err
+    assert seen[-1].pronunciations.enabled
+    _train(setup, capsys, ["oven"])
+    assert not seen[-1].pronunciations.enabled
+    status, _, err = _train(setup, capsys, ["oven"], "--from-scratch", "--learn-pronunciations")
+    assert status == 2 and _one_line_error(err) and "--learn-pronunciations applies when adapting" in err
+
+
 def test_debug_shows_the_traceback(setup):
     folder, _, good, _ = setup
     with pytest.raises(ModelFileError):

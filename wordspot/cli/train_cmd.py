@@ -12,6 +12,7 @@ from wordspot.evaluation.calibrate import CalibrationConfig, calibration_note, t
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
 from wordspot.training.adapt import AdaptationConfig, adapting
+from wordspot.training.pronunciations import LearningConfig
 from wordspot.training.trainer import TrainingConfig, train
 from wordspot.training.workers import end_with_starter
 
@@ -124,6 +125,10 @@ def add_parser(sub, **options):
                        help="when the starting model has a sound scorer (a network that rates every "
                        "sound from a short window of audio), keep it as it is; by default it is tuned to "
                        "your recordings after the phones are adapted")
+    start.add_argument("--learn-pronunciations", action="store_true",
+                       help="add to the lexicon pronunciations learned from your recordings: a word's "
+                       "pronunciation with one or two vowels moved to a neighbouring vowel, when your takes "
+                       "of it clearly fit that better (for accents); the summary names them")
     full = p.add_argument_group("training from scratch")
     full.add_argument("--from-scratch", action="store_true",
                       help="learn every phone from these recordings alone, starting from nothing")
@@ -197,6 +202,9 @@ def _run(args) -> int:
     if args.from_scratch:
         if args.start is not None:
             raise TrainingError("--start and --from-scratch exclude each other: choose one")
+        if args.learn_pronunciations:
+            raise TrainingError("--learn-pronunciations applies when adapting a model only; "
+                                "leave out --from-scratch, or this option")
         fit, what = _scratch(args, lexicon, say)
     else:
         given = [f"--{n.replace('_', '-')}" for n in _SCRATCH_ONLY if getattr(args, n) is not None]
@@ -267,6 +275,7 @@ def _adapted(args, lexicon, say):
     config = AdaptationConfig(prior_weight=args.prior_weight, passes=args.adapt_passes,
                               mean_transform=not args.no_mean_transform,
                               update_variances=args.adapt_variances, jobs=args.jobs, strength=args.strength,
+                              pronunciations=LearningConfig(enabled=args.learn_pronunciations),
                               **({"scorer": None} if args.keep_starter_scorer else {}), **_share(args))
 
     return adapting(start, lexicon, config=config, manifest=args.manifest, quiet=args.quiet, report=say), \

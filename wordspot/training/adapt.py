@@ -32,6 +32,11 @@ Two steps, both over the same forward-backward statistics that training collects
    (docs/experiments/2026-12-02-adaptation-strength.md). The choice is then reused to
    adapt on every recording.
 
+Optionally (``AdaptationConfig.pronunciations``, off by default), pronunciations learned from
+the recordings (a word's vowels moved to neighbouring vowels where its takes fit that clearly
+better with the starting model; :mod:`wordspot.training.pronunciations`) join the lexicon
+first, so every pass and the saved model use them.
+
 When the starting model has a state scorer (a network giving the posterior of every
 mixture id), the user's recordings are then aligned with the adapted mixtures and the
 network is tuned to those frames, with a penalty towards its own starting outputs
@@ -65,6 +70,7 @@ from wordspot.training.data import chain_slots, prepare_items
 from wordspot.training.noise import noisy_items, recording_key
 from wordspot.training.frame_labels import align_chunk
 from wordspot.training.cluster import using
+from wordspot.training.pronunciations import LearningConfig, learn, learned_note, regraphed, with_learned
 from wordspot.training.items import CHUNK_SIZE
 from wordspot.training.scorer_adapt import ScorerAdaptConfig, adapt_scorer
 from wordspot.training.trainer import TrainingSummary, pass_loglik, pass_statistics
@@ -187,6 +193,10 @@ class AdaptationConfig:
         the demo set against 0.86). Off by default: on the dev voices over three seeds
         the threshold then dropped more words, in noise many more (20 dB deletions 37-50
         against 17-45; docs/experiments/2026-12-03-adaptation-goals.md).
+    pronunciations : LearningConfig
+        Whether and how to add pronunciations learned from the recordings to the lexicon
+        (:mod:`wordspot.training.pronunciations`): candidates scored with the starting
+        model, before the recordings are adapted on with the lexicon that includes them.
     calibrate_choosing_model : bool
         When the strength is chosen on whole speakers held out within the calibration's
         first training, that training returns the model adapted on the rest with the
@@ -221,6 +231,7 @@ class AdaptationConfig:
     held_out_speaker_share: float = 0.25
     unheard_calibration: bool = False
     calibrate_choosing_model: bool = False
+    pronunciations: LearningConfig = LearningConfig()
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -259,6 +270,8 @@ class AdaptationConfig:
             raise TrainingError(f"speakers_to_hold_out must be a whole number >= 2, got {v!r}")
         if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
             raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
+        if not isinstance(self.pronunciations, LearningConfig):
+            raise TrainingError(f"pronunciations must be a LearningConfig, got {self.pronunciations!r}")
 
 
 # ------------------------------------------------------------------ MAP (pure functions)
@@ -643,6 +656,14 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     items, skipped = _prepared(utterances, lexicon, start, config, quiet, cache)
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
+    speaker_of = {u.path: u.speaker for u in utterances}
+    clean = [it for it in items if not it.background]
+    c0 = time.process_time()
+    learned = learn(clean, [speaker_of[it.path] for it in clean], lexicon, start.units, start.mixtures,
+                    config.pronunciations, store=cache.gains)
+    cache.learning_cpu += time.process_time() - c0
+    lexicon = with_learned(lexicon, learned)
+    items = regraphed(items, lexicon, start.units, config.pronunciations.enabled)
     chosen = None
     usable = {it.path for it in items if not it.background}  # made once, not once per recording
     used = [u for u in utterances if u.path in usable]
@@ -656,12 +677,14 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         held_lex, _ = vocabulary_for({w for u in held_utts for w in u.words}, lexicon, start.lexicon)
         held_utts = [u for u in held_utts if set(u.words) <= set(held_lex.words)]
         held_items, _ = cache.recordings(held_utts, held_lex, start, config, True)
+        held_items = regraphed(held_items, held_lex, start.units, config.pronunciations.enabled)
     # the held-out recordings' copies are made with these in one go, for the training on everything
     # (when none follows, only drawn with them: the same copies of these, none of theirs)
     copies = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache,
                      count=None if held_out_copies else sum(not it.background for it in items))
     held_paths = {it.path for it in held_items} - {u.path for u in used}
-    copies = [it for it in copies if it.path not in held_paths]
+    copies = regraphed([it for it in copies if it.path not in held_paths], lexicon, start.units,
+                       config.pronunciations.enabled)
     if by_speaker and not whole:
         held_items = []  # chosen on whole speakers held out below, not on takes of the same voices
     if held_items and choose:
@@ -711,12 +734,15 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         "background_items": int(summary.backgrounds),
         "background_kinds": [[k, p] for k, p in config.background_kinds],
         "borrowed_pronunciations": borrowed,
+        **({"learned_pronunciations": {w: [" ".join(p) for p in prons] for w, prons in learned.items()},
+            "learning_cpu_seconds": round(cache.learning_cpu, 3)} if config.pronunciations.enabled else {}),
         "loglik_per_pass": [round(v, 6) for _, v in summary.passes],
         "seconds": round(summary.seconds, 2),
         "strength": strength_info(summary.adaptation, start.features.hop_ms / 1000, config),
     }
     info["audio_band"] = band
     summary.adapt_note = strength_note(info["strength"])
+    summary.pronunciation_note = learned_note(learned)
     scorer = start.scorer
     if scorer is not None and config.scorer is not None:
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
@@ -741,6 +767,8 @@ class ItemCache:
         self.skipped: dict = {}
         self.copies: dict = {}
         self.noisy: dict = {}
+        self.gains: dict = {}  # (path, words) -> gains of candidate pronunciations (the starting model's)
+        self.learning_cpu = 0.0  # CPU seconds spent learning pronunciations in all the run's adaptations
 
     def recordings(self, utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig,
                    quiet: bool) -> tuple[list, list]:

@@ -243,6 +243,8 @@ class TrainingSummary:
         When adapting: the strength chosen and how (see ``training.adapt.adapt_items``).
     adapt_note : str
         When adapting: what was done and why, in plain words ("" otherwise).
+    pronunciation_note : str
+        The pronunciations learned from the recordings, in plain words ("" when none).
     """
 
     used: int = 0
@@ -257,6 +259,7 @@ class TrainingSummary:
     scorer_note: str = ""
     adaptation: dict = field(default_factory=dict)
     adapt_note: str = ""
+    pronunciation_note: str = ""
 
     def count(self, items) -> None:
         """Set ``used`` (recordings, not augmented copies) and ``backgrounds`` from training items."""
@@ -277,6 +280,8 @@ class TrainingSummary:
             out.append("seconds of sound each phone was learnt from: " + ", ".join(cells))
         out.append("phones heard in no recording (left as they started): "
                    + (", ".join(self.unseen_units) if self.unseen_units else "none"))
+        if self.pronunciation_note:
+            out.append(self.pronunciation_note)
         if self.scorer_note:
             out.append(self.scorer_note)
         out.append(f"training time: {self.seconds:.1f} s")
