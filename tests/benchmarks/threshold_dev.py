@@ -50,11 +50,13 @@ CLEAN = ("held-out", "held-out, own words removed", "jumbled")
 NOISY = ("noisy", "noisy, own words removed")
 PHRASE = ("phrase", "phrase, own words removed")
 CLIPS = ("noise only",)
+IMPACTS = ("impacts",)
 VARIANTS = {
     "held-out only (before)": CLEAN,
     "+ noisy copies": CLEAN + NOISY,
     "+ phrases": CLEAN + PHRASE,
     "+ noise clips": CLEAN + CLIPS,
+    "+ impact clips": CLEAN + IMPACTS,
     "+ noisy + phrases": CLEAN + NOISY + PHRASE,
     "+ noisy + phrases + clips": CLEAN + NOISY + PHRASE + CLIPS,
     "+ noisy + phrases, whole lexicon only": CLEAN + ("noisy", "phrase"),
@@ -360,13 +362,15 @@ def run_variants(args) -> int:
             share = {} if args.background_share is None else {"background_share": args.background_share}
             if args.background_kinds:
                 share["background_kinds"] = mix_arg(args.background_kinds)
+            if args.scorer_impacts:
+                share["scorer_impacts"] = args.scorer_impacts
             fit = adapting(start, lexicon, config=AdaptationConfig(**share), manifest=manifest)
             model, _ = fit(rest, held_out=held)
             t_adapt = time.process_time() - t0
             backgrounds.BACKGROUND_KINDS = tuple(args.clip_kinds) if args.clip_kinds else default_kinds
             ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
                                       seed=seed, noisy=args.noisy, noise_snr_db=tuple(args.snr), phrases=args.phrases,
-                                      noise_clips=args.noise_clips)
+                                      noise_clips=args.noise_clips, impact_clips=args.impact_clips)
             backgrounds.BACKGROUND_KINDS = default_kinds  # the dev sets' noise-only clips: always the package's kinds
             t1 = time.process_time()
             if sets is None:
@@ -393,7 +397,8 @@ def run_variants(args) -> int:
                   f"{t_adapt:.1f} s adapting, {t1 - t0 - t_adapt:.0f} s examples, {t2 - t1:.0f} s dev sets, "
                   f"{time.process_time() - t2:.0f} s variants", file=sys.stderr, flush=True)
     print(f"background items (share {args.background_share or 'default'}): "
-          f"{', '.join(args.background_kinds or ['default'])}; calibration noise clips: "
+          f"{', '.join(args.background_kinds or ['default'])}; scorer's impact items {args.scorer_impacts:g}; "
+          f"calibration impact clips {args.impact_clips}; calibration noise clips: "
           f"{', '.join(args.clip_kinds or default_kinds)}, babble")
     print(f"filler {fp:g}; calibration examples: {args.noisy} noisy copies ({args.snr[0]:g}-{args.snr[1]:g} dB), "
           f"{args.phrases} phrases, {args.noise_clips} noise clips; seeds {args.seeds}: mean (min-max)\n")
@@ -438,6 +443,11 @@ def main(argv=None) -> int:
                          "(e.g. white pink hum dither fan impacts:5; default: the configuration's)")
     ap.add_argument("--background-share", type=float, default=None,
                     help="with --variants: the adaptation's background share (default: its default)")
+    ap.add_argument("--impact-clips", type=int, default=0,
+                    help="with --variants: clips of impacts among the calibration's examples (variant '+ impact clips')")
+    ap.add_argument("--scorer-impacts", type=float, default=0.0,
+                    help="with --variants: AdaptationConfig.scorer_impacts, items of impacts among the scorer's "
+                         "tuning frames (a share of the recordings)")
     ap.add_argument("--clip-kinds", nargs="+", default=None,
                     help="with --variants: the kinds of the calibration's noise clips, babble added "
                          "(default: the package's background kinds)")

@@ -80,6 +80,7 @@ __all__ = [
     "adapt_items",
     "align_for_scorer",
     "tune_scorer",
+    "scorer_impact_items",
     "held_out_fit",
     "split_by_speaker",
     "strength_info",
@@ -136,6 +137,13 @@ class AdaptationConfig:
     scorer : ScorerAdaptConfig or None
         How to tune the starting model's state scorer to the recordings (when it has
         one); None keeps the starting model's scorer unchanged.
+    scorer_impacts : float in [0, 1]
+        Items of impacts alone (knocks, clinks, taps, scrapes; background kind "impacts"),
+        this share of the recordings in number (at least ``MIN_BACKGROUNDS``), among the
+        frames the scorer is tuned on, labelled with the pause's mixtures by alignment, so
+        that the scorer's pause posterior rises on impacts; the mixtures never see them.
+        Drawn from a stream of their own. 0: none (the scorer is tuned on the recordings
+        alone).
     follow_passes : int >= 0
         Most passes, after MAP, in which the recordings take over: each is a MAP update
         whose prior is the previous pass's model with weight ``follow_weight``, so the
@@ -207,6 +215,7 @@ class AdaptationConfig:
     background_kinds: tuple[tuple[str, int], ...] = STEADY_MIX
     seed: int = 0
     scorer: ScorerAdaptConfig | None = ScorerAdaptConfig()
+    scorer_impacts: float = 0.0
     follow_passes: int = 6
     follow_weight: float = 10.0
     follow_variances: bool = True
@@ -258,6 +267,10 @@ class AdaptationConfig:
             raise TrainingError(f"speakers_to_hold_out must be a whole number >= 2, got {v!r}")
         if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
             raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
+        v = self.scorer_impacts
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0.0 <= v <= 1.0:
+            raise TrainingError(f"scorer_impacts must be a number from 0 to 1 (0.1: a tenth as many items of "
+                                f"impacts as recordings for the scorer's tuning; 0 none), got {v!r}")
 
 
 # ------------------------------------------------------------------ MAP (pure functions)
@@ -518,15 +531,14 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     return best, summary, transform
 
 
-def align_for_scorer(items, mix: Mixtures) -> tuple[list, list]:
+def align_for_scorer(items, mix: Mixtures, extra=()) -> tuple[list, list]:
     """Frames and per-frame mixture ids of the recordings among ``items`` (background-only
-    items left out), by forced alignment of each one's chain with ``mix``
+    items left out), then of every item of ``extra`` (background items too), by forced
+    alignment of each one's chain with ``mix``
     (:func:`wordspot.training.frame_labels.align_one`); items no path fits are left out."""
     scoring = scoring_matrix(mix)
     frames, labels = [], []
-    for it in items:
-        if it.background:
-            continue
+    for it in [it for it in items if not it.background] + list(extra):
         score, y = align_one(it.frames, it.graph, scoring, mix.n_components)
         if np.isfinite(score):
             frames.append(np.asarray(it.frames, dtype=np.float32))
@@ -534,8 +546,9 @@ def align_for_scorer(items, mix: Mixtures) -> tuple[list, list]:
     return frames, labels
 
 
-def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptConfig, report=None):
-    """The starting model's scorer tuned to ``items`` aligned with ``mix``.
+def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptConfig, report=None, extra=()):
+    """The starting model's scorer tuned to ``items`` aligned with ``mix`` (and the
+    background items ``extra``, see :func:`align_for_scorer`).
 
     Returns
     -------
@@ -551,7 +564,7 @@ def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptC
         return start.scorer, {"tuned": False, "reason": f"its inputs ({start.scorer.inputs}) are not tuned yet"}, \
             f"kept the starting model's sound scorer as it is (tuning a scorer on {start.scorer.inputs} " \
             "inputs is not supported yet)"
-    frames, labels = align_for_scorer(items, mix)
+    frames, labels = align_for_scorer(items, mix, extra)
     if not labels:
         return start.scorer, {"tuned": False, "reason": "no recording could be aligned"}, \
             "kept the starting model's sound scorer as it is (no recording could be aligned)"
@@ -565,7 +578,7 @@ def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptC
             "seconds_of_speech": round(rep.seconds_of_speech, 1), "train_frames": rep.train_frames,
             "held_out_frames": rep.held_out_frames, "held_out_loss": held, "epoch_kept": rep.best_epoch,
             "held_out_accuracy": [None if not np.isfinite(a) else round(a, 4) for a in rep.held_out_accuracy],
-            "seconds": round(seconds, 2)}
+            "seconds": round(seconds, 2), **({"impact_items": len(extra)} if len(extra) else {})}
     if report is not None:
         report(f"sound scorer: held-out loss per epoch {', '.join(f'{v:.3f}' for v in held)}; "
                f"epoch {rep.best_epoch} kept ({seconds:.1f} s)")
@@ -713,7 +726,9 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     summary.adapt_note = strength_note(info["strength"])
     scorer = start.scorer
     if scorer is not None and config.scorer is not None:
+        extra = scorer_impact_items(items, utterances, start, config, quiet)
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
+                                                                             extra=extra,
                                                                              report=report)
     elif scorer is not None:
         info["scorer_adaptation"] = {"tuned": False, "reason": "kept by request"}
@@ -787,6 +802,23 @@ class ItemCache:
             for j, it in enumerate([todo[j] for j in only]):
                 store[(it.path, it.words)] = got[j::len(only)]
         return [store[(it.path, it.words)][c] for c in range(noise.copies) for it in items[:count]]
+
+
+#: Separates the scorer's impact items from the mixtures' background items (same training seed).
+_SCORER_IMPACT_SEED = 0x5C0121
+
+
+def scorer_impact_items(items, utterances, start: AcousticModel, config: AdaptationConfig, quiet: bool = True):
+    """The items of impacts alone for the scorer's tuning (``config.scorer_impacts``; none when 0)."""
+    recordings = [it for it in items if not it.background]
+    count = background_count(len(recordings), config.scorer_impacts)
+    if not count:
+        return []
+    speaker = {u.path: u.speaker for u in utterances}
+    graph = compose(chain_slots((), start.lexicon, start.units), start.units)
+    return background_items(count, [it.path for it in recordings], [speaker.get(it.path, "") for it in recordings],
+                            graph, start.features, seed=config.seed + _SCORER_IMPACT_SEED, jobs=config.jobs,
+                            quiet=quiet, kinds=(("impacts", 1),))
 
 
 def _prepared(utterances, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
