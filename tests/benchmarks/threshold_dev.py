@@ -385,10 +385,14 @@ def run_variants(args) -> int:
                 from types import SimpleNamespace
 
                 args.save.mkdir(parents=True, exist_ok=True)
-                light = {name: [(ref, [SimpleNamespace(word=g.word, measures=np.asarray(g.measures)) for g in segs])
+                light = {name: [(ref, [SimpleNamespace(word=g.word, measures=np.asarray(g.measures),
+                                                         first_frame=g.first_frame, last_frame=g.last_frame) for g in segs])
                                 for ref, segs in items] for name, items in heard.items()}
                 with open(args.save / f"seed{seed}.pickle", "wb") as fh:
                     pickle.dump((light, ex), fh)
+                from wordspot.model import save_model
+
+                save_model(model, args.save / f"seed{seed}.model")  # for analyses of the same recognitions
             tables.new_seed()
             for v, kinds in variants.items():
                 sub = ex.subset(np.isin(ex.source, kinds))
@@ -458,7 +462,7 @@ def main(argv=None) -> int:
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
                     help="with --variants: thresholds shown in the tables")
     ap.add_argument("--save", type=Path, default=None,
-                    help="with --variants: keep each seed's recognitions and examples in this folder")
+                    help="with --variants: keep each seed's recognitions, examples and model in this folder")
     ap.add_argument("--load", type=Path, default=None,
                     help="with --variants: score the recognitions and examples kept by --save instead")
     args = ap.parse_args(argv)
