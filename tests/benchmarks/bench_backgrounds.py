@@ -15,7 +15,7 @@ docs/experiments/2026-12-03-impacts-in-training.md: at most about 1.1.
 (``train_calibrated`` around ``adapting``: an adaptation on the part not held out, the
 calibration's examples, an adaptation on everything) instead of one adaptation.
 
-``--against NAME`` times another candidate against the default instead (:data:`CANDIDATES`):
+``--against NAME`` times another candidate against the adaptation of before instead (:data:`CANDIDATES`):
 ``scorer-impacts`` (items of impacts among the scorer's tuning frames, share 0.1),
 ``impact-clips`` (100 clips of impacts among the calibration's examples; with ``--whole``
 only), ``impacts-half-0.2`` (impacts half of the background items at share 0.2);
@@ -45,12 +45,13 @@ from tune_filler import write_dev_train_manifest  # noqa: E402
 
 __all__ = ["main", "CANDIDATES"]
 
-#: Candidates timed against the default: AdaptationConfig fields, clips of impacts in the calibration.
+#: Candidates timed against the adaptation of before (steady items at 0.1, no items of impacts for
+#: the scorer): AdaptationConfig fields, clips of impacts in the calibration.
 CANDIDATES = {
-    "impacts-half-0.25": ({"background_share": 0.25}, 0),
-    "impacts-half-0.2": ({"background_share": 0.2}, 0),
+    "impacts-half-0.25": ({"background_share": 0.25, "scorer_impacts": 0.0}, 0),
+    "impacts-half-0.2": ({"background_share": 0.2, "scorer_impacts": 0.0}, 0),
     "scorer-impacts": ({"scorer_impacts": 0.1}, 0),
-    "impact-clips": ({}, 100),
+    "impact-clips": ({"scorer_impacts": 0.0}, 100),
 }
 
 
@@ -73,7 +74,8 @@ def main(argv=None) -> int:
     lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
     start = load_model(starter_path("starter"))
     other, impact_clips = CANDIDATES[args.against]
-    configs = {"steady, share 0.1": AdaptationConfig(background_kinds=STEADY_MIX, background_share=0.1),
+    configs = {"steady, share 0.1": AdaptationConfig(background_kinds=STEADY_MIX, background_share=0.1,
+                                                     scorer_impacts=0.0),  # the adaptation before any of them
                args.against: AdaptationConfig(**{"background_kinds": IMPACTS_HALF_MIX, **other}
                                               if "background_share" in other else other)}
     calibration = {"steady, share 0.1": CalibrationConfig(), args.against: CalibrationConfig(impact_clips=impact_clips)}

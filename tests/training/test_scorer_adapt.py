@@ -377,7 +377,7 @@ def test_impact_items_for_the_scorer_are_seeded_pause_items_of_impacts(tone_star
     assert all(np.array_equal(a.frames, b.frames) for a, b in zip(got, again))
     moved = scorer_impact_items(items, utts, start, replace(config, seed=1))
     assert not np.array_equal(got[0].frames, moved[0].frames)
-    assert scorer_impact_items(items, utts, start, QUICK) == []
+    assert scorer_impact_items(items, utts, start, replace(QUICK, scorer_impacts=0.0)) == []
     frames, labels = align_for_scorer(items, start.mixtures)
     with_extra, extra_labels = align_for_scorer(items, start.mixtures, got)
     assert len(with_extra) == len(frames) + len(got)
@@ -393,11 +393,13 @@ def test_impact_items_tune_the_scorer_towards_pause_on_impacts_and_leave_the_mix
     from wordspot.audio.features import compute_features
 
     start, lex, other, _, _ = tone_start
-    plain, _ = adapt(read_manifest(other), lex, start, config=QUICK)
+    assert AdaptationConfig().scorer_impacts == 0.1  # on by default
+    plain, _ = adapt(read_manifest(other), lex, start, config=replace(QUICK, scorer_impacts=0.0))
     with_impacts, _ = adapt(read_manifest(other), lex, start, config=replace(QUICK, scorer_impacts=0.5))
     for name in ("weights", "means", "variances"):
         np.testing.assert_array_equal(getattr(plain.mixtures, name), getattr(with_impacts.mixtures, name))
     assert with_impacts.info["scorer_adaptation"]["impact_items"] == 20
+    assert with_impacts.info["scorer_adaptation"]["recordings"] == plain.info["scorer_adaptation"]["recordings"] == 16
     assert "impact_items" not in plain.info["scorer_adaptation"]
     rng = np.random.default_rng(77)
     rate = start.features.sample_rate
