@@ -734,7 +734,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     summary.adapt_note = strength_note(info["strength"])
     scorer = start.scorer
     if scorer is not None and config.scorer is not None:
-        extra = scorer_impact_items(items, utterances, start, config, quiet)
+        # (a scorer reading other inputs is kept as it is: no items to make for it)
+        extra = scorer_impact_items(items, utterances, start, config, quiet) if scorer.inputs == "cepstra" else []
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
                                                                              extra=extra,
                                                                              report=report)
