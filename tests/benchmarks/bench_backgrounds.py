@@ -14,6 +14,12 @@ docs/experiments/2026-12-03-impacts-in-training.md: at most about 1.1.
 ``--whole``: the calibrated training as ``wordspot train`` runs it by default
 (``train_calibrated`` around ``adapting``: an adaptation on the part not held out, the
 calibration's examples, an adaptation on everything) instead of one adaptation.
+
+``--against NAME`` times another candidate against the adaptation of before instead (:data:`CANDIDATES`):
+``scorer-impacts`` (items of impacts among the scorer's tuning frames, share 0.1),
+``impact-clips`` (100 clips of impacts among the calibration's examples; with ``--whole``
+only), ``impacts-half-0.2`` (impacts half of the background items at share 0.2);
+docs/experiments/2026-12-03-impacts-no-command.md.
 """
 
 from __future__ import annotations
@@ -37,13 +43,24 @@ sys.path.insert(0, str(HERE))
 
 from tune_filler import write_dev_train_manifest  # noqa: E402
 
-__all__ = ["main"]
+__all__ = ["main", "CANDIDATES"]
+
+#: Candidates timed against the adaptation of before (steady items at 0.1, no items of impacts for
+#: the scorer): AdaptationConfig fields, clips of impacts in the calibration.
+CANDIDATES = {
+    "impacts-half-0.25": ({"background_share": 0.25, "scorer_impacts": 0.0}, 0),
+    "impacts-half-0.2": ({"background_share": 0.2, "scorer_impacts": 0.0}, 0),
+    "scorer-impacts": ({"scorer_impacts": 0.1}, 0),
+    "impact-clips": ({"scorer_impacts": 0.0}, 100),
+}
 
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--whole", action="store_true", help="time the calibrated training, as wordspot train")
+    ap.add_argument("--against", default="impacts-half-0.25", choices=sorted(CANDIDATES),
+                    help="the candidate timed against the default")
     args = ap.parse_args(argv)
 
     from wordspot.corpus import read_manifest
@@ -56,9 +73,12 @@ def main(argv=None) -> int:
 
     lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
     start = load_model(starter_path("starter"))
-    configs = {"steady, share 0.1": AdaptationConfig(background_kinds=STEADY_MIX, background_share=0.1),
-               "impacts half, share 0.25": AdaptationConfig(background_kinds=IMPACTS_HALF_MIX,
-                                                            background_share=0.25)}
+    other, impact_clips = CANDIDATES[args.against]
+    configs = {"steady, share 0.1": AdaptationConfig(background_kinds=STEADY_MIX, background_share=0.1,
+                                                     scorer_impacts=0.0),  # the adaptation before any of them
+               args.against: AdaptationConfig(**{"background_kinds": IMPACTS_HALF_MIX, **other}
+                                              if "background_share" in other else other)}
+    calibration = {"steady, share 0.1": CalibrationConfig(), args.against: CalibrationConfig(impact_clips=impact_clips)}
     cpu = {k: [] for k in configs}
     with tempfile.TemporaryDirectory() as tmp:
         utterances = read_manifest(write_dev_train_manifest(Path(tmp) / "dev-train.csv"))
@@ -68,14 +88,14 @@ def main(argv=None) -> int:
                 t0 = time.process_time()
                 if args.whole:
                     fit = adapting(start, lexicon, config=config)
-                    _, summary = train_calibrated(fit, utterances, config=CalibrationConfig().decided(adapting=True))
+                    _, summary = train_calibrated(fit, utterances, config=calibration[name].decided(adapting=True))
                 else:
                     _, summary = adapt(utterances, lexicon, start, config=config)
                 cpu[name].append(time.process_time() - t0)
                 print(f"round {r} {name}: {cpu[name][-1]:.1f} cpu s, {summary.backgrounds} background items",
                       flush=True)
-    ratios = np.array(cpu["impacts half, share 0.25"]) / np.array(cpu["steady, share 0.1"])
-    print(f"impacts half / steady: median {np.median(ratios):.2f} (rounds {', '.join(f'{x:.2f}' for x in ratios)})")
+    ratios = np.array(cpu[args.against]) / np.array(cpu["steady, share 0.1"])
+    print(f"{args.against} / steady: median {np.median(ratios):.2f} (rounds {', '.join(f'{x:.2f}' for x in ratios)})")
     return 0
 
 

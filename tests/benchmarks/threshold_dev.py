@@ -50,11 +50,13 @@ CLEAN = ("held-out", "held-out, own words removed", "jumbled")
 NOISY = ("noisy", "noisy, own words removed")
 PHRASE = ("phrase", "phrase, own words removed")
 CLIPS = ("noise only",)
+IMPACTS = ("impacts",)
 VARIANTS = {
     "held-out only (before)": CLEAN,
     "+ noisy copies": CLEAN + NOISY,
     "+ phrases": CLEAN + PHRASE,
     "+ noise clips": CLEAN + CLIPS,
+    "+ impact clips": CLEAN + IMPACTS,
     "+ noisy + phrases": CLEAN + NOISY + PHRASE,
     "+ noisy + phrases + clips": CLEAN + NOISY + PHRASE + CLIPS,
     "+ noisy + phrases, whole lexicon only": CLEAN + ("noisy", "phrase"),
@@ -350,6 +352,9 @@ def run_variants(args) -> int:
                 with open(saved, "rb") as fh:
                     heard, ex = pickle.load(fh)
                 tables.new_seed()
+                if args.match_to:  # the other-talk share of another run's first variant at the default threshold
+                    tables.target = other_talk_share(args.match_to / f"seed{seed}.pickle", next(iter(variants.values())),
+                                                     config)
                 for v, kinds in variants.items():
                     sub = ex.subset(np.isin(ex.source, kinds))
                     tables.add(v, heard, fit_calibration(sub, config=config), sub)
@@ -360,13 +365,15 @@ def run_variants(args) -> int:
             share = {} if args.background_share is None else {"background_share": args.background_share}
             if args.background_kinds:
                 share["background_kinds"] = mix_arg(args.background_kinds)
+            if args.scorer_impacts is not None:
+                share["scorer_impacts"] = args.scorer_impacts
             fit = adapting(start, lexicon, config=AdaptationConfig(**share), manifest=manifest)
             model, _ = fit(rest, held_out=held)
             t_adapt = time.process_time() - t0
             backgrounds.BACKGROUND_KINDS = tuple(args.clip_kinds) if args.clip_kinds else default_kinds
             ex = calibration_examples(model, held, settings=settings, speeds=config.speeds, jumbled=config.jumbled,
                                       seed=seed, noisy=args.noisy, noise_snr_db=tuple(args.snr), phrases=args.phrases,
-                                      noise_clips=args.noise_clips)
+                                      noise_clips=args.noise_clips, impact_clips=args.impact_clips)
             backgrounds.BACKGROUND_KINDS = default_kinds  # the dev sets' noise-only clips: always the package's kinds
             t1 = time.process_time()
             if sets is None:
@@ -381,10 +388,14 @@ def run_variants(args) -> int:
                 from types import SimpleNamespace
 
                 args.save.mkdir(parents=True, exist_ok=True)
-                light = {name: [(ref, [SimpleNamespace(word=g.word, measures=np.asarray(g.measures)) for g in segs])
+                light = {name: [(ref, [SimpleNamespace(word=g.word, measures=np.asarray(g.measures),
+                                                         first_frame=g.first_frame, last_frame=g.last_frame) for g in segs])
                                 for ref, segs in items] for name, items in heard.items()}
                 with open(args.save / f"seed{seed}.pickle", "wb") as fh:
                     pickle.dump((light, ex), fh)
+                from wordspot.model import save_model
+
+                save_model(model, args.save / f"seed{seed}.model")  # for analyses of the same recognitions
             tables.new_seed()
             for v, kinds in variants.items():
                 sub = ex.subset(np.isin(ex.source, kinds))
@@ -393,12 +404,31 @@ def run_variants(args) -> int:
                   f"{t_adapt:.1f} s adapting, {t1 - t0 - t_adapt:.0f} s examples, {t2 - t1:.0f} s dev sets, "
                   f"{time.process_time() - t2:.0f} s variants", file=sys.stderr, flush=True)
     print(f"background items (share {args.background_share or 'default'}): "
-          f"{', '.join(args.background_kinds or ['default'])}; calibration noise clips: "
+          f"{', '.join(args.background_kinds or ['default'])}; scorer's impact items "
+          f"{'default' if args.scorer_impacts is None else args.scorer_impacts}; "
+          f"calibration impact clips {args.impact_clips}; calibration noise clips: "
           f"{', '.join(args.clip_kinds or default_kinds)}, babble")
     print(f"filler {fp:g}; calibration examples: {args.noisy} noisy copies ({args.snr[0]:g}-{args.snr[1]:g} dB), "
           f"{args.phrases} phrases, {args.noise_clips} noise clips; seeds {args.seeds}: mean (min-max)\n")
     tables.print(args.show)
     return 0
+
+
+def other_talk_share(saved: Path, kinds, config) -> float:
+    """Percent of other-talk files with a command at the default threshold in the recognitions
+    kept at ``saved`` (``--save``), with a calibration fitted on the examples of ``kinds``."""
+    import pickle
+
+    from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
+    from wordspot.evaluation.calibrate import fit_calibration
+
+    with open(saved, "rb") as fh:
+        heard, ex = pickle.load(fh)
+    cal = fit_calibration(ex.subset(np.isin(ex.source, kinds)), config=config)
+    cols = [MEASURE_NAMES.index(n) for n in cal.names]
+    talk = [cal.predict(np.array([g.measures for g in segs])[:, cols]) if segs else np.zeros(0)
+            for _, segs in heard["other talk"]]
+    return 100 * float(np.mean([bool((c >= DEFAULT_MIN_CONFIDENCE).any()) for c in talk]))
 
 
 def mix_arg(words) -> tuple:
@@ -438,6 +468,11 @@ def main(argv=None) -> int:
                          "(e.g. white pink hum dither fan impacts:5; default: the configuration's)")
     ap.add_argument("--background-share", type=float, default=None,
                     help="with --variants: the adaptation's background share (default: its default)")
+    ap.add_argument("--impact-clips", type=int, default=0,
+                    help="with --variants: clips of impacts among the calibration's examples (variant '+ impact clips')")
+    ap.add_argument("--scorer-impacts", type=float, default=None,
+                    help="with --variants: AdaptationConfig.scorer_impacts, items of impacts among the scorer's "
+                         "tuning frames (a share of the recordings; default: the configuration's, 0.1; 0: none)")
     ap.add_argument("--clip-kinds", nargs="+", default=None,
                     help="with --variants: the kinds of the calibration's noise clips, babble added "
                          "(default: the package's background kinds)")
@@ -448,9 +483,12 @@ def main(argv=None) -> int:
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
                     help="with --variants: thresholds shown in the tables")
     ap.add_argument("--save", type=Path, default=None,
-                    help="with --variants: keep each seed's recognitions and examples in this folder")
+                    help="with --variants: keep each seed's recognitions, examples and model in this folder")
     ap.add_argument("--load", type=Path, default=None,
                     help="with --variants: score the recognitions and examples kept by --save instead")
+    ap.add_argument("--match-to", type=Path, default=None,
+                    help="with --load: the 'equal other talk' table matches the other talk with a command of this "
+                         "--save folder's first variant at the default threshold (another run), not this run's")
     args = ap.parse_args(argv)
     if args.variants:
         return run_variants(args)

@@ -52,7 +52,7 @@ from joined_pauses import KINDS, RATE, background  # noqa: E402
 
 
 #: The sets without commands: every word heard there is a false accept.
-NO_COMMAND = ("other talk", "noise only", "everyday words", "impacts")
+NO_COMMAND = ("other talk", "noise only", "everyday words", "impacts", "other impacts")
 
 
 def _rows(path: Path) -> list[dict]:
@@ -91,7 +91,8 @@ def dev_sets(model, n_joined: int, seed: int = 20261203, snrs=(10.0,), no_comman
     ``snrs``: the SNRs of the sets of dev commands in noise ("noisy 10 dB", ...), each
     with the same noise (babble for even, fan for odd recordings). ``no_command``: also the
     sets "everyday words" (the dev voices saying frequent words that are no command) and
-    "impacts" (knocks, clinks, taps, scrapes) of ``dev_no_command.py``."""
+    "impacts" (knocks, clinks, taps, scrapes) and "other impacts" (a second recipe, dev only)
+    of ``dev_no_command.py``."""
     from wordspot.audio.reading import load_audio
 
     rec = REPO / "recordings"
@@ -166,12 +167,13 @@ def dev_sets(model, n_joined: int, seed: int = 20261203, snrs=(10.0,), no_comman
         print(f"note: {starter_dev} is missing (python recordings/starter.py build); no 'other talk' set")
     sets["noise only"] = noise_only(sets.get("other talk") or sets["words"], rng)
     if no_command:
-        from dev_no_command import everyday_word_set, impact_set
+        from dev_no_command import everyday_word_set, impact_set, other_impact_set
 
         words_alone = everyday_word_set()
         if words_alone:
             sets["everyday words"] = words_alone
         sets["impacts"] = impact_set()
+        sets["other impacts"] = other_impact_set()
     return sets
 
 

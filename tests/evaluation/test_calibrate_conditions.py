@@ -11,8 +11,8 @@ from wordspot.audio.augment import measured_snr, speech_span
 from wordspot.corpus import Utterance
 from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES
 from wordspot.errors import TrainingError
-from wordspot.evaluation.calibrate import (SOURCES, CalibrationConfig, calibration_examples, fit_calibration,
-                                           joined_phrases, noise_only_clips, noisy_copies)
+from wordspot.evaluation.calibrate import (SOURCES, CalibrationConfig, calibration_examples, clips_of_impacts,
+                                           fit_calibration, joined_phrases, noise_only_clips, noisy_copies)
 
 REPO = Path(__file__).resolve().parents[2]
 RATE = 16000
@@ -112,6 +112,41 @@ def test_noise_only_clips_are_one_to_four_seconds_and_seeded():
     assert all(np.array_equal(a, b) for a, b in zip(clips, again))
 
 
+def test_impact_clips_are_one_to_four_seconds_impulsive_and_seeded():
+    clips = clips_of_impacts(10, seed=2, sample_rate=RATE)
+    assert len(clips) == 10 and all(RATE <= c.shape[0] <= 4 * RATE for c in clips)
+    power = [np.mean(c.astype(np.float64) ** 2) for c in clips]
+    # at -50 to -20 dBFS over a floor of -85 to -75 dBFS
+    assert all(10 ** (-50.5 / 10) <= p <= 10 ** (-19.5 / 10) for p in power)
+    # impulsive: the peak stands far above the mean power (crest factor; white noise has
+    # about 4, i.e. 12 dB, at these lengths; common practice, no source)
+    assert np.median([np.max(np.abs(c)) / np.sqrt(p) for c, p in zip(clips, power)]) > 6
+    again = clips_of_impacts(10, seed=2, sample_rate=RATE)
+    assert all(np.array_equal(a, b) for a, b in zip(clips, again))
+    assert not np.array_equal(clips[0], clips_of_impacts(1, seed=3, sample_rate=RATE)[0])
+    assert clips_of_impacts(0) == []
+
+
+def test_impact_clips_add_only_wrong_words_and_leave_every_other_example(model):
+    # Our own labelling rule, checked by counting: the words heard in clips of impacts
+    # come after every other kind, all wrong, marked as heard with no command and as
+    # "impacts"; the examples of every other kind (noise clips too) are those of before,
+    # and the same seed gives the same words.
+    utts = _utts()
+    plain = calibration_examples(model, utts, speeds=(1.0,), jumbled=2, seed=1, noise_clips=3)
+    full = calibration_examples(model, utts, speeds=(1.0,), jumbled=2, seed=1, noise_clips=3, impact_clips=6)
+    n = plain.right.size
+    np.testing.assert_array_equal(full.measures[:n], plain.measures)
+    np.testing.assert_array_equal(full.right[:n], plain.right)
+    np.testing.assert_array_equal(full.source[:n], plain.source)
+    assert full.right.size > n and (full.source[n:] == "impacts").all()  # the starter hears words in impacts
+    assert not full.right[n:].any() and full.own_words_removed[n:].all() and not full.jumbled[n:].any()
+    again = calibration_examples(model, utts, speeds=(1.0,), jumbled=2, seed=1, noise_clips=3, impact_clips=6)
+    np.testing.assert_array_equal(again.measures, full.measures)
+    alone = calibration_examples(model, utts, speeds=(1.0,), jumbled=2, seed=1, impact_clips=6)
+    np.testing.assert_array_equal(alone.measures[alone.source == "impacts"], full.measures[n:])
+
+
 def test_examples_gain_words_in_noise_and_in_phrases_only_when_asked(model):
     # Our own labelling rule, checked by counting: the new kinds add rows after the
     # ordinary ones and leave those as they were (so a calibration fitted with the options
@@ -157,7 +192,7 @@ def test_default_configuration_and_old_examples_keep_their_sources():
 
 
 @pytest.mark.parametrize("field, value", [("noisy", -1), ("phrases", 1.5), ("noise_clips", True),
-                                          ("noisy", "2")])
+                                          ("noisy", "2"), ("impact_clips", -3), ("impact_clips", 2.0)])
 def test_bad_counts_are_refused(field, value):
     with pytest.raises(TrainingError, match=f"calibration \\({field}\\) must be a whole number >= 0"):
         CalibrationConfig(**{field: value})
@@ -179,7 +214,8 @@ def test_training_asks_for_the_new_kinds_only_when_configured(monkeypatch):
     from wordspot.evaluation import calibrate
     from wordspot.evaluation.calibrate import CalibrationExamples, train_calibrated
 
-    assert (CalibrationConfig().noisy, CalibrationConfig().phrases, CalibrationConfig().noise_clips) == (0, 0, 0)
+    assert (CalibrationConfig().noisy, CalibrationConfig().phrases, CalibrationConfig().noise_clips,
+            CalibrationConfig().impact_clips) == (0, 0, 0, 0)
     utts = [Utterance(Path(f"{w}-{s}-{t}.wav"), (w,), f"baker-{s}", 2 + 12 * i + 3 * s + t)
             for i, w in enumerate(("oven", "stop", "start")) for s in range(4) for t in range(3)]
     model = tiny_model(np.random.default_rng(0), {w: [["AA", "B"]] for w in ("oven", "stop", "start")})
@@ -191,6 +227,8 @@ def test_training_asks_for_the_new_kinds_only_when_configured(monkeypatch):
         n = 40
         right = np.arange(n) % 2 == 0
         source = np.where(right, "noisy", "noise only") if kw["noisy"] else np.where(right, "held-out", "jumbled")
+        if kw["impact_clips"]:
+            source = np.where(right, source, np.where(np.arange(n) % 4 == 1, "impacts", source))
         x = np.c_[rng.normal(right * 2.0, 1.0, size=(8, n)).T, np.full((n, len(POSTERIOR_MEASURE_NAMES)), np.nan)]
         return CalibrationExamples(x, right, ~right, source == "jumbled", recordings=len(held), source=source)
 
@@ -200,8 +238,8 @@ def test_training_asks_for_the_new_kinds_only_when_configured(monkeypatch):
         return _replace(model, info={}), None
 
     out, _ = train_calibrated(train, utts, config=CalibrationConfig(min_items=5, refit=False))
-    assert {k: seen[-1][k] for k in ("noisy", "phrases", "noise_clips")} == {"noisy": 0, "phrases": 0,
-                                                                             "noise_clips": 0}
+    assert {k: seen[-1][k] for k in ("noisy", "phrases", "noise_clips", "impact_clips")} == {
+        "noisy": 0, "phrases": 0, "noise_clips": 0, "impact_clips": 0}
     assert "words_in_noisy_copies" not in out.info["calibration"]
     lines = []
     out, _ = train_calibrated(train, utts, config=CalibrationConfig(min_items=5, refit=False, noisy=2, phrases=30,
@@ -212,3 +250,10 @@ def test_training_asks_for_the_new_kinds_only_when_configured(monkeypatch):
     info = out.info["calibration"]
     assert info["words_in_noisy_copies"] == 20 and info["words_in_noise_clips"] == 20
     assert "20 in noisy copies, 0 in joined phrases, 20 in noise-only clips" in lines[-1]
+    assert "impact_clips" not in info and "clips of impacts" not in lines[-1]
+    out, _ = train_calibrated(train, utts, config=CalibrationConfig(min_items=5, refit=False, impact_clips=12),
+                              report=lines.append)
+    assert seen[-1]["impact_clips"] == 12
+    info = out.info["calibration"]
+    assert info["impact_clips"] == 12 and info["words_in_impact_clips"] == 10
+    assert "10 in clips of impacts" in lines[-1] and "(0 of them heard with" in lines[-1]

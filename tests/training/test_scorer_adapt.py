@@ -349,3 +349,71 @@ def test_a_scorer_reading_other_inputs_is_kept_as_it_is_when_adapting():
     got, info, note = tune_scorer(replace(model, scorer=mel), [], model.mixtures, ScorerAdaptConfig())
     assert got is mel and info["tuned"] is False
     assert "not supported yet" in note and "log-mel" in note
+
+
+def _pause_columns(model):
+    from wordspot.acoustic.units import PAUSE_UNIT
+
+    u = model.units.index(PAUSE_UNIT)
+    return np.unique(model.units.state_mixture[u, :model.units.n_states[u]])
+
+
+def test_impact_items_for_the_scorer_are_seeded_pause_items_of_impacts(tone_start):
+    # The scorer's impact items: background items of kind "impacts" only, a share of the
+    # recordings in number (at least MIN_BACKGROUNDS), the same for the same seed, others
+    # for another, none at 0; aligned, every frame gets a pause mixture id. (Our own rule.)
+    from wordspot.training.adapt import align_for_scorer, scorer_impact_items
+    from wordspot.training.backgrounds import MIN_BACKGROUNDS
+    from wordspot.training.data import prepare_items
+
+    start, lex, other, _, _ = tone_start
+    utts = read_manifest(other)
+    items, _ = prepare_items(utts, lex, start.units, start.features)
+    config = replace(QUICK, scorer_impacts=0.5)
+    got = scorer_impact_items(items, utts, start, config)
+    assert len(got) == MIN_BACKGROUNDS and all(it.background and it.words == () for it in got)
+    assert all(str(it.path).endswith("-impacts") for it in got)
+    again = scorer_impact_items(items, utts, start, config)
+    assert all(np.array_equal(a.frames, b.frames) for a, b in zip(got, again))
+    moved = scorer_impact_items(items, utts, start, replace(config, seed=1))
+    assert not np.array_equal(got[0].frames, moved[0].frames)
+    assert scorer_impact_items(items, utts, start, replace(QUICK, scorer_impacts=0.0)) == []
+    frames, labels = align_for_scorer(items, start.mixtures)
+    with_extra, extra_labels = align_for_scorer(items, start.mixtures, got)
+    assert len(with_extra) == len(frames) + len(got)
+    assert all(np.array_equal(a, b) for a, b in zip(extra_labels, labels))  # the recordings' labels unchanged
+    assert np.isin(np.concatenate(extra_labels[len(labels):]), _pause_columns(start)).all()
+
+
+def test_impact_items_tune_the_scorer_towards_pause_on_impacts_and_leave_the_mixtures(tone_start):
+    # Items of impacts among the scorer's tuning frames raise its pause posterior on
+    # impacts it has not heard (another seed) against tuning without them; the mixtures
+    # never see them (bit for bit the same), and the model's info counts them.
+    from wordspot.audio.augment import background
+    from wordspot.audio.features import compute_features
+
+    start, lex, other, _, _ = tone_start
+    assert AdaptationConfig().scorer_impacts == 0.1  # on by default
+    plain, _ = adapt(read_manifest(other), lex, start, config=replace(QUICK, scorer_impacts=0.0))
+    with_impacts, _ = adapt(read_manifest(other), lex, start, config=replace(QUICK, scorer_impacts=0.5))
+    for name in ("weights", "means", "variances"):
+        np.testing.assert_array_equal(getattr(plain.mixtures, name), getattr(with_impacts.mixtures, name))
+    assert with_impacts.info["scorer_adaptation"]["impact_items"] == 20
+    assert with_impacts.info["scorer_adaptation"]["recordings"] == plain.info["scorer_adaptation"]["recordings"] == 16
+    assert "impact_items" not in plain.info["scorer_adaptation"]
+    rng = np.random.default_rng(77)
+    rate = start.features.sample_rate
+    clips = [background("impacts", int(2.0 * rate), -30.0, rng, sample_rate=rate) for _ in range(5)]
+    cols = _pause_columns(start)
+
+    def pause_share(model):
+        return np.mean([np.exp(model.scorer.log_posteriors(compute_features(c, model.features)))[:, cols].sum(1).mean()
+                        for c in clips])
+
+    assert pause_share(with_impacts) > pause_share(plain) + 0.05
+
+
+@pytest.mark.parametrize("share", [-0.1, 1.5, True, "0.1", float("nan")])
+def test_a_bad_scorer_impact_share_is_refused(share):
+    with pytest.raises(TrainingError, match="scorer_impacts must be a number from 0 to 1"):
+        AdaptationConfig(scorer_impacts=share)

@@ -61,6 +61,7 @@ __all__ = [
     "noisy_copies",
     "joined_phrases",
     "noise_only_clips",
+    "clips_of_impacts",
     "calibration_examples",
     "fit_calibration",
     "CALIBRATION_POSTERIOR_MEASURES",
@@ -79,8 +80,8 @@ DEFAULT_JUMBLED = 150
 
 #: Where a calibration word was heard (``CalibrationExamples.source``): the held-out
 #: recordings with the whole lexicon and with their own words removed, played backwards,
-#: jumbled, their noisy copies, phrases joined from them, background-only clips; a
-#: starter's calibration also clips of impacts and more one-word recordings of other words.
+#: jumbled, their noisy copies, phrases joined from them, background-only clips, clips of
+#: impacts; a starter's calibration also more one-word recordings of other words.
 SOURCES = ("held-out", "held-out, own words removed", "backwards", "jumbled", "noisy",
            "noisy, own words removed", "phrase", "phrase, own words removed", "noise only", "impacts",
            "other word alone")
@@ -89,6 +90,7 @@ SOURCES = ("held-out", "held-out, own words removed", "backwards", "jumbled", "n
 _NOISY_STREAM = 0x6E6F6973
 _PHRASE_STREAM = 0x70687261
 _CLIP_STREAM = 0x636C6970
+_IMPACT_STREAM = 0x696D7061
 
 #: The posterior measures (``confidence.POSTERIOR_MEASURE_NAMES``) a calibration uses beside
 #: the others when the model has a state scorer; chosen on the dev voices
@@ -163,6 +165,11 @@ class CalibrationConfig:
         Background-only clips of 1-4 s (:func:`noise_only_clips`: white, pink, hum, dither,
         fan, babble of the held-out speakers) recognised with the whole lexicon; every word
         heard there is wrong. 0: none.
+    impact_clips : int
+        Clips of 1-4 s of impacts (knocks, clinks, taps, scrapes; :func:`clips_of_impacts`)
+        recognised with the whole lexicon; every word heard there is wrong (source
+        "impacts"). Drawn from a stream of their own, so every other example stays the
+        same. 0: none.
     """
 
     held_out_share: float = 0.15
@@ -179,6 +186,7 @@ class CalibrationConfig:
     noise_snr_db: tuple[float, float] = (5.0, 25.0)
     phrases: int = 0
     noise_clips: int = 0
+    impact_clips: int = 0
 
     def __post_init__(self) -> None:
         s = self.held_out_share
@@ -192,7 +200,8 @@ class CalibrationConfig:
             raise TrainingError(f"the number of jumbled clips for calibration must be a whole number >= 0 "
                                 f"(e.g. {DEFAULT_JUMBLED}), got {j!r}")
         for name, what in (("noisy", "noisy copies of each held-out recording"),
-                           ("phrases", "joined phrases"), ("noise_clips", "noise-only clips")):
+                           ("phrases", "joined phrases"), ("noise_clips", "noise-only clips"),
+                           ("impact_clips", "clips of impacts")):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"the number of {what} for calibration ({name}) must be a whole number "
@@ -513,10 +522,24 @@ def noise_only_clips(waves: Sequence, speakers: Sequence, n: int, *, seed: int =
     return [background_wave(r, pool, sample_rate) for r in recipes]
 
 
+def clips_of_impacts(n: int, *, seed: int = 0, sample_rate: int = 16000) -> list[np.ndarray]:
+    """``n`` clips of 1-4 s of impacts (:mod:`wordspot.audio.impacts`) at -50 to -20 dBFS
+    over a faint room tone, from the training's background recipes
+    (:func:`wordspot.training.backgrounds.plan_backgrounds`, kind "impacts") drawn from
+    ``seed`` on a stream of their own."""
+    from wordspot.training.backgrounds import background_wave, plan_backgrounds
+
+    if n <= 0:
+        return []
+    recipes = plan_backgrounds(n, [], seed=_IMPACT_STREAM + seed, seconds=(1.0, 4.0), levels=(-50.0, -20.0),
+                               kinds=("impacts",))
+    return [background_wave(r, {}, sample_rate) for r in recipes]
+
+
 def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettings | None = None,
                          quiet: bool = True, speeds=(1.0,), backwards: bool = False, jumbled: int = 0,
                          seed: int = 0, noisy: int = 0, noise_snr_db=(5.0, 25.0), phrases: int = 0,
-                         noise_clips: int = 0, jobs: int = 1) -> CalibrationExamples:
+                         noise_clips: int = 0, impact_clips: int = 0, jobs: int = 1) -> CalibrationExamples:
     """Measures and right / wrong labels of the words :func:`held_out_recognitions` hears.
 
     Parameters
@@ -535,10 +558,10 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
         Add the words heard in this many clips of jumbled speech, all wrong (counted with
         the own-words-removed stand-ins and marked in ``jumbled``).
     seed : int
-        Seed of the jumbled clips, noisy copies, phrases and noise clips.
-    noisy, noise_snr_db, phrases, noise_clips
+        Seed of the jumbled clips, noisy copies, phrases, noise clips and impact clips.
+    noisy, noise_snr_db, phrases, noise_clips, impact_clips
         Noisy copies per recording, their SNR range, joined phrases, background-only
-        clips (see :class:`CalibrationConfig`); each 0: none.
+        clips, clips of impacts (see :class:`CalibrationConfig`); each 0: none.
     jobs : int >= 1
         Threads recognising the held-out recordings (the same examples for any number).
     """
@@ -599,6 +622,9 @@ def calibration_examples(model, utterances: Sequence, *, settings: DecoderSettin
                 both(whole, without_own, words, "phrase")
         clips = noise_only_clips(waves, speakers, noise_clips, seed=seed, sample_rate=rate)
         all_wrong(_recognitions(model, (("noise-only clip", c) for c in clips), settings), "noise only")
+    if impact_clips:
+        clips = clips_of_impacts(impact_clips, seed=seed, sample_rate=model.features.sample_rate)
+        all_wrong(_recognitions(model, (("clip of impacts", c) for c in clips), settings), "impacts")
     measures = np.array(rows, dtype=np.float64).reshape(len(rows), len(MEASURE_NAMES))
     source = np.array(source, dtype="<U32")
     return CalibrationExamples(measures, np.array(right, dtype=bool), np.array(removed, dtype=bool),
@@ -809,6 +835,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     jumbled = config.jumbled if len(parts) == 1 else -(-config.jumbled // len(parts))
     phrases = config.phrases if len(parts) == 1 else -(-config.phrases // len(parts))
     noise_clips = config.noise_clips if len(parts) == 1 else -(-config.noise_clips // len(parts))
+    impacts = config.impact_clips if len(parts) == 1 else -(-config.impact_clips // len(parts))
     for f, (rest, held) in enumerate(parts):
         if how == "folds":
             say(f"confidence calibration: fold {f + 1} of {len(parts)}: training on {len(rest)} recordings, "
@@ -827,7 +854,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
             return calibration_examples(model, held, settings=config.settings, quiet=quiet, speeds=config.speeds,
                                         backwards=config.backwards, jumbled=jumbled, seed=config.seed + f,
                                         noisy=config.noisy, noise_snr_db=config.noise_snr_db, phrases=phrases,
-                                        noise_clips=noise_clips, jobs=jobs)
+                                        noise_clips=noise_clips, impact_clips=impacts, jobs=jobs)
 
         if config.refit and f == len(parts) - 1 and getattr(train, "runs_beside", False):
             # the training on every recording needs nothing of the calibration's: the
@@ -846,10 +873,12 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
     n_noisy = int(np.char.startswith(examples.source, "noisy").sum())
     n_phrase = int(np.char.startswith(examples.source, "phrase").sum())
     n_clips = int((examples.source == "noise only").sum())
-    n_removed = int(examples.own_words_removed.sum()) - n_jumbled - n_clips
+    n_impacts = int((examples.source == "impacts").sum())
+    n_removed = int(examples.own_words_removed.sum()) - n_jumbled - n_clips - n_impacts
     conditions = "".join(f", {n} in {what}" for n, what, on in (
         (n_noisy, "noisy copies", config.noisy), (n_phrase, "joined phrases", config.phrases),
-        (n_clips, "noise-only clips", config.noise_clips)) if on)
+        (n_clips, "noise-only clips", config.noise_clips), (n_impacts, "clips of impacts", config.impact_clips))
+        if on)
     say(f"confidence calibration: {examples.recordings} held-out recordings, {n_right} words right, "
         f"{examples.right.size - n_right} wrong ({n_removed} of them heard with the recording's own words "
         f"removed, {n_jumbled} in jumbled speech){conditions}" + ("" if calibration is not None else "; not fitted"))
@@ -882,6 +911,8 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                            if config.phrases else {}),
                         **({"noise_clips": noise_clips * len(parts), "words_in_noise_clips": n_clips}
                            if config.noise_clips else {}),
+                        **({"impact_clips": impacts * len(parts), "words_in_impact_clips": n_impacts}
+                           if config.impact_clips else {}),
                         "measures": list(calibration.names),
                         "refit_on_all": bool(config.refit)}})
     return model, summary
