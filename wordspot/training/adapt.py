@@ -152,9 +152,9 @@ class AdaptationConfig:
         Drawn from a stream of their own. 0: none (the scorer is tuned on the recordings
         alone, as before). 0.1 on dev, three seeds: impact clips with a command at the
         default threshold 21.7% -> 8.9%, a second, unseen kind of impact 30.0% -> 15.0%,
-        every set of commands as good or better, other talk 14.4% -> 15.1% (within the
-        seeds' spread), about 1.05 times the training's CPU time; 0.25 did worse
-        (docs/experiments/2026-12-03-impacts-no-command.md).
+        every set of commands as good or better on average, other talk 14.4% -> 15.1%
+        (within the seeds' spread), about 1.05 times the training's CPU time; 0.25 did
+        worse (docs/experiments/2026-12-03-impacts-no-command.md).
     follow_passes : int >= 0
         Most passes, after MAP, in which the recordings take over: each is a MAP update
         whose prior is the previous pass's model with weight ``follow_weight``, so the
