@@ -218,3 +218,44 @@ def test_a_scorer_that_favours_the_right_states_scores_the_right_word_higher(bat
             assert r > w + 0.5, (wrong_word, name, r, w)
     # the right word's own states are almost certain: mean log posterior near 0, margin near 0
     assert right[0] > -0.5 and right[3] > -0.5
+
+
+def test_word_path_pieces_agree_when_threads_make_them_together(bat, monkeypatch):
+    # Recognition threads share one recogniser. Two threads asking for the same
+    # pronunciation's piece at once (held together inside piece_of by a barrier) must end up
+    # with the same piece, and the vowel tables of the posterior measures must find it: a
+    # piece replaced by the other thread's once gave StopIteration in the demo run.
+    import threading
+
+    from wordspot.decoding import decoder as decoder_module
+
+    model, _ = bat
+    rec = build_recognizer(model)
+    ll = np.zeros((20, rec.network.used_mixtures.size))
+    made = decoder_module.piece_of
+    both_inside = threading.Barrier(2, timeout=10)
+
+    def slow_piece_of(net, items):
+        piece = made(net, items)
+        if len(items) == 1:
+            both_inside.wait()
+        return piece
+
+    monkeypatch.setattr(decoder_module, "piece_of", slow_piece_of)
+    got, errors = [None, None], []
+
+    def ask(k):
+        try:
+            piece = rec.word_path(ll, 0, 0, 8)[0]
+            got[k] = (piece, rec._vowel_columns(piece))
+        except Exception as exc:  # handed to the test thread
+            errors.append(exc)
+
+    threads = [threading.Thread(target=ask, args=(k,)) for k in range(2)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert not errors, errors
+    assert got[0][0] is got[1][0]
+    assert all(np.array_equal(a, b) for a, b in zip(got[0][1], got[1][1]))

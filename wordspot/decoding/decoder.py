@@ -288,6 +288,7 @@ class Recognizer:
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
+    _piece_prons: dict = field(default_factory=dict, repr=False)  # id of a piece in _pron_pieces -> pronunciation
     _filler_phones: tuple | None = field(default=None, repr=False)  # (unit -> number, number of each filler state)
     _vowel_tables: dict = field(default_factory=dict, repr=False)
     _units: dict | None = field(default=None, repr=False)
@@ -337,9 +338,13 @@ class Recognizer:
         """
         net = self.network
         item = pron + FIRST_WORD_ITEM
-        if pron not in self._pron_pieces:
-            self._pron_pieces[pron] = (piece_of(net, [item]), net.phone[net.item == item])
-        piece, phone_of = self._pron_pieces[pron]
+        got = self._pron_pieces.get(pron)
+        if got is None:
+            # recognition threads share this recogniser: setdefault keeps the first piece
+            # made, so every thread gets the same object and its pronunciation is known
+            got = self._pron_pieces.setdefault(pron, (piece_of(net, [item]), net.phone[net.item == item]))
+            self._piece_prons[id(got[0])] = pron
+        piece, phone_of = got
         states, score = piece_path(ll, first, last, piece)
         return piece, states, phone_of[states], score
 
@@ -431,7 +436,7 @@ class Recognizer:
         """For each state of ``piece`` (one pronunciation, as :meth:`word_path` makes it): the
         network columns of every vowel in the same state position (the state's own column
         where it is no vowel), and those of the vowels of its class (-1 where none)."""
-        pron = next(p for p, (pc, _) in self._pron_pieces.items() if pc is piece)
+        pron = self._piece_prons[id(piece)]  # (no iterating over a dict other threads may grow)
         if pron not in self._vowel_tables:
             net = self.network
             units = self._unit_columns()
