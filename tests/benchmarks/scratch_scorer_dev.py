@@ -54,7 +54,7 @@ HERE = Path(__file__).resolve().parent
 REPO = HERE.parents[1]
 sys.path.insert(0, str(HERE))
 
-from posterior_confidence_dev import operating_eer, set_columns, tally  # noqa: E402
+from posterior_confidence_dev import operating_eer, print_spread, set_columns, tally  # noqa: E402
 from tune_filler import dev_sets, write_dev_train_manifest  # noqa: E402
 
 SETS = ("words", "real phrases", "other talk", "noise only")
@@ -145,12 +145,7 @@ def main(argv=None) -> int:
     cols = ["EER"] + set_columns(sets)
     print(f"seeds {args.seeds}, threshold {DEFAULT_MIN_CONFIDENCE}, scorer {'x'.join(map(str, scorer.hidden))} "
           f"context {scorer.context}: mean (min-max)\n")
-    print("| variant | " + " | ".join(cols) + " |")
-    print("| --- |" + " ---: |" * len(cols))
-    for v, rows in table.items():
-        a = np.array(rows)
-        print(f"| {v} | " + " | ".join(f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
-                                         for j in range(a.shape[1])) + " |")
+    print_spread("variant", table, cols)
     m = np.array(cpu["mixtures"][::2])
     s = np.array(cpu["scorer"])
     print(f"\nCPU seconds: mixture training {m.mean():.0f} ({m.min():.0f}-{m.max():.0f}); the scorer's extra "
@@ -207,12 +202,7 @@ def compare_mix(args) -> int:
             + [f"{n}: files with a command, no threshold" for n in list(sets)[-2:]])
     print(f"seeds {args.seeds}, threshold {DEFAULT_MIN_CONFIDENCE}; mix {' '.join(args.mix)}, share "
           f"{args.share if args.share is not None else 'default'}: mean (min-max)\n")
-    print("| variant | " + " | ".join(cols) + " |")
-    print("| --- |" + " ---: |" * len(cols))
-    for v, rows in table.items():
-        a = np.array(rows)
-        print(f"| {v} | " + " | ".join(f"{a[:, j].mean():.1f}% ({a[:, j].min():.1f}-{a[:, j].max():.1f})"
-                                         for j in range(a.shape[1])) + " |")
+    print_spread("variant", table, cols)
     base = np.array(cpu["items as configured"])
     for v, secs in cpu.items():
         s = np.array(secs)
