@@ -163,7 +163,10 @@ def test_adapting_learns_how_the_takes_say_a_word(starter, tmp_path):
     from wordspot.corpus import Utterance
     from wordspot.training.adapt import AdaptationConfig, adapt
 
-    # "five" said F EY V ("eI" in espeak-ng's phoneme input), "stop" as listed (S T AA P)
+    # "five" said F EY V ("eI" in espeak-ng's phoneme input), "stop" as listed (S T AA P);
+    # the espeak-ng phoneme spellings (eI for the FACE vowel, A: for the LOT vowel in an
+    # American voice) are from espeak-ng's English phoneme tables, from memory; the ARPAbet
+    # pronunciations of the two words are those of the CMU pronouncing dictionary
     rows = _espeak_takes(tmp_path, [("five", "[[f'eIv]]"), ("stop", "[[st'A:p]]")])
     if rows is None:
         pytest.skip("espeak-ng is not installed (Debian package espeak-ng)")
