@@ -93,6 +93,8 @@ __all__ = [
     "strength_info",
     "strength_note",
     "ItemCache",
+    "PassTotals",
+    "reusable",
     "adapt",
     "adapting",
     "ADAPT_LEGEND",
@@ -217,6 +219,18 @@ class AdaptationConfig:
         adaptation fewer, the calibration's words recognised by a model that heard fewer
         of the voices. Off: a few more words dropped at the threshold on dev
         (docs/experiments/2026-12-03-training-time.md).
+    reuse_first_passes : bool
+        The training on every recording that follows the calibration's first training
+        (:func:`adapting`) adds that training's pass statistics (kept pass by pass,
+        :class:`PassTotals`) to those of the recordings held out of it, instead of passing
+        over every recording again: the first pass (under the starting model) is the same
+        sums in another order, the later ones count the first training's recordings under
+        its own models rather than the new ones. About a sixth of that adaptation's passes;
+        not used with learned pronunciations (the lexicon may differ).
+    choose_noise_copies : int or None
+        Noisy copies of every recording in the adaptation that chooses the strength (the
+        first ones of ``follow_noise_copies``); None: all of them. The adaptations that make
+        the models keep them all.
     """
 
     prior_weight: float = 300.0
@@ -244,6 +258,8 @@ class AdaptationConfig:
     held_out_speaker_share: float = 0.25
     unheard_calibration: bool = False
     calibrate_choosing_model: bool = False
+    reuse_first_passes: bool = False
+    choose_noise_copies: int | None = None
     pronunciations: LearningConfig = LearningConfig()
 
     def __post_init__(self) -> None:
@@ -263,7 +279,9 @@ class AdaptationConfig:
             raise TrainingError(f"follow_speeds must be distinct factors from 0.5 to 2 other than 1 "
                                 f"(e.g. 0.9 1.1), got {self.follow_speeds!r}")
         object.__setattr__(self, "follow_speeds", tuple(float(f) for f in speeds))
-        for name in ("follow_passes", "min_held_out_frames", "follow_noise_copies") + (("strength",) if self.strength is not None else ()):
+        for name in (("follow_passes", "min_held_out_frames", "follow_noise_copies")
+                     + (("strength",) if self.strength is not None else ())
+                     + (("choose_noise_copies",) if self.choose_noise_copies is not None else ())):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"{name} must be a whole number >= 0, got {v!r}")
@@ -438,6 +456,42 @@ def _map_update(prior: Mixtures, st: MixtureStats, tau: float, update_variances:
     return Mixtures(weights, means, variances)
 
 
+@dataclass(frozen=True)
+class PassTotals:
+    """What one statistics pass of :func:`adapt_items` summed.
+
+    Attributes
+    ----------
+    stats : MixtureStats
+    loglik : float
+        Sum of the items' finite log-likelihoods.
+    frames : int
+        Frames of all the pass's items (copies and background items included).
+    unit_frames : ndarray, shape (U,)
+        Expected frames of each unit.
+    fitted : bool
+        Some item had a path.
+    """
+
+    stats: MixtureStats
+    loglik: float
+    frames: int
+    unit_frames: np.ndarray
+    fitted: bool
+
+    def plus(self, other: "PassTotals") -> "PassTotals":
+        """The totals of both passes' items."""
+        a, b = self.stats, other.stats
+        return PassTotals(MixtureStats(a.occupancy + b.occupancy, a.first + b.first, a.second + b.second),
+                          self.loglik + other.loglik, self.frames + other.frames,
+                          self.unit_frames + other.unit_frames, self.fitted or other.fitted)
+
+    @property
+    def fit(self) -> float:
+        """Log-likelihood a frame (-inf when no item had a path)."""
+        return float(self.loglik / self.frames) if self.fitted else float("-inf")
+
+
 def _chunks(items) -> list:
     return [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
 
@@ -453,7 +507,7 @@ def held_out_fit(items, units: UnitSet, mix: Mixtures, *, jobs: int = 1, prune: 
 
 def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfig = AdaptationConfig(),
                 variance_floor: np.ndarray | None = None, quiet: bool = True, report=None, held_out=None,
-                copies=None):
+                copies=None, earlier=None, record=None):
     """Adapt ``mix`` to prepared utterances (units and transitions stay as they are).
 
     First the shared transform and ``config.passes`` MAP passes with weight
@@ -464,6 +518,11 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     frames, they run while the held-out log-likelihood a frame rises, and the best model on
     the held-out items is kept; otherwise none runs. ``copies`` (speed or noisy copies of
     the recordings among ``items``) take part in the following passes only.
+
+    ``earlier``: the :class:`PassTotals` of an earlier run's passes (other items, e.g. a
+    first training's recordings), added pass by pass to those of ``items`` (needs at least
+    as many as run here). ``record``: a list each pass's own :class:`PassTotals` is
+    appended to (those of ``items`` alone).
 
     Returns
     -------
@@ -493,11 +552,20 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
     most = config.strength if config.strength is not None else (config.follow_passes if choose else 0)
     total_passes = config.passes + int(config.mean_transform) + most
 
+    if earlier is not None and len(earlier) < total_passes:
+        raise TrainingError(f"the earlier run has {len(earlier)} passes' statistics, {total_passes} are needed")
+
     def stats_pass(current, k, following=False):
         res = pass_statistics(follow_chunks if following else chunks, current, units, jobs=config.jobs,
                               quiet=quiet, prune=config.prune, label=f"adapt {k}/{total_passes}")
         ok = np.isfinite(res.loglik)
-        avg = float(res.loglik[ok].sum() / (n_follow if following else n_frames)) if ok.any() else float("-inf")
+        res = PassTotals(res.stats, float(res.loglik[ok].sum()), n_follow if following else n_frames,
+                         res.unit_frames, bool(ok.any()))
+        if record is not None:
+            record.append(res)
+        if earlier is not None:
+            res = earlier[k - 1].plus(res)
+        avg = res.fit
         summary.passes.append((int(current.n_components), avg))
         if report is not None:
             if k == 1:
@@ -537,7 +605,7 @@ def adapt_items(items, units: UnitSet, mix: Mixtures, *, config: AdaptationConfi
             break  # the held-out recordings fit worse: the data have taken over far enough
         best, strength = current, j
     summary.count(items)
-    summary.n_frames = int(n_frames)
+    summary.n_frames = int(n_frames + (earlier[0].frames if earlier is not None else 0))
     summary.frames_per_unit = {name: float(res.unit_frames[u]) for u, name in enumerate(units.names)}
     summary.adaptation = {
         "strength": int(strength),
@@ -639,7 +707,8 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
           manifest=None, quiet: bool = True, report=None, held_out=None,
-          cache: ItemCache | None = None, held_out_copies: bool = True) -> tuple[AcousticModel, TrainingSummary]:
+          cache: ItemCache | None = None, held_out_copies: bool = True, record: dict | None = None,
+          base: dict | None = None) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
@@ -655,6 +724,14 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     ``held_out_copies`` (with ``held_out``): also make the held-out recordings' speed and
     noisy copies in the same go, for a training on everything that follows (False when
     none does).
+
+    ``record``, when given, is filled with what a later training on more recordings can
+    reuse (:func:`reusable`): the recordings and background items adapted on, the strength,
+    the lexicon and every pass's :class:`PassTotals`. ``base``: such a record of an earlier
+    call on some of ``utterances`` with the same strength; when :func:`reusable` accepts it,
+    only the other recordings (and their copies) are passed over and each pass adds the
+    earlier one's statistics (``AdaptationConfig.reuse_first_passes``); the background
+    items are the earlier call's.
 
     Raises
     ------
@@ -676,7 +753,13 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
             "use ARPAbet phones the starting model knows, or train with --from-scratch"
         )
     cache = cache if cache is not None else ItemCache()
-    items, skipped = _prepared(utterances, lexicon, start, config, quiet, cache)
+    if base is not None and not reusable(base, utterances, lexicon, config, held_out):
+        base = None
+    if base is not None:  # the earlier call's background items are in its statistics
+        items, skipped = cache.recordings(utterances, lexicon, start, config, quiet)
+        items = items + list(base["backgrounds"])
+    else:
+        items, skipped = _prepared(utterances, lexicon, start, config, quiet, cache)
     if not items:
         raise TrainingError(f"{manifest or 'manifest'}: none of the {len(utterances)} recordings is usable")
     speaker_of = {u.path: u.speaker for u in utterances}
@@ -715,7 +798,13 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     elif choose and not held_items and (held_out is None or by_speaker):
         # (only when a training on everything follows: else this model would be the one written)
         keep = held_out is not None and by_speaker and config.calibrate_choosing_model and held_out_copies
-        chosen = _choose_on_split(items, used, copies, start, config, by_speaker, quiet, report, keep=keep)
+        choosing = copies
+        if config.choose_noise_copies is not None and config.choose_noise_copies < config.follow_noise_copies:
+            choosing = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache,
+                               count=sum(not it.background for it in items), noise_copies=config.choose_noise_copies)
+            choosing = regraphed([it for it in choosing if it.path not in held_paths], lexicon, start.units,
+                                 config.pronunciations.enabled)
+        chosen = _choose_on_split(items, used, choosing, start, config, by_speaker, quiet, report, keep=keep)
         if chosen is not None:
             config = replace(config, strength=chosen["strength"])
     if not choose:
@@ -724,9 +813,22 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         copies = []
     if chosen is not None and "kept" in chosen:  # the choosing adaptation's model is the calibration's
         mix, summary, transform, items = chosen.pop("kept")
+    elif base is not None:  # only the recordings the earlier call lacked, its statistics added
+        done = base["paths"]
+        new = [it for it in items if not it.background and it.path not in done]
+        mix, summary, transform = adapt_items(new, start.units, start.mixtures, config=config, quiet=quiet,
+                                              report=report, copies=[it for it in copies if it.path not in done],
+                                              earlier=base["passes"])
+        summary.count(items)
+        summary.adaptation["speech_frames"] = int(sum(it.frames.shape[0] for it in items if not it.background))
     else:
+        passes = [] if record is not None else None
         mix, summary, transform = adapt_items(items, start.units, start.mixtures, config=config, quiet=quiet,
-                                              report=report, held_out=held_items, copies=copies)
+                                              report=report, held_out=held_items, copies=copies, record=passes)
+        if record is not None:
+            record.update(paths=frozenset(it.path for it in items if not it.background),
+                          backgrounds=[it for it in items if it.background], passes=passes,
+                          strength=int(summary.adaptation["strength"]), lexicon=lexicon)
     if held_items and summary.adaptation.get("chosen_on") == "held-out":
         summary.adaptation["held_out_speakers"] = chosen_speakers
     if chosen is not None:
@@ -781,6 +883,18 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info, scorer=scorer)
     return model, summary
+
+
+def reusable(base: dict, utterances, lexicon: Lexicon, config: AdaptationConfig, held_out=None) -> bool:
+    """Whether :func:`adapt` on ``utterances`` can add the passes ``base`` recorded: the
+    strength is fixed to the recorded one, nothing is held out, no pronunciation is learned,
+    the lexicon is the same, every recording ``base`` adapted on is among ``utterances`` and
+    some are new."""
+    paths = {u.path for u in utterances}
+    return (held_out is None and config.strength is not None and config.strength == base.get("strength")
+            and not config.pronunciations.enabled and base.get("lexicon") == lexicon
+            and base["paths"] <= paths and bool(paths - base["paths"])
+            and len(base["passes"]) >= config.passes + int(config.mean_transform) + config.strength)
 
 
 class ItemCache:
@@ -887,11 +1001,12 @@ def _follows(config: AdaptationConfig) -> bool:
 
 
 def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: AdaptationConfig, quiet: bool,
-            cache: ItemCache, count: int | None = None) -> list:
+            cache: ItemCache, count: int | None = None, noise_copies: int | None = None) -> list:
     """Speed and noisy copies of the usable recordings for the following passes (none when
     no following pass can run); each recording's copies are made once (``cache``). With
     ``count``, those of the first ``count`` recordings among ``items`` only (the noisy
-    copies drawn as for all of them)."""
+    copies drawn as for all of them); with ``noise_copies``, the first that many noisy
+    copies of each (of ``config.follow_noise_copies``)."""
     if not _follows(config):
         return []
     clean = [it for it in items if not it.background]
@@ -901,7 +1016,8 @@ def _copies(used, items, lexicon: Lexicon, start: AcousticModel, config: Adaptat
         if config.follow_speeds else []
     if config.follow_noise_copies:
         speaker = {u.path: u.speaker for u in used}
-        out += cache.noisy_copies(clean, [speaker[it.path] for it in clean], start, config, quiet, count=count)
+        noisy = cache.noisy_copies(clean, [speaker[it.path] for it in clean], start, config, quiet, count=count)
+        out += noisy if noise_copies is None else noisy[:noise_copies * count]  # copy-major
     return out
 
 
@@ -991,20 +1107,27 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
     then not made); ``say``, when given, takes the report lines instead of ``report`` and
     the progress bars are left out (a training run beside other work). Carries
     ``runs_beside`` (True: the training on everything may run while the calibration
-    recognises, it reads only the strength the first call chose),
+    recognises, it reads only the strength the first call chose; and, with
+    ``config.reuse_first_passes`` or ``reuse=True``, the first call's pass statistics),
     ``start_calibration`` (the starting model's calibration, the fallback) and
     ``takes_held_out``.
     """
     chosen: dict = {}
+    first: dict = {}  # the first training's passes (AdaptationConfig.reuse_first_passes)
     cache = ItemCache()
 
-    def fit(utterances, held_out=None, again=True, say=None):
+    def fit(utterances, held_out=None, again=True, say=None, reuse=None):
         cfg = config
         if held_out is None and config.strength is None and chosen:
             cfg = replace(config, strength=chosen["follow_passes"])
+        reuse = config.reuse_first_passes if reuse is None else reuse
+        record = {} if held_out is not None and again else None
         model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest,
                                quiet=quiet if say is None else True, report=report if say is None else say,
-                               held_out=held_out, cache=cache, held_out_copies=again)
+                               held_out=held_out, cache=cache, held_out_copies=again, record=record,
+                               base=first.get("record") if held_out is None and reuse else None)
+        if record:
+            first["record"] = record
         if held_out is not None and config.strength is None:
             chosen.clear()
             chosen.update(model.info["strength"])
@@ -1029,6 +1152,7 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
 
     fit.takes_held_out = True
     fit.runs_beside = True
+    fit.cache = cache
     fit.speakers_apart = speakers_apart
     fit.start_calibration = getattr(start, "calibration", None)
     return fit
