@@ -54,6 +54,8 @@ def main(argv=None) -> int:
                     help="the calibration's fewer speeds")
     ap.add_argument("--jumbled", type=int, default=100, help="fewer jumbled clips (with the fewer speeds)")
     ap.add_argument("--no-choosing", action="store_true", help="skip the strength chosen with one noisy copy")
+    ap.add_argument("--default-calibration-only", action="store_true",
+                    help="only the default calibration's examples (the two models)")
     ap.add_argument("--show", type=float, nargs="+", default=[0.0, 0.05, 0.2, 0.4])
     args = ap.parse_args(argv)
 
@@ -70,6 +72,8 @@ def main(argv=None) -> int:
     cals = {"5 speeds, 150 jumbled (default)": dict(),
             f"{len(fewer)} speeds, 150 jumbled": dict(speeds=fewer),
             f"{len(fewer)} speeds, {args.jumbled} jumbled": dict(speeds=fewer, jumbled=args.jumbled)}
+    if args.default_calibration_only:
+        cals = dict(list(cals.items())[:1])
     models = ("adapted again (default)", "first passes reused")
     names = [f"{m}; {c}" for m in models for c in cals]
     tables = VariantTables(names)
@@ -135,6 +139,10 @@ def main(argv=None) -> int:
         print(f"| {k} | {np.mean(v):.1f} | " + ", ".join(f"{x:.1f}" for x in v) + " |")
     print("largest difference of the two models' means per seed: "
           + ", ".join(f"{d:.4f}" for _, _, d in cpu_rows) + "\n")
+    print("EER per seed (dev commands against the no-command files)\n")
+    for name in names:
+        print(f"| {name} | " + ", ".join(f"{row[0]:.2f}" for row in tables.summary[name]) + " |")
+    print()
     tables.print(args.show)
     return 0
 

@@ -5,7 +5,7 @@ Runs, round after round, ``/usr/bin/time python -m wordspot.cli train recordings
 --lexicon lexicon/bakery.txt --out M --jobs 2 -q`` with ``PYTHONPATH`` naming each tree:
 the ``--before`` tree and this tree as it is (``--with-no-refit``: also this tree with
 ``--no-refit``, the calibration's model kept), the order turned round every other round;
-prints wall and user CPU seconds (user CPU includes the worker processes) and the ratios
+prints wall and CPU seconds (user + system, the worker processes included) and the ratios
 to the before run of the same round, whether the default models of the two trees are the
 same array by array (mixtures, transitions, word-pair counts, the sound scorer's weights,
 the calibration), and the median ratios. The machine is usually shared: the CPU ratios
@@ -30,17 +30,17 @@ REPO = Path(__file__).resolve().parents[2]
 
 
 def run(tree: Path, out: Path, extra: list[str]) -> tuple[float, float]:
-    """(wall s, user CPU s) of one training with the code of ``tree``."""
+    """(wall s, CPU s: user + system) of one training with the code of ``tree``."""
     timing = out.with_suffix(".time")
     env = dict(os.environ, PYTHONPATH=str(tree), OPENBLAS_NUM_THREADS="1")
-    cmd = ["/usr/bin/time", "-f", "%e %U", "-o", str(timing), sys.executable, "-m", "wordspot.cli", "train",
+    cmd = ["/usr/bin/time", "-f", "%e %U %S", "-o", str(timing), sys.executable, "-m", "wordspot.cli", "train",
            "recordings/train.csv", "--lexicon", "lexicon/bakery.txt", "--out", str(out), "--jobs", "2", "-q"] + extra
     done = subprocess.run(cmd, cwd=tree, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     if done.returncode != 0:
         raise SystemExit(f"the training with the code of {tree} failed (exit status {done.returncode}):\n"
                          f"{done.stderr[-3000:]}")
-    wall, user = timing.read_text().split()[-2:]
-    return float(wall), float(user)
+    wall, user, system = timing.read_text().split()[-3:]
+    return float(wall), float(user) + float(system)
 
 
 def same_model(a_path: Path, b_path: Path) -> list[str]:
@@ -69,7 +69,7 @@ def main(argv=None) -> int:
     runs = [("before", args.before.resolve(), []), ("now, default", REPO, [])]
     if args.with_no_refit:
         runs.append(("now, --no-refit", REPO, ["--no-refit"]))
-    print("| round | code | wall s | user CPU s | CPU ratio | wall ratio |\n| ---: | --- | ---: | ---: | ---: | ---: |")
+    print("| round | code | wall s | CPU s (user + sys) | CPU ratio | wall ratio |\n| ---: | --- | ---: | ---: | ---: | ---: |")
     ratios: dict[str, list] = {}
     with tempfile.TemporaryDirectory() as tmp:
         for r in range(1, args.rounds + 1):

@@ -170,8 +170,9 @@ def test_the_strength_can_be_chosen_with_fewer_noisy_copies(shifted, monkeypatch
 
     monkeypatch.setattr(adapt_module, "_choose_on_split", watching)
     base = {**QUICK, "speakers_to_hold_out": 3, "follow_noise_copies": 2}
-    two, _ = adapt(many[:50], lex, start, config=AdaptationConfig(**base), held_out=many[50:])
-    one, _ = adapt(many[:50], lex, start, config=AdaptationConfig(**base, choose_noise_copies=1), held_out=many[50:])
+    two, _ = adapt(many[:50], lex, start, config=AdaptationConfig(**base, choose_noise_copies=None),
+                   held_out=many[50:])
+    one, _ = adapt(many[:50], lex, start, config=AdaptationConfig(**base), held_out=many[50:])  # the default: 1
     all_copies, first_copies = seen
     assert len(all_copies) == 2 * 50 and len(first_copies) == 50
     # the first noisy copy of each recording, the same as when both are used (copy-major)
@@ -186,3 +187,7 @@ def test_the_strength_can_be_chosen_with_fewer_noisy_copies(shifted, monkeypatch
         AdaptationConfig(choose_noise_copies=-1)
     held = split_by_speaker(many[:50], 0.25, 0)
     assert one.info["strength"]["held_out_recordings"] == len(held)
+    # a choosing model kept for the calibration is adapted with every copy, as before
+    seen.clear()
+    adapt(many[:50], lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True), held_out=many[50:])
+    assert len(seen[0]) == 2 * 50

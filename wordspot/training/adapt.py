@@ -228,9 +228,13 @@ class AdaptationConfig:
         its own models rather than the new ones. About a sixth of that adaptation's passes;
         not used with learned pronunciations (the lexicon may differ).
     choose_noise_copies : int or None
-        Noisy copies of every recording in the adaptation that chooses the strength (the
-        first ones of ``follow_noise_copies``); None: all of them. The adaptations that make
-        the models keep them all.
+        Noisy copies of every recording in the adaptation that chooses the strength on
+        whole speakers held out (the first ones of ``follow_noise_copies``); None: all of
+        them. The adaptations that make the models keep them all (and so does a choosing
+        model kept for the calibration, ``calibrate_choosing_model``). 1 chose the same
+        strength as 2, so the same models, for every seed of the dev voices' runs, for
+        about a fifth fewer frames in that adaptation's following passes
+        (docs/experiments/2026-12-03-training-recipe-cut.md).
     """
 
     prior_weight: float = 300.0
@@ -259,7 +263,7 @@ class AdaptationConfig:
     unheard_calibration: bool = False
     calibrate_choosing_model: bool = False
     reuse_first_passes: bool = False
-    choose_noise_copies: int | None = None
+    choose_noise_copies: int | None = 1
     pronunciations: LearningConfig = LearningConfig()
 
     def __post_init__(self) -> None:
@@ -799,7 +803,8 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         # (only when a training on everything follows: else this model would be the one written)
         keep = held_out is not None and by_speaker and config.calibrate_choosing_model and held_out_copies
         choosing = copies
-        if config.choose_noise_copies is not None and config.choose_noise_copies < config.follow_noise_copies:
+        if (not keep and config.choose_noise_copies is not None
+                and config.choose_noise_copies < config.follow_noise_copies):
             choosing = _copies(used + held_utts, items + held_items, lexicon, start, config, quiet, cache,
                                count=sum(not it.background for it in items), noise_copies=config.choose_noise_copies)
             choosing = regraphed([it for it in choosing if it.path not in held_paths], lexicon, start.units,
