@@ -225,8 +225,10 @@ class AdaptationConfig:
         :class:`PassTotals`) to those of the recordings held out of it, instead of passing
         over every recording again: the first pass (under the starting model) is the same
         sums in another order, the later ones count the first training's recordings under
-        its own models rather than the new ones. About a sixth of that adaptation's passes;
-        not used with learned pronunciations (the lexicon may differ).
+        its own models rather than the new ones. About a third of that adaptation's CPU
+        time; not used with learned pronunciations (the lexicon may differ). Off: on the
+        dev voices over six seeds every set stayed within the seeds' spread, but the EER
+        was 0.1 point worse on the mean (docs/experiments/2026-12-03-training-recipe-cut.md).
     choose_noise_copies : int or None
         Noisy copies of every recording in the adaptation that chooses the strength on
         whole speakers held out (the first ones of ``follow_noise_copies``); None: all of
