@@ -69,7 +69,15 @@ def far_wave(wave: np.ndarray, factor: float, tilt_db: float = 0.0) -> np.ndarra
     return got
 
 
-def write_far_training(out: Path, factor: float, tilt_db: float) -> Path:
+def voice_factors(factor: float, per_voice) -> dict:
+    """The frequency scale of every demo training voice: ``factor`` for all, or with
+    ``per_voice`` the voices in name order given its factors in turn."""
+    with open(REPO / "recordings" / "voices.csv", newline="", encoding="utf-8") as fh:
+        voices = sorted(r["voice"] for r in csv.DictReader(fh) if r["split"] == "train")
+    return {v: (per_voice[i % len(per_voice)] if per_voice else factor) for i, v in enumerate(voices)}
+
+
+def write_far_training(out: Path, factors: dict, tilt_db: float) -> Path:
     """Far copies of the demo training recordings of the voices that are not dev voices,
     as WAV files under ``out``, and their manifest (returned)."""
     from wordspot.audio.reading import load_audio
@@ -86,7 +94,8 @@ def write_far_training(out: Path, factor: float, tilt_db: float) -> Path:
                 continue
             path = out / (r["path"].rsplit(".", 1)[0] + ".wav")
             path.parent.mkdir(parents=True, exist_ok=True)
-            write_wav(path, far_wave(load_audio(rec / r["path"], sample_rate=RATE), factor, tilt_db), RATE)
+            write_wav(path, far_wave(load_audio(rec / r["path"], sample_rate=RATE), factors[r["speaker"]], tilt_db),
+                      RATE)
             w.writerow([str(path), r["transcript"], r["speaker"]])
     return manifest
 
@@ -106,7 +115,7 @@ def shift_to_miss(cal, right_measures: np.ndarray, most: float, threshold: float
 def variants(whole: bool):
     """name -> f(examples of held-out takes, examples of whole speakers or None, config) -> Calibration."""
     from wordspot.decoding.confidence import BASE_MEASURE_NAMES, DEFAULT_MIN_CONFIDENCE
-    from wordspot.evaluation.calibrate import fit_calibration
+    from wordspot.evaluation.calibrate import calibration_measures, fit_calibration
 
     def kinds(ex, names):
         return ex.subset(np.isin(ex.source, names))
@@ -119,6 +128,9 @@ def variants(whole: bool):
         "base measures only": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=c,
                                                                 names=BASE_MEASURE_NAMES),
         "penalty x10": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=replace(c, penalty=10 * c.penalty)),
+        "penalty x30": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=replace(c, penalty=30 * c.penalty)),
+        "without acoustic_per_frame": lambda ex, w, c: fit_calibration(
+            kinds(ex, CLEAN), config=c, names=[n for n in calibration_measures(ex.measures) if n != "acoustic_per_frame"]),
         "+ noisy copies": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN + NOISY), config=c),
         "+ noisy + phrases": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN + NOISY + PHRASE), config=c),
         "held-out right words <= 1% below": lambda ex, w, c: shift_to_miss(
@@ -140,6 +152,8 @@ def variants(whole: bool):
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--factor", type=float, default=1.2, help="frequency scale of every voice (1: unchanged)")
+    ap.add_argument("--per-voice", type=float, nargs="+", default=None, metavar="F",
+                    help="instead: these scales given to the training voices in name order, in turn")
     ap.add_argument("--tilt", type=float, default=0.0, help="treble at 3 kHz in dB")
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
     ap.add_argument("--scratch", action="store_true", help="also train from scratch per seed (last row)")
@@ -149,7 +163,9 @@ def main(argv=None) -> int:
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--save", type=Path, default=None,
                     help="keep each seed's recognitions and examples in this folder (pickle: scratch files only)")
-    ap.add_argument("--load", type=Path, default=None, help="make the tables from a --save folder instead")
+    ap.add_argument("--load", type=Path, default=None,
+                    help="make the tables from a --save folder instead (or from one of threshold_dev.py "
+                         "--variants --save: its recognitions and examples, without --scratch and --whole-speakers)")
     ap.add_argument("--show", type=float, nargs="+", default=[0.0, 0.02, 0.05, 0.1])
     args = ap.parse_args(argv)
 
@@ -166,7 +182,9 @@ def main(argv=None) -> int:
 
         for seed in args.seeds:
             with open(args.load / f"seed{seed}.pickle", "rb") as fh:
-                heard, ex, whole, scratch = pickle.load(fh)
+                kept = pickle.load(fh)
+            # a threshold_dev.py --variants --save folder holds (recognitions, examples) only
+            heard, ex, whole, scratch = kept if len(kept) == 4 else (*kept, None, None)
             config = CalibrationConfig(seed=seed, settings=settings)
             tables.new_seed()
             for v, make in table.items():
@@ -176,7 +194,7 @@ def main(argv=None) -> int:
         sets = heard
     else:
         sets = gather(args, table, names, tables)
-    print(f"far voices: factor {args.factor:g}, tilt {args.tilt:g} dB; seeds {args.seeds}: mean (min-max); "
+    print(f"far voices: factor {args.per_voice or args.factor}, tilt {args.tilt:g} dB; seeds {args.seeds}: mean (min-max); "
           f"no-command sets: {', '.join(n for n in NO_COMMAND if n in sets)}\n")
     tables.print(args.show)
     return 0
@@ -208,7 +226,9 @@ def gather(args, table, names, tables):
     sets = None
     with tempfile.TemporaryDirectory() as tmp:
         t0 = time.process_time()
-        manifest = write_far_training(Path(tmp), args.factor, args.tilt)
+        factors = voice_factors(args.factor, args.per_voice)
+        print("scales: " + ", ".join(f"{v} {f:g}" for v, f in factors.items()), file=sys.stderr)
+        manifest = write_far_training(Path(tmp), factors, args.tilt)
         utterances = read_manifest(manifest)
         print(f"far copies ({len(utterances)}) {time.process_time() - t0:.0f} s cpu", file=sys.stderr, flush=True)
         for seed in args.seeds:
@@ -233,8 +253,9 @@ def gather(args, table, names, tables):
                 print(f"seed {seed}: whole speakers {sorted(spk)}", file=sys.stderr)
             t1 = time.process_time()
             if sets is None:
-                voice = None if args.factor == 1.0 and args.tilt == 0.0 else (
-                    lambda w: far_wave(w, args.factor, args.tilt))
+                def voice(wave, speaker):
+                    return far_wave(wave, factors[speaker], args.tilt)
+
                 sets = dev_sets(model, args.joined, snrs=(20.0, 10.0), no_command=True, voice=voice)
                 print("dev sets: " + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr)
             heard = light(decode_sets(model, sets, settings))
