@@ -166,6 +166,9 @@ def main(argv=None) -> int:
     ap.add_argument("--load", type=Path, default=None,
                     help="make the tables from a --save folder instead (or from one of threshold_dev.py "
                          "--variants --save: its recognitions and examples, without --scratch and --whole-speakers)")
+    ap.add_argument("--explain", nargs="+", default=None, metavar="SET",
+                    help="with --load: per seed, the measures of the right words of these sets below 0.05 beside "
+                         "the held-out right words (e.g. phrases 'real phrases')")
     ap.add_argument("--show", type=float, nargs="+", default=[0.0, 0.02, 0.05, 0.1])
     args = ap.parse_args(argv)
 
@@ -189,6 +192,8 @@ def main(argv=None) -> int:
             tables.new_seed()
             for v, make in table.items():
                 tables.add(v, heard, make(ex, whole, config), ex)
+            if args.explain:
+                explain(heard, ex, whole, args.explain, 0.05)
             if args.scratch and scratch is not None:
                 tables.add(names[-1], scratch[0], scratch[1], ex)
         sets = heard
@@ -198,6 +203,35 @@ def main(argv=None) -> int:
           f"no-command sets: {', '.join(n for n in NO_COMMAND if n in sets)}\n")
     tables.print(args.show)
     return 0
+
+
+def explain(heard, ex, whole, sets, threshold: float) -> None:
+    """Why the default calibration rates right words of ``sets`` low: each measure
+    standardised as the calibration does and its share of the log-odds, for the held-out
+    right words it was fitted on and for the right words of ``sets`` below ``threshold``."""
+    from wordspot.decoding.confidence import MEASURE_NAMES
+    from wordspot.evaluation.calibrate import fit_calibration
+    from wordspot.evaluation.reliability import word_hits
+
+    cal = fit_calibration(ex.subset(np.isin(ex.source, CLEAN)))
+    cols = [MEASURE_NAMES.index(n) for n in cal.names]
+    right = []
+    for ref, segs in [x for name in sets for x in heard[name]]:
+        right += [np.asarray(g.measures)[cols] for g, h in zip(segs, word_hits(ref, [g.word for g in segs])) if h]
+    right = np.array(right)
+    low = right[cal.predict(right) < threshold]
+    held = ex.measures[ex.right & (ex.source == "held-out")][:, cols]
+    print(f"{', '.join(sets)}: {len(low)} of {len(right)} right words below {threshold:g}; held-out right words "
+          f"below it {100 * np.mean(cal.predict(held) < threshold):.1f}%"
+          + ("" if whole is None else ", whole speakers' right words "
+             f"{100 * np.mean(cal.predict(whole.measures[whole.right & (whole.source == 'held-out')][:, cols]) < threshold):.1f}%"))
+    print("\n| measure | weight | held-out right words | right words below | log-odds, held-out right | log-odds, below |")
+    print("| --- | ---: | ---: | ---: | ---: | ---: |")
+    for j, n in enumerate(cal.names):
+        z = [(a[:, j].mean() - cal.means[j]) / cal.scales[j] if len(a) else float("nan") for a in (held, low)]
+        print(f"| `{n}` | {cal.coefficients[j]:+.2f} | {z[0]:+.2f} | {z[1]:+.2f} | {cal.coefficients[j] * z[0]:+.2f} | "
+              f"{cal.coefficients[j] * z[1]:+.2f} |")
+    print()
 
 
 def light(heard):
