@@ -166,6 +166,7 @@ def main(argv=None) -> int:
     ap.add_argument("--load", type=Path, default=None,
                     help="make the tables from a --save folder instead (or from one of threshold_dev.py "
                          "--variants --save: its recognitions and examples, without --scratch and --whole-speakers)")
+    ap.add_argument("--only", nargs="+", default=None, metavar="NAME", help="with --load: only these variants")
     ap.add_argument("--explain", nargs="+", default=None, metavar="SET",
                     help="with --load: per seed, the measures of the right words of these sets below 0.05 beside "
                          "the held-out right words (e.g. phrases 'real phrases')")
@@ -177,6 +178,8 @@ def main(argv=None) -> int:
 
     settings = DecoderSettings(min_confidence=0.0)
     table = variants(args.whole_speakers)
+    if args.only:
+        table = {k: v for k, v in table.items() if k in args.only}
     names = list(table) + (["from scratch (its own calibration)"] if args.scratch else [])
     tables = VariantTables(names)
     sets = None
