@@ -202,7 +202,8 @@ def main(argv=None) -> int:
         sets = heard
     else:
         sets = gather(args, table, names, tables)
-    print(f"far voices: factor {args.per_voice or args.factor}, tilt {args.tilt:g} dB; seeds {args.seeds}: mean (min-max); "
+    print((f"recognitions kept in {args.load}" if args.load else f"far voices: factor {args.per_voice or args.factor}")
+          + f", tilt {args.tilt:g} dB; seeds {args.seeds}: mean (min-max); "
           f"no-command sets: {', '.join(n for n in NO_COMMAND if n in sets)}\n")
     tables.print(args.show)
     return 0
