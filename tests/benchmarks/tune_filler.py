@@ -85,20 +85,24 @@ def make_dev_model(out: Path, background_share: float | None = None, seed: int =
                   config=AdaptationConfig(seed=seed, **share))
 
 
-def dev_sets(model, n_joined: int, seed: int = 20261203, snrs=(10.0,), no_command: bool = False):
+def dev_sets(model, n_joined: int, seed: int = 20261203, snrs=(10.0,), no_command: bool = False, voice=None):
     """(name, list of (waveform, reference words)) for the dev sets.
 
     ``snrs``: the SNRs of the sets of dev commands in noise ("noisy 10 dB", ...), each
     with the same noise (babble for even, fan for odd recordings). ``no_command``: also the
     sets "everyday words" (the dev voices saying frequent words that are no command) and
     "impacts" (knocks, clinks, taps, scrapes) and "other impacts" (a second recipe, dev only)
-    of ``dev_no_command.py``."""
+    of ``dev_no_command.py``. ``voice``: a function ``(waveform, speaker)`` applied to every
+    recording of the dev voices and every real phrase (``far_voices_dev.py``: another vocal
+    tract), not to the sets without commands."""
     from wordspot.audio.reading import load_audio
 
     rec = REPO / "recordings"
     held = set(dev_voices(rec / "voices.csv"))
     words = [r for r in _rows(rec / "train.csv") if r["speaker"] in held]
-    sets = {"words": [(load_audio(rec / r["path"], sample_rate=RATE), r["transcript"].split()) for r in words]}
+    voice = voice or (lambda w, _: w)
+    sets = {"words": [(voice(load_audio(rec / r["path"], sample_rate=RATE), r["speaker"]), r["transcript"].split())
+                      for r in words]}
 
     rng = np.random.default_rng(seed)
     by_voice = defaultdict(list)
@@ -139,7 +143,8 @@ def dev_sets(model, n_joined: int, seed: int = 20261203, snrs=(10.0,), no_comman
 
     real = dev_phrase_set()
     if real:
-        sets["real phrases"] = real
+        speakers = dev_voices(rec / "voices.csv")  # dev_phrases.py: phrase i said by dev voice i mod 3, in this order
+        sets["real phrases"] = [(voice(w, speakers[i % len(speakers)]), ref) for i, (w, ref) in enumerate(real)]
 
     # the dev commands in babble (other dev voices' speech) or fan noise at 10 dB SNR
     from wordspot.audio.augment import babble, mix_at_snr, speech_span, steady_noise, talker_stream
