@@ -16,9 +16,10 @@ Steps:
    docs/experiments/2026-12-02-adaptation.md) stay fair; add
    ``--manifests recordings/starter/train.csv recordings/starter/dev.csv`` to use them too.
 3. Add the state scorer (:mod:`wordspot.acoustic.scorer`): align the same train split,
-   plus background-only items (noise alone, labelled with the pause unit's states), a noisy
-   copy of every recording (its recording's labels) and copies played 0.9 and 1.1 times
-   as fast (each aligned through its own chain), with
+   plus background-only items (noise alone, labelled with the pause unit's states), items
+   of impacts alone (knocks, clinks, taps, scrapes; also pause-labelled, ``--scorer-impacts``,
+   never cached), a noisy copy of every recording (its recording's labels) and copies
+   played 0.9 and 1.1 times as fast (each aligned through its own chain), with
    the model just trained (:func:`wordspot.training.frame_labels.align_frames`), fit the
    network on those frame labels (:func:`wordspot.training.scorer_fit.fit_scorer`), measure
    its frame accuracy on the dev split's alignment (and on a noisy copy of the dev split with
@@ -82,6 +83,16 @@ SCORER_SEED = 0
 SCORER_NOISE_COPIES = 1
 SCORER_SNR_DB = (0.0, 25.0)
 SCORER_SPEEDS = (0.9, 1.1)
+#: Items of impacts alone (knocks, clinks, taps, scrapes; the training's background kind
+#: "impacts", :mod:`wordspot.audio.impacts`) for the scorer, as a share of the recordings,
+#: labelled with the pause states (as adaptation's ``scorer_impacts`` does), so that the
+#: scorer's pause posterior rises on impulsive kitchen sounds; 0: none. 0.1 on dev, three
+#: seeds (docs/experiments/2026-12-03-starter-impacts.md): impact clips with a command at
+#: the default threshold 51.7% -> 3.3%, the dev-only second kind 56.7% -> 21.1%, commands
+#: and other talk within the seeds' spread, commands at 10 dB 1.4 points worse.
+SCORER_IMPACT_SHARE = 0.1
+#: Separates the scorer's impact items from the background items (same seed).
+IMPACT_STREAM = 0x1A4C7
 DEV = CORPUS / "dev.csv"
 
 
@@ -222,6 +233,43 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
     return Aligned(got.frames, got.labels, kinds, [str(it.path) for it in got.items], len(got.skipped))
 
 
+def impact_aligned(model, n_recordings: int, share: float, *, seed: int, jobs: int, quiet: bool) -> Aligned:
+    """``background_count(n_recordings, share)`` items of impacts alone (background kind
+    ``impacts``, drawn with ``seed`` on a stream of their own), each aligned to the chain
+    of an empty transcript with ``model``: every frame gets a pause mixture. Kind
+    ``impacts``; items no path fits are left out (counted as skipped)."""
+    import numpy as np
+
+    from wordspot.acoustic.gmm import scoring_matrix
+    from wordspot.acoustic.graph import compose
+    from wordspot.training.backgrounds import background_count, background_items
+    from wordspot.training.cluster import using
+    from wordspot.training.data import chain_slots
+    from wordspot.training.frame_labels import align_chunk
+    from wordspot.training.items import CHUNK_SIZE
+
+    count = background_count(n_recordings, share)
+    if not count:
+        return Aligned([], [], [], [], 0)
+    t0 = time.monotonic()
+    graph = compose(chain_slots((), model.lexicon, model.units), model.units)
+    items = background_items(count, [], [], graph, model.features, seed=seed + IMPACT_STREAM, jobs=jobs,
+                             quiet=quiet, kinds=(("impacts", 1),))
+    chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
+    mix = model.mixtures
+    with using(None, jobs if len(chunks) > 1 else 1) as ex:
+        got = [one for part in ex.map(align_chunk, [(c,) for c in chunks],
+                                      common=(scoring_matrix(mix), mix.n_components), label="alignment")
+               for one in part]
+    keep = [(it, y) for it, (score, y) in zip(items, got) if np.isfinite(score)]
+    out = Aligned([np.asarray(it.frames, dtype=np.float32) for it, _ in keep], [y for _, y in keep],
+                  ["impacts"] * len(keep), [str(it.path) for it, _ in keep], len(items) - len(keep))
+    print(f"{NAMES[model.features.sample_rate]} impacts: {len(keep)} items of impacts aligned "
+          f"({sum(len(y) for y in out.labels)} frames, {out.skipped} without a path), "
+          f"{time.monotonic() - t0:.0f} s", flush=True)
+    return out
+
+
 def input_frames(model, got: Aligned, manifests: list[Path], kind: str, *, background_share: float, seed: int,
                  noise_copies: int = 0, snr_db: tuple = SCORER_SNR_DB, cache: Path | None = None,
                  tag: str = "train", check_every: int = 97) -> list:
@@ -333,9 +381,11 @@ def _pair(got: Aligned):
 
 
 def add_scorer(path: Path, jobs: int, quiet: bool, manifests: list[Path], config, cache: Path | None = None,
-               noise_copies: int = SCORER_NOISE_COPIES, speeds: tuple = SCORER_SPEEDS) -> Path:
-    """Fit the state scorer of the model file ``path`` on its alignment of ``manifests`` and
-    write the model back with it (atomically)."""
+               noise_copies: int = SCORER_NOISE_COPIES, speeds: tuple = SCORER_SPEEDS,
+               impact_share: float = SCORER_IMPACT_SHARE) -> Path:
+    """Fit the state scorer of the model file ``path`` on its alignment of ``manifests``
+    (plus ``impact_share`` items of impacts alone, :func:`impact_aligned`, never cached)
+    and write the model back with it (atomically)."""
     from wordspot.model import load_model, save_model
     from wordspot.training.scorer_fit import fit_scorer_with_report
 
@@ -344,6 +394,10 @@ def add_scorer(path: Path, jobs: int, quiet: bool, manifests: list[Path], config
     name = model.info.get("name", path.stem)
     train = aligned(model, manifests, jobs=jobs, background_share=SCORER_BACKGROUND_SHARE, seed=config.seed,
                     quiet=quiet, cache=cache, noise_copies=noise_copies, speeds=speeds)
+    impacts = impact_aligned(model, train.kinds.count("clean"), impact_share, seed=config.seed, jobs=jobs,
+                             quiet=quiet)
+    train = Aligned(train.frames + impacts.frames, train.labels + impacts.labels, train.kinds + impacts.kinds,
+                    train.paths + impacts.paths, train.skipped)
     t_align = time.monotonic() - t0
     # copies of one recording are held out together (early stopping on unseen recordings)
     scorer, fit = fit_scorer_with_report(train.frames, train.labels, model.mixtures.n_mixtures, config,
@@ -360,8 +414,10 @@ def add_scorer(path: Path, jobs: int, quiet: bool, manifests: list[Path], config
     model.info["scorer"] = {
         "made_from": [str(m.relative_to(REPO)) if m.is_relative_to(REPO) else str(m) for m in manifests],
         "labels": "forced alignment with this model's mixtures (training chains; background-only "
-                  f"items, share {SCORER_BACKGROUND_SHARE}, labelled with the pause states; noisy copies "
-                  "with their clean recording's labels; speed copies with their own alignment)",
+                  f"items, share {SCORER_BACKGROUND_SHARE}, and items of impacts alone, share {impact_share:g}, "
+                  "labelled with the pause states; noisy copies with their clean recording's labels; speed "
+                  "copies with their own alignment)",
+        "impact_share": float(impact_share), "impact_items": len(impacts.labels),
         "noise_copies": int(noise_copies), "noise_snr_db": [float(v) for v in SCORER_SNR_DB],
         "speeds": [float(v) for v in speeds],
         "hidden": list(config.hidden), "context": int(config.context), "seed": int(config.seed),
@@ -456,6 +512,9 @@ def main(argv=None) -> int:
                     help=f"noisy copies of every recording for the scorer (default {SCORER_NOISE_COPIES})")
     ap.add_argument("--scorer-speeds", type=float, nargs="*", default=list(SCORER_SPEEDS),
                     help=f"speed copies for the scorer (default {' '.join(map(str, SCORER_SPEEDS))}; none: clean only)")
+    ap.add_argument("--scorer-impacts", type=float, default=SCORER_IMPACT_SHARE,
+                    help="items of impacts alone for the scorer, as a share of the recordings "
+                         f"(default {SCORER_IMPACT_SHARE:g}; 0: none)")
     ap.add_argument("--align-cache", type=Path, default=None,
                     help="keep the alignments in this folder and reuse them (dev runs)")
     ap.add_argument("--calibration-only", action="store_true",
@@ -482,6 +541,10 @@ def main(argv=None) -> int:
         except TrainingError as exc:
             print(f"build_starters.py: error: {exc}", file=sys.stderr)
             return 2
+        if not (0.0 <= args.scorer_impacts <= 1.0):
+            print(f"build_starters.py: error: --scorer-impacts must be a share from 0 to 1 (e.g. 0.1), "
+                  f"got {args.scorer_impacts:g}", file=sys.stderr)
+            return 2
         if args.scorer_noise_copies < 0 or any(not (0.5 <= v <= 2.0) for v in args.scorer_speeds):
             print("build_starters.py: error: --scorer-noise-copies must be >= 0 and --scorer-speeds "
                   "factors from 0.5 to 2 (e.g. 0.9 1.1)", file=sys.stderr)
@@ -500,7 +563,8 @@ def main(argv=None) -> int:
             path = train_one(rate, args.jobs, args.mixtures, args.quiet, args.manifests, args.out)
         if config is not None:
             add_scorer(path, args.jobs, args.quiet, args.manifests, config, args.align_cache,
-                       noise_copies=args.scorer_noise_copies, speeds=tuple(args.scorer_speeds))
+                       noise_copies=args.scorer_noise_copies, speeds=tuple(args.scorer_speeds),
+                       impact_share=args.scorer_impacts)
         if not args.no_calibration:
             add_calibration(path, args.quiet)
     print(f"starters rebuilt in {time.monotonic() - t0:.0f} s")

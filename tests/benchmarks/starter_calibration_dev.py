@@ -24,6 +24,14 @@ one-word recordings of other words (``--more-words``) among the wrong examples, 
 dev sets "everyday words" and "impacts" (``dev_no_command.py``)::
 
     python tests/benchmarks/starter_calibration_dev.py --no-command --seeds 0 1 2
+
+``--models`` scores other starter files instead of the shipped one (candidate scorers, e.g.
+built with ``build_starters.py --scorer-only --out DIR``), each under its own label; every
+model recognises the same dev sets and gathers its own calibration examples (the state
+scorer's posterior measures differ), and the rows are "LABEL / variant"::
+
+    python tests/benchmarks/starter_calibration_dev.py --no-command --seeds 0 \
+        --models today=wordspot/starters/starter-16k.model impacts0.1=/tmp/i10/starter.model
 """
 
 from __future__ import annotations
@@ -73,27 +81,59 @@ def main(argv=None) -> int:
     ap.add_argument("--impacts", type=int, default=8, help="with --no-command: impact clips per vocabulary")
     ap.add_argument("--more-words", type=int, default=20,
                     help="with --no-command: more one-word recordings of other words per vocabulary")
+    ap.add_argument("--models", nargs="+", default=None, metavar="LABEL=PATH",
+                    help="starter model files to score, each under a label (default: the shipped 16 kHz starter)")
+    ap.add_argument("--variants", nargs="+", default=None,
+                    help="the calibration variants to fit (default: all of the chosen table's)")
     args = ap.parse_args(argv)
     variants = NO_COMMAND_VARIANTS if args.no_command else VARIANTS
+    if args.variants:
+        unknown = [v for v in args.variants if v not in variants]
+        if unknown:
+            print(f"unknown variant(s) {unknown}; choose from {list(variants)}", file=sys.stderr)
+            return 2
+        variants = {v: variants[v] for v in args.variants}
 
     from wordspot.corpus import read_manifest
     from wordspot.decoding.decoder import DecoderSettings
-    from wordspot.evaluation.calibrate import CalibrationConfig, fit_calibration
-    from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, starter_calibration_examples
     from wordspot.language.lexicon import read_lexicon
     from wordspot.model import load_model
     from wordspot.starters import starter_path
 
-    model = load_model(starter_path("starter"))
-    bakery = replace(model, lexicon=read_lexicon(REPO / "lexicon" / "bakery.txt"))
+    named = {}
+    for entry in args.models or [f"shipped={starter_path('starter')}"]:
+        label, _, path = entry.rpartition("=")
+        if not Path(path).is_file():
+            print(f"--models: {path} is no file (give LABEL=PATH of a starter model)", file=sys.stderr)
+            return 2
+        named[label or Path(path).stem] = Path(path)
+    bakery_lex = read_lexicon(REPO / "lexicon" / "bakery.txt")
     dev = read_manifest(REPO / "recordings" / "starter" / "dev.csv")
     settings = DecoderSettings(min_confidence=0.0)
-    t0 = time.process_time()
-    sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0), no_command=args.no_command)
-    heard = decode_sets(bakery, sets, settings)
-    print(f"dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
-          + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
-    tables = VariantTables(variants)
+    sets = None
+    rows = {(label, v): kinds for label in named for v, kinds in variants.items()}
+    tables = VariantTables([f"{label} / {v}" for label, v in rows] if args.models else variants)
+    for label, path in named.items():
+        model = load_model(path)
+        bakery = replace(model, lexicon=bakery_lex)
+        if sets is None:
+            sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0), no_command=args.no_command)
+        t0 = time.process_time()
+        heard = decode_sets(bakery, sets, settings)
+        print(f"{label}: dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
+              + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
+        _score(args, model, dev, heard, variants, tables, label if args.models else None)
+    print(f"starters {', '.join(f'{k} ({v})' for k, v in named.items())}; {args.noisy} noisy copies, "
+          f"{args.phrases} phrases per vocabulary; calibration seeds {args.seeds}: mean (min-max)\n")
+    tables.print(args.show)
+    return 0
+
+
+def _score(args, model, dev, heard, variants, tables, label) -> None:
+    """Gather the calibration examples of ``model`` per seed and add each variant's figures."""
+    from wordspot.evaluation.calibrate import CalibrationConfig, fit_calibration
+    from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, starter_calibration_examples
+
     for seed in args.seeds:
         t0 = time.process_time()
         config = (StarterCalibrationConfig(seed=seed, impacts=args.impacts, more_words=args.more_words)
@@ -109,13 +149,9 @@ def main(argv=None) -> int:
         tables.new_seed()
         for v, kinds in variants.items():
             sub = ex.subset(np.isin(ex.source, kinds))
-            tables.add(v, heard, fit_calibration(sub, config=fit_config), sub)
-        print(f"seed {seed}: {ex.right.size} words ({int(ex.right.sum())} right), cpu "
+            tables.add(f"{label} / {v}" if label else v, heard, fit_calibration(sub, config=fit_config), sub)
+        print(f"{label or 'starter'} seed {seed}: {ex.right.size} words ({int(ex.right.sum())} right), cpu "
               f"{time.process_time() - t0:.0f} s", file=sys.stderr, flush=True)
-    print(f"starter {model.info.get('name', 'starter')}; {args.noisy} noisy copies, {args.phrases} phrases per "
-          f"vocabulary; seeds {args.seeds}: mean (min-max)\n")
-    tables.print(args.show)
-    return 0
 
 
 if __name__ == "__main__":

@@ -61,3 +61,53 @@ def test_scorer_data_kinds_and_cache(tiny, tmp_path):
     for a, b, c, d in zip(got.frames, again.frames, got.labels, again.labels):
         np.testing.assert_array_equal(a, b)
         np.testing.assert_array_equal(c, d)
+
+
+def _pause_mixtures(model) -> set:
+    from wordspot.acoustic.units import PAUSE_UNIT
+
+    u = model.units.index(PAUSE_UNIT)
+    return set(model.units.state_mixture[u, : model.units.n_states[u]].tolist())
+
+
+def test_impact_items_are_pause_frames_drawn_from_their_seed(tiny):
+    from wordspot.training.backgrounds import background_count
+
+    build = _script()
+    model, _ = tiny
+    got = build.impact_aligned(model, 60, 0.5, seed=3, jobs=1, quiet=True)
+    assert len(got.labels) == len(got.frames) == background_count(60, 0.5) == 30
+    assert got.kinds == ["impacts"] * 30 and got.skipped == 0
+    assert all(p.endswith("-impacts") for p in got.paths) and len(set(got.paths)) == 30
+    # labelled with the pause unit's states alone, as the empty transcript's chain has nothing else
+    assert set(np.concatenate(got.labels).tolist()) <= _pause_mixtures(model)
+    assert all(f.shape == (len(y), model.features.dim) for f, y in zip(got.frames, got.labels))
+    again = build.impact_aligned(model, 60, 0.5, seed=3, jobs=2, quiet=True)
+    for a, b in zip(got.frames, again.frames):
+        np.testing.assert_array_equal(a, b)
+    other = build.impact_aligned(model, 60, 0.5, seed=4, jobs=1, quiet=True)
+    assert not np.array_equal(got.frames[0][:5], other.frames[0][:5])
+    assert build.impact_aligned(model, 60, 0.0, seed=3, jobs=1, quiet=True).labels == []
+    # at least MIN_BACKGROUNDS when the share is above zero
+    assert len(build.impact_aligned(model, 8, 0.1, seed=3, jobs=1, quiet=True).labels) == 20
+
+
+def test_scorer_step_adds_the_impact_items_and_records_their_share(tiny, tmp_path, monkeypatch):
+    from wordspot.model import load_model, save_model
+    from wordspot.training.scorer_fit import ScorerConfig
+
+    build = _script()
+    model, manifest = tiny
+    monkeypatch.setattr(build, "DEV", tmp_path / "no-dev.csv")  # no dev figures for the tone corpus
+    config = ScorerConfig(hidden=(8,), context=1, max_frames=5000, max_epochs=2, seed=1)
+    made = {}
+    for share in (0.0, 0.5):
+        path = save_model(model, tmp_path / f"starter-{share}.model")
+        build.add_scorer(path, 1, True, [manifest], config, noise_copies=0, speeds=(), impact_share=share)
+        made[share] = load_model(path)
+    none, some = made[0.0].info["scorer"], made[0.5].info["scorer"]
+    assert (none["impact_share"], none["impact_items"]) == (0.0, 0)
+    # 8 recordings: round(0.5 * 8) = 4, raised to MIN_BACKGROUNDS
+    assert (some["impact_share"], some["impact_items"]) == (0.5, 20)
+    assert "impacts alone, share 0.5" in some["labels"]
+    assert made[0.5].scorer is not None and not made[0.5].scorer.same_as(made[0.0].scorer)
