@@ -112,6 +112,30 @@ def shift_to_miss(cal, right_measures: np.ndarray, most: float, threshold: float
     return cal if need <= 0 else replace(cal, intercept=cal.intercept + need)
 
 
+class ClippedCalibration:
+    """A fitted calibration whose measures are clipped, before the standardisation, to the
+    range its own examples spanned (all measures, or only those named in ``only``): no
+    extrapolation of a linear log-odds beyond what the fit saw (common practice for linear
+    models used outside their data, no source). Dev-only; same ``names`` / ``decision`` /
+    ``predict`` as :class:`wordspot.util.logistic.Calibration`."""
+
+    def __init__(self, cal, examples, only=None):
+        from wordspot.decoding.confidence import MEASURE_NAMES
+        from wordspot.util.logistic import sigmoid
+
+        self.cal, self.names, self._sigmoid = cal, cal.names, sigmoid
+        x = examples.measures[:, [MEASURE_NAMES.index(n) for n in cal.names]]
+        keep = np.array([only is None or n in only for n in cal.names])
+        self.lo = np.where(keep, x.min(axis=0), -np.inf)
+        self.hi = np.where(keep, x.max(axis=0), np.inf)
+
+    def decision(self, X):
+        return self.cal.decision(np.clip(np.asarray(X, dtype=np.float64), self.lo, self.hi))
+
+    def predict(self, X):
+        return self._sigmoid(self.decision(X))
+
+
 def variants(whole: bool):
     """name -> f(examples of held-out takes, examples of whole speakers or None, config) -> Calibration."""
     from wordspot.decoding.confidence import BASE_MEASURE_NAMES, DEFAULT_MIN_CONFIDENCE
@@ -133,6 +157,10 @@ def variants(whole: bool):
             kinds(ex, CLEAN), config=c, names=[n for n in calibration_measures(ex.measures) if n != "acoustic_per_frame"]),
         "+ noisy copies": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN + NOISY), config=c),
         "+ noisy + phrases": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN + NOISY + PHRASE), config=c),
+        "measures clipped to the examples' range": lambda ex, w, c: ClippedCalibration(
+            fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN)),
+        "acoustic_per_frame clipped to the examples' range": lambda ex, w, c: ClippedCalibration(
+            fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN), only=("acoustic_per_frame",)),
         "held-out right words <= 1% below": lambda ex, w, c: shift_to_miss(
             fit_calibration(kinds(ex, CLEAN), config=c), right_of(ex), 0.01, DEFAULT_MIN_CONFIDENCE),
     }
