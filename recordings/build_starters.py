@@ -191,7 +191,8 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
     """Frames and mixture labels of the manifests' recordings (plus background-only items,
     noisy copies with their clean recording's labels and speed copies with their own
     alignment), aligned with ``model``; read from / written to ``cache/<tag>...-<rate>.npz``
-    when given."""
+    when given, the name carrying what the items depend on besides the model (background
+    share, seed, noisy and speed copies), so another seed never reads this one's copies."""
     import numpy as np
 
     from wordspot.audio.augment import NoiseSettings
@@ -201,6 +202,10 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
     rate = model.features.sample_rate
     speeds = tuple(float(s) for s in speeds if float(s) != 1.0)
     name = tag
+    if background_share:
+        name += f"-bg{background_share:g}"
+    if background_share or noise_copies:
+        name += f"-seed{seed}"
     if noise_copies:
         name += f"-noise{noise_copies}x{snr_db[0]:g}-{snr_db[1]:g}dB"
     if speeds:
@@ -299,6 +304,10 @@ def input_frames(model, got: Aligned, manifests: list[Path], kind: str, *, backg
     rate = settings.sample_rate
     speeds = sorted({float(k.split()[1]) for k in got.kinds if k.startswith("speed")}, key=lambda f: f)
     name = tag
+    if background_share:
+        name += f"-bg{background_share:g}"
+    if background_share or noise_copies:
+        name += f"-seed{seed}"
     if noise_copies:
         name += f"-noise{noise_copies}x{snr_db[0]:g}-{snr_db[1]:g}dB"
     if speeds:

@@ -55,12 +55,16 @@ def test_scorer_data_kinds_and_cache(tiny, tmp_path):
     assert got.only(["clean", "background"]).kinds == ["clean"] * n + got.kinds[4 * n:]
     # the cache gives back the same items, under a name that says what was added
     files = sorted(p.name for p in tmp_path.iterdir())
-    assert files == [f"train-noise1x0-25dB-speed0.9,1.1-{model.features.sample_rate}.npz"]
+    assert files == [f"train-bg0.5-seed3-noise1x0-25dB-speed0.9,1.1-{model.features.sample_rate}.npz"]
     again = build.aligned(model, [manifest], **kw)
     assert again.kinds == got.kinds and again.paths == got.paths and again.skipped == got.skipped == 0
     for a, b, c, d in zip(got.frames, again.frames, got.labels, again.labels):
         np.testing.assert_array_equal(a, b)
         np.testing.assert_array_equal(c, d)
+    # another seed draws other noisy copies and background items: its own file, not this one's
+    other = build.aligned(model, [manifest], **{**kw, "seed": 4})
+    assert len(list(tmp_path.iterdir())) == 2
+    assert not all(np.array_equal(a, b) for a, b in zip(got.frames[3 * n:], other.frames[3 * n:]))
 
 
 def _pause_mixtures(model) -> set:
