@@ -4,6 +4,7 @@ Words are sequences of "phones"; each phone is a sine at its own frequency with 
 jitter and noise, words are framed by silence. Small enough to train in seconds.
 """
 
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -12,6 +13,18 @@ import soundfile as sf
 TONES = {"AA": 300.0, "B": 700.0, "K": 1200.0, "IY": 2000.0, "S": 3500.0, "T": 5000.0}
 WORDS = {"bake": ("B", "AA", "K"), "key": ("K", "IY"), "toss": ("T", "AA", "S"), "seat": ("S", "IY", "T")}
 RATE = 16000
+
+
+@contextmanager
+def tones_scaled(factor: float):
+    """Within the block every phone's tone is ``factor`` times higher (another "voice")."""
+    saved = dict(TONES)
+    try:
+        for k in TONES:
+            TONES[k] *= factor
+        yield
+    finally:
+        TONES.update(saved)
 
 
 def _phone(rng, freq, seconds):

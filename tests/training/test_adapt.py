@@ -120,13 +120,8 @@ def tone_models(tmp_path_factory):
     model, _ = train(read_manifest(manifest), lex, config=SMALL)
     import tone_corpus
 
-    saved = dict(tone_corpus.TONES)
-    try:
-        for k in tone_corpus.TONES:
-            tone_corpus.TONES[k] *= 1.06
+    with tone_corpus.tones_scaled(1.06):
         other, _ = make_corpus(folder / "b", rng, n_utterances=12)
-    finally:
-        tone_corpus.TONES.update(saved)
     return model, lex, read_manifest(other)
 
 

@@ -28,14 +28,9 @@ def shifted(tmp_path_factory):
     manifest, lex_path = make_corpus(folder / "a", rng, n_utterances=30)
     lex = read_lexicon(lex_path)
     model, _ = train(read_manifest(manifest), lex, config=SMALL)
-    saved = dict(tone_corpus.TONES)
-    try:
-        for k in tone_corpus.TONES:
-            tone_corpus.TONES[k] *= 1.12
+    with tone_corpus.tones_scaled(1.12):
         many, _ = make_corpus(folder / "b", rng, n_utterances=60)
         held, _ = make_corpus(folder / "c", rng, n_utterances=16)
-    finally:
-        tone_corpus.TONES.update(saved)
     return model, lex, read_manifest(many), read_manifest(held)
 
 

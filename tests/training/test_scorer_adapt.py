@@ -266,13 +266,8 @@ def tone_start(tmp_path_factory):
     scorer = fit_scorer([x for x, _ in data], [y for _, y in data], model.mixtures.n_mixtures,
                         ScorerConfig(hidden=(24,), context=2, max_epochs=10, learning_rate=0.01))
     start = replace(model, scorer=scorer)
-    saved = dict(tone_corpus.TONES)
-    try:
-        for k in tone_corpus.TONES:
-            tone_corpus.TONES[k] *= 1.15
+    with tone_corpus.tones_scaled(1.15):
         other, _ = make_corpus(folder / "b", rng, n_utterances=16)
-    finally:
-        tone_corpus.TONES.update(saved)
     start_path = save_model(start, folder / "start.model")
     return start, lex, other, start_path, lex_path
 
