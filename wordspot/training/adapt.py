@@ -1115,7 +1115,8 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
     the progress bars are left out (a training run beside other work). Carries
     ``runs_beside`` (True: the training on everything may run while the calibration
     recognises, it reads only the strength the first call chose; and, with
-    ``config.reuse_first_passes`` or ``reuse=True``, the first call's pass statistics),
+    ``config.reuse_first_passes``, the first call's pass statistics, which are kept only
+    then; ``reuse=False`` on a later call adapts afresh all the same),
     ``start_calibration`` (the starting model's calibration, the fallback) and
     ``takes_held_out``.
     """
@@ -1128,7 +1129,7 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
         if held_out is None and config.strength is None and chosen:
             cfg = replace(config, strength=chosen["follow_passes"])
         reuse = config.reuse_first_passes if reuse is None else reuse
-        record = {} if held_out is not None and again else None
+        record = {} if held_out is not None and again and config.reuse_first_passes else None
         model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest,
                                quiet=quiet if say is None else True, report=report if say is None else say,
                                held_out=held_out, cache=cache, held_out_copies=again, record=record,
