@@ -185,6 +185,20 @@ def _kind(item) -> str:
     return "clean" if item.speed == 1.0 else f"speed {item.speed:g}"
 
 
+def _cache_name(tag: str, background_share: float, seed: int, noise_copies: int, snr_db: tuple, speeds) -> str:
+    """The alignment cache's file stem: everything the items depend on besides the model."""
+    name = tag
+    if background_share:
+        name += f"-bg{background_share:g}"
+    if background_share or noise_copies:
+        name += f"-seed{seed}"
+    if noise_copies:
+        name += f"-noise{noise_copies}x{snr_db[0]:g}-{snr_db[1]:g}dB"
+    if speeds:
+        name += "-speed" + ",".join(f"{s:g}" for s in speeds)
+    return name
+
+
 def aligned(model, manifests: list[Path], *, jobs: int, background_share: float, seed: int, quiet: bool,
             cache: Path | None = None, tag: str = "train", noise_copies: int = 0,
             snr_db: tuple = SCORER_SNR_DB, speeds: tuple = ()) -> Aligned:
@@ -201,15 +215,7 @@ def aligned(model, manifests: list[Path], *, jobs: int, background_share: float,
 
     rate = model.features.sample_rate
     speeds = tuple(float(s) for s in speeds if float(s) != 1.0)
-    name = tag
-    if background_share:
-        name += f"-bg{background_share:g}"
-    if background_share or noise_copies:
-        name += f"-seed{seed}"
-    if noise_copies:
-        name += f"-noise{noise_copies}x{snr_db[0]:g}-{snr_db[1]:g}dB"
-    if speeds:
-        name += "-speed" + ",".join(f"{s:g}" for s in speeds)
+    name = _cache_name(tag, background_share, seed, noise_copies, snr_db, speeds)
     path = cache / f"{name}-{rate}.npz" if cache else None
     if path is not None and path.exists():
         with np.load(path, allow_pickle=False) as z:
@@ -245,13 +251,10 @@ def impact_aligned(model, n_recordings: int, share: float, *, seed: int, jobs: i
     ``impacts``; items no path fits are left out (counted as skipped)."""
     import numpy as np
 
-    from wordspot.acoustic.gmm import scoring_matrix
     from wordspot.acoustic.graph import compose
+    from wordspot.training.adapt import align_items
     from wordspot.training.backgrounds import background_count, background_items
-    from wordspot.training.cluster import using
     from wordspot.training.data import chain_slots
-    from wordspot.training.frame_labels import align_chunk
-    from wordspot.training.items import CHUNK_SIZE
 
     count = background_count(n_recordings, share)
     if not count:
@@ -260,12 +263,7 @@ def impact_aligned(model, n_recordings: int, share: float, *, seed: int, jobs: i
     graph = compose(chain_slots((), model.lexicon, model.units), model.units)
     items = background_items(count, [], [], graph, model.features, seed=seed + IMPACT_STREAM, jobs=jobs,
                              quiet=quiet, kinds=(("impacts", 1),))
-    chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
-    mix = model.mixtures
-    with using(None, jobs if len(chunks) > 1 else 1) as ex:
-        got = [one for part in ex.map(align_chunk, [(c,) for c in chunks],
-                                      common=(scoring_matrix(mix), mix.n_components), label="alignment")
-               for one in part]
+    got = align_items(items, model.mixtures, jobs=jobs)
     keep = [(it, y) for it, (score, y) in zip(items, got) if np.isfinite(score)]
     out = Aligned([np.asarray(it.frames, dtype=np.float32) for it, _ in keep], [y for _, y in keep],
                   ["impacts"] * len(keep), [str(it.path) for it, _ in keep], len(items) - len(keep))
@@ -303,15 +301,7 @@ def input_frames(model, got: Aligned, manifests: list[Path], kind: str, *, backg
     settings = model.features
     rate = settings.sample_rate
     speeds = sorted({float(k.split()[1]) for k in got.kinds if k.startswith("speed")}, key=lambda f: f)
-    name = tag
-    if background_share:
-        name += f"-bg{background_share:g}"
-    if background_share or noise_copies:
-        name += f"-seed{seed}"
-    if noise_copies:
-        name += f"-noise{noise_copies}x{snr_db[0]:g}-{snr_db[1]:g}dB"
-    if speeds:
-        name += "-speed" + ",".join(f"{f:g}" for f in speeds)
+    name = _cache_name(tag, background_share, seed, noise_copies, snr_db, speeds)
     path = cache / f"{name}-logmel{LOG_MEL_BANDS}-{rate}.npz" if cache else None
     if path is not None and path.exists():
         with np.load(path, allow_pickle=False) as z:

@@ -86,6 +86,7 @@ __all__ = [
     "vocabulary_for",
     "adapt_items",
     "align_for_scorer",
+    "align_items",
     "tune_scorer",
     "scorer_impact_items",
     "held_out_fit",
@@ -631,17 +632,23 @@ def align_for_scorer(items, mix: Mixtures, extra=(), *, jobs: int = 1) -> tuple[
     With ``jobs`` > 1 the items are shared among that many processes (the same result, in
     the same order)."""
     used = [it for it in items if not it.background] + list(extra)
-    chunks = [[(it.frames, it.graph) for it in used[i:i + CHUNK_SIZE]] for i in range(0, len(used), CHUNK_SIZE)]
-    with using(None, jobs if len(chunks) > 1 else 1) as ex:
-        got = [one for part in ex.map(align_chunk, [(c,) for c in chunks],
-                                      common=(scoring_matrix(mix), mix.n_components), label="alignment")
-               for one in part]
     frames, labels = [], []
-    for it, (score, y) in zip(used, got):
+    for it, (score, y) in zip(used, align_items(used, mix, jobs=jobs)):
         if np.isfinite(score):
             frames.append(np.asarray(it.frames, dtype=np.float32))
             labels.append(y)
     return frames, labels
+
+
+def align_items(items, mix: Mixtures, *, jobs: int = 1) -> list:
+    """``(score, mixture ids)`` of each item's forced alignment through its chain with
+    ``mix`` (:func:`wordspot.training.frame_labels.align_chunk`; score -inf where no path
+    fits), in the items' order; with ``jobs`` > 1 shared among that many processes."""
+    chunks = [[(it.frames, it.graph) for it in items[i:i + CHUNK_SIZE]] for i in range(0, len(items), CHUNK_SIZE)]
+    with using(None, jobs if len(chunks) > 1 else 1) as ex:
+        return [one for part in ex.map(align_chunk, [(c,) for c in chunks],
+                                       common=(scoring_matrix(mix), mix.n_components), label="alignment")
+                for one in part]
 
 
 def tune_scorer(start: AcousticModel, items, mix: Mixtures, config: ScorerAdaptConfig, report=None, extra=(),
