@@ -18,7 +18,11 @@ float32 arrays ``scorer_input_mean``, ``scorer_input_scale``, ``scorer_log_prior
 ``scorer_weight_<k>`` / ``scorer_bias_<k>`` for each layer ``k``, with header key
 ``scorer`` (``context``, ``layers``, ``hidden``: the activation; ``inputs`` when the
 network reads other frames than the model's features, e.g. ``log-mel``, absent =
-``cepstra``); absent = no scorer, so files without one load unchanged. The checksum covers these arrays as any other. The file is written to a
+``cepstra``); absent = no scorer, so files without one load unchanged. The optional voice
+mixture (:class:`wordspot.audio.voice_warp.VoiceMixture`, the judge of a recording's
+frequency warp) is stored as float64 arrays ``voice_weights``, ``voice_means`` and
+``voice_variances`` with header key ``voice`` (``components``); absent = none, and
+recognition then never warps. The checksum covers these arrays as any other. The file is written to a
 temporary name in the same folder, flushed to disk and renamed over the target, so a
 crash never leaves a half-written model.
 
@@ -43,6 +47,7 @@ from wordspot.audio.features import FeatureSettings
 from wordspot.acoustic.gmm import Mixtures
 from wordspot.acoustic.scorer import StateScorer
 from wordspot.audio.scorer_inputs import INPUT_KINDS, input_dim
+from wordspot.audio.voice_warp import VoiceMixture
 from wordspot.language.grammar import BigramCounts
 from wordspot.language.lexicon import Lexicon, parse_lexicon
 from wordspot.acoustic.units import UnitSet
@@ -87,6 +92,9 @@ class AcousticModel:
     scorer : StateScorer or None
         A network giving the posterior of every mixture id from a window of frames, used
         by the search when the decoder settings ask for it; None: the mixtures alone.
+    voice : VoiceMixture or None
+        A mixture of the training speech's features, by which recognition chooses each
+        recording's frequency warp (:mod:`wordspot.audio.voice_warp`); None: no warp.
     """
 
     features: FeatureSettings
@@ -97,6 +105,10 @@ class AcousticModel:
     info: dict = field(default_factory=dict)
     calibration: Calibration | None = None
     scorer: StateScorer | None = None
+    voice: VoiceMixture | None = None
+
+
+_VOICE_NAMES = ("voice_weights", "voice_means", "voice_variances")
 
 
 #: The activation of the scorer's hidden layers, as the header names it.
@@ -121,7 +133,10 @@ def _scorer_names(layers: int) -> set[str]:
 def _arrays(model: AcousticModel) -> dict[str, np.ndarray]:
     u, m = model.units, model.mixtures
     scorer = getattr(model, "scorer", None)
-    return {**({} if scorer is None else _scorer_arrays(scorer)),
+    voice = getattr(model, "voice", None)
+    extra = {} if voice is None else dict(zip(_VOICE_NAMES, (
+        np.ascontiguousarray(a, dtype=np.float64) for a in (voice.weights, voice.means, voice.variances))))
+    return {**({} if scorer is None else _scorer_arrays(scorer)), **extra,
         "unit_n_states": np.ascontiguousarray(u.n_states, dtype=np.int64),
         "unit_state_mixture": np.ascontiguousarray(u.state_mixture, dtype=np.int64),
         "unit_trans": np.ascontiguousarray(u.trans, dtype=np.float64),
@@ -186,6 +201,8 @@ def save_model(model: AcousticModel, path) -> Path:
                             "hidden": _SCORER_HIDDEN}
         if model.scorer.inputs != INPUT_KINDS[0]:  # absent = cepstra, so such files stay as before
             header["scorer"]["inputs"] = model.scorer.inputs
+    if getattr(model, "voice", None) is not None:
+        header["voice"] = {"components": model.voice.n_components}
     try:
         json.dumps(header)
     except (TypeError, ValueError) as exc:
@@ -253,6 +270,8 @@ def load_model(path) -> AcousticModel:
     expected = {written_as.get(name, name) for name in _ARRAY_NAMES}
     if "scorer" in header:
         expected |= _scorer_names(_scorer_layers(p, header["scorer"]))
+    if "voice" in header:
+        expected |= set(_VOICE_NAMES)
     if set(arrays) != expected:
         raise _damaged(p, "does not hold the expected tables")
     if header.get("checksum") != _checksum(arrays, header):  # over the names as written
@@ -341,5 +360,23 @@ def _build(p: Path, header: dict, a: dict) -> AcousticModel:
     scorer = None
     if "scorer" in header:
         scorer = _build_scorer(p, header["scorer"], a, units.n_mixtures, features.dim)
+    voice = None
+    if "voice" in header:
+        voice = _build_voice(p, header["voice"], a, features.dim)
     return AcousticModel(features, units, Mixtures(w, mu, var), lexicon, BigramCounts(words, counts),
-                         dict(info) if isinstance(info, dict) else {}, calibration, scorer)
+                         dict(info) if isinstance(info, dict) else {}, calibration, scorer, voice)
+
+
+def _build_voice(p: Path, settings, a: dict, dim: int) -> VoiceMixture:
+    k = settings.get("components") if isinstance(settings, dict) else None
+    tables = [a[name] for name in _VOICE_NAMES]
+    if any(t.dtype != np.float64 for t in tables):
+        raise _damaged(p, "holds voice mixture tables that are not float64")
+    try:
+        voice = VoiceMixture(*tables)
+    except ValueError as exc:
+        raise ModelFileError(f"{p}: the voice mixture is malformed ({exc}); {_RETRAIN}") from None
+    if type(k) is not int or voice.n_components != k or voice.dim != dim:
+        raise ModelFileError(f"{p}: the voice mixture has {voice.n_components} Gaussians over {voice.dim} values "
+                             f"(header: {k!r}), the features {dim}; {_RETRAIN}")
+    return voice

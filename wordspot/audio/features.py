@@ -24,7 +24,8 @@ warp=a)`` scales the frequency axis of the spectrum by ``a`` before the mel filt
 talker's formants move up (``a > 1``) or down (``a < 1``); the warp is piecewise linear so
 that the top of the band still maps to the top (see :func:`warp_frequencies`). ``warp=1``
 gives exactly the unwarped features. The warp is not a setting a model carries: recognition
-always uses the unwarped features.
+may choose one per recording (:mod:`wordspot.audio.voice_warp`), from the features of
+several factors computed over one power spectrum (:func:`features_for_warps`).
 
 The settings travel with a model (:meth:`FeatureSettings.to_dict`), so recognition always
 computes features the way training did.
@@ -55,6 +56,7 @@ __all__ = [
     "LOG_FLOOR",
     "warp_frequencies",
     "log_mel_bands",
+    "features_for_warps",
 ]
 
 #: Floor under the mel energies before the log, so silence gives a finite value.
@@ -466,7 +468,39 @@ def compute_features(wave, settings: FeatureSettings | None = None, *, warp: flo
     if not (_is_real(warp) and warp > 0):
         raise FeatureError(f"warp factor must be a number > 0 (1 = no warp), got {warp!r}")
     warp = float(warp)
-    mel = _power_spectrum(y, s) @ _cached_filterbank(s, warp)
+    return _cepstral_features(_power_spectrum(y, s) @ _cached_filterbank(s, warp), s)
+
+
+def features_for_warps(wave, settings: FeatureSettings, warps) -> tuple[list[np.ndarray], np.ndarray]:
+    """The features of ``wave`` at every warp factor of ``warps``, from one power spectrum.
+
+    Only the filterbank depends on the warp, so the framing and FFT are done once; each
+    entry equals ``compute_features(wave, settings, warp=a)`` bit for bit.
+
+    Returns
+    -------
+    features : list of np.ndarray, each (T, settings.dim) float32
+        In the order of ``warps``.
+    log_energy : np.ndarray, shape (T,), float64
+        Natural log of each frame's total power (after pre-emphasis and window; floored
+        at :data:`LOG_FLOOR`), for telling speech frames from quiet ones.
+
+    Raises
+    ------
+    FeatureError
+        As :func:`compute_features`, or an empty ``warps``.
+    """
+    y = _check_wave(wave, settings)
+    factors = [float(a) for a in warps]
+    if not factors or not all(_is_real(a) and a > 0 for a in factors):
+        raise FeatureError(f"warp factors must be one or more numbers > 0 (1 = no warp), got {list(warps)!r}")
+    power = _power_spectrum(y, settings)
+    log_energy = np.log(np.maximum(power.sum(axis=1), LOG_FLOOR))
+    return [_cepstral_features(power @ _cached_filterbank(settings, a), settings) for a in factors], log_energy
+
+
+def _cepstral_features(mel: np.ndarray, s: FeatureSettings) -> np.ndarray:
+    """Steps 5-10 of the module's pipeline on (T, n_mels) band energies."""
     logmel = np.log(np.maximum(mel, LOG_FLOOR))
     ceps = logmel @ _cached_dct(s.n_mels, s.n_cepstra)
     ceps *= lifter_weights(s.n_cepstra, s.lifter)
@@ -503,7 +537,7 @@ def _power_spectrum(y: np.ndarray, s: FeatureSettings) -> np.ndarray:
     return power
 
 
-def log_mel_bands(wave, settings: FeatureSettings, n_bands: int) -> np.ndarray:
+def log_mel_bands(wave, settings: FeatureSettings, n_bands: int, *, warp: float = 1.0) -> np.ndarray:
     """Natural log of ``n_bands`` mel-band energies per frame, (T, n_bands) float64.
 
     The same pre-emphasis, window, hop, FFT size, band limits and mel scale as
@@ -519,7 +553,9 @@ def log_mel_bands(wave, settings: FeatureSettings, n_bands: int) -> np.ndarray:
     if not (_is_int(n_bands) and n_bands >= 1):
         raise FeatureError(f"n_bands must be a whole number >= 1, got {n_bands!r}")
     y = _check_wave(wave, settings)
-    bank = _cached_filterbank(dataclasses.replace(settings, n_mels=int(n_bands)))
+    if not (_is_real(warp) and warp > 0):
+        raise FeatureError(f"warp factor must be a number > 0 (1 = no warp), got {warp!r}")
+    bank = _cached_filterbank(dataclasses.replace(settings, n_mels=int(n_bands)), float(warp))
     return np.log(np.maximum(_power_spectrum(y, settings) @ bank, LOG_FLOOR))
 
 

@@ -60,7 +60,8 @@ def normalise_per_utterance(frames: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(x / np.where(sd > _MIN_SD, sd, 1.0), dtype=np.float32)
 
 
-def scorer_inputs(wave, settings: FeatureSettings, kind: str, *, cepstra: np.ndarray | None = None) -> np.ndarray:
+def scorer_inputs(wave, settings: FeatureSettings, kind: str, *, cepstra: np.ndarray | None = None,
+                  warp: float = 1.0) -> np.ndarray:
     """The frames a scorer reading ``kind`` takes for ``wave``, (T, input_dim) float32.
 
     Parameters
@@ -72,7 +73,10 @@ def scorer_inputs(wave, settings: FeatureSettings, kind: str, *, cepstra: np.nda
     kind : str
         One of :data:`INPUT_KINDS`.
     cepstra : ndarray, optional
-        ``compute_features(wave, settings)`` when already at hand (not computed again).
+        ``compute_features(wave, settings, warp=warp)`` when already at hand (not computed again).
+    warp : float > 0
+        The frequency warp of the recording (:mod:`wordspot.audio.voice_warp`), applied
+        to the cepstra and the mel bands alike; 1: none.
 
     Raises
     ------
@@ -82,7 +86,8 @@ def scorer_inputs(wave, settings: FeatureSettings, kind: str, *, cepstra: np.nda
     _check_kind(kind)
     parts = []
     if kind in ("cepstra", "cepstra+log-mel"):
-        parts.append(compute_features(wave, settings) if cepstra is None else np.asarray(cepstra, np.float32))
+        parts.append(compute_features(wave, settings, warp=warp) if cepstra is None
+                     else np.asarray(cepstra, np.float32))
     if kind in ("log-mel", "cepstra+log-mel"):
-        parts.append(normalise_per_utterance(log_mel_bands(wave, settings, LOG_MEL_BANDS)))
+        parts.append(normalise_per_utterance(log_mel_bands(wave, settings, LOG_MEL_BANDS, warp=warp)))
     return parts[0] if len(parts) == 1 else np.ascontiguousarray(np.concatenate(parts, axis=1))

@@ -27,6 +27,7 @@ from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDEN
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
 from wordspot.audio.features import compute_features
+from wordspot.audio.voice_warp import choose_warp
 from wordspot.acoustic.gmm import Mixtures, scoring_matrix
 from wordspot.language.grammar import BigramPrior, GrammarSettings, prior_for_vocabulary
 from wordspot.decoding.filler import FillerSettings, check_penalty
@@ -110,6 +111,11 @@ class DecoderSettings:
         with a threshold above 0. Chosen on the demo's dev voices over three seeds
         (docs/experiments/2026-12-03-commands-amid-talk.md): other sentences with a
         command 23.9% -> 12.1% of files, real phrases WER 8.8% -> 9.7%.
+    voice_warp : bool
+        Warp each file's frequency axis by the factor under which its speech fits the
+        model's voice mixture best (:mod:`wordspot.audio.voice_warp`), so that an unheard
+        voice looks more like the training voices; no effect for a model without a voice
+        mixture, for features handed in directly, or for scanned and live audio.
     """
 
     beam: float = 250.0
@@ -128,6 +134,7 @@ class DecoderSettings:
     scorer_scale: float = 1.0
     talk_gap: float = 0.2
     talk_length: float = 0.5
+    voice_warp: bool = False
 
     def __post_init__(self) -> None:
         m = self.min_confidence
@@ -241,6 +248,9 @@ class Recognition:
         The best path's items in time order (:mod:`wordspot.decoding.context`): pauses,
         filler phones and words; a word's ``segment`` is its place among all the words
         heard, in time order (kept and dropped together).
+    warp : float
+        The frequency warp the file's features were computed with (1: none;
+        ``DecoderSettings.voice_warp``).
     """
 
     path: str | None = None
@@ -252,6 +262,7 @@ class Recognition:
     narrow_band: bool = False
     dropped: list[WordSegment] = field(default_factory=list)
     path_items: list = field(default_factory=list)
+    warp: float = 1.0
 
     @property
     def words(self) -> list[str]:
@@ -285,6 +296,7 @@ class Recognizer:
     calibration: object = None
     scorer: object = None  # the model's StateScorer when the settings give it a weight, else None
     posterior_scorer: object = None  # the model's StateScorer for the posterior measures (any weight)
+    voice: object = None  # the model's VoiceMixture when the settings ask for a warp per file, else None
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
     _pron_pieces: dict = field(default_factory=dict, repr=False)
@@ -699,6 +711,14 @@ class Recognizer:
                              "background sound than like any of the command words (filler and pause models)")
         return result
 
+    def file_frames(self, wave) -> tuple[np.ndarray, float]:
+        """A file's features and the warp they were computed with: the factor chosen by the
+        voice mixture (``DecoderSettings.voice_warp``), else 1 (unwarped)."""
+        if self.voice is None:
+            return compute_features(wave, self.features), 1.0
+        warp, frames = choose_warp(wave, self.features, self.voice)
+        return frames, warp
+
     def decode_file(self, path) -> Recognition:
         """Load, extract features and recognise; errors are recorded, never raised."""
         from wordspot.audio.reading import MIN_DURATION, audio_duration, load_audio
@@ -706,7 +726,7 @@ class Recognizer:
         name = os.fspath(path)
         try:
             wave = load_audio(path, sample_rate=self.features.sample_rate)
-            frames = compute_features(wave, self.features)
+            frames, warp = self.file_frames(wave)
         except WordspotError as exc:
             # A readable file that is merely too short is a result, not a failure.
             try:
@@ -724,6 +744,7 @@ class Recognizer:
         except (OSError, ValueError, RuntimeError) as exc:  # anything the readers let through
             return Recognition(path=name, error=f"{name}: cannot read the audio ({exc})")
         result = self.decode(frames, path=name)
+        result.warp = warp
         result.narrow_band = is_narrow_band(wave, self.features.sample_rate)
         return result
 
@@ -801,8 +822,11 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
                             "compute yet (only the cepstra the model's features are); use a model whose scorer "
                             "reads cepstra, such as the shipped starters")
     fits = own is not None and own.n_classes == mix.n_mixtures and own.frame_dim == mix.dim
+    voice = getattr(model, "voice", None) if settings.voice_warp else None
+    if voice is not None and voice.dim != mix.dim:
+        raise DecodingError(f"the model's voice mixture has frames of {voice.dim} values, its mixtures {mix.dim}")
     return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
-                      calibration=calibration, scorer=scorer, posterior_scorer=own if fits else None)
+                      calibration=calibration, scorer=scorer, posterior_scorer=own if fits else None, voice=voice)
 
 
 def recognize_features(model, frames, *, settings: DecoderSettings | None = None, lexicon=None,

@@ -895,7 +895,7 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     summary.seconds = time.monotonic() - t0
     info["seconds"] = round(summary.seconds, 2)
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
-                          bigrams=bigrams, info=info, scorer=scorer)
+                          bigrams=bigrams, info=info, scorer=scorer, voice=getattr(start, "voice", None))
     return model, summary
 
 
