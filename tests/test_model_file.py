@@ -474,3 +474,52 @@ def test_truncated_file_with_scorer_is_refused(model, rng, tmp_path, keep):
     path.write_bytes(data[: int(len(data) * keep)])
     with pytest.raises(ModelFileError, match=r"m\.model: .*(damaged|altered).*wordspot train"):
         load_model(path)
+
+
+def _voice(rng, k=4, dim=39):
+    from wordspot.audio.voice_warp import VoiceMixture
+
+    w = rng.uniform(0.5, 1.0, k)
+    return VoiceMixture(w / w.sum(), rng.normal(size=(k, dim)), rng.uniform(0.5, 2.0, (k, dim)))
+
+
+def test_voice_mixture_round_trips_without_pickle(model, rng, tmp_path):
+    with_voice = replace(model, voice=_voice(rng))
+    path = save_model(with_voice, tmp_path / "v.model")
+    back = load_model(path)
+    assert_same(with_voice, back)
+    for name in ("weights", "means", "variances"):
+        np.testing.assert_array_equal(getattr(back.voice, name), getattr(with_voice.voice, name))
+    with np.load(path, allow_pickle=False) as data:
+        assert {"voice_weights", "voice_means", "voice_variances"} <= set(data.files)
+        assert all(data[name].dtype != object for name in data.files)
+        assert json.loads(data["header"].tobytes().decode())["voice"] == {"components": 4}
+
+
+def test_model_without_voice_mixture_writes_no_voice_tables(model, tmp_path):
+    path = save_model(model, tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        assert not any(name.startswith("voice") for name in data.files)
+        assert "voice" not in json.loads(data["header"].tobytes().decode())
+    assert load_model(path).voice is None
+
+
+def test_shipped_starter_without_voice_mixture_still_loads():
+    assert load_model("starter").voice is None
+
+
+def test_altered_voice_mixture_is_refused(model, rng, tmp_path):
+    path = save_model(replace(model, voice=_voice(rng)), tmp_path / "v.model")
+
+    def nudge(arrays):
+        arrays["voice_means"] = arrays["voice_means"] + 1e-6
+
+    _rewrite(path, nudge)
+    with pytest.raises(ModelFileError, match="checksum"):
+        load_model(path)
+
+
+def test_voice_mixture_of_the_wrong_width_is_refused(model, rng, tmp_path):
+    path = save_model(replace(model, voice=_voice(rng, dim=12)), tmp_path / "v.model")
+    with pytest.raises(ModelFileError, match="voice mixture has 4 Gaussians over 12 values"):
+        load_model(path)

@@ -155,6 +155,8 @@ class DecoderSettings:
             g = getattr(self, name)
             if not (isinstance(g, (int, float)) and not isinstance(g, bool) and 0.0 <= g < np.inf):
                 raise DecodingError(f"{name} ({option}) must be a number of seconds >= 0, got {g!r}")
+        if not isinstance(self.voice_warp, (bool, np.bool_)):
+            raise DecodingError(f"voice_warp must be true or false, got {self.voice_warp!r}")
         self.grammar  # validates weight and penalty
         for name, option in (("filler_penalty", " (--filler-penalty)"), ("pause_penalty", " (--pause-penalty)"),
                              ("filler_frame_penalty", "")):

@@ -56,6 +56,7 @@ from wordspot.util.progress import ProgressBar
 from wordspot.training.backgrounds import STEADY_MIX, check_mix, check_share
 from wordspot.training.cluster import open_executor, using
 from wordspot.training.data import prepare_items
+from wordspot.training.voice import voice_of_recordings
 from wordspot.training.items import CHUNK_SIZE, Skipped, TrainingItem
 from wordspot.training.own_scorer import SCRATCH_SCORER, fit_own_scorer
 from wordspot.training.scorer_fit import ScorerConfig
@@ -153,6 +154,10 @@ class TrainingConfig:
         feed the calibrated confidence. On the dev voices it cut other talk given a
         command from 61% to 39% of files and the EER from 10.5% to 8.4% for 0.8 times the
         training's CPU time (docs/experiments/2026-12-03-scratch-scorer.md). None: none.
+    voice_components : int >= 0
+        Gaussians of the voice mixture fitted on the recordings' speech frames, by which
+        recognition may choose each file's frequency warp (``DecoderSettings.voice_warp``,
+        :mod:`wordspot.training.voice`); 0: none.
     """
 
     mixtures: tuple[int, ...] = (1, 2, 4, 8)
@@ -174,6 +179,7 @@ class TrainingConfig:
     background_share: float = 0.1
     background_kinds: tuple[tuple[str, int], ...] = STEADY_MIX
     scorer: ScorerConfig | None = SCRATCH_SCORER
+    voice_components: int = 32
 
     def __post_init__(self) -> None:
         m = tuple(self.mixtures)
@@ -181,6 +187,9 @@ class TrainingConfig:
             raise TrainingError(
                 f"mixtures must be increasing whole numbers >= 1 (for example 1 2 4 8), got {self.mixtures!r}"
             )
+        if not isinstance(self.voice_components, (int, np.integer)) or self.voice_components < 0:
+            raise TrainingError(f"voice_components must be a whole number >= 0 (0: no voice mixture), "
+                                f"got {self.voice_components!r}")
         for name in ("first_passes", "passes_per_split", "jobs"):
             v = getattr(self, name)
             if not isinstance(v, (int, np.integer)) or v < 1:
@@ -703,6 +712,11 @@ def train(utterances, lexicon, *, settings: FeatureSettings | None = None,
             summary.seconds = time.monotonic() - start
             model = replace(model, scorer=net, info={**model.info, "scorer": scorer_info,
                                                      "seconds": round(summary.seconds, 2)})
+    if config.voice_components:
+        left_out = {s.path for s in summary.skipped}
+        voice = voice_of_recordings([u.path for u in utterances if u.path not in left_out], settings,
+                                    config.voice_components, seed=config.seed)
+        model = replace(model, voice=voice)
     return model, summary
 
 
