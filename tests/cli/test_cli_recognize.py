@@ -122,3 +122,25 @@ def test_state_limit_option(setup, capsys):
     status, out, _ = _run(capsys, ["recognize", "-m", model_path, "--state-limit", "100000", "--format", "jsonl",
                                    files[0]])
     assert status == 0 and json.loads(out)["words"] == recognize_files(model, files[:1])[0].words
+
+
+def test_warp_voice_option(setup, capsys, tmp_path, rng):
+    from dataclasses import replace
+
+    from wordspot.audio.voice_warp import VoiceMixture
+    from wordspot.decoding.decoder import DecoderSettings
+
+    model, model_path, files, _ = setup
+    # a model without a voice mixture: a note, and the files recognised unwarped
+    status, out, err = _run(capsys, ["recognize", "--model", model_path, "--warp-voice", *files])
+    assert status == 0 and "--warp-voice has no effect" in err
+    assert out == _run(capsys, ["recognize", "--model", model_path, *files])[1]
+    # with one: the words of the warped recognition, no note
+    d = model.mixtures.dim
+    voiced = replace(model, voice=VoiceMixture(np.ones(2) / 2, rng.normal(size=(2, d)), np.ones((2, d))))
+    voiced_path = str(save_model(voiced, tmp_path / "voiced.model"))
+    status, out, err = _run(capsys, ["recognize", "--model", voiced_path, "--warp-voice", *files])
+    assert status == 0 and "no effect" not in err
+    expected = recognize_files(voiced, files, settings=DecoderSettings(voice_warp=True))
+    assert [line.split("\t", 1)[1] for line in out.splitlines()] == [
+        r.text or f"(nothing recognised: {r.reason})" for r in expected]

@@ -7,7 +7,7 @@ import json
 import sys
 from pathlib import Path
 
-from wordspot.cli.recognize_cmd import add_decoder_options, scorer_note, settings_from_args
+from wordspot.cli.recognize_cmd import add_decoder_options, add_warp_option, scorer_note, settings_from_args, warp_note
 
 __all__ = ["add_parser"]
 
@@ -57,6 +57,7 @@ def add_parser(sub, **options):
     p.add_argument("--bootstrap", type=int, default=1000, metavar="N",
                    help="resampling draws for the likely range of the WER (bootstrap; default 1000)")
     add_decoder_options(p)
+    add_warp_option(p)
     p.set_defaults(func=_run)
     return p
 
@@ -71,8 +72,9 @@ def _run(args) -> int:
 
     settings = settings_from_args(args)
     model = load_model(args.model)
-    if scorer_note(model, settings):
-        print(f"wordspot: note: {scorer_note(model, settings)}", file=sys.stderr)
+    for note in (scorer_note(model, settings), warp_note(model, settings)):
+        if note:
+            print(f"wordspot: note: {note}", file=sys.stderr)
     lexicon = read_lexicon(args.lexicon) if args.lexicon else None
     failed = 0
     names = [Path(m).stem for m in args.manifests]

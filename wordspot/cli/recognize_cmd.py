@@ -11,8 +11,8 @@ import sys
 from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
 from wordspot.decoding.decoder import DecoderSettings, Recognition, recognize_files
 
-__all__ = ["add_parser", "add_decoder_options", "settings_from_args", "scorer_note", "format_text", "format_jsonl",
-           "write_csv"]
+__all__ = ["add_parser", "add_decoder_options", "add_warp_option", "warp_note", "settings_from_args", "scorer_note",
+           "format_text", "format_jsonl", "write_csv"]
 
 _EPILOG = """\
 examples (a bakery: commands called out with dough on your hands):
@@ -55,6 +55,7 @@ def add_parser(sub, **options):
                    help="text (default): one line per file; jsonl: one JSON object per file; csv: one row per word")
     p.add_argument("--times", action="store_true", help="text format: show each word's start and end in seconds")
     add_decoder_options(p)
+    add_warp_option(p)
     p.set_defaults(func=_run)
     return p
 
@@ -136,6 +137,22 @@ def _positive(text: str) -> float:
     return value
 
 
+def add_warp_option(p) -> None:
+    """``--warp-voice``: the files' frequency warp chosen per file (recognize and evaluate only)."""
+    p.add_argument("--warp-voice", action="store_true",
+                   help="warp each file's frequency axis by the factor (0.88-1.12) under which its speech fits the "
+                        "model's voice mixture best, so an unusual voice looks more like the training voices; "
+                        "off by default (no gain on the dev voices; docs/experiments/2026-12-04-frequency-warping.md)")
+
+
+def warp_note(model, settings: DecoderSettings) -> str:
+    """A note when a warp is asked of a model without a voice mixture ("" otherwise)."""
+    if settings.voice_warp and getattr(model, "voice", None) is None:
+        return ("--warp-voice has no effect: this model has no voice mixture (models trained from scratch get one; "
+                "the shipped starters and models adapted from them have none), so every file is left unwarped")
+    return ""
+
+
 def scorer_note(model, settings: DecoderSettings) -> str:
     """A note when a scorer weight is asked of a model without a state scorer ("" otherwise)."""
     if settings.scorer_weight > 0 and getattr(model, "scorer", None) is None:
@@ -161,6 +178,7 @@ def settings_from_args(args) -> DecoderSettings:
         scorer_scale=args.scorer_scale,
         talk_gap=args.talk_gap,
         talk_length=args.talk_length,
+        voice_warp=bool(getattr(args, "warp_voice", False)),
     )
 
 
@@ -237,8 +255,9 @@ def _run(args) -> int:
 
     settings = settings_from_args(args)
     model = load_model(args.model)
-    if scorer_note(model, settings):
-        print(f"wordspot: note: {scorer_note(model, settings)}", file=sys.stderr)
+    for note in (scorer_note(model, settings), warp_note(model, settings)):
+        if note:
+            print(f"wordspot: note: {note}", file=sys.stderr)
     lexicon = read_lexicon(args.lexicon) if args.lexicon else None
     results = recognize_files(
         model, args.files, settings=settings, lexicon=lexicon, prior=args.prior, jobs=args.jobs
