@@ -82,6 +82,8 @@ def test_bad_warp_lists_are_refused(rng):
         features_for_warps(y, FeatureSettings(), [])
     with pytest.raises(FeatureError, match="warp factors"):
         features_for_warps(y, FeatureSettings(), [1.0, -0.5])
+    with pytest.raises(FeatureError, match="warp factors"):
+        features_for_warps(y, FeatureSettings(), [1.0, "wide"])
 
 
 def test_scorer_inputs_are_warped_as_the_features(rng):

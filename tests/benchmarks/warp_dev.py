@@ -25,6 +25,7 @@ thresholds are applied afterwards:
     python tests/benchmarks/warp_dev.py --fit /tmp/starter-voice.model
     python tests/benchmarks/warp_dev.py --model /tmp/starter-voice.model --starter
     python tests/benchmarks/warp_dev.py --model /tmp/starter-voice.model --adapted --seeds 0 1 2
+    python tests/benchmarks/warp_dev.py --shift /tmp/starter-voice.model /tmp/starter-voice128.model
 
 The demo's test sets are never used here.
 """
@@ -316,6 +317,53 @@ def adapted(model, args) -> None:
             cost(j)
 
 
+def shift(models, args) -> None:
+    """Without decoding: on every 3rd demo dev command and every 8th starter corpus dev file,
+    the spread of the chosen warp within a voice and its mean shift when the file is given
+    another vocal tract (``far_wave`` by 1.15 and 0.87: ideal about -0.13 and +0.15), for
+    the voice mixture of each model and for the first model's own mixtures ("states")."""
+    import csv
+
+    from far_voices_dev import far_wave
+
+    from wordspot.audio.features import features_for_warps
+    from wordspot.audio.reading import load_audio
+    from wordspot.audio.voice_warp import MIN_SPEECH_FRAMES, WARP_GRID, speech_frames
+    from wordspot.corpus import read_manifest
+    from wordspot.decoding.decoder import build_recognizer
+    from wordspot.language.lexicon import read_lexicon
+
+    rec = REPO / "recordings"
+    held = set(dev_voices(rec / "voices.csv"))
+    with open(rec / "train.csv", newline="", encoding="utf-8") as fh:
+        rows = [r for r in csv.DictReader(fh) if r["speaker"] in held][::3]
+    items = [(load_audio(rec / r["path"], sample_rate=RATE), "demo " + r["speaker"]) for r in rows]
+    items += [(load_audio(u.path, sample_rate=RATE), "starter corpus " + u.speaker)
+              for u in read_manifest(rec / "starter" / "dev.csv")[::8]]
+    states = build_recognizer(models[0][1], lexicon=read_lexicon(REPO / "lexicon" / "bakery.txt"))
+    judges = {name: (lambda f, m=model: float(m.voice.frame_log_likelihoods(f).mean())) for name, model in models}
+    judges["states"] = lambda f: float(states._mixture_scores(f).max(axis=1).mean())
+    got = defaultdict(list)
+    for wave, group in items:
+        for factor in (1.0, 1.15, 0.87):
+            feats, energy = features_for_warps(far_wave(wave, factor), models[0][1].features, WARP_GRID)
+            mask = speech_frames(energy)
+            for name, judge in judges.items():
+                k = WARP_GRID.index(1.0) if mask.sum() < MIN_SPEECH_FRAMES else int(
+                    np.argmax([judge(f[mask]) for f in feats]))
+                got[name, group, factor].append(WARP_GRID[k])
+    groups = sorted({g for _, g, _ in got})
+    print(f"\n{len(items)} dev files; chosen warp: spread within a voice (mean sd), mean shift for a scaling by "
+          "1.15 (ideal about -0.13) and 0.87 (ideal about +0.15)\n")
+    print("| judge | spread | shift 1.15 | shift 0.87 |")
+    print("| --- | ---: | ---: | ---: |")
+    for name in judges:
+        sd = np.mean([np.std(got[name, g, 1.0]) for g in groups])
+        up, down = (np.mean([np.mean(np.subtract(got[name, g, f], got[name, g, 1.0])) for g in groups])
+                    for f in (1.15, 0.87))
+        print(f"| {name} | {sd:.3f} | {up:+.3f} | {down:+.3f} |")
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--fit", type=Path, default=None, help="write the starter copy with a voice mixture here")
@@ -325,6 +373,9 @@ def main(argv=None) -> int:
     ap.add_argument("--model", type=Path, default=None, help="a starter copy with a voice mixture (--fit)")
     ap.add_argument("--starter", action="store_true", help="the starter alone")
     ap.add_argument("--adapted", action="store_true", help="adapted with calibration, per seed")
+    ap.add_argument("--shift", type=Path, nargs="+", default=None, metavar="MODEL",
+                    help="without decoding: how steady the choice is and how it follows a known scaling, for the "
+                         "voice mixture of each MODEL and the first one's own mixtures")
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
     ap.add_argument("--most", type=int, default=300, help="starter corpus dev files at the most")
     ap.add_argument("--joined", type=int, default=100, help="joined files and phrase stand-ins")
@@ -333,6 +384,10 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     if args.fit:
         fit_copy(args.fit, args.every, args.components, args.seed)
+    if args.shift:
+        from wordspot.model import load_model
+
+        shift([(f"voice, {load_model(p).voice.n_components} Gaussians", load_model(p)) for p in args.shift], args)
     if args.model and (args.starter or args.adapted):
         from wordspot.model import load_model
 

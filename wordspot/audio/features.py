@@ -491,9 +491,10 @@ def features_for_warps(wave, settings: FeatureSettings, warps) -> tuple[list[np.
         As :func:`compute_features`, or an empty ``warps``.
     """
     y = _check_wave(wave, settings)
-    factors = [float(a) for a in warps]
+    factors = list(warps)
     if not factors or not all(_is_real(a) and a > 0 for a in factors):
-        raise FeatureError(f"warp factors must be one or more numbers > 0 (1 = no warp), got {list(warps)!r}")
+        raise FeatureError(f"warp factors must be one or more numbers > 0 (1 = no warp), got {factors!r}")
+    factors = [float(a) for a in factors]
     power = _power_spectrum(y, settings)
     log_energy = np.log(np.maximum(power.sum(axis=1), LOG_FLOOR))
     return [_cepstral_features(power @ _cached_filterbank(settings, a), settings) for a in factors], log_energy

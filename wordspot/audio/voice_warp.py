@@ -207,10 +207,11 @@ def choose_warp(wave, settings: FeatureSettings, voice: VoiceMixture, grid=WARP_
         As :func:`wordspot.audio.features.compute_features`, or a voice mixture of
         another width than the features.
     """
-    grid = tuple(float(a) for a in grid)
     if voice.dim != settings.dim:
         raise FeatureError(f"the voice mixture has {voice.dim} values a frame, the features {settings.dim}")
-    feats, log_energy = features_for_warps(wave, settings, grid)
+    grid = tuple(grid)
+    feats, log_energy = features_for_warps(wave, settings, grid)  # checks the grid
+    grid = tuple(float(a) for a in grid)
     fits = warp_fits(feats, log_energy, voice)
     if fits is None:
         if 1.0 in grid:
