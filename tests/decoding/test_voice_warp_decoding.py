@@ -73,7 +73,7 @@ def test_warp_on_recognises_the_chosen_warps_features(starter_with_voice):
         _same(got, rec.decode(frames))
         _same(got, rec.decode_file(f))  # deterministic
         warps.append(warp)
-    assert len(warps) == len(files)
+    assert any(w != 1.0 for w in warps)  # else this would not tell a warped recognition from an unwarped one
 
 
 def test_voice_warp_setting_is_checked():
