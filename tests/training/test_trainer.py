@@ -83,6 +83,22 @@ def test_parallel_equals_serial(tmp_path, rng):
     np.testing.assert_array_equal(a.units.trans, b.units.trans)
     np.testing.assert_array_equal(a.units.entry, b.units.entry)
     assert a.info["loglik_per_pass"] == b.info["loglik_per_pass"]
+    for name in ("weights", "means", "variances"):  # the voice mixture too
+        np.testing.assert_array_equal(getattr(a.voice, name), getattr(b.voice, name))
+
+
+def test_from_scratch_model_carries_a_voice_mixture_of_its_recordings(tmp_path, rng):
+    from wordspot.training.voice import voice_of_recordings
+
+    manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=16)
+    utts, lexicon = read_manifest(manifest), read_lexicon(lex_path)
+    model, _ = train(utts, lexicon, config=TrainingConfig(**SMALL, voice_components=4))
+    expected = voice_of_recordings([u.path for u in utts], model.features, 4, seed=TrainingConfig().seed)
+    assert model.voice.n_components == 4 and model.voice.dim == model.features.dim
+    for name in ("weights", "means", "variances"):
+        np.testing.assert_array_equal(getattr(model.voice, name), getattr(expected, name))
+    none, _ = train(utts, lexicon, config=TrainingConfig(**SMALL, voice_components=0))
+    assert none.voice is None
 
 
 def test_missing_words_listed_before_any_work(tmp_path, rng):
