@@ -147,6 +147,9 @@ def test_adaptation_raises_likelihood_and_keeps_the_rest(tone_models, tmp_path):
     path = save_model(adapted, tmp_path / "adapted.model")
     back = load_model(path)
     np.testing.assert_array_equal(back.mixtures.means, adapted.mixtures.means)
+    # the start's voice mixture (of its training speech) comes along unchanged
+    assert model.voice is not None and adapted.voice is model.voice
+    np.testing.assert_array_equal(back.voice.means, model.voice.means)
 
 
 def test_with_no_adaptation_data_the_start_comes_back(tone_models):
