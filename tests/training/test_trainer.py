@@ -75,7 +75,8 @@ def test_likelihood_rises_on_tone_corpus(tmp_path, rng):
 def test_parallel_equals_serial(tmp_path, rng):
     manifest, lex_path = make_corpus(tmp_path, rng, n_utterances=40)  # more than one chunk
     utts, lexicon = read_manifest(manifest), read_lexicon(lex_path)
-    cfg = dict(mixtures=(1, 2), first_passes=2, passes_per_split=1, seed=3, speed_factors=(0.9, 1.0))
+    cfg = dict(mixtures=(1, 2), first_passes=2, passes_per_split=1, seed=3, speed_factors=(0.9, 1.0),
+               voice_components=4)
     a, _ = train(utts, lexicon, config=TrainingConfig(**cfg, jobs=1))
     b, _ = train(utts, lexicon, config=TrainingConfig(**cfg, jobs=2))
     for name in ("weights", "means", "variances"):
@@ -97,7 +98,7 @@ def test_from_scratch_model_carries_a_voice_mixture_of_its_recordings(tmp_path, 
     assert model.voice.n_components == 4 and model.voice.dim == model.features.dim
     for name in ("weights", "means", "variances"):
         np.testing.assert_array_equal(getattr(model.voice, name), getattr(expected, name))
-    none, _ = train(utts, lexicon, config=TrainingConfig(**SMALL, voice_components=0))
+    none, _ = train(utts, lexicon, config=TrainingConfig(**SMALL))  # the default: none
     assert none.voice is None
 
 

@@ -157,7 +157,8 @@ class TrainingConfig:
     voice_components : int >= 0
         Gaussians of the voice mixture fitted on the recordings' speech frames, by which
         recognition may choose each file's frequency warp (``DecoderSettings.voice_warp``,
-        :mod:`wordspot.training.voice`); 0: none.
+        :mod:`wordspot.training.voice`); 0 (the default, since the warp is off by default:
+        docs/experiments/2026-12-04-frequency-warping.md): none. 32 was the dev trial's size.
     """
 
     mixtures: tuple[int, ...] = (1, 2, 4, 8)
@@ -179,7 +180,7 @@ class TrainingConfig:
     background_share: float = 0.1
     background_kinds: tuple[tuple[str, int], ...] = STEADY_MIX
     scorer: ScorerConfig | None = SCRATCH_SCORER
-    voice_components: int = 32
+    voice_components: int = 0
 
     def __post_init__(self) -> None:
         m = tuple(self.mixtures)
