@@ -23,6 +23,9 @@ A found command whose words match a label but whose span does not overlap it wou
 scoring (boundary) miss; it is counted separately (``timing``) before the causes above.
 
     python tests/benchmarks/long_found_dev.py --model /tmp/dev.model --folder /tmp/dev-long --seeds 1 2 3
+
+``--far``: the far dev long recordings of ``dev_long.py --far`` (the dev voices given another
+vocal tract and pitch: voices the model never heard); keep them in another folder.
 """
 
 from __future__ import annotations
@@ -37,7 +40,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 
-from dev_long import make_dev_long  # noqa: E402
+from dev_long import far_factors, make_dev_long  # noqa: E402
 
 CAUSES = ("no stretch", "cut by detector", "timing", "no word heard", "threshold", "amid-talk rule", "grouping",
           "wrong words +talk", "wrong words alone")
@@ -100,14 +103,14 @@ def classify(label, spans, found, heard, candidates, talk) -> str:
     return "wrong words +talk" if with_talk else "wrong words alone"
 
 
-def evaluate(recognizer, folder: Path, seeds, settings, show: bool = False):
-    """Per seed: the score and the causes of the misses."""
+def evaluate(recognizer, folder: Path, seeds, settings, show: bool = False, far: dict | None = None):
+    """Per seed: the score and the causes of the misses (``far``: see ``dev_long.make_dev_long``)."""
     from wordspot.evaluation.time_labels import TimedCommand, read_time_labels
     from wordspot.evaluation.timed import BOUNDARY_TOLERANCE, score_timed
 
     out = []
     for seed in seeds:
-        recs = make_dev_long(folder / f"seed-{seed}", seed)
+        recs = make_dev_long(folder / f"seed-{seed}", seed, far=far)
         talk = {str(r.path): r.commands for r in read_time_labels(folder / f"seed-{seed}" / "talk.csv")}
         found, durations, detail = {}, {}, {}
         for rec in recs:
@@ -162,6 +165,7 @@ def main(argv=None) -> int:
     ap.add_argument("--folder", type=Path, required=True, help="where the dev long recordings are (made if missing)")
     ap.add_argument("--seeds", type=int, nargs="+", default=[1, 2, 3])
     ap.add_argument("--show", action="store_true", help="print every miss and false accept")
+    ap.add_argument("--far", action="store_true", help="the far dev long recordings (dev_long.py --far)")
     ap.add_argument("--talk-gap", type=float, nargs="+", default=[None])
     ap.add_argument("--min-confidence", type=float, nargs="+", default=[None])
     ap.add_argument("--split-pause", type=float, nargs="+", default=[None])
@@ -207,7 +211,8 @@ def main(argv=None) -> int:
                     **({} if norm is None else {"normalise_seconds": norm}),
                     **({} if scan_conf is None else {"min_confidence": scan_conf}),
                     **({} if whole is None else {"command_confidence": None if whole == "none" else float(whole)}))
-        rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show)
+        rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show,
+                        far=far_factors() if args.far else None)
         name = (f"gap {gap if gap is not None else 'def'}, thr {conf if conf is not None else 'def'}, "
                 f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, "
                 f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}, "
