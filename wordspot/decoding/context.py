@@ -20,6 +20,12 @@ The decoder (``DecoderSettings.talk_gap``, ``talk_length``) uses one side, looki
 kept commands, with a gap of 0.2 s and at least 0.5 s of talk: chosen on the demo's dev
 voices (docs/experiments/2026-12-03-commands-amid-talk.md), and drops the marked words
 like words below the threshold.
+
+:func:`run_confidences` is the other way of judging the words of a phrase
+(``DecoderSettings.word_rule = "run"``): the command words said between pauses longer
+than ``run_pause`` form one run, and every word of a run is judged by the mean
+confidence of the run, so a phrase is kept or dropped whole. :func:`keep_words` applies
+the threshold (either way) and then the amid-talk rule, as the decoder does.
 """
 
 from __future__ import annotations
@@ -29,7 +35,7 @@ from typing import Sequence
 
 import numpy as np
 
-__all__ = ["PAUSE", "FILLER", "COMMAND", "PathItem", "inside_talk"]
+__all__ = ["PAUSE", "FILLER", "COMMAND", "PathItem", "inside_talk", "word_runs", "run_confidences", "keep_words"]
 
 #: Kinds of item on the best path.
 PAUSE, FILLER, COMMAND = 0, 1, 2
@@ -142,3 +148,50 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
         after = _side_is_talk(items, k, +1, it.last - it.phone_end, confidences, threshold, gap, through, min_talk)
         marked[it.segment] = (before + after) >= sides
     return marked
+
+
+def word_runs(items: Sequence[PathItem], pause: int) -> np.ndarray:
+    """The run of each command word: a new run starts after more than ``pause`` frames
+    between the end of one word's phones and the start of the next word (indexed by
+    ``PathItem.segment``; filler and pause items in between count only as time)."""
+    words = sorted((it for it in items if it.kind == COMMAND), key=lambda it: it.segment)
+    runs = np.zeros(len(words), dtype=np.int64)
+    run, prev_end = -1, None
+    for it in words:
+        if prev_end is None or it.first - prev_end - 1 > pause:
+            run += 1
+        runs[it.segment] = run
+        prev_end = it.phone_end
+    return runs
+
+
+def run_confidences(items: Sequence[PathItem], confidences: Sequence[float], pause: int) -> np.ndarray:
+    """Each word's confidence replaced by the mean confidence of its run (:func:`word_runs`).
+
+    A word alone between longer pauses keeps its own confidence.
+    """
+    c = np.asarray(confidences, dtype=np.float64)
+    if c.size == 0:
+        return c.copy()
+    runs = word_runs(items, pause)
+    means = np.bincount(runs, weights=c) / np.bincount(runs)
+    return means[runs]
+
+
+def keep_words(items: Sequence[PathItem], confidences: Sequence[float], threshold: float, gap: int,
+               min_talk: int = 0, run_pause: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Which words the decoder keeps: (kept, said amid talk), one bool per word.
+
+    Each word is judged by its own confidence, or with ``run_pause`` (frames) by its run's
+    mean (:func:`run_confidences`); a word judged below ``threshold`` is dropped, and so is
+    a word :func:`inside_talk` marks (one side, past kept commands, ``min_talk`` frames of
+    talk; ``gap`` 0 or a threshold of 0 marks nothing), with the judged confidences.
+    """
+    judged = np.asarray(confidences, dtype=np.float64)
+    if run_pause is not None:
+        judged = run_confidences(items, judged, run_pause)
+    above = judged >= threshold
+    inside = np.zeros(judged.shape[0], dtype=bool)
+    if gap > 0 and threshold > 0 and above.any():
+        inside = inside_talk(items, judged, threshold, gap, sides=1, through=True, min_talk=min_talk)
+    return above & ~inside, inside

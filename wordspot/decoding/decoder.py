@@ -20,9 +20,9 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
-from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, inside_talk
+from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, keep_words
 from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, NO_POSTERIORS, VOWEL_CLASSES,
-                                          path_posterior_measures, split_by_confidence, usable_calibration,
+                                          path_posterior_measures, usable_calibration,
                                           word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
@@ -44,7 +44,11 @@ __all__ = [
     "recognize_file",
     "recognize_files",
     "CONFIDENCE_SCALE",
+    "WORD_RULES",
 ]
+
+#: How the confidence threshold judges the words of a phrase (``DecoderSettings.word_rule``).
+WORD_RULES = ("word", "run")
 
 REASON_TOO_SHORT = "too short"
 REASON_SILENCE = "silence or noise only"
@@ -110,6 +114,14 @@ class DecoderSettings:
         with a threshold above 0. Chosen on the demo's dev voices over three seeds
         (docs/experiments/2026-12-03-commands-amid-talk.md): other sentences with a
         command 23.9% -> 12.1% of files, real phrases WER 8.8% -> 9.7%.
+    word_rule : {"word", "run"}
+        How the threshold judges the words of a phrase. "word" (default): each word by its
+        own confidence. "run": the command words between pauses longer than ``run_pause``
+        seconds form a run, judged whole by its words' mean confidence (kept or dropped
+        together; a word alone is judged as with "word"); ``WordSegment.confidence`` stays
+        the word's own (:func:`wordspot.decoding.context.keep_words`).
+    run_pause : float >= 0
+        See ``word_rule``.
     """
 
     beam: float = 250.0
@@ -128,6 +140,8 @@ class DecoderSettings:
     scorer_scale: float = 1.0
     talk_gap: float = 0.2
     talk_length: float = 0.5
+    word_rule: str = "word"
+    run_pause: float = 0.5
 
     def __post_init__(self) -> None:
         m = self.min_confidence
@@ -144,10 +158,12 @@ class DecoderSettings:
             raise DecodingError(f"scorer_weight (--scorer-weight) must be a number from 0 to 1, got {w!r}")
         if not (isinstance(sc, (int, float)) and not isinstance(sc, bool) and 0.0 < sc < np.inf):
             raise DecodingError(f"scorer_scale (--scorer-scale) must be a finite number > 0, got {sc!r}")
-        for name, option in (("talk_gap", "--talk-gap"), ("talk_length", "--talk-length")):
+        if self.word_rule not in WORD_RULES:
+            raise DecodingError(f"word_rule must be one of {', '.join(WORD_RULES)}, got {self.word_rule!r}")
+        for name, option in (("talk_gap", " (--talk-gap)"), ("talk_length", " (--talk-length)"), ("run_pause", "")):
             g = getattr(self, name)
             if not (isinstance(g, (int, float)) and not isinstance(g, bool) and 0.0 <= g < np.inf):
-                raise DecodingError(f"{name} ({option}) must be a number of seconds >= 0, got {g!r}")
+                raise DecodingError(f"{name}{option} must be a number of seconds >= 0, got {g!r}")
         self.grammar  # validates weight and penalty
         for name, option in (("filler_penalty", " (--filler-penalty)"), ("pause_penalty", " (--pause-penalty)"),
                              ("filler_frame_penalty", "")):
@@ -674,18 +690,14 @@ class Recognizer:
         # confidence threshold (wordspot.decoding.confidence), then words said amid other talk
         # (wordspot.decoding.context)
         result.path_items = items
-        words, threshold = result.segments, self.min_confidence
-        result.segments, result.dropped = split_by_confidence(words, threshold)
-        inside = np.zeros(len(words), dtype=bool)
-        if self.settings.talk_gap > 0 and threshold > 0 and result.segments:
-            inside = inside_talk(items, [s.confidence for s in words], threshold,
-                                 int(round(self.settings.talk_gap / self.hop)), sides=1, through=True,
-                                 min_talk=int(round(self.settings.talk_length / self.hop)))
-            if inside.any():
-                for k in np.flatnonzero(inside):
-                    words[k].amid_talk = True
-                result.segments = [s for k, s in enumerate(words) if s.confidence >= threshold and not inside[k]]
-                result.dropped = [s for k, s in enumerate(words) if s.confidence < threshold or inside[k]]
+        words, threshold, st = result.segments, self.min_confidence, self.settings
+        kept, inside = keep_words(items, [s.confidence for s in words], threshold,
+                                  int(round(st.talk_gap / self.hop)), int(round(st.talk_length / self.hop)),
+                                  int(round(st.run_pause / self.hop)) if st.word_rule == "run" else None)
+        for k in np.flatnonzero(inside):
+            words[k].amid_talk = True
+        result.segments = [s for k, s in enumerate(words) if kept[k]]
+        result.dropped = [s for k, s in enumerate(words) if not kept[k]]
         if len(chain) <= 1:
             result.reason = f"{REASON_SILENCE}: the recording sounds more like a pause than like any word"
         elif result.dropped and not result.segments and inside.any():
