@@ -22,12 +22,17 @@ frequency scaled by the voice's factor at the same length; by default the factor
 nor a model adapted on the other training voices heard, as the demo's test voices are
 unheard, without using them.
 
+With ``new_voices`` (``--new-voices``), the voices are instead those of the starter corpus's
+dev split that the demo has not at all (espeak-en-gb-x-gbclan-m6): heard by neither the
+starter nor any adaptation on the demo's voices, and unchanged.
+
 Six recordings of 1-2 minutes per seed, written as FLAC with a time-label file
 (``labels.csv``; the talk sentences' times in ``talk.csv``, same columns) into a folder (kept as a cache: a folder that already has its label file
 is reused). Needs the text-to-speech engines (espeak-ng, flite, festival, sox).
 
     python tests/benchmarks/dev_long.py /tmp/dev-long --seeds 1 2 3
     python tests/benchmarks/dev_long.py /tmp/far-long --seeds 1 2 3 --far
+    python tests/benchmarks/dev_long.py /tmp/new-long --seeds 1 2 3 --new-voices
 """
 
 from __future__ import annotations
@@ -77,11 +82,20 @@ def _talk(demo) -> tuple[str, ...]:
     return tuple(keep)
 
 
-def make_dev_long(folder: Path, seed: int, jobs: int = 1, far: dict | None = None):
+def new_voices(demo) -> list:
+    """The starter corpus's dev voices that the demo has not (``recordings/starter.py``)."""
+    import starter
+
+    have = {v.voice_id for v in demo.VOICES}
+    return [v for v in starter.DEV_VOICES if v.voice_id not in have]
+
+
+def make_dev_long(folder: Path, seed: int, jobs: int = 1, far: dict | None = None, new: bool = False):
     """Write one seed's dev long recordings into ``folder``; return their labels.
 
     ``far``: voice -> frequency scale given to that voice's speech (``far_wave``) before
-    assembly; None: the voices as they are. A folder is a cache: keep far and ordinary
+    assembly; None: the voices as they are. ``new``: the voices of :func:`new_voices`
+    instead of the dev voices. A folder is a cache: keep far and ordinary
     recordings in different folders."""
     from wordspot.evaluation.time_labels import (LabelledRecording, TimedCommand, read_time_labels,
                                                  write_time_labels)
@@ -100,6 +114,9 @@ def make_dev_long(folder: Path, seed: int, jobs: int = 1, far: dict | None = Non
     voices, talk = demo.VOICES, demo.LONG_TALK
     dev = [replace(v, split="test") for v in voices if v.dev_candidate]
     assert dev and all(v.split == "train" for v in voices if v.dev_candidate)
+    if new:
+        dev = [replace(v, split="test") for v in new_voices(demo)]
+        assert dev
     try:  # the generator's plan, with the dev voices standing in for the test voices
         demo.VOICES, demo.LONG_TALK = dev, _talk(demo)
         plans = demo.plan_long(seed)
@@ -149,10 +166,11 @@ def main(argv=None) -> int:
     ap.add_argument("--seeds", type=int, nargs="+", default=[1, 2, 3])
     ap.add_argument("--jobs", type=int, default=1)
     ap.add_argument("--far", action="store_true", help="the dev voices made far (far_voices_dev.far_wave)")
+    ap.add_argument("--new-voices", action="store_true", help="the starter's dev voices the demo has not")
     args = ap.parse_args(argv)
     far = far_factors() if args.far else None
     for seed in args.seeds:
-        recs = make_dev_long(args.folder / f"seed-{seed}", seed, args.jobs, far)
+        recs = make_dev_long(args.folder / f"seed-{seed}", seed, args.jobs, far, args.new_voices)
         n = sum(len(r.commands) for r in recs)
         print(f"seed {seed}: {len(recs)} recordings, {n} commands in {args.folder / f'seed-{seed}'}")
     return 0
