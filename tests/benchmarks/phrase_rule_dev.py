@@ -10,7 +10,8 @@ threshold and the rules act after the search, so the search is the same):
 
 - ``word``: each word by its own confidence (the decoder's default);
 - ``run P``: the command words between pauses longer than P seconds form a run, judged by
-  its mean confidence.
+  its mean confidence;
+- ``run P, floor F``: the same, words below F left out of the runs (judged alone).
 
 The sets: the dev voices' commands alone, joined, as phrase stand-ins, real phrases, in
 noise at 10 dB; the same sets said by the far dev voices (``far_voices_dev.far_wave``, the
@@ -55,7 +56,7 @@ def all_sets(model, n_joined: int) -> dict:
     return sets
 
 
-def score(heard, threshold: float, gap: int, min_talk: int, run_pause) -> dict:
+def score(heard, threshold: float, gap: int, min_talk: int, run_pause, floor: float = 0.0) -> dict:
     """Per set: WER %, or % of files not exactly right (command sets) or with a word kept
     (no-command sets)."""
     from wordspot.decoding.context import keep_words
@@ -65,7 +66,7 @@ def score(heard, threshold: float, gap: int, min_talk: int, run_pause) -> dict:
     for name, items in heard.items():
         right = errors = n_words = with_word = 0
         for ref, hyp, conf, path in items:
-            kept, _ = keep_words(path, conf, threshold, gap, min_talk, run_pause)
+            kept, _ = keep_words(path, conf, threshold, gap, min_talk, run_pause, floor)
             words = [w for k, w in enumerate(hyp) if kept[k]]
             right += words == list(ref)
             with_word += bool(words)
@@ -81,25 +82,14 @@ def score(heard, threshold: float, gap: int, min_talk: int, run_pause) -> dict:
     return out
 
 
-def main(argv=None) -> int:
-    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
-    ap.add_argument("--joined", type=int, default=60, help="joined files and phrase stand-ins per voice kind")
-    ap.add_argument("--pauses", type=float, nargs="+", default=[0.3, 0.5, 1.0], help="run pauses in seconds")
-    ap.add_argument("--thresholds", type=float, nargs="+", default=[None],
-                    help="thresholds (default: the calibrated model's default)")
-    ap.add_argument("--jobs", type=int, default=2)
-    args = ap.parse_args(argv)
-
+def recognise(args):
+    """Per seed: (every set's recognitions with no threshold, the hop in seconds)."""
     from wordspot import api
     from wordspot.audio.features import compute_features
-    from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
     from wordspot.decoding.decoder import DecoderSettings, build_recognizer
     from wordspot.evaluation.calibrate import CalibrationConfig
     from wordspot.training.adapt import AdaptationConfig
 
-    base = DecoderSettings()
-    table: dict = {}
     sets = None
     with tempfile.TemporaryDirectory() as tmp:
         manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
@@ -119,24 +109,64 @@ def main(argv=None) -> int:
                     r = rec.decode(compute_features(wave, model.features))
                     heard[name].append((ref, [s.word for s in r.segments], np.array([s.confidence for s in r.segments]),
                                         r.path_items))
-            hop = rec.hop
-            gap, least = int(round(base.talk_gap / hop)), int(round(base.talk_length / hop))
-            for t in args.thresholds:
-                t = DEFAULT_MIN_CONFIDENCE if t is None else t
-                for pause in [None] + list(args.pauses):
-                    frames = None if pause is None else int(round(pause / hop))
-                    table.setdefault((t, pause), []).append(score(heard, t, gap, least, frames))
+            if args.save:
+                import pickle
+
+                args.save.mkdir(parents=True, exist_ok=True)
+                with open(args.save / f"seed{seed}.pickle", "wb") as fh:
+                    pickle.dump((heard, rec.hop), fh)
             print(f"seed {seed}: cpu {t1 - t0:.0f} s adapting, {time.process_time() - t1:.0f} s recognising",
                   file=sys.stderr, flush=True)
+            yield heard, rec.hop
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
+    ap.add_argument("--joined", type=int, default=60, help="joined files and phrase stand-ins per voice kind")
+    ap.add_argument("--pauses", type=float, nargs="+", default=[0.3, 0.5, 1.0], help="run pauses in seconds")
+    ap.add_argument("--thresholds", type=float, nargs="+", default=[None],
+                    help="thresholds (default: the calibrated model's default)")
+    ap.add_argument("--floors", type=float, nargs="+", default=[0.0], help="run floors")
+    ap.add_argument("--jobs", type=int, default=2)
+    ap.add_argument("--save", type=Path, default=None,
+                    help="keep each seed's recognitions in this folder (pickle: scratch files only)")
+    ap.add_argument("--load", type=Path, default=None, help="make the table from a --save folder instead")
+    args = ap.parse_args(argv)
+
+    from wordspot.decoding.confidence import DEFAULT_MIN_CONFIDENCE
+    from wordspot.decoding.decoder import DecoderSettings
+
+    base = DecoderSettings()
+    table: dict = {}
+    heards = []
+    if args.load:
+        import pickle
+
+        for seed in args.seeds:
+            with open(args.load / f"seed{seed}.pickle", "rb") as fh:
+                heards.append(pickle.load(fh))
+    else:
+        heards = list(recognise(args))
+    for heard, hop in heards:
+        gap, least = int(round(base.talk_gap / hop)), int(round(base.talk_length / hop))
+        for t in args.thresholds:
+            t = DEFAULT_MIN_CONFIDENCE if t is None else t
+            for pause in [None] + list(args.pauses):
+                frames = None if pause is None else int(round(pause / hop))
+                for floor in [0.0] if pause is None else args.floors:
+                    table.setdefault((t, pause, floor), []).append(score(heard, t, gap, least, frames, floor))
+    sets = heards[0][0]
     names = list(sets)
     label = {n: (f"{n} WER" if n in WER_SETS else f"{n}: files with a command" if n in NO_COMMAND
                  else f"{n}: not exactly right") for n in names}
     print(f"seeds {args.seeds}: mean (min-max) in %")
     print("| threshold | rule | " + " | ".join(label[n] for n in names) + " |")
     print("| ---: | --- |" + " ---: |" * len(names))
-    for (t, pause), rows in table.items():
+    for (t, pause, floor), rows in table.items():
         a = np.array([[r[n] for n in names] for r in rows])
-        print(f"| {t:g} | {'word' if pause is None else f'run {pause:g} s'} | "
+        rule = "word" if pause is None else f"run {pause:g} s" + (f", floor {floor:g}" if floor else "")
+        print(f"| {t:g} | {rule} | "
               + " | ".join(f"{a[:, j].mean():.1f} ({a[:, j].min():.1f}-{a[:, j].max():.1f})" for j in range(len(names)))
               + " |", flush=True)
     return 0

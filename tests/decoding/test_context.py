@@ -173,13 +173,18 @@ def test_word_runs_split_at_longer_pauses():
 
 
 def test_run_confidences_are_the_run_means():
-    from wordspot.decoding.context import run_confidences
+    from wordspot.decoding.context import run_confidences, word_runs
 
     conf = [0.9, 0.1, 0.4]
     # runs [A B] [C]: (0.9 + 0.1) / 2 = 0.5 for A and B, C keeps its own
     assert np.allclose(run_confidences(RUNS, conf, 5), [0.5, 0.5, 0.4])
     assert np.allclose(run_confidences(RUNS, conf, 4), conf)  # every word alone: unchanged
     assert np.allclose(run_confidences(RUNS, conf, 30), [np.mean(conf)] * 3)
+    # a floor leaves the words below it out: B (0.1) alone, A and C one run across it at 30
+    # frames ((0.9 + 0.4) / 2 = 0.65); at 5 frames A and C are 43 frames apart, each alone
+    assert np.allclose(run_confidences(RUNS, conf, 30, floor=0.2), [0.65, 0.1, 0.65])
+    assert np.allclose(run_confidences(RUNS, conf, 5, floor=0.2), conf)
+    assert word_runs(RUNS, 30, among=[True, False, True]).tolist() == [0, -1, 0]
 
 
 def test_keep_words_keeps_or_drops_whole_runs():

@@ -150,14 +150,20 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
     return marked
 
 
-def word_runs(items: Sequence[PathItem], pause: int) -> np.ndarray:
+def word_runs(items: Sequence[PathItem], pause: int, among=None) -> np.ndarray:
     """The run of each command word: a new run starts after more than ``pause`` frames
     between the end of one word's phones and the start of the next word (indexed by
-    ``PathItem.segment``; filler and pause items in between count only as time)."""
+    ``PathItem.segment``; filler and pause items in between count only as time).
+
+    ``among`` (bool per word): only these words form runs, the others lying between count
+    only as time and get run -1.
+    """
     words = sorted((it for it in items if it.kind == COMMAND), key=lambda it: it.segment)
-    runs = np.zeros(len(words), dtype=np.int64)
+    runs = np.full(len(words), -1, dtype=np.int64)
     run, prev_end = -1, None
     for it in words:
+        if among is not None and not among[it.segment]:
+            continue
         if prev_end is None or it.first - prev_end - 1 > pause:
             run += 1
         runs[it.segment] = run
@@ -165,31 +171,40 @@ def word_runs(items: Sequence[PathItem], pause: int) -> np.ndarray:
     return runs
 
 
-def run_confidences(items: Sequence[PathItem], confidences: Sequence[float], pause: int) -> np.ndarray:
+def run_confidences(items: Sequence[PathItem], confidences: Sequence[float], pause: int,
+                    floor: float = 0.0) -> np.ndarray:
     """Each word's confidence replaced by the mean confidence of its run (:func:`word_runs`).
 
-    A word alone between longer pauses keeps its own confidence.
+    A word alone between longer pauses keeps its own confidence, and so does a word below
+    ``floor``, which is left out of the runs (the words around it are judged without it).
     """
     c = np.asarray(confidences, dtype=np.float64)
     if c.size == 0:
         return c.copy()
-    runs = word_runs(items, pause)
-    means = np.bincount(runs, weights=c) / np.bincount(runs)
-    return means[runs]
+    among = c >= floor
+    runs = word_runs(items, pause, among)
+    out = c.copy()
+    if among.any():
+        r = runs[among]
+        means = np.bincount(r, weights=c[among]) / np.bincount(r)
+        out[among] = means[r]
+    return out
 
 
 def keep_words(items: Sequence[PathItem], confidences: Sequence[float], threshold: float, gap: int,
-               min_talk: int = 0, run_pause: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+               min_talk: int = 0, run_pause: int | None = None, run_floor: float = 0.0
+               ) -> tuple[np.ndarray, np.ndarray]:
     """Which words the decoder keeps: (kept, said amid talk), one bool per word.
 
     Each word is judged by its own confidence, or with ``run_pause`` (frames) by its run's
-    mean (:func:`run_confidences`); a word judged below ``threshold`` is dropped, and so is
+    mean (:func:`run_confidences`, words below ``run_floor`` left out of the runs); a word
+    judged below ``threshold`` is dropped, and so is
     a word :func:`inside_talk` marks (one side, past kept commands, ``min_talk`` frames of
     talk; ``gap`` 0 or a threshold of 0 marks nothing), with the judged confidences.
     """
     judged = np.asarray(confidences, dtype=np.float64)
     if run_pause is not None:
-        judged = run_confidences(items, judged, run_pause)
+        judged = run_confidences(items, judged, run_pause, run_floor)
     above = judged >= threshold
     inside = np.zeros(judged.shape[0], dtype=bool)
     if gap > 0 and threshold > 0 and above.any():
