@@ -180,11 +180,11 @@ def test_run_confidences_are_the_run_means():
     assert np.allclose(run_confidences(RUNS, conf, 5), [0.5, 0.5, 0.4])
     assert np.allclose(run_confidences(RUNS, conf, 4), conf)  # every word alone: unchanged
     assert np.allclose(run_confidences(RUNS, conf, 30), [np.mean(conf)] * 3)
-    # a floor leaves the words below it out: B (0.1) alone, A and C one run across it at 30
-    # frames ((0.9 + 0.4) / 2 = 0.65); at 5 frames A and C are 43 frames apart, each alone
-    assert np.allclose(run_confidences(RUNS, conf, 30, floor=0.2), [0.65, 0.1, 0.65])
-    assert np.allclose(run_confidences(RUNS, conf, 5, floor=0.2), conf)
-    assert word_runs(RUNS, 30, among=[True, False, True]).tolist() == [0, -1, 0]
+    # a floor leaves the words below it out: B (0.1) alone; A and C are 43 frames apart
+    # (18-60), one run across B at 45 ((0.9 + 0.4) / 2 = 0.65), each alone at 30
+    assert np.allclose(run_confidences(RUNS, conf, 45, floor=0.2), [0.65, 0.1, 0.65])
+    assert np.allclose(run_confidences(RUNS, conf, 30, floor=0.2), conf)
+    assert word_runs(RUNS, 45, among=[True, False, True]).tolist() == [0, -1, 0]
 
 
 def test_keep_words_keeps_or_drops_whole_runs():
