@@ -11,7 +11,9 @@ threshold and the rules act after the search, so the search is the same):
 - ``word``: each word by its own confidence (the decoder's default);
 - ``run P``: the command words between pauses longer than P seconds form a run, judged by
   its mean confidence;
-- ``run P, floor F``: the same, words below F left out of the runs (judged alone).
+- ``run P, floor F``: the same, words below F left out of the runs (judged alone);
+- ``inner P``: a run whose mean reaches the threshold keeps its words that reach it alone
+  and the weak words between two of them; a run below it is dropped whole.
 
 The sets: the dev voices' commands alone, joined, as phrase stand-ins, real phrases, in
 noise at 10 dB; the same sets said by the far dev voices (``far_voices_dev.far_wave``, the
@@ -56,7 +58,8 @@ def all_sets(model, n_joined: int) -> dict:
     return sets
 
 
-def score(heard, threshold: float, gap: int, min_talk: int, run_pause, floor: float = 0.0) -> dict:
+def score(heard, threshold: float, gap: int, min_talk: int, run_pause, floor: float = 0.0,
+          inner: bool = False) -> dict:
     """Per set: WER %, or % of files not exactly right (command sets) or with a word kept
     (no-command sets)."""
     from wordspot.decoding.context import keep_words
@@ -66,7 +69,7 @@ def score(heard, threshold: float, gap: int, min_talk: int, run_pause, floor: fl
     for name, items in heard.items():
         right = errors = n_words = with_word = 0
         for ref, hyp, conf, path in items:
-            kept, _ = keep_words(path, conf, threshold, gap, min_talk, run_pause, floor)
+            kept, _ = keep_words(path, conf, threshold, gap, min_talk, run_pause, floor, inner)
             words = [w for k, w in enumerate(hyp) if kept[k]]
             right += words == list(ref)
             with_word += bool(words)
@@ -128,6 +131,7 @@ def main(argv=None) -> int:
     ap.add_argument("--thresholds", type=float, nargs="+", default=[None],
                     help="thresholds (default: the calibrated model's default)")
     ap.add_argument("--floors", type=float, nargs="+", default=[0.0], help="run floors")
+    ap.add_argument("--inner", action="store_true", help="also the inner rule at each pause")
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--save", type=Path, default=None,
                     help="keep each seed's recognitions in this folder (pickle: scratch files only)")
@@ -155,7 +159,9 @@ def main(argv=None) -> int:
             for pause in [None] + list(args.pauses):
                 frames = None if pause is None else int(round(pause / hop))
                 for floor in [0.0] if pause is None else args.floors:
-                    table.setdefault((t, pause, floor), []).append(score(heard, t, gap, least, frames, floor))
+                    table.setdefault((t, pause, floor, False), []).append(score(heard, t, gap, least, frames, floor))
+                if pause is not None and args.inner:
+                    table.setdefault((t, pause, 0.0, True), []).append(score(heard, t, gap, least, frames, 0.0, True))
     sets = heards[0][0]
     names = list(sets)
     label = {n: (f"{n} WER" if n in WER_SETS else f"{n}: files with a command" if n in NO_COMMAND
@@ -163,9 +169,10 @@ def main(argv=None) -> int:
     print(f"seeds {args.seeds}: mean (min-max) in %")
     print("| threshold | rule | " + " | ".join(label[n] for n in names) + " |")
     print("| ---: | --- |" + " ---: |" * len(names))
-    for (t, pause, floor), rows in table.items():
+    for (t, pause, floor, inner), rows in table.items():
         a = np.array([[r[n] for n in names] for r in rows])
-        rule = "word" if pause is None else f"run {pause:g} s" + (f", floor {floor:g}" if floor else "")
+        rule = ("word" if pause is None else f"{'inner' if inner else 'run'} {pause:g} s"
+                + (f", floor {floor:g}" if floor else ""))
         print(f"| {t:g} | {rule} | "
               + " | ".join(f"{a[:, j].mean():.1f} ({a[:, j].min():.1f}-{a[:, j].max():.1f})" for j in range(len(names)))
               + " |", flush=True)

@@ -206,6 +206,31 @@ def test_keep_words_keeps_or_drops_whole_runs():
     assert keep_words(phrase, conf, 0.05, 20, 0)[0].tolist() == [False, False, False]
 
 
+def test_keep_words_inner_keeps_weak_words_only_between_confident_ones():
+    from wordspot.decoding.context import keep_words
+
+    # one run of five words (no pauses): a weak word at the start, "timer [three] minutes",
+    # and a weak word at the end; mean (0.01 + 0.8 + 0.02 + 0.7 + 0.01) / 5 = 0.308
+    run = _path((PAUSE, 0, 9, 9), (COMMAND, 10, 19, 19, 0), (COMMAND, 20, 29, 29, 1), (COMMAND, 30, 39, 39, 2),
+                (COMMAND, 40, 49, 49, 3), (COMMAND, 50, 59, 59, 4), (PAUSE, 60, 99, 99))
+    conf = [0.01, 0.8, 0.02, 0.7, 0.01]
+    inner, _ = keep_words(run, conf, 0.05, 0, 0, run_pause=5, inner=True)
+    assert inner.tolist() == [False, True, True, True, False]  # the weak ends stay dropped
+    whole, _ = keep_words(run, conf, 0.05, 0, 0, run_pause=5)
+    assert whole.tolist() == [True] * 5  # the mean rule keeps them all
+    # threshold 0.4: the run's mean (0.308) is below it, so inner drops the run whole even
+    # though 0.8 and 0.7 reach it; word by word they are kept
+    assert keep_words(run, conf, 0.4, 0, 0, run_pause=5, inner=True)[0].tolist() == [False] * 5
+    assert keep_words(run, conf, 0.4, 0, 0)[0].tolist() == [False, True, False, True, False]
+    # one confident word only: nothing lies between two, so only it is kept
+    one = [0.01, 0.8, 0.02, 0.03, 0.01]  # mean 0.174
+    assert keep_words(run, one, 0.05, 0, 0, run_pause=5, inner=True)[0].tolist() == [False, True, False, False,
+                                                                                       False]
+    # runs split by a longer pause are judged apart: at -1 frames every word is a run of its own
+    assert keep_words(run, conf, 0.05, 0, 0, run_pause=-1, inner=True)[0].tolist() == \
+        keep_words(run, conf, 0.05, 0, 0)[0].tolist()
+
+
 def test_keep_words_by_word_is_the_threshold_then_the_amid_talk_rule():
     from wordspot.decoding.context import keep_words
 
@@ -220,13 +245,15 @@ def test_keep_words_by_word_is_the_threshold_then_the_amid_talk_rule():
     # a single word between pauses: the run rule is the word rule at every threshold
     alone = _path((PAUSE, 0, 29, 29), (COMMAND, 30, 39, 39, 0), (PAUSE, 40, 79, 79))
     for t in (0.0, 0.05, 0.3, 0.31, 0.9):
-        assert [a.tolist() for a in keep_words(alone, [0.3], t, 10, 5)] == \
-            [a.tolist() for a in keep_words(alone, [0.3], t, 10, 5, run_pause=50)]
+        for inner in (False, True):
+            assert [a.tolist() for a in keep_words(alone, [0.3], t, 10, 5)] == \
+                [a.tolist() for a in keep_words(alone, [0.3], t, 10, 5, run_pause=50, inner=inner)]
 
 
 def test_word_rule_setting_is_checked():
     with pytest.raises(DecodingError, match="word_rule"):
         DecoderSettings(word_rule="mean")
+    assert DecoderSettings().word_rule == "word"
     with pytest.raises(DecodingError, match="run_pause"):
         DecoderSettings(run_pause=-0.5)
 
@@ -271,6 +298,10 @@ def test_the_decoder_judges_a_phrase_whole_with_the_run_rule():
     none = decode(min_confidence=high_t, word_rule="run")
     assert none.words == [] and sorted(s.word for s in none.dropped) == sorted([weak, strong])
     assert decode(min_confidence=low_t, word_rule="run").words == got.words
+    # inner: the weak word is at an end of the run, so it stays dropped at the lower
+    # threshold; at the higher one the run's mean is below it and both are dropped
+    assert decode(min_confidence=low_t, word_rule="inner").words == [strong]
+    assert decode(min_confidence=high_t, word_rule="inner").words == []
     # a run pause shorter than the pause between the words: each word judged alone again
     assert decode(min_confidence=low_t, word_rule="run", run_pause=0.0).words == [strong]
 
@@ -285,7 +316,10 @@ def test_a_single_word_file_is_the_same_under_both_rules():
     assert conf.words == ["sack"]
     own = conf.segments[0].confidence
     for t in (0.0, own / 2, own, min(1.0, own * 1.5 + 0.01)):
-        a, b = (build_recognizer(model, settings=DecoderSettings.unpruned(**base, min_confidence=t, word_rule=r))
-                .decode(frames) for r in ("word", "run"))
-        assert (a.words, [s.word for s in a.dropped], a.reason) == (b.words, [s.word for s in b.dropped], b.reason)
-        assert [s.confidence for s in a.segments + a.dropped] == [s.confidence for s in b.segments + b.dropped]
+        a, *others = (build_recognizer(model, settings=DecoderSettings.unpruned(**base, min_confidence=t,
+                                                                                word_rule=r)).decode(frames)
+                      for r in ("word", "run", "inner"))
+        for b in others:
+            assert (a.words, [s.word for s in a.dropped], a.reason) == \
+                (b.words, [s.word for s in b.dropped], b.reason)
+            assert [s.confidence for s in a.segments + a.dropped] == [s.confidence for s in b.segments + b.dropped]

@@ -24,7 +24,8 @@ like words below the threshold.
 :func:`run_confidences` is the other way of judging the words of a phrase
 (``DecoderSettings.word_rule = "run"``): the command words said between pauses longer
 than ``run_pause`` form one run, and every word of a run is judged by the mean
-confidence of the run, so a phrase is kept or dropped whole. :func:`keep_words` applies
+confidence of the run, so a phrase is kept or dropped whole ("inner": only the weak words
+between two confident words of a run are kept with it). :func:`keep_words` applies
 the threshold (either way) and then the amid-talk rule, as the decoder does.
 """
 
@@ -192,21 +193,46 @@ def run_confidences(items: Sequence[PathItem], confidences: Sequence[float], pau
 
 
 def keep_words(items: Sequence[PathItem], confidences: Sequence[float], threshold: float, gap: int,
-               min_talk: int = 0, run_pause: int | None = None, run_floor: float = 0.0
+               min_talk: int = 0, run_pause: int | None = None, run_floor: float = 0.0, inner: bool = False
                ) -> tuple[np.ndarray, np.ndarray]:
     """Which words the decoder keeps: (kept, said amid talk), one bool per word.
 
     Each word is judged by its own confidence, or with ``run_pause`` (frames) by its run's
-    mean (:func:`run_confidences`, words below ``run_floor`` left out of the runs); a word
-    judged below ``threshold`` is dropped, and so is
-    a word :func:`inside_talk` marks (one side, past kept commands, ``min_talk`` frames of
-    talk; ``gap`` 0 or a threshold of 0 marks nothing), with the judged confidences.
+    mean (:func:`run_confidences`, words below ``run_floor`` left out of the runs); with
+    ``inner`` too, a run whose mean reaches ``threshold`` keeps only its words that reach
+    it on their own and the weaker words between two of those (a weak word at either end
+    of a run stays dropped), and a run below it is dropped whole. A word judged below
+    ``threshold`` is dropped, and so is a word :func:`inside_talk` marks (one side, past
+    kept commands, ``min_talk`` frames of talk; ``gap`` 0 or a threshold of 0 marks
+    nothing), with the judged confidences.
     """
-    judged = np.asarray(confidences, dtype=np.float64)
+    own = np.asarray(confidences, dtype=np.float64)
+    judged = own
     if run_pause is not None:
-        judged = run_confidences(items, judged, run_pause, run_floor)
+        judged = run_confidences(items, own, run_pause, run_floor)
+        if inner:
+            judged = _inner_judged(items, own, judged, threshold, run_pause, run_floor)
     above = judged >= threshold
     inside = np.zeros(judged.shape[0], dtype=bool)
     if gap > 0 and threshold > 0 and above.any():
         inside = inside_talk(items, judged, threshold, gap, sides=1, through=True, min_talk=min_talk)
     return above & ~inside, inside
+
+
+def _inner_judged(items, own: np.ndarray, means: np.ndarray, threshold: float, pause: int,
+                  floor: float) -> np.ndarray:
+    """The ``inner`` judging of :func:`keep_words`: own confidences, run means for the weak
+    words between two words of their run that reach ``threshold``, and a run below it
+    judged by its mean whole."""
+    runs = word_runs(items, pause, own >= floor)
+    out = own.copy()
+    for r in np.unique(runs[runs >= 0]):
+        idx = np.flatnonzero(runs == r)
+        if means[idx[0]] < threshold:
+            out[idx] = np.minimum(own[idx], means[idx])
+            continue
+        strong = idx[own[idx] >= threshold]
+        if strong.size:
+            between = idx[(idx > strong.min()) & (idx < strong.max())]
+            out[between] = np.maximum(own[between], means[between])
+    return out

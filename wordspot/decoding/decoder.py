@@ -48,7 +48,7 @@ __all__ = [
 ]
 
 #: How the confidence threshold judges the words of a phrase (``DecoderSettings.word_rule``).
-WORD_RULES = ("word", "run")
+WORD_RULES = ("word", "run", "inner")
 
 REASON_TOO_SHORT = "too short"
 REASON_SILENCE = "silence or noise only"
@@ -114,12 +114,15 @@ class DecoderSettings:
         with a threshold above 0. Chosen on the demo's dev voices over three seeds
         (docs/experiments/2026-12-03-commands-amid-talk.md): other sentences with a
         command 23.9% -> 12.1% of files, real phrases WER 8.8% -> 9.7%.
-    word_rule : {"word", "run"}
+    word_rule : {"word", "run", "inner"}
         How the threshold judges the words of a phrase. "word" (default): each word by its
         own confidence. "run": the command words between pauses longer than ``run_pause``
         seconds form a run, judged whole by its words' mean confidence (kept or dropped
-        together; a word alone is judged as with "word"); ``WordSegment.confidence`` stays
-        the word's own (:func:`wordspot.decoding.context.keep_words`).
+        together; a word alone is judged as with "word"). "inner": a run below the
+        threshold by its mean is dropped whole; one above keeps its words above it and the
+        weaker words between two of those ("timer [three] minutes"), not weak words at its
+        ends. ``WordSegment.confidence`` stays the word's own
+        (:func:`wordspot.decoding.context.keep_words`).
     run_pause : float >= 0
         See ``word_rule``.
     """
@@ -693,7 +696,8 @@ class Recognizer:
         words, threshold, st = result.segments, self.min_confidence, self.settings
         kept, inside = keep_words(items, [s.confidence for s in words], threshold,
                                   int(round(st.talk_gap / self.hop)), int(round(st.talk_length / self.hop)),
-                                  int(round(st.run_pause / self.hop)) if st.word_rule == "run" else None)
+                                  None if st.word_rule == "word" else int(round(st.run_pause / self.hop)),
+                                  inner=st.word_rule == "inner")
         for k in np.flatnonzero(inside):
             words[k].amid_talk = True
         result.segments = [s for k, s in enumerate(words) if kept[k]]
