@@ -186,6 +186,7 @@ def main(argv=None) -> int:
                     help="ScanSettings.command_confidence values ('none': the recognizer's threshold)")
     ap.add_argument("--max-stretch", type=float, nargs="+", default=[None])
     ap.add_argument("--command-rule", nargs="+", default=[None], help="ScanSettings.command_rule values")
+    ap.add_argument("--word-rule", nargs="+", default=[None], help="DecoderSettings.word_rule values")
     args = ap.parse_args(argv)
 
     import itertools
@@ -197,10 +198,10 @@ def main(argv=None) -> int:
 
     model = load_model(args.model)
     print(header(args.per_seed))
-    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf, whole in itertools.product(
+    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf, whole, word_rule in itertools.product(
             args.talk_gap, args.min_confidence, args.split_pause, args.padding, args.hangover, args.command_rule,
-            args.normalise, args.max_stretch, args.scan_confidence, args.command_confidence):
-        dec = {}
+            args.normalise, args.max_stretch, args.scan_confidence, args.command_confidence, args.word_rule):
+        dec = {} if word_rule is None else {"word_rule": word_rule}
         if gap is not None:
             dec["talk_gap"] = gap
         if conf is not None:
@@ -224,7 +225,8 @@ def main(argv=None) -> int:
         name = (f"gap {gap if gap is not None else 'def'}, thr {conf if conf is not None else 'def'}, "
                 f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, "
                 f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}, "
-                f"scan threshold {s.min_confidence:g}, command threshold {s.command_confidence}")
+                f"scan threshold {s.min_confidence:g}, command threshold {s.command_confidence}, "
+                f"decoder word rule {word_rule or 'def'}")
         print(report(name, rows, args.per_seed), flush=True)
     return 0
 
