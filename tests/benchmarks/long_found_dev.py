@@ -23,6 +23,11 @@ A found command whose words match a label but whose span does not overlap it wou
 scoring (boundary) miss; it is counted separately (``timing``) before the causes above.
 
     python tests/benchmarks/long_found_dev.py --model /tmp/dev.model --folder /tmp/dev-long --seeds 1 2 3
+
+``--far``: the far dev long recordings of ``dev_long.py --far`` (the dev voices given another
+vocal tract and pitch: voices the model never heard); ``--new-voices``: those of
+``dev_long.py --new-voices`` (the starter's dev voices the demo has not). Keep each kind in
+its own folder.
 """
 
 from __future__ import annotations
@@ -37,7 +42,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 
-from dev_long import make_dev_long  # noqa: E402
+from dev_long import far_factors, make_dev_long  # noqa: E402
 
 CAUSES = ("no stretch", "cut by detector", "timing", "no word heard", "threshold", "amid-talk rule", "grouping",
           "wrong words +talk", "wrong words alone")
@@ -100,14 +105,15 @@ def classify(label, spans, found, heard, candidates, talk) -> str:
     return "wrong words +talk" if with_talk else "wrong words alone"
 
 
-def evaluate(recognizer, folder: Path, seeds, settings, show: bool = False):
-    """Per seed: the score and the causes of the misses."""
+def evaluate(recognizer, folder: Path, seeds, settings, show: bool = False, far: dict | None = None,
+             new: bool = False):
+    """Per seed: the score and the causes of the misses (``far``, ``new``: see ``dev_long.make_dev_long``)."""
     from wordspot.evaluation.time_labels import TimedCommand, read_time_labels
     from wordspot.evaluation.timed import BOUNDARY_TOLERANCE, score_timed
 
     out = []
     for seed in seeds:
-        recs = make_dev_long(folder / f"seed-{seed}", seed)
+        recs = make_dev_long(folder / f"seed-{seed}", seed, far=far, new=new)
         talk = {str(r.path): r.commands for r in read_time_labels(folder / f"seed-{seed}" / "talk.csv")}
         found, durations, detail = {}, {}, {}
         for rec in recs:
@@ -139,7 +145,7 @@ def evaluate(recognizer, folder: Path, seeds, settings, show: bool = False):
     return out
 
 
-def report(name: str, rows) -> str:
+def report(name: str, rows, per_seed: bool = False) -> str:
     f = np.array([r["found"] for r in rows])
     fa = np.array([r["fa5"] for r in rows])
     ot = np.array([r["on_time"] for r in rows])
@@ -147,13 +153,16 @@ def report(name: str, rows) -> str:
     for r in rows:
         causes.update(r["causes"])
     cells = " | ".join(str(causes.get(c, 0)) for c in CAUSES)
+    if per_seed:  # found (hits) and false accepts of each seed, for paired comparisons
+        cells += " | " + " ".join(f"{r['hits']}/{r['fa']}" for r in rows)
     return (f"| {name} | {f.mean():.1f} ({f.min():.1f}-{f.max():.1f}) | {fa.mean():.1f} ({fa.min():.1f}-{fa.max():.1f}) "
             f"| {ot.mean():.1f} ({ot.min():.1f}-{ot.max():.1f}) | {cells} |")
 
 
-def header() -> str:
+def header(per_seed: bool = False) -> str:
     return ("| settings | found % | false accepts per 5 min | both ends within 0.3 s % | " + " | ".join(CAUSES)
-            + " |\n| --- | ---: | ---: | ---: |" + " ---: |" * len(CAUSES))
+            + (" | found/false accepts per seed" if per_seed else "")
+            + " |\n| --- | ---: | ---: | ---: |" + " ---: |" * (len(CAUSES) + per_seed))
 
 
 def main(argv=None) -> int:
@@ -162,6 +171,9 @@ def main(argv=None) -> int:
     ap.add_argument("--folder", type=Path, required=True, help="where the dev long recordings are (made if missing)")
     ap.add_argument("--seeds", type=int, nargs="+", default=[1, 2, 3])
     ap.add_argument("--show", action="store_true", help="print every miss and false accept")
+    ap.add_argument("--per-seed", action="store_true", help="also each seed's commands found and false accepts")
+    ap.add_argument("--far", action="store_true", help="the far dev long recordings (dev_long.py --far)")
+    ap.add_argument("--new-voices", action="store_true", help="those of dev_long.py --new-voices")
     ap.add_argument("--talk-gap", type=float, nargs="+", default=[None])
     ap.add_argument("--min-confidence", type=float, nargs="+", default=[None])
     ap.add_argument("--split-pause", type=float, nargs="+", default=[None])
@@ -174,6 +186,7 @@ def main(argv=None) -> int:
                     help="ScanSettings.command_confidence values ('none': the recognizer's threshold)")
     ap.add_argument("--max-stretch", type=float, nargs="+", default=[None])
     ap.add_argument("--command-rule", nargs="+", default=[None], help="ScanSettings.command_rule values")
+    ap.add_argument("--word-rule", nargs="+", default=[None], help="DecoderSettings.word_rule values")
     args = ap.parse_args(argv)
 
     import itertools
@@ -184,11 +197,11 @@ def main(argv=None) -> int:
     from wordspot.stream.scan import ScanSettings
 
     model = load_model(args.model)
-    print(header())
-    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf, whole in itertools.product(
+    print(header(args.per_seed))
+    for gap, conf, split, pad, hang, rule, norm, longest, scan_conf, whole, word_rule in itertools.product(
             args.talk_gap, args.min_confidence, args.split_pause, args.padding, args.hangover, args.command_rule,
-            args.normalise, args.max_stretch, args.scan_confidence, args.command_confidence):
-        dec = {}
+            args.normalise, args.max_stretch, args.scan_confidence, args.command_confidence, args.word_rule):
+        dec = {} if word_rule is None else {"word_rule": word_rule}
         if gap is not None:
             dec["talk_gap"] = gap
         if conf is not None:
@@ -207,12 +220,14 @@ def main(argv=None) -> int:
                     **({} if norm is None else {"normalise_seconds": norm}),
                     **({} if scan_conf is None else {"min_confidence": scan_conf}),
                     **({} if whole is None else {"command_confidence": None if whole == "none" else float(whole)}))
-        rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show)
+        rows = evaluate(recognizer, args.folder, args.seeds, s, show=args.show,
+                        far=far_factors() if args.far else None, new=args.new_voices)
         name = (f"gap {gap if gap is not None else 'def'}, thr {conf if conf is not None else 'def'}, "
                 f"split {s.split_pause:g}, pad {det.padding:g}, hang {det.hangover:g}, "
                 f"longest {det.max_stretch:g}, rule {s.command_rule}, norm {s.normalise_seconds:g}, "
-                f"scan threshold {s.min_confidence:g}, command threshold {s.command_confidence}")
-        print(report(name, rows), flush=True)
+                f"scan threshold {s.min_confidence:g}, command threshold {s.command_confidence}, "
+                f"decoder word rule {word_rule or 'def'}")
+        print(report(name, rows, args.per_seed), flush=True)
     return 0
 
 

@@ -115,6 +115,30 @@ def test_whole_commands_worked_by_hand():
         whole_commands("f.wav", words, 0.35, 0.5, "lowest")
 
 
+def test_by_default_a_weak_word_inside_a_command_keeps_the_command_whole():
+    # A stretch's recognition, worked by hand: "oven" 0.9 and "minutes" 0.8 kept by the
+    # decoder's threshold 0.05, "four" 0.01 below it, "yes" 0.9 dropped as said amid talk.
+    # By default (whole commands by their mean, 0.35) the command is "oven four minutes"
+    # with (0.9 + 0.01 + 0.8) / 3 = 0.57; word by word it is "oven minutes" (a wrong
+    # command). The word amid talk joins no command either way.
+    from types import SimpleNamespace
+
+    from wordspot.stream.scan import stretch_commands
+
+    def seg(word, a, b, c, talk=False):
+        return SimpleNamespace(word=word, start=a, end=b, confidence=c, amid_talk=talk)
+
+    result = SimpleNamespace(segments=[seg("oven", 0.0, 0.4, 0.9), seg("minutes", 0.9, 1.4, 0.8)],
+                             dropped=[seg("four", 0.5, 0.8, 0.01), seg("yes", 3.0, 3.3, 0.9, talk=True)])
+    (whole,) = stretch_commands(result, 10.0, 0.05, ScanSettings(), "f.wav")
+    assert whole.words == ("oven", "four", "minutes") and whole.confidence == pytest.approx(0.57)
+    assert (whole.start, whole.end) == (10.0, 11.4)
+    (alone,) = stretch_commands(result, 10.0, 0.05, ScanSettings(command_rule="word"), "f.wav")
+    assert alone.words == ("oven", "minutes")
+    # below the command threshold the whole command goes: 0.57 < 0.6
+    assert stretch_commands(result, 10.0, 0.05, ScanSettings(command_confidence=0.6), "f.wav") == []
+
+
 @pytest.mark.parametrize("bad", [{"command_rule": "lowest"}, {"command_confidence": 1.5},
                                  {"command_confidence": True}, {"normalise_seconds": -1.0}])
 def test_scan_settings_refuse_bad_values(bad):

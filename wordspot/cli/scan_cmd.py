@@ -28,7 +28,7 @@ examples (a bakery: a microphone above the counter records the whole morning):
   wordspot scan --model bakery.model --reference long.csv       scan the labelled recordings, score
 
 csv and jsonl: one record per command (path, start and end in seconds, words separated by
-spaces, confidence = the lowest of its words); a file in which nothing was found gets one
+spaces, confidence = the mean of its words'); a file in which nothing was found gets one
 record with empty times and words, so a csv output is itself a time-label file.
 
 time-label file (--reference): CSV with the header `path,start,end,words`, one row per

@@ -20,6 +20,13 @@ The decoder (``DecoderSettings.talk_gap``, ``talk_length``) uses one side, looki
 kept commands, with a gap of 0.2 s and at least 0.5 s of talk: chosen on the demo's dev
 voices (docs/experiments/2026-12-03-commands-amid-talk.md), and drops the marked words
 like words below the threshold.
+
+:func:`run_confidences` is the other way of judging the words of a phrase
+(``DecoderSettings.word_rule = "run"``): the command words said between pauses longer
+than ``run_pause`` form one run, and every word of a run is judged by the mean
+confidence of the run, so a phrase is kept or dropped whole ("inner": only the weak words
+between two confident words of a run are kept with it). :func:`keep_words` applies
+the threshold (either way) and then the amid-talk rule, as the decoder does.
 """
 
 from __future__ import annotations
@@ -29,7 +36,7 @@ from typing import Sequence
 
 import numpy as np
 
-__all__ = ["PAUSE", "FILLER", "COMMAND", "PathItem", "inside_talk"]
+__all__ = ["PAUSE", "FILLER", "COMMAND", "PathItem", "inside_talk", "word_runs", "run_confidences", "keep_words"]
 
 #: Kinds of item on the best path.
 PAUSE, FILLER, COMMAND = 0, 1, 2
@@ -142,3 +149,90 @@ def inside_talk(items: Sequence[PathItem], confidences: Sequence[float], thresho
         after = _side_is_talk(items, k, +1, it.last - it.phone_end, confidences, threshold, gap, through, min_talk)
         marked[it.segment] = (before + after) >= sides
     return marked
+
+
+def word_runs(items: Sequence[PathItem], pause: int, among=None) -> np.ndarray:
+    """The run of each command word: a new run starts after more than ``pause`` frames
+    between the end of one word's phones and the start of the next word (indexed by
+    ``PathItem.segment``; filler and pause items in between count only as time).
+
+    ``among`` (bool per word): only these words form runs, the others lying between count
+    only as time and get run -1.
+    """
+    words = sorted((it for it in items if it.kind == COMMAND), key=lambda it: it.segment)
+    runs = np.full(len(words), -1, dtype=np.int64)
+    run, prev_end = -1, None
+    for it in words:
+        if among is not None and not among[it.segment]:
+            continue
+        if prev_end is None or it.first - prev_end - 1 > pause:
+            run += 1
+        runs[it.segment] = run
+        prev_end = it.phone_end
+    return runs
+
+
+def run_confidences(items: Sequence[PathItem], confidences: Sequence[float], pause: int,
+                    floor: float = 0.0) -> np.ndarray:
+    """Each word's confidence replaced by the mean confidence of its run (:func:`word_runs`).
+
+    A word alone between longer pauses keeps its own confidence, and so does a word below
+    ``floor``, which is left out of the runs (the words around it are judged without it).
+    """
+    c = np.asarray(confidences, dtype=np.float64)
+    if c.size == 0:
+        return c.copy()
+    among = c >= floor
+    runs = word_runs(items, pause, among)
+    out = c.copy()
+    if among.any():
+        r = runs[among]
+        means = np.bincount(r, weights=c[among]) / np.bincount(r)
+        out[among] = means[r]
+    return out
+
+
+def keep_words(items: Sequence[PathItem], confidences: Sequence[float], threshold: float, gap: int,
+               min_talk: int = 0, run_pause: int | None = None, run_floor: float = 0.0, inner: bool = False
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """Which words the decoder keeps: (kept, said amid talk), one bool per word.
+
+    Each word is judged by its own confidence, or with ``run_pause`` (frames) by its run's
+    mean (:func:`run_confidences`, words below ``run_floor`` left out of the runs); with
+    ``inner`` too, a run whose mean reaches ``threshold`` keeps only its words that reach
+    it on their own and the weaker words between two of those (a weak word at either end
+    of a run stays dropped), and a run below it is dropped whole. A word judged below
+    ``threshold`` is dropped, and so is a word :func:`inside_talk` marks (one side, past
+    kept commands, ``min_talk`` frames of talk; ``gap`` 0 or a threshold of 0 marks
+    nothing), with the judged confidences.
+    """
+    own = np.asarray(confidences, dtype=np.float64)
+    judged = own
+    if run_pause is not None:
+        judged = run_confidences(items, own, run_pause, run_floor)
+        if inner:
+            judged = _inner_judged(items, own, judged, threshold, run_pause, run_floor)
+    above = judged >= threshold
+    inside = np.zeros(judged.shape[0], dtype=bool)
+    if gap > 0 and threshold > 0 and above.any():
+        inside = inside_talk(items, judged, threshold, gap, sides=1, through=True, min_talk=min_talk)
+    return above & ~inside, inside
+
+
+def _inner_judged(items, own: np.ndarray, means: np.ndarray, threshold: float, pause: int,
+                  floor: float) -> np.ndarray:
+    """The ``inner`` judging of :func:`keep_words`: own confidences, run means for the weak
+    words between two words of their run that reach ``threshold``, and a run below it
+    judged by its mean whole."""
+    runs = word_runs(items, pause, own >= floor)
+    out = own.copy()
+    for r in np.unique(runs[runs >= 0]):
+        idx = np.flatnonzero(runs == r)
+        if means[idx[0]] < threshold:
+            out[idx] = np.minimum(own[idx], means[idx])
+            continue
+        strong = idx[own[idx] >= threshold]
+        if strong.size:
+            between = idx[(idx > strong.min()) & (idx < strong.max())]
+            out[between] = np.maximum(own[between], means[between])
+    return out

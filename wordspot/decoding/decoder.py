@@ -20,9 +20,9 @@ from pathlib import Path
 import numpy as np
 
 from wordspot.decoding import kernels as decode_kernels
-from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, inside_talk
+from wordspot.decoding.context import COMMAND, FILLER, PAUSE, PathItem, keep_words
 from wordspot.decoding.confidence import (CONFIDENCE_SCALE, DEFAULT_MIN_CONFIDENCE, NO_POSTERIORS, VOWEL_CLASSES,
-                                          path_posterior_measures, split_by_confidence, usable_calibration,
+                                          path_posterior_measures, usable_calibration,
                                           word_confidence, word_measures)
 from wordspot.errors import DecodingError, WordspotError
 from wordspot.audio.band import is_narrow_band
@@ -45,7 +45,11 @@ __all__ = [
     "recognize_file",
     "recognize_files",
     "CONFIDENCE_SCALE",
+    "WORD_RULES",
 ]
+
+#: How the confidence threshold judges the words of a phrase (``DecoderSettings.word_rule``).
+WORD_RULES = ("word", "run", "inner")
 
 REASON_TOO_SHORT = "too short"
 REASON_SILENCE = "silence or noise only"
@@ -116,6 +120,17 @@ class DecoderSettings:
         model's voice mixture best (:mod:`wordspot.audio.voice_warp`), so that an unheard
         voice looks more like the training voices; no effect for a model without a voice
         mixture, for features handed in directly, or for scanned and live audio.
+    word_rule : {"word", "run", "inner"}
+        How the threshold judges the words of a phrase. "word" (default): each word by its
+        own confidence. "run": the command words between pauses longer than ``run_pause``
+        seconds form a run, judged whole by its words' mean confidence (kept or dropped
+        together; a word alone is judged as with "word"). "inner": a run below the
+        threshold by its mean is dropped whole; one above keeps its words above it and the
+        weaker words between two of those ("timer [three] minutes"), not weak words at its
+        ends. ``WordSegment.confidence`` stays the word's own
+        (:func:`wordspot.decoding.context.keep_words`).
+    run_pause : float >= 0
+        See ``word_rule``.
     """
 
     beam: float = 250.0
@@ -135,6 +150,8 @@ class DecoderSettings:
     talk_gap: float = 0.2
     talk_length: float = 0.5
     voice_warp: bool = False
+    word_rule: str = "word"
+    run_pause: float = 0.5
 
     def __post_init__(self) -> None:
         m = self.min_confidence
@@ -151,10 +168,12 @@ class DecoderSettings:
             raise DecodingError(f"scorer_weight (--scorer-weight) must be a number from 0 to 1, got {w!r}")
         if not (isinstance(sc, (int, float)) and not isinstance(sc, bool) and 0.0 < sc < np.inf):
             raise DecodingError(f"scorer_scale (--scorer-scale) must be a finite number > 0, got {sc!r}")
-        for name, option in (("talk_gap", "--talk-gap"), ("talk_length", "--talk-length")):
+        if self.word_rule not in WORD_RULES:
+            raise DecodingError(f"word_rule must be one of {', '.join(WORD_RULES)}, got {self.word_rule!r}")
+        for name, option in (("talk_gap", " (--talk-gap)"), ("talk_length", " (--talk-length)"), ("run_pause", "")):
             g = getattr(self, name)
             if not (isinstance(g, (int, float)) and not isinstance(g, bool) and 0.0 <= g < np.inf):
-                raise DecodingError(f"{name} ({option}) must be a number of seconds >= 0, got {g!r}")
+                raise DecodingError(f"{name}{option} must be a number of seconds >= 0, got {g!r}")
         if not isinstance(self.voice_warp, (bool, np.bool_)):
             raise DecodingError(f"voice_warp must be true or false, got {self.voice_warp!r}")
         self.grammar  # validates weight and penalty
@@ -688,18 +707,15 @@ class Recognizer:
         # confidence threshold (wordspot.decoding.confidence), then words said amid other talk
         # (wordspot.decoding.context)
         result.path_items = items
-        words, threshold = result.segments, self.min_confidence
-        result.segments, result.dropped = split_by_confidence(words, threshold)
-        inside = np.zeros(len(words), dtype=bool)
-        if self.settings.talk_gap > 0 and threshold > 0 and result.segments:
-            inside = inside_talk(items, [s.confidence for s in words], threshold,
-                                 int(round(self.settings.talk_gap / self.hop)), sides=1, through=True,
-                                 min_talk=int(round(self.settings.talk_length / self.hop)))
-            if inside.any():
-                for k in np.flatnonzero(inside):
-                    words[k].amid_talk = True
-                result.segments = [s for k, s in enumerate(words) if s.confidence >= threshold and not inside[k]]
-                result.dropped = [s for k, s in enumerate(words) if s.confidence < threshold or inside[k]]
+        words, threshold, st = result.segments, self.min_confidence, self.settings
+        kept, inside = keep_words(items, [s.confidence for s in words], threshold,
+                                  int(round(st.talk_gap / self.hop)), int(round(st.talk_length / self.hop)),
+                                  None if st.word_rule == "word" else int(round(st.run_pause / self.hop)),
+                                  inner=st.word_rule == "inner")
+        for k in np.flatnonzero(inside):
+            words[k].amid_talk = True
+        result.segments = [s for k, s in enumerate(words) if kept[k]]
+        result.dropped = [s for k, s in enumerate(words) if not kept[k]]
         if len(chain) <= 1:
             result.reason = f"{REASON_SILENCE}: the recording sounds more like a pause than like any word"
         elif result.dropped and not result.segments and inside.any():
