@@ -41,7 +41,7 @@ from typing import Callable, Iterator, Sequence
 import numpy as np
 
 from wordspot.audio.augment import snr_range
-from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES, POSTERIOR_MEASURE_NAMES
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.errors import TrainingError, TrainingWarning, WordspotError
 from wordspot.evaluation.reliability import word_hits
@@ -65,6 +65,7 @@ __all__ = [
     "calibration_examples",
     "fit_calibration",
     "CALIBRATION_POSTERIOR_MEASURES",
+    "MEASURE_SIGNS",
     "calibration_measures",
     "held_out_parts",
     "recognised_share",
@@ -104,6 +105,35 @@ CALIBRATION_POSTERIOR_MEASURES = ("posterior_mean", "posterior_phone_mean", "pos
                                   "posterior_filler_margin")
 
 
+#: The sign a measure's weight may take when ``CalibrationConfig.weight_signs`` is on: +1
+#: when a larger value means more evidence that the word was said (definitions in
+#: :mod:`wordspot.decoding.confidence`), -1 when less, and absent (any sign) when the
+#: definition gives no direction. Without it a fit may give a measure the wrong sign where
+#: it moves with others (``acoustic_per_frame`` came out negative beside the margins), and
+#: a word that fits better than any held-out take then loses confidence.
+MEASURE_SIGNS = {
+    # the word's own states' log score a frame: higher, its frames look more like its
+    # phones (rivals are the margins' part; a better fit is no evidence against the word)
+    "acoustic_per_frame": +1,
+    # the word's score less the best free state's (<= 0): nearer 0, no state explains its
+    # frames much better
+    "free_margin": +1,
+    # "frames_per_phone": no sign (phones too short and too long are both suspicious)
+    # the word's score less the best free sequence of phones / the best other command's
+    "filler_margin": +1,
+    "runner_up_margin": +1,
+    # neighbours that are the filler: a command inside other talk rather than between pauses
+    "next_to_filler": -1,
+    # phones of the pronunciation: short words turn up in other talk more easily
+    "phones": +1,
+    # the mean of the word's phones' margins over the best free sequence on their frames
+    "phone_filler_margin": +1,
+    # the state scorer's log posteriors along the word's path (higher: the scorer agrees
+    # more with the word's states) and its margin over the filler
+    **{name: +1 for name in POSTERIOR_MEASURE_NAMES},
+}
+
+
 def calibration_measures(measures: np.ndarray) -> tuple[str, ...]:
     """The measures a calibration fitted on ``measures`` (rows in the order of
     ``MEASURE_NAMES``) uses: the base ones, plus :data:`CALIBRATION_POSTERIOR_MEASURES` when
@@ -135,6 +165,9 @@ class CalibrationConfig:
         Fewest right and fewest wrong words to fit on.
     penalty : float
         L2 penalty of the logistic regression (standardised measures).
+    weight_signs : bool
+        Fit each measure's weight with the sign its meaning implies (:data:`MEASURE_SIGNS`;
+        the same penalised likelihood under those bounds); False: any sign.
     settings : DecoderSettings
         How the held-out recordings are recognised (the word loop; no threshold).
     speeds : tuple of float
@@ -178,6 +211,7 @@ class CalibrationConfig:
     min_items: int = 20
     min_per_class: int = 5
     penalty: float = DEFAULT_PENALTY
+    weight_signs: bool = False
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
     speeds: tuple[float, ...] = (0.9, 1.0, 1.1, 1.25, 1.4)
     backwards: bool = False
@@ -664,7 +698,8 @@ def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig 
         )
         return None
     try:
-        return fit_logistic(x, examples.right.astype(int), names, penalty=config.penalty)
+        signs = [MEASURE_SIGNS.get(n, 0) for n in names] if config.weight_signs else None
+        return fit_logistic(x, examples.right.astype(int), names, penalty=config.penalty, signs=signs)
     except ValueError as exc:
         if not quiet_skip:
             warnings.warn(f"confidence calibration skipped: {exc}", TrainingWarning, stacklevel=2)

@@ -10,6 +10,12 @@ the inputs standardised by their training means ``m`` and standard deviations ``
 gradient and Hessian. It is the objective of scikit-learn's ``LogisticRegression`` with
 ``C = 1 / penalty``. The penalty keeps the coefficients finite on separable data.
 
+With ``signs`` some weights may only be >= 0 (sign +1) or <= 0 (sign -1): the same
+objective minimised under those bounds (scipy's L-BFGS-B, then Newton-CG again on the
+weights off their bounds, for the same precision as the free fit). The optimum then meets
+the Karush-Kuhn-Tucker conditions: a weight strictly inside its bound has a zero
+gradient, a weight held at 0 has a gradient pointing out of its allowed side.
+
 :class:`Calibration` is the fitted result: it names its inputs, predicts probabilities
 with numpy alone (scipy is imported only to fit), and turns into plain JSON data and back.
 Errors are ``ValueError`` (callers add the file or option they concern).
@@ -119,7 +125,8 @@ def _design(z: np.ndarray) -> np.ndarray:
     return np.hstack([z, np.ones((z.shape[0], 1))])
 
 
-def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 1e-10) -> Calibration:
+def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 1e-10,
+                 signs=None) -> Calibration:
     """Fit P(y = 1 | x) by penalised maximum likelihood (see the module docstring).
 
     Parameters
@@ -133,6 +140,9 @@ def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 
         L2 weight on the standardised coefficients (scikit-learn's ``C = 1 / penalty``).
     tol : float
         Newton-CG's tolerance on the step (``xtol``).
+    signs : sequence of -1, 0, +1, length k, or None
+        Per measure, the only sign its weight may take (+1: >= 0, -1: <= 0, 0: any).
+        None or all 0: the free fit.
 
     Returns
     -------
@@ -142,7 +152,7 @@ def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 
     ------
     ValueError
         Shapes disagree, values are not finite, a label is not 0 / 1, one class is absent,
-        or the optimiser did not converge.
+        a sign is not -1, 0 or +1, or the optimiser did not converge.
     """
     from scipy.optimize import minimize
 
@@ -167,6 +177,8 @@ def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 
     ridge = np.full(a.shape[1], float(penalty))
     ridge[-1] = 0.0  # the intercept is not penalised
 
+    bound = _signs(signs, len(names))
+
     def loss(theta):
         t = a @ theta
         # log(1 + exp(t)) = logaddexp(0, t), stable for any t
@@ -179,12 +191,68 @@ def fit_logistic(X, y, names, *, penalty: float = DEFAULT_PENALTY, tol: float = 
         p = sigmoid(a @ theta)
         return (a * (p * (1.0 - p))[:, None]).T @ a + np.diag(ridge)
 
-    out = minimize(loss, np.zeros(a.shape[1]), jac=gradient, hess=hessian, method="Newton-CG",
-                   options={"xtol": tol, "maxiter": 200})
-    # The penalised loss is strictly convex, so a point where the gradient vanishes is the
-    # optimum: Newton-CG may stop there with "precision loss" (its line search cannot
-    # improve on rounding), which is a success for us; the gradient decides.
-    at_optimum = np.isfinite(out.x).all() and np.max(np.abs(gradient(out.x))) <= 1e-6 * max(1.0, labels.size)
+    limit = 1e-6 * max(1.0, labels.size)
+    if not bound.any():
+        out = minimize(loss, np.zeros(a.shape[1]), jac=gradient, hess=hessian, method="Newton-CG",
+                       options={"xtol": tol, "maxiter": 200})
+        theta, message = out.x, out.message
+        # The penalised loss is strictly convex, so a point where the gradient vanishes is the
+        # optimum: Newton-CG may stop there with "precision loss" (its line search cannot
+        # improve on rounding), which is a success for us; the gradient decides.
+        at_optimum = np.isfinite(theta).all() and np.max(np.abs(gradient(theta))) <= limit
+    else:
+        theta, message = _bounded(loss, gradient, hessian, np.append(bound, 0), tol)
+        at_optimum = np.isfinite(theta).all() and np.max(np.abs(_projected(gradient(theta), theta,
+                                                                           np.append(bound, 0)))) <= limit
     if not at_optimum:
-        raise ValueError(f"the logistic regression did not converge ({out.message})")
-    return Calibration(names, means, scales, out.x[:-1].copy(), float(out.x[-1]))
+        raise ValueError(f"the logistic regression did not converge ({message})")
+    return Calibration(names, means, scales, theta[:-1].copy(), float(theta[-1]))
+
+
+def _signs(signs, k: int) -> np.ndarray:
+    """``signs`` as an int array of length ``k`` (zeros for None); ``ValueError`` if malformed."""
+    if signs is None:
+        return np.zeros(k, dtype=np.int64)
+    values = list(signs)
+    if len(values) != k or not all(not isinstance(v, bool) and v in (-1, 0, 1) for v in values):
+        raise ValueError(f"signs must be {k} values of -1, 0 or +1, got {values!r}")
+    return np.array(values, dtype=np.int64)
+
+
+def _projected(g: np.ndarray, theta: np.ndarray, bound: np.ndarray) -> np.ndarray:
+    """The gradient ``g`` with the parts removed that push a weight held at 0 out of its
+    allowed side (those are the Karush-Kuhn-Tucker multipliers of the bounds, not a lack of
+    convergence)."""
+    held = (bound != 0) & (theta == 0.0)
+    return np.where(held & (bound * g >= 0), 0.0, g)
+
+
+def _bounded(loss, gradient, hessian, bound: np.ndarray, tol: float):
+    """The minimum of the convex ``loss`` with ``theta[j] * bound[j] >= 0``, and a message.
+
+    L-BFGS-B finds which weights sit on their bound; Newton-CG then minimises over the
+    others with those held at exactly 0 (the optimum of a strictly convex function on
+    that face is unique), kept when it stays on the allowed side.
+    """
+    from scipy.optimize import minimize
+
+    bounds = [(0.0, None) if b > 0 else (None, 0.0) if b < 0 else (None, None) for b in bound]
+    out = minimize(loss, np.zeros(bound.size), jac=gradient, method="L-BFGS-B", bounds=bounds,
+                   options={"ftol": 1e-15, "gtol": 1e-10, "maxiter": 15000, "maxcor": 30})
+    near = (bound != 0) & (bound * out.x <= 1e-7 * (1.0 + np.abs(out.x).max()))
+    theta = np.where(near, 0.0, out.x)
+    held = near & (bound * gradient(theta) >= 0)
+    free = ~held
+
+    def on_face(f):
+        full = np.zeros(bound.size)
+        full[free] = f
+        return full
+
+    polish = minimize(lambda f: loss(on_face(f)), theta[free], jac=lambda f: gradient(on_face(f))[free],
+                      hess=lambda f: hessian(on_face(f))[np.ix_(free, free)], method="Newton-CG",
+                      options={"xtol": tol, "maxiter": 200})
+    better = on_face(polish.x)
+    if np.isfinite(better).all() and np.all(bound * better >= 0) and loss(better) <= loss(theta) + 1e-9:
+        return better, polish.message
+    return theta, out.message
