@@ -236,6 +236,11 @@ def variants(whole: bool):
             fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN)),
         "acoustic_per_frame clipped to the examples' range": lambda ex, w, c: ClippedCalibration(
             fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN), only=("acoustic_per_frame",)),
+        "no cap": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=replace(c, cap_quantile=None)),
+        "contrary measures capped at the right words' 0.9 quantile": lambda ex, w, c: fit_calibration(
+            kinds(ex, CLEAN), config=replace(c, cap_quantile=0.9)),
+        "contrary measures capped at the right words' 0.95 quantile": lambda ex, w, c: fit_calibration(
+            kinds(ex, CLEAN), config=replace(c, cap_quantile=0.95)),
         "sign-constrained weights": lambda ex, w, c: fit_calibration(
             kinds(ex, CLEAN), config=replace(c, weight_signs=True)),
         "sign-constrained, acoustic_per_frame free": lambda ex, w, c: signed(kinds(ex, CLEAN), c,

@@ -90,6 +90,16 @@ def test_round_trip_through_json(rng):
     ({"names": ["a"], "means": ["x"], "scales": [1.0], "coefficients": [1.0], "intercept": 0}, "means must hold numbers"),
     ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": None}, "intercept"),
     ([1, 2], "expected the keys"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "upper": 3.0},
+     "upper must be a list"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "upper": [1, 2]},
+     "upper must be 1 numbers"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "lower": ["x"]},
+     "lower must be a list of numbers or nulls"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "lower": [2.0],
+      "upper": [1.0]}, "lower limits above upper ones"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "caps": [1.0]},
+     "expected the keys"),
 ])
 def test_malformed_stored_form_is_refused(data, match):
     with pytest.raises(ValueError, match=match):
@@ -175,3 +185,22 @@ def test_malformed_signs_are_refused(rng, signs):
     x, y = _data(rng, n=50)
     with pytest.raises(ValueError, match="signs must be 3 values"):
         fit_logistic(x, y, ("a", "b", "c"), signs=signs)
+
+
+def test_limits_clip_the_measures_before_the_standardisation_and_round_trip(rng):
+    x, y = _data(rng, n=200)
+    cal = fit_logistic(x, y, ("a", "b", "c"))
+    assert cal.lower is None and cal.upper is None
+    assert set(cal.to_dict()) == {"names", "means", "scales", "coefficients", "intercept"}  # stored as before
+    limited = Calibration(cal.names, cal.means, cal.scales, cal.coefficients, cal.intercept,
+                          lower=np.array([-np.inf, 9.8, -np.inf]), upper=np.array([-2.0, np.inf, np.inf]))
+    rows = np.array([[-5.0, 9.0, 1.0], [0.0, 10.5, 2.0], [-2.0, 9.8, 3.0]])
+    by_hand = np.column_stack([np.minimum(rows[:, 0], -2.0), np.maximum(rows[:, 1], 9.8), rows[:, 2]])
+    np.testing.assert_array_equal(limited.decision(rows), cal.decision(by_hand))
+    data = json.loads(json.dumps(limited.to_dict()))
+    assert data["lower"] == [None, 9.8, None] and data["upper"] == [-2.0, None, None]  # JSON has no infinity
+    back = Calibration.from_dict(data)
+    np.testing.assert_array_equal(back.decision(rows), limited.decision(rows))
+    # a stored form without limits (every file written before them) scores as the fit does
+    old = {k: v for k, v in cal.to_dict().items()}
+    np.testing.assert_array_equal(Calibration.from_dict(old).predict(x), cal.predict(x))

@@ -66,6 +66,7 @@ __all__ = [
     "fit_calibration",
     "CALIBRATION_POSTERIOR_MEASURES",
     "MEASURE_SIGNS",
+    "contrary_caps",
     "calibration_measures",
     "held_out_parts",
     "recognised_share",
@@ -168,6 +169,12 @@ class CalibrationConfig:
     weight_signs : bool
         Fit each measure's weight with the sign its meaning implies (:data:`MEASURE_SIGNS`;
         the same penalised likelihood under those bounds); False: any sign.
+    cap_quantile : float in (0, 1] or None
+        A measure whose fitted weight has the sign opposite to its meaning
+        (:data:`MEASURE_SIGNS`; it moves with others that carry the evidence) is capped on
+        its better side at this quantile of the right examples' values
+        (:func:`contrary_caps`): a word that fits better than most right held-out words
+        is not rated lower than one at that quantile. None: no cap.
     settings : DecoderSettings
         How the held-out recordings are recognised (the word loop; no threshold).
     speeds : tuple of float
@@ -212,6 +219,7 @@ class CalibrationConfig:
     min_per_class: int = 5
     penalty: float = DEFAULT_PENALTY
     weight_signs: bool = False
+    cap_quantile: float | None = None
     settings: DecoderSettings = field(default_factory=lambda: DecoderSettings(min_confidence=0.0))
     speeds: tuple[float, ...] = (0.9, 1.0, 1.1, 1.25, 1.4)
     backwards: bool = False
@@ -240,6 +248,10 @@ class CalibrationConfig:
             if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 0:
                 raise TrainingError(f"the number of {what} for calibration ({name}) must be a whole number "
                                     f">= 0 (0: none), got {v!r}")
+        q = self.cap_quantile
+        if q is not None and (isinstance(q, bool) or not isinstance(q, (int, float)) or not 0.0 < q <= 1.0):
+            raise TrainingError(f"the calibration's cap quantile must be a number in (0, 1] (e.g. 0.9) or None "
+                                f"(no cap), got {q!r}")
         if snr_range(self.noise_snr_db) is None:
             raise TrainingError(f"the calibration's noise SNR range must be two finite numbers low <= high in dB "
                                 f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
@@ -679,7 +691,9 @@ def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig 
 
     ``names``: the measures to use (a subset of ``MEASURE_NAMES``, any order); default
     :func:`calibration_measures` of the examples. ``quiet_skip``: no warning when skipped
-    (the caller says what it does instead).
+    (the caller says what it does instead). ``config.weight_signs`` bounds the weights'
+    signs, ``config.cap_quantile`` caps the measures whose weight opposes their sign
+    (:func:`contrary_caps`, at the right examples' quantile).
     """
     names = tuple(names) if names is not None else calibration_measures(examples.measures)
     x = examples.measures[:, [MEASURE_NAMES.index(n) for n in names]]
@@ -699,11 +713,37 @@ def fit_calibration(examples: CalibrationExamples, *, config: CalibrationConfig 
         return None
     try:
         signs = [MEASURE_SIGNS.get(n, 0) for n in names] if config.weight_signs else None
-        return fit_logistic(x, examples.right.astype(int), names, penalty=config.penalty, signs=signs)
+        cal = fit_logistic(x, examples.right.astype(int), names, penalty=config.penalty, signs=signs)
     except ValueError as exc:
         if not quiet_skip:
             warnings.warn(f"confidence calibration skipped: {exc}", TrainingWarning, stacklevel=2)
         return None
+    if config.cap_quantile is None:
+        return cal
+    return contrary_caps(cal, x[examples.right.astype(bool)], config.cap_quantile)
+
+
+def contrary_caps(cal: Calibration, right: np.ndarray, quantile: float) -> Calibration:
+    """``cal`` with every measure whose weight opposes its sign in :data:`MEASURE_SIGNS`
+    capped on its better side: from above at the ``quantile`` of the right words' values
+    ``right`` (rows in the order of ``cal.names``) for a measure of sign +1, from below at
+    the ``1 - quantile`` one for sign -1. Such a weight is right within the examples (the
+    measure moves with others that carry the evidence) but, extended past them, would rate
+    a word lower the better it fits; the cap stops that where the right words thin out.
+    Limits ``cal`` already has are kept where tighter."""
+    sign = np.array([MEASURE_SIGNS.get(n, 0) for n in cal.names])
+    contrary = sign * cal.coefficients < 0
+    right = np.asarray(right, dtype=np.float64).reshape(-1, len(cal.names))
+    if not contrary.any() or right.shape[0] == 0:
+        return cal
+    upper = np.where(contrary & (sign > 0), np.quantile(right, quantile, axis=0), np.inf)
+    lower = np.where(contrary & (sign < 0), np.quantile(right, 1.0 - quantile, axis=0), -np.inf)
+    if cal.upper is not None:
+        upper = np.minimum(upper, cal.upper)
+    if cal.lower is not None:
+        lower = np.maximum(lower, cal.lower)
+    return replace(cal, lower=lower if np.isfinite(lower).any() else None,
+                   upper=upper if np.isfinite(upper).any() else None)
 
 
 def _fallback_usable(fallback, model) -> bool:

@@ -16,7 +16,8 @@ weights off their bounds, for the same precision as the free fit). The optimum t
 the Karush-Kuhn-Tucker conditions: a weight strictly inside its bound has a zero
 gradient, a weight held at 0 has a gradient pointing out of its allowed side.
 
-:class:`Calibration` is the fitted result: it names its inputs, predicts probabilities
+:class:`Calibration` is the fitted result: it names its inputs, may clip them to limits
+set after the fit (:mod:`wordspot.evaluation.calibrate` caps a measure there), predicts probabilities
 with numpy alone (scipy is imported only to fit), and turns into plain JSON data and back.
 Errors are ``ValueError`` (callers add the file or option they concern).
 """
@@ -55,6 +56,9 @@ class Calibration:
     coefficients : ndarray, shape (k,)
         Weights of the standardised measures.
     intercept : float
+    lower, upper : ndarray, shape (k,), or None
+        Each measure is clipped to ``[lower[j], upper[j]]`` before the standardisation
+        (-inf / +inf: no limit on that side; None: no limits at all).
     """
 
     names: tuple[str, ...]
@@ -62,6 +66,8 @@ class Calibration:
     scales: np.ndarray
     coefficients: np.ndarray
     intercept: float
+    lower: np.ndarray | None = None
+    upper: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         names = tuple(self.names)
@@ -79,12 +85,26 @@ class Calibration:
                 or not math.isfinite(self.intercept):
             raise ValueError(f"intercept must be a finite number, got {self.intercept!r}")
         object.__setattr__(self, "intercept", float(self.intercept))
+        for field_name, unbounded in (("lower", -np.inf), ("upper", np.inf)):
+            value = getattr(self, field_name)
+            if value is None:
+                continue
+            a = np.asarray(value, dtype=np.float64)
+            if a.shape != (len(names),) or np.isnan(a).any() or (a == -unbounded).any():
+                raise ValueError(f"{field_name} must be {len(names)} numbers (or {unbounded:g} for no limit), "
+                                 f"got {value!r}")
+            object.__setattr__(self, field_name, a)
+        if self.lower is not None and self.upper is not None and (self.lower > self.upper).any():
+            raise ValueError(f"lower limits above upper ones: {self.lower.tolist()} > {self.upper.tolist()}")
 
     def decision(self, X) -> np.ndarray:
         """The log-odds ``b + z . w`` of each row of ``X`` (shape (n, k), or (k,) for one row)."""
         x = np.asarray(X, dtype=np.float64)
         if x.shape[-1:] != (len(self.names),) or x.ndim > 2:
             raise ValueError(f"expected rows of {len(self.names)} measures ({', '.join(self.names)}), got shape {x.shape}")
+        if self.lower is not None or self.upper is not None:
+            x = np.clip(x, self.lower if self.lower is not None else -np.inf,
+                        self.upper if self.upper is not None else np.inf)
         return self.intercept + ((x - self.means) / self.scales) @ self.coefficients
 
     def predict(self, X) -> np.ndarray:
@@ -92,22 +112,36 @@ class Calibration:
         return sigmoid(self.decision(X))
 
     def to_dict(self) -> dict:
-        """Plain JSON data: names, means, scales, coefficients, intercept."""
-        return {
+        """Plain JSON data: names, means, scales, coefficients, intercept, and the limits
+        (``lower`` / ``upper``, null where a side is open) only when there are any."""
+        out = {
             "names": list(self.names),
             "means": self.means.tolist(),
             "scales": self.scales.tolist(),
             "coefficients": self.coefficients.tolist(),
             "intercept": self.intercept,
         }
+        for key in ("lower", "upper"):
+            a = getattr(self, key)
+            if a is not None and np.isfinite(a).any():
+                out[key] = [float(v) if np.isfinite(v) else None for v in a]
+        return out
 
     @classmethod
     def from_dict(cls, data) -> "Calibration":
         """The inverse of :meth:`to_dict`; ``ValueError`` on anything malformed."""
         keys = ("names", "means", "scales", "coefficients", "intercept")
-        if not isinstance(data, dict) or set(data) != set(keys):
+        if not isinstance(data, dict) or not set(keys) <= set(data) <= set(keys) | {"lower", "upper"}:
             found = sorted(data) if isinstance(data, dict) else type(data).__name__
-            raise ValueError(f"expected the keys {', '.join(keys)}, found {found}")
+            raise ValueError(f"expected the keys {', '.join(keys)} (and optionally lower, upper), found {found}")
+        limits = {}
+        for key, open_side in (("lower", -np.inf), ("upper", np.inf)):
+            if key in data:
+                value = data[key]
+                if not isinstance(value, list) or not all(
+                        v is None or (isinstance(v, (int, float)) and not isinstance(v, bool)) for v in value):
+                    raise ValueError(f"{key} must be a list of numbers or nulls, got {value!r}")
+                limits[key] = np.array([open_side if v is None else v for v in value], dtype=np.float64)
         lists = {}
         for key in keys[:4]:
             value = data[key]
@@ -118,7 +152,7 @@ class Calibration:
             lists[key] = value
         return cls(tuple(lists["names"]), np.array(lists["means"], dtype=np.float64),
                    np.array(lists["scales"], dtype=np.float64),
-                   np.array(lists["coefficients"], dtype=np.float64), data["intercept"])
+                   np.array(lists["coefficients"], dtype=np.float64), data["intercept"], **limits)
 
 
 def _design(z: np.ndarray) -> np.ndarray:
