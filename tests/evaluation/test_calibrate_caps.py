@@ -99,3 +99,24 @@ def test_the_cap_is_deterministic_and_stored_with_the_calibration(rng):
 def test_a_bad_cap_quantile_is_refused(q):
     with pytest.raises(TrainingError, match="cap quantile must be a number in"):
         CalibrationConfig(cap_quantile=q)
+
+
+def test_training_stores_the_capped_calibration_and_names_the_capped_measures(rng, monkeypatch):
+    from pathlib import Path
+
+    from decoding_helpers import tiny_model
+    from wordspot.corpus import Utterance
+    from wordspot.evaluation import calibrate
+
+    takes = [(w, s, t) for w in ("oven", "stop") for s in range(5) for t in range(20)]  # 30 held out per transcript
+    utts = [Utterance(Path(f"{w}-{s}-{t}.wav"), (w,), f"baker-{s}", row) for row, (w, s, t) in enumerate(takes, 2)]
+    model = tiny_model(rng, {w: [["AA", "B"]] for w in ("oven", "stop")})
+    examples = _easy_wrong_words(rng)
+    monkeypatch.setattr(calibrate, "calibration_examples", lambda m, held, **_: examples)
+    out, _ = calibrate.train_calibrated(lambda part: (model, "summary"), utts,
+                                        config=CalibrationConfig(refit=False, cap_quantile=0.9))
+    assert out.info["calibration"]["capped_measures"] == ["acoustic_per_frame"]
+    assert out.calibration.to_dict() == fit_calibration(examples, config=CalibrationConfig(cap_quantile=0.9)).to_dict()
+    out, _ = calibrate.train_calibrated(lambda part: (model, "summary"), utts,
+                                        config=CalibrationConfig(refit=False, cap_quantile=None))
+    assert "capped_measures" not in out.info["calibration"] and out.calibration.upper is None

@@ -989,8 +989,16 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                         **({"impact_clips": impacts * len(parts), "words_in_impact_clips": n_impacts}
                            if config.impact_clips else {}),
                         "measures": list(calibration.names),
+                        **({"capped_measures": _capped(calibration)} if _capped(calibration) else {}),
                         "refit_on_all": bool(config.refit)}})
     return model, summary
+
+
+def _capped(cal: Calibration) -> list[str]:
+    """The measures ``cal`` clips on either side."""
+    lo = cal.lower if cal.lower is not None else np.full(len(cal.names), -np.inf)
+    hi = cal.upper if cal.upper is not None else np.full(len(cal.names), np.inf)
+    return [n for n, a, b in zip(cal.names, lo, hi) if np.isfinite(a) or np.isfinite(b)]
 
 
 def calibration_note(model) -> str:
