@@ -41,7 +41,7 @@ def test_every_signed_measure_is_one_the_decoder_computes():
 
 def test_sign_bounds_give_every_weight_its_measures_sign(rng):
     ex = _easy_wrong_words(rng)
-    free = fit_calibration(ex)
+    free = fit_calibration(ex, config=CalibrationConfig(cap_quantile=None))
     assert free.coefficients[APF] < 0  # the premise: the free fit turns the score against the word
     signed = fit_calibration(ex, config=CalibrationConfig(weight_signs=True))
     assert signed.names == free.names
@@ -53,7 +53,7 @@ def test_sign_bounds_give_every_weight_its_measures_sign(rng):
 
 def test_a_word_beyond_the_cap_is_rated_as_at_the_cap_not_lower(rng):
     ex = _easy_wrong_words(rng)
-    free = fit_calibration(ex)
+    free = fit_calibration(ex, config=CalibrationConfig(cap_quantile=None))
     capped = fit_calibration(ex, config=CalibrationConfig(cap_quantile=0.9))
     np.testing.assert_array_equal(capped.coefficients, free.coefficients)  # the same fit, capped afterwards
     assert capped.intercept == free.intercept
@@ -80,7 +80,7 @@ def test_weights_that_agree_with_their_signs_leave_no_cap(rng):
     signed = fit_calibration(ex, config=CalibrationConfig(weight_signs=True, cap_quantile=0.9))
     assert signed.lower is None and signed.upper is None
     # a measure of sign -1 with a positive weight is capped from below at the low quantile
-    cal = fit_calibration(ex)
+    cal = fit_calibration(ex, config=CalibrationConfig(cap_quantile=None))
     flipped = replace(cal, coefficients=np.where(np.array(cal.names) == "next_to_filler", 0.5, cal.coefficients))
     right = ex.measures[ex.right][:, :len(BASE_MEASURE_NAMES)]
     out = contrary_caps(flipped, right, 0.9)
@@ -108,7 +108,7 @@ def test_training_stores_the_capped_calibration_and_names_the_capped_measures(rn
     from wordspot.corpus import Utterance
     from wordspot.evaluation import calibrate
 
-    takes = [(w, s, t) for w in ("oven", "stop") for s in range(5) for t in range(20)]  # 30 held out per transcript
+    takes = [(w, s, t) for w in ("oven", "stop") for s in range(5) for t in range(20)]  # 15 of each held out: one part
     utts = [Utterance(Path(f"{w}-{s}-{t}.wav"), (w,), f"baker-{s}", row) for row, (w, s, t) in enumerate(takes, 2)]
     model = tiny_model(rng, {w: [["AA", "B"]] for w in ("oven", "stop")})
     examples = _easy_wrong_words(rng)
@@ -120,3 +120,18 @@ def test_training_stores_the_capped_calibration_and_names_the_capped_measures(rn
     out, _ = calibrate.train_calibrated(lambda part: (model, "summary"), utts,
                                         config=CalibrationConfig(refit=False, cap_quantile=None))
     assert "capped_measures" not in out.info["calibration"] and out.calibration.upper is None
+
+
+def test_the_default_caps_and_a_model_file_from_before_scores_as_before():
+    from wordspot.evaluation.calibrate import DEFAULT_CAP_QUANTILE
+    from wordspot.model import load_model
+    from wordspot.starters import starter_path
+
+    assert CalibrationConfig().cap_quantile == DEFAULT_CAP_QUANTILE and CalibrationConfig().weight_signs is False
+    # the shipped starter's calibration was stored before the caps: none, and its
+    # probabilities are the logistic formula of its stored numbers (module docstring)
+    cal = load_model(starter_path("starter")).calibration
+    assert cal.lower is None and cal.upper is None
+    rows = cal.means + cal.scales * np.linspace(-3.0, 3.0, 7)[:, None]
+    t = cal.intercept + ((rows - cal.means) / cal.scales) @ cal.coefficients
+    np.testing.assert_allclose(cal.predict(rows), 1.0 / (1.0 + np.exp(-t)), rtol=1e-12)
