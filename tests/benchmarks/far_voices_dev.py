@@ -197,7 +197,11 @@ def toward(start, examples, penalty: float):
 
 
 def variants(whole: bool):
-    """name -> f(examples of held-out takes, examples of whole speakers or None, config) -> Calibration."""
+    """name -> f(examples of held-out takes, examples of whole speakers or None, config) -> Calibration.
+
+    The first, "no cap (the former default)", sets the share of other talk the others are
+    matched at; all but the default and the capped ones are fitted without the caps of
+    ``CalibrationConfig.cap_quantile``, as they were recorded."""
     from wordspot.decoding.confidence import BASE_MEASURE_NAMES, DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
     from wordspot.evaluation.calibrate import calibration_measures, fit_calibration
 
@@ -223,6 +227,9 @@ def variants(whole: bool):
         return ex.measures[ex.right & (ex.source == "held-out")]
 
     out = {
+        # first: the share of other talk the others are matched at (the default before the caps)
+        "no cap (the former default)": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN),
+                                                                        config=replace(c, cap_quantile=None)),
         "default (held-out takes)": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=c),
         "base measures only": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=c,
                                                                 names=BASE_MEASURE_NAMES),
@@ -236,7 +243,6 @@ def variants(whole: bool):
             fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN)),
         "acoustic_per_frame clipped to the examples' range": lambda ex, w, c: ClippedCalibration(
             fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN), only=("acoustic_per_frame",)),
-        "no cap": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=replace(c, cap_quantile=None)),
         "contrary measures capped at the right words' 0.9 quantile": lambda ex, w, c: fit_calibration(
             kinds(ex, CLEAN), config=replace(c, cap_quantile=0.9)),
         "contrary measures capped at the right words' 0.95 quantile": lambda ex, w, c: fit_calibration(
@@ -267,7 +273,11 @@ def variants(whole: bool):
             "whole speakers' right words <= 3% below": lambda ex, w, c: shift_to_miss(
                 fit_calibration(kinds(ex, CLEAN), config=c), right_of(w), 0.03, DEFAULT_MIN_CONFIDENCE),
         })
-    return out
+    # every variant but the default and the capped ones as recorded before the caps: uncapped
+    capped = {"default (held-out takes)", "contrary measures capped at the right words' 0.9 quantile",
+              "contrary measures capped at the right words' 0.95 quantile"}
+    return {k: f if k in capped else (lambda ex, w, c, f=f: f(ex, w, replace(c, cap_quantile=None)))
+            for k, f in out.items()}
 
 
 def main(argv=None) -> int:
