@@ -300,6 +300,16 @@ def test_calibration_round_trip(model, tmp_path):
     assert load_model(save_model(model, tmp_path / "plain.model")).calibration is None
 
 
+def test_calibration_limits_round_trip(model, tmp_path):
+    calibrated = _calibrated(model)
+    capped = replace(calibrated, calibration=replace(calibrated.calibration, upper=np.array([-58.0, np.inf])))
+    back = load_model(save_model(capped, tmp_path / "m.model"))
+    assert_same(capped, back)
+    rows = np.array([[-61.0, -1.0], [-50.0, -4.0]])
+    np.testing.assert_array_equal(back.calibration.predict(rows), capped.calibration.predict(rows))
+    assert back.calibration.predict(rows)[1] == capped.calibration.predict(np.array([-58.0, -4.0]))
+
+
 def _with_header(path, **fields):
     """Change header fields and write a matching checksum (a file the writer could have made)."""
     def edit(arrays):
@@ -330,6 +340,8 @@ def test_file_without_calibration_key_loads_without_calibration(model, tmp_path)
     ({"names": ["a"], "means": [0.0]}, "expected the keys"),
     ({"names": ["a"], "means": [0.0], "scales": [-1.0], "coefficients": [1.0], "intercept": 0.0}, "scales must be > 0"),
     (None, "expected the keys"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0.0, "upper": [1, 2]},
+     "upper must be 1 numbers"),
 ])
 def test_malformed_calibration_is_refused_naming_the_file(model, tmp_path, calibration, match):
     path = save_model(model, tmp_path / "m.model")

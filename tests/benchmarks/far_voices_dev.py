@@ -136,18 +136,100 @@ class ClippedCalibration:
         return self._sigmoid(self.decision(X))
 
 
+class BestRightClipped(ClippedCalibration):
+    """A fitted calibration whose measures are clipped on their better side only, to the
+    best value among the right held-out words ``right`` (rows in the order of
+    ``MEASURE_NAMES``): a measure of sign +1 (``calibrate.MEASURE_SIGNS``) from above at
+    their largest, of sign -1 from below at their smallest, one without a sign not at all.
+    A word that fits better than any right held-out word counts as the best of them, not
+    as something the fit never saw (ours, no source). Dev-only."""
+
+    def __init__(self, cal, right, only=None):
+        from wordspot.decoding.confidence import MEASURE_NAMES
+        from wordspot.evaluation.calibrate import MEASURE_SIGNS
+        from wordspot.util.logistic import sigmoid
+
+        self.cal, self.names, self._sigmoid = cal, cal.names, sigmoid
+        x = right[:, [MEASURE_NAMES.index(n) for n in cal.names]]
+        sign = np.array([MEASURE_SIGNS.get(n, 0) if only is None or n in only else 0 for n in cal.names])
+        self.lo = np.where(sign < 0, x.min(axis=0), -np.inf)
+        self.hi = np.where(sign > 0, x.max(axis=0), np.inf)
+
+
+def toward(start, examples, penalty: float):
+    """The logistic regression of right / wrong on ``examples`` (the default measures),
+    its L2 penalty pulling the weights toward those of the calibration ``start`` (a
+    starter's, over the same measures) instead of toward 0: ``start``'s weight of a raw
+    measure, ``w / s``, put on this fit's standardisation (``w / s * s_here``). The
+    penalised log-likelihood of :mod:`wordspot.util.logistic` with ``||w - w0||^2``
+    (a Gaussian prior centred on ``w0``: common practice, no source). Dev-only."""
+    from scipy.optimize import minimize
+
+    from wordspot.decoding.confidence import MEASURE_NAMES
+    from wordspot.evaluation.calibrate import calibration_measures
+    from wordspot.util.logistic import Calibration, sigmoid
+
+    names = calibration_measures(examples.measures)
+    if set(names) != set(start.names):
+        raise SystemExit(f"the starter's calibration uses {start.names}, these examples {names}")
+    x = examples.measures[:, [MEASURE_NAMES.index(n) for n in names]]
+    y = examples.right.astype(np.float64)
+    means, scales = x.mean(axis=0), x.std(axis=0)
+    scales[scales == 0] = 1.0
+    order = [start.names.index(n) for n in names]
+    w0 = np.append(start.coefficients[order] / start.scales[order] * scales, 0.0)
+    a = np.hstack([(x - means) / scales, np.ones((x.shape[0], 1))])
+    ridge = np.append(np.full(len(names), float(penalty)), 0.0)
+
+    def loss(t):
+        v = a @ t
+        return float(np.sum(np.logaddexp(0.0, v) - y * v) + 0.5 * np.dot(ridge * (t - w0), t - w0))
+
+    def grad(t):
+        return a.T @ (sigmoid(a @ t) - y) + ridge * (t - w0)
+
+    def hess(t):
+        p = sigmoid(a @ t)
+        return (a * (p * (1 - p))[:, None]).T @ a + np.diag(ridge)
+
+    out = minimize(loss, w0.copy(), jac=grad, hess=hess, method="Newton-CG", options={"xtol": 1e-10, "maxiter": 200})
+    return Calibration(names, means, scales, out.x[:-1].copy(), float(out.x[-1]))
+
+
 def variants(whole: bool):
-    """name -> f(examples of held-out takes, examples of whole speakers or None, config) -> Calibration."""
-    from wordspot.decoding.confidence import BASE_MEASURE_NAMES, DEFAULT_MIN_CONFIDENCE
+    """name -> f(examples of held-out takes, examples of whole speakers or None, config) -> Calibration.
+
+    The first, "no cap (the former default)", sets the share of other talk the others are
+    matched at; all but the default and the capped ones are fitted without the caps of
+    ``CalibrationConfig.cap_quantile``, as they were recorded."""
+    from wordspot.decoding.confidence import BASE_MEASURE_NAMES, DEFAULT_MIN_CONFIDENCE, MEASURE_NAMES
     from wordspot.evaluation.calibrate import calibration_measures, fit_calibration
 
     def kinds(ex, names):
         return ex.subset(np.isin(ex.source, names))
 
+    def signed(ex, c, free=()):
+        """The sign-constrained fit with the measures ``free`` of any sign."""
+        from wordspot.evaluation.calibrate import MEASURE_SIGNS
+        from wordspot.util.logistic import fit_logistic
+
+        names = calibration_measures(ex.measures)
+        return fit_logistic(ex.measures[:, [MEASURE_NAMES.index(n) for n in names]], ex.right.astype(int), names,
+                            penalty=c.penalty, signs=[0 if n in free else MEASURE_SIGNS.get(n, 0) for n in names])
+
+    def starter():
+        from wordspot.model import load_model
+        from wordspot.starters import starter_path
+
+        return load_model(starter_path("starter")).calibration
+
     def right_of(ex):
         return ex.measures[ex.right & (ex.source == "held-out")]
 
     out = {
+        # first: the share of other talk the others are matched at (the default before the caps)
+        "no cap (the former default)": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN),
+                                                                        config=replace(c, cap_quantile=None)),
         "default (held-out takes)": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=c),
         "base measures only": lambda ex, w, c: fit_calibration(kinds(ex, CLEAN), config=c,
                                                                 names=BASE_MEASURE_NAMES),
@@ -161,6 +243,23 @@ def variants(whole: bool):
             fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN)),
         "acoustic_per_frame clipped to the examples' range": lambda ex, w, c: ClippedCalibration(
             fit_calibration(kinds(ex, CLEAN), config=c), kinds(ex, CLEAN), only=("acoustic_per_frame",)),
+        "contrary measures capped at the right words' 0.9 quantile": lambda ex, w, c: fit_calibration(
+            kinds(ex, CLEAN), config=replace(c, cap_quantile=0.9)),
+        "contrary measures capped at the right words' 0.95 quantile": lambda ex, w, c: fit_calibration(
+            kinds(ex, CLEAN), config=replace(c, cap_quantile=0.95)),
+        "sign-constrained weights": lambda ex, w, c: fit_calibration(
+            kinds(ex, CLEAN), config=replace(c, weight_signs=True)),
+        "sign-constrained, acoustic_per_frame free": lambda ex, w, c: signed(kinds(ex, CLEAN), c,
+                                                                             free=("acoustic_per_frame",)),
+        "toward the starter's weights": lambda ex, w, c: toward(starter(), kinds(ex, CLEAN), c.penalty),
+        "toward the starter's weights, penalty x10": lambda ex, w, c: toward(
+            starter(), kinds(ex, CLEAN), 10 * c.penalty),
+        "clipped at the best right held-out word": lambda ex, w, c: BestRightClipped(
+            fit_calibration(kinds(ex, CLEAN), config=c), right_of(ex)),
+        "acoustic_per_frame clipped at the best right held-out word": lambda ex, w, c: BestRightClipped(
+            fit_calibration(kinds(ex, CLEAN), config=c), right_of(ex), only=("acoustic_per_frame",)),
+        "sign-constrained + clipped at the best right word": lambda ex, w, c: BestRightClipped(
+            fit_calibration(kinds(ex, CLEAN), config=replace(c, weight_signs=True)), right_of(ex)),
         "held-out right words <= 1% below": lambda ex, w, c: shift_to_miss(
             fit_calibration(kinds(ex, CLEAN), config=c), right_of(ex), 0.01, DEFAULT_MIN_CONFIDENCE),
     }
@@ -174,7 +273,11 @@ def variants(whole: bool):
             "whole speakers' right words <= 3% below": lambda ex, w, c: shift_to_miss(
                 fit_calibration(kinds(ex, CLEAN), config=c), right_of(w), 0.03, DEFAULT_MIN_CONFIDENCE),
         })
-    return out
+    # every variant but the default and the capped ones as recorded before the caps: uncapped
+    capped = {"default (held-out takes)", "contrary measures capped at the right words' 0.9 quantile",
+              "contrary measures capped at the right words' 0.95 quantile"}
+    return {k: f if k in capped else (lambda ex, w, c, f=f: f(ex, w, replace(c, cap_quantile=None)))
+            for k, f in out.items()}
 
 
 def main(argv=None) -> int:

@@ -90,6 +90,16 @@ def test_round_trip_through_json(rng):
     ({"names": ["a"], "means": ["x"], "scales": [1.0], "coefficients": [1.0], "intercept": 0}, "means must hold numbers"),
     ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": None}, "intercept"),
     ([1, 2], "expected the keys"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "upper": 3.0},
+     "upper must be a list"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "upper": [1, 2]},
+     "upper must be 1 numbers"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "lower": ["x"]},
+     "lower must be a list of numbers or nulls"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "lower": [2.0],
+      "upper": [1.0]}, "lower limits above upper ones"),
+    ({"names": ["a"], "means": [0.0], "scales": [1.0], "coefficients": [1.0], "intercept": 0, "caps": [1.0]},
+     "expected the keys"),
 ])
 def test_malformed_stored_form_is_refused(data, match):
     with pytest.raises(ValueError, match=match):
@@ -109,3 +119,88 @@ def test_bad_training_input_is_refused(rng):
         fit_logistic(x, y, ("a", "b", "c"))
     with pytest.raises(ValueError, match=r"rows of 3 measures"):
         Calibration(("a", "b", "c"), np.zeros(3), np.ones(3), np.ones(3), 0.0).predict(np.zeros((2, 2)))
+
+
+def _objective_gradient(cal, x, y, penalty):
+    """The gradient of the penalised negative log-likelihood (module docstring) at ``cal``'s
+    weights, worked out here again: sum_i (p_i - y_i) z_i + penalty * w, and for the
+    intercept sum_i (p_i - y_i)."""
+    z = (x - cal.means) / cal.scales
+    r = cal.predict(x) - y
+    return z.T @ r + penalty * cal.coefficients, float(r.sum())
+
+
+def test_signs_that_bind_nowhere_leave_the_fit_of_scikit_learn(rng):
+    # The free optimum already has w_a > 0, w_b < 0: bounds that allow those signs bind
+    # nowhere, so the constrained optimum is the free one (a convex problem's optimum inside
+    # the feasible set is its constrained optimum), scikit-learn's as in the test above.
+    from sklearn.linear_model import LogisticRegression
+
+    x, y = _data(rng)
+    z = (x - x.mean(axis=0)) / x.std(axis=0)
+    ref = LogisticRegression(C=1.0, tol=1e-12, max_iter=10_000).fit(z, y)
+    assert ref.coef_[0][0] > 0 and ref.coef_[0][1] < 0
+    for signs in ([1, -1, 0], [1, 0, 0], [0, -1, 0]):
+        ours = fit_logistic(x, y, ("a", "b", "c"), signs=signs)
+        np.testing.assert_allclose(ours.coefficients, ref.coef_[0], rtol=1e-5, atol=1e-7)
+        assert ours.intercept == pytest.approx(ref.intercept_[0], rel=1e-5, abs=1e-7)
+
+
+def test_a_bound_that_binds_holds_the_weight_at_zero_with_the_gradient_pointing_out(rng):
+    # "b" is drawn with a negative weight and allowed only >= 0: the Karush-Kuhn-Tucker
+    # conditions of a convex problem with the bound w_b >= 0 (Boyd & Vandenberghe, Convex
+    # Optimization, 5.5.3): w_b = 0 with dL/dw_b >= 0 (its multiplier), every other
+    # gradient 0.
+    x, y = _data(rng)
+    cal = fit_logistic(x, y, ("a", "b", "c"), signs=[0, 1, 0])
+    g, g0 = _objective_gradient(cal, x, y, 1.0)
+    assert cal.coefficients[1] == 0.0
+    assert g[1] > 1.0  # clearly outward: the free fit wants w_b < 0
+    assert np.max(np.abs(g[[0, 2]])) < 1e-6 * len(y) and abs(g0) < 1e-6 * len(y)
+    # On the face w_b = 0 the problem is the free one without "b" (same standardisation):
+    # scikit-learn on the other two standardised columns gives the other weights.
+    from sklearn.linear_model import LogisticRegression
+
+    z = (x - x.mean(axis=0)) / x.std(axis=0)
+    ref = LogisticRegression(C=1.0, tol=1e-12, max_iter=10_000).fit(z[:, [0, 2]], y)
+    np.testing.assert_allclose(cal.coefficients[[0, 2]], ref.coef_[0], rtol=1e-5, atol=1e-7)
+    assert cal.intercept == pytest.approx(ref.intercept_[0], rel=1e-5, abs=1e-7)
+
+
+def test_a_weight_held_at_zero_from_below_and_the_fit_is_deterministic(rng):
+    x, y = _data(rng)
+    x[:, 2] = x[:, 0] + rng.normal(0.0, 0.3, x.shape[0])  # a measure moving with "a"
+    free = fit_logistic(x, y, ("a", "b", "c"))
+    cal = fit_logistic(x, y, ("a", "b", "c"), signs=[-1, 0, 1])  # "a" may only lower the odds
+    assert free.coefficients[0] > 0 and cal.coefficients[0] == 0.0
+    g, _ = _objective_gradient(cal, x, y, 1.0)
+    assert g[0] < -1.0  # dL/dw_a <= 0 at the upper bound w_a <= 0 (KKT)
+    assert cal.coefficients[2] > 0 and abs(g[2]) < 1e-6 * len(y)
+    again = fit_logistic(x, y, ("a", "b", "c"), signs=[-1, 0, 1])
+    assert again.to_dict() == cal.to_dict()
+
+
+@pytest.mark.parametrize("signs", [[1, 0], [2, 0, 0], [True, 0, 0], ["+", 0, 0]])
+def test_malformed_signs_are_refused(rng, signs):
+    x, y = _data(rng, n=50)
+    with pytest.raises(ValueError, match="signs must be 3 values"):
+        fit_logistic(x, y, ("a", "b", "c"), signs=signs)
+
+
+def test_limits_clip_the_measures_before_the_standardisation_and_round_trip(rng):
+    x, y = _data(rng, n=200)
+    cal = fit_logistic(x, y, ("a", "b", "c"))
+    assert cal.lower is None and cal.upper is None
+    assert set(cal.to_dict()) == {"names", "means", "scales", "coefficients", "intercept"}  # stored as before
+    limited = Calibration(cal.names, cal.means, cal.scales, cal.coefficients, cal.intercept,
+                          lower=np.array([-np.inf, 9.8, -np.inf]), upper=np.array([-2.0, np.inf, np.inf]))
+    rows = np.array([[-5.0, 9.0, 1.0], [0.0, 10.5, 2.0], [-2.0, 9.8, 3.0]])
+    by_hand = np.column_stack([np.minimum(rows[:, 0], -2.0), np.maximum(rows[:, 1], 9.8), rows[:, 2]])
+    np.testing.assert_array_equal(limited.decision(rows), cal.decision(by_hand))
+    data = json.loads(json.dumps(limited.to_dict()))
+    assert data["lower"] == [None, 9.8, None] and data["upper"] == [-2.0, None, None]  # JSON has no infinity
+    back = Calibration.from_dict(data)
+    np.testing.assert_array_equal(back.decision(rows), limited.decision(rows))
+    # a stored form without limits (every file written before them) scores as the fit does
+    old = {k: v for k, v in cal.to_dict().items()}
+    np.testing.assert_array_equal(Calibration.from_dict(old).predict(x), cal.predict(x))
