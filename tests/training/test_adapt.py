@@ -117,7 +117,8 @@ def tone_models(tmp_path_factory):
     folder = tmp_path_factory.mktemp("adapt")
     manifest, lex_path = make_corpus(folder / "a", rng, n_utterances=30)
     lex = read_lexicon(lex_path)
-    model, _ = train(read_manifest(manifest), lex, config=SMALL)
+    # with a voice mixture (off by default) so that adapting can be seen to carry it along
+    model, _ = train(read_manifest(manifest), lex, config=dataclasses.replace(SMALL, voice_components=4))
     import tone_corpus
 
     with tone_corpus.tones_scaled(1.06):
