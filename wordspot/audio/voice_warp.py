@@ -99,20 +99,26 @@ class VoiceMixture:
         return int(self.weights.shape[0])
 
     def frame_log_likelihoods(self, frames: np.ndarray) -> np.ndarray:
-        """``log p(x_t)`` of every row of ``frames`` (T, D) under the mixture, (T,) float64.
-
-        One matrix product for all frames and Gaussians
-        (``x^2 @ (1/var) - 2 x @ (mu/var) + sum(mu^2/var)``), then a log-sum-exp over them.
-        """
+        """``log p(x_t)`` of every row of ``frames`` (T, D) under the mixture, (T,) float64:
+        every Gaussian's score in one matrix product, then a log-sum-exp over them."""
         x = np.asarray(frames, dtype=np.float64)
         if x.ndim != 2 or x.shape[1] != self.dim:
             raise FeatureError(f"frames must have shape (T, {self.dim}) for this voice mixture, got {x.shape}")
-        inv = 1.0 / self.variances
-        const = (np.log(self.weights) - 0.5 * (self.dim * _LOG_2PI + np.log(self.variances).sum(axis=1)
-                                                + (self.means ** 2 * inv).sum(axis=1)))
-        comp = const - 0.5 * ((x * x) @ inv.T) + x @ (self.means * inv).T
+        comp = _component_scores(x, self.weights, self.means, self.variances)
         top = comp.max(axis=1, keepdims=True)
         return (top + np.log(np.exp(comp - top).sum(axis=1, keepdims=True)))[:, 0]
+
+
+def _component_scores(x: np.ndarray, weights, means, variances) -> np.ndarray:
+    """Log weight plus log density of every row of ``x`` (T, D) under every Gaussian, (T, K):
+    one matrix product for all of them (``x^2 @ (1/var) - 2 x @ (mu/var) + sum(mu^2/var)``).
+    The mixture's likelihood and its fit's posteriors both start here. (The acoustic
+    models' mixtures have the same expansion in :mod:`wordspot.acoustic.gmm`, a layer that
+    audio may not import.)"""
+    inv = 1.0 / variances
+    const = np.log(weights) - 0.5 * (means.shape[1] * _LOG_2PI + np.log(variances).sum(axis=1)
+                                     + (means ** 2 * inv).sum(axis=1))
+    return const - 0.5 * ((x * x) @ inv.T) + x @ (means * inv).T
 
 
 def speech_frames(log_energy: np.ndarray) -> np.ndarray:
@@ -162,9 +168,7 @@ def fit_voice_mixture(frames: np.ndarray, n_components: int = 32, *, iterations:
     weights = np.full(k, 1.0 / k)
     for _ in range(int(iterations)):
         vm = VoiceMixture(weights, means, variances)
-        inv = 1.0 / variances
-        comp = (np.log(weights) - 0.5 * (np.log(variances).sum(axis=1) + (means ** 2 * inv).sum(axis=1))
-                - 0.5 * ((x * x) @ inv.T) + x @ (means * inv).T)
+        comp = _component_scores(x, weights, means, variances)
         comp -= comp.max(axis=1, keepdims=True)
         post = np.exp(comp)
         post /= post.sum(axis=1, keepdims=True)

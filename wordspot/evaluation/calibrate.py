@@ -1001,7 +1001,7 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                         **({"impact_clips": impacts * len(parts), "words_in_impact_clips": n_impacts}
                            if config.impact_clips else {}),
                         "measures": list(calibration.names),
-                        **({"capped_measures": _capped(calibration)} if _capped(calibration) else {}),
+                        **({"capped_measures": capped} if (capped := _capped(calibration)) else {}),
                         "refit_on_all": bool(config.refit)}})
     return model, summary
 
