@@ -358,12 +358,20 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
     best_loss, since = (report.held_out_loss[0] if report.held_out_loss else np.inf), 0
     adam = Adam(tw + tb, config.learning_rate)
     mask = seen.astype(tw[-1].dtype)
+    # Each batch's targets come from the starter's layers on that very batch, so that where
+    # they equal the network's own outputs (rho = 1, or before any step) the gradient is
+    # exactly zero: a product over a subset of rows need not round as the same rows did in a
+    # product over all of them, and Adam's step, divided by the gradient's own size, would
+    # turn that rounding noise (about 1e-8 in float32, as large as its epsilon) into moves.
+    start_w, start_b = [w.copy() for w in tw], [b.copy() for b in tb]
     for epoch in range(1, config.max_epochs + 1):
         perm = rng.permutation(y.size)
         losses = []
         for i in range(0, y.size, config.batch_size):
             rows = perm[i:i + config.batch_size]
-            loss, gw, gb = loss_and_gradients(tw, tb, x[rows], t[rows], config.l2)
+            xb = x[rows]
+            targets = soft_targets(y[rows], np.exp(forward(start_w, start_b, xb)[1]), config.rho, seen)
+            loss, gw, gb = loss_and_gradients(tw, tb, xb, targets, config.l2)
             gw[-1] *= mask  # outputs the starter never had stay as they are
             gb[-1] *= mask
             adam.step(gw + gb)
