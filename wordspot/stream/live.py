@@ -54,6 +54,10 @@ class ListenSettings:
         already complete (followed by ``split_pause + early_hold`` seconds without a
         command word), so that a command followed at once by other talk is not held back
         until the talk stops; 0 turns it off (see :class:`~wordspot.stream.scan.ScanSettings`).
+    command_rule : {"word", "best", "mean"}
+        How the confidence threshold judges a command's words (``ScanSettings.command_rule``).
+    command_confidence : float in [0, 1] or None
+        The threshold of whole commands (``ScanSettings.command_confidence``).
     """
 
     detector: DetectorSettings = field(default_factory=lambda: LIVE_DETECTOR)
@@ -62,6 +66,8 @@ class ListenSettings:
     early_every: float = 0.2
     early_hold: float = 0.1
     early_span: float = 3.0
+    command_rule: str = "word"
+    command_confidence: float | None = 0.35
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):
@@ -69,7 +75,7 @@ class ListenSettings:
         if self.detector.floor_ahead != 0:
             raise DecodingError("ListenSettings.detector must decide from past audio only (floor_ahead 0), got "
                                 f"floor_ahead {self.detector.floor_ahead!r}")
-        self.scan_settings()  # checks min_confidence and split_pause
+        self.scan_settings()  # checks the rest
 
     def scan_settings(self) -> ScanSettings:
         """The same settings for ``wordspot scan`` (a file then gives the same commands).
@@ -80,7 +86,8 @@ class ListenSettings:
         """
         return ScanSettings(detector=self.detector, min_confidence=self.min_confidence, split_pause=self.split_pause,
                             early_every=self.early_every, early_hold=self.early_hold,
-                            early_span=self.early_span, command_rule="word", normalise_seconds=0.0)
+                            early_span=self.early_span, command_rule=self.command_rule,
+                            command_confidence=self.command_confidence, normalise_seconds=0.0)
 
 
 class LiveListener:
