@@ -128,6 +128,11 @@ def main(argv=None) -> int:
     for rule in args.rules:
         rows = evaluate(recognizer, args.folder, args.seeds, rule, far=far, new=args.new_voices)
         print(report(rule, rows), flush=True)
+        for r in rows:  # each seed, for paired comparisons and for joining runs of other seeds
+            d = r["delays"]
+            print(f"  {rule} seed {r['seed']}: found {r['hits']}/{r['labels']}, false accepts {r['fa']} "
+                  f"({r['fa5']:.1f} per 5 min), delay median {np.median(d):.2f} s, p95 "
+                  f"{np.percentile(d, 95):.2f} s, max {d.max():.2f} s", flush=True)
     return 0
 
 
