@@ -105,6 +105,20 @@ def test_wav_stream_and_raw_pcm_agree(wave, scanned, tmp_path, capsys):
     _same(from_raw, scanned)
 
 
+def test_min_confidence_judges_whole_commands(wave, scanned, tmp_path, capsys):
+    # As in wordspot scan: --min-confidence P replaces the whole-command threshold, so every
+    # command printed has a mean confidence of P or above; a lower P keeps as many or more.
+    raw = tmp_path / "stream.raw"
+    raw.write_bytes(raw_bytes(wave))
+    found = {}
+    for p in ("0.01", "0.99"):
+        assert main(BASE + ["--format", "jsonl", "--rate", "16000", "--min-confidence", p, str(raw)]) == 0
+        found[p] = _parse_jsonl(capsys.readouterr().out)
+        assert all(f[3] >= float(p) for f in found[p])
+    assert len(found["0.01"]) >= len(scanned) >= len(found["0.99"])
+    assert len(found["0.01"]) > len(found["0.99"])
+
+
 def test_declared_length_two_channels_and_text(wave, tmp_path, capsys):
     # A WAV file with its real length and a chunk after the samples (read up to the
     # length), and stereo raw input at 8 kHz: text lines in the scan's clock format.

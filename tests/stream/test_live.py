@@ -62,6 +62,10 @@ def test_same_commands_as_a_scan_with_the_live_detector(recognizer, wave):
     assert not scanned.error
     assert _key(live) == _key(scanned.commands)
     assert all(c.path == "-" for c in live)
+    # judged whole, as the scan: a command's confidence is its words' mean, at least 0.35
+    assert any(len(c.parts) > 1 for c in live)
+    for c in live:
+        assert c.confidence == pytest.approx(np.mean([w.confidence for w in c.parts])) and c.confidence >= 0.35
 
 
 def test_other_input_rates_are_resampled_inside(recognizer, wave):

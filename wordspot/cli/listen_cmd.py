@@ -34,11 +34,12 @@ is resampled to the model's.
 
 Output: one line per command as soon as it is recognised, flushed at once; times are
 seconds (csv, jsonl) or a clock (text) from the start of the stream, confidence is the
-lowest of the command's words. csv and jsonl fields: start, end, words, confidence. A
-command is printed a quarter of a second after it is said when a pause follows it, and
-within about a second when other talk follows at once (the talk so far is recognised
-five times a second; --wait-for-pause waits for the pause instead, with fewer false
-accepts in talk); --debug adds a line a second on standard error with the level heard.
+mean of the command's words' (a command is kept or dropped whole by it, as in wordspot
+scan). csv and jsonl fields: start, end, words, confidence. A command is printed a
+quarter of a second after it is said when a pause follows it, and within about a second
+when other talk follows at once (the talk so far is recognised five times a second;
+--wait-for-pause waits for the pause instead, with fewer false accepts in talk); --debug
+adds a line a second on standard error with the level heard.
 
 Stopping: Ctrl+C (SIGINT) or SIGTERM, or the end of the stream, recognises the stretch in
 progress, prints it and exits with status 0. A broken stream (not WAV, a header cut short,
@@ -193,8 +194,10 @@ def _run(args) -> int:
     if args.rate is None and args.channels != 1:
         raise DecodingError("--channels is for raw PCM input; give --rate too (a WAV stream names its own)")
     raw = StreamFormat(rate=args.rate, channels=args.channels) if args.rate is not None else None
-    # the decoder options carry --min-confidence
-    settings = ListenSettings(split_pause=args.split_pause, **({"early_every": 0.0} if args.wait_for_pause else {}))
+    # the decoder options carry --min-confidence; given, it judges whole commands too (as scan)
+    given = {} if getattr(args, "min_confidence", None) is None else {"command_confidence": None}
+    settings = ListenSettings(split_pause=args.split_pause, **given,
+                              **({"early_every": 0.0} if args.wait_for_pause else {}))
     model = load_model(args.model)
     decoder_settings = settings_from_args(args)
     if scorer_note(model, decoder_settings) and not args.quiet:

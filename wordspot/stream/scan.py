@@ -24,7 +24,7 @@ from wordspot.stream.normalise import stretch_features
 from wordspot.util.progress import ProgressBar
 
 __all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "StretchScanner", "scan_file", "scan_files",
-           "group_words", "whole_commands", "decode_stretch", "stretch_commands",
+           "group_words", "whole_commands", "judged_words", "decode_stretch", "stretch_commands",
            "recognise_stretch", "COMMAND_RULES"]
 
 #: How the confidence threshold judges the words of one command (``ScanSettings.command_rule``).
@@ -183,17 +183,26 @@ def stretch_commands(result, offset: float, threshold: float, settings: ScanSett
     ``threshold`` is the recognizer's (``Recognizer.min_confidence``); it judges whole
     commands unless ``settings.command_confidence`` is set.
     """
+    words = judged_words(result, offset, settings)
     if settings.command_rule == "word":
-        words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence)
-                 for s in result.segments if s.confidence >= settings.min_confidence]
         return group_words(path, words, settings.split_pause)
-    # every word heard but those said amid other talk; the threshold judges whole commands
-    heard = sorted(list(result.segments) + [s for s in result.dropped if not s.amid_talk], key=lambda s: s.start)
-    words = [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence) for s in heard]
     if settings.command_confidence is not None:
         threshold = float(settings.command_confidence)
     threshold = max(threshold, float(settings.min_confidence))
     return whole_commands(path, words, threshold, settings.split_pause, settings.command_rule)
+
+
+def judged_words(result, offset: float, settings: ScanSettings) -> list[FoundWord]:
+    """The words of one stretch's recognition that the command rule judges, in time order.
+
+    "word": the recognizer's words of at least ``settings.min_confidence``; "best" and
+    "mean": every word heard but those said amid other talk (whole commands are judged).
+    """
+    if settings.command_rule == "word":
+        heard = [s for s in result.segments if s.confidence >= settings.min_confidence]
+    else:
+        heard = sorted(list(result.segments) + [s for s in result.dropped if not s.amid_talk], key=lambda s: s.start)
+    return [FoundWord(s.word, offset + s.start, offset + s.end, s.confidence) for s in heard]
 
 
 def whole_commands(path: str, words, threshold: float, split_pause: float, rule: str = "best") -> list[FoundCommand]:
@@ -275,7 +284,11 @@ class StretchScanner:
         if start is None or now - start < hold + self._early_step:
             return []
         wave = self._held[start - self._held_at : now - self._held_at]
-        commands = recognise_stretch(self.recognizer, wave, Stretch(start, now, start, now), self.rate, s, self.path)
+        result = decode_stretch(self.recognizer, wave, s.normalise_seconds)
+        if result is None:
+            return []
+        offset = start / self.rate
+        commands = stretch_commands(result, offset, float(self.recognizer.min_confidence), s, self.path)
         limit = (now - hold) / self.rate
         complete = [c for c in commands if c.end <= limit]
         # reported once two looks in a row agree on it (a word that one look alone finds in
@@ -291,6 +304,11 @@ class StretchScanner:
         cut = limit - pad  # no command word before it (none ended, none begun)
         if later:
             cut = min(cut, later[0].start - pad)
+        if s.command_rule != "word":  # nor into a command still being said that is weak so far
+            going = [g for g in group_words(self.path, judged_words(result, offset, s), s.split_pause)
+                     if g.end > limit]
+            if going:
+                cut = min(cut, going[0].start - pad)
         if final:
             cut = max(cut, final[-1].end + min(pad, (later[0].start - final[-1].end) / 2 if later else pad))
         sample = min(int(round(cut * self.rate)), now)
