@@ -19,7 +19,10 @@ calibration's examples, an adaptation on everything) instead of one adaptation.
 ``scorer-impacts`` (items of impacts among the scorer's tuning frames, share 0.1),
 ``impact-clips`` (100 clips of impacts among the calibration's examples; with ``--whole``
 only), ``impacts-half-0.2`` (impacts half of the background items at share 0.2);
-docs/experiments/2026-12-03-impacts-no-command.md.
+docs/experiments/2026-12-03-impacts-no-command.md. ``--base default`` times it against
+today's default ``AdaptationConfig()`` instead, the candidate's other fields at their
+defaults too (``impacts-half-0.2`` then keeps the scorer's items of impacts, route 3 on
+top of the default; docs/experiments/2026-12-04-impact-background-items.md).
 """
 
 from __future__ import annotations
@@ -61,6 +64,8 @@ def main(argv=None) -> int:
     ap.add_argument("--whole", action="store_true", help="time the calibrated training, as wordspot train")
     ap.add_argument("--against", default="impacts-half-0.25", choices=sorted(CANDIDATES),
                     help="the candidate timed against the default")
+    ap.add_argument("--base", default="before", choices=["before", "default"],
+                    help="before: steady items at 0.1, no scorer items of impacts; default: AdaptationConfig()")
     args = ap.parse_args(argv)
 
     from wordspot.corpus import read_manifest
@@ -74,11 +79,16 @@ def main(argv=None) -> int:
     lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
     start = load_model(starter_path("starter"))
     other, impact_clips = CANDIDATES[args.against]
-    configs = {"steady, share 0.1": AdaptationConfig(background_kinds=STEADY_MIX, background_share=0.1,
-                                                     scorer_impacts=0.0),  # the adaptation before any of them
+    if args.base == "default":  # the candidate on top of today's defaults: only its kinds and share
+        other = {k: v for k, v in other.items() if k != "scorer_impacts"}
+        base_name, base = "default", AdaptationConfig()
+    else:  # the adaptation before any of them
+        base_name = "steady, share 0.1"
+        base = AdaptationConfig(background_kinds=STEADY_MIX, background_share=0.1, scorer_impacts=0.0)
+    configs = {base_name: base,
                args.against: AdaptationConfig(**{"background_kinds": IMPACTS_HALF_MIX, **other}
                                               if "background_share" in other else other)}
-    calibration = {"steady, share 0.1": CalibrationConfig(), args.against: CalibrationConfig(impact_clips=impact_clips)}
+    calibration = {base_name: CalibrationConfig(), args.against: CalibrationConfig(impact_clips=impact_clips)}
     cpu = {k: [] for k in configs}
     with tempfile.TemporaryDirectory() as tmp:
         utterances = read_manifest(write_dev_train_manifest(Path(tmp) / "dev-train.csv"))
@@ -94,8 +104,8 @@ def main(argv=None) -> int:
                 cpu[name].append(time.process_time() - t0)
                 print(f"round {r} {name}: {cpu[name][-1]:.1f} cpu s, {summary.backgrounds} background items",
                       flush=True)
-    ratios = np.array(cpu[args.against]) / np.array(cpu["steady, share 0.1"])
-    print(f"{args.against} / steady: median {np.median(ratios):.2f} (rounds {', '.join(f'{x:.2f}' for x in ratios)})")
+    ratios = np.array(cpu[args.against]) / np.array(cpu[base_name])
+    print(f"{args.against} / {base_name}: median {np.median(ratios):.2f} (rounds {', '.join(f'{x:.2f}' for x in ratios)})")
     return 0
 
 

@@ -41,7 +41,7 @@ REPO = HERE.parents[1]
 sys.path.insert(0, str(HERE))
 
 from compare_data import dev_voices  # noqa: E402
-from threshold_dev import CLEAN, NOISY, PHRASE, VariantTables, decode_sets  # noqa: E402
+from threshold_dev import CLEAN, NOISY, PHRASE, VariantTables, decode_sets, mix_arg  # noqa: E402
 from tune_filler import NO_COMMAND, _rows, dev_sets  # noqa: E402
 
 RATE = 16000
@@ -292,6 +292,10 @@ def main(argv=None) -> int:
                     help="also gather the examples of whole speakers held out of another adaptation")
     ap.add_argument("--joined", type=int, default=60, help="joined dev files and phrase stand-ins")
     ap.add_argument("--jobs", type=int, default=2)
+    ap.add_argument("--background-kinds", nargs="+", default=None, metavar="KIND",
+                    help="the adaptation's background items' kinds, KIND or KIND:PARTS (default: its default)")
+    ap.add_argument("--background-share", type=float, default=None,
+                    help="the adaptation's background share (default: its default)")
     ap.add_argument("--save", type=Path, default=None,
                     help="keep each seed's recognitions and examples in this folder (pickle: scratch files only)")
     ap.add_argument("--load", type=Path, default=None,
@@ -334,7 +338,7 @@ def main(argv=None) -> int:
     else:
         sets = gather(args, table, names, tables)
     print((f"recognitions kept in {args.load}" if args.load else f"far voices: factor {args.per_voice or args.factor}")
-          + f", tilt {args.tilt:g} dB; seeds {args.seeds}: mean (min-max); "
+          + f", tilt {args.tilt:g} dB; background items {adaptation_options(args) or 'default'}; seeds {args.seeds}: mean (min-max); "
           f"no-command sets: {', '.join(n for n in NO_COMMAND if n in sets)}\n")
     tables.print(args.show)
     return 0
@@ -377,6 +381,14 @@ def light(heard):
                    for ref, segs in items] for name, items in heard.items()}
 
 
+def adaptation_options(args) -> dict:
+    """``AdaptationConfig`` fields from ``--background-kinds`` / ``--background-share`` (none given: {})."""
+    out = {} if args.background_share is None else {"background_share": args.background_share}
+    if args.background_kinds:
+        out["background_kinds"] = mix_arg(args.background_kinds)
+    return out
+
+
 def gather(args, table, names, tables):
     """Adapt, gather the examples and recognise the dev sets per seed, adding every variant to ``tables``."""
     from wordspot import api
@@ -392,6 +404,7 @@ def gather(args, table, names, tables):
     settings = DecoderSettings(min_confidence=0.0)
     lexicon = read_lexicon(REPO / "lexicon" / "bakery.txt")
     start = load_model(starter_path("starter"))
+    adapt = AdaptationConfig(jobs=args.jobs, **adaptation_options(args))
     sets = None
     with tempfile.TemporaryDirectory() as tmp:
         t0 = time.process_time()
@@ -404,7 +417,7 @@ def gather(args, table, names, tables):
             t0 = time.process_time()
             config = CalibrationConfig(seed=seed, settings=settings)
             (rest, held), = held_out_parts(utterances, config)[0]
-            fit = adapting(start, lexicon, config=AdaptationConfig(jobs=args.jobs), manifest=manifest)
+            fit = adapting(start, lexicon, config=adapt, manifest=manifest)
             model_rest, _ = fit(rest, held_out=held)
             ex = calibration_examples(model_rest, held, settings=settings, speeds=config.speeds,
                                       jumbled=config.jumbled, seed=seed, noisy=2, phrases=100, jobs=args.jobs)
@@ -414,7 +427,7 @@ def gather(args, table, names, tables):
                 held_w = split_by_speaker(utterances, AdaptationConfig.held_out_speaker_share, seed)
                 spk = {u.speaker for u in held_w}
                 rest_w = [u for u in utterances if u.speaker not in spk]
-                fit_w = adapting(start, lexicon, config=AdaptationConfig(jobs=args.jobs), manifest=manifest)
+                fit_w = adapting(start, lexicon, config=adapt, manifest=manifest)
                 model_w, _ = fit_w(rest_w, held_out=held_w, again=False)
                 whole = calibration_examples(model_w, recognised_share(held_w, len(utterances), config),
                                              settings=settings, speeds=config.speeds, jumbled=config.jumbled,

@@ -141,7 +141,10 @@ class AdaptationConfig:
         (impacts, knocks and clinks, as half of the items) at share 0.25 took the dev
         impact clips given a command at the default threshold from 23% to 14%, the other
         dev sets within the seeds' spread, for 1.14 times the training's CPU time: not the
-        default (docs/experiments/2026-12-03-impacts-in-training.md).
+        default (docs/experiments/2026-12-03-impacts-in-training.md). At share 0.2 on top
+        of ``scorer_impacts`` it no longer cuts impact clips beyond the seeds' spread and
+        costs far voices' commands: not the default either
+        (docs/experiments/2026-12-04-impact-background-items.md).
     seed : int
         Seeds the background items.
     scorer : ScorerAdaptConfig or None
