@@ -41,6 +41,8 @@ scorer's posterior measures differ), and the rows are "LABEL / variant"::
 
     python tests/benchmarks/starter_calibration_dev.py --caps --seeds 0 1 2 --rate 8000
 
+``--per-seed`` prints the tables of every calibration seed alone after those over the seeds.
+
 The other tables fit every variant with the default cap (``DEFAULT_CAP_QUANTILE``), so
 their "as shipped (before)" names the kinds of example, not the cap.
 """
@@ -101,6 +103,7 @@ def main(argv=None) -> int:
                     help="compare no cap, 0.95 and 0.9 on contrary measures, examples as the build gathers them")
     ap.add_argument("--rate", type=int, default=16000, choices=[16000, 8000],
                     help="the shipped starter of this rate (without --models)")
+    ap.add_argument("--per-seed", action="store_true", help="also print the tables of every seed alone")
     ap.add_argument("--variants", nargs="+", default=None,
                     help="the calibration variants to fit (default: all of the chosen table's)")
     args = ap.parse_args(argv)
@@ -133,7 +136,9 @@ def main(argv=None) -> int:
     settings = DecoderSettings(min_confidence=0.0)
     sets = None
     rows = {(label, v): kinds for label in named for v, kinds in variants.items()}
-    tables = VariantTables([f"{label} / {v}" for label, v in rows] if args.models else variants)
+    names = [f"{label} / {v}" for label, v in rows] if args.models else list(variants)
+    tables = VariantTables(names)
+    per_seed = {seed: VariantTables(names) for seed in args.seeds} if args.per_seed else {}
     for label, path in named.items():
         model = load_model(path)
         bakery = replace(model, lexicon=bakery_lex)
@@ -144,10 +149,13 @@ def main(argv=None) -> int:
         heard = decode_sets(bakery, sets, settings)
         print(f"{label}: dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
               + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
-        _score(args, model, dev, heard, variants, tables, label if args.models else None)
+        _score(args, model, dev, heard, variants, tables, label if args.models else None, per_seed)
     print(f"starters {', '.join(f'{k} ({v})' for k, v in named.items())}; {args.noisy} noisy copies, "
           f"{args.phrases} phrases per vocabulary; calibration seeds {args.seeds}: mean (min-max)\n")
     tables.print(args.show)
+    for seed, alone in per_seed.items():
+        print(f"\n## calibration seed {seed} alone\n")
+        alone.print(args.show)
     return 0
 
 
@@ -162,8 +170,9 @@ def _at_rate(sets, rate):
     return {name: [(_resample(w, RATE, rate), ref) for w, ref in items] for name, items in sets.items()}
 
 
-def _score(args, model, dev, heard, variants, tables, label) -> None:
-    """Gather the calibration examples of ``model`` per seed and add each variant's figures."""
+def _score(args, model, dev, heard, variants, tables, label, per_seed) -> None:
+    """Gather the calibration examples of ``model`` per seed and add each variant's figures
+    (to ``per_seed[seed]`` too, when given)."""
     from wordspot.evaluation.calibrate import CalibrationConfig, fit_calibration
     from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, starter_calibration_examples
 
@@ -181,13 +190,15 @@ def _score(args, model, dev, heard, variants, tables, label) -> None:
             ex = ex.subset(finite)
         fit_config = CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty)
         tables.new_seed()
+        alone = per_seed.get(seed)
         for v, kinds in variants.items():
             cap = fit_config.cap_quantile
             if args.caps:
                 kinds, cap = BASE, kinds
             sub = ex.subset(np.isin(ex.source, kinds))
             cal = fit_calibration(sub, config=replace(fit_config, cap_quantile=cap))
-            tables.add(f"{label} / {v}" if label else v, heard, cal, sub)
+            for t in (tables, alone) if alone is not None else (tables,):
+                t.add(f"{label} / {v}" if label else v, heard, cal, sub)
         print(f"{label or 'starter'} seed {seed}: {ex.right.size} words ({int(ex.right.sum())} right), cpu "
               f"{time.process_time() - t0:.0f} s", file=sys.stderr, flush=True)
 
