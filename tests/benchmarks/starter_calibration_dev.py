@@ -144,14 +144,16 @@ def main(argv=None) -> int:
         bakery = replace(model, lexicon=bakery_lex)
         if sets is None:
             sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0), no_command=args.no_command)
-            sets = _at_rate(sets, model.features.sample_rate)
         t0 = time.process_time()
-        heard = decode_sets(bakery, sets, settings)
+        heard = decode_sets(bakery, _at_rate(sets, model.features.sample_rate), settings)
         print(f"{label}: dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
               + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
         _score(args, model, dev, heard, variants, tables, label if args.models else None, per_seed)
-    print(f"starters {', '.join(f'{k} ({v})' for k, v in named.items())}; {args.noisy} noisy copies, "
-          f"{args.phrases} phrases per vocabulary; calibration seeds {args.seeds}: mean (min-max)\n")
+    gathered = ("the build's examples" if args.caps
+                else f"{args.impacts} impact clips, {args.more_words} more words alone" if args.no_command
+                else f"{args.noisy} noisy copies, {args.phrases} phrases")
+    print(f"starters {', '.join(f'{k} ({v})' for k, v in named.items())}; {gathered} per vocabulary; "
+          f"calibration seeds {args.seeds}: mean (min-max)\n")
     tables.print(args.show)
     for seed, alone in per_seed.items():
         print(f"\n## calibration seed {seed} alone\n")
