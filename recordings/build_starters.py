@@ -31,7 +31,8 @@ Steps:
    (:mod:`wordspot.evaluation.starter_calibration`): many small vocabularies drawn from the
    words the dev split's recordings say alone; those recordings, the dev split's other
    talk, jumbled speech and background-only clips recognised with each; a logistic
-   regression over the word measures (the state scorer's posterior measures among them).
+   regression over the word measures (the state scorer's posterior measures among them),
+   a measure whose weight opposes its meaning capped at the right words' 0.95 quantile.
    A model adapted from the starter keeps it when the user's takes are too few for their
    own. ``--calibration-only`` runs this step alone on the existing starter files;
    ``--no-calibration`` leaves it out.
@@ -45,6 +46,7 @@ from __future__ import annotations
 import argparse
 import csv
 import datetime as dt
+import math
 import subprocess
 import sys
 import time
@@ -455,12 +457,15 @@ def add_calibration(path: Path, quiet: bool, manifest: Path = DEV, seed: int = 0
         print(f"{name}: no calibration fitted ({int(ex.right.sum())} right, {int((~ex.right).sum())} wrong words)")
         return path
     model.calibration = cal
+    bounds = [b for b in (cal.lower, cal.upper) if b is not None]
+    capped = [n for j, n in enumerate(cal.names) if any(math.isfinite(b[j]) for b in bounds)]
     model.info["calibration"] = {
         "starter": True,
         "made_from": str(manifest.relative_to(REPO)) if manifest.is_relative_to(REPO) else str(manifest),
         "vocabularies": config.vocabularies, "words_per_vocabulary": list(config.words),
         "other_talk_per_vocabulary": config.other_talk, "jumbled_per_vocabulary": config.jumbled,
         "noise_per_vocabulary": config.noise, "seed": seed, "measures": list(cal.names),
+        "cap_quantile": config.cap_quantile, "capped_measures": capped,
         "right_words": int(ex.right.sum()), "wrong_words": int((~ex.right).sum()),
         "built": dt.date.today().isoformat(),
         "command": "python recordings/build_starters.py " + " ".join(sys.argv[1:]),

@@ -235,6 +235,14 @@ def test_starter_carries_a_confidence_calibration(name):
     assert usable_calibration(cal) is cal  # every measure it names is one the decoder computes
     if model.scorer is not None:
         assert set(POSTERIOR_MEASURE_NAMES) & set(cal.names)
+    # fitted with the caps every calibration has (refitted 2026-12-04): the info names the
+    # cap and exactly the measures the calibration limits (contrary weights; calibrate.contrary_caps)
+    from wordspot.evaluation.calibrate import DEFAULT_CAP_QUANTILE
+
+    info = model.info["calibration"]
+    limited = [n for j, n in enumerate(cal.names)
+               if any(b is not None and np.isfinite(b[j]) for b in (cal.lower, cal.upper))]
+    assert info["cap_quantile"] == DEFAULT_CAP_QUANTILE and info["capped_measures"] == limited and limited
 
 
 def _distractors(kind, n=10):

@@ -32,6 +32,19 @@ scorer's posterior measures differ), and the rows are "LABEL / variant"::
 
     python tests/benchmarks/starter_calibration_dev.py --no-command --seeds 0 \
         --models today=wordspot/starters/starter-16k.model impacts0.1=/tmp/i10/starter.model
+
+``--caps`` compares the caps on measures whose weight opposes their meaning
+(``CalibrationConfig.cap_quantile``): the examples are gathered exactly as the build does
+(``StarterCalibrationConfig(seed=...)``, no noisy copies or phrases), with the dev sets of
+``--no-command`` too, and fitted with no cap (as the shipped starters were), at 0.95 and at
+0.9. ``--rate 8000`` scores the shipped 8 kHz starter (the dev sets resampled to 8 kHz)::
+
+    python tests/benchmarks/starter_calibration_dev.py --caps --seeds 0 1 2 --rate 8000
+
+``--per-seed`` prints the tables of every calibration seed alone after those over the seeds.
+
+The other tables fit every variant with the default cap (``DEFAULT_CAP_QUANTILE``), so
+their "as shipped (before)" names the kinds of example, not the cap.
 """
 
 from __future__ import annotations
@@ -67,6 +80,9 @@ NO_COMMAND_VARIANTS = {
     "+ impacts + more words alone": BASE + ("impacts", "other word alone"),
 }
 
+#: With ``--caps``: the cap quantile of each variant, all fitted on the build's kinds of example.
+CAP_VARIANTS = {"no cap (as shipped)": None, "cap 0.95": 0.95, "cap 0.9": 0.9}
+
 
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
@@ -83,10 +99,17 @@ def main(argv=None) -> int:
                     help="with --no-command: more one-word recordings of other words per vocabulary")
     ap.add_argument("--models", nargs="+", default=None, metavar="LABEL=PATH",
                     help="starter model files to score, each under a label (default: the shipped 16 kHz starter)")
+    ap.add_argument("--caps", action="store_true",
+                    help="compare no cap, 0.95 and 0.9 on contrary measures, examples as the build gathers them")
+    ap.add_argument("--rate", type=int, default=16000, choices=[16000, 8000],
+                    help="the shipped starter of this rate (without --models)")
+    ap.add_argument("--per-seed", action="store_true", help="also print the tables of every seed alone")
     ap.add_argument("--variants", nargs="+", default=None,
                     help="the calibration variants to fit (default: all of the chosen table's)")
     args = ap.parse_args(argv)
-    variants = NO_COMMAND_VARIANTS if args.no_command else VARIANTS
+    if args.caps:
+        args.no_command = True
+    variants = CAP_VARIANTS if args.caps else NO_COMMAND_VARIANTS if args.no_command else VARIANTS
     if args.variants:
         unknown = [v for v in args.variants if v not in variants]
         if unknown:
@@ -101,7 +124,8 @@ def main(argv=None) -> int:
     from wordspot.starters import starter_path
 
     named = {}
-    for entry in args.models or [f"shipped={starter_path('starter')}"]:
+    shipped = starter_path("starter" if args.rate == 16000 else "starter-8k")
+    for entry in args.models or [f"shipped={shipped}"]:
         label, _, path = entry.rpartition("=")
         if not Path(path).is_file():
             print(f"--models: {path} is no file (give LABEL=PATH of a starter model)", file=sys.stderr)
@@ -112,31 +136,52 @@ def main(argv=None) -> int:
     settings = DecoderSettings(min_confidence=0.0)
     sets = None
     rows = {(label, v): kinds for label in named for v, kinds in variants.items()}
-    tables = VariantTables([f"{label} / {v}" for label, v in rows] if args.models else variants)
+    names = [f"{label} / {v}" for label, v in rows] if args.models else list(variants)
+    tables = VariantTables(names)
+    per_seed = {seed: VariantTables(names) for seed in args.seeds} if args.per_seed else {}
     for label, path in named.items():
         model = load_model(path)
         bakery = replace(model, lexicon=bakery_lex)
         if sets is None:
             sets = dev_sets(bakery, args.joined, snrs=(20.0, 10.0), no_command=args.no_command)
         t0 = time.process_time()
-        heard = decode_sets(bakery, sets, settings)
+        heard = decode_sets(bakery, _at_rate(sets, model.features.sample_rate), settings)
         print(f"{label}: dev sets decoded, cpu {time.process_time() - t0:.0f} s: "
               + ", ".join(f"{k} {len(v)}" for k, v in sets.items()), file=sys.stderr, flush=True)
-        _score(args, model, dev, heard, variants, tables, label if args.models else None)
-    print(f"starters {', '.join(f'{k} ({v})' for k, v in named.items())}; {args.noisy} noisy copies, "
-          f"{args.phrases} phrases per vocabulary; calibration seeds {args.seeds}: mean (min-max)\n")
+        _score(args, model, dev, heard, variants, tables, label if args.models else None, per_seed)
+    gathered = ("the build's examples" if args.caps
+                else f"{args.impacts} impact clips, {args.more_words} more words alone" if args.no_command
+                else f"{args.noisy} noisy copies, {args.phrases} phrases")
+    print(f"starters {', '.join(f'{k} ({v})' for k, v in named.items())}; {gathered} per vocabulary; "
+          f"calibration seeds {args.seeds}: mean (min-max)\n")
     tables.print(args.show)
+    for seed, alone in per_seed.items():
+        print(f"\n## calibration seed {seed} alone\n")
+        alone.print(args.show)
     return 0
 
 
-def _score(args, model, dev, heard, variants, tables, label) -> None:
-    """Gather the calibration examples of ``model`` per seed and add each variant's figures."""
+def _at_rate(sets, rate):
+    """The dev sets (made at 16 kHz) at the model's sample rate."""
+    from tune_filler import RATE
+
+    from wordspot.audio.reading import _resample
+
+    if rate == RATE:
+        return sets
+    return {name: [(_resample(w, RATE, rate), ref) for w, ref in items] for name, items in sets.items()}
+
+
+def _score(args, model, dev, heard, variants, tables, label, per_seed) -> None:
+    """Gather the calibration examples of ``model`` per seed and add each variant's figures
+    (to ``per_seed[seed]`` too, when given)."""
     from wordspot.evaluation.calibrate import CalibrationConfig, fit_calibration
     from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, starter_calibration_examples
 
     for seed in args.seeds:
         t0 = time.process_time()
-        config = (StarterCalibrationConfig(seed=seed, impacts=args.impacts, more_words=args.more_words)
+        config = (StarterCalibrationConfig(seed=seed) if args.caps
+                  else StarterCalibrationConfig(seed=seed, impacts=args.impacts, more_words=args.more_words)
                   if args.no_command else StarterCalibrationConfig(seed=seed, noisy=args.noisy, phrases=args.phrases))
         ex = starter_calibration_examples(model, dev, config)
         finite = np.isfinite(ex.measures).all(axis=1)
@@ -147,9 +192,15 @@ def _score(args, model, dev, heard, variants, tables, label) -> None:
             ex = ex.subset(finite)
         fit_config = CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty)
         tables.new_seed()
+        alone = per_seed.get(seed)
         for v, kinds in variants.items():
+            cap = fit_config.cap_quantile
+            if args.caps:
+                kinds, cap = BASE, kinds
             sub = ex.subset(np.isin(ex.source, kinds))
-            tables.add(f"{label} / {v}" if label else v, heard, fit_calibration(sub, config=fit_config), sub)
+            cal = fit_calibration(sub, config=replace(fit_config, cap_quantile=cap))
+            for t in (tables, alone) if alone is not None else (tables,):
+                t.add(f"{label} / {v}" if label else v, heard, cal, sub)
         print(f"{label or 'starter'} seed {seed}: {ex.right.size} words ({int(ex.right.sum())} right), cpu "
               f"{time.process_time() - t0:.0f} s", file=sys.stderr, flush=True)
 

@@ -122,16 +122,42 @@ def test_training_stores_the_capped_calibration_and_names_the_capped_measures(rn
     assert "capped_measures" not in out.info["calibration"] and out.calibration.upper is None
 
 
-def test_the_default_caps_and_a_model_file_from_before_scores_as_before():
+def test_the_default_caps_and_a_model_file_from_before_scores_as_before(tmp_path):
+    import json
+
     from wordspot.evaluation.calibrate import DEFAULT_CAP_QUANTILE
-    from wordspot.model import load_model
+    from wordspot.model import load_model, save_model
     from wordspot.starters import starter_path
+    from wordspot.util.logistic import Calibration
 
     assert CalibrationConfig().cap_quantile == DEFAULT_CAP_QUANTILE and CalibrationConfig().weight_signs is False
-    # the shipped starter's calibration was stored before the caps: none, and its
-    # probabilities are the logistic formula of its stored numbers (module docstring)
-    cal = load_model(starter_path("starter")).calibration
-    assert cal.lower is None and cal.upper is None
-    rows = cal.means + cal.scales * np.linspace(-3.0, 3.0, 7)[:, None]
-    t = cal.intercept + ((rows - cal.means) / cal.scales) @ cal.coefficients
-    np.testing.assert_allclose(cal.predict(rows), 1.0 / (1.0 + np.exp(-t)), rtol=1e-12)
+    # the shipped starter's calibration is capped (refitted 2026-12-04): a limit on the
+    # better side of exactly the measures whose weight opposes their sign, none elsewhere
+    starter = load_model(starter_path("starter"))
+    cal = starter.calibration
+    sign = np.array([MEASURE_SIGNS.get(n, 0) for n in cal.names])
+    contrary = sign * cal.coefficients < 0
+    assert contrary.any()
+    upper = cal.upper if cal.upper is not None else np.full(len(sign), np.inf)
+    lower = cal.lower if cal.lower is not None else np.full(len(sign), -np.inf)
+    np.testing.assert_array_equal(np.isfinite(upper), contrary & (sign > 0))
+    np.testing.assert_array_equal(np.isfinite(lower), contrary & (sign < 0))
+    # a file from before the caps holds no limits in its header; it loads with none, and
+    # its probabilities are the logistic formula of its stored numbers (module docstring)
+    plain = Calibration(cal.names, cal.means, cal.scales, cal.coefficients, cal.intercept)
+    path = save_model(replace(starter, calibration=plain), tmp_path / "before-caps.model")
+    with np.load(path, allow_pickle=False) as data:
+        header = json.loads(data["header"].astype(np.uint8).tobytes().decode("utf-8"))
+    assert not {"lower", "upper"} & set(header["calibration"])
+    old = load_model(path).calibration
+    assert old.lower is None and old.upper is None
+    rows = old.means + old.scales * np.linspace(-3.0, 3.0, 7)[:, None]
+    t = old.intercept + ((rows - old.means) / old.scales) @ old.coefficients
+    np.testing.assert_allclose(old.predict(rows), 1.0 / (1.0 + np.exp(-t)), rtol=1e-12)
+    # the capped one differs from it only beyond a cap
+    beyond = rows.copy()
+    j = int(np.flatnonzero(contrary)[0])
+    beyond[:, j] = upper[j] + 5.0 if sign[j] > 0 else lower[j] - 5.0
+    assert not np.allclose(cal.predict(beyond), old.predict(beyond))
+    inside = np.clip(rows, lower, upper)
+    np.testing.assert_allclose(cal.predict(inside), old.predict(inside), rtol=1e-12)

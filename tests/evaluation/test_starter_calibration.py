@@ -119,3 +119,27 @@ def test_impacts_and_more_words_alone_add_wrong_words_and_leave_the_others_as_th
         StarterCalibrationConfig(impacts=-2)
     with pytest.raises(TrainingError, match="more_words must be a whole number"):
         StarterCalibrationConfig(more_words=1.5)
+
+
+def test_the_cap_is_that_of_every_calibration_and_none_leaves_the_fit_uncapped(starter_and_takes):
+    # Our own rule (calibrate.contrary_caps; common practice, no source): a measure whose
+    # weight opposes its meaning is capped at the right words' quantile. The starter's fit
+    # applies it as every calibration does, on the same weights; None stores no cap.
+    from wordspot.evaluation.calibrate import DEFAULT_CAP_QUANTILE, MEASURE_SIGNS, contrary_caps
+
+    model, utts = starter_and_takes
+    config = StarterCalibrationConfig(vocabularies=2, words=(4, 5), other_talk=0, other_words=6, jumbled=2,
+                                      noise=3, speeds=(1.0,))
+    assert config.cap_quantile == DEFAULT_CAP_QUANTILE
+    plain, ex = fit_starter_calibration(model, utts, replace(config, cap_quantile=None))
+    assert plain.lower is None and plain.upper is None
+    sign = np.array([MEASURE_SIGNS.get(n, 0) for n in plain.names])
+    assert (sign * plain.coefficients < 0).any()  # so that there is something to cap here
+    cols = [MEASURE_NAMES.index(n) for n in plain.names]
+    for q in (DEFAULT_CAP_QUANTILE, 0.9):
+        cal, _ = fit_starter_calibration(model, utts, replace(config, cap_quantile=q))
+        np.testing.assert_array_equal(cal.coefficients, plain.coefficients)
+        assert cal.to_dict() == contrary_caps(plain, ex.measures[ex.right][:, cols], q).to_dict()
+        assert cal.to_dict() != plain.to_dict()
+    with pytest.raises(TrainingError, match="cap quantile must be a number in"):
+        StarterCalibrationConfig(cap_quantile=1.5)

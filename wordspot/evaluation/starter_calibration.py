@@ -21,7 +21,8 @@ user's words, so it is fitted over many small vocabularies drawn from the corpus
    :mod:`wordspot.audio.impacts`) over a faint floor, all wrong, and (h) more one-word
    recordings of other words, all wrong;
 3. fit the logistic regression on the measures :func:`calibrate.calibration_measures`
-   chooses (the posterior measures too when the model has a state scorer).
+   chooses (the posterior measures too when the model has a state scorer), a measure whose
+   weight opposes its meaning capped as in every calibration (``cap_quantile``).
 
 The measures are margins and per-frame scores, not word identities, so one fit serves any
 vocabulary. Recordings the model was trained on give measures that are too good; use a split
@@ -39,8 +40,8 @@ import numpy as np
 from wordspot.audio.augment import snr_range
 from wordspot.decoding.decoder import DecoderSettings, build_recognizer
 from wordspot.errors import TrainingError, WordspotError
-from wordspot.evaluation.calibrate import (CalibrationConfig, CalibrationExamples, fit_calibration, joined_phrases,
-                                           noisy_copies)
+from wordspot.evaluation.calibrate import (DEFAULT_CAP_QUANTILE, CalibrationConfig, CalibrationExamples,
+                                           fit_calibration, joined_phrases, noisy_copies)
 from wordspot.evaluation.reliability import word_hits
 
 __all__ = ["StarterCalibrationConfig", "starter_calibration_examples", "fit_starter_calibration"]
@@ -87,6 +88,10 @@ class StarterCalibrationConfig:
         How the recordings are recognised (no threshold in any case).
     penalty : float
         L2 penalty of the logistic regression.
+    cap_quantile : float in (0, 1] or None
+        Cap of the measures whose weight opposes their meaning
+        (``CalibrationConfig.cap_quantile``). None: no cap (the starters shipped before
+        2026-12-04).
     """
 
     vocabularies: int = 12
@@ -104,6 +109,7 @@ class StarterCalibrationConfig:
     seed: int = 0
     settings: DecoderSettings = DecoderSettings(min_confidence=0.0)
     penalty: float = CalibrationConfig.penalty
+    cap_quantile: float | None = DEFAULT_CAP_QUANTILE
 
     def __post_init__(self) -> None:
         for name in ("vocabularies", "other_talk", "other_words", "jumbled", "noise", "noisy", "phrases", "impacts",
@@ -118,6 +124,7 @@ class StarterCalibrationConfig:
                                 f"got {self.words!r}")
         if not self.speeds or not all(isinstance(f, (int, float)) and 0.5 <= f <= 2.0 for f in self.speeds):
             raise TrainingError(f"starter calibration: speeds must be factors from 0.5 to 2, got {self.speeds!r}")
+        CalibrationConfig(cap_quantile=self.cap_quantile)  # refuses a cap out of (0, 1]
         if snr_range(self.noise_snr_db) is None:
             raise TrainingError(f"starter calibration: noise_snr_db must be two finite numbers low <= high in dB "
                                 f"(e.g. (5, 25)), got {self.noise_snr_db!r}")
@@ -278,5 +285,6 @@ def fit_starter_calibration(model, utterances: Sequence,
     None (with one warning) when a class is missing or the fit fails.
     """
     examples = starter_calibration_examples(model, utterances, config, report=report)
-    cal = fit_calibration(examples, config=CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty))
+    cal = fit_calibration(examples, config=CalibrationConfig(min_items=1, min_per_class=5, penalty=config.penalty,
+                                                             cap_quantile=config.cap_quantile))
     return cal, examples
