@@ -115,8 +115,8 @@ def test_bad_input_gives_one_message(recording, capsys, tmp_path):
 
 
 def test_min_confidence_drops_weaker_words(recording, capsys):
-    # With --min-confidence P every command found has its words at P or above (a command's
-    # confidence is its lowest word's); a lower P keeps as many commands or more.
+    # With --min-confidence P every command found has a confidence of P or above (a command
+    # is judged whole: its confidence is its words' mean); a lower P keeps as many or more.
     rec, _ = recording
     status, out, _ = _run(capsys, BASE + ["-q", "--format", "jsonl", str(rec.path)])
     assert status == 0

@@ -83,9 +83,9 @@ class ListenSettings:
         """The same settings for ``wordspot scan`` (a file then gives the same commands).
 
         Commands are kept or dropped whole by their words' mean confidence (0.35), as the
-        scan does: on the dev long recordings pushed live, far voices' false accepts per 5
-        minutes 25.8 -> 10.8 and ordinary voices' 11.0 -> 1.3 with commands found and the
-        delay within the seeds' spread
+        scan does: on the dev long recordings pushed live (six seeds), far voices' false
+        accepts per 5 minutes 26.2 -> 9.2 and ordinary voices' 10.2 -> 1.3 with commands
+        found and the delay within the seeds' spread
         (docs/experiments/2026-12-04-live-whole-commands.md). Features stay normalised over
         the whole stretch (windows were not measured live).
         """
