@@ -46,7 +46,6 @@ from __future__ import annotations
 import argparse
 import csv
 import datetime as dt
-import math
 import subprocess
 import sys
 import time
@@ -444,6 +443,7 @@ def add_calibration(path: Path, quiet: bool, manifest: Path = DEV, seed: int = 0
     """Fit the starter calibration of the model file ``path`` on ``manifest`` (the dev split:
     recordings the starter was not trained on) and write the model back with it (atomically)."""
     from wordspot.corpus import read_manifest
+    from wordspot.evaluation.calibrate import capped_measures
     from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, fit_starter_calibration
     from wordspot.model import load_model, save_model
 
@@ -457,15 +457,13 @@ def add_calibration(path: Path, quiet: bool, manifest: Path = DEV, seed: int = 0
         print(f"{name}: no calibration fitted ({int(ex.right.sum())} right, {int((~ex.right).sum())} wrong words)")
         return path
     model.calibration = cal
-    bounds = [b for b in (cal.lower, cal.upper) if b is not None]
-    capped = [n for j, n in enumerate(cal.names) if any(math.isfinite(b[j]) for b in bounds)]
     model.info["calibration"] = {
         "starter": True,
         "made_from": str(manifest.relative_to(REPO)) if manifest.is_relative_to(REPO) else str(manifest),
         "vocabularies": config.vocabularies, "words_per_vocabulary": list(config.words),
         "other_talk_per_vocabulary": config.other_talk, "jumbled_per_vocabulary": config.jumbled,
         "noise_per_vocabulary": config.noise, "seed": seed, "measures": list(cal.names),
-        "cap_quantile": config.cap_quantile, "capped_measures": capped,
+        "cap_quantile": config.cap_quantile, "capped_measures": capped_measures(cal),
         "right_words": int(ex.right.sum()), "wrong_words": int((~ex.right).sum()),
         "built": dt.date.today().isoformat(),
         "command": "python recordings/build_starters.py " + " ".join(sys.argv[1:]),

@@ -69,6 +69,7 @@ __all__ = [
     "MEASURE_SIGNS",
     "DEFAULT_CAP_QUANTILE",
     "contrary_caps",
+    "capped_measures",
     "calibration_measures",
     "held_out_parts",
     "recognised_share",
@@ -1001,12 +1002,12 @@ def train_calibrated(train: Callable, utterances: Sequence, *, config: Calibrati
                         **({"impact_clips": impacts * len(parts), "words_in_impact_clips": n_impacts}
                            if config.impact_clips else {}),
                         "measures": list(calibration.names),
-                        **({"capped_measures": capped} if (capped := _capped(calibration)) else {}),
+                        **({"capped_measures": capped} if (capped := capped_measures(calibration)) else {}),
                         "refit_on_all": bool(config.refit)}})
     return model, summary
 
 
-def _capped(cal: Calibration) -> list[str]:
+def capped_measures(cal: Calibration) -> list[str]:
     """The measures ``cal`` clips on either side."""
     lo = cal.lower if cal.lower is not None else np.full(len(cal.names), -np.inf)
     hi = cal.upper if cal.upper is not None else np.full(len(cal.names), np.inf)

@@ -68,8 +68,8 @@ class ListenSettings:
     early_every: float = 0.2
     early_hold: float = 0.1
     early_span: float = 3.0
-    command_rule: str = "mean"
-    command_confidence: float | None = 0.35
+    command_rule: str = ScanSettings.command_rule
+    command_confidence: float | None = ScanSettings.command_confidence
 
     def __post_init__(self) -> None:
         if not isinstance(self.detector, DetectorSettings):

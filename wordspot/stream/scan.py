@@ -24,7 +24,7 @@ from wordspot.stream.normalise import stretch_features
 from wordspot.util.progress import ProgressBar
 
 __all__ = ["ScanSettings", "FoundWord", "FoundCommand", "ScanResult", "StretchScanner", "scan_file", "scan_files",
-           "group_words", "whole_commands", "judged_words", "decode_stretch", "stretch_commands",
+           "group_words", "whole_commands", "judged_words", "judged_commands", "decode_stretch", "stretch_commands",
            "recognise_stretch", "COMMAND_RULES"]
 
 #: How the confidence threshold judges the words of one command (``ScanSettings.command_rule``).
@@ -183,7 +183,12 @@ def stretch_commands(result, offset: float, threshold: float, settings: ScanSett
     ``threshold`` is the recognizer's (``Recognizer.min_confidence``); it judges whole
     commands unless ``settings.command_confidence`` is set.
     """
-    words = judged_words(result, offset, settings)
+    return judged_commands(judged_words(result, offset, settings), threshold, settings, path)
+
+
+def judged_commands(words, threshold: float, settings: ScanSettings, path: str) -> list[FoundCommand]:
+    """The commands of :func:`judged_words`' ``words`` under ``settings.command_rule`` (see
+    :func:`stretch_commands`)."""
     if settings.command_rule == "word":
         return group_words(path, words, settings.split_pause)
     if settings.command_confidence is not None:
@@ -287,8 +292,8 @@ class StretchScanner:
         result = decode_stretch(self.recognizer, wave, s.normalise_seconds)
         if result is None:
             return []
-        offset = start / self.rate
-        commands = stretch_commands(result, offset, float(self.recognizer.min_confidence), s, self.path)
+        words = judged_words(result, start / self.rate, s)
+        commands = judged_commands(words, float(self.recognizer.min_confidence), s, self.path)
         limit = (now - hold) / self.rate
         complete = [c for c in commands if c.end <= limit]
         # reported once two looks in a row agree on it (a word that one look alone finds in
@@ -305,8 +310,7 @@ class StretchScanner:
         if later:
             cut = min(cut, later[0].start - pad)
         if s.command_rule != "word":  # nor into a command still being said that is weak so far
-            going = [g for g in group_words(self.path, judged_words(result, offset, s), s.split_pause)
-                     if g.end > limit]
+            going = [g for g in group_words(self.path, words, s.split_pause) if g.end > limit]
             if going:
                 cut = min(cut, going[0].start - pad)
         if final:

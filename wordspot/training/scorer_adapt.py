@@ -341,7 +341,7 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
         if hx is not None:
             hx = forward(weights[:n_fixed] + [weights[n_fixed]], biases[:n_fixed] + [biases[n_fixed]], hx)[0][-1]
     tw, tb = weights[n_fixed:], biases[n_fixed:]
-    t = soft_targets(y, np.exp(forward(tw, tb, x)[1]), config.rho, seen)
+    start_w, start_b = [w.copy() for w in tw], [b.copy() for b in tb]
     ht = None if hx is None else soft_targets(hy, np.exp(forward(tw, tb, hx)[1]), config.rho, seen)
     report.train_frames, report.held_out_frames = int(y.size), 0 if hy is None else int(hy.size)
 
@@ -363,7 +363,6 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
     # exactly zero: a product over a subset of rows need not round as the same rows did in a
     # product over all of them, and Adam's step, divided by the gradient's own size, would
     # turn that rounding noise (about 1e-8 in float32, as large as its epsilon) into moves.
-    start_w, start_b = [w.copy() for w in tw], [b.copy() for b in tb]
     for epoch in range(1, config.max_epochs + 1):
         perm = rng.permutation(y.size)
         losses = []
@@ -395,6 +394,7 @@ def adapt_scorer(scorer: StateScorer, frames_list, labels_list, config: ScorerAd
     new_b = tuple(biases[:n_fixed]) + tuple(best[2])
     log_prior = scorer.log_prior
     if config.prior == "adapted" and best[0] > 0:
+        t = soft_targets(y, np.exp(forward(start_w, start_b, x)[1]), config.rho, seen)
         counts = t.sum(axis=0, dtype=np.float64) + config.prior_count
         log_prior = np.log(counts / counts.sum())
     tuned = StateScorer(context=scorer.context, input_mean=scorer.input_mean, input_scale=scorer.input_scale,
