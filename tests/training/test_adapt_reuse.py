@@ -186,3 +186,23 @@ def test_the_strength_can_be_chosen_with_fewer_noisy_copies(shifted, monkeypatch
     seen.clear()
     adapt(many[:50], lex, start, config=AdaptationConfig(**base, calibrate_choosing_model=True), held_out=many[50:])
     assert len(seen[0]) == 2 * 50
+
+
+def test_the_model_does_not_depend_on_how_the_manifest_is_named(tmp_path, monkeypatch):
+    # The noisy copies are seeded by each recording's file, folder name and words, not by
+    # where the folder is: the manifest named relatively from its parent folder and by its
+    # absolute path give the same model bit for bit (before, the whole path was hashed and
+    # the two differed).
+    rng = np.random.default_rng(20261204)
+    manifest, lex_path = make_corpus(tmp_path / "takes", rng, n_utterances=24)
+    start, _ = train(read_manifest(manifest), read_lexicon(lex_path), config=SMALL)
+    cfg = AdaptationConfig(**{**QUICK, "follow_noise_copies": 1}, strength=1, follow_noise_snr=(5.0, 15.0))
+    absolute = read_manifest(manifest)
+    monkeypatch.chdir(tmp_path)
+    relative = read_manifest("takes/train.csv")
+    assert str(relative[0].path) != str(absolute[0].path)  # the same file named two ways
+    lex = read_lexicon(lex_path)
+    a, _ = adapt(absolute, lex, start, config=cfg)
+    b, _ = adapt(relative, lex, start, config=cfg)
+    for x, y in zip(_arrays(a), _arrays(b)):
+        np.testing.assert_array_equal(x, y)

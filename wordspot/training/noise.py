@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import zlib
 from dataclasses import dataclass
+from pathlib import PurePath
 
 import numpy as np
 
@@ -80,8 +81,12 @@ def babble_pool(paths, speakers, *, seed: int, sample_rate: int) -> dict:
 
 
 def recording_key(path, words) -> int:
-    """A number for a recording that depends on its path and transcript alone (CRC-32 of both)."""
-    return zlib.crc32(f"{path}\n{' '.join(words)}".encode("utf-8"))
+    """A number for a recording from its file name, the name of the folder it is in and its
+    transcript (CRC-32 of the three), not from where that folder is: the same recordings
+    give the same copies, so the same model, whether the manifest was named by a relative
+    or an absolute path, from any working directory or copy of the folder."""
+    p = PurePath(str(path))
+    return zlib.crc32(f"{p.parent.name}/{p.name}\n{' '.join(words)}".encode("utf-8"))
 
 
 def plan_copies(speakers, noise: NoiseSettings, *, seed: int, keys=None) -> list[CopyRecipe]:
