@@ -25,6 +25,7 @@ import argparse
 import csv
 import json
 import sys
+import tempfile
 import time
 from dataclasses import replace
 from pathlib import Path
@@ -56,7 +57,7 @@ def one_person_draw(seed: int, rel_path: str) -> starter.StarterDraw:
         tone_pole=lerp((0.95, 0.985), u[6]), mains_hz=50.0)
 
 
-def test_words(words, sentences, lexicon, seed: int = SEED) -> list[str]:
+def chosen_words(words, sentences, lexicon, seed: int = SEED) -> list[str]:
     """``N_WORDS`` common words in no sentence, of two phones or more, in a seeded draw."""
     in_sentences = {w for s in sentences for w in s.split()}
     pool = sorted(w for w in words if w not in in_sentences and len(lexicon[w][0]) >= 2)
@@ -67,7 +68,7 @@ def test_words(words, sentences, lexicon, seed: int = SEED) -> list[str]:
 def make_recordings(data: Path, jobs: int) -> dict:
     """Every talker's sentences and test words in ``data`` (made where missing); the plan."""
     words, sentences, lexicon = starter.read_text()
-    chosen = test_words(words, sentences, lexicon)
+    chosen = chosen_words(words, sentences, lexicon)
     items = []
     for vid, voice in TALKERS.items():
         for i, text in enumerate(sentences):
@@ -77,8 +78,6 @@ def make_recordings(data: Path, jobs: int) -> dict:
             items.append(starter.Item("dev", voice, "word", w, 1, f"{vid}/w-{w}.flac"))
     todo = [it for it in items if not (data / it.rel_path).is_file()]
     if todo:
-        import tempfile
-
         starter.draw_for = one_person_draw  # finish_take reads the draw through this name
         with tempfile.TemporaryDirectory(prefix="one-talker-") as tmp:
             work = Path(tmp)

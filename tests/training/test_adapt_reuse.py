@@ -195,13 +195,13 @@ def test_the_model_does_not_depend_on_how_the_manifest_is_named(tmp_path, monkey
     # the two differed).
     rng = np.random.default_rng(20261204)
     manifest, lex_path = make_corpus(tmp_path / "takes", rng, n_utterances=24)
-    start, _ = train(read_manifest(manifest), read_lexicon(lex_path), config=SMALL)
-    cfg = AdaptationConfig(**{**QUICK, "follow_noise_copies": 1}, strength=1, follow_noise_snr=(5.0, 15.0))
+    lex = read_lexicon(lex_path)
     absolute = read_manifest(manifest)
+    start, _ = train(absolute, lex, config=SMALL)
+    cfg = AdaptationConfig(**{**QUICK, "follow_noise_copies": 1}, strength=1, follow_noise_snr=(5.0, 15.0))
     monkeypatch.chdir(tmp_path)
     relative = read_manifest("takes/train.csv")
     assert str(relative[0].path) != str(absolute[0].path)  # the same file named two ways
-    lex = read_lexicon(lex_path)
     a, _ = adapt(absolute, lex, start, config=cfg)
     b, _ = adapt(relative, lex, start, config=cfg)
     for x, y in zip(_arrays(a), _arrays(b)):
