@@ -412,3 +412,34 @@ def test_impact_items_tune_the_scorer_towards_pause_on_impacts_and_leave_the_mix
 def test_a_bad_scorer_impact_share_is_refused(share):
     with pytest.raises(TrainingError, match="scorer_impacts must be a number from 0 to 1"):
         AdaptationConfig(scorer_impacts=share)
+
+
+def test_an_own_scorer_is_fitted_on_the_recordings_instead_of_tuning(tone_start, tmp_path):
+    from wordspot.training.frame_labels import align_frames
+
+    start, lex, other, _, _ = tone_start
+    own = ScorerConfig(hidden=(24,), context=2, max_epochs=10, learning_rate=0.01, max_frames=20_000)
+    config = replace(QUICK, own_scorer=own, follow_noise_copies=0, follow_speeds=())
+    model, summary = adapt(read_manifest(other), lex, start, config=config)
+    tuned, _ = adapt(read_manifest(other), lex, start, config=replace(config, own_scorer=None))
+    # the mixtures do not depend on the scorer step; the scorer is a new network over the same ids
+    np.testing.assert_array_equal(model.mixtures.means, tuned.mixtures.means)
+    assert model.scorer.n_classes == start.scorer.n_classes and model.scorer.context == 2
+    assert not model.scorer.same_as(start.scorer) and not model.scorer.same_as(tuned.scorer)
+    info = model.info["scorer"]
+    assert info["fitted"] and info["items"] == 16 and "scorer_adaptation" not in model.info
+    assert any(line.startswith("sound scorer: fitted on") for line in summary.lines())
+    # it learned the recordings' own alignment with the adapted mixtures (tones a phone apart:
+    # far above guessing one of the ids; common practice, no source)
+    bare = replace(model, scorer=None)
+    got = align_frames(bare, read_manifest(other))
+    hits = np.concatenate([np.argmax(model.scorer.log_posteriors(x), axis=1) == y
+                           for x, y in zip(got.frames, got.labels)])
+    assert hits.mean() > 0.6
+    back = load_model(save_model(model, tmp_path / "own.model"))
+    assert back.scorer.same_as(model.scorer) and back.info["scorer"] == info
+
+
+def test_a_bad_own_scorer_setting_is_refused():
+    with pytest.raises(TrainingError, match="own_scorer"):
+        AdaptationConfig(own_scorer="yes")

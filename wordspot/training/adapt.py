@@ -72,7 +72,9 @@ from wordspot.training.frame_labels import align_chunk
 from wordspot.training.cluster import using
 from wordspot.training.pronunciations import LearningConfig, learn, learned_note, regraphed, with_learned
 from wordspot.training.items import CHUNK_SIZE
+from wordspot.training.own_scorer import fit_own_scorer
 from wordspot.training.scorer_adapt import ScorerAdaptConfig, adapt_scorer
+from wordspot.training.scorer_fit import ScorerConfig
 from wordspot.training.trainer import TrainingSummary, pass_loglik, pass_statistics
 
 __all__ = [
@@ -211,6 +213,18 @@ class AdaptationConfig:
         the demo set against 0.86). Off by default: on the dev voices over three seeds
         the threshold then dropped more words, in noise many more (20 dB deletions 37-50
         against 17-45; docs/experiments/2026-12-03-adaptation-goals.md).
+    own_scorer : ScorerConfig or None
+        Instead of tuning the starting model's state scorer (``scorer``), fit a new one
+        on the recordings aligned with the adapted mixtures, their speed copies and noisy
+        copies (``follow_speeds``, ``follow_noise_copies``) and the background items, as
+        training from scratch fits its own (:mod:`wordspot.training.own_scorer`); its
+        outputs are the starting model's mixture ids, so the filler's phones the recordings
+        never hold get a posterior of about zero. None (the default): tune. On the
+        benchmark's unheard voices (diagnosis only, no choice made on them) the starter's
+        network, tuned or not, gave near-zero vowel posteriors to accents the starter
+        corpus lacks, and a scorer of the user's own recordings did not; it costs about
+        twice the adaptation's time and is not yet judged on dev material
+        (docs/experiments/2026-12-04-adapted-scorer-unheard-accents.md).
     pronunciations : LearningConfig
         Whether and how to add pronunciations learned from the recordings to the lexicon
         (:mod:`wordspot.training.pronunciations`): candidates scored with the starting
@@ -271,6 +285,7 @@ class AdaptationConfig:
     reuse_first_passes: bool = False
     choose_noise_copies: int | None = 1
     pronunciations: LearningConfig = LearningConfig()
+    own_scorer: ScorerConfig | None = None
 
     def __post_init__(self) -> None:
         if not (np.isfinite(self.prior_weight) and self.prior_weight >= 0):
@@ -311,6 +326,8 @@ class AdaptationConfig:
             raise TrainingError(f"speakers_to_hold_out must be a whole number >= 2, got {v!r}")
         if self.scorer is not None and not isinstance(self.scorer, ScorerAdaptConfig):
             raise TrainingError(f"scorer must be a ScorerAdaptConfig or None, got {self.scorer!r}")
+        if self.own_scorer is not None and not isinstance(self.own_scorer, ScorerConfig):
+            raise TrainingError(f"own_scorer must be a ScorerConfig or None, got {self.own_scorer!r}")
         if not isinstance(self.pronunciations, LearningConfig):
             raise TrainingError(f"pronunciations must be a LearningConfig, got {self.pronunciations!r}")
         v = self.scorer_impacts
@@ -886,7 +903,13 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     summary.adapt_note = strength_note(info["strength"])
     summary.pronunciation_note = learned_note(learned)
     scorer = start.scorer
-    if scorer is not None and config.scorer is not None:
+    if config.own_scorer is not None:
+        scorer, info["scorer"], summary.scorer_note = _own_scorer(start, mix, lexicon, bigrams, info, utterances,
+                                                                  config)
+        if scorer is None:
+            scorer = start.scorer
+            summary.scorer_note += "; kept the starting model's sound scorer as it is"
+    elif scorer is not None and config.scorer is not None:
         # (a scorer reading other inputs is kept as it is: no items to make for it)
         extra = scorer_impact_items(items, utterances, start, config, quiet) if scorer.inputs == "cepstra" else []
         scorer, info["scorer_adaptation"], summary.scorer_note = tune_scorer(start, items, mix, config.scorer,
@@ -900,6 +923,20 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
                           bigrams=bigrams, info=info, scorer=scorer, voice=getattr(start, "voice", None))
     return model, summary
+
+
+def _own_scorer(start: AcousticModel, mix: Mixtures, lexicon: Lexicon, bigrams, info: dict, utterances,
+                config: AdaptationConfig):
+    """A state scorer fitted on ``utterances`` aligned with the adapted mixtures ``mix``
+    (``config.own_scorer``; :func:`wordspot.training.own_scorer.fit_own_scorer`), with the
+    following passes' speed and noisy copies and the adaptation's background items."""
+    bare = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
+                         bigrams=bigrams, info=info, scorer=None, voice=getattr(start, "voice", None))
+    noise = (NoiseSettings(copies=config.follow_noise_copies, snr_db=config.follow_noise_snr)
+             if config.follow_noise_copies else None)
+    return fit_own_scorer(bare, utterances, noise=noise, speeds=config.follow_speeds,
+                          background_share=config.background_share, background_kinds=config.background_kinds,
+                          seed=config.seed, scorer=replace(config.own_scorer, seed=config.seed), jobs=config.jobs)
 
 
 def reusable(base: dict, utterances, lexicon: Lexicon, config: AdaptationConfig, held_out=None) -> bool:
