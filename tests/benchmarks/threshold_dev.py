@@ -33,6 +33,7 @@ from __future__ import annotations
 import argparse
 import sys
 import tempfile
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -480,6 +481,12 @@ def main(argv=None) -> int:
                     help="keep the calibration's model (no adapting again on every recording)")
     ap.add_argument("--choosing-model", action="store_true",
                     help="the calibration on the model the strength was chosen with (calibrate_choosing_model)")
+    ap.add_argument("--own-scorer", type=int, default=0, metavar="FRAMES",
+                    help="adapt with AdaptationConfig.own_scorer: a state scorer fitted on the recordings "
+                         "(training from scratch's size, at most FRAMES training frames) instead of tuning the "
+                         "starter's; 0: tune (the default)")
+    ap.add_argument("--snrs", type=float, nargs="+", default=[10.0],
+                    help="SNRs of the dev commands in noise (without --variants)")
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
                     help="with --variants: thresholds shown in the tables")
     ap.add_argument("--save", type=Path, default=None,
@@ -499,8 +506,14 @@ def main(argv=None) -> int:
     from wordspot.evaluation.calibrate import CalibrationConfig
     from wordspot.evaluation.scoring import align_words
 
+    import time
+
     from posterior_confidence_dev import operating_eer
     from wordspot.training.adapt import AdaptationConfig
+    from wordspot.training.own_scorer import SCRATCH_SCORER
+
+    own = replace(SCRATCH_SCORER, max_frames=args.own_scorer) if args.own_scorer else None
+    seconds = []  # wall time of each training, calibration included
 
     table = {(f, t): [] for f in args.filler_penalty for t in THRESHOLDS}
     eers = {f: [] for f in args.filler_penalty}
@@ -509,15 +522,18 @@ def main(argv=None) -> int:
         manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
         for seed, fp in [(seed, fp) for fp in args.filler_penalty for seed in args.seeds]:
             settings = DecoderSettings(min_confidence=0.0, filler_penalty=fp)
+            t0 = time.perf_counter()
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start=None if args.from_scratch else "starter",
                               config=None if args.from_scratch else AdaptationConfig(
-                                  calibrate_choosing_model=args.choosing_model, jobs=2),
+                                  calibrate_choosing_model=args.choosing_model, own_scorer=own, jobs=2),
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
                                                             **({"refit": False} if args.no_refit else {}),
                                                             **({"speeds": tuple(args.speeds)} if args.speeds else {}),
                                                             **({} if args.jumbled is None else {"jumbled": args.jumbled})))
+            seconds.append(time.perf_counter() - t0)
+            print(f"filler {fp:g}, seed {seed}: trained in {seconds[-1]:.1f} s", file=sys.stderr, flush=True)
             if sets is None:
-                sets = dev_sets(model, 100)
+                sets = dev_sets(model, 100, snrs=tuple(args.snrs), no_command=args.no_command_sets)
             rec = build_recognizer(model, settings=settings)
             heard = {name: [(ref, [(s.word, s.confidence) for s in rec.decode(
                 compute_features(wave, model.features)).segments]) for wave, ref in items]
@@ -537,17 +553,20 @@ def main(argv=None) -> int:
                         a = align_words(ref, kept)
                         errors += a.substitutions + a.deletions + a.insertions
                         words += len(ref)
-                    row.append(100 * errors / words if name in ("words", "phrases", "real phrases") else
+                    row.append(100 * errors / words if name in ("words", "phrases", "real phrases")
+                               or name.startswith("noisy") else
                                100 * right / len(items) if name == "joined" else 100 * (1 - right / len(items)))
                 table[fp, t].append(row)
             print(f"filler {fp:g}, seed {seed} done", file=sys.stderr, flush=True)
     label = {"words": "dev command WER", "joined": "joined files exactly right", "phrases": "phrase stand-ins WER",
              "real phrases": "real phrases WER"}
-    names = [label.get(name, f"{name}: files not exactly right" if name not in ("other talk", "noise only")
+    label.update({name: f"{name} WER" for name in sets if name.startswith("noisy")})
+    names = [label.get(name, f"{name}: files not exactly right" if name not in NO_COMMAND
                        else f"{name}: files with a command") for name in sets]
     for fp, e in eers.items():
         print(f"filler {fp:g}: EER of the dev commands against the no-command files {np.mean(e):.1f}% "
               f"({min(e):.1f}-{max(e):.1f}); per seed " + ", ".join(f"{v:.1f}" for v in e))
+    print(f"training wall time, calibration included: " + ", ".join(f"{v:.1f}" for v in seconds) + " s")
     print(f"seeds {args.seeds}: mean (min-max)")
     print("| filler penalty | threshold | " + " | ".join(names) + " |")
     print("| ---: | ---: |" + " ---: |" * len(names))
