@@ -49,9 +49,10 @@ def assert_same(a: AcousticModel, b: AcousticModel):
     assert (a.calibration is None) == (b.calibration is None)
     if a.calibration is not None:
         assert a.calibration.to_dict() == b.calibration.to_dict()
-    assert (a.scorer is None) == (b.scorer is None)
-    if a.scorer is not None:
-        assert a.scorer.same_as(b.scorer)
+    for key in ("scorer", "own_scorer"):
+        assert (getattr(a, key) is None) == (getattr(b, key) is None)
+        if getattr(a, key) is not None:
+            assert getattr(a, key).same_as(getattr(b, key))
 
 
 def test_round_trip_is_identical(model, tmp_path):
@@ -476,6 +477,37 @@ def test_scorer_must_fit_the_model(model, rng, tmp_path):
     path = save_model(replace(model, scorer=small), tmp_path / "m.model")
     with pytest.raises(ModelFileError, match=rf"m\.model: the state scorer has {p} classes .* the model has {p + 1} "
                                              r"mixtures.*wordspot train"):
+        load_model(path)
+
+
+def _with_two_scorers(model, rng):
+    first = _with_scorer(model, rng)
+    return replace(first, own_scorer=_with_scorer(model, rng, hidden=(4,), context=1).scorer)
+
+
+def test_a_second_scorer_round_trips_under_its_own_names(model, rng, tmp_path):
+    both = _with_two_scorers(model, rng)
+    path = save_model(both, tmp_path / "m.model")
+    with np.load(path, allow_pickle=False) as data:
+        header = json.loads(data["header"].tobytes().decode())
+        assert header["own_scorer"] == {"context": 1, "layers": 2, "hidden": "relu"}
+        assert {"own_scorer_input_mean", "own_scorer_weight_1", "own_scorer_bias_1"} <= set(data.files)
+    back = load_model(path)
+    assert_same(both, back)
+    assert back.own_scorer.same_as(both.own_scorer) and not back.own_scorer.same_as(back.scorer)
+    assert load_model(save_model(model, tmp_path / "plain.model")).own_scorer is None
+
+
+@pytest.mark.parametrize("change, match", [
+    (lambda a, h: a.pop("own_scorer_bias_1"), "does not hold the expected tables"),
+    (lambda a, h: h.pop("own_scorer"), "does not hold the expected tables"),
+    (lambda a, h: a.update(own_scorer_weight_0=a["own_scorer_weight_0"][:-1]), r"state scorer is malformed"),
+    (lambda a, h: h["own_scorer"].update(hidden="tanh"), "state scorer entry this wordspot cannot use"),
+])
+def test_a_damaged_second_scorer_is_refused_naming_the_file(model, rng, tmp_path, change, match):
+    path = save_model(_with_two_scorers(model, rng), tmp_path / "m.model")
+    _rewrite_checked(path, change)
+    with pytest.raises(ModelFileError, match=rf"m\.model: .*{match}.*wordspot train"):
         load_model(path)
 
 

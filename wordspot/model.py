@@ -18,7 +18,9 @@ float32 arrays ``scorer_input_mean``, ``scorer_input_scale``, ``scorer_log_prior
 ``scorer_weight_<k>`` / ``scorer_bias_<k>`` for each layer ``k``, with header key
 ``scorer`` (``context``, ``layers``, ``hidden``: the activation; ``inputs`` when the
 network reads other frames than the model's features, e.g. ``log-mel``, absent =
-``cepstra``); absent = no scorer, so files without one load unchanged. The optional voice
+``cepstra``); absent = no scorer, so files without one load unchanged. A second network
+(``own_scorer``, fitted on the user's recordings alone) is stored the same way with the
+prefix and header key ``own_scorer``. The optional voice
 mixture (:class:`wordspot.audio.voice_warp.VoiceMixture`, the judge of a recording's
 frequency warp) is stored as float64 arrays ``voice_weights``, ``voice_means`` and
 ``voice_variances`` with header key ``voice`` (``components``); absent = none, and
@@ -92,6 +94,10 @@ class AcousticModel:
     scorer : StateScorer or None
         A network giving the posterior of every mixture id from a window of frames, used
         by the search when the decoder settings ask for it; None: the mixtures alone.
+    own_scorer : StateScorer or None
+        A second such network, fitted on the user's recordings alone (an adapted model's,
+        beside the starter's tuned ``scorer``); it gives the confidence measures
+        ``confidence.OWN_POSTERIOR_MEASURE_NAMES`` and never enters the search.
     voice : VoiceMixture or None
         A mixture of the training speech's features, by which recognition chooses each
         recording's frequency warp (:mod:`wordspot.audio.voice_warp`); None: no warp.
@@ -106,6 +112,7 @@ class AcousticModel:
     calibration: Calibration | None = None
     scorer: StateScorer | None = None
     voice: VoiceMixture | None = None
+    own_scorer: StateScorer | None = None
 
 
 _VOICE_NAMES = ("voice_weights", "voice_means", "voice_variances")
@@ -116,27 +123,33 @@ _SCORER_HIDDEN = "relu"
 _SCORER_MAX_LAYERS = 16
 
 
-def _scorer_arrays(scorer: StateScorer) -> dict[str, np.ndarray]:
-    out = {"scorer_input_mean": scorer.input_mean, "scorer_input_scale": scorer.input_scale,
-           "scorer_log_prior": scorer.log_prior}
+#: The two networks' table prefixes and header keys.
+_SCORER_KEYS = ("scorer", "own_scorer")
+
+
+def _scorer_arrays(scorer: StateScorer, key: str = "scorer") -> dict[str, np.ndarray]:
+    out = {f"{key}_input_mean": scorer.input_mean, f"{key}_input_scale": scorer.input_scale,
+           f"{key}_log_prior": scorer.log_prior}
     for k, (w, b) in enumerate(zip(scorer.weights, scorer.biases)):
-        out[f"scorer_weight_{k}"] = w
-        out[f"scorer_bias_{k}"] = b
+        out[f"{key}_weight_{k}"] = w
+        out[f"{key}_bias_{k}"] = b
     return {name: np.ascontiguousarray(a, dtype=np.float32) for name, a in out.items()}
 
 
-def _scorer_names(layers: int) -> set[str]:
-    return ({"scorer_input_mean", "scorer_input_scale", "scorer_log_prior"}
-            | {f"scorer_{kind}_{k}" for kind in ("weight", "bias") for k in range(layers)})
+def _scorer_names(layers: int, key: str = "scorer") -> set[str]:
+    return ({f"{key}_input_mean", f"{key}_input_scale", f"{key}_log_prior"}
+            | {f"{key}_{kind}_{k}" for kind in ("weight", "bias") for k in range(layers)})
 
 
 def _arrays(model: AcousticModel) -> dict[str, np.ndarray]:
     u, m = model.units, model.mixtures
-    scorer = getattr(model, "scorer", None)
     voice = getattr(model, "voice", None)
     extra = {} if voice is None else dict(zip(_VOICE_NAMES, (
         np.ascontiguousarray(a, dtype=np.float64) for a in (voice.weights, voice.means, voice.variances))))
-    return {**({} if scorer is None else _scorer_arrays(scorer)), **extra,
+    for key in _SCORER_KEYS:
+        if getattr(model, key, None) is not None:
+            extra.update(_scorer_arrays(getattr(model, key), key))
+    return {**extra,
         "unit_n_states": np.ascontiguousarray(u.n_states, dtype=np.int64),
         "unit_state_mixture": np.ascontiguousarray(u.state_mixture, dtype=np.int64),
         "unit_trans": np.ascontiguousarray(u.trans, dtype=np.float64),
@@ -196,11 +209,12 @@ def save_model(model: AcousticModel, path) -> Path:
     }
     if model.calibration is not None:
         header["calibration"] = model.calibration.to_dict()
-    if getattr(model, "scorer", None) is not None:
-        header["scorer"] = {"context": int(model.scorer.context), "layers": len(model.scorer.weights),
-                            "hidden": _SCORER_HIDDEN}
-        if model.scorer.inputs != INPUT_KINDS[0]:  # absent = cepstra, so such files stay as before
-            header["scorer"]["inputs"] = model.scorer.inputs
+    for key in _SCORER_KEYS:
+        net = getattr(model, key, None)
+        if net is not None:
+            header[key] = {"context": int(net.context), "layers": len(net.weights), "hidden": _SCORER_HIDDEN}
+            if net.inputs != INPUT_KINDS[0]:  # absent = cepstra, so such files stay as before
+                header[key]["inputs"] = net.inputs
     if getattr(model, "voice", None) is not None:
         header["voice"] = {"components": model.voice.n_components}
     try:
@@ -268,8 +282,9 @@ def load_model(path) -> AcousticModel:
     renamed = _RENAMED_IN_VERSION_2 if version == 1 else {}
     written_as = {new: old for old, new in renamed.items()}
     expected = {written_as.get(name, name) for name in _ARRAY_NAMES}
-    if "scorer" in header:
-        expected |= _scorer_names(_scorer_layers(p, header["scorer"]))
+    for key in _SCORER_KEYS:
+        if key in header:
+            expected |= _scorer_names(_scorer_layers(p, header[key]), key)
     if "voice" in header:
         expected |= set(_VOICE_NAMES)
     if set(arrays) != expected:
@@ -295,15 +310,15 @@ def _scorer_layers(p: Path, settings) -> int:
     return layers
 
 
-def _build_scorer(p: Path, settings: dict, a: dict, n_mixtures: int, dim: int) -> StateScorer:
+def _build_scorer(p: Path, settings: dict, a: dict, n_mixtures: int, dim: int, key: str = "scorer") -> StateScorer:
     context = settings.get("context")
     inputs = settings.get("inputs", INPUT_KINDS[0])
     if type(context) is not int or settings.get("hidden") != _SCORER_HIDDEN or inputs not in INPUT_KINDS:
         raise _damaged(p, f"has a state scorer entry this wordspot cannot use ({settings})")
     layers = _scorer_layers(p, settings)
-    arrays = [a["scorer_input_mean"], a["scorer_input_scale"], a["scorer_log_prior"]]
-    weights = [a[f"scorer_weight_{k}"] for k in range(layers)]
-    biases = [a[f"scorer_bias_{k}"] for k in range(layers)]
+    arrays = [a[f"{key}_input_mean"], a[f"{key}_input_scale"], a[f"{key}_log_prior"]]
+    weights = [a[f"{key}_weight_{k}"] for k in range(layers)]
+    biases = [a[f"{key}_bias_{k}"] for k in range(layers)]
     if any(x.dtype != np.float32 for x in arrays + weights + biases):
         raise _damaged(p, "holds state scorer tables that are not float32")
     try:
@@ -357,14 +372,13 @@ def _build(p: Path, header: dict, a: dict) -> AcousticModel:
             calibration = Calibration.from_dict(header["calibration"])
         except ValueError as exc:
             raise ModelFileError(f"{p}: the confidence calibration is malformed ({exc}); {_RETRAIN}") from None
-    scorer = None
-    if "scorer" in header:
-        scorer = _build_scorer(p, header["scorer"], a, units.n_mixtures, features.dim)
+    scorer, own = (_build_scorer(p, header[key], a, units.n_mixtures, features.dim, key) if key in header else None
+                   for key in _SCORER_KEYS)
     voice = None
     if "voice" in header:
         voice = _build_voice(p, header["voice"], a, features.dim)
     return AcousticModel(features, units, Mixtures(w, mu, var), lexicon, BigramCounts(words, counts),
-                         dict(info) if isinstance(info, dict) else {}, calibration, scorer, voice)
+                         dict(info) if isinstance(info, dict) else {}, calibration, scorer, voice, own)
 
 
 def _build_voice(p: Path, settings, a: dict, dim: int) -> VoiceMixture:

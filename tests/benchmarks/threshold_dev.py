@@ -485,6 +485,9 @@ def main(argv=None) -> int:
                     help="adapt with AdaptationConfig.own_scorer: a state scorer fitted on the recordings "
                          "(training from scratch's size, at most FRAMES training frames) instead of tuning the "
                          "starter's; 0: tune (the default)")
+    ap.add_argument("--own-role", choices=("instead", "beside"), default="instead",
+                    help="with --own-scorer: the network instead of tuning the starter's, or beside it "
+                         "(AdaptationConfig.own_scorer_role)")
     ap.add_argument("--snrs", type=float, nargs="+", default=[10.0],
                     help="SNRs of the dev commands in noise (without --variants)")
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
@@ -525,7 +528,8 @@ def main(argv=None) -> int:
             t0 = time.perf_counter()
             model = api.train(manifest, REPO / "lexicon" / "bakery.txt", start=None if args.from_scratch else "starter",
                               config=None if args.from_scratch else AdaptationConfig(
-                                  calibrate_choosing_model=args.choosing_model, own_scorer=own, jobs=2),
+                                  calibrate_choosing_model=args.choosing_model, own_scorer=own,
+                                  own_scorer_role=args.own_role, jobs=2),
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
                                                             **({"refit": False} if args.no_refit else {}),
                                                             **({"speeds": tuple(args.speeds)} if args.speeds else {}),

@@ -18,7 +18,8 @@ from wordspot.util.logistic import Calibration
 
 ENTRIES = {"bat": [["B", "AA", "T"]], "sack": [["S", "AA", "K"]], "tab": [["T", "AA", "B"]]}
 TRANSCRIPTS = [["bat", "tab"], ["sack"], ["tab", "bat"]]
-POST = slice(len(BASE_MEASURE_NAMES), len(MEASURE_NAMES))
+POST = slice(len(BASE_MEASURE_NAMES), len(BASE_MEASURE_NAMES) + len(POSTERIOR_MEASURE_NAMES))
+OWN = slice(POST.stop, len(MEASURE_NAMES))
 
 
 def random_scorer(rng, n_classes, dim=39, context=1, hidden=(10,)):
@@ -88,7 +89,7 @@ def test_measures_follow_a_naive_computation_along_the_words_path(bat, rng):
     worst_any = min(sum(v) / len(v) for v in any_vowel.values())
     ordered = sorted(phone_means)
     assert seg.measures[len(BASE_MEASURE_NAMES) + 4] == pytest.approx(worst_any, rel=1e-6, abs=1e-6)
-    assert seg.measures[len(BASE_MEASURE_NAMES) + 6:] == pytest.approx(
+    assert seg.measures[len(BASE_MEASURE_NAMES) + 6:POST.stop] == pytest.approx(
         (ordered[1], (ordered[0] + ordered[1]) / 2, max(ordered[0], WORST_PHONE_FLOOR)), rel=1e-6, abs=1e-6)
     assert MEASURE_NAMES[POST] == POSTERIOR_MEASURE_NAMES
 
@@ -167,7 +168,8 @@ def test_a_calibration_over_the_older_posterior_measures_reads_the_same_values(b
                                   tmp_path / "older.model"))
     assert saved.calibration.names == older
     seg = build_recognizer(saved, settings=DecoderSettings(min_confidence=0.0)).decode(frames).segments[0]
-    assert len(seg.measures) == len(MEASURE_NAMES) and np.isfinite(seg.measures).all()
+    assert len(seg.measures) == len(MEASURE_NAMES) and np.isfinite(seg.measures[:POST.stop]).all()
+    assert np.isnan(seg.measures[OWN]).all()  # no second network
     assert seg.confidence == pytest.approx(float(cal.predict(np.array(seg.measures[:12]))), rel=1e-12)
 
 
@@ -259,3 +261,22 @@ def test_word_path_pieces_agree_when_threads_make_them_together(bat, monkeypatch
     assert not errors, errors
     assert got[0][0] is got[1][0]
     assert all(np.array_equal(a, b) for a, b in zip(got[0][1], got[1][1]))
+
+
+def test_a_second_network_gives_the_own_measures_it_would_give_alone(bat, rng, tmp_path):
+    model, frames = bat
+    first, second = (random_scorer(rng, model.mixtures.n_mixtures) for _ in range(2))
+    assert [n[len("own_"):] for n in MEASURE_NAMES[OWN]] == list(POSTERIOR_MEASURE_NAMES)
+    both = replace(model, scorer=first, own_scorer=second)
+    got = build_recognizer(both).decode(frames).segments
+    plain = build_recognizer(replace(model, scorer=first)).decode(frames).segments
+    alone = build_recognizer(replace(model, scorer=second)).decode(frames).segments
+    assert [s.word for s in got] == [s.word for s in plain] == [s.word for s in alone] == ["bat"]
+    m, p, a = (np.array(x[0].measures) for x in (got, plain, alone))
+    np.testing.assert_array_equal(m[:POST.stop], p[:POST.stop])  # the first network's measures unchanged
+    np.testing.assert_array_equal(m[OWN], a[POST])  # the second's, as if it were the model's only one
+    assert np.isfinite(m[OWN]).all() and np.isnan(p[OWN]).all() and not np.array_equal(m[OWN], m[POST])
+    # the file keeps both networks
+    back = load_model(save_model(both, tmp_path / "both.model"))
+    again = build_recognizer(back).decode(frames).segments[0]
+    np.testing.assert_array_equal(np.array(again.measures), m)

@@ -72,7 +72,8 @@ def _examples(right, wrong, recordings=40, rng=None, posteriors=False):
                           rng.normal([-3.0, -3.2, -5.0, -2.0, -4.5, -4.8, -3.5, -4.2, -4.0], 0.5, size=(wrong, 9))])
     else:  # a model without a state scorer: NaN
         post = np.full((right + wrong, 9), np.nan)
-    return CalibrationExamples(np.hstack([np.vstack([good, bad]), post]), labels, ~labels, recordings=recordings)
+    own = np.full((right + wrong, 9), np.nan)  # no second network (own_ measures)
+    return CalibrationExamples(np.hstack([np.vstack([good, bad]), post, own]), labels, ~labels, recordings=recordings)
 
 
 def test_fit_needs_both_kinds_of_word():

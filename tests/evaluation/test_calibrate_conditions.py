@@ -9,7 +9,7 @@ import pytest
 
 from wordspot.audio.augment import measured_snr, speech_span
 from wordspot.corpus import Utterance
-from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES
+from wordspot.decoding.confidence import MEASURE_NAMES
 from wordspot.errors import TrainingError
 from wordspot.evaluation.calibrate import (SOURCES, CalibrationConfig, calibration_examples, clips_of_impacts,
                                            fit_calibration, joined_phrases, noise_only_clips, noisy_copies)
@@ -229,7 +229,7 @@ def test_training_asks_for_the_new_kinds_only_when_configured(monkeypatch):
         source = np.where(right, "noisy", "noise only") if kw["noisy"] else np.where(right, "held-out", "jumbled")
         if kw["impact_clips"]:
             source = np.where(right, source, np.where(np.arange(n) % 4 == 1, "impacts", source))
-        x = np.c_[rng.normal(right * 2.0, 1.0, size=(8, n)).T, np.full((n, len(POSTERIOR_MEASURE_NAMES)), np.nan)]
+        x = np.c_[rng.normal(right * 2.0, 1.0, size=(8, n)).T, np.full((n, len(MEASURE_NAMES) - 8), np.nan)]
         return CalibrationExamples(x, right, ~right, source == "jumbled", recordings=len(held), source=source)
 
     monkeypatch.setattr(calibrate, "calibration_examples", fake_examples)

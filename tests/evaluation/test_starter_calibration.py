@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from wordspot.corpus import read_manifest
-from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES
+from wordspot.decoding.confidence import BASE_MEASURE_NAMES, POSTERIOR_MEASURE_NAMES, MEASURE_NAMES
 from wordspot.errors import TrainingError
 from wordspot.evaluation.calibrate import calibration_measures
 from wordspot.evaluation.starter_calibration import (StarterCalibrationConfig, fit_starter_calibration,
@@ -41,9 +41,11 @@ def test_examples_label_only_the_vocabularys_own_recordings_right(starter_and_ta
     assert ex.right.sum() >= 4
     assert not (ex.right & ex.own_words_removed).any()
     assert not ex.right[ex.jumbled].any()
-    # the posterior measures are NaN without a state scorer in the starter, finite with one
-    post = ex.measures[:, len(BASE_MEASURE_NAMES):]
+    # the posterior measures are NaN without a state scorer in the starter, finite with one;
+    # a starter has no second network
+    post = ex.measures[:, len(BASE_MEASURE_NAMES):len(BASE_MEASURE_NAMES) + len(POSTERIOR_MEASURE_NAMES)]
     assert np.isnan(post).all() if model.scorer is None else np.isfinite(post).all()
+    assert np.isnan(ex.measures[:, len(BASE_MEASURE_NAMES) + len(POSTERIOR_MEASURE_NAMES):]).all()
     # the same seed gives the same examples
     again = starter_calibration_examples(model, utts, config)
     np.testing.assert_array_equal(again.measures, ex.measures)

@@ -414,12 +414,14 @@ def test_a_bad_scorer_impact_share_is_refused(share):
         AdaptationConfig(scorer_impacts=share)
 
 
+OWN = ScorerConfig(hidden=(24,), context=2, max_epochs=10, learning_rate=0.01, max_frames=20_000)
+
+
 def test_an_own_scorer_is_fitted_on_the_recordings_instead_of_tuning(tone_start, tmp_path):
     from wordspot.training.frame_labels import align_frames
 
     start, lex, other, _, _ = tone_start
-    own = ScorerConfig(hidden=(24,), context=2, max_epochs=10, learning_rate=0.01, max_frames=20_000)
-    config = replace(QUICK, own_scorer=own, follow_noise_copies=0, follow_speeds=())
+    config = replace(QUICK, own_scorer=OWN, own_scorer_role="instead", follow_noise_copies=0, follow_speeds=())
     model, summary = adapt(read_manifest(other), lex, start, config=config)
     tuned, _ = adapt(read_manifest(other), lex, start, config=replace(config, own_scorer=None))
     # the mixtures do not depend on the scorer step; the scorer is a new network over the same ids
@@ -428,6 +430,7 @@ def test_an_own_scorer_is_fitted_on_the_recordings_instead_of_tuning(tone_start,
     assert not model.scorer.same_as(start.scorer) and not model.scorer.same_as(tuned.scorer)
     info = model.info["scorer"]
     assert info["fitted"] and info["items"] == 16 and "scorer_adaptation" not in model.info
+    assert model.own_scorer is None
     assert any(line.startswith("sound scorer: fitted on") for line in summary.lines())
     # it learned the recordings' own alignment with the adapted mixtures (tones a phone apart:
     # far above guessing one of the ids; common practice, no source)
@@ -440,6 +443,24 @@ def test_an_own_scorer_is_fitted_on_the_recordings_instead_of_tuning(tone_start,
     assert back.scorer.same_as(model.scorer) and back.info["scorer"] == info
 
 
-def test_a_bad_own_scorer_setting_is_refused():
-    with pytest.raises(TrainingError, match="own_scorer"):
-        AdaptationConfig(own_scorer="yes")
+def test_an_own_scorer_beside_keeps_the_tuned_one_and_round_trips(tone_start, tmp_path):
+    start, lex, other, _, _ = tone_start
+    config = replace(QUICK, own_scorer=OWN, follow_noise_copies=0, follow_speeds=())
+    assert config.own_scorer_role == "beside"
+    model, summary = adapt(read_manifest(other), lex, start, config=config)
+    tuned, _ = adapt(read_manifest(other), lex, start, config=replace(config, own_scorer=None))
+    # the tuned starter's network is the one the default gives; the second is the one fitted
+    # "instead" (same recordings, mixtures and seed)
+    assert model.scorer.same_as(tuned.scorer) and tuned.own_scorer is None
+    instead, _ = adapt(read_manifest(other), lex, start, config=replace(config, own_scorer_role="instead"))
+    assert model.own_scorer.same_as(instead.scorer)
+    assert model.info["own_scorer"]["fitted"] and model.info["scorer_adaptation"]["tuned"]
+    assert any("a second sound scorer: fitted on" in line for line in summary.lines())
+    back = load_model(save_model(model, tmp_path / "both.model"))
+    assert back.scorer.same_as(model.scorer) and back.own_scorer.same_as(model.own_scorer)
+
+
+@pytest.mark.parametrize("field, value", [("own_scorer", "yes"), ("own_scorer_role", "both")])
+def test_a_bad_own_scorer_setting_is_refused(field, value):
+    with pytest.raises(TrainingError, match=field):
+        AdaptationConfig(**{field: value})

@@ -35,7 +35,9 @@ filler is the decoder's). Four of them soften the worst phone for speakers whose
 not the lexicon's (an accent moves a vowel to a neighbouring one): on a vowel's frames the
 best vowel's posterior, or the summed posterior of the vowels of its broad class
 (:data:`VOWEL_CLASSES`), stands in for the listed vowel's; the second-worst phone; the mean
-of the two worst; the worst clipped at :data:`WORST_PHONE_FLOOR`.
+of the two worst; the worst clipped at :data:`WORST_PHONE_FLOOR`. A model with a second
+network (``own_scorer``, fitted on the user's recordings alone) gives the same measures from
+it as :data:`OWN_POSTERIOR_MEASURE_NAMES`.
 
 Without the filler (``--no-filler``) or with a one-word vocabulary the margins are
 undefined (NaN) and the confidence is the heuristic.
@@ -59,6 +61,7 @@ __all__ = [
     "MEASURE_NAMES",
     "BASE_MEASURE_NAMES",
     "POSTERIOR_MEASURE_NAMES",
+    "OWN_POSTERIOR_MEASURE_NAMES",
     "NO_POSTERIORS",
     "CONFIDENCE_SCALE",
     "DEFAULT_MIN_CONFIDENCE",
@@ -85,6 +88,10 @@ POSTERIOR_MEASURE_NAMES = ("posterior_mean", "posterior_phone_mean", "posterior_
                            "posterior_worst_phone_vowel_class", "posterior_second_worst_phone",
                            "posterior_two_worst_phones", "posterior_worst_phone_floored")
 
+#: The same measures from a second network fitted on the user's recordings alone (a model's
+#: ``own_scorer``, beside the tuned starter's ``scorer``); NaN for a model without one.
+OWN_POSTERIOR_MEASURE_NAMES = tuple("own_" + name for name in POSTERIOR_MEASURE_NAMES)
+
 #: ARPAbet vowels by broad class, front / central / back by where the vowel starts (the usual
 #: vowel chart of American English; from memory). A diphthong goes with its first part.
 VOWEL_CLASSES = {
@@ -100,9 +107,9 @@ VOWEL_CLASSES = {
 WORST_PHONE_FLOOR = -4.0
 
 #: The measures :func:`word_measures` returns, in order; a calibration names the ones it uses.
-MEASURE_NAMES = BASE_MEASURE_NAMES + POSTERIOR_MEASURE_NAMES
+MEASURE_NAMES = BASE_MEASURE_NAMES + POSTERIOR_MEASURE_NAMES + OWN_POSTERIOR_MEASURE_NAMES
 
-#: The posterior measures of a word when the model has no state scorer.
+#: The posterior measures of a word when the model has no state scorer (or no second one).
 NO_POSTERIORS = (float("nan"),) * len(POSTERIOR_MEASURE_NAMES)
 
 #: Nats per frame by which a word may trail the best free state before its heuristic
@@ -123,7 +130,8 @@ DEFAULT_MIN_CONFIDENCE = 0.05
 def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_end: int, end: int,
                   n_phones: int, filler_margin: float = float("nan"), runner_up_margin: float = float("nan"),
                   next_to_filler: int = 0, phone_filler_margin: float = float("nan"),
-                  posterior: Sequence[float] = NO_POSTERIORS) -> tuple[float, ...]:
+                  posterior: Sequence[float] = NO_POSTERIORS,
+                  own_posterior: Sequence[float] = NO_POSTERIORS) -> tuple[float, ...]:
     """The measures of one recognised word, in the order of :data:`MEASURE_NAMES`.
 
     Parameters
@@ -144,12 +152,14 @@ def word_measures(*, acoustic: float, best_free: np.ndarray, start: int, phone_e
         Mean per-phone margin over the filler (see the module docstring).
     posterior : sequence of floats
         The measures of :data:`POSTERIOR_MEASURE_NAMES` (NaN without a state scorer).
+    own_posterior : sequence of floats
+        The same from the model's second network (:data:`OWN_POSTERIOR_MEASURE_NAMES`).
     """
     span = end - start + 1
     free_margin = (acoustic - (best_free[end + 1] - best_free[start])) / span
     return (acoustic / span, float(free_margin), math.log((phone_end - start + 1) / n_phones),
             float(filler_margin), float(runner_up_margin), float(next_to_filler), float(n_phones),
-            float(phone_filler_margin)) + tuple(float(v) for v in posterior)
+            float(phone_filler_margin)) + tuple(float(v) for v in posterior) + tuple(float(v) for v in own_posterior)
 
 
 def path_posterior_measures(on_path: np.ndarray, phones: np.ndarray, any_vowel: np.ndarray,

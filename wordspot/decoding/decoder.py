@@ -317,6 +317,7 @@ class Recognizer:
     calibration: object = None
     scorer: object = None  # the model's StateScorer when the settings give it a weight, else None
     posterior_scorer: object = None  # the model's StateScorer for the posterior measures (any weight)
+    own_posterior_scorer: object = None  # the model's second network (own_scorer), for the own_ measures
     voice: object = None  # the model's VoiceMixture when the settings ask for a warp per file, else None
     _scoring: tuple | None = field(default=None, repr=False)
     _pieces: tuple | None = field(default=None, repr=False)
@@ -537,7 +538,8 @@ class Recognizer:
 
         Returns ``(ll, lp)``: ``lp`` (T, P) float64 holds ``log P(state | window)`` in the
         network's mixture columns, or is None when the model has no state scorer (or
-        ``posteriors`` is False).
+        ``posteriors`` is False); with a second network (the model's ``own_scorer``) it is
+        the pair ``(lp, lp_own)``, the second computed the same way from that network.
         """
         s = self.settings
         w = float(s.scorer_weight) if self.scorer is not None else 0.0
@@ -556,6 +558,9 @@ class Recognizer:
                 net -= scorer.log_prior[cols]
                 if s.scorer_scale * w != 1.0:
                     net *= net.dtype.type(s.scorer_scale * w)
+        if posteriors and self.own_posterior_scorer is not None:
+            lp = (lp, self.own_posterior_scorer.column_log_posteriors(frames, self.network.used_mixtures,
+                                                                      work=work_array))
         if w >= 1.0:
             return net.astype(np.float64), lp
         gmm = self._mixture_scores(frames)
@@ -601,6 +606,7 @@ class Recognizer:
         mine, theirs = self.mixtures, other.mixtures
         return (self.settings == other.settings and self.scorer is other.scorer
                 and self.posterior_scorer is other.posterior_scorer
+                and self.own_posterior_scorer is other.own_posterior_scorer
                 and np.array_equal(self.network.used_mixtures, other.network.used_mixtures)
                 and all(np.array_equal(a, b) for a, b in ((mine.weights, theirs.weights), (mine.means, theirs.means),
                                                           (mine.variances, theirs.variances))))
@@ -640,10 +646,12 @@ class Recognizer:
             Column ``j`` scores mixture ``network.used_mixtures[j]`` of the model.
         kernel : callable, optional
             :func:`wordspot.decoding.kernels.decode` (default) or its reference version.
-        posteriors : ndarray, shape (T, P), optional
+        posteriors : ndarray, shape (T, P), or pair of them, optional
             The state scorer's log posteriors in the same columns (see
             :meth:`emissions_and_posteriors`), for the posterior measures; None: those are NaN.
+            A pair ``(lp, lp_own)`` adds the second network's for the ``own_`` measures.
         """
+        posteriors, own_posteriors = posteriors if isinstance(posteriors, tuple) else (posteriors, None)
         net = self.network
         kernel = kernel or decode_kernels.decode
         ll = np.asarray(ll, dtype=np.float64)
@@ -689,7 +697,9 @@ class Recognizer:
                                      next_to_filler=int(is_filler[i - 1]) + int(is_filler[i + 1]),
                                      phone_filler_margin=self.phone_margin(ll, pron, start, phone_end, route),
                                      posterior=NO_POSTERIORS if posteriors is None else
-                                     self.posterior_measures(posteriors, start, phone_end, route))
+                                     self.posterior_measures(posteriors, start, phone_end, route),
+                                     own_posterior=NO_POSTERIORS if own_posteriors is None else
+                                     self.posterior_measures(own_posteriors, start, phone_end, route))
             result.segments.append(
                 WordSegment(
                     word=net.words[word - 1],
@@ -840,11 +850,18 @@ def build_recognizer(model, *, settings: DecoderSettings | None = None, lexicon=
                             "compute yet (only the cepstra the model's features are); use a model whose scorer "
                             "reads cepstra, such as the shipped starters")
     fits = own is not None and own.n_classes == mix.n_mixtures and own.frame_dim == mix.dim
+    second = getattr(model, "own_scorer", None)
+    if second is not None and not (second.inputs == "cepstra" and second.n_classes == mix.n_mixtures
+                                   and second.frame_dim == mix.dim):
+        raise DecodingError(f"the model's second state scorer has {second.n_classes} classes over {second.inputs} "
+                            f"frames of {second.frame_dim} values, but the model has {mix.n_mixtures} mixtures and "
+                            f"cepstra of {mix.dim}; train the model again")
     voice = getattr(model, "voice", None) if settings.voice_warp else None
     if voice is not None and voice.dim != mix.dim:
         raise DecodingError(f"the model's voice mixture has frames of {voice.dim} values, its mixtures {mix.dim}")
     return Recognizer(network=net, mixtures=sub, features=feats, settings=settings, hop=hop,
-                      calibration=calibration, scorer=scorer, posterior_scorer=own if fits else None, voice=voice)
+                      calibration=calibration, scorer=scorer, posterior_scorer=own if fits else None,
+                      own_posterior_scorer=second, voice=voice)
 
 
 def recognize_features(model, frames, *, settings: DecoderSettings | None = None, lexicon=None,

@@ -42,7 +42,8 @@ from typing import Callable, Iterator, Sequence
 import numpy as np
 
 from wordspot.audio.augment import snr_range
-from wordspot.decoding.confidence import BASE_MEASURE_NAMES, MEASURE_NAMES, POSTERIOR_MEASURE_NAMES
+from wordspot.decoding.confidence import (BASE_MEASURE_NAMES, MEASURE_NAMES, OWN_POSTERIOR_MEASURE_NAMES,
+                                           POSTERIOR_MEASURE_NAMES)
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.errors import TrainingError, TrainingWarning, WordspotError
 from wordspot.evaluation.reliability import word_hits
@@ -134,7 +135,7 @@ MEASURE_SIGNS = {
     "phone_filler_margin": +1,
     # the state scorer's log posteriors along the word's path (higher: the scorer agrees
     # more with the word's states) and its margin over the filler
-    **{name: +1 for name in POSTERIOR_MEASURE_NAMES},
+    **{name: +1 for name in POSTERIOR_MEASURE_NAMES + OWN_POSTERIOR_MEASURE_NAMES},
 }
 
 
@@ -151,12 +152,15 @@ DEFAULT_CAP_QUANTILE = 0.95
 def calibration_measures(measures: np.ndarray) -> tuple[str, ...]:
     """The measures a calibration fitted on ``measures`` (rows in the order of
     ``MEASURE_NAMES``) uses: the base ones, plus :data:`CALIBRATION_POSTERIOR_MEASURES` when
-    those are finite in every row (the model has a state scorer)."""
-    cols = [MEASURE_NAMES.index(n) for n in CALIBRATION_POSTERIOR_MEASURES]
+    those are finite in every row (the model has a state scorer), plus the same from the
+    second network (``own_`` names) when those are (the model has an ``own_scorer``)."""
     m = np.asarray(measures, dtype=np.float64).reshape(-1, len(MEASURE_NAMES))
-    if cols and m.shape[0] and np.isfinite(m[:, cols]).all():
-        return BASE_MEASURE_NAMES + tuple(CALIBRATION_POSTERIOR_MEASURES)
-    return BASE_MEASURE_NAMES
+    names = BASE_MEASURE_NAMES
+    for group in (tuple(CALIBRATION_POSTERIOR_MEASURES), tuple("own_" + n for n in CALIBRATION_POSTERIOR_MEASURES)):
+        cols = [MEASURE_NAMES.index(n) for n in group]
+        if cols and m.shape[0] and np.isfinite(m[:, cols]).all():
+            names = names + group
+    return names
 
 
 @dataclass(frozen=True)
@@ -764,6 +768,8 @@ def _fallback_usable(fallback, model) -> bool:
     from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES
 
     if fallback is None or not set(fallback.names) <= set(MEASURE_NAMES):
+        return False
+    if set(fallback.names) & set(OWN_POSTERIOR_MEASURE_NAMES) and getattr(model, "own_scorer", None) is None:
         return False
     return getattr(model, "scorer", None) is not None or not set(fallback.names) & set(POSTERIOR_MEASURE_NAMES)
 

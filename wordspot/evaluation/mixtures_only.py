@@ -27,7 +27,7 @@ from dataclasses import asdict, replace
 from pathlib import Path
 from typing import Callable, Sequence
 
-from wordspot.decoding.confidence import POSTERIOR_MEASURE_NAMES
+from wordspot.decoding.confidence import OWN_POSTERIOR_MEASURE_NAMES, POSTERIOR_MEASURE_NAMES
 from wordspot.errors import WordspotError
 from wordspot.evaluation.starter_calibration import StarterCalibrationConfig, fit_starter_calibration
 
@@ -35,7 +35,7 @@ __all__ = ["without_scorer", "starter_mixtures_only", "cached_starter_mixtures_o
 
 
 def without_scorer(model):
-    """``model`` with its state scorer taken out.
+    """``model`` with its state scorer (and a second network, ``own_scorer``) taken out.
 
     Its calibration is kept when it reads no posterior measure, else dropped (the word
     confidence falls back to the heuristic until a new one is fitted). ``info`` says what was
@@ -43,13 +43,13 @@ def without_scorer(model):
     entries. The model given is not changed.
     """
     cal = model.calibration
-    if cal is not None and set(cal.names) & set(POSTERIOR_MEASURE_NAMES):
+    if cal is not None and set(cal.names) & set(POSTERIOR_MEASURE_NAMES + OWN_POSTERIOR_MEASURE_NAMES):
         cal = None
     info = {k: v for k, v in model.info.items()
-            if k not in ("scorer", "scorer_adaptation") and (k != "calibration" or cal is not None)}
+            if k not in ("scorer", "scorer_adaptation", "own_scorer") and (k != "calibration" or cal is not None)}
     info["scorer_taken_out"] = {"had_scorer": model.scorer is not None,
                                 "calibration_dropped": cal is None and model.calibration is not None}
-    return replace(model, scorer=None, calibration=cal, info=info)
+    return replace(model, scorer=None, own_scorer=None, calibration=cal, info=info)
 
 
 def starter_mixtures_only(starter, dev_utterances: Sequence, config: StarterCalibrationConfig = StarterCalibrationConfig(),
