@@ -325,6 +325,19 @@ def test_command_line_tunes_or_keeps_the_scorer(tone_start, tmp_path, capsys):
     assert load_model(kept).scorer.same_as(start.scorer)
 
 
+def test_command_line_fits_a_second_scorer_when_asked(tone_start, tmp_path, capsys):
+    start, _, other, start_path, lex_path = tone_start
+    common = [str(other), "--lexicon", str(lex_path), "--no-calibration", "--background-share", "0"]
+    out = tmp_path / "two.model"
+    assert main(["train", *common, "--start", str(start_path), "--out", str(out), "--second-scorer"]) == 0
+    assert "a second sound scorer: fitted on" in capsys.readouterr().out
+    model = load_model(out)
+    assert model.own_scorer is not None and model.info["own_scorer"]["hidden"] == [256, 256]
+    assert not model.scorer.same_as(start.scorer)  # the starter's is tuned as well
+    assert main(["train", *common, "--from-scratch", "--out", str(tmp_path / "x.model"), "--second-scorer"]) == 2
+    assert "--second-scorer applies when adapting a model only" in capsys.readouterr().err
+
+
 def test_a_scorer_reading_other_inputs_is_kept_as_it_is_when_adapting():
     # Tuning reads the aligned feature frames (cepstra); a starter whose scorer reads log-mel
     # inputs keeps it untouched, and the summary says why.
@@ -464,3 +477,20 @@ def test_an_own_scorer_beside_keeps_the_tuned_one_and_round_trips(tone_start, tm
 def test_a_bad_own_scorer_setting_is_refused(field, value):
     with pytest.raises(TrainingError, match=field):
         AdaptationConfig(**{field: value})
+
+
+def test_the_training_on_every_recording_keeps_the_first_trainings_second_network(tone_start):
+    from wordspot.training.adapt import adapting
+
+    start, lex, other, _, _ = tone_start
+    utts = read_manifest(other)
+    config = replace(QUICK, own_scorer=OWN, follow_noise_copies=0, follow_speeds=())
+    fit = adapting(start, lex, config=config)
+    first, _ = fit(utts[4:], held_out=utts[:4])
+    final, summary = fit(utts)
+    assert final.own_scorer.same_as(first.own_scorer) and final.info["own_scorer"] == first.info["own_scorer"]
+    assert first.info["own_scorer"]["items"] == 12  # the recordings not held out
+    assert any("not held out for the calibration, kept" in line for line in summary.lines())
+    # without a first training with held-out recordings, each call fits its own
+    alone, _ = adapting(start, lex, config=config)(utts)
+    assert alone.info["own_scorer"]["items"] == 16 and not alone.own_scorer.same_as(first.own_scorer)

@@ -12,6 +12,7 @@ from wordspot.evaluation.calibrate import CalibrationConfig, calibration_note, t
 from wordspot.language.lexicon import read_lexicon
 from wordspot.model import save_model
 from wordspot.training.adapt import AdaptationConfig, adapting
+from wordspot.training.own_scorer import SECOND_SCORER
 from wordspot.training.pronunciations import LearningConfig
 from wordspot.training.trainer import TrainingConfig, train
 from wordspot.training.workers import end_with_starter
@@ -129,6 +130,10 @@ def add_parser(sub, **options):
                        help="add to the lexicon pronunciations learned from your recordings: a word's "
                        "pronunciation with one or two vowels moved to a neighbouring vowel, when your takes "
                        "of it clearly fit that better (for accents); the summary names them")
+    start.add_argument("--second-scorer", action="store_true",
+                       help="also fit a second sound scorer on your recordings alone and let the confidence "
+                       "use both (about twice the training time; better at telling other talk from "
+                       "commands on our dev voices, a little worse on phrases)")
     full = p.add_argument_group("training from scratch")
     full.add_argument("--from-scratch", action="store_true",
                       help="learn every phone from these recordings alone, starting from nothing")
@@ -202,9 +207,10 @@ def _run(args) -> int:
     if args.from_scratch:
         if args.start is not None:
             raise TrainingError("--start and --from-scratch exclude each other: choose one")
-        if args.learn_pronunciations:
-            raise TrainingError("--learn-pronunciations applies when adapting a model only; "
-                                "leave out --from-scratch, or this option")
+        for flag, on in (("--learn-pronunciations", args.learn_pronunciations), ("--second-scorer", args.second_scorer)):
+            if on:
+                raise TrainingError(f"{flag} applies when adapting a model only; leave out --from-scratch, "
+                                    "or this option")
         fit, what = _scratch(args, lexicon, say)
     else:
         given = [f"--{n.replace('_', '-')}" for n in _SCRATCH_ONLY if getattr(args, n) is not None]
@@ -276,7 +282,8 @@ def _adapted(args, lexicon, say):
                               mean_transform=not args.no_mean_transform,
                               update_variances=args.adapt_variances, jobs=args.jobs, strength=args.strength,
                               pronunciations=LearningConfig(enabled=args.learn_pronunciations),
-                              **({"scorer": None} if args.keep_starter_scorer else {}), **_share(args))
+                              **({"scorer": None} if args.keep_starter_scorer else {}),
+                              **({"own_scorer": SECOND_SCORER} if args.second_scorer else {}), **_share(args))
 
     return adapting(start, lexicon, config=config, manifest=args.manifest, quiet=args.quiet, report=say), \
         f"adapted from {name}"

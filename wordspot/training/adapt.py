@@ -218,8 +218,10 @@ class AdaptationConfig:
         with their speed and noisy copies (``follow_speeds``, ``follow_noise_copies``) and
         the background items, as training from scratch fits its own
         (:mod:`wordspot.training.own_scorer`); its outputs are the starting model's mixture
-        ids, so phones the recordings never hold get a posterior of about zero. None: no
-        such network.
+        ids, so phones the recordings never hold get a posterior of about zero. With the
+        calibration of ``wordspot train`` it is fitted once, by the training on the
+        recordings not held out, and the training on every recording keeps it (its
+        measures were calibrated on recordings it never heard). None: no such network.
     own_scorer_role : str
         What that network is for: ``"beside"`` the tuned starter's network, as the model's
         ``own_scorer`` whose posterior measures (``own_...``) join the calibration's, or
@@ -748,7 +750,7 @@ def vocabulary_for(words, lexicon: Lexicon, start_lexicon: Lexicon) -> tuple[Lex
 def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: AdaptationConfig = AdaptationConfig(),
           manifest=None, quiet: bool = True, report=None, held_out=None,
           cache: ItemCache | None = None, held_out_copies: bool = True, record: dict | None = None,
-          base: dict | None = None) -> tuple[AcousticModel, TrainingSummary]:
+          base: dict | None = None, own_net=None) -> tuple[AcousticModel, TrainingSummary]:
     """Adapt ``start`` to recordings labelled with their words; the result recognises ``lexicon``'s words.
 
     The feature settings, units and transitions of ``start`` are kept, so every phone of
@@ -772,6 +774,10 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     only the other recordings (and their copies) are passed over and each pass adds the
     earlier one's statistics (``AdaptationConfig.reuse_first_passes``); the background
     items are the earlier call's.
+
+    ``own_net``: ``(scorer, info)`` of a second network fitted by an earlier call (the
+    calibration's first training), kept as this model's ``own_scorer`` instead of fitting
+    one again (``config.own_scorer`` with role ``"beside"``).
 
     Raises
     ------
@@ -926,7 +932,12 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
         info["scorer_adaptation"] = {"tuned": False, "reason": "kept by request"}
         summary.scorer_note = "kept the starting model's sound scorer as it is (as asked)"
     if config.own_scorer is not None and config.own_scorer_role == "beside":
-        own, info["own_scorer"], note = _own_scorer(start, mix, lexicon, bigrams, info, utterances, config)
+        if own_net is not None:
+            own, info["own_scorer"] = own_net
+            note = (f"sound scorer: the one fitted on {own_net[1].get('frames', 0)} frames of your recordings not "
+                    "held out for the calibration, kept")
+        else:
+            own, info["own_scorer"], note = _own_scorer(start, mix, lexicon, bigrams, info, utterances, config)
         summary.scorer_note = "; ".join(n for n in (summary.scorer_note, "a second " + note) if n)
     summary.seconds = time.monotonic() - t0
     info["seconds"] = round(summary.seconds, 2)
@@ -1179,7 +1190,7 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
     ``takes_held_out``.
     """
     chosen: dict = {}
-    first: dict = {}  # the first training's passes (AdaptationConfig.reuse_first_passes)
+    first: dict = {}  # the first training's passes (AdaptationConfig.reuse_first_passes) and second network
     cache = ItemCache()
 
     def fit(utterances, held_out=None, again=True, say=None, reuse=None):
@@ -1191,9 +1202,14 @@ def adapting(start: AcousticModel, lexicon: Lexicon, *, config: AdaptationConfig
         model, summary = adapt(utterances, lexicon, start, config=cfg, manifest=manifest,
                                quiet=quiet if say is None else True, report=report if say is None else say,
                                held_out=held_out, cache=cache, held_out_copies=again, record=record,
-                               base=first.get("record") if held_out is None and reuse else None)
+                               base=first.get("record") if held_out is None and reuse else None,
+                               own_net=first.get("own") if held_out is None else None)
         if record:
             first["record"] = record
+        if held_out is not None and model.own_scorer is not None:
+            # the calibration is fitted on this network's measures of recordings it never
+            # heard; the training on every recording keeps it (AdaptationConfig.own_scorer)
+            first["own"] = (model.own_scorer, model.info["own_scorer"])
         if held_out is not None and config.strength is None:
             chosen.clear()
             chosen.update(model.info["strength"])

@@ -20,11 +20,16 @@ import importlib.util
 from wordspot.training.frame_labels import align_frames
 from wordspot.training.scorer_fit import ScorerConfig, fit_scorer_with_report
 
-__all__ = ["SCRATCH_SCORER", "fit_own_scorer"]
+__all__ = ["SCRATCH_SCORER", "SECOND_SCORER", "fit_own_scorer"]
 
 #: The scorer's size for a user's recordings (some 100,000-500,000 frames with copies):
 #: smaller than the starters' 512x512, context 5 (11 frames) as theirs.
 SCRATCH_SCORER = ScorerConfig(hidden=(256, 256), context=5, max_frames=200_000)
+
+#: The second network of an adapted model (``AdaptationConfig.own_scorer``): the same size on
+#: at most 60,000 frames (the setting measured on the dev voices,
+#: docs/experiments/2026-12-04-adapted-scorer-unheard-accents.md).
+SECOND_SCORER = ScorerConfig(hidden=(256, 256), context=5, max_frames=60_000)
 
 
 def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share: float = 0.0, seed: int = 0,
