@@ -227,10 +227,11 @@ class AdaptationConfig:
         ``own_scorer`` whose posterior measures (``own_...``) join the calibration's, or
         ``"instead"`` of tuning the starter's (then the model's only ``scorer``). On the
         dev voices over three seeds (docs/experiments/2026-12-04-adapted-scorer-unheard-accents.md):
-        beside, the EER fell from 4.5% to 3.7% and other talk gave a command in 12.8% of
-        files instead of 14.0%, for about 2.2 times the training's time; instead, other
-        talk gave one in 25.5% and impacts in 36% instead of none (the starter's network is
-        what has heard speech that is no command).
+        beside, the EER fell from 4.5% to 3.7% and other talk gave a command in 12.7% of
+        files instead of 14.0%, but real phrases lost about a point of WER at the default
+        threshold, for about 1.7 times the training's time (so it is off by default);
+        instead, other talk gave one in 25.5% and impacts in 36% instead of none (the
+        starter's network is what has heard speech that is no command).
     pronunciations : LearningConfig
         Whether and how to add pronunciations learned from the recordings to the lexicon
         (:mod:`wordspot.training.pronunciations`): candidates scored with the starting
