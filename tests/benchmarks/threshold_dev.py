@@ -488,6 +488,9 @@ def main(argv=None) -> int:
     ap.add_argument("--own-role", choices=("instead", "beside"), default="instead",
                     help="with --own-scorer: the network instead of tuning the starter's, or beside it "
                          "(AdaptationConfig.own_scorer_role)")
+    ap.add_argument("--calibration-phrases", type=int, default=0,
+                    help="without --variants: phrases joined from held-out takes among the calibration's "
+                         "examples (CalibrationConfig.phrases; 0: none, the default)")
     ap.add_argument("--snrs", type=float, nargs="+", default=[10.0],
                     help="SNRs of the dev commands in noise (without --variants)")
     ap.add_argument("--show", type=float, nargs="+", default=list(THRESHOLDS),
@@ -533,7 +536,8 @@ def main(argv=None) -> int:
                               calibration=CalibrationConfig(seed=seed, settings=settings, backwards=args.backwards,
                                                             **({"refit": False} if args.no_refit else {}),
                                                             **({"speeds": tuple(args.speeds)} if args.speeds else {}),
-                                                            **({} if args.jumbled is None else {"jumbled": args.jumbled})))
+                                                            **({} if args.jumbled is None else {"jumbled": args.jumbled}),
+                                                            phrases=args.calibration_phrases))
             seconds.append(time.perf_counter() - t0)
             print(f"filler {fp:g}, seed {seed}: trained in {seconds[-1]:.1f} s", file=sys.stderr, flush=True)
             if sets is None:
