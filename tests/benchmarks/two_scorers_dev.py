@@ -38,7 +38,7 @@ sys.path.insert(0, str(HERE))
 
 from tune_filler import NO_COMMAND, dev_sets, write_dev_train_manifest  # noqa: E402
 
-OWN = "own:"  # prefix of the own network's measures in the side-by-side calibration
+OWN = "own_"  # prefix of the own network's measures (the package's own_ measures' names and signs)
 
 
 def _measures(segments, names):
@@ -49,19 +49,12 @@ def _measures(segments, names):
 
 
 def _fit(x, right, names, config):
-    """As ``fit_calibration``: logistic regression, then caps where a weight opposes its sign
-    (the own network's measures take the signs of the same measures)."""
-    from wordspot.evaluation import calibrate as cal
+    """As ``fit_calibration``: logistic regression, then caps where a weight opposes its sign."""
+    from wordspot.evaluation.calibrate import contrary_caps
     from wordspot.util.logistic import fit_logistic
 
     fitted = fit_logistic(x, right.astype(int), names, penalty=config.penalty)
-    signs = {**cal.MEASURE_SIGNS, **{OWN + n: s for n, s in cal.MEASURE_SIGNS.items()}}
-    saved = cal.MEASURE_SIGNS
-    try:
-        cal.MEASURE_SIGNS = signs
-        return cal.contrary_caps(fitted, x[right.astype(bool)], config.cap_quantile)
-    finally:
-        cal.MEASURE_SIGNS = saved
+    return contrary_caps(fitted, x[right.astype(bool)], config.cap_quantile)
 
 
 def _systems(ex_a, ex_b, config):

@@ -916,10 +916,11 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
     info["audio_band"] = band
     summary.adapt_note = strength_note(info["strength"])
     summary.pronunciation_note = learned_note(learned)
+    bare = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
+                         bigrams=bigrams, info=info, voice=getattr(start, "voice", None))  # no scorer yet
     scorer, own = start.scorer, None
     if config.own_scorer is not None and config.own_scorer_role == "instead":
-        scorer, info["scorer"], summary.scorer_note = _own_scorer(start, mix, lexicon, bigrams, info, utterances,
-                                                                  config)
+        scorer, info["scorer"], summary.scorer_note = _own_scorer(bare, utterances, config)
         if scorer is None:
             scorer = start.scorer
             summary.scorer_note += "; kept the starting model's sound scorer as it is"
@@ -938,23 +939,17 @@ def adapt(utterances, lexicon: Lexicon, start: AcousticModel, *, config: Adaptat
             note = (f"sound scorer: the one fitted on {own_net[1].get('frames', 0)} frames of your recordings not "
                     "held out for the calibration, kept")
         else:
-            own, info["own_scorer"], note = _own_scorer(start, mix, lexicon, bigrams, info, utterances, config)
+            own, info["own_scorer"], note = _own_scorer(bare, utterances, config)
         summary.scorer_note = "; ".join(n for n in (summary.scorer_note, "a second " + note) if n)
     summary.seconds = time.monotonic() - t0
     info["seconds"] = round(summary.seconds, 2)
-    model = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
-                          bigrams=bigrams, info=info, scorer=scorer, voice=getattr(start, "voice", None),
-                          own_scorer=own)
-    return model, summary
+    return replace(bare, scorer=scorer, own_scorer=own), summary
 
 
-def _own_scorer(start: AcousticModel, mix: Mixtures, lexicon: Lexicon, bigrams, info: dict, utterances,
-                config: AdaptationConfig):
-    """A state scorer fitted on ``utterances`` aligned with the adapted mixtures ``mix``
-    (``config.own_scorer``; :func:`wordspot.training.own_scorer.fit_own_scorer`), with the
-    following passes' speed and noisy copies and the adaptation's background items."""
-    bare = AcousticModel(features=start.features, units=start.units, mixtures=mix, lexicon=lexicon,
-                         bigrams=bigrams, info=info, scorer=None, voice=getattr(start, "voice", None))
+def _own_scorer(bare: AcousticModel, utterances, config: AdaptationConfig):
+    """A state scorer fitted on ``utterances`` aligned with the adapted model ``bare``'s
+    mixtures (``config.own_scorer``; :func:`wordspot.training.own_scorer.fit_own_scorer`), with
+    the following passes' speed and noisy copies and the adaptation's background items."""
     noise = (NoiseSettings(copies=config.follow_noise_copies, snr_db=config.follow_noise_snr)
              if config.follow_noise_copies else None)
     return fit_own_scorer(bare, utterances, noise=noise, speeds=config.follow_speeds,

@@ -16,6 +16,7 @@ docs/experiments/2026-12-03-scratch-scorer.md.
 from __future__ import annotations
 
 import importlib.util
+from dataclasses import replace
 
 from wordspot.training.frame_labels import align_frames
 from wordspot.training.scorer_fit import ScorerConfig, fit_scorer_with_report
@@ -29,7 +30,7 @@ SCRATCH_SCORER = ScorerConfig(hidden=(256, 256), context=5, max_frames=200_000)
 #: The second network of an adapted model (``AdaptationConfig.own_scorer``): the same size on
 #: at most 60,000 frames (the setting measured on the dev voices,
 #: docs/experiments/2026-12-04-adapted-scorer-unheard-accents.md).
-SECOND_SCORER = ScorerConfig(hidden=(256, 256), context=5, max_frames=60_000)
+SECOND_SCORER = replace(SCRATCH_SCORER, max_frames=60_000)
 
 
 def fit_own_scorer(model, utterances, *, noise=None, speeds=(), background_share: float = 0.0, seed: int = 0,
