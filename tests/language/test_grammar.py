@@ -155,3 +155,40 @@ def test_words_no_transcript_holds_get_the_mean_recorded_share(tmp_path):
     (tmp_path / "p.txt").write_text("^ oven 5\noven start 3\n", encoding="utf-8")
     assert np.exp(read_prior(tmp_path / "p.txt", words).unigram)[3] < expected[3]
 
+
+
+def test_unrecorded_words_are_as_likely_as_the_mean_recorded_word_after_every_word():
+    # The rule (ours, documented in wordspot.language.grammar): after every previous word
+    # with counts, an unrecorded word is as likely as the mean recorded word is there;
+    # the recorded words keep their ratios to each other (the row is only rescaled) and
+    # every row still sums to one (a probability distribution: a fact of the trade).
+    words = ("oven", "start", "stop", "proof", "dough")
+    sentences = [["oven", "start"]] * 6 + [["oven"]] * 3 + [["stop"]] * 2 + [["start", "stop"]]
+    counts = count_bigrams(sentences, words)
+    unrecorded = [4, 5]  # proof, dough: no transcript holds them
+    assert counts.counts[:, unrecorded].sum() == 0
+    fair = np.exp(estimate_prior(counts).log_matrix())
+    before = np.exp(_prior_without_fair_rows(counts).log_matrix())
+    np.testing.assert_allclose(fair.sum(axis=1), 1.0, rtol=1e-12)
+    recorded = [1, 2, 3]
+    for v in range(len(words) + 1):
+        row_has_counts = counts.counts[v].sum() > 0
+        if not row_has_counts:  # a row with no counts is the unigram, as before
+            np.testing.assert_allclose(fair[v], before[v], rtol=1e-12)
+            continue
+        np.testing.assert_allclose(fair[v, unrecorded], fair[v, recorded].mean(), rtol=1e-12)
+        kept = [0] + recorded  # the exit and the recorded words: the same ratios as before
+        np.testing.assert_allclose(fair[v, kept] / fair[v, 1], before[v, kept] / before[v, 1], rtol=1e-10)
+    # after the start, "dough" is now as likely as the mean of oven/start/stop (it was far below)
+    assert before[0, 5] < 0.5 * before[0, recorded].mean()
+
+
+def _prior_without_fair_rows(counts):
+    from wordspot.language import grammar
+
+    kept = grammar._fair_row
+    grammar._fair_row = lambda seen, logp, backoff, *_: (seen, logp, backoff)
+    try:
+        return estimate_prior(counts)
+    finally:
+        grammar._fair_row = kept

@@ -18,8 +18,10 @@ twice (n2) (the estimate given in the same paper), clipped to [0.1, 0.9], or 0.5
 cannot be estimated (common practice). ``U(w)``, proportional to ``c(., w) + 1``, counts how often
 ``w`` (or the exit) follows anything, plus one. In a prior estimated from training
 transcripts, a vocabulary word that no transcript holds counts as often as the mean
-recorded word (:func:`unigram_counts`), so words added by pronunciation alone get a prior
-comparable to recorded ones. A row with no counts is ``U``; a
+recorded word (:func:`unigram_counts`), and after every previous word with counts it is
+as likely as the mean recorded word is there (the row's other probabilities scaled down
+to make room), so words added by pronunciation alone get a prior comparable to recorded
+ones wherever they are said. A row with no counts is ``U``; a
 row in which every successor was seen keeps its plain relative frequencies. So no
 probability is ever zero and every row sums to one.
 
@@ -215,6 +217,25 @@ def unigram_counts(counts: np.ndarray) -> np.ndarray:
     return np.concatenate([col[:1], words])
 
 
+def _fair_row(seen, logp, backoff, log_uni, recorded, unrecorded):
+    """One row of listed pairs in which every unrecorded word is as likely as the mean recorded word.
+
+    ``seen``/``logp`` are the row's listed next words and log probabilities, ``backoff``
+    its log back-off weight (next words not listed get ``backoff + log_uni``). Returns the
+    row's listed words (the unrecorded ones added, sorted), their log probabilities and the
+    back-off weight, all scaled so that the row still sums to one.
+    """
+    row = backoff + log_uni  # the row as it was, over every next index
+    row[seen] = logp
+    with np.errstate(divide="ignore"):
+        fair = np.log(np.mean(np.exp(row[recorded])))
+        log_z = np.log(1.0 - np.exp(row[unrecorded]).sum() + unrecorded.size * np.exp(fair))
+    words = np.concatenate([seen, unrecorded])
+    values = np.concatenate([logp, np.full(unrecorded.size, fair)])
+    order = np.argsort(words, kind="stable")
+    return words[order], values[order] - log_z, backoff - log_z
+
+
 def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str, *,
                  fair_new_words: bool = False) -> BigramPrior:
     counts = np.asarray(counts, dtype=np.float64)
@@ -222,6 +243,9 @@ def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str, *,
     uni = (unigram_counts(counts) if fair_new_words else counts.sum(axis=0)) + 1.0
     uni /= uni.sum()
     d = _discount(counts)
+    column = counts.sum(axis=0)
+    recorded = np.flatnonzero(column[1:] > 0) + 1
+    unrecorded = np.flatnonzero(column[1:] <= 0) + 1
     backoff = np.zeros(n)
     starts = [0]
     nexts: list[np.ndarray] = []
@@ -242,8 +266,11 @@ def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str, *,
             probs = (row[seen] - d) / total
             alpha = d * seen.size / total
             backoff[v] = np.log(alpha) - np.log(unseen_mass)
+        logp = np.log(probs)
+        if fair_new_words and unrecorded.size and recorded.size:
+            seen, logp, backoff[v] = _fair_row(seen, logp, backoff[v], np.log(uni), recorded, unrecorded)
         nexts.append(seen.astype(np.int64))
-        logps.append(np.log(probs))
+        logps.append(logp)
         starts.append(starts[-1] + seen.size)
     return BigramPrior(
         words=tuple(words),
@@ -277,7 +304,7 @@ def estimate_prior(counts: BigramCounts) -> BigramPrior:
     return _from_counts(
         counts.words, c,
         "absolute discounting with back-off to add-one unigrams (Ney, Essen & Kneser 1994); "
-        "unrecorded words count as the mean recorded word",
+        "unrecorded words as likely as the mean recorded word",
         fair_new_words=True,
     )
 
