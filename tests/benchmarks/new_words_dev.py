@@ -79,7 +79,13 @@ def main(argv=None) -> int:
     ap.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2])
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--joined", type=int, default=100)
+    ap.add_argument("--everyday", type=int, default=0, metavar="N",
+                    help="instead: N everyday words said alone by the dev voices, added to the lexicon "
+                         "(their CMU dictionary pronunciations) as words nobody recorded; the starter alone "
+                         "against the starter adapted on every dev training recording, per seed")
     args = ap.parse_args(argv)
+    if args.everyday:
+        return everyday(args)
 
     import csv
 
@@ -129,6 +135,46 @@ def main(argv=None) -> int:
             v = [r[n] for r in rows_ if n in r]
             cells.append(f"{np.mean(v):.1f} ({min(v):.1f}-{max(v):.1f})" if v else "")
         print(f"| {data} | {prior} | {t:g} | " + " | ".join(cells) + " |")
+    return 0
+
+
+def everyday(args) -> int:
+    """Everyday words as new words: the starter alone against the adapted starter."""
+    from dev_no_command import everyday_word_set, everyday_words
+
+    from wordspot import api
+    from wordspot.language.lexicon import Lexicon, read_lexicon, suggest_pronunciations
+    from wordspot.model import load_model
+    from wordspot.training.adapt import AdaptationConfig
+
+    words = everyday_words(args.everyday)
+    said = everyday_word_set(args.everyday)
+    if not said:
+        return 1
+    bakery = read_lexicon(REPO / "lexicon" / "bakery.txt")
+    entries = {w: [tuple(p) for p in bakery.pronunciations(w)] for w in bakery.words}
+    for w, prons in suggest_pronunciations(words).items():
+        entries[w] = [tuple(p) for p in prons]
+    with tempfile.TemporaryDirectory() as tmp:
+        lex_file = Path(tmp) / "lexicon.txt"
+        lex_file.write_text("".join(f"{w} {' '.join(p)}\n" for w, ps in entries.items() for p in ps), encoding="utf-8")
+        lexicon = read_lexicon(lex_file)
+        sets = {"everyday words as new words": [(wave, [w]) for (wave, _), w in zip(said, words)]}
+        table: dict = {}
+        starter = load_model("starter")
+        starter.lexicon = lexicon
+        models = [("starter alone", None, starter)]
+        manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
+        for seed in args.seeds:
+            models.append((f"adapted, seed {seed}", seed, None))
+        for name, seed, model in models:
+            if model is None:
+                model = api.train(manifest, lex_file, start="starter", config=AdaptationConfig(seed=seed, jobs=args.jobs))
+            decoded = decode(model, sets, before=False)
+            for t in THRESHOLDS:
+                table[(name, t)] = rates(decoded, t)
+                print(f"{name}, threshold {t:g}: " + ", ".join(f"{k} {v:.1f}" for k, v in table[(name, t)].items()),
+                      flush=True)
     return 0
 
 
