@@ -246,6 +246,7 @@ def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str, *,
     column = counts.sum(axis=0)
     recorded = np.flatnonzero(column[1:] > 0) + 1
     unrecorded = np.flatnonzero(column[1:] <= 0) + 1
+    log_uni = np.log(uni)
     backoff = np.zeros(n)
     starts = [0]
     nexts: list[np.ndarray] = []
@@ -268,13 +269,13 @@ def _from_counts(words: tuple[str, ...], counts: np.ndarray, method: str, *,
             backoff[v] = np.log(alpha) - np.log(unseen_mass)
         logp = np.log(probs)
         if fair_new_words and unrecorded.size and recorded.size:
-            seen, logp, backoff[v] = _fair_row(seen, logp, backoff[v], np.log(uni), recorded, unrecorded)
+            seen, logp, backoff[v] = _fair_row(seen, logp, backoff[v], log_uni, recorded, unrecorded)
         nexts.append(seen.astype(np.int64))
         logps.append(logp)
         starts.append(starts[-1] + seen.size)
     return BigramPrior(
         words=tuple(words),
-        unigram=np.log(uni),
+        unigram=log_uni,
         backoff=backoff,
         pair_start=np.array(starts, dtype=np.int64),
         pair_next=np.concatenate(nexts) if nexts else np.zeros(0, dtype=np.int64),
