@@ -83,6 +83,9 @@ def main(argv=None) -> int:
                     help="instead: N everyday words said alone by the dev voices, added to the lexicon "
                          "(their CMU dictionary pronunciations) as words nobody recorded; the starter alone "
                          "against the starter adapted on every dev training recording, per seed")
+    ap.add_argument("--adapt", nargs="*", default=[], metavar="FIELD=VALUE",
+                    help="with --everyday: AdaptationConfig fields for the adapted model (a Python literal each, "
+                         "e.g. follow_variances=False)")
     args = ap.parse_args(argv)
     if args.everyday:
         return everyday(args)
@@ -147,6 +150,9 @@ def everyday(args) -> int:
     from wordspot.model import load_model
     from wordspot.training.adapt import AdaptationConfig
 
+    import ast
+
+    fields = {k: ast.literal_eval(v) for k, v in (a.split("=", 1) for a in args.adapt)}
     words = everyday_words(args.everyday)
     said = everyday_word_set(args.everyday)
     if not said:
@@ -166,10 +172,11 @@ def everyday(args) -> int:
         models = [("starter alone", None, starter)]
         manifest = write_dev_train_manifest(Path(tmp) / "dev-train.csv")
         for seed in args.seeds:
-            models.append((f"adapted, seed {seed}", seed, None))
+            models.append((f"adapted{''.join(f', {a}' for a in args.adapt)}, seed {seed}", seed, None))
         for name, seed, model in models:
             if model is None:
-                model = api.train(manifest, lex_file, start="starter", config=AdaptationConfig(seed=seed, jobs=args.jobs))
+                model = api.train(manifest, lex_file, start="starter",
+                                  config=AdaptationConfig(seed=seed, jobs=args.jobs, **fields))
             decoded = decode(model, sets, before=False)
             for t in THRESHOLDS:
                 table[(name, t)] = rates(decoded, t)
