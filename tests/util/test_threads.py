@@ -70,3 +70,35 @@ def test_the_command_line_runs_a_command_with_one_thread(two_blas_threads, monke
     assert cli.main(["lexicon", "suggest", "proof"]) == 0
     assert seen and set(seen[0]) == {1}
     assert max(_blas_threads()) == 2
+
+
+def test_scipys_own_blas_loaded_later_is_limited_too():
+    # scipy's wheels carry their own copy of OpenBLAS, loaded on scipy's first use of
+    # linear algebra; threadpoolctl limits only the libraries loaded when the limit is set
+    # (threadpoolctl's documentation, from memory). A fresh interpreter shows it: told to
+    # start four BLAS threads, every BLAS library must still run one inside the block,
+    # scipy's included, even though nothing had loaded scipy's before. (Why it matters: an
+    # OpenBLAS product split over threads adds in another order, so a model trained from
+    # scratch had other last bits on a 2-core machine with the default thread count than
+    # with one; seen 2026-12-04, docs/experiments/2026-12-04-prior-of-unrecorded-words.md.)
+    import json
+    import os
+    import subprocess
+    import sys
+
+    code = (
+        "import json, numpy\n"
+        "from wordspot.util.threads import one_blas_thread\n"
+        "from threadpoolctl import threadpool_info\n"
+        "with one_blas_thread():\n"
+        "    import scipy.linalg\n"
+        "    scipy.linalg.blas.dgemm(1.0, numpy.ones((2, 2)), numpy.ones((2, 2)))\n"
+        "    print(json.dumps([(i['filepath'], i['num_threads']) for i in threadpool_info()\n"
+        "                      if i['user_api'] == 'blas']))\n"
+    )
+    env = {**os.environ, "OPENBLAS_NUM_THREADS": "4"}
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+    libraries = json.loads(out.stdout.strip().splitlines()[-1])
+    if len(libraries) < 2:
+        pytest.skip("scipy shares numpy's BLAS library here")
+    assert {n for _, n in libraries} == {1}, libraries

@@ -29,7 +29,15 @@ F = TypeVar("F", bound=Callable)
 
 
 def one_blas_thread():
-    """A context manager: BLAS libraries use one thread inside it (the old limit after it)."""
+    """A context manager: BLAS libraries use one thread inside it (the old limit after it).
+
+    threadpoolctl limits the libraries loaded when the block starts. scipy brings its own
+    copy of OpenBLAS, loaded on scipy's first use of linear algebra, which would otherwise
+    keep one thread per core inside the block: its products' last bits then depend on the
+    number of cores (an OpenBLAS matrix product split over threads adds in another order),
+    and so did a model trained from scratch. So that copy is loaded first.
+    """
+    import scipy.linalg  # noqa: F401  (loads scipy's BLAS, so that the limit covers it)
     from threadpoolctl import threadpool_limits
 
     return threadpool_limits(limits=1, user_api="blas")
