@@ -574,4 +574,7 @@ def main(argv=None) -> int:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    from wordspot.util.threads import one_blas_thread
+
+    with one_blas_thread():  # one BLAS thread, as wordspot's own commands: the same model on any machine
+        sys.exit(main())
