@@ -157,7 +157,7 @@ def test_words_no_transcript_holds_get_the_mean_recorded_share(tmp_path):
 
 
 
-def test_unrecorded_words_are_as_likely_as_the_mean_recorded_word_after_every_word():
+def test_unrecorded_words_are_as_likely_as_the_mean_recorded_word_after_every_word(monkeypatch):
     # The rule (ours, documented in wordspot.language.grammar): after every previous word
     # with counts, an unrecorded word is as likely as the mean recorded word is there;
     # the recorded words keep their ratios to each other (the row is only rescaled) and
@@ -168,7 +168,7 @@ def test_unrecorded_words_are_as_likely_as_the_mean_recorded_word_after_every_wo
     unrecorded = [4, 5]  # proof, dough: no transcript holds them
     assert counts.counts[:, unrecorded].sum() == 0
     fair = np.exp(estimate_prior(counts).log_matrix())
-    before = np.exp(_prior_without_fair_rows(counts).log_matrix())
+    before = np.exp(_prior_without_fair_rows(counts, monkeypatch).log_matrix())
     np.testing.assert_allclose(fair.sum(axis=1), 1.0, rtol=1e-12)
     recorded = [1, 2, 3]
     for v in range(len(words) + 1):
@@ -183,12 +183,10 @@ def test_unrecorded_words_are_as_likely_as_the_mean_recorded_word_after_every_wo
     assert before[0, 5] < 0.5 * before[0, recorded].mean()
 
 
-def _prior_without_fair_rows(counts):
+def _prior_without_fair_rows(counts, monkeypatch):
+    """The prior as it was before unrecorded words got their share in every row."""
     from wordspot.language import grammar
 
-    kept = grammar._fair_row
-    grammar._fair_row = lambda seen, logp, backoff, *_: (seen, logp, backoff)
-    try:
+    with monkeypatch.context() as m:
+        m.setattr(grammar, "_fair_row", lambda seen, logp, backoff, *_: (seen, logp, backoff))
         return estimate_prior(counts)
-    finally:
-        grammar._fair_row = kept
