@@ -10,9 +10,14 @@ are then the only words without recordings). Each model recognises the dev sets 
 word's share only in the unigram it backs off to) and once with the prior *as it is* (an
 unrecorded word is as likely as the mean recorded word after every previous word:
 ``grammar._fair_row``); words below 0 and below the default threshold 0.05 are dropped
-afterwards. The demo's test sets are never used here.
+afterwards. ``--everyday N`` instead adds N everyday words said alone by the dev voices
+(``dev_no_command.py``) to the lexicon as words nobody recorded and scores them as
+commands, the starter alone against the starter adapted on every dev training recording
+(``--adapt FIELD=VALUE`` changes its ``AdaptationConfig``). The demo's test sets are never
+used here.
 
     OPENBLAS_NUM_THREADS=1 python tests/benchmarks/new_words_dev.py --seeds 0 1 2
+    OPENBLAS_NUM_THREADS=1 python tests/benchmarks/new_words_dev.py --everyday 150 --seeds 0 1 2
 """
 
 from __future__ import annotations
