@@ -38,7 +38,7 @@ sys.path.insert(0, str(HERE))
 
 from tune_filler import NO_COMMAND, dev_sets, write_dev_train_manifest  # noqa: E402
 
-OWN = "own_"  # prefix of the own network's measures (the package's own_ measures' names and signs)
+from wordspot.decoding.confidence import OWN_PREFIX as OWN  # noqa: E402  (the own network's measures' prefix)
 
 
 def _measures(segments, names):

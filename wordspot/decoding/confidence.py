@@ -62,6 +62,7 @@ __all__ = [
     "BASE_MEASURE_NAMES",
     "POSTERIOR_MEASURE_NAMES",
     "OWN_POSTERIOR_MEASURE_NAMES",
+    "OWN_PREFIX",
     "NO_POSTERIORS",
     "CONFIDENCE_SCALE",
     "DEFAULT_MIN_CONFIDENCE",
@@ -90,7 +91,8 @@ POSTERIOR_MEASURE_NAMES = ("posterior_mean", "posterior_phone_mean", "posterior_
 
 #: The same measures from a second network fitted on the user's recordings alone (a model's
 #: ``own_scorer``, beside the tuned starter's ``scorer``); NaN for a model without one.
-OWN_POSTERIOR_MEASURE_NAMES = tuple("own_" + name for name in POSTERIOR_MEASURE_NAMES)
+OWN_PREFIX = "own_"
+OWN_POSTERIOR_MEASURE_NAMES = tuple(OWN_PREFIX + name for name in POSTERIOR_MEASURE_NAMES)
 
 #: ARPAbet vowels by broad class, front / central / back by where the vowel starts (the usual
 #: vowel chart of American English; from memory). A diphthong goes with its first part.

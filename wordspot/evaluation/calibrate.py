@@ -43,7 +43,7 @@ import numpy as np
 
 from wordspot.audio.augment import snr_range
 from wordspot.decoding.confidence import (BASE_MEASURE_NAMES, MEASURE_NAMES, OWN_POSTERIOR_MEASURE_NAMES,
-                                           POSTERIOR_MEASURE_NAMES)
+                                           OWN_PREFIX, POSTERIOR_MEASURE_NAMES)
 from wordspot.decoding.decoder import DecoderSettings, Recognition, build_recognizer
 from wordspot.errors import TrainingError, TrainingWarning, WordspotError
 from wordspot.evaluation.reliability import word_hits
@@ -156,7 +156,7 @@ def calibration_measures(measures: np.ndarray) -> tuple[str, ...]:
     second network (``own_`` names) when those are (the model has an ``own_scorer``)."""
     m = np.asarray(measures, dtype=np.float64).reshape(-1, len(MEASURE_NAMES))
     names = BASE_MEASURE_NAMES
-    for group in (tuple(CALIBRATION_POSTERIOR_MEASURES), tuple("own_" + n for n in CALIBRATION_POSTERIOR_MEASURES)):
+    for group in (tuple(CALIBRATION_POSTERIOR_MEASURES), tuple(OWN_PREFIX + n for n in CALIBRATION_POSTERIOR_MEASURES)):
         cols = [MEASURE_NAMES.index(n) for n in group]
         if cols and m.shape[0] and np.isfinite(m[:, cols]).all():
             names = names + group
